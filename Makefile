@@ -1,0 +1,24 @@
+# Two entry points for a fresh machine with Python 3.11: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test setup clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+	$(BIN)/pip install --quiet -e '.[test,dask]'
+	touch $(STAMP)
+
+setup: $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/lagdesk identify demo_data/portfolio.csv
+
+test: $(STAMP)
+	$(BIN)/python -m pytest
+
+clean:
+	rm -rf $(VENV) *.egg-info

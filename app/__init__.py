@@ -1,0 +1,3 @@
+"""Lagdesk: Box-Jenkins identification and review of ARIMA orders for a portfolio of series."""
+
+__version__ = "0.1.0"

@@ -1,0 +1,213 @@
+"""Reading a portfolio of series from a CSV file, long or wide.
+
+*Long* layout: one row per observation, columns ``series_id,timestamp,value`` by default.
+*Wide* layout: one time column and one column per series.
+
+Timestamps are dates/datetimes or plain integer steps (1, 2, 3, ...). Empty value cells are
+missing observations (gaps), not errors. A cell that is not a number, or is not finite
+(``nan``, ``inf``, a value that overflows), makes its series unusable and is reported with the
+line it is on; the other series are still read. Anything that makes the whole file unusable
+raises :class:`~app.core.errors.InputFileError`.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from app.core.errors import InputFileError, SeriesProblem
+
+LAYOUTS = ("long", "wide")
+DEFAULT_ID_COL = "series_id"
+DEFAULT_TIME_COL = "timestamp"
+DEFAULT_VALUE_COL = "value"
+FIRST_DATA_LINE = 2  # line 1 is the header
+
+
+@dataclass
+class RawSeries:
+    """One series as read from the file, before it is put on a regular grid.
+
+    ``lines`` holds, for each observation, its 1-based line number in the file.
+    """
+
+    series_id: str
+    values: pd.Series
+    lines: np.ndarray
+
+
+@dataclass
+class PortfolioFile:
+    """The readable series of a file and the problems of the unreadable ones."""
+
+    path: str
+    series: list[RawSeries] = field(default_factory=list)
+    problems: list[SeriesProblem] = field(default_factory=list)
+
+
+def read_portfolio(
+    path: str | Path,
+    layout: str = "long",
+    id_col: str = DEFAULT_ID_COL,
+    time_col: str = DEFAULT_TIME_COL,
+    value_col: str = DEFAULT_VALUE_COL,
+    display_name: str | None = None,
+) -> PortfolioFile:
+    """Read a long or wide CSV file into raw series.
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file.
+    layout : {"long", "wide"}
+        Long: one row per observation; wide: a time column and one column per series.
+    id_col, time_col, value_col : str
+        Column names (``id_col`` and ``value_col`` are used by the long layout only).
+    display_name : str, optional
+        The name used in messages (e.g. the uploaded file's name); defaults to ``path``.
+
+    Raises
+    ------
+    InputFileError
+        When the file cannot be read at all or lacks a required column.
+    """
+    name = display_name or str(path)
+    if layout not in LAYOUTS:
+        raise InputFileError(name, f"layout must be one of {', '.join(LAYOUTS)}, not {layout!r}")
+    table = _read_table(Path(path), name)
+    if layout == "long":
+        return _read_long(table, name, id_col, time_col, value_col)
+    return _read_wide(table, name, time_col)
+
+
+def _read_table(path: Path, name: str) -> pd.DataFrame:
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise InputFileError(name, f"cannot be read ({exc.strerror or exc})") from None
+    if not raw.strip():
+        raise InputFileError(name, "the file is empty")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputFileError(name, f"is not UTF-8 text (byte {exc.start} cannot be decoded)") from None
+    try:
+        table = pd.read_csv(
+            io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True,
+            quoting=csv.QUOTE_MINIMAL,
+        )
+    except (pd.errors.ParserError, csv.Error, ValueError) as exc:
+        raise InputFileError(name, f"is not a readable CSV file ({str(exc).strip()})") from None
+    table.columns = [str(c).strip() for c in table.columns]
+    if table.empty:
+        raise InputFileError(name, "has a header but no data rows")
+    return table
+
+
+def _require_columns(table: pd.DataFrame, name: str, columns: list[str]) -> None:
+    missing = [c for c in columns if c not in table.columns]
+    if missing:
+        found = ", ".join(repr(c) for c in table.columns[:10])
+        hint = ""
+        if len(table.columns) == 1 and any(sep in table.columns[0] for sep in ";\t|"):
+            hint = " (the file may use another delimiter than a comma)"
+        raise InputFileError(
+            name, f"no column named {', '.join(repr(c) for c in missing)}; the header has {found}{hint}"
+        )
+
+
+def parse_timestamps(texts: pd.Series, name: str, lines: np.ndarray) -> pd.Index:
+    """Parse a column of timestamps: all integers, or all dates/datetimes.
+
+    Raises
+    ------
+    InputFileError
+        Naming the first line whose timestamp cannot be read, or mixed time zones.
+    """
+    stripped = texts.str.strip()
+    as_int = pd.to_numeric(stripped, errors="coerce")
+    if as_int.notna().all() and (as_int == np.round(as_int)).all():
+        return pd.Index(as_int.astype(np.int64).to_numpy(), name="timestamp")
+    try:
+        parsed = pd.to_datetime(stripped, errors="coerce", format="ISO8601")
+        if parsed.isna().any():
+            parsed = pd.to_datetime(stripped, errors="coerce", format="mixed")
+    except (ValueError, TypeError) as exc:
+        raise InputFileError(name, f"timestamps cannot be read together ({exc}); mixed time zones?") from None
+    if parsed.isna().any():
+        bad = int(np.flatnonzero(parsed.isna().to_numpy())[0])
+        raise InputFileError(name, f"line {lines[bad]}: timestamp {texts.iloc[bad]!r} is not a date, time or integer step")
+    index = pd.DatetimeIndex(parsed, name="timestamp")
+    if index.tz is not None:
+        index = index.tz_convert("UTC").tz_localize(None)
+    return index
+
+
+def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndarray:
+    """Parse value cells: empty cells are gaps (NaN); anything else must be a finite number.
+
+    Raises
+    ------
+    SeriesProblem
+        Naming the first line with a non-numeric or non-finite value.
+    """
+    stripped = texts.str.strip()
+    empty = stripped.eq("").to_numpy()
+    numbers = pd.to_numeric(stripped.where(~empty, None), errors="coerce").to_numpy(dtype=float)
+    bad = ~empty & ~np.isfinite(numbers)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        cell = texts.iloc[i]
+        kind = "not finite" if stripped.iloc[i].lower().lstrip("+-") in {"nan", "inf", "infinity"} or np.isinf(numbers[i]) else "not a number"
+        raise SeriesProblem(series_id, f"value {cell!r} is {kind}", row=int(lines[i]), flag="bad_value")
+    numbers[empty] = np.nan
+    return numbers
+
+
+def _read_long(table: pd.DataFrame, name: str, id_col: str, time_col: str, value_col: str) -> PortfolioFile:
+    _require_columns(table, name, [id_col, time_col, value_col])
+    result = PortfolioFile(path=name)
+    lines = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
+    ids = table[id_col].str.strip()
+    if (ids == "").any():
+        bad = int(np.flatnonzero((ids == "").to_numpy())[0])
+        raise InputFileError(name, f"line {lines[bad]}: empty series id in column {id_col!r}")
+    index = parse_timestamps(table[time_col], name, lines)
+    for series_id, positions in ids.groupby(ids, sort=False).indices.items():
+        series_lines = lines[positions]
+        try:
+            values = parse_values(table[value_col].iloc[positions], series_id, series_lines)
+        except SeriesProblem as problem:
+            result.problems.append(problem)
+            continue
+        result.series.append(RawSeries(series_id, pd.Series(values, index=index[positions]), series_lines))
+    return result
+
+
+def _read_wide(table: pd.DataFrame, name: str, time_col: str) -> PortfolioFile:
+    _require_columns(table, name, [time_col])
+    value_cols = [c for c in table.columns if c != time_col]
+    if not value_cols:
+        raise InputFileError(name, f"wide layout needs at least one series column besides {time_col!r}")
+    result = PortfolioFile(path=name)
+    lines = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
+    index = parse_timestamps(table[time_col], name, lines)
+    for column in value_cols:
+        try:
+            values = parse_values(table[column], column, lines)
+        except SeriesProblem as problem:
+            result.problems.append(problem)
+            continue
+        keep = ~np.isnan(values)
+        if not keep.any():
+            result.problems.append(SeriesProblem(column, "has no values at all", flag="empty"))
+            continue
+        first, last = np.flatnonzero(keep)[[0, -1]]
+        span = slice(first, last + 1)
+        result.series.append(RawSeries(column, pd.Series(values[span], index=index[span]), lines[span]))
+    return result

@@ -1,0 +1,197 @@
+"""Putting one series on a regular grid, ready for identification.
+
+Rules (documented in DEVELOPERS.md as well):
+
+* observations are sorted by time; two observations with the same timestamp are an error
+  naming the timestamp, unless the caller chose an aggregation (``mean``, ``sum``, ``last``);
+* the sampling frequency is inferred from the timestamps (the most common spacing when some
+  are missing); timestamps off that grid are an error naming the first one;
+* runs of up to :data:`SHORT_GAP_MAX` missing points are filled by linear interpolation and
+  counted; longer runs are also interpolated, so that the analysis can run, but flagged
+  ``long_gap`` so the reviewer knows the correlograms lean on invented values;
+* missing values at the start or end are dropped;
+* a series with fewer than :data:`MIN_POINTS` points, or whose values are all equal, cannot be
+  identified and is reported as a :class:`~app.core.errors.SeriesProblem`; one with fewer
+  than :data:`RECOMMENDED_POINTS` is analysed but flagged ``too_short`` (Box & Jenkins ask for
+  at least about 50 observations; 30 is the floor in common practice).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from app.core.errors import SeriesProblem
+
+SHORT_GAP_MAX = 3
+MIN_POINTS = 12
+RECOMMENDED_POINTS = 30
+Aggregation = Literal["mean", "sum", "last"]
+INTEGER_FREQ = "step"
+
+
+@dataclass
+class PreparedSeries:
+    """A series on a regular grid with what was done to get it there."""
+
+    series_id: str
+    values: np.ndarray
+    index: pd.Index
+    freq: str
+    gaps_filled: int = 0
+    long_gaps: int = 0
+    flags: list[str] = field(default_factory=list)
+
+    @property
+    def n(self) -> int:
+        return int(self.values.size)
+
+    def to_series(self) -> pd.Series:
+        return pd.Series(self.values, index=self.index, name=self.series_id)
+
+
+def prepare_series(
+    series: pd.Series,
+    series_id: str | None = None,
+    lines: np.ndarray | None = None,
+    aggregate: Aggregation | None = None,
+) -> PreparedSeries:
+    """Sort, regularise, fill and check one series.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Values indexed by timestamps (datetime) or integer steps; NaN marks a missing value.
+    series_id : str, optional
+        Name used in messages; defaults to ``series.name``.
+    lines : numpy.ndarray, optional
+        The file line of each observation, so errors can name it.
+    aggregate : {"mean", "sum", "last"}, optional
+        How to combine observations that share a timestamp; without it they are an error.
+
+    Raises
+    ------
+    SeriesProblem
+        Duplicate or off-grid timestamps, non-finite values, too few points, constant values.
+    """
+    sid = str(series_id if series_id is not None else series.name)
+    values = pd.Series(np.asarray(series.to_numpy(), dtype=float), index=series.index)
+    line_of = pd.Series(lines if lines is not None else np.full(len(values), -1), index=series.index)
+    _reject_infinite(values, line_of, sid)
+    order = np.argsort(values.index.to_numpy(), kind="stable")
+    values, line_of = values.iloc[order], line_of.iloc[order]
+    values = _resolve_duplicates(values, line_of, sid, aggregate)
+    values = values.loc[values.first_valid_index(): values.last_valid_index()] if values.notna().any() else values.iloc[:0]
+    if values.size == 0:
+        raise SeriesProblem(sid, "has no values", flag="empty")
+    freq, grid = _regular_grid(values.index, sid, line_of)
+    on_grid = values.reindex(grid)
+    missing = on_grid.isna().to_numpy()
+    run_lengths = _missing_runs(missing)
+    filled = on_grid.interpolate(method="linear", limit_area="inside").to_numpy()
+    prepared = PreparedSeries(
+        series_id=sid,
+        values=filled,
+        index=grid,
+        freq=freq,
+        gaps_filled=int(missing.sum()),
+        long_gaps=int(sum(1 for r in run_lengths if r > SHORT_GAP_MAX)),
+    )
+    if prepared.gaps_filled:
+        prepared.flags.append("gaps")
+    if prepared.long_gaps:
+        prepared.flags.append("long_gap")
+    observed = prepared.n - prepared.gaps_filled
+    if observed < MIN_POINTS:
+        raise SeriesProblem(
+            sid, f"has {observed} observations; at least {MIN_POINTS} are needed to identify a model",
+            flag="too_short",
+        )
+    if np.ptp(filled) <= 1e-12 * max(1.0, float(np.abs(filled).max())):
+        raise SeriesProblem(sid, f"is constant (every value is {filled[0]:g}); there is nothing to model", flag="constant")
+    if observed < RECOMMENDED_POINTS:
+        prepared.flags.append("too_short")
+    return prepared
+
+
+def _reject_infinite(values: pd.Series, line_of: pd.Series, sid: str) -> None:
+    bad = np.isinf(values.to_numpy())
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        line = int(line_of.iloc[i])
+        raise SeriesProblem(
+            sid, f"value {values.iloc[i]} at {values.index[i]} is not finite",
+            row=line if line > 0 else None, flag="bad_value",
+        )
+
+
+def _resolve_duplicates(values: pd.Series, line_of: pd.Series, sid: str, aggregate: Aggregation | None) -> pd.Series:
+    duplicated = values.index.duplicated(keep="first")
+    if not duplicated.any():
+        return values
+    if aggregate is None:
+        i = int(np.flatnonzero(duplicated)[0])
+        line = int(line_of.iloc[i])
+        raise SeriesProblem(
+            sid, f"timestamp {values.index[i]} appears more than once (choose an aggregation to combine them)",
+            row=line if line > 0 else None, flag="duplicate_timestamp",
+        )
+    grouped = values.groupby(level=0, sort=True)
+    return {"mean": grouped.mean, "sum": grouped.sum, "last": grouped.last}[aggregate]()
+
+
+def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, pd.Index]:
+    if len(index) == 1:
+        return (INTEGER_FREQ if not isinstance(index, pd.DatetimeIndex) else "D"), index
+    if not isinstance(index, pd.DatetimeIndex):
+        steps = np.diff(index.to_numpy().astype(np.int64))
+        step = int(np.gcd.reduce(steps))
+        grid = pd.Index(np.arange(index[0], index[-1] + step, step), name=index.name)
+        return INTEGER_FREQ if step == 1 else f"{step} steps", grid
+    freq = pd.infer_freq(index) if len(index) >= 3 else None
+    if freq is None:
+        freq = _modal_frequency(index)
+    grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
+    off = ~index.isin(grid)
+    if off.any():
+        i = int(np.flatnonzero(off)[0])
+        line = int(line_of.loc[index[i]].iloc[0] if isinstance(line_of.loc[index[i]], pd.Series) else line_of.loc[index[i]])
+        raise SeriesProblem(
+            sid, f"timestamp {index[i]} is off the {freq} grid the other timestamps follow (irregular spacing)",
+            row=line if line > 0 else None, flag="irregular",
+        )
+    return freq, grid
+
+
+def _modal_frequency(index: pd.DatetimeIndex) -> str:
+    deltas = pd.Series(pd.TimedeltaIndex(np.diff(index.values))).value_counts()
+    modal = pd.Timedelta(deltas.index[0])
+    days = modal / pd.Timedelta(days=1)
+    starts = bool((index.day == 1).all())
+    if 28 <= days <= 31:
+        return "MS" if starts else "ME"
+    if 89 <= days <= 92:
+        return "QS" if starts else "QE"
+    if 365 <= days <= 366:
+        return "YS" if starts else "YE"
+    if days == 7:
+        return f"W-{index[0].day_name()[:3].upper()}"
+    if days == int(days):
+        return "D" if days == 1 else f"{int(days)}D"
+    return pd.tseries.frequencies.to_offset(modal).freqstr
+
+
+def _missing_runs(missing: np.ndarray) -> list[int]:
+    runs, current = [], 0
+    for is_missing in missing:
+        if is_missing:
+            current += 1
+        elif current:
+            runs.append(current)
+            current = 0
+    if current:
+        runs.append(current)
+    return runs
