@@ -158,7 +158,7 @@ def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndar
     """
     stripped = texts.str.strip()
     empty = stripped.eq("").to_numpy()
-    numbers = pd.to_numeric(stripped.where(~empty, None), errors="coerce").to_numpy(dtype=float)
+    numbers = pd.to_numeric(stripped.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
     bad = ~empty & ~np.isfinite(numbers)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])

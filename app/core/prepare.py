@@ -18,6 +18,7 @@ Rules (documented in DEVELOPERS.md as well):
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from typing import Literal
 
@@ -151,7 +152,7 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
         step = int(np.gcd.reduce(steps))
         grid = pd.Index(np.arange(index[0], index[-1] + step, step), name=index.name)
         return INTEGER_FREQ if step == 1 else f"{step} steps", grid
-    freq = pd.infer_freq(index) if len(index) >= 3 else None
+    freq = _inferred_frequency(index)
     if freq is None:
         freq = _modal_frequency(index)
     grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
@@ -164,6 +165,16 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
             row=line if line > 0 else None, flag="irregular",
         )
     return freq, grid
+
+
+def _inferred_frequency(index: pd.DatetimeIndex) -> str | None:
+    """pandas' inferred frequency as a string (pandas 3 is moving from strings to offsets)."""
+    if len(index) < 3:
+        return None
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*infer_freq")
+        freq = pd.infer_freq(index)
+    return freq if freq is None or isinstance(freq, str) else freq.freqstr
 
 
 def _modal_frequency(index: pd.DatetimeIndex) -> str:

@@ -1,0 +1,356 @@
+"""Seasonal period, seasonal strength and the seasonal differencing decision for one series.
+
+* The default period ``s`` follows from the sampling frequency (:func:`default_period`); a user
+  may override it, and :func:`validate_period` rejects values that make no sense.
+* The seasonal strength ``F_S`` of Wang, Smith & Hyndman (2006) is read from a robust STL
+  decomposition (:func:`seasonal_strength`); the series is differenced once at lag ``s`` when
+  ``F_S`` exceeds :data:`SEASONAL_STRENGTH_THRESHOLD` and the series holds at least
+  :data:`MIN_SEASONS_DIFFERENCING` full seasons (:func:`choose_seasonal_differencing`).
+* :func:`seasonal_structure_present` tells whether the correlogram shows anything at the
+  seasonal lags, so the engine can say "no seasonal structure at lag s" instead of forcing a
+  seasonal model; :func:`seasonal_lags` lists the lags ``s, 2s, ...`` a correlogram marks.
+
+The OCSB test (Osborn, Chui, Smith & Birchenhall 1988) is not implemented: statsmodels does not
+have it and its critical values could not be checked against a published table here.
+
+References
+----------
+.. [1] Wang, X., Smith, K.A. & Hyndman, R.J. (2006). Characteristic-based clustering for time
+   series data. *Data Mining and Knowledge Discovery* 13, 335-364.
+.. [2] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
+   3rd ed., OTexts, §2.1 (seasonal periods), §4.3 (STL features), §9.1 (seasonal differencing).
+.. [3] Cleveland, R.B., Cleveland, W.S., McRae, J.E. & Terpenning, I. (1990). STL: a
+   seasonal-trend decomposition procedure based on loess. *J. Official Statistics* 6, 3-73.
+"""
+
+from __future__ import annotations
+
+import numbers
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from pandas.tseries.frequencies import to_offset
+from statsmodels.tsa.seasonal import STL
+
+from app.core.errors import OrderError
+
+SEASONAL_STRENGTH_THRESHOLD = 0.64
+MIN_SEASONS_SEASONAL_TERMS = 2
+MIN_SEASONS_DIFFERENCING = 3
+STL_ROBUST = True
+
+_ONE_HOUR = pd.Timedelta(hours=1)
+_PERIOD_OF_OFFSET: tuple[tuple[tuple[type, ...], int], ...] = (
+    ((pd.offsets.Day,), 7),
+    ((pd.offsets.BusinessDay,), 5),
+    ((pd.offsets.Week,), 52),
+    ((pd.offsets.MonthBegin, pd.offsets.MonthEnd, pd.offsets.BusinessMonthBegin, pd.offsets.BusinessMonthEnd), 12),
+    ((pd.offsets.QuarterBegin, pd.offsets.QuarterEnd, pd.offsets.BQuarterBegin, pd.offsets.BQuarterEnd), 4),
+)
+
+
+@dataclass(frozen=True)
+class SeasonalStrength:
+    """Trend and seasonal strength of one series from its STL decomposition.
+
+    ``seasonal`` is F_S = max(0, 1 - Var(R)/Var(S+R)) and ``trend`` is
+    F_T = max(0, 1 - Var(R)/Var(T+R)); the variances (divisor n - 1) are kept so the figures
+    can be checked.
+    """
+
+    seasonal: float
+    trend: float
+    period: int
+    var_remainder: float
+    var_seasonal_remainder: float
+    var_trend_remainder: float
+    robust: bool
+
+
+@dataclass
+class SeasonalDifferencing:
+    """The seasonal differencing decision D in {0, 1} with the figures behind it.
+
+    ``strength`` and ``trend_strength`` are F_S and F_T (None when the series is too short for a
+    decomposition or has no period); ``seasons`` counts full seasons; ``enough_seasons`` says
+    whether there are enough of them for D = 1 and ``seasonal_terms_possible`` whether there
+    are enough for any seasonal AR or MA term. ``flags`` holds ``too_few_seasons`` when the
+    series is too short for seasonal differencing.
+    """
+
+    D: int
+    period: int | None
+    strength: float | None
+    trend_strength: float | None
+    threshold: float
+    seasons: int
+    enough_seasons: bool
+    seasonal_terms_possible: bool
+    flags: list[str] = field(default_factory=list)
+    explanation: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return {
+            "D": self.D,
+            "period": self.period,
+            "seasonal_strength": self.strength,
+            "trend_strength": self.trend_strength,
+            "threshold": self.threshold,
+            "seasons": self.seasons,
+            "enough_seasons": self.enough_seasons,
+            "seasonal_terms_possible": self.seasonal_terms_possible,
+            "flags": list(self.flags),
+            "explanation": list(self.explanation),
+        }
+
+
+def default_period(freq: str) -> int | None:
+    """Seasonal period implied by a sampling frequency.
+
+    ===========================================  ======  ====================
+    frequency (pandas alias)                     period  cycle
+    ===========================================  ======  ====================
+    hourly (``h``, ``60min``)                    24      a day
+    daily (``D``)                                7       a week
+    business daily (``B``)                       5       a working week
+    weekly (``W-SUN``, ``W-MON`` ...)            52      a year (52.18 weeks)
+    monthly (``MS``, ``ME``, ``BMS``, ``BME``)   12      a year
+    quarterly (``QS``, ``QE``, ``QS-OCT`` ...)   4       a year
+    yearly, integer steps, anything else         None    non-seasonal
+    ===========================================  ======  ====================
+
+    Multiples such as ``2D`` or ``2h`` and sub-hourly data have no default: their cycles are
+    either not a whole number of steps (3.5 two-day steps a week) or too long for seasonal
+    ARIMA fits to run in reasonable time (96 quarter-hours a day); the user can still give
+    such a period explicitly. Weekly data get 52, the usual rounding of the
+    52.18 weeks in a year.
+
+    Parameters
+    ----------
+    freq : str
+        A frequency as :func:`app.core.prepare.prepare_series` reports it (a pandas offset
+        alias, ``"step"`` or ``"N steps"``).
+
+    References
+    ----------
+    .. [1] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed.,
+       §2.1, table of seasonal periods.
+    """
+    try:
+        offset = to_offset(freq)
+    except ValueError:
+        return None
+    if isinstance(offset, pd.offsets.Tick):
+        return 24 if pd.Timedelta(offset) == _ONE_HOUR else None
+    if offset.n != 1:
+        return None
+    for kinds, period in _PERIOD_OF_OFFSET:
+        if isinstance(offset, kinds):
+            return period
+    return None
+
+
+def validate_period(period: int | None, n: int, series_id: str | None = None) -> int | None:
+    """Check a seasonal period given for a series of ``n`` observations.
+
+    ``None`` means non-seasonal and is returned as is. A period must be a whole number of at
+    least 2 (a "period" of 1 is no seasonality at all) and shorter than the series; whether
+    there are enough full seasons for a seasonal model is decided later and flagged, not
+    raised (see :func:`choose_seasonal_differencing`).
+
+    Raises
+    ------
+    OrderError
+        The period is not a whole number, is below 2, or is not shorter than the series.
+    """
+    if period is None:
+        return None
+    where = f"series {series_id!r}: " if series_id is not None else ""
+    if isinstance(period, bool) or not isinstance(period, numbers.Integral):
+        raise OrderError(f"{where}seasonal period {period!r} is not a whole number (give e.g. 12, or none)")
+    s = int(period)
+    if s < 2:
+        raise OrderError(
+            f"{where}seasonal period {s} is not allowed: a period must be at least 2 "
+            "(use none for a non-seasonal model)"
+        )
+    if s >= n:
+        raise OrderError(
+            f"{where}seasonal period {s} is not shorter than the series ({n} observations); "
+            "a seasonal model needs several full seasons"
+        )
+    return s
+
+
+def seasonal_strength(x: np.ndarray, period: int) -> SeasonalStrength:
+    """Seasonal and trend strength of Wang, Smith & Hyndman (2006) from a robust STL fit.
+
+    With STL components trend T, seasonal S and remainder R,
+
+    ``F_S = max(0, 1 - Var(R) / Var(S + R))`` and ``F_T = max(0, 1 - Var(R) / Var(T + R))``.
+
+    A value near 1 means the seasonal (trend) component dominates the noise. When
+    ``Var(S + R)`` is zero (no seasonal or remainder variation at all) F_S is 0.
+
+    Parameters
+    ----------
+    x : ndarray
+        The series, finite, with at least two full seasons.
+    period : int
+        Seasonal period, at least 2.
+
+    Notes
+    -----
+    STL is statsmodels' ``STL(x, period=period, robust=True)`` with its other defaults
+    (seasonal smoother of length 7). The robust fit (common practice) puts outliers in the
+    remainder instead of letting them bend the seasonal component; on short noise-only series
+    it also gives F_S above the threshold far less often than the non-robust fit.
+
+    References
+    ----------
+    .. [1] Wang, Smith & Hyndman (2006), *Data Mining and Knowledge Discovery* 13, 335-364.
+    .. [2] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed., §4.3.
+    .. [3] Cleveland et al. (1990), *J. Official Statistics* 6, 3-73 (STL, robust fitting).
+    """
+    values = np.asarray(x, dtype=float)
+    if values.ndim != 1 or not np.isfinite(values).all():
+        raise ValueError("seasonal_strength needs a one-dimensional series of finite values")
+    if period < 2 or values.size < MIN_SEASONS_SEASONAL_TERMS * period:
+        raise ValueError(
+            f"seasonal_strength needs period >= 2 and at least {MIN_SEASONS_SEASONAL_TERMS} full seasons "
+            f"(period {period}, {values.size} observations)"
+        )
+    fit = STL(values, period=period, robust=STL_ROBUST).fit()
+    var_r = float(np.var(fit.resid, ddof=1))
+    var_sr = float(np.var(fit.seasonal + fit.resid, ddof=1))
+    var_tr = float(np.var(fit.trend + fit.resid, ddof=1))
+    return SeasonalStrength(
+        seasonal=_strength(var_r, var_sr),
+        trend=_strength(var_r, var_tr),
+        period=period,
+        var_remainder=var_r,
+        var_seasonal_remainder=var_sr,
+        var_trend_remainder=var_tr,
+        robust=STL_ROBUST,
+    )
+
+
+def _strength(var_remainder: float, var_component_remainder: float) -> float:
+    if var_component_remainder <= 0.0:
+        return 0.0
+    return max(0.0, 1.0 - var_remainder / var_component_remainder)
+
+
+def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalDifferencing:
+    """Decide whether to difference once at lag ``period`` (D = 1) or not (D = 0).
+
+    Rule: D = 1 when the seasonal strength F_S (:func:`seasonal_strength`) exceeds
+    :data:`SEASONAL_STRENGTH_THRESHOLD` = 0.64 and the series holds at least
+    :data:`MIN_SEASONS_DIFFERENCING` = 3 full seasons; otherwise D = 0 (D = 2 is never
+    proposed, common practice).
+
+    Minimum lengths (common practice): 3 full seasons for a seasonal difference, which costs a
+    whole season of observations; 2 full seasons for any seasonal AR or MA term, which needs
+    the correlogram to reach lag 2s. Below 3 seasons the result carries the flag
+    ``too_few_seasons``; below 2, F_S is not computed at all.
+
+    The threshold 0.64 is common practice in Hyndman's later work (from memory: FPP3 §9.1
+    states it for ``unitroot_nsdiffs``, and R's ``forecast::nsdiffs`` uses it by default); it
+    does not come from Wang, Smith & Hyndman (2006), who define the measure only.
+
+    Parameters
+    ----------
+    x : ndarray
+        The series (after any variance-stabilising transform).
+    period : int or None
+        A period already checked by :func:`validate_period`; None means non-seasonal.
+
+    References
+    ----------
+    .. [1] Wang, Smith & Hyndman (2006), *Data Mining and Knowledge Discovery* 13, 335-364.
+    .. [2] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed.,
+       §4.3 and §9.1.
+    """
+    threshold = SEASONAL_STRENGTH_THRESHOLD
+    if period is None:
+        return SeasonalDifferencing(
+            D=0, period=None, strength=None, trend_strength=None, threshold=threshold, seasons=0,
+            enough_seasons=False, seasonal_terms_possible=False,
+            explanation=["No seasonal period: no seasonal differencing."],
+        )
+    n = int(np.asarray(x).size)
+    seasons = n // period
+    enough = seasons >= MIN_SEASONS_DIFFERENCING
+    terms_possible = seasons >= MIN_SEASONS_SEASONAL_TERMS
+    result = SeasonalDifferencing(
+        D=0, period=period, strength=None, trend_strength=None, threshold=threshold, seasons=seasons,
+        enough_seasons=enough, seasonal_terms_possible=terms_possible,
+    )
+    if not terms_possible:
+        result.flags.append("too_few_seasons")
+        result.explanation.append(
+            f"Only {_seasons_text(seasons)} of {period} in {n} observations: at least "
+            f"{MIN_SEASONS_SEASONAL_TERMS} are needed for any seasonal term; no seasonal differencing."
+        )
+        return result
+    measure = seasonal_strength(x, period)
+    result.strength, result.trend_strength = measure.seasonal, measure.trend
+    above = measure.seasonal > threshold
+    comparison = f"Seasonal strength {measure.seasonal:.2f} {'>' if above else '<='} {threshold:.2f}"
+    if not enough:
+        result.flags.append("too_few_seasons")
+        result.explanation.append(
+            f"{comparison}, but only {_seasons_text(seasons)} of {period} in {n} observations: at least "
+            f"{MIN_SEASONS_DIFFERENCING} are needed to difference at lag {period}; not differenced."
+        )
+    elif above:
+        result.D = 1
+        result.explanation.append(f"{comparison} -> differenced once at lag {period}.")
+    else:
+        result.explanation.append(f"{comparison} -> no seasonal differencing at lag {period}.")
+    return result
+
+
+def _seasons_text(seasons: int) -> str:
+    return f"{seasons} full season" + ("" if seasons == 1 else "s")
+
+
+def seasonal_structure_present(acf_values: np.ndarray, band: np.ndarray | float, period: int) -> bool:
+    """Whether the ACF shows anything at the seasonal lags ``s`` or ``2s``.
+
+    Rule (kept simple on purpose): structure is present when ``|r_s|`` exceeds the band at lag
+    ``s``, or ``|r_2s|`` exceeds the band at lag ``2s`` (checked only when the correlogram
+    reaches lag ``2s``). A seasonal AR term shows a decaying run of spikes at s, 2s, ...; a
+    seasonal MA(1) term a single spike at s; an unneeded seasonal difference a negative spike
+    at s: each passes this rule. Use it on the series as it will be modelled
+    (transformed and differenced), or a trend can hide the seasonal lags behind a wide
+    Bartlett band.
+
+    Parameters
+    ----------
+    acf_values : ndarray
+        ACF at lags 1..K, ``acf_values[k - 1]`` being lag k (as in
+        :class:`app.core.correlogram.Correlogram`).
+    band : ndarray or float
+        Half-width of the band at lags 1..K (same layout), or one half-width for all lags.
+    period : int
+        Seasonal period s; the correlogram must reach lag s.
+
+    References
+    ----------
+    .. [1] Box, Jenkins, Reinsel & Ljung (2015), *Time Series Analysis*, 5th ed., ch. 9
+       (autocorrelations of seasonal models at multiples of s).
+    """
+    acf = np.asarray(acf_values, dtype=float)
+    half_width = np.broadcast_to(np.asarray(band, dtype=float), acf.shape)
+    if period < 1 or period > acf.size:
+        raise ValueError(f"the correlogram reaches lag {acf.size}; it must reach the seasonal lag {period}")
+    return any(abs(acf[lag - 1]) > half_width[lag - 1] for lag in seasonal_lags(period, acf.size)[:2])
+
+
+def seasonal_lags(period: int | None, nlags: int) -> list[int]:
+    """The seasonal lags ``s, 2s, ...`` up to ``nlags``; empty for a non-seasonal series."""
+    if period is None:
+        return []
+    return list(range(period, nlags + 1, period))

@@ -1,0 +1,164 @@
+"""Choosing the order of differencing d from unit-root and stationarity tests.
+
+The decision combines two tests whose null hypotheses are opposite:
+
+* KPSS (Kwiatkowski, Phillips, Schmidt & Shin 1992), null: the series is (level- or trend-)
+  stationary; rejecting it is evidence for a unit root;
+* ADF (Dickey & Fuller 1979; Said & Dickey 1984), null: the series has a unit root; rejecting it
+  is evidence for stationarity.
+
+At each level of differencing (levels, then the first difference) both are run with a
+constant (``regression="c"``), and on the levels also with a constant and a trend (``"ct"``):
+
+=======================  ======================  =============================================
+KPSS (c)                 ADF (c)                 decision
+=======================  ======================  =============================================
+does not reject          rejects                 stationary: stop here (firm)
+rejects                  does not reject         unit root: difference once more (firm), unless
+                                                 KPSS(ct) does not reject and ADF(ct) rejects:
+                                                 trend-stationary, keep d with a linear trend
+does not reject          does not reject         the tests disagree (low power, near unit root)
+rejects                  rejects                 the tests disagree (e.g. a break, long memory)
+=======================  ======================  =============================================
+
+When the tests disagree the decision is *uncertain*: the engine keeps candidates for both d
+and ranks across them by a criterion computed on the same one-step level prediction errors
+(see :func:`app.core.ranking.common_level_bic`). The primary d of an uncertain decision is
+the differenced one when ADF's p-value exceeds :data:`ADF_UNCERTAIN_P` and the level one
+otherwise. ``d = 2`` is taken only when both tests agree on the first difference.
+
+KPSS p-values are interpolated in a table and clipped to [0.01, 0.10]; the decision uses the
+5% critical value, never the clipped p-value.
+
+References
+----------
+.. [1] Kwiatkowski, D., Phillips, P.C.B., Schmidt, P. & Shin, Y. (1992). Testing the null
+   hypothesis of stationarity against the alternative of a unit root. *J. Econometrics* 54, 159-178.
+.. [2] Dickey, D.A. & Fuller, W.A. (1979). Distribution of the estimators for autoregressive
+   time series with a unit root. *JASA* 74, 427-431.
+.. [3] Hyndman, R.J. & Khandakar, Y. (2008). Automatic time series forecasting: the forecast
+   package for R. *J. Statistical Software* 27(3) (d by repeated KPSS tests).
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+from statsmodels.tools.sm_exceptions import InterpolationWarning
+from statsmodels.tsa.stattools import adfuller, kpss
+
+TEST_LEVEL = 0.05
+KPSS_LEVEL_KEY = "5%"
+ADF_UNCERTAIN_P = 0.10
+MAX_D = 2
+LEVEL_NAMES = ("levels", "first difference", "second difference")
+
+
+@dataclass
+class TestResult:
+    """One unit-root or stationarity test as shown to the reviewer."""
+
+    name: str
+    regression: str
+    on: str
+    statistic: float
+    p_value: float
+    lags: int
+    rejects: bool
+    null: str
+
+
+@dataclass
+class DifferencingDecision:
+    """The chosen d, how sure it is, and every test behind it."""
+
+    d: int
+    uncertain: bool
+    alternative_d: int | None
+    trend_stationary: bool
+    tests: list[TestResult] = field(default_factory=list)
+    explanation: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return {
+            "d": self.d,
+            "uncertain": self.uncertain,
+            "alternative_d": self.alternative_d,
+            "trend_stationary": self.trend_stationary,
+            "tests": [asdict(t) for t in self.tests],
+            "explanation": list(self.explanation),
+        }
+
+
+def kpss_test(x: np.ndarray, regression: str, on: str) -> TestResult:
+    """KPSS test with automatic bandwidth (Hobijn et al. 1998), decision at the 5% level."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", InterpolationWarning)
+        res = kpss(x, regression=regression, nlags="auto", result_object=True)
+    stat = float(res.statistic)
+    return TestResult(
+        name="KPSS", regression=regression, on=on, statistic=stat, p_value=float(res.pvalue),
+        lags=int(res.lags), rejects=stat > res.critical_values[KPSS_LEVEL_KEY],
+        null="stationary" if regression == "c" else "trend-stationary",
+    )
+
+
+def adf_test(x: np.ndarray, regression: str, on: str) -> TestResult:
+    """Augmented Dickey-Fuller test, lag length by AIC, decision at the 5% level."""
+    res = adfuller(x, regression=regression, autolag="AIC", result_object=True)
+    return TestResult(
+        name="ADF", regression=regression, on=on, statistic=float(res.statistic),
+        p_value=float(res.pvalue), lags=int(res.lags), rejects=res.pvalue < TEST_LEVEL, null="unit root",
+    )
+
+
+def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecision:
+    """Choose d in {0, .., max_d} by KPSS cross-checked with ADF (see the module notes).
+
+    Parameters
+    ----------
+    x : ndarray
+        The series (already transformed and seasonally differenced if that applies).
+    max_d : int
+        Highest order of differencing considered.
+    """
+    values = np.asarray(x, dtype=float)
+    tests: list[TestResult] = []
+    words: list[str] = []
+    for d in range(max_d + 1):
+        on = LEVEL_NAMES[d]
+        kp, ad = kpss_test(values, "c", on), adf_test(values, "c", on)
+        tests += [kp, ad]
+        if d == max_d:
+            words.append(f"Stopped at d = {max_d}, the most differencing considered.")
+            return DifferencingDecision(d, False, None, False, tests, words)
+        if not kp.rejects and ad.rejects:
+            words.append(f"On the {on}, KPSS does not reject stationarity and ADF rejects a unit root at 5%: no further differencing.")
+            return DifferencingDecision(d, False, None, False, tests, words)
+        if kp.rejects and not ad.rejects:
+            if d == 0:
+                kp_ct, ad_ct = kpss_test(values, "ct", on), adf_test(values, "ct", on)
+                tests += [kp_ct, ad_ct]
+                if not kp_ct.rejects and ad_ct.rejects:
+                    words.append(
+                        "KPSS rejects level stationarity, but with a trend term KPSS does not reject and ADF rejects a "
+                        "unit root: trend-stationary, so not differenced; the model carries a linear trend."
+                    )
+                    return DifferencingDecision(0, False, None, True, tests, words)
+            words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: differenced once more.")
+            values = np.diff(values)
+            continue
+        if d >= 1:
+            words.append(f"On the {on} the tests disagree; a further difference needs both to agree, so d = {d}.")
+            return DifferencingDecision(d, False, None, False, tests, words)
+        verdict = "neither rejects its null" if not kp.rejects else "both reject their nulls"
+        primary = 1 if ad.p_value > ADF_UNCERTAIN_P else 0
+        words.append(
+            f"On the {on} the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF p = {ad.p_value:.3f}). "
+            f"Candidates are kept for d = 0 and d = 1; d = {primary} leads because ADF's p-value is "
+            f"{'above' if primary else 'below'} {ADF_UNCERTAIN_P}."
+        )
+        return DifferencingDecision(primary, True, 1 - primary, False, tests, words)
+    raise AssertionError("unreachable")

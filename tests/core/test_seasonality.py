@@ -1,0 +1,213 @@
+"""Checks of app.core.seasonality against statsmodels STL, published definitions and theoretical ACFs."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from statsmodels.tsa.arima_process import ArmaProcess
+from statsmodels.tsa.seasonal import STL
+from statsmodels.tsa.stattools import acf
+
+from app.core.errors import OrderError
+from app.core.prepare import prepare_series
+from app.core.seasonality import (
+    MIN_SEASONS_DIFFERENCING,
+    SEASONAL_STRENGTH_THRESHOLD,
+    choose_seasonal_differencing,
+    default_period,
+    seasonal_lags,
+    seasonal_strength,
+    seasonal_structure_present,
+    validate_period,
+)
+
+
+@pytest.fixture(scope="module")
+def co2_monthly() -> np.ndarray:
+    """Mauna Loa CO2 (statsmodels.datasets.co2, weekly) as monthly means, gaps carried forward
+    as in statsmodels' STL example."""
+    weekly = sm.datasets.co2.load_pandas().data["co2"]
+    return weekly.resample("MS").mean().ffill().to_numpy()
+
+
+def _sine_plus_noise(n: int, period: int, seasonal_var: float, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    rng = np.random.default_rng(seed)
+    seasonal = math.sqrt(2 * seasonal_var) * np.sin(2 * np.pi * np.arange(n) / period)
+    return seasonal, rng.normal(size=n)
+
+
+def _strengths_from_stl(x: np.ndarray, period: int) -> tuple[float, float]:
+    """F_S and F_T written out from the definition (Wang, Smith & Hyndman 2006; FPP3 §4.3)."""
+    fit = STL(x, period=period, robust=True).fit()
+    var_r = np.var(fit.resid, ddof=1)
+    f_s = max(0.0, 1 - var_r / np.var(fit.seasonal + fit.resid, ddof=1))
+    f_t = max(0.0, 1 - var_r / np.var(fit.trend + fit.resid, ddof=1))
+    return f_s, f_t
+
+
+def test_seasonal_strength_matches_stl_definition_on_co2(co2_monthly):
+    # Definition: Wang, Smith & Hyndman (2006), DMKD 13:335-364; FPP3 §4.3.
+    f_s, f_t = _strengths_from_stl(co2_monthly, 12)
+    result = seasonal_strength(co2_monthly, 12)
+    assert result.seasonal == pytest.approx(f_s, abs=1e-12)
+    assert result.trend == pytest.approx(f_t, abs=1e-12)
+    assert result.robust is True
+    assert 1 - result.var_remainder / result.var_seasonal_remainder == pytest.approx(f_s, abs=1e-12)
+
+
+def test_seasonal_strength_matches_stl_definition_on_simulated_series():
+    seasonal, noise = _sine_plus_noise(n=96, period=7, seasonal_var=1.0, seed=11)
+    x = 0.05 * np.arange(96) + seasonal + noise
+    f_s, f_t = _strengths_from_stl(x, 7)
+    result = seasonal_strength(x, 7)
+    assert (result.seasonal, result.trend) == pytest.approx((f_s, f_t), abs=1e-12)
+
+
+def test_seasonal_strength_near_population_value_of_known_components():
+    # Definition (Wang, Smith & Hyndman 2006) applied to the simulated S and R themselves.
+    # STL's seasonal smoother takes up part of the noise, so the estimate sits a little above
+    # the population value: measured +0.01..+0.08 over 20 seeds for this design.
+    seasonal, noise = _sine_plus_noise(n=144, period=12, seasonal_var=4.0, seed=3)
+    population = 1 - np.var(noise, ddof=1) / np.var(seasonal + noise, ddof=1)
+    estimate = seasonal_strength(seasonal + noise, 12).seasonal
+    assert population - 0.02 <= estimate <= population + 0.1
+
+
+def test_co2_is_differenced_once_at_lag_12(co2_monthly):
+    # Rule F_S > 0.64 -> D = 1 (FPP3 §9.1, from memory); Mauna Loa CO2 has a strong annual cycle.
+    decision = choose_seasonal_differencing(co2_monthly, 12)
+    assert decision.D == 1
+    assert decision.strength > SEASONAL_STRENGTH_THRESHOLD
+    assert decision.enough_seasons and decision.flags == []
+    assert "lag 12" in decision.explanation[0] and f"{decision.strength:.2f}" in decision.explanation[0]
+    assert decision.to_dict()["seasonal_strength"] == decision.strength
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_white_noise_is_not_seasonally_differenced(seed):
+    # White noise has no seasonal component: its population F_S is 0 (definition above).
+    x = np.random.default_rng(seed).normal(size=144)
+    decision = choose_seasonal_differencing(x, 12)
+    assert decision.D == 0
+    assert decision.strength <= SEASONAL_STRENGTH_THRESHOLD
+
+
+def test_too_few_seasons_for_differencing_is_flagged(co2_monthly):
+    # Common practice: 3 full seasons for a seasonal difference, 2 for any seasonal term.
+    short = co2_monthly[: 2 * 12 + 6]
+    decision = choose_seasonal_differencing(short, 12)
+    assert decision.seasons == 2 < MIN_SEASONS_DIFFERENCING
+    assert decision.D == 0 and "too_few_seasons" in decision.flags
+    assert not decision.enough_seasons and decision.seasonal_terms_possible
+    assert decision.strength is not None
+    assert "2 full seasons" in decision.explanation[0]
+
+
+def test_less_than_two_seasons_gets_no_strength(co2_monthly):
+    decision = choose_seasonal_differencing(co2_monthly[:20], 12)
+    assert decision.D == 0 and decision.strength is None
+    assert not decision.seasonal_terms_possible and "too_few_seasons" in decision.flags
+    assert "1 full season " in decision.explanation[0]
+
+
+def test_no_period_means_no_seasonal_differencing():
+    decision = choose_seasonal_differencing(np.arange(50.0), None)
+    assert decision.D == 0 and decision.period is None and decision.strength is None
+
+
+@pytest.mark.parametrize(
+    ("freq", "expected"),
+    [
+        # Seasonal periods of FPP3 §2.1's table (from memory): a day of hours, a week of days,
+        # a year of weeks, months and quarters; yearly data have none.
+        ("h", 24), ("60min", 24), ("D", 7), ("B", 5), ("W-SUN", 52), ("W-WED", 52),
+        ("MS", 12), ("ME", 12), ("QS", 4), ("QE-DEC", 4), ("QS-OCT", 4),
+        ("YS", None), ("YE-DEC", None), ("step", None), ("2 steps", None),
+        ("15min", None), ("2D", None), ("2h", None), ("SMS", None),
+    ],
+)
+def test_default_period_table(freq, expected):
+    assert default_period(freq) == expected
+
+
+@pytest.mark.parametrize(("freq", "expected"), [("h", 24), ("D", 7), ("W-SUN", 52), ("MS", 12), ("QS", 4), ("YS", None)])
+def test_default_period_of_frequency_that_prepare_infers(freq, expected):
+    index = pd.date_range("2021-01-01", periods=40, freq=freq)
+    prepared = prepare_series(pd.Series(np.random.default_rng(0).normal(size=40), index=index), "s")
+    assert default_period(prepared.freq) == expected
+
+
+@pytest.mark.parametrize("period", [0, 1, -4, 60, 75])
+def test_validate_period_rejects_nonsense(period):
+    with pytest.raises(OrderError, match=rf"series 'shop-7'.*seasonal period {period}\b"):
+        validate_period(period, 60, series_id="shop-7")
+
+
+@pytest.mark.parametrize("period", [2.5, True, "12"])
+def test_validate_period_rejects_non_integers(period):
+    with pytest.raises(OrderError, match="not a whole number"):
+        validate_period(period, 60)
+
+
+def test_validate_period_accepts_whole_numbers_and_none():
+    assert validate_period(12, 60) == 12
+    assert validate_period(np.int64(7), 60) == 7
+    assert validate_period(None, 60) is None
+
+
+def test_seasonal_lags():
+    assert seasonal_lags(12, 37) == [12, 24, 36]
+    assert seasonal_lags(7, 6) == []
+    assert seasonal_lags(None, 30) == []
+
+
+def _theoretical_acf(ma: list[float] | None = None, ar: list[float] | None = None, nlags: int = 30) -> np.ndarray:
+    """ACF at lags 1..nlags of an ARMA process (statsmodels ArmaProcess)."""
+    process = ArmaProcess(ar=np.r_[1, -np.asarray(ar or [])], ma=np.r_[1, ma or []])
+    return process.acf(nlags + 1)[1:]
+
+
+def _seasonal_coefficients(lag: int, value: float) -> list[float]:
+    coefficients = [0.0] * lag
+    coefficients[-1] = value
+    return coefficients
+
+
+@pytest.mark.parametrize(
+    ("acf_values", "expected"),
+    [
+        # Theoretical ACFs of seasonal models (Box, Jenkins, Reinsel & Ljung 2015, ch. 9).
+        (_theoretical_acf(ma=_seasonal_coefficients(12, 0.6)), True),   # r_12 = 0.6/1.36
+        (_theoretical_acf(ar=_seasonal_coefficients(12, 0.5)), True),   # r_12 = 0.5, r_24 = 0.25
+        (_theoretical_acf(ma=_seasonal_coefficients(24, 0.5)), True),   # only r_24 = 0.4
+        (_theoretical_acf(ar=[0.5]), False),                            # r_12 = 0.5**12
+        (_theoretical_acf(ma=[0.7]), False),                            # nothing past lag 1
+    ],
+)
+def test_seasonal_structure_on_theoretical_acfs(acf_values, expected):
+    white_noise_band = 1.96 / math.sqrt(120)
+    assert seasonal_structure_present(acf_values, white_noise_band, 12) is expected
+
+
+def _statsmodels_acf_and_bartlett_band(x: np.ndarray, nlags: int) -> tuple[np.ndarray, np.ndarray]:
+    result = acf(x, nlags=nlags, alpha=0.05, fft=True, result_object=True)
+    return result.acf[1:], (result.confint[:, 1] - result.acf)[1:]
+
+
+def test_seasonal_structure_in_differenced_co2(co2_monthly):
+    values, band = _statsmodels_acf_and_bartlett_band(np.diff(co2_monthly), 25)
+    assert seasonal_structure_present(values, band, 12)
+
+
+def test_no_seasonal_structure_in_white_noise():
+    values, band = _statsmodels_acf_and_bartlett_band(np.random.default_rng(5).normal(size=200), 25)
+    assert not seasonal_structure_present(values, band, 12)
+
+
+def test_seasonal_structure_needs_the_seasonal_lag():
+    with pytest.raises(ValueError, match="seasonal lag 12"):
+        seasonal_structure_present(np.zeros(10), 0.1, 12)
