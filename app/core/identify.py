@@ -20,7 +20,7 @@ from app.core.correlogram import Correlogram, correlogram, lag_count
 from app.core.fitting import MAX_ORDER, CandidateFit, ModelOrder, fit_candidate
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
-from app.core.ranking import DEFAULT_CRITERION, rank_across_d, rank_within_d
+from app.core.ranking import DEFAULT_CRITERION, criterion_value, rank_across_d, rank_within_d
 from app.core.stationarity import DifferencingDecision, choose_differencing
 
 ENGINE_VERSION = __version__
@@ -51,6 +51,7 @@ class Identification:
     pattern_words: list[str]
     candidates: list[CandidateFit]
     confidence: Confidence
+    criterion: str
     flags: list[str] = field(default_factory=list)
 
     @property
@@ -81,13 +82,18 @@ class Identification:
             "patterns": list(self.pattern_words),
             "identified_on": {"values": [float(v) for v in self.identified_on], "label": _identified_label(self.differencing.d)},
             "gaps_filled": self.prepared.gaps_filled,
-            "candidates": [_candidate_dict(c, keep_residuals=i < RESIDUALS_KEPT) for i, c in enumerate(self.candidates)],
+            "criterion": self.criterion,
+            "candidates": [
+                _candidate_dict(c, criterion_value(c, self.criterion), keep_residuals=i < RESIDUALS_KEPT)
+                for i, c in enumerate(self.candidates)
+            ],
             "engine_version": ENGINE_VERSION,
         }
 
 
-def _candidate_dict(fit: CandidateFit, keep_residuals: bool) -> dict:
+def _candidate_dict(fit: CandidateFit, rank_score: float, keep_residuals: bool) -> dict:
     out = fit.to_dict()
+    out["rank_score"] = rank_score
     if not keep_residuals:
         out["residuals"] = None
     return out
@@ -169,7 +175,7 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     if best.model.order[1] != decision.d:
         w = np.diff(y, n=best.model.order[1]) if best.model.order[1] else y
         cg = correlogram(w, lag_count(w.size), options.alpha)
-    return Identification(prepared, decision, trend, cg, w, words, ranked, confidence, flags)
+    return Identification(prepared, decision, trend, cg, w, words, ranked, confidence, options.criterion, flags)
 
 
 def identify_series(series: pd.Series, series_id: str | None = None, options: EngineOptions = EngineOptions(), lines: np.ndarray | None = None) -> Identification:

@@ -2,11 +2,22 @@
 
 Ranking (measured on the seeded accuracy batch, see tests/core/test_accuracy.py and README):
 
-1. candidates whose residuals fail the Ljung-Box test at 5%, or whose optimiser did not
-   converge, are demoted below every candidate that passes;
-2. the rest are ordered by the selection criterion (:data:`DEFAULT_CRITERION`);
+1. candidates whose residuals clearly fail the Ljung-Box test (p below
+   :data:`DEMOTION_LEVEL`), or whose optimiser did not converge, are demoted below every
+   candidate that passes (a p-value between 1% and 5% is flagged but not demoted: the true model
+   fails a 5% test one time in twenty, and demoting it cost exact hits on the batch);
+2. the rest are ordered by their *rank score*: the selection criterion
+   (:data:`DEFAULT_CRITERION`, BIC) minus :data:`PATTERN_BONUS` for every independent reading
+   of the correlograms that proposed the order (PACF cut-off, ACF cut-off, EACF vertex, both
+   tailing off, white noise). The correlogram evidence breaks the near-ties between orders that
+   fit about equally well (AR(2) against ARMA(1,1), AR(3) against MA(1) at n = 120) in favour of
+   the one the patterns point to;
 3. parsimony breaks near-ties: among the candidates within :data:`TIE_MARGIN` of the best
    score, the one with the fewest ARMA parameters leads.
+
+On the batch (10 replications of 21 processes, tuning seed; README has the final figures)
+this raised the exact-order hit rate over plain BIC ranking from 0.605 to 0.62-0.63 at n = 120
+and from 0.933 to 0.948 at n = 500; HQIC and AICc ranked worse at both lengths.
 
 Information criteria are not comparable across different d: the likelihood of a differenced
 model is the likelihood of the differences. When the differencing decision is uncertain, the
@@ -31,16 +42,23 @@ from app.core.fitting import CandidateFit
 CRITERIA = ("bic", "aicc", "aic", "hqic")
 DEFAULT_CRITERION = "bic"
 TIE_MARGIN = 1.0
+DEMOTION_LEVEL = 0.01
+PATTERN_BONUS = 1.0
+PATTERN_SOURCES = frozenset({"PACF cut-off", "ACF cut-off", "EACF vertex", "both tail off", "white noise"})
 
 
 def criterion_value(fit: CandidateFit, criterion: str) -> float:
+    """The rank score: the criterion less the bonus for correlogram readings (module notes)."""
     value = getattr(fit, criterion)
-    return value if math.isfinite(value) else math.inf
+    if not math.isfinite(value):
+        return math.inf
+    return value - PATTERN_BONUS * len(PATTERN_SOURCES.intersection(fit.source))
 
 
 def is_demoted(fit: CandidateFit) -> bool:
-    """Failing residual tests or a fit that did not converge rank below the rest."""
-    return not fit.passes_ljung_box or not fit.converged
+    """Clearly failing residual tests or a fit that did not converge rank below the rest."""
+    clear_failure = fit.ljung_box_p is not None and math.isfinite(fit.ljung_box_p) and fit.ljung_box_p < DEMOTION_LEVEL
+    return clear_failure or not fit.converged
 
 
 def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
@@ -80,10 +98,25 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     return [fit for d in order for fit in ranked[d]]
 
 
-def margin_to_runner_up(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> float:
-    """How far the runner-up of the same d trails the leader in the criterion (inf if alone)."""
+def nests(big: CandidateFit, small: CandidateFit) -> bool:
+    """Whether ``big`` contains ``small`` as a special case (every order at least as large)."""
+    pairs = list(zip(big.model.order + big.model.seasonal_order, small.model.order + small.model.seasonal_order))
+    return all(b >= a for b, a in pairs) and pairs != [(a, a) for _, a in pairs]
+
+
+def margin_to_rival(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> float:
+    """How far the best *rival* of the same d trails the leader in rank score (inf if none).
+
+    A rival is a candidate that does not merely extend the leader: a model that nests the
+    leader trails it by about its extra penalty (ln n per parameter under BIC) whatever the
+    data, so its gap says nothing about whether the leader is the right structure. The real
+    competitors are the non-nested orders (AR(3) against MA(1)) and the smaller ones.
+    """
     lead = ranked[0]
-    same = [f for f in ranked[1:] if f.model.lost_to_differencing == lead.model.lost_to_differencing and not is_demoted(f)]
-    if not same:
+    rivals = [
+        f for f in ranked[1:]
+        if f.model.lost_to_differencing == lead.model.lost_to_differencing and not is_demoted(f) and not nests(f, lead)
+    ]
+    if not rivals:
         return math.inf
-    return min(criterion_value(f, criterion) for f in same) - criterion_value(lead, criterion)
+    return min(criterion_value(f, criterion) for f in rivals) - criterion_value(lead, criterion)

@@ -1,0 +1,1 @@
+"""Running the engine over a portfolio: process pools, progress, resumable analysis runs."""
