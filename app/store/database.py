@@ -1,0 +1,126 @@
+"""Opening the portfolio database, and the pieces every store module shares.
+
+One SQLite file holds a portfolio. Every connection is made by :func:`open_database`, which
+turns on write-ahead logging (readers never block the writer, so the dashboard stays usable
+during an analysis run), a busy timeout (a second writer waits instead of failing at once),
+and foreign keys, then applies any pending schema migrations, so a user who upgrades Lagdesk
+never runs a manual step.
+"""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+from collections.abc import Iterator
+from contextlib import contextmanager
+from datetime import datetime, timezone
+from pathlib import Path
+
+import sqlite_utils
+
+from app.core.errors import LagdeskError
+from app.store.migrations import MIGRATIONS, STEPS
+
+DEFAULT_DB_NAME = "lagdesk.db"
+DB_ENV_VAR = "LAGDESK_DB"
+BUSY_TIMEOUT_S = 10
+
+
+class UnknownSeries(LagdeskError):
+    """A series id that the database does not hold."""
+
+    def __init__(self, series_id: str) -> None:
+        self.series_id = series_id
+        super().__init__(f"no series {series_id!r} in the database")
+
+
+def resolve_db_path(explicit: str | None) -> Path:
+    """The database file to use: ``--db``, else ``$LAGDESK_DB``, else ``./lagdesk.db``."""
+    if explicit:
+        return Path(explicit)
+    from_env = os.environ.get(DB_ENV_VAR)
+    if from_env:
+        return Path(from_env)
+    return Path.cwd() / DEFAULT_DB_NAME
+
+
+def open_database(path: str | Path) -> sqlite_utils.Database:
+    """Open (creating if needed) the database at ``path`` and bring its schema up to date.
+
+    Raises
+    ------
+    LagdeskError
+        When the folder does not exist, the file is not a SQLite database, or it was
+        written by a newer Lagdesk whose schema this version does not know.
+    """
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise LagdeskError(f"{path}: the folder {str(path.parent)!r} does not exist")
+    # check_same_thread=False: FastAPI runs a request's dependencies and its endpoint in
+    # worker threads that may differ; the connection is still used by one thread at a time.
+    try:
+        conn = sqlite3.connect(path, timeout=BUSY_TIMEOUT_S, check_same_thread=False)
+    except sqlite3.Error as exc:
+        raise LagdeskError(f"{path}: cannot be opened ({exc})") from None
+    db = sqlite_utils.Database(conn)
+    try:
+        db.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_S * 1000}")
+        db.execute("PRAGMA foreign_keys = ON")
+        db.enable_wal()
+        _migrate(db, path)
+    except sqlite3.DatabaseError as exc:
+        db.close()
+        raise LagdeskError(f"{path}: cannot be used as a Lagdesk database ({exc})") from None
+    except BaseException:
+        db.close()
+        raise
+    return db
+
+
+def _migrate(db: sqlite_utils.Database, path: Path) -> None:
+    known = {step.__name__ for step in STEPS}
+    newer = [m.name for m in MIGRATIONS.applied(db) if m.name not in known]
+    if newer:
+        raise LagdeskError(
+            f"{path}: written by a newer Lagdesk (schema steps {', '.join(newer)} are unknown to this "
+            "version); upgrade Lagdesk to open it"
+        )
+    if MIGRATIONS.pending(db):
+        # Under the write lock, so two processes opening a new file at once migrate it in turn;
+        # apply() re-reads what is pending once it holds the lock.
+        with write_transaction(db):
+            MIGRATIONS.apply(db)
+
+
+def schema_version(db: sqlite_utils.Database) -> int:
+    """How many schema migrations the database has had (0 for an empty file)."""
+    return len(MIGRATIONS.applied(db))
+
+
+@contextmanager
+def write_transaction(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Database]:
+    """Group writes in one transaction that takes the write lock at its start.
+
+    ``BEGIN IMMEDIATE`` rather than a deferred ``BEGIN``: a transaction that reads before it
+    writes would otherwise fail at once (without waiting out the busy timeout) when another
+    connection commits in between. Inside an open transaction this is a savepoint
+    (``db.atomic()``), so store functions compose: a caller may wrap several of them.
+    """
+    if db.conn.in_transaction:
+        with db.atomic():
+            yield db
+        return
+    with db.conn:  # commits on success, rolls back on any exception
+        db.conn.execute("BEGIN IMMEDIATE")
+        yield db
+
+
+def require_series(db: sqlite_utils.Database, series_id: str) -> None:
+    """Raise :class:`UnknownSeries` unless the database holds ``series_id``."""
+    if db.execute("SELECT 1 FROM series WHERE series_id = ?", [series_id]).fetchone() is None:
+        raise UnknownSeries(series_id)
+
+
+def utc_now() -> str:
+    """The current time as an ISO-8601 UTC string with milliseconds."""
+    return datetime.now(timezone.utc).isoformat(timespec="milliseconds")

@@ -1,0 +1,156 @@
+"""The database schema, as ordered forward migrations.
+
+Each step is applied once, in order, and recorded (with the time) in sqlite-utils'
+``_sqlite_migrations`` table under the set name ``lagdesk``; the schema version is the number
+of steps applied. A released step is never edited: a change to the schema is a new step
+appended to :data:`STEPS`.
+
+Tables (version 1)
+------------------
+imports          one row per successful import: file, time, layout, and the report (series
+                 added / updated / unchanged / rejected with reasons, as JSON lists)
+series           one row per series: timestamp kind (``datetime`` or ``integer``), frequency,
+                 regularised length, observation count, first/last timestamp, preparation flags
+                 and the fingerprint (SHA-256 of the regularised values and their timestamps)
+observations     one row per (series, timestamp): the merged raw observations; clustered on
+                 its primary key, so one series is read with an index range lookup
+runs             one row per analysis run: engine version, settings, progress counts, state, times
+analyses         at most one row per series: the state (complete or failed, with the message),
+                 the fingerprint of the data analysed (current when it equals the series'), and
+                 the columns the dashboard filters and sorts on (confidence, flags, orders, d)
+analysis_results the engine's result dict as JSON, for each complete analysis
+verdicts         the reviewer's current decision per series, with a version number
+verdict_history  every change of a verdict, oldest first (from status, to status, who, when, note)
+"""
+
+from __future__ import annotations
+
+import sqlite_utils
+from sqlite_utils.migrations import Migrations
+
+MIGRATION_SET = "lagdesk"
+
+_INITIAL_SCHEMA = (
+    """
+    CREATE TABLE imports (
+        import_id INTEGER PRIMARY KEY,
+        file TEXT NOT NULL,
+        imported_at TEXT NOT NULL,
+        layout TEXT NOT NULL,
+        added TEXT NOT NULL,
+        updated TEXT NOT NULL,
+        unchanged TEXT NOT NULL,
+        rejected TEXT NOT NULL
+    ) STRICT
+    """,
+    """
+    CREATE TABLE series (
+        series_id TEXT PRIMARY KEY,
+        time_kind TEXT NOT NULL CHECK (time_kind IN ('datetime', 'integer')),
+        freq TEXT NOT NULL,
+        n INTEGER NOT NULL,
+        observed INTEGER NOT NULL,
+        gaps_filled INTEGER NOT NULL,
+        first_timestamp TEXT NOT NULL,
+        last_timestamp TEXT NOT NULL,
+        prep_flags TEXT NOT NULL,
+        fingerprint TEXT NOT NULL,
+        created_import_id INTEGER NOT NULL REFERENCES imports (import_id),
+        updated_import_id INTEGER NOT NULL REFERENCES imports (import_id)
+    ) STRICT
+    """,
+    # ts is ANY: ISO-8601 text for dated series, INTEGER for integer steps (series.time_kind);
+    # a STRICT table keeps each value exactly as stored, with no type conversion.
+    """
+    CREATE TABLE observations (
+        series_id TEXT NOT NULL REFERENCES series (series_id),
+        ts ANY NOT NULL,
+        value REAL NOT NULL,
+        PRIMARY KEY (series_id, ts)
+    ) STRICT, WITHOUT ROWID
+    """,
+    """
+    CREATE TABLE runs (
+        run_id INTEGER PRIMARY KEY,
+        started_at TEXT NOT NULL,
+        updated_at TEXT NOT NULL,
+        finished_at TEXT,
+        engine_version TEXT NOT NULL,
+        settings TEXT NOT NULL,
+        total INTEGER NOT NULL,
+        done INTEGER NOT NULL DEFAULT 0,
+        failed INTEGER NOT NULL DEFAULT 0,
+        state TEXT NOT NULL CHECK (state IN ('running', 'finished', 'interrupted', 'failed')),
+        duration_s REAL
+    ) STRICT
+    """,
+    """
+    CREATE TABLE analyses (
+        series_id TEXT PRIMARY KEY REFERENCES series (series_id),
+        fingerprint TEXT NOT NULL,
+        state TEXT NOT NULL CHECK (state IN ('complete', 'failed')),
+        message TEXT,
+        confidence TEXT,
+        flags TEXT NOT NULL,
+        suggested_order TEXT,
+        suggested_seasonal_order TEXT,
+        d INTEGER,
+        engine_version TEXT,
+        run_id INTEGER REFERENCES runs (run_id),
+        analysed_at TEXT NOT NULL
+    ) STRICT
+    """,
+    # The results (tens of kB each) live apart, so a scan of the summary columns stays small.
+    """
+    CREATE TABLE analysis_results (
+        series_id TEXT PRIMARY KEY REFERENCES series (series_id),
+        result TEXT NOT NULL
+    ) STRICT
+    """,
+    "CREATE INDEX analyses_confidence ON analyses (confidence)",
+    "CREATE INDEX analyses_run ON analyses (run_id)",
+    """
+    CREATE TABLE verdicts (
+        series_id TEXT PRIMARY KEY REFERENCES series (series_id),
+        status TEXT NOT NULL CHECK (status IN ('pending', 'approved', 'overridden', 'parked', 'recheck')),
+        arima_order TEXT,
+        seasonal_order TEXT,
+        transform TEXT NOT NULL,
+        note TEXT NOT NULL,
+        reviewer TEXT NOT NULL,
+        version INTEGER NOT NULL,
+        decided_at TEXT,
+        recheck_reason TEXT
+    ) STRICT
+    """,
+    "CREATE INDEX verdicts_status ON verdicts (status)",
+    """
+    CREATE TABLE verdict_history (
+        history_id INTEGER PRIMARY KEY,
+        series_id TEXT NOT NULL REFERENCES series (series_id),
+        version INTEGER NOT NULL,
+        at TEXT NOT NULL,
+        from_status TEXT NOT NULL,
+        status TEXT NOT NULL,
+        arima_order TEXT,
+        seasonal_order TEXT,
+        transform TEXT NOT NULL,
+        note TEXT NOT NULL,
+        reviewer TEXT NOT NULL,
+        UNIQUE (series_id, version)
+    ) STRICT
+    """,
+)
+
+
+def initial_schema(db: sqlite_utils.Database) -> None:
+    """Version 1: every table of the portfolio database."""
+    for statement in _INITIAL_SCHEMA:
+        db.execute(statement)
+
+
+STEPS = (initial_schema,)
+
+MIGRATIONS = Migrations(MIGRATION_SET)
+for _step in STEPS:
+    MIGRATIONS(name=_step.__name__)(_step)

@@ -1,0 +1,261 @@
+"""Reading series back: one series' observations, what needs analysing, the dashboard list.
+
+The list is filtered, sorted and paged in SQL over ``series``, ``verdicts`` and ``analyses``
+(one row each per series), so a page of a 10,000-series portfolio never loads the rest.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterable
+
+import pandas as pd
+import sqlite_utils
+
+from app.core.errors import LagdeskError
+from app.store.analyses import ANALYSIS_STATE_SQL, CONFIDENCE_LEVELS
+from app.store.timestamps import index_from_keys
+from app.store.verdicts import STATUSES, verdict_counts
+
+_FROM = (
+    "FROM series s JOIN verdicts v ON v.series_id = s.series_id "
+    "LEFT JOIN analyses a ON a.series_id = s.series_id"
+)
+
+# What needs a human first: a recheck, then pending, parked, decided; within each, a failed or
+# weak analysis before a tentative, then a firm one, then none yet; then more flags first.
+_STATUS_TIER_SQL = "CASE v.status WHEN 'recheck' THEN 4 WHEN 'pending' THEN 3 WHEN 'parked' THEN 2 ELSE 1 END"
+_DOUBT_SQL = (
+    "CASE WHEN a.state = 'failed' THEN 3 WHEN a.confidence = 'weak' THEN 3 "
+    "WHEN a.confidence = 'tentative' THEN 2 WHEN a.confidence = 'firm' THEN 1 ELSE 0 END"
+)
+MAX_COUNTED_FLAGS = 9
+ATTENTION_SQL = (
+    f"({_STATUS_TIER_SQL}) * 10 + ({_DOUBT_SQL}) "
+    f"+ min(json_array_length(coalesce(a.flags, '[]')), {MAX_COUNTED_FLAGS}) / 10.0"
+)
+
+
+def _rank_sql(column: str, levels: tuple[str, ...]) -> str:
+    """Order text values by their position in ``levels``; others (and NULL) after them."""
+    cases = " ".join(f"WHEN '{level}' THEN {i}" for i, level in enumerate(levels))
+    return f"CASE {column} {cases} ELSE {len(levels)} END"
+
+
+# Each sort key's natural order, as (SQL expression, ascending) terms; series_id breaks ties.
+SORT_KEYS: dict[str, list[tuple[str, bool]]] = {
+    "attention": [(ATTENTION_SQL, False)],
+    "series_id": [],
+    "n": [("s.n", True)],
+    "confidence": [(_rank_sql("a.confidence", CONFIDENCE_LEVELS), True)],
+    "status": [(_rank_sql("v.status", STATUSES), True)],
+    "order": [("a.suggested_order IS NULL", True)]
+    + [(f"json_extract(a.suggested_order, '$[{i}]')", True) for i in range(3)]
+    + [(f"json_extract(a.suggested_seasonal_order, '$[{i}]')", True) for i in (3, 0, 1, 2)],
+    "reviewer": [("v.reviewer = ''", True), ("v.reviewer COLLATE NOCASE", True)],
+}
+
+
+def load_series(db: sqlite_utils.Database, series_id: str) -> pd.Series | None:
+    """The merged raw observations of a series in time order, or None if there is no such series."""
+    kind = db.execute("SELECT time_kind FROM series WHERE series_id = ?", [series_id]).fetchone()
+    if kind is None:
+        return None
+    rows = db.execute("SELECT ts, value FROM observations WHERE series_id = ? ORDER BY ts", [series_id]).fetchall()
+    keys = [ts for ts, _ in rows]
+    return pd.Series([value for _, value in rows], index=index_from_keys(keys, kind[0]), name=series_id, dtype=float)
+
+
+def get_series(db: sqlite_utils.Database, series_id: str) -> dict | None:
+    """What the database holds about a series besides its values, or None.
+
+    ``{"series_id", "time_kind", "freq", "n", "observed", "gaps_filled", "start", "end",
+    "prep_flags", "fingerprint", "created_import_id", "updated_import_id"}``; ``n`` counts the
+    points on the regular grid, ``observed`` the stored observations.
+    """
+    rows = list(db.query(
+        "SELECT series_id, time_kind, freq, n, observed, gaps_filled, first_timestamp AS start, "
+        "last_timestamp AS end, prep_flags, fingerprint, created_import_id, updated_import_id "
+        "FROM series WHERE series_id = ?",
+        [series_id],
+    ))
+    if not rows:
+        return None
+    row = rows[0]
+    row["prep_flags"] = json.loads(row["prep_flags"])
+    return row
+
+
+def series_fingerprint(db: sqlite_utils.Database, series_id: str) -> str | None:
+    """The fingerprint of the series' current data.
+
+    A job should read it *before* :func:`load_series`: if an import lands in between, the
+    analysis is then stored under the older fingerprint and shows as stale, never the reverse.
+    """
+    row = db.execute("SELECT fingerprint FROM series WHERE series_id = ?", [series_id]).fetchone()
+    return None if row is None else row[0]
+
+
+def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -> list[str]:
+    """Series whose analysis is missing or stale (or every series), by id.
+
+    A failure on the current data is not retried unless ``everything`` is set: the same data
+    and engine would fail the same way.
+    """
+    where = "" if everything else f"WHERE {ANALYSIS_STATE_SQL} IN ('missing', 'stale')"
+    rows = db.execute(
+        f"SELECT s.series_id FROM series s LEFT JOIN analyses a ON a.series_id = s.series_id {where} "
+        "ORDER BY s.series_id"
+    ).fetchall()
+    return [series_id for (series_id,) in rows]
+
+
+def _where(
+    status: str | Iterable[str] | None, confidence: str | Iterable[str] | None, flag: str | None, q: str | None
+) -> tuple[str, list]:
+    clauses: list[str] = []
+    params: list = []
+    for column, chosen, allowed, name in (
+        ("v.status", status, STATUSES, "status"),
+        ("a.confidence", confidence, CONFIDENCE_LEVELS, "confidence"),
+    ):
+        if chosen is None:
+            continue
+        values = [chosen] if isinstance(chosen, str) else list(chosen)
+        unknown = [v for v in values if v not in allowed]
+        if unknown:
+            raise LagdeskError(f"{name} must be one of {', '.join(allowed)}, not {unknown[0]!r}")
+        if values:
+            clauses.append(f"{column} IN ({', '.join('?' for _ in values)})")
+            params.extend(values)
+    if flag:
+        clauses.append("EXISTS (SELECT 1 FROM json_each(a.flags) WHERE json_each.value = ?)")
+        params.append(flag)
+    if q:
+        clauses.append("instr(lower(s.series_id), lower(?)) > 0")
+        params.append(q)
+    return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
+
+
+def _order_by(sort: str, descending: bool) -> str:
+    if sort not in SORT_KEYS:
+        raise LagdeskError(f"sort must be one of {', '.join(SORT_KEYS)}, not {sort!r}")
+    terms = [f"{expr} {'ASC' if ascending != descending else 'DESC'}" for expr, ascending in SORT_KEYS[sort]]
+    tie_break = "s.series_id DESC" if descending and sort == "series_id" else "s.series_id ASC"
+    return "ORDER BY " + ", ".join(terms + [tie_break])
+
+
+def list_series(
+    db: sqlite_utils.Database,
+    *,
+    limit: int = 50,
+    offset: int = 0,
+    status: str | Iterable[str] | None = None,
+    confidence: str | Iterable[str] | None = None,
+    flag: str | None = None,
+    q: str | None = None,
+    sort: str = "attention",
+    descending: bool = False,
+) -> tuple[int, list[dict]]:
+    """One page of the portfolio, filtered and sorted, with the size of the whole filtered set.
+
+    Parameters
+    ----------
+    status, confidence : str or list of str, optional
+        Keep series with one of these verdict statuses / analysis confidences.
+    flag : str, optional
+        Keep series whose analysis carries this flag.
+    q : str, optional
+        Keep series whose id contains this text (ignoring ASCII case).
+    sort : str
+        A key of :data:`SORT_KEYS`. ``attention`` (the default) puts what needs a human first;
+        the others sort ascending. ``descending`` reverses the chosen order.
+
+    Returns
+    -------
+    total : int
+        How many series pass the filters.
+    items : list of dict
+        ``{"series_id", "n", "freq", "status", "confidence", "suggested": {"order",
+        "seasonal_order"}, "chosen": {"order", "seasonal_order"}, "flags", "reviewer",
+        "analysis_state", "attention", "recheck_reason"}``.
+    """
+    if limit < 0 or offset < 0:
+        raise LagdeskError(f"limit ({limit}) and offset ({offset}) must be >= 0")
+    where, params = _where(status, confidence, flag, q)
+    total = db.execute(f"SELECT count(*) {_FROM} {where}", params).fetchone()[0]
+    rows = db.query(
+        f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.suggested_order, a.suggested_seasonal_order, "
+        f"v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
+        f"{ANALYSIS_STATE_SQL} AS analysis_state, {ATTENTION_SQL} AS attention, v.recheck_reason "
+        f"{_FROM} {where} {_order_by(sort, descending)} LIMIT ? OFFSET ?",
+        params + [limit, offset],
+    )
+    return total, [_item(row) for row in rows]
+
+
+def _item(row: dict) -> dict:
+    def loads(text: str | None) -> list | None:
+        return None if text is None else json.loads(text)
+
+    return {
+        "series_id": row["series_id"],
+        "n": row["n"],
+        "freq": row["freq"],
+        "status": row["status"],
+        "confidence": row["confidence"],
+        "suggested": {"order": loads(row["suggested_order"]), "seasonal_order": loads(row["suggested_seasonal_order"])},
+        "chosen": {"order": loads(row["arima_order"]), "seasonal_order": loads(row["seasonal_order"])},
+        "flags": json.loads(row["flags"]),
+        "reviewer": row["reviewer"],
+        "analysis_state": row["analysis_state"],
+        "attention": float(row["attention"]),
+        "recheck_reason": row["recheck_reason"],
+    }
+
+
+def series_neighbours(
+    db: sqlite_utils.Database,
+    series_id: str,
+    *,
+    status: str | Iterable[str] | None = None,
+    confidence: str | Iterable[str] | None = None,
+    flag: str | None = None,
+    q: str | None = None,
+    sort: str = "attention",
+    descending: bool = False,
+) -> tuple[str | None, str | None]:
+    """The series before and after ``series_id`` in the list with these filters and sort.
+
+    Both are None when ``series_id`` does not pass the filters.
+    """
+    where, params = _where(status, confidence, flag, q)
+    window = _order_by(sort, descending)
+    row = db.execute(
+        f"WITH ordered AS (SELECT s.series_id, lag(s.series_id) OVER w AS prev, lead(s.series_id) OVER w AS next "
+        f"{_FROM} {where} WINDOW w AS ({window})) SELECT prev, next FROM ordered WHERE series_id = ?",
+        params + [series_id],
+    ).fetchone()
+    return (None, None) if row is None else (row[0], row[1])
+
+
+def count_by(db: sqlite_utils.Database) -> dict:
+    """Counts for the dashboard's filters.
+
+    ``{"confidence": {level: n}, "status": {status: n}, "total": n, "reviewed": n}``: the
+    confidence of each series' stored analysis (as the confidence filter sees it), every
+    verdict status, and ``reviewed`` = approved + overridden.
+    """
+    confidence = dict.fromkeys(CONFIDENCE_LEVELS, 0)
+    confidence.update(
+        db.execute(
+            "SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL GROUP BY confidence"
+        ).fetchall()
+    )
+    status = verdict_counts(db)
+    return {
+        "confidence": confidence,
+        "status": status,
+        "total": sum(status.values()),
+        "reviewed": status["approved"] + status["overridden"],
+    }

@@ -1,0 +1,240 @@
+"""Reviewer decisions: the current verdict per series, its version, and its history.
+
+Every series gets a ``pending`` verdict at version 0 when it is first imported. Each change
+raises the version by one and appends a row to the history. A change names the version it
+was based on; when that is no longer the current one (another reviewer, or new data, got
+there first) it is refused with :class:`StaleVersion`, so no decision is ever lost silently.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Iterable, Sequence
+
+import sqlite_utils
+
+from app.core.errors import LagdeskError, OrderError
+from app.store.database import require_series, utc_now, write_transaction
+
+STATUSES = ("pending", "approved", "overridden", "parked", "recheck")
+DECIDED = ("approved", "overridden")
+REVIEWER_STATUSES = ("pending", "approved", "overridden", "parked")
+TRANSFORMS = ("none", "log")
+SYSTEM_REVIEWER = "lagdesk"
+NO_SEASONAL_ORDER = [0, 0, 0, 0]
+
+
+class StaleVersion(LagdeskError):
+    """A verdict change named a version that is no longer the current one."""
+
+    def __init__(self, series_id: str, named: int, current: dict) -> None:
+        self.series_id = series_id
+        self.named = named
+        self.current = current
+        super().__init__(
+            f"series {series_id!r}: the verdict changed since version {named} was read "
+            f"(now version {current['version']}, {current['status']}"
+            + (f" by {current['reviewer']}" if current["reviewer"] else "")
+            + "); reload and decide again"
+        )
+
+
+class InvalidVerdict(LagdeskError):
+    """A verdict with a status, order or transform that cannot be stored."""
+
+
+_COLUMNS = "status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, recheck_reason"
+
+
+def add_pending(db: sqlite_utils.Database, series_ids: Iterable[str]) -> None:
+    """Give newly imported series their first verdict: pending, version 0 (no history row)."""
+    db.conn.executemany(
+        "INSERT INTO verdicts (series_id, status, transform, note, reviewer, version) "
+        "VALUES (?, 'pending', '\"none\"', '', '', 0)",
+        [(series_id,) for series_id in series_ids],
+    )
+
+
+def get_verdict(db: sqlite_utils.Database, series_id: str) -> dict:
+    """The current verdict of a series.
+
+    Raises
+    ------
+    UnknownSeries
+        When the database holds no such series.
+    """
+    row = db.execute(f"SELECT {_COLUMNS} FROM verdicts WHERE series_id = ?", [series_id]).fetchone()
+    if row is None:
+        require_series(db, series_id)
+    return _verdict_from_row(row)
+
+
+def _verdict_from_row(row: Sequence) -> dict:
+    status, order, seasonal, transform, note, reviewer, version, decided_at, reason = row
+    return {
+        "status": status,
+        "order": _loads(order),
+        "seasonal_order": _loads(seasonal),
+        "transform": json.loads(transform),
+        "note": note,
+        "reviewer": reviewer,
+        "version": version,
+        "decided_at": decided_at,
+        "recheck_reason": reason,
+    }
+
+
+def set_verdict(
+    db: sqlite_utils.Database,
+    series_id: str,
+    *,
+    status: str,
+    order: Sequence[int] | None,
+    seasonal_order: Sequence[int] | None,
+    transform: str | dict = "none",
+    note: str = "",
+    reviewer: str = "",
+    version: int,
+) -> dict:
+    """Record a reviewer's decision, provided ``version`` is still the current one.
+
+    ``approved`` and ``overridden`` need an order; ``pending`` and ``parked`` may leave it
+    empty. ``recheck`` is set by Lagdesk itself (:func:`mark_recheck`), not by a reviewer.
+
+    Raises
+    ------
+    StaleVersion
+        When the verdict is no longer at ``version``; ``.current`` holds what it is now.
+    InvalidVerdict, OrderError
+        When the status, transform or order cannot be stored.
+    UnknownSeries
+        When the database holds no such series.
+    """
+    if status not in REVIEWER_STATUSES:
+        raise InvalidVerdict(
+            f"series {series_id!r}: status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}"
+        )
+    if status in DECIDED and order is None:
+        raise InvalidVerdict(f"series {series_id!r}: an {status} verdict needs an order (p, d, q)")
+    new = {
+        "status": status,
+        "order": _checked_order(order, 3, "order", series_id),
+        "seasonal_order": _checked_order(seasonal_order, 4, "seasonal order", series_id),
+        "transform": _checked_transform(transform, series_id),
+        "note": str(note),
+        "reviewer": str(reviewer),
+    }
+    if new["order"] is not None and new["seasonal_order"] is None:
+        new["seasonal_order"] = list(NO_SEASONAL_ORDER)
+    with write_transaction(db):
+        current = get_verdict(db, series_id)
+        decided_at = utc_now() if status != "pending" else None
+        updated = db.execute(
+            "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
+            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL "
+            "WHERE series_id = ? AND version = ?",
+            [status, _dumps(new["order"]), _dumps(new["seasonal_order"]), json.dumps(new["transform"]),
+             new["note"], new["reviewer"], decided_at, series_id, version],
+        )
+        if updated.rowcount != 1:
+            raise StaleVersion(series_id, version, current)
+        _append_history(db, series_id, current["status"])
+        return get_verdict(db, series_id)
+
+
+def mark_recheck(db: sqlite_utils.Database, series_id: str, reason: str) -> None:
+    """Ask for another look at an approved or overridden series, keeping its order.
+
+    Other statuses are left as they are: a pending or parked series is still to be decided,
+    and one already marked for recheck keeps its first reason.
+
+    Raises
+    ------
+    UnknownSeries
+        When the database holds no such series.
+    """
+    with write_transaction(db):
+        current = get_verdict(db, series_id)
+        if current["status"] not in DECIDED:
+            return
+        db.execute(
+            "UPDATE verdicts SET status = 'recheck', recheck_reason = ?, version = version + 1 "
+            "WHERE series_id = ?",
+            [reason, series_id],
+        )
+        _append_history(db, series_id, current["status"], reviewer=SYSTEM_REVIEWER, note=reason)
+
+
+def _append_history(
+    db: sqlite_utils.Database, series_id: str, from_status: str, reviewer: str | None = None, note: str | None = None
+) -> None:
+    """Copy the verdict as it now stands into the history (optionally naming who and why)."""
+    db.execute(
+        "INSERT INTO verdict_history (series_id, version, at, from_status, status, arima_order, "
+        "seasonal_order, transform, note, reviewer) "
+        "SELECT series_id, version, ?, ?, status, arima_order, seasonal_order, transform, "
+        "coalesce(?, note), coalesce(?, reviewer) FROM verdicts WHERE series_id = ?",
+        [utc_now(), from_status, note, reviewer, series_id],
+    )
+
+
+def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
+    """Every change of the series' verdict, oldest first."""
+    rows = db.execute(
+        "SELECT version, at, from_status, status, arima_order, seasonal_order, transform, note, reviewer "
+        "FROM verdict_history WHERE series_id = ? ORDER BY version",
+        [series_id],
+    ).fetchall()
+    return [
+        {
+            "version": version,
+            "at": at,
+            "from_status": from_status,
+            "status": status,
+            "order": _loads(order),
+            "seasonal_order": _loads(seasonal),
+            "transform": json.loads(transform),
+            "note": note,
+            "reviewer": reviewer,
+        }
+        for version, at, from_status, status, order, seasonal, transform, note, reviewer in rows
+    ]
+
+
+def verdict_counts(db: sqlite_utils.Database) -> dict[str, int]:
+    """How many series hold each status (every status present, zero when unused)."""
+    counts = dict.fromkeys(STATUSES, 0)
+    counts.update(db.execute("SELECT status, count(*) FROM verdicts GROUP BY status").fetchall())
+    return counts
+
+
+def _checked_order(order: Sequence[int] | None, length: int, what: str, series_id: str) -> list[int] | None:
+    if order is None:
+        return None
+    values = list(order)
+    if len(values) != length or not all(isinstance(v, int) and not isinstance(v, bool) and v >= 0 for v in values):
+        raise OrderError(f"series {series_id!r}: the {what} must be {length} whole numbers >= 0, not {order!r}")
+    if length == 4 and any(values[:3]) and values[3] < 2:
+        raise OrderError(f"series {series_id!r}: a seasonal order needs a period s >= 2, not {values[3]}")
+    return values
+
+
+def _checked_transform(transform: str | dict, series_id: str) -> str | dict:
+    if transform in TRANSFORMS:
+        return transform
+    if isinstance(transform, dict) and set(transform) == {"box_cox"}:
+        lam = transform["box_cox"]
+        if isinstance(lam, (int, float)) and not isinstance(lam, bool) and math.isfinite(lam):
+            return {"box_cox": float(lam)}
+    raise InvalidVerdict(
+        f"series {series_id!r}: transform must be 'none', 'log' or {{'box_cox': number}}, not {transform!r}"
+    )
+
+
+def _dumps(value: list | None) -> str | None:
+    return None if value is None else json.dumps(value)
+
+
+def _loads(text: str | None) -> list | None:
+    return None if text is None else json.loads(text)

@@ -1,0 +1,79 @@
+"""Opening the database: pragmas, the schema version and forward migrations, the path."""
+
+from __future__ import annotations
+
+import pytest
+import sqlite_utils
+
+from app.core.errors import LagdeskError
+from app.store.database import DEFAULT_DB_NAME, open_database, resolve_db_path, schema_version
+from app.store.migrations import MIGRATION_SET, MIGRATIONS, STEPS
+
+TABLES = {"imports", "series", "observations", "runs", "analyses", "verdicts", "verdict_history"}
+
+
+def test_open_database_sets_wal_foreign_keys_and_busy_timeout(fresh_db):
+    assert fresh_db.execute("PRAGMA journal_mode").fetchone() == ("wal",)
+    assert fresh_db.execute("PRAGMA foreign_keys").fetchone() == (1,)
+    assert fresh_db.execute("PRAGMA busy_timeout").fetchone() == (10_000,)
+
+
+def test_open_database_creates_every_table_at_the_latest_version(fresh_db):
+    assert TABLES <= set(fresh_db.table_names())
+    assert schema_version(fresh_db) == len(STEPS)
+    assert [m.name for m in MIGRATIONS.applied(fresh_db)] == [step.__name__ for step in STEPS]
+
+
+def test_open_database_twice_applies_each_migration_once(tmp_path):
+    path = tmp_path / "twice.db"
+    open_database(path).close()
+    db = open_database(path)
+    rows = db.execute("SELECT name FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATION_SET]).fetchall()
+    assert rows == [(step.__name__,) for step in STEPS]
+    assert schema_version(db) == len(STEPS)
+    db.close()
+
+
+def test_open_database_upgrades_an_older_file_without_a_manual_step(tmp_path):
+    path = tmp_path / "old.db"
+    old = sqlite_utils.Database(path)
+    MIGRATIONS.apply(old, stop_before=STEPS[-1].__name__)
+    assert schema_version(old) == len(STEPS) - 1
+    old.close()
+    db = open_database(path)
+    assert schema_version(db) == len(STEPS)
+    assert TABLES <= set(db.table_names())
+    db.close()
+
+
+def test_open_database_refuses_a_file_from_a_newer_version(tmp_path):
+    path = tmp_path / "newer.db"
+    db = open_database(path)
+    db["_sqlite_migrations"].insert({"migration_set": MIGRATION_SET, "name": "from_the_future", "applied_at": "x"})
+    db.close()
+    with pytest.raises(LagdeskError, match="newer Lagdesk.*from_the_future"):
+        open_database(path)
+
+
+def test_open_database_names_a_file_that_is_not_a_database(tmp_path):
+    path = tmp_path / "notes.db"
+    path.write_text("this is a text file, not SQLite\n" * 100)
+    with pytest.raises(LagdeskError, match="notes.db: cannot be used as a Lagdesk database"):
+        open_database(path)
+
+
+def test_open_database_names_a_missing_folder_or_a_folder_given_as_file(tmp_path):
+    with pytest.raises(LagdeskError, match="does not exist"):
+        open_database(tmp_path / "nowhere" / "x.db")
+    (tmp_path / "folder.db").mkdir()
+    with pytest.raises(LagdeskError, match="folder.db: cannot be opened"):
+        open_database(tmp_path / "folder.db")
+
+
+def test_resolve_db_path_prefers_option_then_environment_then_working_folder(monkeypatch, tmp_path):
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setenv("LAGDESK_DB", "/data/from_env.db")
+    assert str(resolve_db_path("given.db")) == "given.db"
+    assert str(resolve_db_path(None)) == "/data/from_env.db"
+    monkeypatch.delenv("LAGDESK_DB")
+    assert resolve_db_path(None) == tmp_path / DEFAULT_DB_NAME

@@ -1,0 +1,169 @@
+"""The dashboard list: filters, sort keys, paging with the total, neighbours, counts, status."""
+
+from __future__ import annotations
+
+import pytest
+
+from app.core.errors import LagdeskError
+from app.store.analyses import save_analysis, save_failure
+from app.store.imports import import_portfolio
+from app.store.series import SORT_KEYS, count_by, list_series, load_series, series_fingerprint, series_neighbours
+from app.store.status import portfolio_status
+from app.store.verdicts import mark_recheck, set_verdict
+
+# series id: (verdict, analysis confidence or "failed"/None, flags, suggested order, reviewer)
+PORTFOLIO = {
+    "a-recheck": ("recheck", "firm", [], [1, 0, 0], "ann"),
+    "b-weak": ("pending", "weak", ["near_unit_root", "redundant_roots"], [2, 1, 2], ""),
+    "c-weak": ("pending", "weak", ["near_unit_root"], [0, 1, 1], ""),
+    "d-tentative": ("pending", "tentative", ["gaps"], [1, 1, 0], ""),
+    "e-firm": ("pending", "firm", [], [0, 0, 1], ""),
+    "f-failed": ("pending", "failed", [], None, ""),
+    "g-missing": ("pending", None, [], None, ""),
+    "h-parked": ("parked", "weak", ["long_gap"], [3, 0, 0], "ann"),
+    "i-approved": ("approved", "firm", [], [1, 0, 1], "Carl"),
+    "j-overridden": ("overridden", "tentative", ["gaps"], [0, 1, 1], "bob"),
+}
+# What needs a human first: the recheck; then pending series from the most doubtful analysis
+# (weak with more flags, weak, failed) to none yet; then parked; then decided ones.
+ATTENTION_ORDER = ["a-recheck", "b-weak", "c-weak", "f-failed", "d-tentative", "e-firm", "g-missing",
+                   "h-parked", "j-overridden", "i-approved"]
+
+
+@pytest.fixture
+def listed_db(fresh_db, write_csv, monthly, relabel):
+    lengths = {sid: 30 + i for i, sid in enumerate(PORTFOLIO)}
+    import_portfolio(fresh_db, write_csv("p.csv", {sid: monthly(i, n=lengths[sid]) for i, sid in enumerate(PORTFOLIO)}))
+    for sid, (status, confidence, flags, order, reviewer) in PORTFOLIO.items():
+        fingerprint = series_fingerprint(fresh_db, sid)
+        if confidence == "failed":
+            save_failure(fresh_db, sid, fingerprint, "every candidate failed", None)
+        elif confidence is not None:
+            suggested = {"order": order, "seasonal_order": [0, 0, 0, 0]}
+            save_analysis(fresh_db, sid, fingerprint, relabel(sid, confidence=confidence, flags=flags,
+                                                              suggested=suggested, d=order[1]), None)
+        decided = "approved" if status == "recheck" else status
+        if decided != "pending":
+            set_verdict(fresh_db, sid, status=decided, order=None if decided == "parked" else order,
+                        seasonal_order=None, reviewer=reviewer, version=0)
+        if status == "recheck":
+            mark_recheck(fresh_db, sid, "the data changed")
+    return fresh_db
+
+
+def ids(items):
+    return [item["series_id"] for item in items]
+
+
+def test_default_order_puts_what_needs_a_human_first(listed_db):
+    total, items = list_series(listed_db)
+    assert total == len(PORTFOLIO)
+    assert ids(items) == ATTENTION_ORDER
+    attention = [item["attention"] for item in items]
+    assert attention == sorted(attention, reverse=True)
+    assert ids(list_series(listed_db, descending=True)[1]) == ATTENTION_ORDER[::-1]
+
+
+def test_items_carry_the_summary_of_analysis_and_verdict(listed_db):
+    items = {item["series_id"]: item for item in list_series(listed_db)[1]}
+    assert items["b-weak"]["flags"] == ["near_unit_root", "redundant_roots"]
+    assert items["b-weak"]["suggested"] == {"order": [2, 1, 2], "seasonal_order": [0, 0, 0, 0]}
+    assert (items["b-weak"]["n"], items["b-weak"]["freq"]) == (31, "MS")
+    assert items["a-recheck"]["recheck_reason"] == "the data changed"
+    assert items["a-recheck"]["chosen"]["order"] == [1, 0, 0]
+    assert [items[s]["analysis_state"] for s in ("e-firm", "f-failed", "g-missing")] == ["current", "failed", "missing"]
+    assert items["g-missing"]["suggested"] == {"order": None, "seasonal_order": None}
+
+
+@pytest.mark.parametrize("filters, expected", [
+    (dict(status="pending"), {"b-weak", "c-weak", "d-tentative", "e-firm", "f-failed", "g-missing"}),
+    (dict(status=["approved", "overridden"]), {"i-approved", "j-overridden"}),
+    (dict(confidence="weak"), {"b-weak", "c-weak", "h-parked"}),
+    (dict(confidence="weak", status="pending"), {"b-weak", "c-weak"}),
+    (dict(flag="gaps"), {"d-tentative", "j-overridden"}),
+    (dict(flag="near_unit_root"), {"b-weak", "c-weak"}),
+    (dict(q="WEAK"), {"b-weak", "c-weak"}),
+    (dict(q="-", flag="nothing_like_this"), set()),
+])
+def test_filters_keep_the_matching_series_and_count_them(listed_db, filters, expected):
+    total, items = list_series(listed_db, **filters)
+    assert total == len(expected) and set(ids(items)) == expected
+    assert ids(items) == [s for s in ATTENTION_ORDER if s in expected]
+
+
+def test_paging_returns_slices_of_one_order_with_the_whole_total(listed_db):
+    pages = [list_series(listed_db, limit=3, offset=offset) for offset in (0, 3, 6, 9, 12)]
+    assert {total for total, _ in pages} == {len(PORTFOLIO)}
+    assert [len(items) for _, items in pages] == [3, 3, 3, 1, 0]
+    assert [sid for _, items in pages for sid in ids(items)] == ATTENTION_ORDER
+
+
+@pytest.mark.parametrize("sort, expected", [
+    ("series_id", sorted(PORTFOLIO)),
+    ("n", list(PORTFOLIO)),  # lengths grow with the position in PORTFOLIO
+    ("confidence", ["b-weak", "c-weak", "h-parked", "d-tentative", "j-overridden", "a-recheck", "e-firm",
+                    "i-approved", "f-failed", "g-missing"]),
+    ("status", ["b-weak", "c-weak", "d-tentative", "e-firm", "f-failed", "g-missing", "i-approved",
+                "j-overridden", "h-parked", "a-recheck"]),
+    ("order", ["e-firm", "c-weak", "j-overridden", "a-recheck", "i-approved", "d-tentative", "b-weak", "h-parked",
+               "f-failed", "g-missing"]),
+    ("reviewer", ["a-recheck", "h-parked", "j-overridden", "i-approved", "b-weak", "c-weak", "d-tentative",
+                  "e-firm", "f-failed", "g-missing"]),
+])
+def test_each_sort_key_orders_the_list(listed_db, sort, expected):
+    assert ids(list_series(listed_db, sort=sort, limit=100)[1]) == expected
+
+
+def test_sort_keys_are_all_tested_and_bad_options_are_named(listed_db):
+    assert set(SORT_KEYS) == {"attention", "series_id", "n", "confidence", "status", "order", "reviewer"}
+    with pytest.raises(LagdeskError, match="sort must be one of"):
+        list_series(listed_db, sort="colour")
+    with pytest.raises(LagdeskError, match="status must be one of .* not 'done'"):
+        list_series(listed_db, status="done")
+    with pytest.raises(LagdeskError, match="confidence must be one of"):
+        list_series(listed_db, confidence="high")
+
+
+@pytest.mark.parametrize("options", [dict(), dict(status="pending"), dict(sort="n", descending=True),
+                                     dict(confidence="weak", sort="series_id")])
+def test_neighbours_are_the_adjacent_items_of_the_same_list(listed_db, options):
+    order = ids(list_series(listed_db, limit=100, **options)[1])
+    for i, sid in enumerate(order):
+        expected = (order[i - 1] if i > 0 else None, order[i + 1] if i + 1 < len(order) else None)
+        assert series_neighbours(listed_db, sid, **options) == expected
+    assert series_neighbours(listed_db, "not-listed", **options) == (None, None)
+
+
+def test_count_by_and_portfolio_status(listed_db):
+    assert count_by(listed_db) == {
+        "confidence": {"weak": 3, "tentative": 2, "firm": 3},
+        "status": {"pending": 6, "approved": 1, "overridden": 1, "parked": 1, "recheck": 1},
+        "total": 10,
+        "reviewed": 2,
+    }
+    assert portfolio_status(listed_db) == {
+        "series": 10, "analysed": 8, "stale": 1, "failed": 1,
+        "verdicts": {"pending": 6, "approved": 1, "overridden": 1, "parked": 1, "recheck": 1},
+    }
+
+
+def test_status_of_an_empty_database(fresh_db):
+    assert portfolio_status(fresh_db) == {
+        "series": 0, "analysed": 0, "stale": 0, "failed": 0,
+        "verdicts": {"pending": 0, "approved": 0, "overridden": 0, "parked": 0, "recheck": 0},
+    }
+    assert list_series(fresh_db) == (0, [])
+
+
+def test_loading_a_series_and_its_analysis_uses_indexes_not_scans(listed_db):
+    from app.store.analyses import load_analysis
+
+    statements = []
+    with listed_db.tracer(lambda sql, params: statements.append((sql, params))):
+        load_series(listed_db, "b-weak")
+        load_analysis(listed_db, "b-weak")
+    plans = [" ".join(str(row[-1]) for row in listed_db.execute(f"EXPLAIN QUERY PLAN {sql}", params).fetchall())
+             for sql, params in statements]
+    assert len(plans) == 3
+    assert all("SCAN" not in plan and "SEARCH" in plan for plan in plans), plans
+    assert any("observations USING PRIMARY KEY (series_id=?)" in plan for plan in plans)

@@ -1,0 +1,139 @@
+"""Verdicts: versions refuse lost updates, every change is in the history, recheck keeps the order."""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+
+from app.core.errors import OrderError
+from app.store.database import UnknownSeries, open_database
+from app.store.imports import import_portfolio
+from app.store.verdicts import (
+    InvalidVerdict,
+    StaleVersion,
+    get_verdict,
+    mark_recheck,
+    set_verdict,
+    verdict_history,
+)
+
+
+@pytest.fixture
+def portfolio_db(fresh_db, write_csv, monthly):
+    import_portfolio(fresh_db, write_csv("p.csv", {"a": monthly(1), "b": monthly(2)}))
+    return fresh_db
+
+
+def test_a_new_series_is_pending_at_version_zero_with_no_history(portfolio_db):
+    assert get_verdict(portfolio_db, "a") == {
+        "status": "pending", "order": None, "seasonal_order": None, "transform": "none", "note": "",
+        "reviewer": "", "version": 0, "decided_at": None, "recheck_reason": None,
+    }
+    assert verdict_history(portfolio_db, "a") == []
+
+
+def test_second_update_naming_the_same_version_is_refused_with_the_current_verdict(portfolio_db):
+    first = set_verdict(portfolio_db, "a", status="approved", order=[1, 0, 0], seasonal_order=None,
+                        reviewer="ann", version=0)
+    assert (first["version"], first["seasonal_order"]) == (1, [0, 0, 0, 0])
+    with pytest.raises(StaleVersion) as refused:
+        set_verdict(portfolio_db, "a", status="overridden", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12],
+                    reviewer="bob", note="seasonal", version=0)
+    assert refused.value.current == first
+    assert "now version 1, approved by ann" in str(refused.value)
+    assert get_verdict(portfolio_db, "a") == first
+    assert len(verdict_history(portfolio_db, "a")) == 1
+
+
+def test_history_holds_every_change_in_order(portfolio_db):
+    steps = [
+        dict(status="parked", order=None, seasonal_order=None, note="wait for Q3 data", reviewer="ann"),
+        dict(status="overridden", order=[2, 1, 0], seasonal_order=[0, 1, 1, 12], transform="log",
+             note="log fits the spread", reviewer="bob"),
+        dict(status="approved", order=[1, 1, 1], seasonal_order=[0, 0, 0, 0], transform={"box_cox": 0.5},
+             reviewer="ann"),
+    ]
+    for version, step in enumerate(steps):
+        set_verdict(portfolio_db, "a", version=version, **step)
+    history = verdict_history(portfolio_db, "a")
+    assert [(h["version"], h["from_status"], h["status"], h["reviewer"]) for h in history] == [
+        (1, "pending", "parked", "ann"), (2, "parked", "overridden", "bob"), (3, "overridden", "approved", "ann")]
+    assert history[1]["order"] == [2, 1, 0] and history[1]["transform"] == "log"
+    assert history[2]["transform"] == {"box_cox": 0.5}
+    assert [h["at"] for h in history] == sorted(h["at"] for h in history)
+    assert verdict_history(portfolio_db, "b") == []
+
+
+def test_concurrent_reviewers_naming_one_version_exactly_one_wins(portfolio_db, tmp_path):
+    path = tmp_path / "lagdesk.db"
+    outcomes: list[str] = []
+    start = threading.Barrier(4)
+
+    def review(name: str) -> None:
+        db = open_database(path)
+        start.wait()
+        try:
+            set_verdict(db, "b", status="approved", order=[1, 0, 0], seasonal_order=None, reviewer=name, version=0)
+            outcomes.append("won")
+        except StaleVersion:
+            outcomes.append("refused")
+        finally:
+            db.close()
+
+    threads = [threading.Thread(target=review, args=(f"reviewer{i}",)) for i in range(4)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert sorted(outcomes) == ["refused", "refused", "refused", "won"]
+    assert get_verdict(portfolio_db, "b")["version"] == 1
+    assert len(verdict_history(portfolio_db, "b")) == 1
+
+
+def test_mark_recheck_keeps_the_order_and_bumps_the_version(portfolio_db):
+    decided = set_verdict(portfolio_db, "a", status="overridden", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12],
+                          reviewer="bob", note="airline model", version=0)
+    mark_recheck(portfolio_db, "a", "the data changed")
+    verdict = get_verdict(portfolio_db, "a")
+    assert (verdict["status"], verdict["order"], verdict["seasonal_order"]) == ("recheck", [0, 1, 1], [0, 1, 1, 12])
+    assert (verdict["recheck_reason"], verdict["version"], verdict["note"]) == ("the data changed", 2, "airline model")
+    last = verdict_history(portfolio_db, "a")[-1]
+    assert (last["from_status"], last["status"], last["note"], last["reviewer"]) == (
+        "overridden", "recheck", "the data changed", "lagdesk")
+    with pytest.raises(StaleVersion):  # a reviewer who loaded the page before the change
+        set_verdict(portfolio_db, "a", status="approved", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12],
+                    version=decided["version"])
+    again = set_verdict(portfolio_db, "a", status="approved", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12],
+                        reviewer="bob", version=2)
+    assert again["recheck_reason"] is None
+
+
+def test_mark_recheck_leaves_undecided_series_alone(portfolio_db):
+    mark_recheck(portfolio_db, "b", "the data changed")
+    assert get_verdict(portfolio_db, "b")["status"] == "pending"
+    assert verdict_history(portfolio_db, "b") == []
+
+
+@pytest.mark.parametrize("change, error, message", [
+    (dict(status="recheck", order=[1, 0, 0]), InvalidVerdict, "status must be one of"),
+    (dict(status="approved", order=None), InvalidVerdict, "needs an order"),
+    (dict(status="approved", order=[1, -1, 0]), OrderError, "3 whole numbers"),
+    (dict(status="approved", order=[1, 0]), OrderError, "3 whole numbers"),
+    (dict(status="approved", order=[1, 0, 0], seasonal_order=[1, 0, 0, 1]), OrderError, "period s >= 2"),
+    (dict(status="approved", order=[1, 0, 0], transform="sqrt"), InvalidVerdict, "transform must be"),
+])
+def test_a_verdict_that_cannot_be_stored_is_refused(portfolio_db, change, error, message):
+    change.setdefault("seasonal_order", None)
+    with pytest.raises(error, match=message):
+        set_verdict(portfolio_db, "a", version=0, **change)
+    assert get_verdict(portfolio_db, "a")["version"] == 0
+
+
+def test_verdicts_of_an_unknown_series_are_refused(portfolio_db):
+    with pytest.raises(UnknownSeries):
+        get_verdict(portfolio_db, "zzz")
+    with pytest.raises(UnknownSeries):
+        set_verdict(portfolio_db, "zzz", status="parked", order=None, seasonal_order=None, version=0)
+    with pytest.raises(UnknownSeries):
+        mark_recheck(portfolio_db, "zzz", "why")
