@@ -18,7 +18,7 @@ demo: $(STAMP)
 	$(BIN)/lagdesk identify demo_data/portfolio.csv
 
 test: $(STAMP)
-	$(BIN)/python -m pytest
+	$(BIN)/python -m pytest -m "slow or not slow"
 
 clean:
 	rm -rf $(VENV) *.egg-info

@@ -54,11 +54,11 @@ class Correlogram:
 def lag_count(n: int, period: int | None = None) -> int:
     """Number of lags K to show for a series of length ``n``.
 
-    ``K = ceil(10 * log10(n))`` (the usual default of R's ``acf``, common practice), raised to
+    ``K = floor(10 * log10(n))`` (the default of R's ``acf``, from memory; common practice), raised to
     ``2s + 1`` when a seasonal period ``s`` is given so two seasonal lags are visible, and
     capped at ``n // 2 - 1`` because the PACF at lags near ``n/2`` rests on too few pairs.
     """
-    k = math.ceil(10 * math.log10(max(n, 2)))
+    k = math.floor(10 * math.log10(max(n, 2)))
     if period and period > 1:
         k = max(k, 2 * period + 1)
     return max(1, min(k, n // 2 - 1))

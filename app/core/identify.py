@@ -1,9 +1,17 @@
 """The identification engine: one series in, a ranked set of candidate models out.
 
-The steps are those a practitioner does by hand (Box, Jenkins, Reinsel & Ljung 2015, ch. 6):
-prepare the series, choose the differencing, read the ACF and PACF of the differenced series,
-propose candidate orders from their patterns and the extended ACF, fit every candidate by
-maximum likelihood, check its residuals, rank, and say how far the suggestion can be trusted.
+The steps are those a practitioner does by hand (Box, Jenkins, Reinsel & Ljung 2015, ch. 6
+and 9): prepare the series; fix the seasonal period and decide on a variance-stabilising
+transform; choose the seasonal differencing D and then d; read the ACF and PACF of the
+differenced series; propose candidate orders from their patterns at the low lags, at the
+seasonal lags and from the extended ACF; fit every candidate by maximum likelihood, check its
+residuals; rank; say how far the suggestion can be trusted.
+
+Candidate search. The orders read from the correlograms and their +-1 neighbours are fitted
+in two stages when the model is seasonal: first each seasonal (P, Q) proposal with the
+leading non-seasonal reading, then each non-seasonal (p, q) proposal with the best seasonal
+part. Then :data:`LOCAL_SEARCH_ROUNDS` rounds of a local search fit the untried +-1
+neighbours (in p, q, P and Q) of the current leader.
 """
 
 from __future__ import annotations
@@ -17,26 +25,65 @@ import pandas as pd
 from app import __version__
 from app.core.confidence import Confidence, score_confidence
 from app.core.correlogram import Correlogram, correlogram, lag_count
-from app.core.fitting import MAX_ORDER, CandidateFit, ModelOrder, fit_candidate
-from app.core.patterns import eacf_table, eacf_vertex, read_patterns, with_neighbours
+from app.core.errors import OrderError, SeriesProblem
+from app.core.fitting import MAX_ORDER, MAX_SEASONAL_ORDER, CandidateFit, ModelOrder, fit_candidate
+from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import DEFAULT_CRITERION, criterion_value, rank_across_d, rank_within_d
+from app.core.seasonality import (
+    SeasonalDifferencing,
+    choose_seasonal_differencing,
+    default_period,
+    seasonal_lags,
+    seasonal_structure_present,
+    validate_period,
+)
 from app.core.stationarity import DifferencingDecision, choose_differencing
+from app.core.transform import TransformChoice, apply_transform, choose_transform
 
 ENGINE_VERSION = __version__
+AUTO_PERIOD = "auto"
 DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2
+MIN_RESIDUAL_DF = 8
+
+Orders = tuple[int, int, int, int]  # (p, q, P, Q)
 
 
 @dataclass(frozen=True)
 class EngineOptions:
-    """Settings of one identification run (the defaults are the documented ones)."""
+    """Settings of one identification run (the defaults are the documented ones).
+
+    ``period`` is ``"auto"`` (from the sampling frequency), a whole number >= 2, or ``None``
+    (treat every series as non-seasonal).
+    """
 
     max_p: int = MAX_ORDER
     max_q: int = MAX_ORDER
+    max_P: int = MAX_SEASONAL_ORDER
+    max_Q: int = MAX_SEASONAL_ORDER
     criterion: str = DEFAULT_CRITERION
     alpha: float = 0.05
+    period: int | str | None = AUTO_PERIOD
+
+
+@dataclass
+class SeasonalSetup:
+    """What the engine decided about seasonality before reading the correlograms."""
+
+    examined: int | None
+    differencing: SeasonalDifferencing | None
+    words: list[str] = field(default_factory=list)
+    flags: list[str] = field(default_factory=list)
+
+    @property
+    def D(self) -> int:
+        return self.differencing.D if self.differencing else 0
+
+    def to_dict(self) -> dict:
+        out = self.differencing.to_dict() if self.differencing else {"D": 0}
+        return {**out, "examined_period": self.examined, "words": list(self.words)}
 
 
 @dataclass
@@ -44,10 +91,12 @@ class Identification:
     """Everything the engine found for one series."""
 
     prepared: PreparedSeries
+    transform: TransformChoice
+    seasonal: SeasonalSetup
     differencing: DifferencingDecision
-    trend: str
     correlogram: Correlogram
     identified_on: np.ndarray
+    identified_label: str
     pattern_words: list[str]
     candidates: list[CandidateFit]
     confidence: Confidence
@@ -61,6 +110,8 @@ class Identification:
     def to_dict(self) -> dict:
         best = self.suggested
         index = self.prepared.index
+        period = best.model.seasonal_order[3] or None
+        shown_period = period or self.seasonal.examined
         return {
             "series_id": self.prepared.series_id,
             "n": self.prepared.n,
@@ -69,18 +120,20 @@ class Identification:
             "end": str(index[-1]),
             "d": best.model.order[1],
             "D": best.model.seasonal_order[1],
-            "period": best.model.seasonal_order[3] or None,
-            "transform": "none",
+            "period": period,
+            "transform": self.transform.to_json(),
+            "transform_words": list(self.transform.explanation),
             "trend": best.model.trend,
             "suggested": {"order": list(best.model.order), "seasonal_order": list(best.model.seasonal_order)},
             "confidence": self.confidence.level,
             "confidence_reasons": list(self.confidence.reasons),
             "flags": list(self.flags),
             "differencing": self.differencing.to_dict(),
+            "seasonal": self.seasonal.to_dict(),
             **self.correlogram.to_dict(),
-            "seasonal_lags": [],
+            "seasonal_lags": seasonal_lags(shown_period, len(self.correlogram.lags)),
             "patterns": list(self.pattern_words),
-            "identified_on": {"values": [float(v) for v in self.identified_on], "label": _identified_label(self.differencing.d)},
+            "identified_on": {"values": [float(v) for v in self.identified_on], "label": self.identified_label},
             "gaps_filled": self.prepared.gaps_filled,
             "criterion": self.criterion,
             "candidates": [
@@ -99,13 +152,36 @@ def _candidate_dict(fit: CandidateFit, rank_score: float, keep_residuals: bool) 
     return out
 
 
-def _identified_label(d: int) -> str:
-    return {0: "series as observed", 1: "first difference", 2: "second difference"}[d]
+def resolve_period(prepared: PreparedSeries, option: int | str | None) -> tuple[int | None, list[str]]:
+    """The seasonal period to examine, and words about it.
+
+    ``"auto"`` takes the period from the sampling frequency and quietly drops it when the
+    series is not even one season long; an explicit period that makes no sense for the series
+    is a :class:`SeriesProblem`.
+    """
+    if option == AUTO_PERIOD:
+        period = default_period(prepared.freq)
+        if period is None:
+            return None, []
+        if period >= prepared.n:
+            return None, [f"The series is shorter than one season ({period} points at frequency {prepared.freq}): treated as non-seasonal."]
+        return period, [f"Seasonal period {period} from the sampling frequency ({prepared.freq})."]
+    try:
+        return validate_period(option, prepared.n, prepared.series_id), ([f"Seasonal period {option} as requested."] if option else [])
+    except OrderError as exc:
+        raise SeriesProblem(prepared.series_id, str(exc), flag="bad_period") from None
 
 
-def choose_trend(y: np.ndarray, decision: DifferencingDecision, d: int) -> str:
-    """The deterministic term: a constant (or constant + trend) at d = 0, a drift at d = 1 when
-    the mean difference is significant (|t| > 1.96, common practice), none at d = 2."""
+def seasonal_difference(y: np.ndarray, period: int | None, D: int) -> np.ndarray:
+    return y[period:] - y[:-period] if D and period else y
+
+
+def choose_trend(y: np.ndarray, decision: DifferencingDecision, d: int, D: int) -> str:
+    """The deterministic term: a constant (or constant + trend) when nothing is differenced, a
+    drift at d = 1 when the mean difference is significant (|t| > 1.96, common practice), none
+    once the series is differenced twice or seasonally."""
+    if D:
+        return "n"
     if d == 0:
         return "ct" if decision.trend_stationary else "c"
     if d == 1:
@@ -115,75 +191,144 @@ def choose_trend(y: np.ndarray, decision: DifferencingDecision, d: int) -> str:
     return "n"
 
 
-def candidate_fits_for_d(y: np.ndarray, d: int, trend: str, options: EngineOptions) -> tuple[list[CandidateFit], Correlogram, np.ndarray, list[str]]:
-    """Read the correlogram of the d-times differenced series, propose orders and fit them."""
-    w = np.diff(y, n=d) if d else y
-    cg = correlogram(w, lag_count(w.size), options.alpha)
+def identified_label(transform: TransformChoice, period: int | None, D: int, d: int) -> str:
+    steps = [] if transform.kind == "none" else ["log"] if transform.kind == "log" else [f"Box-Cox (lambda {transform.lam:g})"]
+    if D and period:
+        steps.append(f"seasonal difference at lag {period}")
+    steps += {0: [], 1: ["first difference"], 2: ["second difference"]}[d]
+    return ", ".join(steps) if steps else "series as observed"
+
+
+@dataclass
+class _Search:
+    """The fits of one differencing choice (d, D) and how they were found."""
+
+    y: np.ndarray
+    d: int
+    D: int
+    period: int | None
+    trend: str
+    options: EngineOptions
+    fitted: dict[Orders, CandidateFit] = field(default_factory=dict)
+
+    def fit(self, orders: dict[Orders, list[str]]) -> None:
+        for key, sources in sorted(orders.items()):
+            if key in self.fitted:
+                continue
+            p, q, P, Q = key
+            model = ModelOrder((p, self.d, q), (P, self.D, Q, self.period) if self.period else (0, 0, 0, 0), self.trend)
+            usable = self.y.size - model.lost_to_differencing
+            if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
+                continue
+            fit = fit_candidate(self.y, model)
+            fit.source = list(sources)
+            self.fitted[key] = fit
+
+    def leader(self) -> CandidateFit:
+        return rank_within_d(list(self.fitted.values()), self.options.criterion)[0]
+
+    def neighbours(self, key: Orders) -> dict[Orders, list[str]]:
+        limits = (self.options.max_p, self.options.max_q, self.options.max_P if self.period else 0, self.options.max_Q if self.period else 0)
+        out = {}
+        for axis in range(4):
+            for step in (-1, 1):
+                moved = list(key)
+                moved[axis] += step
+                if 0 <= moved[axis] <= limits[axis]:
+                    out[tuple(moved)] = ["local search"]
+        return out
+
+
+def _key(fit: CandidateFit) -> Orders:
+    p, _, q = fit.model.order
+    P, _, Q, _ = fit.model.seasonal_order
+    return (p, q, P, Q)
+
+
+def search_candidates(y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: DifferencingDecision, options: EngineOptions):
+    """Read the correlograms of the differenced series, propose orders and fit them."""
+    D = seasonal.D
+    w = seasonal_difference(y, seasonal.examined, D)
+    w = np.diff(w, n=d) if d else w
+    nlags = lag_count(w.size, seasonal.examined)
+    cg = correlogram(w, nlags, options.alpha)
+    words: list[str] = []
+    period = seasonal.examined
+    if period and not D:
+        if nlags < period or not seasonal_structure_present(cg.acf, cg.acf_band, period):
+            words.append(f"No seasonal structure at lag {period} in the ACF: a non-seasonal model is proposed.")
+            period = None
+    if period and "too_few_seasons" in seasonal.flags and not seasonal.differencing.seasonal_terms_possible:
+        period = None
     _, significant = eacf_table(w, options.max_p, options.max_q)
-    reading = read_patterns(cg, options.max_p, options.max_q, eacf_vertex(significant))
-    proposals = with_neighbours(reading.proposals, options.max_p, options.max_q)
-    fitted: dict[tuple[int, int], CandidateFit] = {}
-    _fit_orders(y, d, trend, proposals, fitted)
+    reading = read_patterns(cg, options.max_p, options.max_q, eacf_vertex(significant), period)
+    words += reading.words
+    search = _Search(y, d, D if period else 0, period, choose_trend(y, decision, d, D if period else 0), options)
+    nonseasonal = with_neighbours(reading.proposals, options.max_p, options.max_q)
+    if period:
+        seasonal_props, seasonal_words = read_seasonal_patterns(cg, period, options.max_P, options.max_Q)
+        words += seasonal_words
+        lead_pq = max(reading.proposals, key=lambda pq: (len(reading.proposals[pq]), -sum(pq)))
+        seasonal_all = with_neighbours(seasonal_props, options.max_P, options.max_Q)
+        search.fit({(*lead_pq, P, Q): reading.proposals[lead_pq] + seasonal_all[(P, Q)] for P, Q in seasonal_all})
+        best_PQ = _key(search.leader())[2:]
+        search.fit({(p, q, *best_PQ): src + seasonal_all.get(best_PQ, []) for (p, q), src in nonseasonal.items()})
+    else:
+        search.fit({(p, q, 0, 0): src for (p, q), src in nonseasonal.items()})
     for _ in range(LOCAL_SEARCH_ROUNDS):
-        lead = rank_within_d(list(fitted.values()), options.criterion)[0]
-        p, _, q = lead.model.order
-        around = with_neighbours({(p, q): []}, options.max_p, options.max_q)
-        fresh = {pq: ["local search"] for pq in around if pq not in fitted}
+        fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if k not in search.fitted}
         if not fresh:
             break
-        _fit_orders(y, d, trend, fresh, fitted)
-    return list(fitted.values()), cg, w, reading.words
-
-
-def _fit_orders(y: np.ndarray, d: int, trend: str, orders: dict[tuple[int, int], list[str]], fitted: dict) -> None:
-    for (p, q), sources in sorted(orders.items()):
-        model = ModelOrder((p, d, q), (0, 0, 0, 0), trend)
-        if (p, q) in fitted or y.size - d < model.n_arma + 8:
-            continue
-        fit = fit_candidate(y, model)
-        fit.source = sources
-        fitted[(p, q)] = fit
+        search.fit(fresh)
+    return list(search.fitted.values()), cg, w, words
 
 
 def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
     """Run the identification on a series already on its regular grid."""
-    y = prepared.values
-    decision = choose_differencing(y)
+    period, period_words = resolve_period(prepared, options.period)
+    transform = choose_transform(prepared.values, period)
+    y = apply_transform(prepared.values, transform)
+    seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, period_words)
+    if seasonal.differencing:
+        seasonal.words += seasonal.differencing.explanation
+        seasonal.flags += seasonal.differencing.flags
+    decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
     ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
-    groups, shown = {}, None
+    groups, shown = {}, {}
     for d in ds:
-        trend = choose_trend(y, decision, d)
-        fits, cg, w, words = candidate_fits_for_d(y, d, trend, options)
+        fits, cg, w, words = search_candidates(y, d, seasonal, decision, options)
         if d != decision.d:
             for f in fits:
                 f.source = f.source + ["alternative d"]
         groups[d] = fits
-        if shown is None:
-            shown = (cg, w, words, trend)
+        shown[d] = (cg, w, words)
     ranked = rank_across_d(groups, options.criterion)
-    cg, w, words, trend = shown
-    flags = list(prepared.flags)
+    best = ranked[0]
+    cg, w, words = shown[best.model.order[1]]
+    flags = list(prepared.flags) + seasonal.flags
+    if transform.kind != "none":
+        flags.append("transformed")
     if decision.uncertain:
         flags.append("uncertain_differencing")
     if decision.trend_stationary:
         flags.append("trend_stationary")
-    best = ranked[0]
     for flag in best.flags + ([] if best.passes_ljung_box else ["residual_autocorrelation"]):
         if flag not in flags:
             flags.append(flag)
     confidence = score_confidence(ranked, decision, flags, options.criterion)
-    if best.model.order[1] != decision.d:
-        w = np.diff(y, n=best.model.order[1]) if best.model.order[1] else y
-        cg = correlogram(w, lag_count(w.size), options.alpha)
-    return Identification(prepared, decision, trend, cg, w, words, ranked, confidence, options.criterion, flags)
+    label = identified_label(transform, best.model.seasonal_order[3] or None, best.model.seasonal_order[1], best.model.order[1])
+    return Identification(prepared, transform, seasonal, decision, cg, w, label, seasonal.words + words, ranked, confidence, options.criterion, flags)
 
 
-def identify_series(series: pd.Series, series_id: str | None = None, options: EngineOptions = EngineOptions(), lines: np.ndarray | None = None) -> Identification:
+def identify_series(
+    series: pd.Series, series_id: str | None = None, options: EngineOptions = EngineOptions(), lines: np.ndarray | None = None
+) -> Identification:
     """Prepare and identify one series.
 
     Raises
     ------
     app.core.errors.SeriesProblem
-        When the series cannot be analysed (too short, constant, bad values ...).
+        When the series cannot be analysed (too short, constant, bad values, a period that
+        does not fit ...).
     """
     return identify_prepared(prepare_series(series, series_id, lines), options)

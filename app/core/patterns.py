@@ -69,14 +69,18 @@ class PatternReading:
             self.proposals[(p, q)].append(source)
 
 
-def read_patterns(cg: Correlogram, max_p: int, max_q: int, eacf_vertex: tuple[int, int] | None = None) -> PatternReading:
+def read_patterns(
+    cg: Correlogram, max_p: int, max_q: int, eacf_vertex: tuple[int, int] | None = None, period: int | None = None
+) -> PatternReading:
     """Propose (p, q) pairs from the cut-off and decay patterns of a correlogram.
 
     The window examined for a cut-off is ``max_order + 3`` lags, so a cut-off at the maximum
-    order can be told from a slow decay.
+    order can be told from a slow decay; for a seasonal model it stops before lag ``s``, whose
+    spikes belong to the seasonal part.
     """
-    q_cut = cutoff(cg.acf, cg.acf_band, max_q + 3)
-    p_cut = cutoff(cg.pacf, cg.pacf_band, max_p + 3)
+    cap = period - 1 if period else len(cg.lags)
+    q_cut = cutoff(cg.acf, cg.acf_band, min(max_q + 3, cap))
+    p_cut = cutoff(cg.pacf, cg.pacf_band, min(max_p + 3, cap))
     reading = PatternReading(acf_cutoff=q_cut, pacf_cutoff=p_cut)
     acf_cuts, pacf_cuts = q_cut <= max_q, p_cut <= max_p
     if q_cut == 0 and p_cut == 0:
@@ -115,7 +119,7 @@ def eacf_table(x: np.ndarray, max_ar: int = 5, max_ma: int = 5) -> tuple[np.ndar
 
     Cell ``(k, j)`` is the lag ``j + 1`` sample autocorrelation of ``w_t = x_t - sum phi_i x_{t-i}``,
     where the AR(k) coefficients come from the ``j``-th iterated regression (``x_t`` on its ``k``
-    lags and the ``j`` lagged residuals of the previous iterations). For an ARMA(p, q) the cells
+    lags and, at lag ``h``, the residuals of iteration ``j - h``). For an ARMA(p, q) the cells
     with ``k >= p`` and ``j - q >= k - p`` vanish: a triangle of zeros with vertex ``(p, q)``.
 
     Returns
@@ -145,7 +149,7 @@ def _iterated_ar_filter(z: np.ndarray, k: int, residual_history: list[np.ndarray
         residual_history.append(z.copy())
         return z[start:] if start else z
     cols = [z[start - i : n - i] for i in range(1, k + 1)]
-    cols += [residual_history[h - 1][start - h : n - h] for h in range(1, j + 1)]
+    cols += [residual_history[j - h][start - h : n - h] for h in range(1, j + 1)]
     design = np.column_stack(cols)
     target = z[start:]
     coef, *_ = np.linalg.lstsq(design, target, rcond=None)
@@ -191,3 +195,43 @@ def eacf_vertex(significant: np.ndarray) -> tuple[int, int] | None:
         if best is not None:
             return best
     return None
+
+
+def seasonal_cutoff(values: np.ndarray, band: np.ndarray, period: int, max_order: int) -> int:
+    """The last of the seasonal lags ``s, 2s, .., (max_order + 1)s`` whose spike crosses the
+    band, counted only while every earlier seasonal lag crossed it too (the contiguity rule of
+    :func:`significant_lags` applied to the seasonal lags)."""
+    count = 0
+    for k in range(1, max_order + 2):
+        lag = k * period
+        if lag > len(values) or abs(values[lag - 1]) <= band[lag - 1]:
+            break
+        count = k
+    return count
+
+
+def read_seasonal_patterns(cg: Correlogram, period: int, max_P: int, max_Q: int) -> tuple[dict[tuple[int, int], list[str]], list[str]]:
+    """Propose seasonal (P, Q) pairs from the ACF and PACF at the seasonal lags.
+
+    Read as at the low lags (Box, Jenkins, Reinsel & Ljung 2015, ch. 9): an ACF spike at ``s``
+    and nothing at ``2s`` suggests Q = 1; PACF spikes at ``s`` and ``2s`` suggest P = 2; no spike
+    at either suggests no seasonal ARMA term. A cut-off beyond the limit is read as a decay and
+    proposes the mixed (1, 1).
+    """
+    Q_cut = seasonal_cutoff(cg.acf, cg.acf_band, period, max_Q)
+    P_cut = seasonal_cutoff(cg.pacf, cg.pacf_band, period, max_P)
+    proposals: dict[tuple[int, int], list[str]] = {}
+    words = []
+    if Q_cut == 0 and P_cut == 0:
+        proposals[(0, 0)] = ["no seasonal spike"]
+        words.append(f"No ACF or PACF spike at the seasonal lags {period}, {2 * period}: no seasonal ARMA term.")
+    if 0 < Q_cut <= max_Q:
+        proposals.setdefault((0, Q_cut), []).append("seasonal ACF cut-off")
+        words.append(f"The ACF has spikes at the first {Q_cut} seasonal lag(s) and none after: seasonal MA({Q_cut}).")
+    if 0 < P_cut <= max_P:
+        proposals.setdefault((P_cut, 0), []).append("seasonal PACF cut-off")
+        words.append(f"The PACF has spikes at the first {P_cut} seasonal lag(s) and none after: seasonal AR({P_cut}).")
+    if Q_cut > max_Q or P_cut > max_P or (Q_cut and P_cut):
+        proposals.setdefault((1, 1), []).append("seasonal both tail off")
+        words.append("Both tail off at the seasonal lags: a mixed seasonal term.")
+    return proposals, words

@@ -99,11 +99,14 @@ def _read_table(path: Path, name: str) -> pd.DataFrame:
     try:
         table = pd.read_csv(
             io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True,
-            quoting=csv.QUOTE_MINIMAL,
+            quoting=csv.QUOTE_MINIMAL, skip_blank_lines=False,
         )
     except (pd.errors.ParserError, csv.Error, ValueError) as exc:
         raise InputFileError(name, f"is not a readable CSV file ({str(exc).strip()})") from None
     table.columns = [str(c).strip() for c in table.columns]
+    # Blank lines are kept while reading so that row i is file line i + 2, then dropped.
+    table.index = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
+    table = table[~(table == "").all(axis=1)]
     if table.empty:
         raise InputFileError(name, "has a header but no data rows")
     return table
@@ -172,7 +175,7 @@ def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndar
 def _read_long(table: pd.DataFrame, name: str, id_col: str, time_col: str, value_col: str) -> PortfolioFile:
     _require_columns(table, name, [id_col, time_col, value_col])
     result = PortfolioFile(path=name)
-    lines = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
+    lines = table.index.to_numpy()
     ids = table[id_col].str.strip()
     if (ids == "").any():
         bad = int(np.flatnonzero((ids == "").to_numpy())[0])
@@ -195,7 +198,7 @@ def _read_wide(table: pd.DataFrame, name: str, time_col: str) -> PortfolioFile:
     if not value_cols:
         raise InputFileError(name, f"wide layout needs at least one series column besides {time_col!r}")
     result = PortfolioFile(path=name)
-    lines = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
+    lines = table.index.to_numpy()
     index = parse_timestamps(table[time_col], name, lines)
     for column in value_cols:
         try:

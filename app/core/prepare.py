@@ -148,14 +148,13 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
     if len(index) == 1:
         return (INTEGER_FREQ if not isinstance(index, pd.DatetimeIndex) else "D"), index
     if not isinstance(index, pd.DatetimeIndex):
-        steps = np.diff(index.to_numpy().astype(np.int64))
-        step = int(np.gcd.reduce(steps))
-        grid = pd.Index(np.arange(index[0], index[-1] + step, step), name=index.name)
-        return INTEGER_FREQ if step == 1 else f"{step} steps", grid
-    freq = _inferred_frequency(index)
-    if freq is None:
-        freq = _modal_frequency(index)
-    grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
+        steps = pd.Series(np.diff(index.to_numpy().astype(np.int64)))
+        step = int(steps.mode().min())
+        grid = pd.Index(np.arange(index[0], index[-1] + 1, step), name=index.name)
+        freq = INTEGER_FREQ if step == 1 else f"{step} steps"
+    else:
+        freq = _inferred_frequency(index) or _modal_frequency(index)
+        grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
     off = ~index.isin(grid)
     if off.any():
         i = int(np.flatnonzero(off)[0])

@@ -22,8 +22,8 @@ and from 0.933 to 0.948 at n = 500; HQIC and AICc ranked worse at both lengths.
 Information criteria are not comparable across different d: the likelihood of a differenced
 model is the likelihood of the differences. When the differencing decision is uncertain, the
 best candidate of each d is compared by :func:`common_level_bic`, a BIC computed from the
-one-step prediction errors *of the levels* over the same stretch of time points, which every
-model produces whatever its d.
+one-step prediction errors over the same final stretch of time points, which are level
+prediction errors whatever the model's d.
 
 References
 ----------
@@ -44,7 +44,10 @@ DEFAULT_CRITERION = "bic"
 TIE_MARGIN = 1.0
 DEMOTION_LEVEL = 0.01
 PATTERN_BONUS = 1.0
-PATTERN_SOURCES = frozenset({"PACF cut-off", "ACF cut-off", "EACF vertex", "both tail off", "white noise"})
+PATTERN_SOURCES = frozenset({
+    "PACF cut-off", "ACF cut-off", "EACF vertex", "both tail off", "white noise",
+    "seasonal ACF cut-off", "seasonal PACF cut-off", "seasonal both tail off", "no seasonal spike",
+})
 
 
 def criterion_value(fit: CandidateFit, criterion: str) -> float:
@@ -73,17 +76,18 @@ def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) 
     return [simplest] + [f for f in ordered if f is not simplest]
 
 
-def common_level_bic(fit: CandidateFit, start: int) -> float:
-    """BIC from the one-step level prediction errors from time ``start`` on.
+def common_level_bic(fit: CandidateFit, m: int) -> float:
+    """BIC from the last ``m`` one-step prediction errors.
 
-    ``m * ln(SSE / m) + k * ln(m)`` with ``m`` errors and ``k`` estimated parameters (including
-    the innovation variance): comparable across models with different d because every model
-    predicts the same level observations.
+    ``m * ln(SSE / m) + k * ln(m)`` with ``k`` estimated parameters (including the innovation
+    variance). The one-step prediction error of a level equals that of its difference (the
+    previous levels are known), so every model's residuals are level prediction errors and the
+    criterion is comparable across models with different d, as long as all use the same
+    ``m`` final time points.
     """
-    errors = fit.level_errors[start:]
-    m = errors.size
+    errors = fit.residuals[-m:]
     sse = float(errors @ errors)
-    if m == 0 or sse <= 0:
+    if m <= 0 or sse <= 0:
         return math.inf
     return m * math.log(sse / m) + fit.n_params * math.log(m)
 
@@ -93,8 +97,8 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     ranked = {d: rank_within_d(fits, criterion) for d, fits in groups.items() if fits}
     if len(ranked) == 1:
         return next(iter(ranked.values()))
-    start = max(f.model.lost_to_differencing for fits in ranked.values() for f in fits) + 1
-    order = sorted(ranked, key=lambda d: (is_demoted(ranked[d][0]), common_level_bic(ranked[d][0], start)))
+    m = min(f.residuals.size for fits in ranked.values() for f in fits) - 1
+    order = sorted(ranked, key=lambda d: (is_demoted(ranked[d][0]), common_level_bic(ranked[d][0], m)))
     return [fit for d in order for fit in ranked[d]]
 
 

@@ -16,7 +16,9 @@ KPSS (c)                 ADF (c)                 decision
 does not reject          rejects                 stationary: stop here (firm)
 rejects                  does not reject         unit root: difference once more (firm), unless
                                                  KPSS(ct) does not reject and ADF(ct) rejects:
-                                                 trend-stationary, keep d with a linear trend
+                                                 trend-stationary, keep d with a linear trend;
+                                                 uncertain when ADF's p-value is below
+                                                 :data:`ADF_UNCERTAIN_P` or ADF(ct) rejects
 does not reject          does not reject         the tests disagree (low power, near unit root)
 rejects                  rejects                 the tests disagree (e.g. a break, long memory)
 =======================  ======================  =============================================
@@ -147,6 +149,9 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
                         "unit root: trend-stationary, so not differenced; the model carries a linear trend."
                     )
                     return DifferencingDecision(0, False, None, True, tests, words)
+                if ad_ct.rejects or ad.p_value < ADF_UNCERTAIN_P:
+                    reason = "ADF with a trend term rejects a unit root" if ad_ct.rejects else f"ADF's p-value {ad.p_value:.3f} is below {ADF_UNCERTAIN_P}"
+                    return _uncertain(tests, words, on, f"KPSS rejects stationarity, but {reason}")
             words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: differenced once more.")
             values = np.diff(values)
             continue
@@ -154,11 +159,16 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
             words.append(f"On the {on} the tests disagree; a further difference needs both to agree, so d = {d}.")
             return DifferencingDecision(d, False, None, False, tests, words)
         verdict = "neither rejects its null" if not kp.rejects else "both reject their nulls"
-        primary = 1 if ad.p_value > ADF_UNCERTAIN_P else 0
-        words.append(
-            f"On the {on} the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF p = {ad.p_value:.3f}). "
-            f"Candidates are kept for d = 0 and d = 1; d = {primary} leads because ADF's p-value is "
-            f"{'above' if primary else 'below'} {ADF_UNCERTAIN_P}."
-        )
-        return DifferencingDecision(primary, True, 1 - primary, False, tests, words)
+        return _uncertain(tests, words, on, f"the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF p = {ad.p_value:.3f})")
     raise AssertionError("unreachable")
+
+
+def _uncertain(tests: list[TestResult], words: list[str], on: str, why: str) -> DifferencingDecision:
+    """An uncertain decision between d = 0 and d = 1; the lead d follows ADF's p-value."""
+    adf = next(t for t in tests if t.name == "ADF" and t.regression == "c" and t.on == on)
+    primary = 1 if adf.p_value > ADF_UNCERTAIN_P else 0
+    words.append(
+        f"On the {on} {why}. Candidates are kept for d = 0 and d = 1; d = {primary} leads because ADF's "
+        f"p-value is {'above' if primary else 'below'} {ADF_UNCERTAIN_P}."
+    )
+    return DifferencingDecision(primary, True, 1 - primary, False, tests, words)

@@ -1,0 +1,187 @@
+"""Checks of app.core.patterns: cut-offs on theoretical correlograms, chance spikes, the EACF.
+
+Sources: theoretical ACF/PACF of statsmodels ``ArmaProcess`` (reference library); the
+identification rules of Box, Jenkins, Reinsel & Ljung (2015) §6.2 (an AR(p) has a PACF that
+cuts off after lag p, an MA(q) an ACF that cuts off after lag q); the extended ACF of Tsay &
+Tiao (1984, JASA 79:84-96) and its reading in Cryer & Chan (2008) §6.3 [M for the sections].
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+
+import numpy as np
+import pytest
+from statsmodels.api import OLS
+from statsmodels.tsa.arima_process import ArmaProcess
+from threadpoolctl import threadpool_limits
+
+from app.core.correlogram import Correlogram, bartlett_band, correlogram, z_value
+from app.core.patterns import cutoff, eacf_table, eacf_vertex, read_patterns, significant_lags, with_neighbours
+
+MAX_P = MAX_Q = 5
+N_BANDS = 200  # the series length the bands are drawn for when the correlogram is theoretical
+
+
+def _theoretical_correlogram(ar: list[float], ma: list[float], nlags: int = 20, n: int = N_BANDS) -> Correlogram:
+    """The exact ACF/PACF of an ARMA process with the bands a series of length n would get."""
+    process = ArmaProcess(ar, ma)
+    r = process.acf(nlags + 1)
+    return Correlogram(
+        lags=np.arange(1, nlags + 1),
+        acf=r[1:],
+        acf_band=bartlett_band(r, n),
+        pacf=process.pacf(nlags + 1)[1:],
+        pacf_band=np.full(nlags, z_value() / math.sqrt(n)),
+    )
+
+
+@pytest.mark.parametrize(
+    "ar, p",
+    [([1, -0.6], 1), ([1, -0.5, -0.3], 2), ([1, -0.4, 0.3, -0.3], 3)],
+    ids=["AR(1)", "AR(2)", "AR(3)"],
+)
+def test_pacf_cutoff_of_theoretical_ar_equals_order(ar, p):
+    reading = read_patterns(_theoretical_correlogram(ar, [1]), MAX_P, MAX_Q)
+    assert reading.pacf_cutoff == p
+    assert "PACF cut-off" in reading.proposals[(p, 0)]
+
+
+def test_theoretical_ar2_acf_tails_off():
+    # phi = (0.5, 0.3): rho_k decays slowly (0.71, 0.66, 0.54, ...), so no MA order is read from it.
+    reading = read_patterns(_theoretical_correlogram([1, -0.5, -0.3], [1]), MAX_P, MAX_Q)
+    assert reading.acf_cutoff > MAX_Q
+    assert not any(p == 0 and q > 0 for p, q in reading.proposals)
+
+
+@pytest.mark.parametrize(
+    "ma, q",
+    [([1, 0.6], 1), ([1, 0.5, 0.4], 2), ([1, -0.7, 0.5], 2)],
+    ids=["MA(1)", "MA(2)", "MA(2) alternating"],
+)
+def test_acf_cutoff_of_theoretical_ma_equals_order(ma, q):
+    cg = _theoretical_correlogram([1], ma)
+    reading = read_patterns(cg, MAX_P, MAX_Q)
+    assert reading.acf_cutoff == q
+    assert "ACF cut-off" in reading.proposals[(0, q)]
+
+
+def test_white_noise_with_one_chance_spike_at_lag_7_has_no_cutoff():
+    # A 95% band is crossed by about one lag in twenty by chance (Box, Jenkins, Reinsel & Ljung
+    # 2015, §2.1.6 [M]); seed 59 gives n = 200 white noise whose ACF and PACF cross it at lag 7 only.
+    x = np.random.default_rng(59).normal(size=N_BANDS)
+    cg = correlogram(x, 20)
+    window = MAX_Q + 3
+    for values, band in ((cg.acf, cg.acf_band), (cg.pacf, cg.pacf_band)):
+        crossing = np.flatnonzero(np.abs(values[:window]) > band[:window]) + 1
+        assert crossing.tolist() == [7], "precondition: one isolated crossing at lag 7"
+        assert significant_lags(values, band, window) == []
+        assert cutoff(values, band, window) == 0
+    reading = read_patterns(cg, MAX_P, MAX_Q)
+    assert (reading.acf_cutoff, reading.pacf_cutoff) == (0, 0)
+    assert "white noise" in reading.proposals[(0, 0)]
+
+
+def test_lone_spike_beyond_the_bonferroni_band_counts():
+    # The stricter band z(1 - alpha/(2L)) (Bonferroni, common practice) lets a real isolated spike through.
+    band = np.full(10, 0.14)
+    values = np.zeros(10)
+    values[6] = 0.14 * 3.2 / 1.96
+    assert cutoff(values, band, 8) == 7
+
+
+def test_with_neighbours_adds_one_step_moves_within_limits():
+    out = with_neighbours({(0, 0): ["white noise"], (5, 1): ["PACF cut-off"]}, 5, 5)
+    assert set(out) == {(0, 0), (1, 0), (0, 1), (5, 1), (4, 1), (5, 0), (5, 2)}
+    assert out[(0, 0)] == ["white noise"] and out[(1, 0)] == ["neighbour"]
+
+
+# --- extended ACF ------------------------------------------------------------------------------
+
+def _tsay_tiao_cell(z: np.ndarray, k: int, j: int) -> float:
+    """Cell (k, j) of the EACF written from Tsay & Tiao's definition with statsmodels OLS.
+
+    The j-th iterated AR(k) regression is
+    z_t = sum_{i<=k} phi_i z_{t-i} + sum_{h<=j} beta_h e^{(j-h)}_{t-h} + e^{(j)}_t, where e^{(l)}
+    are the residuals of the l-th iterated regression (Tsay & Tiao 1984, §3); the cell is the lag
+    j+1 autocorrelation of z_t - sum phi_i^{(j)} z_{t-i}. Regressions use every t where all
+    regressors exist (t >= k + j), as the engine documents.
+    """
+    n = z.size
+    residuals: list[np.ndarray] = []
+    for it in range(j + 1):
+        start = k + it
+        cols = [z[start - i: n - i] for i in range(1, k + 1)]
+        cols += [residuals[it - h][start - h: n - h] for h in range(1, it + 1)]
+        fit = OLS(z[start:], np.column_stack(cols)).fit()
+        e = np.zeros(n)
+        e[start:] = fit.resid
+        residuals.append(e)
+    phi = fit.params[:k]
+    w = z[k:] - sum(phi[i - 1] * z[k - i: n - i] for i in range(1, k + 1))
+    w = w - w.mean()
+    return float(w[j + 1:] @ w[: -(j + 1)] / (w @ w))
+
+
+def test_eacf_first_column_and_row_follow_the_definition():
+    # Column 0 is the lag-1 ACF after an OLS AR(k) filter; row 0 is the plain ACF; with one
+    # iteration only one lagged residual enters, so these cells do not depend on its pairing.
+    x = ArmaProcess([1, -0.6], [1, 0.5]).generate_sample(400, distrvs=np.random.default_rng(21).standard_normal, burnin=100)
+    z = x - x.mean()
+    values, _ = eacf_table(x, 3, 3)
+    for k in range(1, 4):
+        for j in (0, 1):
+            assert values[k, j] == pytest.approx(_tsay_tiao_cell(z, k, j), abs=1e-10), (k, j)
+
+
+def test_eacf_iterated_cells_follow_the_definition():
+    x = ArmaProcess([1, -0.6], [1, 0.5]).generate_sample(400, distrvs=np.random.default_rng(21).standard_normal, burnin=100)
+    z = x - x.mean()
+    values, _ = eacf_table(x, 3, 3)
+    for k in range(1, 4):
+        for j in (2, 3):
+            assert values[k, j] == pytest.approx(_tsay_tiao_cell(z, k, j), abs=1e-10), (k, j)
+
+
+def test_eacf_significance_uses_tsay_tiao_threshold():
+    x = np.random.default_rng(22).normal(size=300)
+    values, significant = eacf_table(x, 3, 3)
+    k, j = np.indices(values.shape)
+    np.testing.assert_array_equal(significant, np.abs(values) > 2 / np.sqrt(300 - k - j))
+
+
+def _vertex_counts(ar: list[float], ma: list[float], n: int = 2000, seeds: range = range(20)) -> Counter:
+    counts: Counter = Counter()
+    # Many small least-squares problems: one BLAS thread, or they crawl on a busy machine.
+    with threadpool_limits(1):
+        for seed in seeds:
+            x = ArmaProcess(ar, ma).generate_sample(n, distrvs=np.random.default_rng(1000 + seed).standard_normal, burnin=200)
+            counts[eacf_vertex(eacf_table(x, MAX_P, MAX_Q)[1])] += 1
+    return counts
+
+
+# Each cell is a 5% test, so a false X inside the triangle moves the vertex now and then: over 20
+# seeded series of n = 2000 the true order must be the vertex read most often.
+@pytest.mark.parametrize(
+    "ar, ma, order",
+    [([1, -0.5, -0.3], [1], (2, 0)), ([1], [1, 0.6, 0.4], (0, 2))],
+    ids=["AR(2)", "MA(2)"],
+)
+def test_eacf_vertex_of_long_simulated_series_is_true_order(ar, ma, order):
+    counts = _vertex_counts(ar, ma)
+    assert counts.most_common(1)[0][0] == order, counts
+
+
+def test_eacf_vertex_of_long_simulated_arma11_is_true_order():
+    counts = _vertex_counts([1, -0.6], [1, 0.5])
+    assert counts.most_common(1)[0][0] == (1, 1), counts
+
+
+def test_eacf_vertex_reads_a_textbook_triangle():
+    # Cryer & Chan (2008) §6.3 [M]: an ARMA(1,1) shows X's in row 0 and O's from (1,1) on, with
+    # the triangle's edge moving one column right per row.
+    table = np.ones((6, 6), dtype=bool)
+    for row in range(1, 6):
+        table[row, row:] = False
+    assert eacf_vertex(table) == (1, 1)

