@@ -7,14 +7,22 @@ import argparse
 import json
 import sys
 from collections.abc import Sequence
+from contextlib import closing
+from pathlib import Path
 
 from app.core.errors import LagdeskError
 from app.core.fitting import MAX_ORDER
-from app.core.identify import EngineOptions
+from app.core.identify import AUTO_PERIOD, EngineOptions
 from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, read_portfolio
+from app.jobs.analyze import RunProgress, run_analysis
+from app.jobs.demo import build_demo_database
 from app.jobs.pool import default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 from app.jobs.work import SeriesTask, identify_task
+from app.store.database import open_database, resolve_db_path
+from app.store.imports import ImportReport, import_portfolio
+from app.store.runs import latest_run
+from app.store.status import portfolio_status
 
 EXIT_INPUT_ERROR = 2
 
@@ -31,6 +39,33 @@ def _add_workers(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--workers", type=int, default=default_workers(), help="worker processes (default: CPU count)")
 
 
+def _add_db(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--db", help="portfolio database file (default: $LAGDESK_DB, else ./lagdesk.db)")
+
+
+def period_option(text: str) -> int | str | None:
+    """``--period``: ``auto`` (from the sampling frequency), ``none`` (non-seasonal) or a whole number >= 2."""
+    word = text.strip().lower()
+    if word == AUTO_PERIOD:
+        return AUTO_PERIOD
+    if word == "none":
+        return None
+    try:
+        period = int(word)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not auto, none or a whole number") from None
+    if period < 2:
+        raise argparse.ArgumentTypeError(f"a seasonal period must be at least 2, not {period} (use none for non-seasonal)")
+    return period
+
+
+def _add_period(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--period", type=period_option, default=AUTO_PERIOD, metavar="N|none|auto",
+        help="seasonal period: auto from the sampling frequency (default), none, or a whole number >= 2",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="lagdesk", description="Box-Jenkins identification and review of ARIMA orders for a portfolio of series.")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -39,9 +74,32 @@ def build_parser() -> argparse.ArgumentParser:
     _add_file_options(identify)
     identify.add_argument("--max-p", type=int, default=MAX_ORDER, help=f"largest AR order considered (default {MAX_ORDER})")
     identify.add_argument("--max-q", type=int, default=MAX_ORDER, help=f"largest MA order considered (default {MAX_ORDER})")
+    _add_period(identify)
     identify.add_argument("--json", action="store_true", help="print the full results as JSON on stdout")
     _add_workers(identify)
     identify.set_defaults(handler=run_identify)
+
+    load = commands.add_parser("import", help="import (or update) the series of a CSV file into the database")
+    _add_file_options(load)
+    _add_db(load)
+    load.set_defaults(handler=run_import)
+
+    analyze = commands.add_parser("analyze", help="analyse every series whose analysis is missing or out of date")
+    _add_db(analyze)
+    _add_workers(analyze)
+    analyze.add_argument("--all", action="store_true", help="analyse every series again, current or not")
+    _add_period(analyze)
+    analyze.set_defaults(handler=run_analyze)
+
+    status = commands.add_parser("status", help="what the portfolio database holds")
+    _add_db(status)
+    status.add_argument("--json", action="store_true", help="print the counts as JSON on stdout")
+    status.set_defaults(handler=run_status)
+
+    demo = commands.add_parser("demo", help="build (or reuse) a database of the invented demo portfolio, analysed")
+    _add_db(demo)
+    _add_workers(demo)
+    demo.set_defaults(handler=run_demo)
     return parser
 
 
@@ -50,7 +108,7 @@ def run_identify(args: argparse.Namespace) -> int:
         if not 0 <= getattr(args, name) <= MAX_ORDER:
             raise LagdeskError(f"--{name.replace('_', '-')} must be between 0 and {MAX_ORDER}")
     portfolio = read_portfolio(args.path, args.layout, args.id_col, args.time_col, args.value_col)
-    options = EngineOptions(max_p=args.max_p, max_q=args.max_q)
+    options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
@@ -67,6 +125,134 @@ def run_identify(args: argparse.Namespace) -> int:
     else:
         print(identify_table(results, problems))
     return 0
+
+
+def run_import(args: argparse.Namespace) -> int:
+    path = resolve_db_path(args.db)
+    with closing(open_database(path)) as db:
+        report = import_portfolio(db, args.path, args.layout, args.id_col, args.time_col, args.value_col)
+    print(import_report_text(report, path))
+    return 0
+
+
+def import_report_text(report: ImportReport, db_path: Path) -> str:
+    """The import's counts, each rejected series with its reason, and what to do next."""
+    lines = [report.summary()]
+    lines += [f"  rejected: {r['message']}" for r in report.rejected]
+    if report.added or report.updated:
+        lines.append(f"Next: lagdesk analyze --db {db_path}")
+    return "\n".join(lines)
+
+
+def run_analyze(args: argparse.Namespace) -> int:
+    path = _existing_db(args.db)
+    shown = RunProgressLine("analyze")
+    try:
+        run = run_analysis(path, workers=args.workers, everything=args.all, options=EngineOptions(period=args.period), on_progress=shown)
+    except KeyboardInterrupt:
+        shown.close()
+        print("lagdesk analyze: interrupted; the series finished so far are kept, run it again to resume", file=sys.stderr)
+        return 130
+    shown.close()
+    with closing(open_database(path)) as db:
+        status = portfolio_status(db)
+    print(run_summary_text(run, shown.problems, status))
+    return 0
+
+
+class RunProgressLine:
+    """Shows a run's progress on a :class:`ProgressLine`, made once the run knows its total."""
+
+    def __init__(self, label: str) -> None:
+        self.label = label
+        self.line: ProgressLine | None = None
+        self.problems: list[dict] = []
+
+    def __call__(self, progress: RunProgress) -> None:
+        if self.line is None:
+            self.line = ProgressLine(progress.total, self.label)
+        while self.line.done < progress.done:
+            self.line.advance(failed=self.line.failed < progress.failed)
+        self.problems = progress.problems
+
+    def close(self) -> None:
+        if self.line is not None and self.line.done:
+            self.line.close()
+
+
+def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
+    """One line on the run, the failures' reasons, one line on the portfolio."""
+    if run["total"] == 0:
+        lines = [f"run {run['run_id']}: nothing to analyse (use --all to analyse every series again)"]
+    else:
+        lines = [
+            f"run {run['run_id']} {run['state']}: {run['done'] - run['failed']} series analysed, "
+            f"{run['failed']} failed, in {run['duration_s']:.1f} s"
+        ]
+    lines += [f"  failed: {p['message']}" for p in problems]
+    lines.append(f"{status['analysed']} of {status['series']} series have a current analysis.")
+    return "\n".join(lines)
+
+
+def run_status(args: argparse.Namespace) -> int:
+    path = _existing_db(args.db)
+    with closing(open_database(path)) as db:
+        status = portfolio_status(db)
+        last = latest_run(db)
+    if args.json:
+        json.dump({**status, "database": str(path), "last_run": last}, sys.stdout, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        print(status_text(status, last, path))
+    return 0
+
+
+def status_text(status: dict, last: dict | None, db_path: Path) -> str:
+    verdicts = ", ".join(f"{n} {name}" for name, n in status["verdicts"].items())
+    lines = [
+        f"{db_path}: {status['series']} series",
+        f"  analysed  {status['analysed']:>6}  current analysis",
+        f"  stale     {status['stale']:>6}  analysis missing or out of date",
+        f"  failed    {status['failed']:>6}  analysis failed on the current data",
+        f"verdicts: {verdicts}",
+    ]
+    if last is not None:
+        lines.append(
+            f"last run: {last['run_id']}, {last['state']}, started {last['started_at']}, "
+            f"{last['done']}/{last['total']} series, {last['failed']} failed, {last['duration_s']:.1f} s"
+        )
+    return "\n".join(lines)
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    shown = RunProgressLine("demo")
+    path = build_demo_database(resolve_db_path(args.db), args.workers, on_progress=shown)
+    shown.close()
+    with closing(open_database(path)) as db:
+        status = portfolio_status(db)
+    print(demo_next_steps(path, status))
+    return 0
+
+
+def demo_next_steps(db_path: Path, status: dict) -> str:
+    steps = [
+        (f"lagdesk status --db {db_path}", "what the portfolio holds"),
+        ("lagdesk import YOUR.csv --db my.db", "bring in your own series (series_id,timestamp,value)"),
+        ("lagdesk analyze --db my.db", "and analyse them"),
+    ]
+    width = max(len(command) for command, _ in steps)
+    return "\n".join(
+        [f"Demo portfolio ready in {db_path}: {status['series']} series, {status['analysed']} analysed.", "Next:"]
+        + [f"  {command.ljust(width)}  {what}" for command, what in steps]
+    )
+
+
+def _existing_db(explicit: str | None) -> Path:
+    """The database to read; unlike import, these commands never create an empty one."""
+    path = resolve_db_path(explicit)
+    if not path.is_file():
+        raise LagdeskError(f"{path}: no such database; create it with lagdesk import PATH --db {path}")
+    return path
 
 
 def _json_default(value):

@@ -182,11 +182,14 @@ def fit_candidate(y: np.ndarray, model: ModelOrder) -> CandidateFit:
     model : ModelOrder
         The order to fit.
     """
+    # A model with nothing but the variance to estimate (a random walk) has no parameter left
+    # once the variance is concentrated out, and the optimiser refuses an empty problem.
+    concentrate = model.n_arma > 0 or model.trend != "n"
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         result = SARIMAX(
             y, order=model.order, seasonal_order=model.seasonal_order, trend=differenced_trend(model.trend),
-            simple_differencing=True, concentrate_scale=True,
+            simple_differencing=True, concentrate_scale=concentrate,
             enforce_stationarity=True, enforce_invertibility=True,
         ).fit(disp=False)
     warned = any(issubclass(w.category, ConvergenceWarning) for w in caught)
@@ -202,7 +205,8 @@ def fit_candidate(y: np.ndarray, model: ModelOrder) -> CandidateFit:
         {"name": _param_name(str(name), model.trend), "value": float(value), "se": _finite_or_none(float(se))}
         for name, value, se in zip(result.param_names, np.asarray(result.params), bse)
     ]
-    params.append({"name": "sigma2", "value": float(result.scale), "se": None})
+    if concentrate:
+        params.append({"name": "sigma2", "value": float(result.scale), "se": None})
     return CandidateFit(
         model=model, loglik=float(result.llf), aic=float(result.aic), aicc=float(result.aicc),
         bic=float(result.bic), hqic=float(result.hqic), nobs=int(result.nobs_effective),

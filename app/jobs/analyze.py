@@ -1,0 +1,254 @@
+"""Analysis runs: the engine over every series that needs it, each result committed as it lands.
+
+The parent process is the database's only writer. Workers receive a series' values and return
+the engine's dict; the parent stores each result together with the run's progress in one
+transaction, so a run stopped at any moment (Ctrl-C, ``kill -9``, a power cut) loses at most the
+series in flight, and the next run picks those up because their analysis is still missing or
+stale.
+
+One run at a time per database: a run holds an OS lock on a file beside the database for as
+long as it lasts. The operating system drops the lock with the process that held it, so a run
+record still marked ``running`` while the lock is free was left by a run that died, and the next
+run closes it as ``interrupted``.
+"""
+
+from __future__ import annotations
+
+import fcntl
+import logging
+import os
+import threading
+import time
+from collections.abc import Callable, Iterator
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import sqlite_utils
+
+from app.core.errors import LagdeskError
+from app.core.identify import ENGINE_VERSION, EngineOptions
+from app.jobs.pool import default_workers, map_unordered
+from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
+from app.store.analyses import save_analysis, save_failure
+from app.store.database import open_database, write_transaction
+from app.store.runs import finish_run, get_run, list_runs, record_progress, start_run
+from app.store.series import load_series, series_fingerprint, series_ids_to_analyse
+
+LOCK_SUFFIX = "-analysis.lock"
+# How long a caller waits for the run record of a run that holds the lock but is still starting.
+STARTING_RUN_WAIT_S = 5.0
+_STARTING_RUN_POLL_S = 0.05
+
+log = logging.getLogger(__name__)
+
+# Within one process the OS lock cannot tell two threads apart (POSIX record locks belong to
+# the process), so starts are serialised here and the runs this process holds are kept by path.
+_start_guard = threading.Lock()
+_held: dict[Path, int] = {}
+
+
+class AnalysisInProgress(LagdeskError):
+    """Another analysis run on the same database has not finished yet."""
+
+    def __init__(self, db_path: Path, run_id: int | None) -> None:
+        self.run_id = run_id
+        which = f"run {run_id}" if run_id is not None else "a run that is starting"
+        super().__init__(f"{db_path}: another analysis ({which}) is in progress; wait for it to finish")
+
+
+@dataclass
+class RunProgress:
+    """Counts of a run so far (``done`` includes the ``failed`` series) and the failures'
+    problem dicts (``series_id``, ``message``)."""
+
+    run_id: int
+    total: int
+    done: int = 0
+    failed: int = 0
+    problems: list[dict] = field(default_factory=list)
+
+
+ProgressCallback = Callable[[RunProgress], None]
+
+
+@dataclass
+class AnalysisRun:
+    """A started run: its record exists, its lock is held, its series are chosen."""
+
+    db: sqlite_utils.Database
+    db_path: Path
+    lock_fd: int
+    run_id: int
+    series_ids: list[str]
+    workers: int
+    options: EngineOptions
+    _fingerprints: dict[str, str] = field(default_factory=dict)
+
+    def execute(self, on_progress: ProgressCallback | None = None) -> dict:
+        """Analyse the chosen series, committing each result; returns the closed run record.
+
+        Ctrl-C closes the run as ``interrupted`` and any other error as ``failed``; both are
+        raised again. Either way the results committed so far stay.
+        """
+        progress = RunProgress(self.run_id, len(self.series_ids))
+        try:
+            if on_progress:
+                on_progress(progress)
+            for outcome in map_unordered(identify_task, self._tasks(), self.workers):
+                self._commit(outcome, progress)
+                if on_progress:
+                    on_progress(progress)
+        except KeyboardInterrupt:
+            self._close("interrupted")
+            raise
+        except BaseException:
+            self._close("failed")
+            raise
+        return self._close("finished")
+
+    def _tasks(self) -> Iterator[SeriesTask]:
+        # Pulled lazily by the pool, in this thread. The fingerprint is read before the values:
+        # if an import lands in between, the result is stored under the older fingerprint and
+        # shows as stale, never as current for data it did not see.
+        for series_id in self.series_ids:
+            self._fingerprints[series_id] = series_fingerprint(self.db, series_id)
+            yield SeriesTask(series_id, load_series(self.db, series_id), None, self.options)
+
+    def _commit(self, outcome: SeriesOutcome, progress: RunProgress) -> None:
+        fingerprint = self._fingerprints.pop(outcome.series_id)
+        failed = outcome.problem is not None
+        with write_transaction(self.db):
+            if failed:
+                save_failure(self.db, outcome.series_id, fingerprint, outcome.problem["message"], self.run_id)
+            else:
+                save_analysis(self.db, outcome.series_id, fingerprint, outcome.result, self.run_id)
+            record_progress(self.db, self.run_id, progress.done + 1, progress.failed + int(failed))
+        progress.done += 1
+        if failed:
+            progress.failed += 1
+            progress.problems.append(outcome.problem)
+
+    def _close(self, state: str) -> dict:
+        try:
+            finish_run(self.db, self.run_id, state)
+            return get_run(self.db, self.run_id)
+        finally:
+            self.db.close()
+            _release(self.db_path, self.lock_fd)
+
+
+def begin_analysis(
+    db_path: str | Path, *, workers: int, everything: bool = False, options: EngineOptions = EngineOptions()
+) -> AnalysisRun:
+    """Take the database's run lock, close runs left by dead processes, choose the series
+    (missing or stale analysis, or all with ``everything``) and record the start of a run.
+
+    Raises
+    ------
+    AnalysisInProgress
+        When another run on this database is still going (``.run_id`` names it).
+    LagdeskError
+        When ``workers`` is below 1 or the database cannot be opened.
+    """
+    if workers < 1:
+        raise LagdeskError(f"workers ({workers}) must be at least 1")
+    path = Path(db_path).resolve()
+    with _start_guard:
+        if path in _held:
+            raise AnalysisInProgress(path, _held[path])
+        db = open_database(path)
+        try:
+            lock_fd = _acquire(path)
+            if lock_fd is None:
+                raise AnalysisInProgress(path, _running_run_id(db))
+            try:
+                for run in list_runs(db):
+                    if run["state"] == "running":
+                        finish_run(db, run["run_id"], "interrupted")
+                series_ids = series_ids_to_analyse(db, everything)
+                settings = {"workers": workers, "everything": everything, "options": asdict(options)}
+                run_id = start_run(db, settings, len(series_ids), ENGINE_VERSION)
+            except BaseException:
+                _release_fd(lock_fd)
+                raise
+        except BaseException:
+            db.close()
+            raise
+        _held[path] = run_id
+    return AnalysisRun(db, path, lock_fd, run_id, series_ids, workers, options)
+
+
+def run_analysis(
+    db_path: str | Path,
+    *,
+    workers: int,
+    everything: bool = False,
+    options: EngineOptions = EngineOptions(),
+    on_progress: ProgressCallback | None = None,
+) -> dict:
+    """Analyse every series whose analysis is missing or stale (or all), in this thread.
+
+    Returns the run record (:func:`app.store.runs.get_run`) once the run is closed.
+    ``on_progress`` is called once the series are chosen and after every committed result.
+    """
+    run = begin_analysis(db_path, workers=workers, everything=everything, options=options)
+    return run.execute(on_progress)
+
+
+def start_background_analysis(db_path: str | Path, workers: int | None = None) -> int:
+    """Start a run of the missing and stale series in a background thread; returns its id at once.
+
+    The progress is read from the database (:func:`app.store.runs.get_run`). When a run on this
+    database is already going, in this process or another, its id is returned instead.
+    """
+    try:
+        run = begin_analysis(db_path, workers=workers or default_workers())
+    except AnalysisInProgress as busy:
+        if busy.run_id is None:
+            raise
+        return busy.run_id
+    threading.Thread(target=_execute_logged, args=(run,), name=f"lagdesk-run-{run.run_id}", daemon=True).start()
+    return run.run_id
+
+
+def _execute_logged(run: AnalysisRun) -> None:
+    try:
+        run.execute()
+    except Exception:
+        log.exception("analysis run %s failed", run.run_id)
+
+
+def _running_run_id(db: sqlite_utils.Database) -> int | None:
+    """The id of the run that holds the lock; it may still be writing its record."""
+    deadline = time.monotonic() + STARTING_RUN_WAIT_S
+    while True:
+        running = [run["run_id"] for run in list_runs(db, limit=1) if run["state"] == "running"]
+        if running or time.monotonic() >= deadline:
+            return running[0] if running else None
+        time.sleep(_STARTING_RUN_POLL_S)
+
+
+def _acquire(path: Path) -> int | None:
+    """Lock the run-lock file beside the database; None when another process holds it.
+
+    A POSIX record lock (``lockf``) rather than ``flock``: it is not inherited by the pool's
+    forked workers, so a worker orphaned by a killed run cannot keep the database locked.
+    """
+    fd = os.open(f"{path}{LOCK_SUFFIX}", os.O_RDWR | os.O_CREAT, 0o644)
+    try:
+        fcntl.lockf(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        return None
+    return fd
+
+
+def _release_fd(fd: int) -> None:
+    fcntl.lockf(fd, fcntl.LOCK_UN)
+    os.close(fd)
+
+
+def _release(path: Path, fd: int) -> None:
+    with _start_guard:
+        _held.pop(path, None)
+        _release_fd(fd)
