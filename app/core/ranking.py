@@ -3,8 +3,9 @@
 Ranking (measured on the seeded accuracy batch, see tests/core/test_accuracy.py and README):
 
 1. candidates whose residuals clearly fail the Ljung-Box test (p below
-   :data:`DEMOTION_LEVEL`), or whose optimiser did not converge, are demoted below every
-   candidate that passes (a p-value between 1% and 5% is flagged but not demoted: the true model
+   :data:`DEMOTION_LEVEL`), whose optimiser did not converge, or whose AR and MA roots nearly
+   cancel (an over-specified order; no change on the batch, but it keeps such fits of real
+   series such as log lynx from leading), are demoted below every candidate that passes (a p-value between 1% and 5% is flagged but not demoted: the true model
    fails a 5% test one time in twenty, and demoting it cost exact hits on the batch);
 2. the rest are ordered by their *rank score*: the selection criterion
    (:data:`DEFAULT_CRITERION`, BIC) minus :data:`PATTERN_BONUS` for every independent reading
@@ -59,9 +60,9 @@ def criterion_value(fit: CandidateFit, criterion: str) -> float:
 
 
 def is_demoted(fit: CandidateFit) -> bool:
-    """Clearly failing residual tests or a fit that did not converge rank below the rest."""
+    """Clearly failing residual tests, no convergence or nearly cancelling roots rank below the rest."""
     clear_failure = fit.ljung_box_p is not None and math.isfinite(fit.ljung_box_p) and fit.ljung_box_p < DEMOTION_LEVEL
-    return clear_failure or not fit.converged
+    return clear_failure or not fit.converged or "redundant_roots" in fit.flags
 
 
 def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
