@@ -15,7 +15,7 @@ $(STAMP): pyproject.toml
 setup: $(STAMP)
 
 demo: $(STAMP)
-	$(BIN)/lagdesk identify demo_data/portfolio.csv
+	$(BIN)/lagdesk demo
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -m "slow or not slow"

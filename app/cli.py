@@ -5,26 +5,45 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
+import threading
+import webbrowser
 from collections.abc import Sequence
 from contextlib import closing
 from pathlib import Path
 
+from app.config import Settings
 from app.core.errors import LagdeskError
 from app.core.fitting import MAX_ORDER
 from app.core.identify import AUTO_PERIOD, EngineOptions
 from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, read_portfolio
 from app.jobs.analyze import RunProgress, run_analysis
 from app.jobs.demo import build_demo_database
-from app.jobs.pool import default_workers, map_unordered
+from app.jobs.pool import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 from app.jobs.work import SeriesTask, identify_task
 from app.store.database import open_database, resolve_db_path
 from app.store.imports import ImportReport, import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
+from app.web.server import run_server
 
 EXIT_INPUT_ERROR = 2
+DEFAULT_HOST = "127.0.0.1"
+DEFAULT_PORT = 8000
+BROWSER_DELAY_SECONDS = 1.5
+
+
+def open_browser_later(url: str) -> None:
+    """Open the dashboard in a browser once the server is up, when this machine has a desktop.
+
+    Without a display (a server, a container) nothing is opened: a text-mode browser started
+    in the same terminal would take it over. The URL is printed either way.
+    """
+    desktop = sys.platform in ("darwin", "win32") or os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")
+    if desktop:
+        threading.Timer(BROWSER_DELAY_SECONDS, webbrowser.open, args=(url,)).start()
 
 
 def _add_file_options(parser: argparse.ArgumentParser) -> None:
@@ -37,6 +56,21 @@ def _add_file_options(parser: argparse.ArgumentParser) -> None:
 
 def _add_workers(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--workers", type=int, default=default_workers(), help="worker processes (default: CPU count)")
+
+
+def _add_executor(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--executor", choices=EXECUTORS, default="local",
+        help="local: a process pool on this machine (default); dask: a Dask cluster (needs lagdesk[dask])",
+    )
+    parser.add_argument(
+        "--scheduler", metavar="tcp://HOST:PORT",
+        help="with --executor dask: address of a running Dask scheduler (default: start a local cluster of --workers processes)",
+    )
+
+
+def executor_choice(args: argparse.Namespace) -> ExecutorChoice:
+    return ExecutorChoice(args.executor, args.scheduler)
 
 
 def _add_db(parser: argparse.ArgumentParser) -> None:
@@ -77,6 +111,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_period(identify)
     identify.add_argument("--json", action="store_true", help="print the full results as JSON on stdout")
     _add_workers(identify)
+    _add_executor(identify)
     identify.set_defaults(handler=run_identify)
 
     load = commands.add_parser("import", help="import (or update) the series of a CSV file into the database")
@@ -87,6 +122,7 @@ def build_parser() -> argparse.ArgumentParser:
     analyze = commands.add_parser("analyze", help="analyse every series whose analysis is missing or out of date")
     _add_db(analyze)
     _add_workers(analyze)
+    _add_executor(analyze)
     analyze.add_argument("--all", action="store_true", help="analyse every series again, current or not")
     _add_period(analyze)
     analyze.set_defaults(handler=run_analyze)
@@ -96,11 +132,37 @@ def build_parser() -> argparse.ArgumentParser:
     status.add_argument("--json", action="store_true", help="print the counts as JSON on stdout")
     status.set_defaults(handler=run_status)
 
-    demo = commands.add_parser("demo", help="build (or reuse) a database of the invented demo portfolio, analysed")
+    demo = commands.add_parser("demo", help="build (or reuse) the analysed demo portfolio and open the dashboard on it")
     _add_db(demo)
     _add_workers(demo)
+    _add_server_options(demo)
+    demo.add_argument("--build-only", action="store_true", help="build the database and exit without serving")
     demo.set_defaults(handler=run_demo)
+
+    serve = commands.add_parser("serve", help="serve the review dashboard")
+    _add_db(serve)
+    _add_server_options(serve)
+    serve.set_defaults(handler=run_serve)
     return parser
+
+
+def _add_server_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--host", default=DEFAULT_HOST, help=f"interface to listen on (default {DEFAULT_HOST}: this machine only)")
+    parser.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"TCP port (default {DEFAULT_PORT})")
+    parser.add_argument("--no-browser", action="store_true", help="do not try to open a browser")
+
+
+def _serve(db_path: Path, args: argparse.Namespace) -> int:
+    settings = Settings(db_path=db_path, host=args.host, port=args.port)
+    print(f"Lagdesk dashboard on {settings.url} (database {db_path}); Ctrl-C stops it.", flush=True)
+    if not args.no_browser:
+        open_browser_later(settings.url)
+    run_server(settings)
+    return 0
+
+
+def run_serve(args: argparse.Namespace) -> int:
+    return _serve(resolve_db_path(args.db), args)
 
 
 def run_identify(args: argparse.Namespace) -> int:
@@ -112,7 +174,7 @@ def run_identify(args: argparse.Namespace) -> int:
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
-    for outcome in map_unordered(identify_task, tasks, args.workers):
+    for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
         outcomes[outcome.series_id] = outcome
         progress.advance(failed=outcome.problem is not None)
     progress.close()
@@ -148,7 +210,10 @@ def run_analyze(args: argparse.Namespace) -> int:
     path = _existing_db(args.db)
     shown = RunProgressLine("analyze")
     try:
-        run = run_analysis(path, workers=args.workers, everything=args.all, options=EngineOptions(period=args.period), on_progress=shown)
+        run = run_analysis(
+            path, workers=args.workers, everything=args.all, options=EngineOptions(period=args.period),
+            executor=executor_choice(args), on_progress=shown,
+        )
     except KeyboardInterrupt:
         shown.close()
         print("lagdesk analyze: interrupted; the series finished so far are kept, run it again to resume", file=sys.stderr)
@@ -231,11 +296,12 @@ def run_demo(args: argparse.Namespace) -> int:
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(demo_next_steps(path, status))
-    return 0
+    return 0 if args.build_only else _serve(path, args)
 
 
 def demo_next_steps(db_path: Path, status: dict) -> str:
     steps = [
+        (f"lagdesk serve --db {db_path}", "review it in the browser (the demo does this now)"),
         (f"lagdesk status --db {db_path}", "what the portfolio holds"),
         ("lagdesk import YOUR.csv --db my.db", "bring in your own series (series_id,timestamp,value)"),
         ("lagdesk analyze --db my.db", "and analyse them"),

@@ -321,7 +321,7 @@ def test_demo_builds_an_analysed_database_and_reuses_it(run_cli, tmp_path):
     # Every series of the file but those too short or constant for the engine (rejected at import).
     stored = [s for s in read_portfolio(DEMO_PORTFOLIO).series if _preparable(s)]
 
-    code, out, _ = run_cli("demo", "--db", db, "--workers", 2)
+    code, out, _ = run_cli("demo", "--db", db, "--workers", 2, "--build-only")
 
     assert code == 0
     assert f"Demo portfolio ready in {db}" in out and f"lagdesk status --db {db}" in out
@@ -331,7 +331,7 @@ def test_demo_builds_an_analysed_database_and_reuses_it(run_cli, tmp_path):
         assert {i: m for i, m in failures.items() if m is not None} == {}
         assert status["series"] == status["analysed"] == len(stored)
         first = latest_run(handle)["run_id"]
-    code, out, _ = run_cli("demo", "--db", db, "--workers", 2)
+    code, out, _ = run_cli("demo", "--db", db, "--workers", 2, "--build-only")
     assert code == 0
     with open_database(db) as handle:
         again = latest_run(handle)

@@ -210,17 +210,25 @@ class _Search:
     trend: str
     options: EngineOptions
     fitted: dict[Orders, CandidateFit] = field(default_factory=dict)
+    failed: list[str] = field(default_factory=list)
+    failed_keys: set[Orders] = field(default_factory=set)
 
     def fit(self, orders: dict[Orders, list[str]]) -> None:
         for key, sources in sorted(orders.items()):
-            if key in self.fitted:
+            if key in self.fitted or key in self.failed_keys:
                 continue
             p, q, P, Q = key
             model = ModelOrder((p, self.d, q), (P, self.D, Q, self.period) if self.period else (0, 0, 0, 0), self.trend)
             usable = self.y.size - model.lost_to_differencing
             if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
                 continue
-            fit = fit_candidate(self.y, model)
+            try:
+                fit = fit_candidate(self.y, model)
+            except (np.linalg.LinAlgError, ValueError) as exc:
+                # One order the optimiser cannot handle costs that candidate only.
+                self.failed.append(f"{model.label()} could not be fitted ({type(exc).__name__}: {exc})")
+                self.failed_keys.add(key)
+                continue
             fit.source = list(sources)
             self.fitted[key] = fit
 
@@ -245,7 +253,9 @@ def _key(fit: CandidateFit) -> Orders:
     return (p, q, P, Q)
 
 
-def search_candidates(y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: DifferencingDecision, options: EngineOptions):
+def search_candidates(
+    series_id: str, y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: DifferencingDecision, options: EngineOptions
+):
     """Read the correlograms of the differenced series, propose orders and fit them."""
     D = seasonal.D
     w = seasonal_difference(y, seasonal.examined, D)
@@ -271,16 +281,20 @@ def search_candidates(y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: 
         lead_pq = max(reading.proposals, key=lambda pq: (len(reading.proposals[pq]), -sum(pq)))
         seasonal_all = with_neighbours(seasonal_props, options.max_P, options.max_Q)
         search.fit({(*lead_pq, P, Q): reading.proposals[lead_pq] + seasonal_all[(P, Q)] for P, Q in seasonal_all})
-        best_PQ = _key(search.leader())[2:]
+        best_PQ = _key(search.leader())[2:] if search.fitted else (0, 0)
         search.fit({(p, q, *best_PQ): src + seasonal_all.get(best_PQ, []) for (p, q), src in nonseasonal.items()})
     else:
         search.fit({(p, q, 0, 0): src for (p, q), src in nonseasonal.items()})
-    for _ in range(LOCAL_SEARCH_ROUNDS):
-        fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if k not in search.fitted}
+    for _ in range(LOCAL_SEARCH_ROUNDS if search.fitted else 0):
+        fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if k not in search.fitted and k not in search.failed_keys}
         if not fresh:
             break
         search.fit(fresh)
-    return list(search.fitted.values()), cg, w, words
+    if not search.fitted:
+        raise SeriesProblem(
+            series_id, "no candidate model could be fitted: " + "; ".join(search.failed[:3]), flag="no_fit"
+        )
+    return list(search.fitted.values()), cg, w, words + search.failed
 
 
 def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
@@ -296,7 +310,7 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
     groups, shown = {}, {}
     for d in ds:
-        fits, cg, w, words = search_candidates(y, d, seasonal, decision, options)
+        fits, cg, w, words = search_candidates(prepared.series_id, y, d, seasonal, decision, options)
         if d != decision.d:
             for f in fits:
                 f.source = f.source + ["alternative d"]
