@@ -218,7 +218,8 @@ class _Search:
             if key in self.fitted or key in self.failed_keys:
                 continue
             p, q, P, Q = key
-            model = ModelOrder((p, self.d, q), (P, self.D, Q, self.period) if self.period else (0, 0, 0, 0), self.trend)
+            seasonal = (P, self.D, Q, self.period) if self.period and (P or Q or self.D) else (0, 0, 0, 0)
+            model = ModelOrder((p, self.d, q), seasonal, self.trend)
             usable = self.y.size - model.lost_to_differencing
             if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
                 continue

@@ -1,0 +1,62 @@
+"""Settings of one Lagdesk server, built by the command line (or a test) and handed to the app.
+
+This module imports nothing else from :mod:`app`, so every layer can read settings without
+pulling in the rest.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+MEBIBYTE = 1024 * 1024
+
+
+@dataclass(frozen=True)
+class Settings:
+    """What a ``lagdesk serve`` process needs to know.
+
+    Attributes
+    ----------
+    db_path : Path
+        The portfolio database file (created on first use).
+    host : str
+        Interface the server listens on; the loopback address keeps the dashboard private to
+        this machine.
+    port : int
+        TCP port of the server.
+    max_upload_bytes : int
+        Largest portfolio file the upload page accepts; a bigger one is refused with 413
+        before it is read.
+    page_size : int
+        Series per page of the queue when the request does not say.
+    max_page_size : int
+        Largest page a request may ask for (``limit`` of ``/api/series``).
+    analysis_workers : int or None
+        Worker processes of an analysis run started from the dashboard; None for one per CPU.
+    """
+
+    db_path: Path
+    host: str = "127.0.0.1"
+    port: int = 8000
+    max_upload_bytes: int = 200 * MEBIBYTE
+    page_size: int = 50
+    max_page_size: int = 500
+    analysis_workers: int | None = None
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "db_path", Path(self.db_path))
+        if not 0 <= self.port <= 65535:
+            raise ValueError(f"port ({self.port}) must be between 0 and 65535")
+        if self.max_upload_bytes <= 0:
+            raise ValueError(f"max_upload_bytes ({self.max_upload_bytes}) must be > 0")
+        if self.analysis_workers is not None and self.analysis_workers < 1:
+            raise ValueError(f"analysis_workers ({self.analysis_workers}) must be at least 1")
+        if not 1 <= self.page_size <= self.max_page_size:
+            raise ValueError(f"page_size ({self.page_size}) must be between 1 and max_page_size ({self.max_page_size})")
+
+    @property
+    def url(self) -> str:
+        """The address a browser on this machine opens."""
+        host = "127.0.0.1" if self.host in ("0.0.0.0", "") else self.host
+        return f"http://{host}:{self.port}/"

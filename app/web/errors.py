@@ -1,0 +1,55 @@
+"""How errors reach the user: JSON under ``/api/``, a page everywhere else.
+
+Every failure a user can cause is a :class:`~app.core.errors.LagdeskError` with a message that
+names what is wrong; the handlers give each kind its status code.
+"""
+
+from __future__ import annotations
+
+from fastapi import FastAPI, Request
+from fastapi.responses import JSONResponse, Response
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from app.core.errors import InputFileError, LagdeskError
+from app.jobs.analyze import AnalysisInProgress
+from app.store.database import UnknownSeries
+from app.store.verdicts import StaleVersion
+from app.web.templating import templates
+from app.web.uploads import UploadTooLarge
+
+API_PREFIX = "/api/"
+
+
+def status_of(exc: LagdeskError) -> int:
+    """404 unknown series, 409 stale verdict or busy analysis, 400 unusable file, 413 file too large, 422 otherwise."""
+    if isinstance(exc, UnknownSeries):
+        return 404
+    if isinstance(exc, (StaleVersion, AnalysisInProgress)):
+        return 409
+    if isinstance(exc, InputFileError):
+        return 400
+    if isinstance(exc, UploadTooLarge):
+        return 413
+    return 422
+
+
+def error_response(request: Request, status: int, message: str, extra: dict | None = None) -> Response:
+    if request.url.path.startswith(API_PREFIX):
+        return JSONResponse({"detail": message, **(extra or {})}, status_code=status)
+    return templates.TemplateResponse(
+        request=request, name="error.html", context={"status": status, "message": message}, status_code=status
+    )
+
+
+async def _lagdesk_error(request: Request, exc: LagdeskError) -> Response:
+    extra = {"verdict": exc.current} if isinstance(exc, StaleVersion) else None
+    return error_response(request, status_of(exc), str(exc), extra)
+
+
+async def _http_error(request: Request, exc: StarletteHTTPException) -> Response:
+    return error_response(request, exc.status_code, str(exc.detail))
+
+
+def install_error_handlers(app: FastAPI) -> None:
+    app.add_exception_handler(LagdeskError, _lagdesk_error)
+    app.add_exception_handler(StarletteHTTPException, _http_error)

@@ -1,0 +1,23 @@
+"""The dashboard application: ``create_app(settings)`` builds it; tests build it the same way."""
+
+from __future__ import annotations
+
+from fastapi import FastAPI
+from fastapi.staticfiles import StaticFiles
+
+from app import __version__
+from app.config import Settings
+from app.web.errors import install_error_handlers
+from app.web.routes import api, pages
+from app.web.templating import STATIC_DIR
+
+
+def create_app(settings: Settings) -> FastAPI:
+    """The FastAPI app serving the pages, the JSON API and the static files for ``settings``."""
+    app = FastAPI(title="Lagdesk", version=__version__, summary="Review ARIMA orders for a portfolio of series")
+    app.state.settings = settings
+    app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+    app.include_router(pages.router)
+    app.include_router(api.router)
+    install_error_handlers(app)
+    return app

@@ -1,0 +1,225 @@
+"""The JSON API: the data of every page, for scripts (schema at ``/openapi.json``, docs at ``/docs``).
+
+Errors come back as ``{"detail": message}``: 404 for an unknown series or run, 409 (with the
+current ``verdict``) when a verdict names a version that is no longer current, 422 for an
+impossible order or a bad value, 400 for an unusable file, 413 for a file over the limit.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Annotated, Literal
+
+import sqlite_utils
+from fastapi import APIRouter, Depends, Form, HTTPException, Query, UploadFile
+from pydantic import BaseModel, Field
+
+from app.config import Settings
+from app.core.errors import LagdeskError
+from app.jobs.analyze import start_background_analysis
+from app.store.analyses import analysis_record, load_analysis
+from app.store.runs import get_run, latest_run, list_runs
+from app.store.series import count_by, list_series
+from app.store.status import portfolio_status
+from app.store.verdicts import get_verdict, verdict_history
+from app.web.decisions import decide, fit_order
+from app.web.deps import clean_reviewer, get_db, get_settings
+from app.web.queue import QueueFilter, approve_firm
+from app.web.uploads import UploadOptions, import_upload
+
+router = APIRouter(prefix="/api", tags=["api"])
+
+Db = Annotated[sqlite_utils.Database, Depends(get_db)]
+Config = Annotated[Settings, Depends(get_settings)]
+Order = Annotated[list[int], Field(min_length=3, max_length=3, description="[p, d, q]")]
+SeasonalOrder = Annotated[list[int], Field(min_length=4, max_length=4, description="[P, D, Q, s]; s = 0 for no season")]
+
+
+def finite(value):
+    """The value with every NaN or infinite float replaced by None (JSON has no NaN)."""
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: finite(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [finite(v) for v in value]
+    return value
+
+
+class Suggested(BaseModel):
+    order: list[int] | None
+    seasonal_order: list[int] | None
+
+
+class SeriesItem(BaseModel):
+    series_id: str
+    n: int | None
+    freq: str | None
+    status: str
+    confidence: str | None
+    suggested: Suggested
+    chosen: Suggested
+    flags: list[str]
+    reviewer: str
+    analysis_state: str
+    attention: float
+    recheck_reason: str | None
+
+
+class SeriesList(BaseModel):
+    total: int = Field(description="how many series pass the filters (all pages)")
+    limit: int
+    offset: int
+    items: list[SeriesItem]
+
+
+class Verdict(BaseModel):
+    status: str
+    order: list[int] | None
+    seasonal_order: list[int] | None
+    transform: str | dict
+    note: str
+    reviewer: str
+    version: int
+    decided_at: str | None
+    recheck_reason: str | None
+
+
+class VerdictIn(BaseModel):
+    status: Literal["approved", "overridden", "parked"]
+    order: Order | None = Field(None, description="needed for 'overridden'; 'approved' takes the suggestion")
+    seasonal_order: SeasonalOrder | None = None
+    note: str = ""
+    reviewer: str = ""
+    version: int = Field(description="the verdict version the decision was based on")
+
+
+class FitIn(BaseModel):
+    order: Order
+    seasonal_order: SeasonalOrder = [0, 0, 0, 0]
+
+
+class BulkApprovalIn(BaseModel):
+    reviewer: str
+    note: str = ""
+
+
+class BulkApproval(BaseModel):
+    count: int
+    approved: list[str]
+
+
+class Run(BaseModel):
+    run_id: int
+    started_at: str
+    updated_at: str | None = None
+    finished_at: str | None
+    engine_version: str
+    settings: dict
+    total: int
+    done: int
+    failed: int
+    state: str
+    duration_s: float | None
+
+
+class RunStarted(BaseModel):
+    run_id: int
+
+
+def filter_params(
+    status: str | None = None, confidence: str | None = None, flag: str | None = None, q: str | None = None,
+    sort: str = "attention", descending: bool = False,
+) -> QueueFilter:
+    """The queue filter from query parameters (``sort``: attention, series_id, n, order,
+    confidence, status or reviewer)."""
+    return QueueFilter(status=status, confidence=confidence, flag=flag, q=q, sort=sort, descending=descending)
+
+
+Filter = Annotated[QueueFilter, Depends(filter_params)]
+
+
+@router.get("/series", response_model=SeriesList)
+def series_list(db: Db, settings: Config, flt: Filter, limit: Annotated[int | None, Query(ge=0)] = None,
+                offset: Annotated[int, Query(ge=0)] = 0) -> dict:
+    """One page of the portfolio, filtered and sorted as the queue shows it."""
+    limit = settings.page_size if limit is None else min(limit, settings.max_page_size)
+    total, items = list_series(db, limit=limit, offset=offset, **flt.store_kwargs())
+    return {"total": total, "limit": limit, "offset": offset, "items": items}
+
+
+@router.post("/series/{series_id:path}/verdict", response_model=Verdict)
+def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
+    """Record a decision; refused with 409 (and the current verdict) when ``version`` is not current."""
+    return decide(
+        db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
+        note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
+    )
+
+
+@router.post("/series/{series_id:path}/fit")
+def series_fit(db: Db, series_id: str, body: FitIn) -> dict:
+    """Fit an order to the stored series now (nothing is saved): the candidate statistics, its
+    residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same d."""
+    return finite(fit_order(db, series_id, body.order, body.seasonal_order))
+
+
+@router.get("/series/{series_id:path}")
+def series_detail(db: Db, series_id: str) -> dict:
+    """The stored analysis of a series with its verdict and history (oldest first)."""
+    verdict = get_verdict(db, series_id)
+    record = analysis_record(db, series_id)
+    return finite({
+        "series_id": series_id,
+        **(load_analysis(db, series_id) or {}),
+        "analysis_state": record["state"],
+        "analysis_message": record["message"],
+        "verdict": verdict,
+        "history": verdict_history(db, series_id),
+    })
+
+
+@router.get("/portfolio")
+def portfolio(db: Db) -> dict:
+    """Counts by confidence and status, and how many series are analysed, stale or failed."""
+    return {"counts": count_by(db), **portfolio_status(db)}
+
+
+@router.post("/approve-firm", response_model=BulkApproval)
+def bulk_approve(db: Db, flt: Filter, body: BulkApprovalIn) -> dict:
+    """Approve the suggestion of every pending series with a firm, current analysis in the filter."""
+    reviewer = clean_reviewer(body.reviewer)
+    if not reviewer:
+        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    approved = approve_firm(db, flt, reviewer, body.note)
+    return {"count": len(approved), "approved": approved}
+
+
+@router.post("/imports")
+def imports(db: Db, settings: Config, file: UploadFile, options: Annotated[UploadOptions, Form()]) -> dict:
+    """Import a CSV portfolio (multipart upload); the import report."""
+    return import_upload(db, file, options, settings.max_upload_bytes).to_dict()
+
+
+@router.get("/runs", response_model=list[Run])
+def runs(db: Db, limit: Annotated[int, Query(ge=1, le=500)] = 50) -> list[dict]:
+    return list_runs(db, limit)
+
+
+@router.get("/runs/latest", response_model=Run | None)
+def runs_latest(db: Db) -> dict | None:
+    return latest_run(db)
+
+
+@router.get("/runs/{run_id}", response_model=Run)
+def run_detail(db: Db, run_id: int) -> dict:
+    try:
+        return get_run(db, run_id)
+    except LagdeskError as exc:
+        raise HTTPException(status_code=404, detail=str(exc)) from None
+
+
+@router.post("/runs", response_model=RunStarted, status_code=202)
+def run_start(settings: Config) -> dict:
+    """Start analysing every series whose analysis is missing or stale; poll ``/api/runs/{run_id}``."""
+    return {"run_id": start_background_analysis(settings.db_path, workers=settings.analysis_workers)}

@@ -1,0 +1,201 @@
+"""The HTML pages: queue, series review, bulk approval, upload, runs.
+
+Each view asks the store (through :mod:`app.web.queue`, :mod:`app.web.review`,
+:mod:`app.web.decisions`) for a plain dict and hands it to a template. Every form is a plain
+POST answered by a redirect (or by the page again with a message), so the pages work without
+JavaScript; the scripts add keyboard shortcuts, the charts and in-place fitting.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import sqlite_utils
+from fastapi import APIRouter, Depends, Form, HTTPException, Query, Request, UploadFile
+from fastapi.responses import FileResponse, RedirectResponse, Response
+
+from app.config import Settings
+from app.core.errors import LagdeskError
+from app.jobs.analyze import start_background_analysis
+from app.store.analyses import load_analysis
+from app.store.database import UnknownSeries
+from app.store.runs import get_run, list_runs
+from app.store.series import series_neighbours
+from app.store.verdicts import get_verdict
+from app.web.charts import PLOTLY_JS
+from app.web.decisions import decide, fit_order
+from app.web.deps import REVIEWER_COOKIE, clean_reviewer, get_db, get_settings
+from app.web.errors import status_of
+from app.web.forms import DecisionForm
+from app.web.queue import QueueFilter, approve_firm, firm_pending_ids, queue_page
+from app.web.review import FormState, custom_fit_view, review_page
+from app.web.templating import quote_path, templates
+from app.web.uploads import UploadOptions, import_upload
+
+router = APIRouter()
+
+Db = Annotated[sqlite_utils.Database, Depends(get_db)]
+Config = Annotated[Settings, Depends(get_settings)]
+COOKIE_MAX_AGE_S = 365 * 24 * 3600
+BULK_PREVIEW = 12
+VENDOR_MAX_AGE_S = 7 * 24 * 3600
+NAME_NEEDED = "Give your name once (this browser remembers it); it is stored with each verdict."
+
+
+def render(request: Request, name: str, context: dict, status_code: int = 200) -> Response:
+    return templates.TemplateResponse(request=request, name=name, context=context, status_code=status_code)
+
+
+def queue_filter(request: Request) -> QueueFilter:
+    return QueueFilter.from_params(request.query_params)
+
+
+Filter = Annotated[QueueFilter, Depends(queue_filter)]
+
+
+def remember_reviewer(response: Response, reviewer: str) -> Response:
+    response.set_cookie(REVIEWER_COOKIE, reviewer, max_age=COOKIE_MAX_AGE_S, httponly=True, samesite="lax")
+    return response
+
+
+def with_query(url: str, query: str) -> str:
+    return f"{url}?{query}" if query else url
+
+
+@router.get("/", name="queue")
+def queue(request: Request, db: Db, settings: Config, flt: Filter,
+          offset: Annotated[int, Query(ge=0)] = 0, approved: int | None = None) -> Response:
+    page = queue_page(db, flt, offset, settings.page_size)
+    return render(request, "queue.html", {**page, "approved_count": approved})
+
+
+@router.get("/series/{series_id:path}", name="review")
+def review(request: Request, db: Db, flt: Filter, series_id: str,
+           candidate: str | None = None, saved: str | None = None) -> Response:
+    page = review_page(db, series_id, flt, selected=candidate)
+    return render(request, "review.html", {**page, "saved": saved})
+
+
+def _redraw(request: Request, db: sqlite_utils.Database, series_id: str, flt: QueueFilter, data: DecisionForm,
+            status: int, error: str | None = None, custom_fit: dict | None = None) -> Response:
+    """The review page again, keeping what the reviewer typed, with an error or a custom fit."""
+    form = FormState(
+        choice="custom" if custom_fit or data.action == "fit" else data.choice,
+        custom=data.custom_fields(), note=data.note, reviewer=clean_reviewer(data.reviewer), error=error,
+        custom_fit=custom_fit,
+    )
+    page = review_page(db, series_id, flt, selected="custom" if custom_fit else None, form=form)
+    return render(request, "review.html", {**page, "saved": None}, status_code=status)
+
+
+@router.post("/series/{series_id:path}/verdict", name="save_verdict")
+def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
+                 data: Annotated[DecisionForm, Form()]) -> Response:
+    get_verdict(db, series_id)  # an unknown series is a 404 page, not a form error
+    reviewer = clean_reviewer(data.reviewer)
+    if not reviewer:
+        return _redraw(request, db, series_id, flt, data, 422, NAME_NEEDED)
+    # The next series is found before saving: the saved one may leave the filter.
+    next_id = series_neighbours(db, series_id, **flt.store_kwargs())[1]
+    try:
+        status, order, seasonal = data.decision(load_analysis(db, series_id))
+        decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
+               reviewer=reviewer, version=data.version)
+    except LagdeskError as exc:
+        return _redraw(request, db, series_id, flt, data, status_of(exc), str(exc))
+    url = with_query(request.app.url_path_for("review", series_id=quote_path(next_id or series_id)), flt.query(saved=series_id))
+    return remember_reviewer(RedirectResponse(url, status_code=303), reviewer)
+
+
+@router.post("/series/{series_id:path}/fit", name="fit_custom")
+def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
+               data: Annotated[DecisionForm, Form()]) -> Response:
+    """Fit the typed custom order and show it (in place with JavaScript, as a page without)."""
+    try:
+        order, seasonal = data.custom_order()
+        fit = custom_fit_view(db, series_id, fit_order(db, series_id, order, seasonal))
+    except UnknownSeries:
+        raise
+    except LagdeskError as exc:
+        if data.fragment:
+            return render(request, "_fit_error.html", {"message": str(exc)}, status_code=status_of(exc))
+        return _redraw(request, db, series_id, flt, data, status_of(exc), str(exc))
+    if data.fragment:
+        return render(request, "_candidate_detail.html", {"candidate": fit, "hidden": False})
+    return _redraw(request, db, series_id, flt, data, 200, custom_fit=fit)
+
+
+@router.get("/approve-firm", name="approve_firm_confirm")
+def approve_firm_confirm(request: Request, db: Db, flt: Filter) -> Response:
+    ids = firm_pending_ids(db, flt)
+    return render(request, "approve_firm.html", {"filter": flt, "count": len(ids), "preview": ids[:BULK_PREVIEW], "error": None})
+
+
+@router.post("/approve-firm", name="approve_firm_save")
+def approve_firm_save(request: Request, db: Db, flt: Filter, expected: Annotated[int, Form()],
+                      reviewer: Annotated[str, Form()] = "", note: Annotated[str, Form()] = "") -> Response:
+    name = clean_reviewer(reviewer)
+    ids = firm_pending_ids(db, flt)
+    if not name or len(ids) != expected:
+        message = NAME_NEEDED if not name else (
+            f"The filter now holds {len(ids)} pending firm series, not the {expected} you confirmed; check again."
+        )
+        context = {"filter": flt, "count": len(ids), "preview": ids[:BULK_PREVIEW], "error": message}
+        return render(request, "approve_firm.html", context, status_code=422 if not name else 409)
+    approved = approve_firm(db, flt, name, note)
+    url = with_query(request.app.url_path_for("queue"), flt.query(approved=len(approved)))
+    return remember_reviewer(RedirectResponse(url, status_code=303), name)
+
+
+@router.get("/upload", name="upload")
+def upload_form(request: Request) -> Response:
+    return render(request, "upload.html", {"options": UploadOptions(), "report": None, "error": None})
+
+
+@router.post("/upload", name="upload_save")
+def upload_save(request: Request, db: Db, settings: Config, file: UploadFile,
+                options: Annotated[UploadOptions, Form()]) -> Response:
+    try:
+        report = import_upload(db, file, options, settings.max_upload_bytes)
+    except LagdeskError as exc:
+        context = {"options": options, "report": None, "error": str(exc)}
+        return render(request, "upload.html", context, status_code=status_of(exc))
+    return render(request, "upload.html", {"options": options, "report": report, "error": None})
+
+
+@router.post("/runs", name="start_run")
+def start_run(request: Request, settings: Config) -> Response:
+    run_id = start_background_analysis(settings.db_path, workers=settings.analysis_workers)
+    return RedirectResponse(request.app.url_path_for("run_progress", run_id=run_id), status_code=303)
+
+
+@router.get("/runs", name="runs")
+def runs(request: Request, db: Db) -> Response:
+    return render(request, "runs.html", {"runs": list_runs(db)})
+
+
+@router.get("/runs/{run_id}", name="run_progress")
+def run_progress(request: Request, db: Db, run_id: int) -> Response:
+    try:
+        run = get_run(db, run_id)
+    except LagdeskError as exc:
+        raise HTTPException(status_code=404, detail=str(exc)) from None
+    return render(request, "run.html", {"run": run})
+
+
+@router.post("/reviewer", name="set_reviewer")
+def set_reviewer(request: Request, name: Annotated[str, Form()] = "", back: Annotated[str, Form()] = "/") -> Response:
+    """Remember (or, with an empty name, forget) the reviewer name; back to the page it came from."""
+    target = back if back.startswith("/") and not back.startswith("//") else "/"
+    response = RedirectResponse(target, status_code=303)
+    reviewer = clean_reviewer(name)
+    if not reviewer:
+        response.delete_cookie(REVIEWER_COOKIE)
+        return response
+    return remember_reviewer(response, reviewer)
+
+
+@router.get("/vendor/plotly.min.js", name="plotly_js")
+def plotly_js() -> Response:
+    """plotly.js from the installed plotly package: the pages never load it from another host."""
+    return FileResponse(PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": f"max-age={VENDOR_MAX_AGE_S}"})

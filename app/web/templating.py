@@ -1,0 +1,118 @@
+"""The Jinja environment of the pages: where templates and static files live, and display filters."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from urllib.parse import quote
+
+from fastapi.templating import Jinja2Templates
+from fastapi import Request
+from jinja2 import Environment, FileSystemLoader, StrictUndefined, pass_context
+
+import app
+from app.web.deps import get_reviewer
+
+# templates/ and static/ sit beside the package, found from its location, not the working directory.
+PROJECT_DIR = Path(app.__file__).resolve().parent.parent
+TEMPLATES_DIR = PROJECT_DIR / "templates"
+STATIC_DIR = PROJECT_DIR / "static"
+
+FLAG_WORDS = {
+    "too_short": "short series: fewer points than Box-Jenkins identification asks for",
+    "gaps": "missing points were filled by interpolation",
+    "long_gap": "a long gap was filled: the correlograms lean on invented values",
+    "no_convergence": "the optimiser did not converge",
+    "residual_autocorrelation": "the residuals are still autocorrelated (Ljung-Box)",
+    "near_unit_root": "a root lies near the unit circle",
+    "redundant_roots": "AR and MA roots nearly cancel: the order may be too large",
+    "uncertain_differencing": "the differencing tests disagree",
+    "trend_stationary": "stationary around a trend rather than a unit root",
+    "too_few_seasons": "too few full seasons for seasonal terms",
+}
+
+
+FREQ_WORDS = {"D": "daily", "B": "business days", "h": "hourly", "H": "hourly", "min": "minutely", "T": "minutely",
+              "W": "weekly", "M": "monthly", "MS": "monthly", "ME": "monthly", "Q": "quarterly", "QS": "quarterly",
+              "QE": "quarterly", "A": "yearly", "AS": "yearly", "Y": "yearly", "YS": "yearly", "YE": "yearly",
+              "step": "steps"}
+
+
+def order_label(order: list | None, seasonal_order: list | None = None) -> str:
+    """``ARIMA(p,d,q)`` plus ``(P,D,Q)s`` when the model has seasonal terms; an em dash for no order."""
+    if not order:
+        return "—"
+    text = "ARIMA({},{},{})".format(*order)
+    if seasonal_order and any(seasonal_order[:3]):
+        text += "({},{},{}){}".format(*seasonal_order)
+    return text
+
+
+def freq_words(freq: str | None) -> str:
+    """A pandas frequency code in words (``D`` -> daily, ``W-SUN`` -> weekly); unknown codes as they are."""
+    if not freq:
+        return ""
+    return FREQ_WORDS.get(freq) or FREQ_WORDS.get(freq.split("-")[0]) or freq
+
+
+def when(timestamp: str | None) -> str:
+    """A stored timestamp for reading: no midnight time, no seconds, no 'T'."""
+    if not timestamp:
+        return ""
+    text = str(timestamp).replace("T", " ")
+    if text.endswith(" 00:00:00"):
+        return text[:-9]
+    return text[:16]
+
+
+def significant(value: float | None, digits: int = 4) -> str:
+    """A parameter estimate: ``digits`` significant digits (estimates range over many magnitudes)."""
+    if value is None or not isinstance(value, (int, float)) or not math.isfinite(value):
+        return "—"
+    return f"{value:.{digits}g}"
+
+
+def number(value: float | None, digits: int = 2) -> str:
+    """A statistic for a table: fixed decimals, an em dash for a missing or infinite value."""
+    if value is None or not isinstance(value, (int, float)) or not math.isfinite(value):
+        return "—"
+    return f"{value:.{digits}f}"
+
+
+def p_value(value: float | None) -> str:
+    """A p-value: three decimals, ``<0.001`` below that."""
+    if value is None or not math.isfinite(value):
+        return "—"
+    return "<0.001" if value < 0.001 else f"{value:.3f}"
+
+
+def quote_path(series_id: str) -> str:
+    """A series id for a URL path: percent-encoded, its slashes kept (routes take ``{series_id:path}``)."""
+    return quote(series_id, safe="/")
+
+
+def flag_words(flag: str) -> str:
+    return FLAG_WORDS.get(flag, flag.replace("_", " "))
+
+
+@pass_context
+def url_for(context: dict, name: str, /, **path_params) -> str:
+    """The path of a route or static file, without scheme and host: the pages link only to the
+    server that sent them, whatever name the browser used to reach it."""
+    return context["request"].app.url_path_for(name, **path_params)
+
+
+def _environment() -> Environment:
+    env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
+    env.filters.update(number=number, p_value=p_value, flag_words=flag_words, quote_path=quote_path,
+                       freq_words=freq_words, when=when, significant=significant)
+    env.globals.update(order_label=order_label, known_flags=sorted(FLAG_WORDS), url_for=url_for)
+    return env
+
+
+def _page_globals(request: Request) -> dict:
+    """What every page needs: the reviewer remembered in this browser."""
+    return {"reviewer": get_reviewer(request)}
+
+
+templates = Jinja2Templates(env=_environment(), context_processors=[_page_globals])

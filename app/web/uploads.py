@@ -1,0 +1,63 @@
+"""Receiving a portfolio file from the upload page and importing it into the database."""
+
+from __future__ import annotations
+
+import tempfile
+from pathlib import Path
+from typing import Literal
+
+import sqlite_utils
+from fastapi import UploadFile
+from pydantic import BaseModel
+
+from app.core.errors import LagdeskError
+from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL
+from app.store.imports import ImportReport, import_portfolio
+
+COPY_CHUNK = 1024 * 1024
+
+
+class UploadTooLarge(LagdeskError):
+    """A file bigger than the server's upload limit."""
+
+
+class UploadOptions(BaseModel):
+    """How to read the uploaded CSV (the column names matter for the long layout, and the time
+    column for both)."""
+
+    layout: Literal["long", "wide"] = "long"
+    id_col: str = DEFAULT_ID_COL
+    time_col: str = DEFAULT_TIME_COL
+    value_col: str = DEFAULT_VALUE_COL
+
+
+def upload_name(upload: UploadFile) -> str:
+    """The file's own name without any folder the browser sent with it."""
+    return Path((upload.filename or "upload.csv").replace("\\", "/")).name or "upload.csv"
+
+
+def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: UploadOptions, max_bytes: int) -> ImportReport:
+    """Copy the upload to a private temporary file (refusing it past ``max_bytes``) and import it.
+
+    Raises
+    ------
+    UploadTooLarge
+        When the file is bigger than ``max_bytes``; nothing is stored.
+    InputFileError
+        When the file cannot be used (see :func:`app.store.imports.import_portfolio`).
+    """
+    name = upload_name(upload)
+    with tempfile.TemporaryDirectory(prefix="lagdesk-upload-") as folder:
+        path = Path(folder) / name
+        copied = 0
+        with path.open("wb") as out:
+            while chunk := upload.file.read(COPY_CHUNK):
+                copied += len(chunk)
+                if copied > max_bytes:
+                    raise UploadTooLarge(f"{name}: larger than the upload limit of {max_bytes // (1024 * 1024)} MiB")
+                out.write(chunk)
+        return import_portfolio(
+            db, path, layout=options.layout, id_col=options.id_col.strip() or DEFAULT_ID_COL,
+            time_col=options.time_col.strip() or DEFAULT_TIME_COL,
+            value_col=options.value_col.strip() or DEFAULT_VALUE_COL, display_name=name,
+        )

@@ -1,0 +1,331 @@
+"""The JSON API against a real database built by the real store and engine."""
+
+from __future__ import annotations
+
+import time
+from urllib.parse import quote
+
+import numpy as np
+import pandas as pd
+import pytest
+from statsmodels.tsa.arima.model import ARIMA
+from threadpoolctl import threadpool_limits
+
+from fastapi.testclient import TestClient
+
+from app.config import Settings
+from app.store.runs import finish_run, record_progress, start_run
+from app.store.series import load_series
+from app.store.verdicts import get_verdict, verdict_history
+from app.web.main import create_app
+from web_portfolio import AWKWARD_ID, CONSTANT_ID, ODD_ID, synthetic_series, write_long_csv
+
+SERIES = "plant-a/line-1/ar1"
+
+
+def url(series_id: str, suffix: str = "") -> str:
+    return f"/api/series/{quote(series_id, safe='/')}{suffix}"
+
+
+def all_ids(client, **params) -> list[str]:
+    body = client.get("/api/series", params={**params, "limit": 500}).json()
+    return [item["series_id"] for item in body["items"]]
+
+
+# --- listing -----------------------------------------------------------------------------------
+
+def test_series_list_total_counts_whole_filter(client, results):
+    body = client.get("/api/series", params={"limit": 2}).json()
+    assert body["total"] == len(results)
+    assert len(body["items"]) == 2
+    item = body["items"][0]
+    assert {"series_id", "status", "confidence", "suggested", "flags"} <= set(item)
+    assert set(item["suggested"]) == {"order", "seasonal_order"}
+
+
+def test_series_list_pages_cover_every_series_once(client, results):
+    seen = []
+    for offset in range(0, len(results), 2):
+        seen += [i["series_id"] for i in client.get("/api/series", params={"limit": 2, "offset": offset}).json()["items"]]
+    assert sorted(seen) == sorted(results)
+    assert CONSTANT_ID not in seen  # rejected by the import: nothing to model
+
+
+def test_series_list_filters_by_confidence_as_the_engine_scored(client, results):
+    for level in ("firm", "tentative", "weak"):
+        expected = sorted(sid for sid, r in results.items() if r["confidence"] == level)
+        body = client.get("/api/series", params={"confidence": level, "limit": 500}).json()
+        assert body["total"] == len(expected)
+        assert sorted(i["series_id"] for i in body["items"]) == expected
+
+
+def test_series_list_filters_by_flag_and_search(client, results):
+    flagged = {sid for sid, r in results.items() if "too_short" in r["flags"]}
+    assert flagged == {AWKWARD_ID}  # 25 points: below the recommended 30
+    assert set(all_ids(client, flag="too_short")) == flagged
+    assert set(all_ids(client, q="PLANT-B")) == {"plant-b/walk", "plant-b/ar2"}
+
+
+def test_series_list_suggestions_match_the_engine(client, results):
+    for item in client.get("/api/series", params={"limit": 500}).json()["items"]:
+        assert item["suggested"] == results[item["series_id"]]["suggested"]
+        assert item["status"] == "pending"
+
+
+def test_series_list_bad_filter_is_422(client):
+    response = client.get("/api/series", params={"status": "maybe"})
+    assert response.status_code == 422
+    assert "maybe" in response.json()["detail"]
+
+
+def test_series_list_limit_is_capped(db_path):
+    settings = Settings(db_path=db_path, page_size=2, max_page_size=3)
+    with TestClient(create_app(settings)) as client:
+        assert client.get("/api/series").json()["limit"] == 2
+        assert client.get("/api/series", params={"limit": 100}).json()["limit"] == 3
+
+
+# --- one series --------------------------------------------------------------------------------
+
+def test_series_detail_has_analysis_verdict_and_history(client, results):
+    body = client.get(url(SERIES)).json()
+    stored = results[SERIES]
+    for key in ("suggested", "candidates", "acf", "pacf", "differencing", "flags", "confidence"):
+        assert body[key] == stored[key]
+    assert body["analysis_state"] == "current"
+    assert body["verdict"]["status"] == "pending" and body["verdict"]["version"] == 0
+    assert body["history"] == []
+
+
+def test_series_detail_unknown_is_404(client):
+    response = client.get(url("no/such/series"))
+    assert response.status_code == 404
+    assert "no/such/series" in response.json()["detail"]
+
+
+def test_series_ids_with_slashes_and_route_words_resolve(client, db):
+    assert client.get(url(ODD_ID)).json()["series_id"] == ODD_ID
+    assert client.get(url(AWKWARD_ID)).json()["series_id"] == AWKWARD_ID
+    response = client.post(url(ODD_ID, "/verdict"), json={"status": "parked", "version": 0, "reviewer": "Ada"})
+    assert response.status_code == 200
+    assert get_verdict(db, ODD_ID)["status"] == "parked"
+
+
+# --- verdicts ----------------------------------------------------------------------------------
+
+def test_verdict_approve_takes_the_suggestion_and_records_history(client, db, results):
+    response = client.post(url(SERIES, "/verdict"), json={"status": "approved", "note": "clean", "reviewer": "Ada", "version": 0})
+    assert response.status_code == 200
+    verdict = response.json()
+    assert verdict["status"] == "approved" and verdict["version"] == 1
+    assert verdict["order"] == results[SERIES]["suggested"]["order"]
+    assert get_verdict(db, SERIES) == verdict
+    history = verdict_history(db, SERIES)
+    assert [(h["status"], h["reviewer"], h["note"]) for h in history] == [("approved", "Ada", "clean")]
+    assert client.get(url(SERIES)).json()["history"][0]["status"] == "approved"
+
+
+def test_verdict_override_with_custom_order(client, db):
+    body = {"status": "overridden", "order": [2, 0, 1], "seasonal_order": [0, 0, 0, 0], "reviewer": "Bo", "version": 0}
+    response = client.post(url(SERIES, "/verdict"), json=body)
+    assert response.status_code == 200
+    assert get_verdict(db, SERIES)["order"] == [2, 0, 1]
+    assert all_ids(client, status="overridden") == [SERIES]
+
+
+def test_verdict_stale_version_is_409_with_current_verdict(client, db):
+    first = client.post(url(SERIES, "/verdict"), json={"status": "approved", "reviewer": "Ada", "version": 0})
+    assert first.status_code == 200
+    stale = client.post(url(SERIES, "/verdict"), json={"status": "parked", "reviewer": "Bo", "version": 0})
+    assert stale.status_code == 409
+    assert stale.json()["verdict"] == first.json()
+    assert get_verdict(db, SERIES)["status"] == "approved"
+    assert len(verdict_history(db, SERIES)) == 1
+
+
+def test_verdict_unknown_series_is_404(client):
+    response = client.post(url("no/such", "/verdict"), json={"status": "parked", "version": 0})
+    assert response.status_code == 404
+
+
+@pytest.mark.parametrize(
+    ("series_id", "order", "seasonal", "words"),
+    [
+        (SERIES, [-1, 0, 0], [0, 0, 0, 0], "p = -1"),
+        (SERIES, [1, 3, 0], [0, 0, 0, 0], "d = 3"),
+        (SERIES, [1, 0, 0], [1, 0, 0, 1], "s = 1"),
+        (SERIES, [1, 0, 0], [1, 0, 0, 0], "seasonal period"),
+        (AWKWARD_ID, [10, 0, 10], [0, 0, 0, 0], "needs at least"),
+    ],
+)
+def test_verdict_impossible_order_is_422_with_message(client, db, series_id, order, seasonal, words):
+    body = {"status": "overridden", "order": order, "seasonal_order": seasonal, "reviewer": "Ada", "version": 0}
+    response = client.post(url(series_id, "/verdict"), json=body)
+    assert response.status_code == 422
+    assert words in response.json()["detail"]
+    assert get_verdict(db, series_id)["status"] == "pending"
+
+
+def test_verdict_malformed_body_is_422(client):
+    assert client.post(url(SERIES, "/verdict"), json={"status": "overridden", "order": [1, 0], "version": 0}).status_code == 422
+    assert client.post(url(SERIES, "/verdict"), json={"status": "maybe", "version": 0}).status_code == 422
+    assert client.post(url(SERIES, "/verdict"), json={"status": "parked"}).status_code == 422
+
+
+def test_verdict_approved_must_be_the_suggestion(client, results):
+    p, d, q = results[SERIES]["suggested"]["order"]
+    other = [p + 1, d, q]
+    response = client.post(url(SERIES, "/verdict"), json={"status": "approved", "order": other, "version": 0})
+    assert response.status_code == 422
+    assert "overridden" in response.json()["detail"]
+
+
+def test_verdict_override_needs_an_order(client):
+    response = client.post(url(SERIES, "/verdict"), json={"status": "overridden", "version": 0})
+    assert response.status_code == 422
+
+
+# --- fitting a custom order --------------------------------------------------------------------
+
+def test_fit_matches_statsmodels_on_the_same_data(client, db, results):
+    """A custom fit is statsmodels' exact-likelihood ARIMA on the stored values (reference library)."""
+    stored = results[ODD_ID]
+    assert stored["transform"] == "none"  # white noise around zero: a log or Box-Cox is impossible
+    same_d = [c for c in stored["candidates"] if c["order"][1] == 0 and c["seasonal_order"] == [0, 0, 0, 0]]
+    response = client.post(url(ODD_ID, "/fit"), json={"order": [2, 0, 2]})
+    assert response.status_code == 200
+    fit = response.json()
+    values = load_series(db, ODD_ID).to_numpy()
+    with threadpool_limits(limits=1):
+        reference = ARIMA(values, order=(2, 0, 2), trend=same_d[0]["trend"]).fit()
+    assert fit["aicc"] == pytest.approx(reference.aicc, rel=1e-6)
+    assert fit["bic"] == pytest.approx(reference.bic, rel=1e-6)
+    assert fit["delta_aicc"] == pytest.approx(fit["aicc"] - min(c["aicc"] for c in same_d))
+    assert len(fit["residual_acf"]["lags"]) == len(fit["residual_acf"]["values"]) > 0
+    assert [p["name"] for p in fit["params"]] == list(reference.param_names)
+
+
+def test_fit_of_the_suggestion_reproduces_the_stored_statistics(client, results):
+    stored = results[SERIES]
+    fit = client.post(url(SERIES, "/fit"), json=stored["suggested"]).json()
+    assert fit["aicc"] == pytest.approx(stored["candidates"][0]["aicc"], rel=1e-6)
+    assert fit["delta_aicc"] == pytest.approx(stored["candidates"][0]["aicc"] - min(
+        c["aicc"] for c in stored["candidates"] if c["order"][1] == stored["d"]), abs=1e-6)
+
+
+def test_fit_bad_order_is_422_and_unknown_is_404(client):
+    response = client.post(url(SERIES, "/fit"), json={"order": [11, 0, 0]})
+    assert response.status_code == 422
+    assert "p = 11" in response.json()["detail"]
+    assert client.post(url("no/such", "/fit"), json={"order": [1, 0, 0]}).status_code == 404
+
+
+# --- portfolio, bulk approval, imports, runs ---------------------------------------------------
+
+def test_portfolio_counts(client, results):
+    body = client.get("/api/portfolio").json()
+    assert body["series"] == len(results)
+    assert body["counts"]["confidence"] == {
+        level: sum(r["confidence"] == level for r in results.values()) for level in ("weak", "tentative", "firm")
+    }
+    assert body["verdicts"]["pending"] == len(results)
+
+
+def test_bulk_approval_approves_pending_firm_series_in_the_filter(client, db, results):
+    firm = sorted(sid for sid, r in results.items() if r["confidence"] == "firm")
+    assert firm, "the synthetic portfolio should hold firm series"
+    response = client.post("/api/approve-firm", params={"q": "plant-a"}, json={"reviewer": "Ada"})
+    in_filter = [sid for sid in firm if "plant-a" in sid]
+    assert sorted(response.json()["approved"]) == in_filter
+    for sid in in_filter:
+        verdict = get_verdict(db, sid)
+        assert verdict["status"] == "approved" and verdict["order"] == results[sid]["suggested"]["order"]
+    again = client.post("/api/approve-firm", json={"reviewer": "Ada"}).json()
+    assert sorted(again["approved"]) == [sid for sid in firm if "plant-a" not in sid]
+    assert client.post("/api/approve-firm", json={"reviewer": " "}).status_code == 422
+
+
+def test_import_upload_reports_added_and_rejected(client, tmp_path):
+    rng = np.random.default_rng(5)
+    csv_path = write_long_csv(tmp_path / "more.csv", {"new/one": rng.normal(size=40), "new/flat": np.ones(30)})
+    with csv_path.open("rb") as handle:
+        response = client.post("/api/imports", files={"file": ("more.csv", handle, "text/csv")}, data={"layout": "long"})
+    assert response.status_code == 200
+    report = response.json()
+    assert report["added"] == ["new/one"]
+    assert [r["series_id"] for r in report["rejected"]] == ["new/flat"]
+    assert "constant" in report["rejected"][0]["message"]
+    assert client.get(url("new/one")).json()["analysis_state"] == "missing"
+
+
+def test_import_wide_layout_with_named_time_column(client, tmp_path):
+    rng = np.random.default_rng(6)
+    frame = pd.DataFrame({"when": pd.date_range("2024-01-01", periods=40, freq="D").strftime("%Y-%m-%d"),
+                          "w/a": rng.normal(size=40), "w/b": rng.normal(size=40)})
+    frame.to_csv(tmp_path / "wide.csv", index=False)
+    with (tmp_path / "wide.csv").open("rb") as handle:
+        response = client.post("/api/imports", files={"file": ("wide.csv", handle)}, data={"layout": "wide", "time_col": "when"})
+    assert sorted(response.json()["added"]) == ["w/a", "w/b"]
+
+
+def test_import_unusable_file_is_400_and_oversize_413(client, db_path, tmp_path):
+    bad = tmp_path / "bad.csv"
+    bad.write_text("name,value\nx,1\n")
+    with bad.open("rb") as handle:
+        response = client.post("/api/imports", files={"file": ("bad.csv", handle)}, data={"layout": "long"})
+    assert response.status_code == 400
+    assert "bad.csv" in response.json()["detail"]
+    small = Settings(db_path=db_path, max_upload_bytes=64)
+    big = write_long_csv(tmp_path / "big.csv", {"big/one": np.arange(40.0)})
+    with TestClient(create_app(small)) as limited, big.open("rb") as handle:
+        response = limited.post("/api/imports", files={"file": ("big.csv", handle)}, data={"layout": "long"})
+    assert response.status_code == 413
+    assert "upload limit" in response.json()["detail"]
+
+
+def test_runs_list_detail_latest_and_unknown(client, db):
+    assert client.get("/api/runs").json() == []
+    assert client.get("/api/runs/latest").json() is None
+    run_id = start_run(db, {"workers": 1}, total=6, engine_version="test")
+    record_progress(db, run_id, done=4, failed=1)
+    running = client.get(f"/api/runs/{run_id}").json()
+    assert (running["state"], running["done"], running["failed"], running["total"]) == ("running", 4, 1, 6)
+    finish_run(db, run_id, "finished")
+    assert client.get("/api/runs/latest").json()["state"] == "finished"
+    assert [r["run_id"] for r in client.get("/api/runs").json()] == [run_id]
+    assert client.get("/api/runs/999").status_code == 404
+
+
+def wait_for_run(client, run_id: int) -> dict:
+    """Poll the run until it is no longer running (bounded; asserts nothing about time)."""
+    for _ in range(600):
+        run = client.get(f"/api/runs/{run_id}").json()
+        if run["state"] != "running":
+            return run
+        time.sleep(0.1)
+    raise AssertionError(f"run {run_id} still running: {run}")
+
+
+def test_run_started_from_the_api_analyses_new_series(client, tmp_path):
+    rng = np.random.default_rng(8)
+    csv_path = write_long_csv(tmp_path / "late.csv", {"late/arrival": rng.normal(size=60)})
+    with csv_path.open("rb") as handle:
+        client.post("/api/imports", files={"file": ("late.csv", handle)}, data={"layout": "long"})
+    response = client.post("/api/runs")
+    assert response.status_code == 202
+    run = wait_for_run(client, response.json()["run_id"])
+    assert (run["state"], run["total"], run["done"], run["failed"]) == ("finished", 1, 1, 0)
+    detail = client.get(url("late/arrival")).json()
+    assert detail["analysis_state"] == "current" and detail["confidence"] in ("firm", "tentative", "weak")
+
+
+def test_openapi_schema_lists_the_routes(client):
+    paths = client.get("/openapi.json").json()["paths"]
+    for path in ("/api/series", "/api/series/{series_id}", "/api/series/{series_id}/verdict", "/api/series/{series_id}/fit",
+                 "/api/portfolio", "/api/imports", "/api/runs", "/api/runs/{run_id}"):
+        assert path in paths, path
+
+
+def test_synthetic_portfolio_is_what_the_fixture_wrote(results):
+    # Guards the other tests' premises: every good series analysed, the constant one rejected.
+    assert set(results) == set(synthetic_series()) - {CONSTANT_ID}

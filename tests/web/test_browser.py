@@ -1,0 +1,197 @@
+"""The dashboard in headless Chromium against a live server on a loopback port.
+
+Uses Debian's ``chromium`` (``apt-get install -y chromium``) driven by Playwright with
+``executable_path`` set, since ``playwright install`` cannot download browsers here. When the
+browser is missing the tests are skipped with a message, except under CI (``$CI`` set), where
+that is a failure. The database holds a few series of the invented demo portfolio, imported
+and analysed by the real store and engine.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import threading
+from pathlib import Path
+from urllib.parse import quote, urlsplit
+
+import httpx
+import pytest
+import uvicorn
+
+from app.config import Settings
+from app.web.main import create_app
+from web_portfolio import build_database, demo_subset_csv
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = Path("/usr/bin/chromium")
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+                 "--disable-component-update", "--no-first-run"]
+ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
+DEMO_IDS = [
+    "polarquay/freezer-3/temp-c",
+    "polarquay/freezer-5/temp-c",
+    "hearthloaf/riverside/sourdough",
+    "hearthloaf/chain/sugar-kg",
+    "hearthloaf/station-row/coffee-cake",
+    "polarquay/chiller-4/temp-c",
+]
+REVIEWED = "hearthloaf/chain/sugar-kg"  # monthly, on the log scale: seasonal lags marked
+
+
+def _playwright():
+    """The Playwright entry point, or skip/fail (under CI) when the browser cannot run."""
+    problem = None
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        problem = "Playwright for Python is not installed (pip install playwright)"
+    if problem is None and not CHROMIUM.exists():
+        problem = f"no browser at {CHROMIUM} (apt-get install -y chromium)"
+    if problem:
+        if os.environ.get("CI"):
+            pytest.fail(f"browser tests cannot run under CI: {problem}")
+        pytest.skip(f"browser tests skipped: {problem}")
+    return sync_playwright
+
+
+@pytest.fixture(scope="module")
+def demo_db(tmp_path_factory) -> Path:
+    folder = tmp_path_factory.mktemp("browser")
+    build_database(folder / "demo.db", demo_subset_csv(folder / "demo.csv", DEMO_IDS))
+    return folder / "demo.db"
+
+
+@pytest.fixture(scope="module")
+def live_server(demo_db):
+    """The dashboard served by uvicorn in a thread on a free loopback port; yields its base URL."""
+    sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
+    sock.bind(("127.0.0.1", 0))
+    port = sock.getsockname()[1]
+    settings = Settings(db_path=demo_db, port=port)
+    server = uvicorn.Server(uvicorn.Config(create_app(settings), log_level="warning"))
+    thread = threading.Thread(target=server.run, kwargs={"sockets": [sock]}, daemon=True)
+    thread.start()
+    base = f"http://127.0.0.1:{port}"
+    for _ in range(200):
+        if server.started:
+            break
+        threading.Event().wait(0.05)
+    yield base
+    server.should_exit = True
+    thread.join()
+    sock.close()
+
+
+@pytest.fixture(scope="module")
+def browser():
+    sync_playwright = _playwright()
+    with sync_playwright() as p:
+        chromium = p.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)
+        yield chromium
+        chromium.close()
+
+
+@pytest.fixture
+def page(browser, live_server):
+    """A fresh page that records every request it makes and every script error."""
+    context = browser.new_context(viewport={"width": 1440, "height": 900})
+    tab = context.new_page()
+    tab.requests, tab.errors = [], []
+    tab.on("request", lambda request: tab.requests.append(request.url))
+    tab.on("pageerror", lambda error: tab.errors.append(str(error)))
+    yield tab
+    context.close()
+
+
+def api(live_server: str, path: str) -> dict:
+    return httpx.get(live_server + path).json()
+
+
+def series_url(live_server: str, series_id: str) -> str:
+    return f"{live_server}/series/{quote(series_id, safe='/')}"
+
+
+def set_reviewer(page, live_server: str, name: str = "Browser Test") -> None:
+    page.goto(live_server + "/")
+    page.fill("#reviewer-name", name)
+    page.click(".whoami button")
+    page.wait_for_load_state()
+
+
+def test_queue_loads_and_filters(page, live_server):
+    page.goto(live_server + "/")
+    rows = page.locator("[data-queue] [data-row]")
+    total = api(live_server, "/api/series")["total"]
+    assert rows.count() == total == len(DEMO_IDS)
+    weak = api(live_server, "/api/series?confidence=weak")["items"]
+    page.select_option("select[name=confidence]", "weak")
+    page.click(".filters button[type=submit]")
+    page.wait_for_url("**confidence=weak**")
+    shown = sorted(page.locator("[data-queue] [data-row]").evaluate_all("rows => rows.map(r => r.dataset.seriesId)"))
+    assert shown == sorted(item["series_id"] for item in weak)
+    page.keyboard.press("?")
+    assert page.locator("#help").is_visible()
+    assert not page.errors
+
+
+def test_review_page_draws_both_correlograms_with_the_stored_lags(page, live_server):
+    stored = api(live_server, f"/api/series/{quote(REVIEWED, safe='/')}")
+    page.goto(series_url(live_server, REVIEWED))
+    for name in ("acf", "pacf"):
+        chart = page.locator(f"#chart-{name}")
+        chart.locator(".barlayer .point").first.wait_for()
+        assert chart.locator(".barlayer .point").count() == len(stored[name]["lags"])
+        band = chart.locator(".scatterlayer .js-fill")
+        assert band.count() == 1 and len(band.get_attribute("d") or "") > 10
+    page.keyboard.press("2")
+    detail = page.locator('#candidate-detail [data-candidate-detail="2"]')
+    detail.locator(".barlayer .point").first.wait_for()
+    assert detail.is_visible()
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.keyboard.press("1")
+    page.screenshot(path=str(ARTIFACTS / "review-page.png"), full_page=True)
+    assert not page.errors
+    host = urlsplit(live_server).netloc
+    assert page.requests and all(urlsplit(u).netloc == host for u in page.requests), page.requests
+
+
+def test_approve_key_saves_a_verdict_seen_in_the_queue(page, live_server):
+    set_reviewer(page, live_server)
+    target = "polarquay/freezer-5/temp-c"
+    page.goto(series_url(live_server, target))
+    before = api(live_server, f"/api/series/{quote(target, safe='/')}")["verdict"]["version"]
+    with page.expect_navigation():
+        page.keyboard.press("a")
+    verdict = api(live_server, f"/api/series/{quote(target, safe='/')}")["verdict"]
+    assert verdict["status"] == "approved" and verdict["version"] == before + 1
+    assert verdict["reviewer"] == "Browser Test"
+    page.goto(live_server + "/?status=approved")
+    assert target in page.locator("[data-queue]").inner_text()
+    assert not page.errors
+
+
+def test_custom_order_is_fitted_then_saved(page, live_server):
+    set_reviewer(page, live_server)
+    target = "hearthloaf/riverside/sourdough"
+    page.goto(series_url(live_server, target))
+    save = page.locator("[data-key-save]")
+    page.keyboard.press("c")
+    for name, value in zip("pdqPDQs", ["2", "0", "1", "0", "0", "0", "0"]):
+        page.fill(f"#decision input[name={name}]", value)
+    assert save.is_disabled()  # a custom order must be fitted before it can be saved
+    page.click("[data-fit]")
+    fitted = page.locator('#custom-fit [data-candidate-detail="custom"]')
+    fitted.wait_for()
+    assert "ARIMA(2,0,1)" in fitted.inner_text() and "AICc" in fitted.inner_text()
+    fitted.locator(".barlayer .point").first.wait_for()
+    assert save.is_enabled()
+    page.fill("#decision textarea[name=note]", "two AR terms read better")
+    with page.expect_navigation():
+        save.click()
+    verdict = api(live_server, f"/api/series/{quote(target, safe='/')}")["verdict"]
+    assert (verdict["status"], verdict["order"], verdict["note"]) == ("overridden", [2, 0, 1], "two AR terms read better")
+    host = urlsplit(live_server).netloc
+    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
+    assert not page.errors

@@ -1,0 +1,308 @@
+"""The HTML pages, through the same app the server runs, without JavaScript (plain forms)."""
+
+from __future__ import annotations
+
+import html
+import json
+import re
+from urllib.parse import quote
+
+import numpy as np
+import pytest
+
+from app.store.runs import start_run
+from app.store.verdicts import get_verdict, verdict_history
+from app.web.charts import PLOTLY_JS
+from app.web.deps import REVIEWER_COOKIE
+from web_portfolio import AWKWARD_ID, ODD_ID, write_long_csv
+
+SERIES = "plant-a/line-1/ar1"
+FIGURE = re.compile(r"""id="chart-([\w-]+)" data-figure='([^']*)'""")
+
+
+def page(series_id: str, suffix: str = "") -> str:
+    return f"/series/{quote(series_id, safe='/')}{suffix}"
+
+
+def figures(text: str) -> dict[str, dict]:
+    """The plotly figures a page hands to the browser, by chart id."""
+    return {chart_id: json.loads(html.unescape(data)) for chart_id, data in FIGURE.findall(text)}
+
+
+def decision(version: int = 0, **fields) -> dict:
+    return {"version": str(version), "reviewer": "Ada", "note": "", **fields}
+
+
+# --- queue -------------------------------------------------------------------------------------
+
+def test_queue_lists_a_page_of_series_with_counts(client, results):
+    response = client.get("/")
+    assert response.status_code == 200
+    text = response.text
+    assert "Review queue" in text
+    assert f"1–4 of {len(results)}" in text  # page_size 4 in the test settings
+    assert text.count("<svg class=\"spark\"") == 4
+    assert 'rel="next"' in text
+
+
+def test_queue_second_page_and_filter(client, results):
+    second = client.get("/", params={"offset": 4}).text
+    assert f"5–{len(results)} of {len(results)}" in second
+    weak = sorted(sid for sid, r in results.items() if r["confidence"] == "weak")
+    text = client.get("/", params={"confidence": "weak"}).text
+    rows = re.findall(r'data-series-id="([^"]+)"', text)
+    assert sorted(html.unescape(r) for r in rows) == weak
+
+
+def test_queue_bad_filter_is_a_422_page(client):
+    response = client.get("/", params={"status": "maybe"})
+    assert response.status_code == 422
+    assert "text/html" in response.headers["content-type"] and "maybe" in response.text
+
+
+def test_queue_sorts_by_length(client, results):
+    text = client.get("/", params={"sort": "n", "descending": "1"}).text
+    rows = [html.unescape(r) for r in re.findall(r'data-series-id="([^"]+)"', text)]
+    lengths = [results[r]["n"] for r in rows]
+    assert lengths == sorted(lengths, reverse=True)
+
+
+def test_queue_escapes_series_ids(client):
+    text = client.get("/", params={"q": "shop"}).text
+    assert "rolls <b>" not in text
+    assert "bread &amp; rolls &lt;b&gt;" in text
+    assert quote(AWKWARD_ID, safe="/") in text  # the link is percent-encoded
+
+
+def test_queue_offers_bulk_approval_of_firm_series(client, results):
+    firm = sum(r["confidence"] == "firm" for r in results.values())
+    text = client.get("/").text
+    assert f"Approve {firm} firm suggestion" in text
+    assert "btn-primary bulk" not in client.get("/", params={"status": "approved"}).text
+
+
+# --- review page -------------------------------------------------------------------------------
+
+def test_review_page_shows_charts_with_stored_lag_counts(client, results):
+    response = client.get(page(SERIES))
+    assert response.status_code == 200
+    found = figures(response.text)
+    stored = results[SERIES]
+    for name in ("acf", "pacf"):
+        bars = [t for t in found[name]["data"] if t["type"] == "bar"]
+        assert len(bars) == 1 and len(bars[0]["x"]) == len(stored[name]["lags"])
+        band = [t for t in found[name]["data"] if t.get("fill") == "toself"]
+        assert len(band) == 1
+        assert max(band[0]["y"]) == pytest.approx(max(stored[name]["band"]))
+    assert len(found["series"]["data"][0]["y"]) == stored["n"]
+    assert stored["d"] == 0 and stored["transform"] == "none"
+    assert "identified" not in found  # identified on the series itself: no second chart
+
+
+def test_review_page_draws_the_transformed_or_differenced_series(client, results):
+    changed = [sid for sid, r in results.items() if r["d"] or r["D"] or r["transform"] != "none"]
+    assert changed, "the synthetic portfolio should hold a differenced or transformed series"
+    for sid in changed:
+        found = figures(client.get(page(sid)).text)
+        assert found["identified"]["data"][0]["y"] == pytest.approx(results[sid]["identified_on"]["values"])
+    # the suggested candidate's residual ACF and residuals are drawn for the selected panel
+    assert "resid-acf-1" in found and "resid-1" in found
+
+
+def test_review_page_tables_hold_the_chart_numbers(client, results):
+    text = client.get(page(SERIES)).text
+    stored = results[SERIES]
+    assert f"Numbers ({len(stored['acf']['lags'])} rows)" in text
+    first_lag = f"<td>1</td><td>{stored['acf']['values'][0]:.3f}</td><td>{stored['acf']['band'][0]:.3f}</td>"
+    assert first_lag in text
+
+
+def test_review_page_lists_candidates_and_tests_in_words(client, results):
+    text = client.get(page(SERIES)).text
+    stored = results[SERIES]
+    assert text.count('data-candidate="') == len(stored["candidates"])
+    assert text.count("tag-suggested") >= 1
+    for test in stored["differencing"]["tests"]:
+        assert test["name"] in text
+    for line in stored["differencing"]["explanation"]:
+        assert html.escape(line) in text
+    assert "suggestions are statistical" in text
+
+
+def test_review_page_unknown_is_404(client):
+    response = client.get(page("no/such/series"))
+    assert response.status_code == 404
+    assert "no/such/series" in html.unescape(response.text)
+
+
+def test_review_page_selected_candidate_without_javascript(client, results):
+    text = client.get(page(SERIES), params={"candidate": "3"}).text
+    assert 'data-candidate-detail="3" >' in text or 'data-candidate-detail="3">' in text
+    assert re.search(r'data-candidate-detail="1"\s+hidden', text)
+
+
+def test_review_prev_next_follow_the_filter(client):
+    text = client.get(page("plant-b/walk"), params={"q": "plant"}).text
+    assert 'rel="next"' in text or 'rel="prev"' in text
+    for link in re.findall(r'rel="(?:next|prev)" data-key-\w+ href="([^"]+)"', text):
+        assert "q=plant" in html.unescape(link)
+
+
+# --- decisions through the form ----------------------------------------------------------------
+
+def test_form_approve_saves_redirects_to_next_and_remembers_reviewer(client, db, results):
+    response = client.post(page(SERIES, "/verdict"), data=decision(action="approve", note="looks clean"), follow_redirects=False)
+    assert response.status_code == 303
+    assert f"saved={quote(SERIES, safe='')}" in response.headers["location"]
+    assert response.cookies.get(REVIEWER_COOKIE) == "Ada"
+    verdict = get_verdict(db, SERIES)
+    assert (verdict["status"], verdict["order"], verdict["reviewer"], verdict["note"]) == (
+        "approved", results[SERIES]["suggested"]["order"], "Ada", "looks clean")
+    follow = client.get(response.headers["location"])
+    assert "Saved the verdict of" in follow.text
+
+
+def test_form_pick_another_candidate_is_an_override(client, db, results):
+    second = results[SERIES]["candidates"][1]
+    response = client.post(page(SERIES, "/verdict"), data=decision(action="save", choice="2"), follow_redirects=False)
+    assert response.status_code == 303
+    verdict = get_verdict(db, SERIES)
+    assert verdict["status"] == "overridden" and verdict["order"] == second["order"]
+    history = client.get(page(SERIES)).text
+    assert "overridden" in history and "Ada" in history
+
+
+def test_form_custom_order_fit_then_save(client, db):
+    fields = decision(action="fit", choice="custom", p="2", d="0", q="2", P="0", D="0", Q="0", s="0")
+    fitted = client.post(page(SERIES, "/fit"), data=fields)
+    assert fitted.status_code == 200
+    assert "custom fit" in fitted.text and "ARIMA(2,0,2)" in fitted.text
+    assert 'data-candidate-detail="custom"' in fitted.text
+    assert get_verdict(db, SERIES)["status"] == "pending"  # fitting saves nothing
+    saved = client.post(page(SERIES, "/verdict"), data={**fields, "action": "save", "note": "two cycles"}, follow_redirects=False)
+    assert saved.status_code == 303
+    verdict = get_verdict(db, SERIES)
+    assert (verdict["status"], verdict["order"], verdict["note"]) == ("overridden", [2, 0, 2], "two cycles")
+
+
+def test_fit_fragment_is_a_partial(client):
+    fields = decision(action="fit", choice="custom", p="1", d="0", q="1", fragment="true")
+    response = client.post(page(SERIES, "/fit"), data=fields)
+    assert response.status_code == 200
+    assert "<html" not in response.text and 'data-candidate-detail="custom"' in response.text
+    bad = client.post(page(SERIES, "/fit"), data={**fields, "p": "x"})
+    assert bad.status_code == 422 and "whole number" in bad.text and "<html" not in bad.text
+
+
+def test_form_bad_custom_order_is_422_and_keeps_input(client, db):
+    fields = decision(action="save", choice="custom", p="12", d="0", q="0", note="typed note")
+    response = client.post(page(SERIES, "/verdict"), data=fields)
+    assert response.status_code == 422
+    assert "p = 12 is outside 0..10" in response.text
+    assert "typed note" in response.text and 'value="12"' in response.text
+    assert get_verdict(db, SERIES)["status"] == "pending"
+
+
+def test_form_stale_version_is_409_and_shows_current(client, db):
+    client.post(page(SERIES, "/verdict"), data=decision(action="park"))
+    response = client.post(page(SERIES, "/verdict"), data=decision(version=0, action="approve"))
+    assert response.status_code == 409
+    assert "reload and decide again" in response.text
+    assert get_verdict(db, SERIES)["status"] == "parked"
+    assert len(verdict_history(db, SERIES)) == 1
+
+
+def test_form_needs_a_reviewer_name(client, db):
+    response = client.post(page(SERIES, "/verdict"), data={**decision(action="approve"), "reviewer": "  "})
+    assert response.status_code == 422
+    assert "Give your name" in response.text
+    assert get_verdict(db, SERIES)["status"] == "pending"
+
+
+def test_form_unknown_series_is_404(client):
+    assert client.post(page("no/such", "/verdict"), data=decision(action="approve")).status_code == 404
+    assert client.post(page("no/such", "/fit"), data=decision(action="fit", p="1", d="0", q="0")).status_code == 404
+
+
+def test_form_routes_accept_ids_ending_in_route_words(client, db):
+    response = client.post(page(ODD_ID, "/verdict"), data=decision(action="park"), follow_redirects=False)
+    assert response.status_code == 303
+    assert get_verdict(db, ODD_ID)["status"] == "parked"
+
+
+def test_reviewer_cookie_prefills_the_forms(client):
+    response = client.post("/reviewer", data={"name": "Grace  Hopper", "back": page(SERIES)}, follow_redirects=False)
+    assert response.status_code == 303 and response.headers["location"] == page(SERIES)
+    text = client.get(page(SERIES)).text
+    assert 'name="reviewer" value="Grace Hopper"' in text
+    assert client.post("/reviewer", data={"name": "x", "back": "//elsewhere.example"}, follow_redirects=False).headers["location"] == "/"
+
+
+# --- bulk approval -----------------------------------------------------------------------------
+
+def test_bulk_approval_confirms_the_count_then_approves(client, db, results):
+    firm = sorted(sid for sid, r in results.items() if r["confidence"] == "firm")
+    confirm = client.get("/approve-firm")
+    assert f"Approve {len(firm)} firm suggestion" in confirm.text
+    stale = client.post("/approve-firm", data={"expected": str(len(firm) + 1), "reviewer": "Ada"})
+    assert stale.status_code == 409
+    assert all(get_verdict(db, sid)["status"] == "pending" for sid in firm)
+    done = client.post("/approve-firm", data={"expected": str(len(firm)), "reviewer": "Ada"}, follow_redirects=False)
+    assert done.status_code == 303 and f"approved={len(firm)}" in done.headers["location"]
+    assert all(get_verdict(db, sid)["status"] == "approved" for sid in firm)
+    assert f"Approved {len(firm)} firm suggestion" in client.get(done.headers["location"]).text
+
+
+# --- upload and runs ---------------------------------------------------------------------------
+
+def test_upload_page_imports_and_reports(client, tmp_path):
+    assert client.get("/upload").status_code == 200
+    csv_path = write_long_csv(tmp_path / "extra.csv", {"extra/one": np.random.default_rng(1).normal(size=40)})
+    with csv_path.open("rb") as handle:
+        response = client.post("/upload", files={"file": ("extra.csv", handle, "text/csv")}, data={"layout": "long"})
+    assert response.status_code == 200
+    assert "extra.csv: 1 added, 0 updated, 0 unchanged, 0 rejected" in response.text
+    assert "Start the analysis" in response.text
+
+
+def test_upload_unusable_file_shows_the_reason(client, tmp_path):
+    bad = tmp_path / "bad.csv"
+    bad.write_text("a,b\n1,2\n")
+    with bad.open("rb") as handle:
+        response = client.post("/upload", files={"file": ("bad.csv", handle)}, data={"layout": "long"})
+    assert response.status_code == 400
+    assert "bad.csv" in response.text and "message-error" in response.text
+
+
+def test_start_analysis_button_redirects_to_the_run(client):
+    response = client.post("/runs", follow_redirects=False)
+    assert response.status_code == 303
+    run_id = int(response.headers["location"].rsplit("/", 1)[1])
+    progress = client.get(response.headers["location"])
+    assert f"Analysis run {run_id}" in progress.text and "data-run-progress" in progress.text
+
+
+def test_runs_pages(client, db):
+    assert "No analysis has run yet" in client.get("/runs").text
+    run_id = start_run(db, {}, total=3, engine_version="test")
+    listing = client.get("/runs").text
+    assert f'/runs/{run_id}"' in listing
+    progress = client.get(f"/runs/{run_id}")
+    assert progress.status_code == 200 and f"/api/runs/{run_id}" in progress.text
+    assert client.get("/runs/999").status_code == 404
+
+
+# --- assets ------------------------------------------------------------------------------------
+
+def test_plotly_is_served_from_the_installed_package(client):
+    response = client.get("/vendor/plotly.min.js")
+    assert response.status_code == 200
+    assert response.content == PLOTLY_JS.read_bytes()
+
+
+def test_pages_load_nothing_from_other_hosts(client):
+    for path in ("/", page(SERIES), "/upload", "/runs", "/approve-firm"):
+        text = client.get(path).text
+        assert not re.findall(r"""(?:src|href)=["'](?:https?:)?//""", text), path
+    assert client.get("/static/lagdesk.css").status_code == 200
+    assert client.get("/static/js/review.js").status_code == 200
