@@ -1,23 +1,75 @@
-"""A process pool for per-series work, with BLAS threads pinned to one per worker.
+"""Running per-series work in parallel: a local process pool, or a Dask cluster.
 
-statsmodels fits are small dense problems; with OpenBLAS' default threading every worker would
-start one thread per core and they fight over the cores (measured here: fits 21-45x slower on a
-busy 2-core machine). Each worker therefore limits BLAS to one thread when it starts, and the
-series are sent in chunks so the pool's overhead stays small next to the fits. Results come
-back in order of completion, so progress can be shown as they land.
+BLAS threads. statsmodels fits are small dense problems; with OpenBLAS' default threading every
+worker would start one thread per core and they fight over the cores (measured here: fits
+21-45x slower on a busy 2-core machine). Each worker therefore limits BLAS to one thread when
+it starts, and the series are sent in chunks so the pool's overhead stays small next to the
+fits. Results come back in order of completion, so progress can be shown as they land.
+
+Start method. The pool's workers are started by a *forkserver* where the platform has one (Linux,
+macOS), else by *spawn*. A plain ``fork`` copies the parent as it is at that moment, and an
+analysis started from the web page runs in a thread of uvicorn's process: forking there copies
+whatever locks the server's other threads hold (logging, allocators, the BLAS thread pool) into
+a child that has none of those threads to release them, and it hands the children the
+process' open database connections. The forkserver is a small clean process started once per
+process (from a fresh interpreter, with :mod:`app.jobs.work` imported in advance), and every
+worker is forked from it, so later pools start fast and no worker inherits the parent's open
+files or database connections. The cost is the first pool's start (one interpreter
+importing statsmodels) and that the work function must be importable by name.
+
+Orphans. If the parent is killed outright (``kill -9``, the OOM killer), its pool's workers
+would wait on their task queue forever, because every worker holds a write end of it. So each
+worker starts a daemon thread that waits for the process that asked for the pool to end and
+then ends the worker: on Linux it blocks on a pidfd of that process (no polling, woken by the
+kernel at its exit), elsewhere it checks once a second. ``prctl(PR_SET_PDEATHSIG)`` does not do
+here: it watches the worker's *parent*, which is the forkserver, and the forkserver outlives the
+process that started it for as long as any of its children (the workers) hold the pipe that
+keeps it alive. Once the workers are gone the forkserver and multiprocessing's resource tracker
+see their pipes close and exit too.
 """
 
 from __future__ import annotations
 
+import multiprocessing
 import os
+import select
+import threading
+import time
 from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from dataclasses import dataclass
 from typing import Any
 
 from threadpoolctl import threadpool_limits
 
+from app.core.errors import LagdeskError
+
 DEFAULT_CHUNK = 4
+EXECUTORS = ("local", "dask")
+# Imported once by the forkserver, so each worker starts with the engine already loaded.
+PRELOADED_MODULES = ["app.jobs.work"]
+PARENT_POLL_S = 1.0
+ORPHAN_EXIT_CODE = 1
 _limits = None
+
+
+@dataclass(frozen=True)
+class ExecutorChoice:
+    """Where the per-series work runs: ``local`` (a process pool on this machine) or ``dask``
+    (a Dask distributed cluster; ``scheduler`` is its address, or None for a LocalCluster
+    started for the run)."""
+
+    kind: str = "local"
+    scheduler: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.kind not in EXECUTORS:
+            raise LagdeskError(f"executor {self.kind!r} is not one of {', '.join(EXECUTORS)}")
+        if self.scheduler is not None and self.kind != "dask":
+            raise LagdeskError(f"a scheduler address ({self.scheduler}) is only used with the dask executor")
+
+
+LOCAL = ExecutorChoice()
 
 
 def default_workers() -> int:
@@ -34,35 +86,95 @@ def pin_blas_threads() -> None:
     _limits = threadpool_limits(limits=1)
 
 
-def _run_chunk(func: Callable[[Any], Any], chunk: list[Any]) -> list[Any]:
+def exit_with_parent(creator_pid: int) -> None:
+    """End this worker process when ``creator_pid`` (the process that asked for the pool) ends.
+
+    If that process is already gone when this runs, the worker leaves at once.
+    """
+    threading.Thread(target=_exit_when_gone, args=(creator_pid,), name="lagdesk-parent-watch", daemon=True).start()
+
+
+def _exit_when_gone(pid: int) -> None:
+    try:
+        handle = os.pidfd_open(pid)
+    except ProcessLookupError:
+        os._exit(ORPHAN_EXIT_CODE)
+    except (AttributeError, OSError):  # no pidfd (not Linux, or a kernel before 5.3)
+        while _process_exists(pid):
+            time.sleep(PARENT_POLL_S)
+        os._exit(ORPHAN_EXIT_CODE)
+    select.select([handle], [], [])
+    os._exit(ORPHAN_EXIT_CODE)
+
+
+def _process_exists(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def start_worker(creator_pid: int) -> None:
+    """Initializer of every pool worker: exit with the parent, one BLAS thread."""
+    exit_with_parent(creator_pid)
+    pin_blas_threads()
+
+
+def pool_context() -> multiprocessing.context.BaseContext:
+    """The forkserver context where there is one, else spawn (see the module notes)."""
+    if "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(PRELOADED_MODULES)
+        return context
+    return multiprocessing.get_context("spawn")
+
+
+def run_chunk(func: Callable[[Any], Any], chunk: list[Any]) -> list[Any]:
+    """Apply ``func`` to every item of one chunk, in a worker."""
     return [func(item) for item in chunk]
 
 
-def map_unordered(func: Callable[[Any], Any], items: Iterable[Any], workers: int, chunk: int = DEFAULT_CHUNK) -> Iterator[Any]:
+def chunks(items: Iterable[Any], size: int) -> Iterator[list[Any]]:
+    """Consecutive lists of ``size`` items (the last may be shorter), pulled lazily."""
+    iterator = iter(items)
+    while batch := [x for _, x in zip(range(size), iterator)]:
+        yield batch
+
+
+def map_unordered(
+    func: Callable[[Any], Any], items: Iterable[Any], workers: int, chunk: int = DEFAULT_CHUNK, executor: ExecutorChoice = LOCAL
+) -> Iterator[Any]:
     """Apply ``func`` to every item, yielding results as they complete.
 
-    With ``workers == 1`` the work runs in this process (no pool to start); otherwise in a
-    process pool whose workers pin BLAS to one thread. At most ``2 * workers`` chunks are in
-    flight, so a large portfolio is never held in the pool's queue all at once.
+    With the local executor and ``workers == 1`` the work runs in this process (no pool to
+    start); otherwise in a pool whose workers pin BLAS to one thread. At most ``2 * workers``
+    chunks are in flight, so a large portfolio is never held in the pool's queue all at once.
+    ``executor`` sends the chunks to a Dask cluster instead (:mod:`app.jobs.dask_executor`).
     """
+    if executor.kind == "dask":
+        from app.jobs.dask_executor import map_unordered_dask
+
+        yield from map_unordered_dask(func, items, workers, chunk, executor.scheduler)
+        return
     if workers <= 1:
         with threadpool_limits(limits=1):
             for item in items:
                 yield func(item)
         return
-    iterator = iter(items)
-    with ProcessPoolExecutor(max_workers=workers, initializer=pin_blas_threads) as pool:
+    batches = chunks(items, chunk)
+    with ProcessPoolExecutor(max_workers=workers, mp_context=pool_context(), initializer=start_worker, initargs=(os.getpid(),)) as pool:
         pending: set[Future] = set()
 
-        def submit_next() -> bool:
-            batch = [x for _, x in zip(range(chunk), iterator)]
-            if batch:
-                pending.add(pool.submit(_run_chunk, func, batch))
-            return bool(batch)
+        def submit_next() -> None:
+            batch = next(batches, None)
+            if batch is not None:
+                pending.add(pool.submit(run_chunk, func, batch))
 
         for _ in range(2 * workers):
-            if not submit_next():
-                break
+            submit_next()
         while pending:
             done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in done:
