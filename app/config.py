@@ -10,6 +10,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 MEBIBYTE = 1024 * 1024
+# Shorter tokens can be guessed by trying; a generated one has 43 characters (256 bits).
+MIN_TOKEN_LENGTH = 16
 
 
 @dataclass(frozen=True)
@@ -34,6 +36,15 @@ class Settings:
         Largest page a request may ask for (``limit`` of ``/api/series``).
     analysis_workers : int or None
         Worker processes of an analysis run started from the dashboard; None for one per CPU.
+    max_upload_series : int
+        Most series one uploaded file may hold; a file with more is refused whole.
+    max_upload_points : int
+        Most rows one series of an uploaded file may have; a longer series is rejected (the
+        others are still imported).
+    access_token : str or None
+        When set, every request must carry it (the ``lagdesk_token`` cookie set by the login
+        page, or the ``X-Lagdesk-Token`` header; state-changing API calls need the header).
+        ``lagdesk serve`` refuses a non-loopback ``host`` without one.
     """
 
     db_path: Path
@@ -43,6 +54,9 @@ class Settings:
     page_size: int = 50
     max_page_size: int = 500
     analysis_workers: int | None = None
+    max_upload_series: int = 10_000
+    max_upload_points: int = 100_000
+    access_token: str | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "db_path", Path(self.db_path))
@@ -52,6 +66,13 @@ class Settings:
             raise ValueError(f"max_upload_bytes ({self.max_upload_bytes}) must be > 0")
         if self.analysis_workers is not None and self.analysis_workers < 1:
             raise ValueError(f"analysis_workers ({self.analysis_workers}) must be at least 1")
+        if self.max_upload_series < 1 or self.max_upload_points < 1:
+            raise ValueError(
+                f"max_upload_series ({self.max_upload_series}) and max_upload_points "
+                f"({self.max_upload_points}) must be at least 1"
+            )
+        if self.access_token is not None and len(self.access_token) < MIN_TOKEN_LENGTH:
+            raise ValueError(f"an access token needs at least {MIN_TOKEN_LENGTH} characters")
         if not 1 <= self.page_size <= self.max_page_size:
             raise ValueError(f"page_size ({self.page_size}) must be between 1 and max_page_size ({self.max_page_size})")
 

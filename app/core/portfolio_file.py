@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import csv
 import io
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -27,6 +28,11 @@ DEFAULT_ID_COL = "series_id"
 DEFAULT_TIME_COL = "timestamp"
 DEFAULT_VALUE_COL = "value"
 FIRST_DATA_LINE = 2  # line 1 is the header
+# Integer steps beyond 2**53 are not exact as floats (and beyond 2**63 do not fit the store).
+MAX_INTEGER_STEP = 2**53
+# Dates are kept as nanoseconds since 1970 (pandas' default unit), which spans these years.
+STORABLE_YEARS = f"{pd.Timestamp.min.year + 1}-{pd.Timestamp.max.year - 1}"
+_ZONE_SUFFIX = r"(?i)(?<=\d)(z|[+-]\d\d:?\d\d)$"
 
 
 @dataclass
@@ -39,6 +45,15 @@ class RawSeries:
     series_id: str
     values: pd.Series
     lines: np.ndarray
+
+
+@dataclass(frozen=True)
+class ReadLimits:
+    """The most a file may hold: series (a whole file over it is refused) and observation rows
+    per series (a series over it is rejected, the others still read)."""
+
+    max_series: int
+    max_points: int
 
 
 @dataclass
@@ -57,6 +72,7 @@ def read_portfolio(
     time_col: str = DEFAULT_TIME_COL,
     value_col: str = DEFAULT_VALUE_COL,
     display_name: str | None = None,
+    limits: ReadLimits | None = None,
 ) -> PortfolioFile:
     """Read a long or wide CSV file into raw series.
 
@@ -70,6 +86,8 @@ def read_portfolio(
         Column names (``id_col`` and ``value_col`` are used by the long layout only).
     display_name : str, optional
         The name used in messages (e.g. the uploaded file's name); defaults to ``path``.
+    limits : ReadLimits, optional
+        Most series per file and rows per series (a server sets these for uploads).
 
     Raises
     ------
@@ -81,8 +99,22 @@ def read_portfolio(
         raise InputFileError(name, f"layout must be one of {', '.join(LAYOUTS)}, not {layout!r}")
     table = _read_table(Path(path), name)
     if layout == "long":
-        return _read_long(table, name, id_col, time_col, value_col)
-    return _read_wide(table, name, time_col)
+        return _read_long(table, name, id_col, time_col, value_col, limits)
+    return _read_wide(table, name, time_col, limits)
+
+
+def _check_limits(name: str, series_count: int, limits: ReadLimits | None) -> None:
+    if limits is not None and series_count > limits.max_series:
+        raise InputFileError(name, f"holds {series_count:,} series; at most {limits.max_series:,} are accepted in one file")
+
+
+def _too_many_points(series_id: str, lines: np.ndarray, limits: ReadLimits | None) -> SeriesProblem | None:
+    if limits is None or len(lines) <= limits.max_points:
+        return None
+    return SeriesProblem(
+        series_id, f"has {len(lines):,} rows; at most {limits.max_points:,} are accepted per series",
+        row=int(lines[limits.max_points]), flag="too_long",
+    )
 
 
 def _read_table(path: Path, name: str) -> pd.DataFrame:
@@ -97,10 +129,16 @@ def _read_table(path: Path, name: str) -> pd.DataFrame:
     except UnicodeDecodeError as exc:
         raise InputFileError(name, f"is not UTF-8 text (byte {exc.start} cannot be decoded)") from None
     try:
-        table = pd.read_csv(
-            io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True,
-            quoting=csv.QUOTE_MINIMAL, skip_blank_lines=False,
-        )
+        # index_col=False: a first data row longer than the header would otherwise silently
+        # turn its leading cells into a row index; pandas warns instead, and that is an error.
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            table = pd.read_csv(
+                io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True,
+                quoting=csv.QUOTE_MINIMAL, skip_blank_lines=False, index_col=False,
+            )
+    except pd.errors.ParserWarning:
+        raise InputFileError(name, f"line {FIRST_DATA_LINE} has more fields than the header") from None
     except (pd.errors.ParserError, csv.Error, ValueError) as exc:
         raise InputFileError(name, f"is not a readable CSV file ({str(exc).strip()})") from None
     table.columns = [str(c).strip() for c in table.columns]
@@ -130,25 +168,52 @@ def parse_timestamps(texts: pd.Series, name: str, lines: np.ndarray) -> pd.Index
     Raises
     ------
     InputFileError
-        Naming the first line whose timestamp cannot be read, or mixed time zones.
+        Naming the first line whose timestamp cannot be read, lies outside
+        :data:`STORABLE_YEARS`, or has another time zone than the first line's.
     """
     stripped = texts.str.strip()
-    as_int = pd.to_numeric(stripped, errors="coerce")
-    if as_int.notna().all() and (as_int == np.round(as_int)).all():
-        return pd.Index(as_int.astype(np.int64).to_numpy(), name="timestamp")
+    as_number = pd.to_numeric(stripped, errors="coerce")
+    is_step = (as_number == np.round(as_number)) & (as_number.abs() <= MAX_INTEGER_STEP)
+    if is_step.all():
+        return pd.Index(as_number.astype(np.int64).to_numpy(), name="timestamp")
+    if is_step.mean() > 0.5:  # mostly steps: the first cell that is not one is the culprit
+        _bad_timestamp(name, texts, lines, ~is_step.to_numpy(), "is not an integer step like the others")
     try:
         parsed = pd.to_datetime(stripped, errors="coerce", format="ISO8601")
         if parsed.isna().any():
             parsed = pd.to_datetime(stripped, errors="coerce", format="mixed")
     except (ValueError, TypeError) as exc:
-        raise InputFileError(name, f"timestamps cannot be read together ({exc}); mixed time zones?") from None
-    if parsed.isna().any():
-        bad = int(np.flatnonzero(parsed.isna().to_numpy())[0])
-        raise InputFileError(name, f"line {lines[bad]}: timestamp {texts.iloc[bad]!r} is not a date, time or integer step")
+        _mixed_zones(name, stripped, lines)
+        raise InputFileError(name, f"timestamps cannot be read together ({exc})") from None
+    _bad_timestamp(name, texts, lines, parsed.isna().to_numpy(), "is not a date, time or integer step")
     index = pd.DatetimeIndex(parsed, name="timestamp")
     if index.tz is not None:
         index = index.tz_convert("UTC").tz_localize(None)
-    return index
+    outside = (index < pd.Timestamp.min) | (index > pd.Timestamp.max)
+    _bad_timestamp(name, texts, lines, outside, f"is outside the years {STORABLE_YEARS} that can be stored")
+    return index.as_unit("ns")
+
+
+def _bad_timestamp(name: str, texts: pd.Series, lines: np.ndarray, bad: np.ndarray, why: str) -> None:
+    """Raise naming the first line where ``bad`` holds, if any."""
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise InputFileError(name, f"line {lines[i]}: timestamp {texts.iloc[i]!r} {why}")
+
+
+def _mixed_zones(name: str, stripped: pd.Series, lines: np.ndarray) -> None:
+    """Raise naming the first line whose time zone differs from the first line's, if any."""
+    zones = stripped.str.extract(_ZONE_SUFFIX, expand=False).fillna("")
+    zones = zones.replace({"z": "Z", "+00:00": "Z", "+0000": "Z"}).str.upper()
+    differs = (zones != zones.iloc[0]).to_numpy()
+    if differs.any():
+        i = int(np.flatnonzero(differs)[0])
+        first = zones.iloc[0] or "no time zone"
+        here = zones.iloc[i] or "no time zone"
+        raise InputFileError(
+            name, f"line {lines[i]}: timestamp {stripped.iloc[i]!r} has time zone {here}, but line {lines[0]} has "
+            f"{first}; give every timestamp the same time zone (or none)",
+        )
 
 
 def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndarray:
@@ -172,7 +237,9 @@ def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndar
     return numbers
 
 
-def _read_long(table: pd.DataFrame, name: str, id_col: str, time_col: str, value_col: str) -> PortfolioFile:
+def _read_long(
+    table: pd.DataFrame, name: str, id_col: str, time_col: str, value_col: str, limits: ReadLimits | None
+) -> PortfolioFile:
     _require_columns(table, name, [id_col, time_col, value_col])
     result = PortfolioFile(path=name)
     lines = table.index.to_numpy()
@@ -180,9 +247,14 @@ def _read_long(table: pd.DataFrame, name: str, id_col: str, time_col: str, value
     if (ids == "").any():
         bad = int(np.flatnonzero((ids == "").to_numpy())[0])
         raise InputFileError(name, f"line {lines[bad]}: empty series id in column {id_col!r}")
+    groups = ids.groupby(ids, sort=False).indices
+    _check_limits(name, len(groups), limits)
     index = parse_timestamps(table[time_col], name, lines)
-    for series_id, positions in ids.groupby(ids, sort=False).indices.items():
+    for series_id, positions in groups.items():
         series_lines = lines[positions]
+        if problem := _too_many_points(series_id, series_lines, limits):
+            result.problems.append(problem)
+            continue
         try:
             values = parse_values(table[value_col].iloc[positions], series_id, series_lines)
         except SeriesProblem as problem:
@@ -192,15 +264,19 @@ def _read_long(table: pd.DataFrame, name: str, id_col: str, time_col: str, value
     return result
 
 
-def _read_wide(table: pd.DataFrame, name: str, time_col: str) -> PortfolioFile:
+def _read_wide(table: pd.DataFrame, name: str, time_col: str, limits: ReadLimits | None) -> PortfolioFile:
     _require_columns(table, name, [time_col])
     value_cols = [c for c in table.columns if c != time_col]
     if not value_cols:
         raise InputFileError(name, f"wide layout needs at least one series column besides {time_col!r}")
+    _check_limits(name, len(value_cols), limits)
     result = PortfolioFile(path=name)
     lines = table.index.to_numpy()
     index = parse_timestamps(table[time_col], name, lines)
     for column in value_cols:
+        if problem := _too_many_points(column, lines, limits):
+            result.problems.append(problem)
+            continue
         try:
             values = parse_values(table[column], column, lines)
         except SeriesProblem as problem:

@@ -10,7 +10,12 @@ Rules (documented in DEVELOPERS.md as well):
   counted; longer runs are also interpolated, so that the analysis can run, but flagged
   ``long_gap`` so the reviewer knows the correlograms lean on invented values;
 * missing values at the start or end are dropped;
-* a series with fewer than :data:`MIN_POINTS` points, or whose values are all equal, cannot be
+* infinite values, and values beyond :data:`MAX_ABS_VALUE` in size (their squares overflow), are
+  an error naming the first;
+* a series whose grid would hold more than :data:`MAX_POINTS` points is refused before the grid
+  is built;
+* a series with fewer than :data:`MIN_POINTS` points, with fewer observed points than
+  :data:`MIN_OBSERVED_SHARE` of its grid, or whose values are all equal, cannot be
   identified and is reported as a :class:`~app.core.errors.SeriesProblem`; one with fewer
   than :data:`RECOMMENDED_POINTS` is analysed but flagged ``too_short`` (Box & Jenkins ask for
   at least about 50 observations; 30 is the floor in common practice).
@@ -30,6 +35,15 @@ from app.core.errors import SeriesProblem
 SHORT_GAP_MAX = 3
 MIN_POINTS = 12
 RECOMMENDED_POINTS = 30
+# Common practice: with more invented (interpolated) points than observed ones, the
+# correlograms describe the interpolation rather than the data.
+MIN_OBSERVED_SHARE = 0.5
+# Identification time and memory grow with the length (a 10^5-point series takes minutes and
+# about 3 GB); longer grids are refused before they are built.
+MAX_POINTS = 100_000
+# Squares of values up to 1e100 stay far below the largest double (about 1.8e308) even summed
+# over billions of points; no measured quantity comes near it.
+MAX_ABS_VALUE = 1e100
 Aggregation = Literal["mean", "sum", "last"]
 INTEGER_FREQ = "step"
 
@@ -81,7 +95,7 @@ def prepare_series(
     sid = str(series_id if series_id is not None else series.name)
     values = pd.Series(np.asarray(series.to_numpy(), dtype=float), index=series.index)
     line_of = pd.Series(lines if lines is not None else np.full(len(values), -1), index=series.index)
-    _reject_infinite(values, line_of, sid)
+    _reject_unusable_values(values, line_of, sid)
     order = np.argsort(values.index.to_numpy(), kind="stable")
     values, line_of = values.iloc[order], line_of.iloc[order]
     values = _resolve_duplicates(values, line_of, sid, aggregate)
@@ -111,6 +125,11 @@ def prepare_series(
             sid, f"has {observed} observations; at least {MIN_POINTS} are needed to identify a model",
             flag="too_short",
         )
+    if observed < MIN_OBSERVED_SHARE * prepared.n:
+        raise SeriesProblem(
+            sid, f"has {observed} observations on a grid of {prepared.n} {freq} points: most values would be "
+            "invented to fill the gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
+        )
     if np.ptp(filled) <= 1e-12 * max(1.0, float(np.abs(filled).max())):
         raise SeriesProblem(sid, f"is constant (every value is {filled[0]:g}); there is nothing to model", flag="constant")
     if observed < RECOMMENDED_POINTS:
@@ -118,15 +137,19 @@ def prepare_series(
     return prepared
 
 
-def _reject_infinite(values: pd.Series, line_of: pd.Series, sid: str) -> None:
-    bad = np.isinf(values.to_numpy())
+def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> None:
+    """Infinite values, and values so large that their squares (in variances, sums of squares
+    and likelihoods) would overflow, are refused, naming the first."""
+    size = np.abs(values.to_numpy())
+    bad = np.isinf(size) | (size > MAX_ABS_VALUE)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
         line = int(line_of.iloc[i])
-        raise SeriesProblem(
-            sid, f"value {values.iloc[i]} at {values.index[i]} is not finite",
-            row=line if line > 0 else None, flag="bad_value",
+        why = "is not finite" if np.isinf(size[i]) else (
+            f"is too large to analyse (beyond ±{MAX_ABS_VALUE:g} squares overflow); rescale the series"
         )
+        raise SeriesProblem(sid, f"value {values.iloc[i]:g} at {values.index[i]} {why}",
+                            row=line if line > 0 else None, flag="bad_value")
 
 
 def _resolve_duplicates(values: pd.Series, line_of: pd.Series, sid: str, aggregate: Aggregation | None) -> pd.Series:
@@ -150,10 +173,15 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
     if not isinstance(index, pd.DatetimeIndex):
         steps = pd.Series(np.diff(index.to_numpy().astype(np.int64)))
         step = int(steps.mode().min())
-        grid = pd.Index(np.arange(index[0], index[-1] + 1, step), name=index.name)
         freq = INTEGER_FREQ if step == 1 else f"{step} steps"
+        _check_grid_size((int(index[-1]) - int(index[0])) // step + 1, freq, sid)
+        grid = pd.Index(np.arange(index[0], index[-1] + 1, step), name=index.name)
     else:
         freq = _inferred_frequency(index) or _modal_frequency(index)
+        offset = pd.tseries.frequencies.to_offset(freq)
+        # Calendar offsets (months, business days) are never shorter than the closest pair.
+        step = pd.Timedelta(offset) if isinstance(offset, pd.offsets.Tick) else pd.Timedelta(np.diff(index.values).min())
+        _check_grid_size((index[-1] - index[0]) // step + 1, freq, sid)
         grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
     off = ~index.isin(grid)
     if off.any():
@@ -164,6 +192,16 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
             row=line if line > 0 else None, flag="irregular",
         )
     return freq, grid
+
+
+def _check_grid_size(points: int, freq: str, sid: str) -> None:
+    """Refuse a grid too large to identify, before it is built (a few stray timestamps far
+    apart at a fine spacing would otherwise ask for billions of points)."""
+    if points > MAX_POINTS:
+        raise SeriesProblem(
+            sid, f"would need {points:,} points on its {freq} grid; at most {MAX_POINTS:,} can be identified "
+            "(aggregate to a coarser frequency or keep a recent window)", flag="too_long",
+        )
 
 
 def _inferred_frequency(index: pd.DatetimeIndex) -> str | None:
@@ -180,7 +218,9 @@ def _modal_frequency(index: pd.DatetimeIndex) -> str:
     deltas = pd.Series(pd.TimedeltaIndex(np.diff(index.values))).value_counts()
     modal = pd.Timedelta(deltas.index[0])
     days = modal / pd.Timedelta(days=1)
-    starts = bool((index.day == 1).all())
+    # Month, quarter and year grids anchor on the first day or the last, whichever most
+    # timestamps fall on, so one stray date is reported rather than the whole grid shifted.
+    starts = bool((index.day == 1).sum() >= index.is_month_end.sum())
     if 28 <= days <= 31:
         return "MS" if starts else "ME"
     if 89 <= days <= 92:

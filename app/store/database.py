@@ -34,6 +34,10 @@ class UnknownSeries(LagdeskError):
         super().__init__(f"no series {series_id!r} in the database")
 
 
+class StorageUnavailable(LagdeskError):
+    """The database exists but cannot be written here (read-only file or folder)."""
+
+
 def resolve_db_path(explicit: str | None) -> Path:
     """The database file to use: ``--db``, else ``$LAGDESK_DB``, else ``./lagdesk.db``."""
     if explicit:
@@ -70,6 +74,11 @@ def open_database(path: str | Path) -> sqlite_utils.Database:
         _migrate(db, path)
     except sqlite3.DatabaseError as exc:
         db.close()
+        if not os.access(path.parent, os.W_OK) or (path.exists() and not os.access(path, os.W_OK)):
+            raise StorageUnavailable(
+                f"{path}: the database file (or its folder) is read-only; Lagdesk keeps its journal "
+                f"beside the file and needs to write there ({exc})"
+            ) from None
         raise LagdeskError(f"{path}: cannot be used as a Lagdesk database ({exc})") from None
     except BaseException:
         db.close()
@@ -119,6 +128,23 @@ def require_series(db: sqlite_utils.Database, series_id: str) -> None:
     """Raise :class:`UnknownSeries` unless the database holds ``series_id``."""
     if db.execute("SELECT 1 FROM series WHERE series_id = ?", [series_id]).fetchone() is None:
         raise UnknownSeries(series_id)
+
+
+def storage_error_text(exc: sqlite3.Error, path: str | Path | None = None) -> str:
+    """One line on a database failure for a person: what happened and that nothing half-done
+    was kept (every write happens in a transaction, which SQLite rolls back on failure)."""
+    detail = str(exc).strip() or type(exc).__name__
+    lowered = detail.lower()
+    if "full" in lowered:
+        cause = "the disk is full"
+    elif "readonly" in lowered or "read-only" in lowered:
+        cause = "the database file (or its folder) is read-only"
+    elif "locked" in lowered or "busy" in lowered:
+        cause = f"another process kept the database busy for more than {BUSY_TIMEOUT_S} s"
+    else:
+        cause = "the database could not be written"
+    where = f"{path}: " if path is not None else ""
+    return f"{where}{cause} ({detail}); the change was rolled back, the database is as it was before"
 
 
 def utc_now() -> str:

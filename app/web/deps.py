@@ -8,9 +8,13 @@ import sqlite_utils
 from fastapi import Depends, Request
 
 from app.config import Settings
+from app.core.errors import OrderError
 from app.store.database import open_database
 
 REVIEWER_COOKIE = "lagdesk_reviewer"
+# The largest integer SQLite stores: ids, versions and offsets beyond it are refused with 422
+# at the door instead of overflowing in the driver.
+SQLITE_MAX_INTEGER = 2**63 - 1
 REVIEWER_MAX_LENGTH = 80
 
 
@@ -40,3 +44,20 @@ def clean_reviewer(name: str | None) -> str:
 def get_reviewer(request: Request) -> str:
     """The reviewer name remembered in the browser's cookie ('' until it is given once)."""
     return clean_reviewer(request.cookies.get(REVIEWER_COOKIE))
+
+
+def whole_numbers(text: str, count: int, name: str) -> list[int]:
+    """``count`` comma-separated whole numbers from a query parameter (``order=1,1,0``).
+
+    Raises
+    ------
+    OrderError
+        When ``text`` is not that (answered with 422).
+    """
+    try:
+        values = [int(part) for part in text.split(",")]
+    except ValueError:
+        values = []
+    if len(values) != count:
+        raise OrderError(f"{name} must be {count} comma-separated whole numbers, not {text!r}")
+    return values

@@ -6,14 +6,17 @@ names what is wrong; the handlers give each kind its status code.
 
 from __future__ import annotations
 
+import sqlite3
+
 from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from app.core.errors import InputFileError, LagdeskError
 from app.jobs.analyze import AnalysisInProgress
-from app.store.database import UnknownSeries
+from app.store.database import StorageUnavailable, UnknownSeries, storage_error_text
 from app.store.verdicts import StaleVersion
+from app.web.security import CsrfRejected
 from app.web.templating import templates
 from app.web.uploads import UploadTooLarge
 
@@ -21,7 +24,8 @@ API_PREFIX = "/api/"
 
 
 def status_of(exc: LagdeskError) -> int:
-    """404 unknown series, 409 stale verdict or busy analysis, 400 unusable file, 413 file too large, 422 otherwise."""
+    """404 unknown series, 409 stale verdict or busy analysis, 400 unusable file, 413 file too large,
+    403 form without its CSRF token, 503 database that cannot be written, 422 otherwise."""
     if isinstance(exc, UnknownSeries):
         return 404
     if isinstance(exc, (StaleVersion, AnalysisInProgress)):
@@ -30,6 +34,10 @@ def status_of(exc: LagdeskError) -> int:
         return 400
     if isinstance(exc, UploadTooLarge):
         return 413
+    if isinstance(exc, CsrfRejected):
+        return 403
+    if isinstance(exc, StorageUnavailable):
+        return 503
     return 422
 
 
@@ -50,6 +58,12 @@ async def _http_error(request: Request, exc: StarletteHTTPException) -> Response
     return error_response(request, exc.status_code, str(exc.detail))
 
 
+async def _storage_error(request: Request, exc: sqlite3.Error) -> Response:
+    """A full disk, a read-only file or a database busy past the timeout: 503, nothing half-written."""
+    return error_response(request, 503, storage_error_text(exc))
+
+
 def install_error_handlers(app: FastAPI) -> None:
     app.add_exception_handler(LagdeskError, _lagdesk_error)
+    app.add_exception_handler(sqlite3.Error, _storage_error)
     app.add_exception_handler(StarletteHTTPException, _http_error)

@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
-from typing import Literal
+from typing import Annotated, Literal
 
-from pydantic import BaseModel
+from pydantic import BaseModel, Field
 
 from app.core.errors import OrderError
+from app.web.deps import SQLITE_MAX_INTEGER
 from app.web.review import CUSTOM_FIELDS
 
 SUGGESTION_KEY = "1"
@@ -31,7 +32,7 @@ class DecisionForm(BaseModel):
     s: str = "0"
     note: str = ""
     reviewer: str = ""
-    version: int = 0
+    version: Annotated[int, Field(ge=0, le=SQLITE_MAX_INTEGER)] = 0
     fragment: bool = False
 
     def custom_fields(self) -> dict:

@@ -8,16 +8,22 @@ from fastapi.staticfiles import StaticFiles
 from app import __version__
 from app.config import Settings
 from app.web.errors import install_error_handlers
-from app.web.routes import api, pages
+from app.web.routes import access, api, pages
+from app.web.security import AccessGuard
 from app.web.templating import STATIC_DIR
 
 
 def create_app(settings: Settings) -> FastAPI:
     """The FastAPI app serving the pages, the JSON API and the static files for ``settings``."""
-    app = FastAPI(title="Lagdesk", version=__version__, summary="Review ARIMA orders for a portfolio of series")
+    app = FastAPI(title="Lagdesk", version=__version__, summary="Review ARIMA orders for a portfolio of series",
+                  # FastAPI's documentation pages load their scripts from a CDN; nothing may leave
+                  # this machine, so only the schema itself is served.
+                  docs_url=None, redoc_url=None)
     app.state.settings = settings
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+    app.include_router(access.router)
     app.include_router(pages.router)
     app.include_router(api.router)
     install_error_handlers(app)
+    app.add_middleware(AccessGuard, settings=settings)
     return app

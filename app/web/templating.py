@@ -9,9 +9,11 @@ from urllib.parse import quote
 from fastapi.templating import Jinja2Templates
 from fastapi import Request
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, pass_context
+from markupsafe import Markup
 
 import app
 from app.web.deps import get_reviewer
+from app.web.security import CSRF_FIELD, csrf_token
 
 # templates/ and static/ sit beside the package, found from its location, not the working directory.
 PROJECT_DIR = Path(app.__file__).resolve().parent.parent
@@ -102,11 +104,18 @@ def url_for(context: dict, name: str, /, **path_params) -> str:
     return context["request"].app.url_path_for(name, **path_params)
 
 
+@pass_context
+def csrf_field(context: dict) -> Markup:
+    """The hidden CSRF field every state-changing form carries (see :mod:`app.web.security`)."""
+    return Markup('<input type="hidden" name="{}" value="{}">').format(CSRF_FIELD, csrf_token(context["request"]))
+
+
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
     env.filters.update(number=number, p_value=p_value, flag_words=flag_words, quote_path=quote_path,
                        freq_words=freq_words, when=when, significant=significant)
-    env.globals.update(order_label=order_label, known_flags=sorted(FLAG_WORDS), url_for=url_for)
+    env.globals.update(order_label=order_label, known_flags=sorted(FLAG_WORDS), url_for=url_for,
+                       csrf_field=csrf_field)
     return env
 
 

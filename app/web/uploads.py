@@ -10,8 +10,9 @@ import sqlite_utils
 from fastapi import UploadFile
 from pydantic import BaseModel
 
+from app.config import Settings
 from app.core.errors import LagdeskError
-from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL
+from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, ReadLimits
 from app.store.imports import ImportReport, import_portfolio
 
 COPY_CHUNK = 1024 * 1024
@@ -36,16 +37,19 @@ def upload_name(upload: UploadFile) -> str:
     return Path((upload.filename or "upload.csv").replace("\\", "/")).name or "upload.csv"
 
 
-def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: UploadOptions, max_bytes: int) -> ImportReport:
-    """Copy the upload to a private temporary file (refusing it past ``max_bytes``) and import it.
+def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: UploadOptions, settings: Settings) -> ImportReport:
+    """Copy the upload to a private temporary file (refusing it past ``settings.max_upload_bytes``)
+    and import it within the settings' series and points limits.
 
     Raises
     ------
     UploadTooLarge
-        When the file is bigger than ``max_bytes``; nothing is stored.
+        When the file is bigger than the limit; nothing is stored.
     InputFileError
-        When the file cannot be used (see :func:`app.store.imports.import_portfolio`).
+        When the file cannot be used or holds too many series (see
+        :func:`app.store.imports.import_portfolio`).
     """
+    max_bytes = settings.max_upload_bytes
     name = upload_name(upload)
     with tempfile.TemporaryDirectory(prefix="lagdesk-upload-") as folder:
         path = Path(folder) / name
@@ -60,4 +64,5 @@ def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: Upload
             db, path, layout=options.layout, id_col=options.id_col.strip() or DEFAULT_ID_COL,
             time_col=options.time_col.strip() or DEFAULT_TIME_COL,
             value_col=options.value_col.strip() or DEFAULT_VALUE_COL, display_name=name,
+            limits=ReadLimits(settings.max_upload_series, settings.max_upload_points),
         )

@@ -9,7 +9,7 @@ from app.core.errors import LagdeskError
 from app.store.database import DEFAULT_DB_NAME, open_database, resolve_db_path, schema_version
 from app.store.migrations import MIGRATION_SET, MIGRATIONS, STEPS
 
-TABLES = {"imports", "series", "observations", "runs", "analyses", "verdicts", "verdict_history"}
+TABLES = {"imports", "series", "observations", "runs", "analyses", "verdicts", "verdict_history", "order_fits"}
 
 
 def test_open_database_sets_wal_foreign_keys_and_busy_timeout(fresh_db):

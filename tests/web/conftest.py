@@ -10,6 +10,7 @@ from fastapi.testclient import TestClient
 from app.config import Settings
 from app.store.database import open_database
 from app.web.main import create_app
+from app.web.security import CSRF_COOKIE, CSRF_HEADER
 from web_portfolio import build_database, synthetic_series, write_long_csv
 
 
@@ -42,10 +43,18 @@ def settings(db_path) -> Settings:
     return Settings(db_path=db_path, page_size=4, analysis_workers=1)
 
 
+def with_csrf(test_client: TestClient) -> TestClient:
+    """A client that sends this browser's CSRF token with every request, as the pages' forms do
+    (one page visit sets the cookie; app.web.security checks it on every form post)."""
+    test_client.get("/login")
+    test_client.headers[CSRF_HEADER] = test_client.cookies[CSRF_COOKIE]
+    return test_client
+
+
 @pytest.fixture
 def client(settings):
     with TestClient(create_app(settings)) as test_client:
-        yield test_client
+        yield with_csrf(test_client)
 
 
 @pytest.fixture
