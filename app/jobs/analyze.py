@@ -27,7 +27,8 @@ import sqlite_utils
 
 from app.core.errors import LagdeskError
 from app.core.identify import ENGINE_VERSION, EngineOptions
-from app.jobs.pool import default_workers, map_unordered
+from app.jobs.recheck import recheck_after_analysis
+from app.jobs.pool import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import open_database, write_transaction
@@ -82,6 +83,7 @@ class AnalysisRun:
     series_ids: list[str]
     workers: int
     options: EngineOptions
+    executor: ExecutorChoice = LOCAL
     _fingerprints: dict[str, str] = field(default_factory=dict)
 
     def execute(self, on_progress: ProgressCallback | None = None) -> dict:
@@ -94,7 +96,7 @@ class AnalysisRun:
         try:
             if on_progress:
                 on_progress(progress)
-            for outcome in map_unordered(identify_task, self._tasks(), self.workers):
+            for outcome in map_unordered(identify_task, self._tasks(), self.workers, executor=self.executor):
                 self._commit(outcome, progress)
                 if on_progress:
                     on_progress(progress)
@@ -123,6 +125,7 @@ class AnalysisRun:
             else:
                 save_analysis(self.db, outcome.series_id, fingerprint, outcome.result, self.run_id)
             record_progress(self.db, self.run_id, progress.done + 1, progress.failed + int(failed))
+        recheck_after_analysis(self.db, outcome.series_id, outcome.result)
         progress.done += 1
         if failed:
             progress.failed += 1
@@ -138,7 +141,12 @@ class AnalysisRun:
 
 
 def begin_analysis(
-    db_path: str | Path, *, workers: int, everything: bool = False, options: EngineOptions = EngineOptions()
+    db_path: str | Path,
+    *,
+    workers: int,
+    everything: bool = False,
+    options: EngineOptions = EngineOptions(),
+    executor: ExecutorChoice = LOCAL,
 ) -> AnalysisRun:
     """Take the database's run lock, close runs left by dead processes, choose the series
     (missing or stale analysis, or all with ``everything``) and record the start of a run.
@@ -166,7 +174,7 @@ def begin_analysis(
                     if run["state"] == "running":
                         finish_run(db, run["run_id"], "interrupted")
                 series_ids = series_ids_to_analyse(db, everything)
-                settings = {"workers": workers, "everything": everything, "options": asdict(options)}
+                settings = {"workers": workers, "everything": everything, "options": asdict(options), "executor": asdict(executor)}
                 run_id = start_run(db, settings, len(series_ids), ENGINE_VERSION)
             except BaseException:
                 _release_fd(lock_fd)
@@ -175,7 +183,7 @@ def begin_analysis(
             db.close()
             raise
         _held[path] = run_id
-    return AnalysisRun(db, path, lock_fd, run_id, series_ids, workers, options)
+    return AnalysisRun(db, path, lock_fd, run_id, series_ids, workers, options, executor)
 
 
 def run_analysis(
@@ -184,6 +192,7 @@ def run_analysis(
     workers: int,
     everything: bool = False,
     options: EngineOptions = EngineOptions(),
+    executor: ExecutorChoice = LOCAL,
     on_progress: ProgressCallback | None = None,
 ) -> dict:
     """Analyse every series whose analysis is missing or stale (or all), in this thread.
@@ -191,7 +200,7 @@ def run_analysis(
     Returns the run record (:func:`app.store.runs.get_run`) once the run is closed.
     ``on_progress`` is called once the series are chosen and after every committed result.
     """
-    run = begin_analysis(db_path, workers=workers, everything=everything, options=options)
+    run = begin_analysis(db_path, workers=workers, everything=everything, options=options, executor=executor)
     return run.execute(on_progress)
 
 

@@ -8,9 +8,10 @@ rejects that series, with the reason and line, and the good series are still sto
 A series that is already stored is merged: new timestamps are appended, changed values
 updated; an empty cell never erases a stored value. Its fingerprint (SHA-256 of the
 regularised values and their timestamps) is recomputed on the merged data; when it changes,
-the stored analysis becomes stale, and an approved or overridden verdict is marked for
-recheck. Series that are too short or constant are rejected here, as the engine could not
-analyse them.
+the stored analysis becomes stale. Verdicts are left as they are: each records the fingerprint
+of the data it was decided on, and the next analysis of changed data decides whether an
+approved order still holds (:mod:`app.jobs.recheck`). Series that are too short or constant are
+rejected here, as the engine could not analyse them.
 """
 
 from __future__ import annotations
@@ -32,12 +33,13 @@ from app.core.portfolio_file import (
     DEFAULT_VALUE_COL,
     PortfolioFile,
     RawSeries,
+    ReadLimits,
     read_portfolio,
 )
 from app.core.prepare import PreparedSeries, prepare_series
 from app.store.database import utc_now, write_transaction
 from app.store.timestamps import DATETIME, index_from_keys, time_kind, timestamp_keys
-from app.store.verdicts import add_pending, mark_recheck
+from app.store.verdicts import add_pending
 
 _NOT_IN_FILE = -1  # the "line" of an observation that comes from the database, not the file
 
@@ -74,7 +76,6 @@ class _SeriesPlan:
     fingerprint: str
     observed: int
     is_new: bool
-    fingerprint_changed: bool
     new_rows: list[tuple] = field(default_factory=list)  # (ts, value) to insert
     changed_rows: list[tuple] = field(default_factory=list)  # (ts, value) to update
 
@@ -91,15 +92,17 @@ def import_portfolio(
     time_col: str = DEFAULT_TIME_COL,
     value_col: str = DEFAULT_VALUE_COL,
     display_name: str | None = None,
+    limits: ReadLimits | None = None,
 ) -> ImportReport:
-    """Read, check and store a portfolio file (see the module docstring for the rules).
+    """Read, check and store a portfolio file (see the module docstring for the rules);
+    ``limits`` bounds the series and rows a file may hold (see :func:`read_portfolio`).
 
     Raises
     ------
     InputFileError
         When the file cannot be used at all; the database is then unchanged.
     """
-    portfolio = read_portfolio(path, layout, id_col, time_col, value_col, display_name)
+    portfolio = read_portfolio(path, layout, id_col, time_col, value_col, display_name, limits)
     # Plan without holding the write lock (preparing thousands of series takes seconds, and an
     # analysis run writes meanwhile); only imports change observations, so the plan still holds
     # if no import committed since.
@@ -160,7 +163,7 @@ def _plan_series(db: sqlite_utils.Database, raw: RawSeries) -> _SeriesPlan:
     """Merge the file's observations of one series with the stored ones, and check the result."""
     sid = raw.series_id
     kind = time_kind(raw.values.index)
-    row = db.execute("SELECT time_kind, fingerprint FROM series WHERE series_id = ?", [sid]).fetchone()
+    row = db.execute("SELECT time_kind FROM series WHERE series_id = ?", [sid]).fetchone()
     stored: dict = {}
     if row is not None:
         if row[0] != kind:
@@ -179,15 +182,13 @@ def _plan_series(db: sqlite_utils.Database, raw: RawSeries) -> _SeriesPlan:
         lines = np.concatenate([lines, np.full(len(kept), _NOT_IN_FILE)])
     merged = pd.Series(values + [stored[key] for key in kept], index=index)
     prepared = prepare_series(merged, sid, lines)
-    new_fingerprint = fingerprint(prepared)
     return _SeriesPlan(
         series_id=sid,
         kind=kind,
         prepared=prepared,
-        fingerprint=new_fingerprint,
+        fingerprint=fingerprint(prepared),
         observed=len(stored) + len(new_rows),
         is_new=row is None,
-        fingerprint_changed=row is not None and row[1] != new_fingerprint,
         new_rows=new_rows,
         changed_rows=changed_rows,
     )
@@ -253,9 +254,6 @@ def _write(
         "fingerprint = :fingerprint, updated_import_id = :import_id WHERE series_id = :series_id",
         [_series_columns(p, report.import_id) for p in written if not p.is_new],
     )
-    for plan in written:
-        if plan.fingerprint_changed:
-            mark_recheck(db, plan.series_id, f"the data changed in import {report.import_id} ({file})")
     return report
 
 

@@ -21,6 +21,17 @@ analyses         at most one row per series: the state (complete or failed, with
 analysis_results the engine's result dict as JSON, for each complete analysis
 verdicts         the reviewer's current decision per series, with a version number
 verdict_history  every change of a verdict, oldest first (from status, to status, who, when, note)
+
+Version 2
+---------
+verdicts.data_sha256  the fingerprint of the data a verdict was decided on (that of the stored
+                      analysis the reviewer saw, else of the series); filled for approved and
+                      overridden verdicts of older files with the series' current fingerprint, which
+                      is what they were decided on, as version 1 sent such a verdict to recheck
+                      whenever the data changed
+order_fits            per series, the parameters of the latest refit of a chosen order that was not
+                      among the analysis' candidates (for the export), with the fingerprint of the
+                      data, the model (order, seasonal order, trend, transform) and engine version
 """
 
 from __future__ import annotations
@@ -149,7 +160,28 @@ def initial_schema(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
-STEPS = (initial_schema,)
+def verdict_data_fingerprint(db: sqlite_utils.Database) -> None:
+    """Version 2: the data fingerprint of each verdict, and the refits of chosen orders."""
+    db.execute("ALTER TABLE verdicts ADD COLUMN data_sha256 TEXT")
+    db.execute(
+        "UPDATE verdicts SET data_sha256 = (SELECT fingerprint FROM series WHERE series.series_id = verdicts.series_id) "
+        "WHERE status IN ('approved', 'overridden')"
+    )
+    db.execute(
+        """
+        CREATE TABLE order_fits (
+            series_id TEXT PRIMARY KEY REFERENCES series (series_id),
+            fingerprint TEXT NOT NULL,
+            model TEXT NOT NULL,
+            parameters TEXT NOT NULL,
+            engine_version TEXT NOT NULL,
+            fitted_at TEXT NOT NULL
+        ) STRICT
+        """
+    )
+
+
+STEPS = (initial_schema, verdict_data_fingerprint)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

@@ -4,6 +4,12 @@ Every series gets a ``pending`` verdict at version 0 when it is first imported. 
 raises the version by one and appends a row to the history. A change names the version it
 was based on; when that is no longer the current one (another reviewer, or new data, got
 there first) it is refused with :class:`StaleVersion`, so no decision is ever lost silently.
+
+A decision records the fingerprint of the data it was made on (:func:`decision_fingerprint`):
+that of the stored analysis the reviewer was shown, or of the series when there is none. New
+data leave the verdict alone; the next analysis refits the order and either sends the verdict
+to ``recheck`` (:func:`mark_recheck`) or records that the order still holds on the new data
+(:func:`confirm_on_new_data`).
 """
 
 from __future__ import annotations
@@ -130,12 +136,13 @@ def set_verdict(
     with write_transaction(db):
         current = get_verdict(db, series_id)
         decided_at = utc_now() if status != "pending" else None
+        seen = _fingerprint_seen(db, series_id) if status != "pending" else None
         updated = db.execute(
             "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
-            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL "
+            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ? "
             "WHERE series_id = ? AND version = ?",
             [status, _dumps(new["order"]), _dumps(new["seasonal_order"]), json.dumps(new["transform"]),
-             new["note"], new["reviewer"], decided_at, series_id, version],
+             new["note"], new["reviewer"], decided_at, seen, series_id, version],
         )
         if updated.rowcount != 1:
             raise StaleVersion(series_id, version, current)
@@ -164,6 +171,45 @@ def mark_recheck(db: sqlite_utils.Database, series_id: str, reason: str) -> None
             [reason, series_id],
         )
         _append_history(db, series_id, current["status"], reviewer=SYSTEM_REVIEWER, note=reason)
+
+
+def confirm_on_new_data(db: sqlite_utils.Database, series_id: str, data_sha256: str, note: str, version: int) -> bool:
+    """Record that an approved or overridden order still holds on new data.
+
+    The verdict keeps its status, order, reviewer and note; its data fingerprint becomes
+    ``data_sha256`` and the history gets a row by Lagdesk with ``note``. Nothing happens (and
+    False is returned) when the verdict is no longer at ``version`` or no longer decided: a
+    reviewer got there first.
+    """
+    with write_transaction(db):
+        current = get_verdict(db, series_id)
+        if current["version"] != version or current["status"] not in DECIDED:
+            return False
+        db.execute(
+            "UPDATE verdicts SET data_sha256 = ?, version = version + 1 WHERE series_id = ?",
+            [data_sha256, series_id],
+        )
+        _append_history(db, series_id, current["status"], reviewer=SYSTEM_REVIEWER, note=note)
+    return True
+
+
+def decision_fingerprint(db: sqlite_utils.Database, series_id: str) -> str | None:
+    """The fingerprint of the data the series' verdict was decided (or last confirmed) on;
+    None for a series never decided."""
+    row = db.execute("SELECT data_sha256 FROM verdicts WHERE series_id = ?", [series_id]).fetchone()
+    if row is None:
+        require_series(db, series_id)
+    return row[0]
+
+
+def _fingerprint_seen(db: sqlite_utils.Database, series_id: str) -> str | None:
+    """The data a reviewer judged: the stored analysis' data, else the series' current data."""
+    row = db.execute(
+        "SELECT coalesce((SELECT fingerprint FROM analyses WHERE series_id = ?), "
+        "(SELECT fingerprint FROM series WHERE series_id = ?))",
+        [series_id, series_id],
+    ).fetchone()
+    return row[0]
 
 
 def _append_history(

@@ -18,7 +18,7 @@ from app.store.analyses import analysis_record, save_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio, list_imports
 from app.store.series import get_series, load_series, series_fingerprint, series_ids_to_analyse
-from app.store.verdicts import get_verdict, set_verdict, verdict_history
+from app.store.verdicts import decision_fingerprint, get_verdict, set_verdict, verdict_history
 
 
 def approve(db, series_id):
@@ -97,7 +97,8 @@ def test_import_rejects_bad_series_by_name_and_line_and_keeps_the_good_ones(fres
     assert list_imports(fresh_db)[0].rejected == report.rejected
 
 
-def test_reimport_with_changed_values_updates_and_makes_the_analysis_stale(fresh_db, write_csv, monthly, relabel):
+def test_reimport_with_changed_values_updates_and_makes_the_analysis_stale_leaving_the_verdict(
+        fresh_db, write_csv, monthly, relabel):
     a = monthly(4)
     import_portfolio(fresh_db, write_csv("v1.csv", {"a": a, "b": monthly(5)}))
     old_fingerprint = series_fingerprint(fresh_db, "a")
@@ -112,11 +113,11 @@ def test_reimport_with_changed_values_updates_and_makes_the_analysis_stale(fresh
     assert load_series(fresh_db, "a").iloc[7] == changed.iloc[7]
     assert analysis_record(fresh_db, "a")["state"] == "stale"
     assert series_ids_to_analyse(fresh_db) == ["a", "b"]  # a is stale, b was never analysed
-    verdict = get_verdict(fresh_db, "a")
-    assert verdict["status"] == "recheck" and verdict["order"] == approved["order"]
-    assert f"import {report.import_id}" in verdict["recheck_reason"]
-    assert [(h["from_status"], h["status"]) for h in verdict_history(fresh_db, "a")] == [
-        ("pending", "approved"), ("approved", "recheck")]
+    # The verdict stays as decided, on the data it was decided on: the next analysis judges
+    # whether the order still holds (app.jobs.recheck, tested in tests/jobs/test_recheck.py).
+    assert get_verdict(fresh_db, "a") == approved
+    assert decision_fingerprint(fresh_db, "a") == old_fingerprint
+    assert [(h["from_status"], h["status"]) for h in verdict_history(fresh_db, "a")] == [("pending", "approved")]
 
 
 def test_unchanged_reimport_is_a_no_op(fresh_db, write_csv, monthly, relabel, snapshot):
@@ -229,7 +230,7 @@ def test_a_failure_while_writing_rolls_back_the_whole_import(fresh_db, write_csv
     def disk_full(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr(imports_module, "mark_recheck", disk_full)
+    monkeypatch.setattr(imports_module, "add_pending", disk_full)
     changed = a.copy()
     changed.iloc[0] += 1.0
     with pytest.raises(OSError, match="disk full"):

@@ -5,13 +5,19 @@ from __future__ import annotations
 import threading
 
 import pytest
+import sqlite_utils
 
 from app.core.errors import OrderError
+from app.store.analyses import save_analysis
 from app.store.database import UnknownSeries, open_database
 from app.store.imports import import_portfolio
+from app.store.migrations import MIGRATIONS
+from app.store.series import series_fingerprint
 from app.store.verdicts import (
     InvalidVerdict,
     StaleVersion,
+    confirm_on_new_data,
+    decision_fingerprint,
     get_verdict,
     mark_recheck,
     set_verdict,
@@ -137,3 +143,52 @@ def test_verdicts_of_an_unknown_series_are_refused(portfolio_db):
         set_verdict(portfolio_db, "zzz", status="parked", order=None, seasonal_order=None, version=0)
     with pytest.raises(UnknownSeries):
         mark_recheck(portfolio_db, "zzz", "why")
+
+
+def test_a_decision_records_the_data_the_reviewer_saw(portfolio_db, write_csv, monthly, relabel):
+    assert decision_fingerprint(portfolio_db, "a") is None  # never decided
+    first = series_fingerprint(portfolio_db, "a")
+    save_analysis(portfolio_db, "a", first, relabel("a"), None)
+    changed = monthly(1)
+    changed.iloc[3] += 1.0
+    import_portfolio(portfolio_db, write_csv("v2.csv", {"a": changed}))
+    assert series_fingerprint(portfolio_db, "a") != first
+    # Decided while the stored analysis is of the older data: that is the data the reviewer judged.
+    set_verdict(portfolio_db, "a", status="approved", order=[1, 0, 0], seasonal_order=None, version=0)
+    assert decision_fingerprint(portfolio_db, "a") == first
+    # Without an analysis, the series' current data.
+    set_verdict(portfolio_db, "b", status="parked", order=None, seasonal_order=None, version=0)
+    assert decision_fingerprint(portfolio_db, "b") == series_fingerprint(portfolio_db, "b")
+
+
+def test_confirm_on_new_data_keeps_the_decision_and_records_the_check(portfolio_db):
+    decided = set_verdict(portfolio_db, "a", status="approved", order=[1, 0, 0], seasonal_order=None,
+                          reviewer="ann", note="plain AR(1)", version=0)
+    assert not confirm_on_new_data(portfolio_db, "a", "f" * 64, "checked", version=0)  # stale version
+    assert confirm_on_new_data(portfolio_db, "a", "f" * 64, "AR(1) still holds", version=1)
+    verdict = get_verdict(portfolio_db, "a")
+    assert verdict == {**decided, "version": 2}
+    assert decision_fingerprint(portfolio_db, "a") == "f" * 64
+    last = verdict_history(portfolio_db, "a")[-1]
+    assert (last["from_status"], last["status"], last["note"], last["reviewer"]) == (
+        "approved", "approved", "AR(1) still holds", "lagdesk")
+    assert not confirm_on_new_data(portfolio_db, "b", "f" * 64, "checked", version=0)  # pending: nothing to keep
+
+
+def test_upgrading_an_older_file_fills_the_fingerprint_of_decided_verdicts(tmp_path, write_csv, monthly):
+    path = tmp_path / "old.db"
+    old = sqlite_utils.Database(path)
+    MIGRATIONS.apply(old, stop_before="verdict_data_fingerprint")
+    import_portfolio(old, write_csv("p.csv", {"a": monthly(1), "b": monthly(2), "c": monthly(3)}))
+    old.execute("UPDATE verdicts SET status = 'approved', arima_order = '[1, 0, 0]', "
+                "seasonal_order = '[0, 0, 0, 0]', version = 1, decided_at = 'then' WHERE series_id = 'a'")
+    old.execute("UPDATE verdicts SET status = 'recheck', arima_order = '[1, 0, 0]', "
+                "seasonal_order = '[0, 0, 0, 0]', version = 2, decided_at = 'then' WHERE series_id = 'c'")
+    old.conn.commit()
+    old.close()
+    db = open_database(path)
+    # Version 1 sent a decided verdict to recheck on any change of data, so an approved one was
+    # decided on the current data; a recheck one was not, and a pending one was never decided.
+    assert decision_fingerprint(db, "a") == series_fingerprint(db, "a")
+    assert (decision_fingerprint(db, "b"), decision_fingerprint(db, "c")) == (None, None)
+    db.close()

@@ -1,0 +1,189 @@
+"""The hand-off to forecasting: the decided orders as one JSON document or one CSV table.
+
+The JSON document (schema ``schemas/lagdesk-orders.schema.json``)::
+
+    {"schema": "lagdesk-orders", "version": 1, "generated_at": "...",
+     "orders": [{field: value, ...}, ...], "left_out": {"pending": n, "parked": n, "recheck": n}}
+
+with the record fields of :data:`app.store.orders.ORDER_FIELDS`. The CSV has one header row
+with the same field names and one row per order: ``period`` empty for a non-seasonal model,
+``include_constant`` ``true``/``false``, ``transform`` ``none``, ``log`` or the JSON object
+``{"box_cox": lambda}``, ``parameters`` as a JSON object. A text cell that a spreadsheet would
+read as a formula (one starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return)
+gets a leading single quote, as OWASP's guidance on CSV injection advises; numbers are left as
+they are, so a negative value stays a number.
+
+A file is written whole or not at all: into a temporary file in the same folder, flushed to
+disk, then renamed over the target (:func:`os.replace` is atomic on one file system).
+
+References
+----------
+.. [1] OWASP Foundation. *CSV Injection*. https://owasp.org/www-community/attacks/CSV_Injection
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+import re
+import tempfile
+from collections.abc import Sequence
+from pathlib import Path
+
+import sqlite_utils
+
+from app.core.errors import LagdeskError
+from app.jobs.order_fits import fill_parameters
+from app.store.database import open_database, utc_now
+from app.store.orders import ORDER_FIELDS, export_snapshot
+from app.store.series import series_fingerprint
+from app.store.verdicts import DECIDED
+
+SCHEMA_NAME = "lagdesk-orders"
+SCHEMA_VERSION = 1
+FORMATS = ("json", "csv")
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+NEUTRALISING_PREFIX = "'"
+_PLAIN_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+
+def build_orders_document(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> dict:
+    """The export document of every series whose verdict has one of ``statuses``.
+
+    Orders whose parameters no stored fit provides are refitted here (and the refit kept, so
+    the next export is quick).
+
+    Raises
+    ------
+    LagdeskError
+        When a status is not approved or overridden, or a decided order cannot be fitted to its
+        series (the message names the series).
+    """
+    decided, left_out = export_snapshot(db, statuses)
+    for order in decided:
+        if order.record["parameters"] is None:
+            fill_parameters(db, order)
+    return {
+        "schema": SCHEMA_NAME,
+        "version": SCHEMA_VERSION,
+        "generated_at": utc_now(),
+        "orders": [order.record for order in decided],
+        "left_out": left_out,
+    }
+
+
+def write_export(db: sqlite_utils.Database, path: str | Path, fmt: str = "json", statuses: Sequence[str] = DECIDED) -> dict:
+    """Build the export document and write it to ``path`` as ``fmt``; returns the document.
+
+    Raises
+    ------
+    LagdeskError
+        An unknown format, a folder that does not exist, or what :func:`build_orders_document`
+        raises; the target file is then untouched.
+    """
+    if fmt not in FORMATS:
+        raise LagdeskError(f"the export format must be {' or '.join(FORMATS)}, not {fmt!r}")
+    target = Path(path)
+    if not target.parent.is_dir():
+        raise LagdeskError(f"{target}: the folder {str(target.parent)!r} does not exist")
+    document = build_orders_document(db, statuses)
+    write_atomically(target, orders_text(document, fmt))
+    return document
+
+
+def orders_text(document: dict, fmt: str) -> str:
+    """The export document as the text of a ``json`` or ``csv`` file."""
+    return json.dumps(document, indent=2, ensure_ascii=False) + "\n" if fmt == "json" else orders_csv(document["orders"])
+
+
+def parse_statuses(text: str | Sequence[str] | None) -> list[str]:
+    """The decisions to export from a comma-separated text (``"approved,overridden"``) or a
+    list; all decided ones when empty. Unknown names are refused by :func:`build_orders_document`."""
+    if text is None:
+        return list(DECIDED)
+    chosen = [s.strip() for s in text.split(",")] if isinstance(text, str) else list(text)
+    return [s for s in chosen if s] or list(DECIDED)
+
+
+def orders_csv(orders: list[dict]) -> str:
+    """The orders as CSV text: a header row of :data:`ORDER_FIELDS`, then one row per order."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer)
+    writer.writerow(ORDER_FIELDS)
+    for order in orders:
+        writer.writerow([_csv_cell(order[name]) for name in ORDER_FIELDS])
+    return buffer.getvalue()
+
+
+def _csv_cell(value) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, dict):
+        return json.dumps(value, ensure_ascii=False)
+    return neutralise_formula(str(value))
+
+
+def neutralise_formula(text: str) -> str:
+    """``text`` with a leading single quote when a spreadsheet would run it as a formula.
+
+    A plain number (``-3``, ``+1.5e2``) is left alone: it is not a formula.
+    """
+    if text.startswith(FORMULA_STARTS) and not _PLAIN_NUMBER.fullmatch(text):
+        return NEUTRALISING_PREFIX + text
+    return text
+
+
+def write_atomically(path: Path, text: str) -> None:
+    """Write ``text`` to ``path`` so that a reader sees the old file or the new one, never a part."""
+    handle = tempfile.NamedTemporaryFile(
+        "w", encoding="utf-8", newline="", dir=path.parent, prefix=f".{path.name}.", suffix=".tmp", delete=False
+    )
+    try:
+        with handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(handle.name, path)
+    except BaseException:
+        Path(handle.name).unlink(missing_ok=True)
+        raise
+
+
+def export_command(
+    db_path: str | Path, fmt: str = "json", output: str | Path | None = None, statuses: str | Sequence[str] = DECIDED
+) -> str:
+    """``lagdesk export``: write the export of the database at ``db_path``; returns a summary line.
+
+    ``output`` defaults to ``lagdesk-orders.<fmt>`` in the current folder; ``statuses`` is a
+    list or a comma-separated text (``"approved,overridden"``).
+    """
+    chosen = parse_statuses(statuses)
+    target = Path(output) if output is not None else Path.cwd() / f"lagdesk-orders.{fmt}"
+    db = open_database(db_path)
+    try:
+        document = write_export(db, target, fmt, chosen)
+        moved = [o["series_id"] for o in document["orders"] if series_fingerprint(db, o["series_id"]) != o["data_sha256"]]
+    finally:
+        db.close()
+    return export_summary(document, target, fmt, moved)
+
+
+def export_summary(document: dict, target: Path, fmt: str, moved: Sequence[str] = ()) -> str:
+    """One line: what was written where, what was left out, and which orders await a re-check."""
+    orders = document["orders"]
+    by_decision = {d: sum(o["decision"] == d for o in orders) for d in DECIDED}
+    decided = ", ".join(f"{n} {d}" for d, n in by_decision.items() if n)
+    left = ", ".join(f"{n} {status}" for status, n in document["left_out"].items())
+    line = f"{len(orders)} order{'' if len(orders) == 1 else 's'}{f' ({decided})' if decided else ''} written to {target} as {fmt}; left out: {left}"
+    if moved:
+        line += (
+            f"; {len(moved)} of them were decided on data that has changed since "
+            f"(e.g. {moved[0]!r}): run the analysis to re-check them"
+        )
+    return line

@@ -1,0 +1,181 @@
+"""The decided orders as the export hands them on, and the refits of chosen orders.
+
+One record per series whose verdict has one of the chosen statuses (approved, overridden), with
+the fields of :data:`ORDER_FIELDS`. Their names are fixed, so forecasting jobs can rely on
+them; the seasonal fields are spelled out so that nobody confuses ``d`` with ``D``.
+
+``parameters`` are the fitted coefficients of the chosen model on the series' current data, by
+name (statsmodels' names, with ``const`` for a constant, ``drift`` for a drift or trend slope,
+and ``sigma2`` for the innovation variance). They come from the stored analysis when it is
+current and fitted the chosen order with the chosen transform, else from the latest refit in
+``order_fits`` when it is for the same data and model; otherwise the record carries None and
+the caller refits (:func:`app.jobs.order_fits.fit_stored_order`) and saves the refit here with
+:func:`save_order_fit`, so the next export reuses it.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import sqlite_utils
+
+from app.core.errors import LagdeskError, OrderError
+from app.core.fitting import ModelOrder, validate_order
+from app.core.transform import TransformChoice
+from app.store.database import utc_now, write_transaction
+from app.store.verdicts import DECIDED, STATUSES, verdict_counts
+
+ORDER_FIELDS = (
+    "series_id", "p", "d", "q", "seasonal_p", "seasonal_d", "seasonal_q", "period", "transform",
+    "include_constant", "decision", "reviewer", "decided_at", "note", "data_sha256", "last_timestamp",
+    "engine_version", "parameters",
+)
+ALWAYS_COUNTED = ("pending", "parked", "recheck")
+
+_CANDIDATES_SQL = (
+    "(SELECT json_group_array(json_object('order', c.value -> '$.order', 'seasonal_order', "
+    "c.value -> '$.seasonal_order', 'trend', c.value ->> '$.trend', 'params', c.value -> '$.params')) "
+    "FROM json_each(r.result, '$.candidates') AS c)"
+)
+
+
+@dataclass
+class DecidedOrder:
+    """One exported order: its ``record`` (the :data:`ORDER_FIELDS`; ``parameters`` None while a
+    refit is needed), the model and transform to fit, and the fingerprint of the current data."""
+
+    record: dict
+    model: ModelOrder
+    transform: TransformChoice
+    fingerprint: str
+
+
+def checked_statuses(statuses: Sequence[str]) -> list[str]:
+    """The export's statuses, each approved or overridden, without repeats.
+
+    Raises
+    ------
+    LagdeskError
+        When a status is not a decided one, or none is given.
+    """
+    chosen = list(dict.fromkeys(statuses))
+    wrong = [s for s in chosen if s not in DECIDED]
+    if wrong or not chosen:
+        raise LagdeskError(
+            f"the export takes statuses {' and '.join(DECIDED)}, not {wrong[0]!r}" if wrong
+            else "the export needs at least one status (approved, overridden)"
+        )
+    return chosen
+
+
+def decided_orders(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> list[DecidedOrder]:
+    """Every series whose verdict has one of ``statuses``, by series id (see the module notes)."""
+    chosen = checked_statuses(statuses)
+    rows = db.query(
+        "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.reviewer, v.decided_at, "
+        "v.note, v.data_sha256, s.last_timestamp, s.fingerprint, "
+        "a.state = 'complete' AND a.fingerprint = s.fingerprint AS analysis_current, a.engine_version, "
+        f"r.result -> '$.transform' AS analysed_transform, {_CANDIDATES_SQL} AS candidates, "
+        "f.fingerprint AS fit_fingerprint, f.model AS fit_model, f.parameters AS fit_parameters, "
+        "f.engine_version AS fit_engine_version "
+        "FROM verdicts v JOIN series s ON s.series_id = v.series_id "
+        "LEFT JOIN analyses a ON a.series_id = v.series_id "
+        "LEFT JOIN analysis_results r ON r.series_id = v.series_id "
+        "LEFT JOIN order_fits f ON f.series_id = v.series_id "
+        f"WHERE v.status IN ({', '.join('?' for _ in chosen)}) ORDER BY v.series_id",
+        chosen,
+    )
+    return [_decided(row) for row in rows]
+
+
+def _decided(row: dict) -> DecidedOrder:
+    order, seasonal = json.loads(row["arima_order"]), json.loads(row["seasonal_order"])
+    transform = TransformChoice.from_json(json.loads(row["transform"]))
+    candidates = json.loads(row["candidates"]) if row["candidates"] else []
+    try:
+        model, candidate = chosen_model(candidates, order, seasonal)
+    except OrderError as exc:
+        raise OrderError(f"series {row['series_id']!r}: the {row['status']} order cannot be used ({exc})") from None
+    parameters, engine_version = None, None
+    same_transform = row["analysed_transform"] is not None and json.loads(row["analysed_transform"]) == transform.to_json()
+    if row["analysis_current"] and same_transform and candidate is not None:
+        parameters, engine_version = candidate_parameters(candidate), row["engine_version"]
+    elif row["fit_fingerprint"] == row["fingerprint"] and row["fit_model"] == model_key(model, transform):
+        parameters, engine_version = json.loads(row["fit_parameters"]), row["fit_engine_version"]
+    p, d, q = model.order
+    sp, sd, sq, s = model.seasonal_order
+    record = {
+        "series_id": row["series_id"], "p": p, "d": d, "q": q,
+        "seasonal_p": sp, "seasonal_d": sd, "seasonal_q": sq, "period": s or None,
+        "transform": transform.to_json(), "include_constant": model.trend != "n",
+        "decision": row["status"], "reviewer": row["reviewer"], "decided_at": row["decided_at"],
+        "note": row["note"], "data_sha256": row["data_sha256"], "last_timestamp": row["last_timestamp"],
+        "engine_version": engine_version, "parameters": parameters,
+    }
+    return DecidedOrder(record, model, transform, row["fingerprint"])
+
+
+def chosen_model(candidates: list[dict], order: Sequence[int], seasonal_order: Sequence[int]) -> tuple[ModelOrder, dict | None]:
+    """The model of a chosen order with the deterministic term the engine gives it, and the
+    analysis candidate of that order (None for a custom order).
+
+    ``candidates`` are the analysis' candidate dicts (``order``, ``seasonal_order``, ``trend``,
+    ...). A custom order takes the term of the candidates with the same differencing (d, D), as
+    the engine picks the term from the differencing alone; without any, the default of
+    :func:`~app.core.fitting.validate_order`.
+    """
+    order, seasonal_order = list(order), list(seasonal_order)
+    match = next((c for c in candidates if c["order"] == order and c["seasonal_order"] == seasonal_order), None)
+    if match is not None:
+        trend = match["trend"]
+    else:
+        same = [c["trend"] for c in candidates if c["order"][1] == order[1] and c["seasonal_order"][1] == seasonal_order[1]]
+        trend = same[0] if same else None
+    return validate_order(order, seasonal_order, trend=trend), match
+
+
+def candidate_parameters(candidate: dict) -> dict[str, float]:
+    """A fitted candidate's coefficients by name."""
+    return {p["name"]: p["value"] for p in candidate["params"]}
+
+
+def model_key(model: ModelOrder, transform: TransformChoice) -> str:
+    """The model a refit was for, as stored in ``order_fits.model``."""
+    return json.dumps({
+        "order": list(model.order), "seasonal_order": list(model.seasonal_order), "trend": model.trend,
+        "transform": transform.to_json(),
+    }, sort_keys=True)
+
+
+def save_order_fit(
+    db: sqlite_utils.Database, series_id: str, fingerprint: str, model: ModelOrder, transform: TransformChoice,
+    parameters: dict[str, float], engine_version: str,
+) -> None:
+    """Keep the parameters of a refit of a chosen order, replacing the series' earlier refit."""
+    with write_transaction(db):
+        db["order_fits"].insert({
+            "series_id": series_id, "fingerprint": fingerprint, "model": model_key(model, transform),
+            "parameters": json.dumps(parameters), "engine_version": engine_version, "fitted_at": utc_now(),
+        }, replace=True)
+
+
+def export_snapshot(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> tuple[list[DecidedOrder], dict[str, int]]:
+    """:func:`decided_orders` and :func:`left_out_counts` read from one snapshot of the
+    database, so the orders and the counts of what is missing agree."""
+    if db.conn.in_transaction:
+        return decided_orders(db, statuses), left_out_counts(db, statuses)
+    db.conn.execute("BEGIN")  # a read transaction: every read below sees the same committed state
+    try:
+        return decided_orders(db, statuses), left_out_counts(db, statuses)
+    finally:
+        db.conn.execute("ROLLBACK")
+
+
+def left_out_counts(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> dict[str, int]:
+    """How many series an export of ``statuses`` leaves out, by status: always pending, parked
+    and recheck, plus a decided status that was not chosen."""
+    chosen = checked_statuses(statuses)
+    counts = verdict_counts(db)
+    return {status: counts[status] for status in STATUSES if status in ALWAYS_COUNTED or status not in chosen}

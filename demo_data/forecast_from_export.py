@@ -1,0 +1,189 @@
+"""An example forecasting job that takes its orders from a Lagdesk export.
+
+Usage::
+
+    python demo_data/forecast_from_export.py ORDERS.json PORTFOLIO.csv FORECASTS.csv [--horizon H] [--refit]
+
+reads the JSON export (``lagdesk export --format json``) and the portfolio file in the long
+layout (``series_id,timestamp,value``), and writes, for every exported order, ``H`` forecasts
+(default 12) with 80% and 95% prediction intervals to ``FORECASTS.csv``::
+
+    series_id,step,timestamp,forecast,lower_80,upper_80,lower_95,upper_95
+
+It is not part of Lagdesk: it uses only the export's documented fields, pandas, scipy and
+statsmodels, to show that the hand-off works without a person in between.
+
+For each order it
+
+1. takes the series' rows up to the export's ``last_timestamp`` (the data the parameters were
+   fitted on), puts them on their regular time grid and fills inner gaps by linear
+   interpolation, as Lagdesk does;
+2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``);
+3. builds the statsmodels ``SARIMAX`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
+   period`` with the differencing inside the state, so forecasts come out in levels; the
+   deterministic term is read from ``include_constant`` and the parameter names: a ``const``
+   and a ``drift`` together are a constant plus a linear trend (SARIMAX ``trend="ct"``), one
+   of them alone is the constant of the differenced series (``trend="c"``);
+4. filters the data with the exported ``parameters`` (or, with ``--refit``, estimates them
+   again by maximum likelihood) and forecasts;
+5. back-transforms the forecasts and the interval bounds (the point forecast becomes the
+   median on the original scale).
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import sys
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.special import boxcox, inv_boxcox
+from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+EXPORT_SCHEMA = ("lagdesk-orders", 1)
+LEVELS = (0.80, 0.95)
+OUTPUT_FIELDS = ("series_id", "step", "timestamp", "forecast", "lower_80", "upper_80", "lower_95", "upper_95")
+DEFAULT_HORIZON = 12
+
+
+def read_export(path: Path) -> list[dict]:
+    """The orders of a Lagdesk JSON export, after checking its schema name and version."""
+    document = json.loads(path.read_text(encoding="utf-8"))
+    if (document.get("schema"), document.get("version")) != EXPORT_SCHEMA:
+        raise SystemExit(f"{path}: not a Lagdesk orders export version 1")
+    left_out = ", ".join(f"{n} {status}" for status, n in document["left_out"].items())
+    print(f"{path}: {len(document['orders'])} orders; left out by the reviewers: {left_out}", file=sys.stderr)
+    return document["orders"]
+
+
+def series_up_to(frame: pd.DataFrame, order: dict) -> pd.Series:
+    """One series' values up to the export's last timestamp, on a regular grid, gaps filled."""
+    rows = frame[frame["series_id"] == order["series_id"]]
+    if rows.empty:
+        raise SystemExit(f"series {order['series_id']!r} is in the export but not in the portfolio file")
+    last = order["last_timestamp"]
+    integer_steps = last.lstrip("-").isdigit()
+    stamps = rows["timestamp"].astype(int) if integer_steps else pd.to_datetime(rows["timestamp"])
+    values = pd.Series(rows["value"].to_numpy(dtype=float), index=stamps.to_numpy()).sort_index()
+    values = values[values.index <= (int(last) if integer_steps else pd.Timestamp(last))].dropna()
+    if integer_steps:
+        step = int(np.diff(values.index).min())
+        grid = pd.Index(np.arange(values.index[0], values.index[-1] + 1, step))
+    else:
+        grid = pd.date_range(values.index[0], values.index[-1], freq=_frequency(pd.DatetimeIndex(values.index)))
+    return values.reindex(grid).interpolate(method="linear", limit_area="inside")
+
+
+def _frequency(index: pd.DatetimeIndex) -> str:
+    """The sampling frequency; with gaps, the one most runs of three timestamps agree on."""
+    whole = _infer(index)
+    if whole is not None:
+        return whole
+    local = [_infer(index[i:i + 3]) for i in range(len(index) - 2)]
+    return pd.Series([f for f in local if f is not None]).mode().iloc[0]
+
+
+def _infer(index: pd.DatetimeIndex) -> str | None:
+    """pandas' inferred frequency as a string (pandas is moving from strings to offsets)."""
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*infer_freq")
+        freq = pd.infer_freq(index)
+    return freq if freq is None or isinstance(freq, str) else freq.freqstr
+
+
+def transform_values(x: np.ndarray, transform) -> np.ndarray:
+    if transform == "none":
+        return x
+    if transform == "log":
+        return np.log(x)
+    return boxcox(x, transform["box_cox"])
+
+
+def back_transform(z: np.ndarray, transform) -> np.ndarray:
+    if transform == "none":
+        return z
+    if transform == "log":
+        return np.exp(z)
+    return inv_boxcox(z, transform["box_cox"])
+
+
+def sarimax_for(order: dict, z: np.ndarray) -> tuple[SARIMAX, dict]:
+    """The SARIMAX model of an exported order, and its parameters under statsmodels' names."""
+    parameters = dict(order["parameters"])
+    both = "const" in parameters and "drift" in parameters
+    trend = "n" if not order["include_constant"] else "ct" if both else "c"
+    named = {}
+    for name, value in parameters.items():
+        if name == "const" or (name == "drift" and not both):
+            named["intercept"] = value
+        else:
+            named[name] = value
+    model = SARIMAX(
+        z,
+        order=(order["p"], order["d"], order["q"]),
+        seasonal_order=(order["seasonal_p"], order["seasonal_d"], order["seasonal_q"], order["period"] or 0),
+        trend=trend, enforce_stationarity=False, enforce_invertibility=False,
+    )
+    return model, named
+
+
+def forecast_order(order: dict, values: pd.Series, horizon: int, refit: bool) -> list[dict]:
+    """Forecast rows of one exported order."""
+    z = transform_values(values.to_numpy(dtype=float), order["transform"])
+    model, named = sarimax_for(order, z)
+    if refit:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            result = model.fit(disp=False)
+    else:
+        missing = [name for name in model.param_names if name not in named]
+        if missing:
+            raise SystemExit(f"series {order['series_id']!r}: the export lacks parameters {missing}")
+        result = model.filter(np.array([named[name] for name in model.param_names]))
+    prediction = result.get_forecast(horizon)
+    mean = back_transform(np.asarray(prediction.predicted_mean), order["transform"])
+    bounds = {level: np.asarray(prediction.conf_int(alpha=1 - level)) for level in LEVELS}
+    stamps = _future(values.index, horizon)
+    rows = []
+    for step in range(horizon):
+        row = {"series_id": order["series_id"], "step": step + 1, "timestamp": stamps[step], "forecast": mean[step]}
+        for level in LEVELS:
+            lower, upper = back_transform(bounds[level][step], order["transform"])
+            row[f"lower_{round(level * 100)}"], row[f"upper_{round(level * 100)}"] = lower, upper
+        rows.append(row)
+    return rows
+
+
+def _future(index: pd.Index, horizon: int) -> list[str]:
+    if isinstance(index, pd.DatetimeIndex):
+        return [t.isoformat() for t in pd.date_range(index[-1], periods=horizon + 1, freq=index.freq)[1:]]
+    step = int(index[1] - index[0])
+    return [str(int(index[-1]) + step * k) for k in range(1, horizon + 1)]
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description="Forecast every order of a Lagdesk JSON export with statsmodels.")
+    parser.add_argument("export", type=Path, help="the JSON export (lagdesk export --format json)")
+    parser.add_argument("portfolio", type=Path, help="the portfolio CSV, long layout: series_id,timestamp,value")
+    parser.add_argument("output", type=Path, help="where to write the forecasts (CSV)")
+    parser.add_argument("--horizon", type=int, default=DEFAULT_HORIZON, help=f"steps ahead (default {DEFAULT_HORIZON})")
+    parser.add_argument("--refit", action="store_true", help="estimate the parameters again instead of using the exported ones")
+    args = parser.parse_args(argv)
+    if args.horizon < 1:
+        parser.error(f"--horizon must be at least 1, not {args.horizon}")
+    orders = read_export(args.export)
+    frame = pd.read_csv(args.portfolio, dtype={"series_id": str, "timestamp": str})
+    rows = [row for order in orders for row in forecast_order(order, series_up_to(frame, order), args.horizon, args.refit)]
+    with args.output.open("w", newline="", encoding="utf-8") as handle:
+        writer = csv.DictWriter(handle, fieldnames=OUTPUT_FIELDS)
+        writer.writeheader()
+        writer.writerows(rows)
+    print(f"{args.output}: {len(rows)} forecasts for {len(orders)} series", file=sys.stderr)
+
+
+if __name__ == "__main__":
+    main()
