@@ -6,6 +6,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import sqlite3
 import sys
 import threading
 import webbrowser
@@ -16,20 +17,27 @@ from pathlib import Path
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.core.fitting import MAX_ORDER
+from app.core.backtest import DEFAULT_ORIGINS
 from app.core.identify import AUTO_PERIOD, EngineOptions
 from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, read_portfolio
 from app.jobs.analyze import RunProgress, run_analysis
 from app.jobs.demo import build_demo_database
+from app.jobs.export import FORMATS as EXPORT_FORMATS, export_command
+from app.jobs.order_fits import backtest_series
 from app.jobs.pool import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 from app.jobs.work import SeriesTask, identify_task
-from app.store.database import open_database, resolve_db_path
+from app.store.analyses import analysis_record, load_analysis
+from app.store.database import open_database, resolve_db_path, storage_error_text
 from app.store.imports import ImportReport, import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
+from app.store.verdicts import DECIDED
+from app.web.security import GENERATE, TOKEN_ENV_VAR, generate_token, require_token_off_loopback
 from app.web.server import run_server
 
 EXIT_INPUT_ERROR = 2
+EXIT_STORAGE_ERROR = 3
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
 BROWSER_DELAY_SECONDS = 1.5
@@ -139,6 +147,29 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--build-only", action="store_true", help="build the database and exit without serving")
     demo.set_defaults(handler=run_demo)
 
+    export = commands.add_parser("export", help="write the decided orders for a forecasting job (CSV or JSON)")
+    _add_db(export)
+    export.add_argument("--format", choices=EXPORT_FORMATS, default="json", help="file format (default json)")
+    export.add_argument("-o", "--output", help="file to write (default ./lagdesk-orders.FORMAT); written atomically")
+    export.add_argument(
+        "--status", default=",".join(DECIDED), metavar="LIST",
+        help=f"decisions to include, comma-separated (default {','.join(DECIDED)})",
+    )
+    export.set_defaults(handler=run_export)
+
+    backtest = commands.add_parser("backtest", help="rolling-origin forecast check of an order on one stored series")
+    backtest.add_argument("series_id", help="the series to check")
+    _add_db(backtest)
+    backtest.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="order to check (default: the suggested one)")
+    backtest.add_argument(
+        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the suggested one when --order is not given, else none)",
+    )
+    backtest.add_argument("--transform", metavar="none|log|box_cox:LAMBDA", type=transform_option, help="transform (default: the analysis')")
+    backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season, or 8 for a non-seasonal order)")
+    backtest.add_argument("--origins", type=int, help=f"forecast origins (default {DEFAULT_ORIGINS})")
+    backtest.add_argument("--json", action="store_true", help="print the full check as JSON on stdout")
+    backtest.set_defaults(handler=run_backtest)
+
     serve = commands.add_parser("serve", help="serve the review dashboard")
     _add_db(serve)
     _add_server_options(serve)
@@ -150,10 +181,30 @@ def _add_server_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--host", default=DEFAULT_HOST, help=f"interface to listen on (default {DEFAULT_HOST}: this machine only)")
     parser.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"TCP port (default {DEFAULT_PORT})")
     parser.add_argument("--no-browser", action="store_true", help="do not try to open a browser")
+    parser.add_argument(
+        "--token", metavar="TOKEN|generate",
+        help=f"access token every request must carry; needed for any --host but loopback "
+        f"(default: ${TOKEN_ENV_VAR}; '{GENERATE}' makes one and prints it once)",
+    )
+
+
+def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
+    """The server's settings from the options, with its access token (generated and printed once
+    when asked); refuses a non-loopback host without a token."""
+    token = args.token or os.environ.get(TOKEN_ENV_VAR) or None
+    if token == GENERATE:
+        token = generate_token()
+        print(f"Access token (shown this once; give it to each reviewer): {token}", flush=True)
+    try:
+        settings = Settings(db_path=db_path, host=args.host, port=args.port, access_token=token)
+    except ValueError as exc:
+        raise LagdeskError(str(exc)) from None
+    require_token_off_loopback(settings)
+    return settings
 
 
 def _serve(db_path: Path, args: argparse.Namespace) -> int:
-    settings = Settings(db_path=db_path, host=args.host, port=args.port)
+    settings = server_settings(db_path, args)
     print(f"Lagdesk dashboard on {settings.url} (database {db_path}); Ctrl-C stops it.", flush=True)
     if not args.no_browser:
         open_browser_later(settings.url)
@@ -289,6 +340,77 @@ def status_text(status: dict, last: dict | None, db_path: Path) -> str:
     return "\n".join(lines)
 
 
+def integers_option(count: int):
+    """An option of ``count`` comma-separated whole numbers (``--order 1,1,0``)."""
+
+    def parse(text: str) -> list[int]:
+        try:
+            values = [int(part) for part in text.split(",")]
+        except ValueError:
+            values = []
+        if len(values) != count:
+            raise argparse.ArgumentTypeError(f"expected {count} comma-separated whole numbers, got {text!r}")
+        return values
+
+    return parse
+
+
+def transform_option(text: str) -> str | dict:
+    """``--transform``: ``none``, ``log`` or ``box_cox:LAMBDA``."""
+    word = text.strip().lower()
+    if word in ("none", "log"):
+        return word
+    name, _, value = word.partition(":")
+    try:
+        if name == "box_cox":
+            return {"box_cox": float(value)}
+    except ValueError:
+        pass
+    raise argparse.ArgumentTypeError(f"expected none, log or box_cox:LAMBDA, got {text!r}")
+
+
+def run_export(args: argparse.Namespace) -> int:
+    print(export_command(_existing_db(args.db), args.format, args.output, args.status))
+    return 0
+
+
+def run_backtest(args: argparse.Namespace) -> int:
+    with closing(open_database(_existing_db(args.db))) as db:
+        order, seasonal = args.order, args.seasonal or [0, 0, 0, 0]
+        if order is None:
+            analysis_record(db, args.series_id)  # names an unknown series
+            result = load_analysis(db, args.series_id)
+            if result is None:
+                raise LagdeskError(f"series {args.series_id!r} has no analysis yet: give --order, or run lagdesk analyze")
+            order, seasonal = result["suggested"]["order"], args.seasonal or result["suggested"]["seasonal_order"]
+        check = backtest_series(db, args.series_id, order, seasonal, args.transform, args.horizon, args.origins)
+    if args.json:
+        json.dump(check, sys.stdout, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        print(backtest_text(check))
+    return 0
+
+
+def backtest_text(check: dict) -> str:
+    """The forecast check in a few lines: MASE against the seasonal naive forecast, coverage,
+    and the error by step ahead."""
+
+    def number(value: float | None) -> str:
+        return "n/a" if value is None else f"{value:.3f}"
+
+    lines = [
+        f"{check['series_id']}: {check['label']}, transform {json.dumps(check['transform'])}, "
+        f"horizon {check['horizon']}, {check['origins']} origins (refitted at each)",
+        f"  MASE {number(check['mase'])}   seasonal naive MASE {number(check['naive_mase'])} (m={check['m']})",
+        "  interval coverage: " + ", ".join(f"{level}% -> {share:.0%}" for level, share in check["coverage"].items()),
+        "  step   MAE        MASE",
+    ]
+    lines += [f"  {row['step']:>4}   {row['mae']:<10.4g} {row['mase']:.3f}" for row in check["by_horizon"]]
+    lines += [f"  note: {note}" for note in check["notes"]]
+    return "\n".join(lines)
+
+
 def run_demo(args: argparse.Namespace) -> int:
     shown = RunProgressLine("demo")
     path = build_demo_database(resolve_db_path(args.db), args.workers, on_progress=shown)
@@ -355,6 +477,14 @@ def main(argv: Sequence[str] | None = None) -> int:
     except LagdeskError as exc:
         print(f"lagdesk {args.command}: {exc}", file=sys.stderr)
         return EXIT_INPUT_ERROR
+    except sqlite3.Error as exc:
+        db = resolve_db_path(args.db) if "db" in vars(args) else None
+        print(f"lagdesk {args.command}: {storage_error_text(exc, db)}", file=sys.stderr)
+        return EXIT_STORAGE_ERROR
+    except OSError as exc:  # a full disk or a missing permission outside the database
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"lagdesk {args.command}: {where}{exc.strerror or exc}", file=sys.stderr)
+        return EXIT_STORAGE_ERROR
     except KeyboardInterrupt:
         print(f"lagdesk {args.command}: interrupted", file=sys.stderr)
         return 130

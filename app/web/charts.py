@@ -118,3 +118,48 @@ def line_figure(x: Sequence, y: Sequence[float], y_title: str, x_title: str = ""
 def _zero_line() -> dict:
     return {"type": "line", "xref": "paper", "yref": "y", "x0": 0, "x1": 1, "y0": 0, "y1": 0,
             "line": {"color": GREY, "width": 1}}
+
+
+FORECAST_CHART_HEIGHT = 260
+BAND_80_FILL = "rgba(213, 94, 0, 0.28)"
+BAND_95_FILL = "rgba(213, 94, 0, 0.13)"
+
+
+def forecast_figure(plot: dict, shown: int) -> dict:
+    """The last ``shown`` observations with the forecast from the last origin of a forecast
+    check (over the held-out end of the series) and the forecast beyond the data, each with its
+    80% and 95% intervals as nested shaded bands.
+
+    Parameters
+    ----------
+    plot : dict
+        The ``plot`` part of a forecast check: ``history`` (``timestamps``, ``values``),
+        ``holdout`` and ``ahead`` (``timestamps``, ``forecast``, ``lower_80``/``upper_80``,
+        ``lower_95``/``upper_95``; ``holdout`` also ``actual``).
+    """
+    history = plot["history"]
+    data = [{
+        "type": "scatter", "x": history["timestamps"][-shown:], "y": history["values"][-shown:], "mode": "lines",
+        "line": {"color": BLUE, "width": 1.4}, "name": "observed", "connectgaps": False,
+        "hovertemplate": "%{x}: %{y:.4g}<extra>observed</extra>",
+    }]
+    for part, dash in (("holdout", "dash"), ("ahead", "solid")):
+        stretch = plot[part]
+        x = stretch["timestamps"]
+        for level, fill in (("95", BAND_95_FILL), ("80", BAND_80_FILL)):
+            data.append({
+                "type": "scatter", "x": x + x[::-1], "y": stretch[f"upper_{level}"] + stretch[f"lower_{level}"][::-1],
+                "fill": "toself", "fillcolor": fill, "line": {"width": 0}, "mode": "lines", "hoverinfo": "skip",
+                "name": f"{level}% interval",
+            })
+        data.append({
+            "type": "scatter", "x": x, "y": stretch["forecast"], "mode": "lines+markers",
+            "line": {"color": VERMILLION, "width": 1.6, "dash": dash}, "marker": {"size": 4},
+            "name": "forecast", "hovertemplate": "%{x}: %{y:.4g}<extra>forecast</extra>",
+        })
+    layout = _layout(FORECAST_CHART_HEIGHT, "value", "")
+    layout["shapes"] = [{
+        "type": "line", "xref": "x", "yref": "paper", "x0": plot["holdout"]["timestamps"][0],
+        "x1": plot["holdout"]["timestamps"][0], "y0": 0, "y1": 1, "line": {"color": GREY, "width": 1, "dash": "dot"},
+    }]
+    return _as_json(data, layout)

@@ -109,6 +109,21 @@
     document.getElementById("decision-panel").scrollIntoView({ behavior: "smooth", block: "start" });
   });
 
+  // Forecast check in place: the link's page as a fragment, into the candidate's panel.
+  document.addEventListener("click", function (event) {
+    var link = event.target.closest("[data-forecast-check]");
+    if (!link) return;
+    event.preventDefault();
+    var box = link.closest("[data-forecast-box]");
+    box.innerHTML = '<p class="muted small" role="status">Checking forecasts (refits at each origin)…</p>';
+    fetch(link.href + "&fragment=true")
+      .then(function (response) { return response.text(); })
+      .then(function (html) { box.innerHTML = html; L.drawCharts(box); })
+      .catch(function () {
+        box.innerHTML = '<p class="message message-error" role="alert">The server did not answer; try again.</p>';
+      });
+  });
+
   function submitWith(button) {
     if (button && !button.disabled) form.requestSubmit(button);
   }

@@ -9,6 +9,7 @@ and analysed by the real store and engine.
 
 from __future__ import annotations
 
+import json
 import os
 import socket
 import threading
@@ -192,6 +193,32 @@ def test_custom_order_is_fitted_then_saved(page, live_server):
         save.click()
     verdict = api(live_server, f"/api/series/{quote(target, safe='/')}")["verdict"]
     assert (verdict["status"], verdict["order"], verdict["note"]) == ("overridden", [2, 0, 1], "two AR terms read better")
+    host = urlsplit(live_server).netloc
+    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
+    assert not page.errors
+
+
+def test_forecast_check_is_drawn_in_place_and_the_orders_download(page, live_server):
+    page.goto(series_url(live_server, REVIEWED))
+    detail = page.locator('#candidate-detail [data-candidate-detail="1"]')
+    detail.locator("[data-forecast-check]").click()
+    result = detail.locator("[data-forecast-result]")
+    result.wait_for(timeout=60_000)
+    chart = result.locator("#chart-forecast-check")
+    chart.locator(".scatterlayer .js-fill").first.wait_for()
+    stored = api(live_server, f"/api/series/{quote(REVIEWED, safe='/')}/backtest")
+    assert f"{stored['mase']:.3f}" in result.inner_text()
+    ARTIFACTS.mkdir(exist_ok=True)
+    result.screenshot(path=str(ARTIFACTS / "forecast-check.png"))
+    set_reviewer(page, live_server)
+    page.goto(series_url(live_server, REVIEWED))
+    with page.expect_navigation():
+        page.keyboard.press("a")
+    page.goto(live_server + "/")
+    with page.expect_download() as download:
+        page.click('a[href="/export/lagdesk-orders.json"]')
+    document = json.loads(Path(download.value.path()).read_text())
+    assert REVIEWED in [o["series_id"] for o in document["orders"]]
     host = urlsplit(live_server).netloc
     assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
     assert not page.errors

@@ -1,4 +1,4 @@
-"""The JSON API: the data of every page, for scripts (schema at ``/openapi.json``, docs at ``/docs``).
+"""The JSON API: the data of every page, for scripts (OpenAPI schema at ``/openapi.json``).
 
 Errors come back as ``{"detail": message}``: 404 for an unknown series or run, 409 (with the
 current ``verdict``) when a verdict names a version that is no longer current, 422 for an
@@ -11,24 +11,39 @@ import math
 from typing import Annotated, Literal
 
 import sqlite_utils
-from fastapi import APIRouter, Depends, Form, HTTPException, Query, UploadFile
-from pydantic import BaseModel, Field
+from fastapi import APIRouter, Depends, Form, HTTPException, Path, Query, UploadFile
+from pydantic import BaseModel, ConfigDict, Field
 
 from app.config import Settings
 from app.core.errors import LagdeskError
+from app.core.backtest import DEFAULT_ORIGINS
 from app.jobs.analyze import start_background_analysis
+from app.jobs.export import build_orders_document, parse_statuses
+from app.jobs.order_fits import backtest_series
 from app.store.analyses import analysis_record, load_analysis
 from app.store.runs import get_run, latest_run, list_runs
 from app.store.series import count_by, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.decisions import decide, fit_order
-from app.web.deps import clean_reviewer, get_db, get_settings
+from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
 from app.web.queue import QueueFilter, approve_firm
 from app.web.uploads import UploadOptions, import_upload
 
-router = APIRouter(prefix="/api", tags=["api"])
 
+class ErrorMessage(BaseModel):
+    """Every error answer: ``detail`` is the message (for a malformed request, FastAPI's list of
+    field errors); a 409 adds the current ``verdict``."""
+
+    model_config = ConfigDict(extra="allow")
+    detail: str | list[dict]
+
+
+ERROR_STATUSES = (400, 401, 403, 404, 409, 411, 413, 422, 503)
+router = APIRouter(prefix="/api", tags=["api"], responses={code: {"model": ErrorMessage} for code in ERROR_STATUSES})
+
+MAX_HORIZON = 1000
+MAX_ORIGINS = 50
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
 Config = Annotated[Settings, Depends(get_settings)]
 Order = Annotated[list[int], Field(min_length=3, max_length=3, description="[p, d, q]")]
@@ -91,7 +106,7 @@ class VerdictIn(BaseModel):
     seasonal_order: SeasonalOrder | None = None
     note: str = ""
     reviewer: str = ""
-    version: int = Field(description="the verdict version the decision was based on")
+    version: int = Field(ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
 
 
 class FitIn(BaseModel):
@@ -141,7 +156,7 @@ Filter = Annotated[QueueFilter, Depends(filter_params)]
 
 @router.get("/series", response_model=SeriesList)
 def series_list(db: Db, settings: Config, flt: Filter, limit: Annotated[int | None, Query(ge=0)] = None,
-                offset: Annotated[int, Query(ge=0)] = 0) -> dict:
+                offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0) -> dict:
     """One page of the portfolio, filtered and sorted as the queue shows it."""
     limit = settings.page_size if limit is None else min(limit, settings.max_page_size)
     total, items = list_series(db, limit=limit, offset=offset, **flt.store_kwargs())
@@ -162,6 +177,35 @@ def series_fit(db: Db, series_id: str, body: FitIn) -> dict:
     """Fit an order to the stored series now (nothing is saved): the candidate statistics, its
     residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same d."""
     return finite(fit_order(db, series_id, body.order, body.seasonal_order))
+
+
+@router.get("/series/{series_id:path}/backtest")
+def series_backtest(
+    db: Db, series_id: str,
+    order: Annotated[str | None, Query(description="p,d,q (default: the suggested order)", examples=["0,1,1"])] = None,
+    seasonal_order: Annotated[str | None, Query(description="P,D,Q,s (default: the suggested one when order is not given, else none)")] = None,
+    horizon: Annotated[int | None, Query(ge=1, le=MAX_HORIZON, description="steps ahead (default: one season, or 8)")] = None,
+    origins: Annotated[int | None, Query(ge=1, le=MAX_ORIGINS, description=f"forecast origins (default {DEFAULT_ORIGINS})")] = None,
+) -> dict:
+    """Rolling-origin forecast check of an order: MASE against the seasonal naive forecast, the
+    coverage of the 80% and 95% intervals, the error by step ahead, and the data to plot."""
+    seasonal = whole_numbers(seasonal_order, 4, "seasonal_order") if seasonal_order else [0, 0, 0, 0]
+    if order is None:
+        analysis_record(db, series_id)
+        suggested = (load_analysis(db, series_id) or {}).get("suggested")
+        if suggested is None:
+            raise HTTPException(status_code=422, detail=f"series {series_id!r} has no analysis yet: give an order")
+        chosen, seasonal = suggested["order"], (seasonal if seasonal_order else suggested["seasonal_order"])
+    else:
+        chosen = whole_numbers(order, 3, "order")
+    return finite(backtest_series(db, series_id, chosen, seasonal, horizon=horizon, origins=origins))
+
+
+@router.get("/orders")
+def orders(db: Db, status: Annotated[str | None, Query(description="decisions to include, comma-separated (default approved,overridden)")] = None) -> dict:
+    """The export of the decided orders: the ``lagdesk-orders`` document (JSON Schema in
+    ``schemas/lagdesk-orders.schema.json``), as ``lagdesk export`` writes it."""
+    return build_orders_document(db, parse_statuses(status))
 
 
 @router.get("/series/{series_id:path}")
@@ -198,7 +242,7 @@ def bulk_approve(db: Db, flt: Filter, body: BulkApprovalIn) -> dict:
 @router.post("/imports")
 def imports(db: Db, settings: Config, file: UploadFile, options: Annotated[UploadOptions, Form()]) -> dict:
     """Import a CSV portfolio (multipart upload); the import report."""
-    return import_upload(db, file, options, settings.max_upload_bytes).to_dict()
+    return import_upload(db, file, options, settings).to_dict()
 
 
 @router.get("/runs", response_model=list[Run])
@@ -212,7 +256,7 @@ def runs_latest(db: Db) -> dict | None:
 
 
 @router.get("/runs/{run_id}", response_model=Run)
-def run_detail(db: Db, run_id: int) -> dict:
+def run_detail(db: Db, run_id: Annotated[int, Path(ge=1, le=SQLITE_MAX_INTEGER)]) -> dict:
     try:
         return get_run(db, run_id)
     except LagdeskError as exc:

@@ -8,15 +8,17 @@ JavaScript; the scripts add keyboard shortcuts, the charts and in-place fitting.
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Literal
 
 import sqlite_utils
 from fastapi import APIRouter, Depends, Form, HTTPException, Query, Request, UploadFile
+from fastapi import Path as FastApiPath
 from fastapi.responses import FileResponse, RedirectResponse, Response
 
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
+from app.jobs.export import build_orders_document, orders_text
 from app.store.analyses import load_analysis
 from app.store.database import UnknownSeries
 from app.store.runs import get_run, list_runs
@@ -24,21 +26,25 @@ from app.store.series import series_neighbours
 from app.store.verdicts import get_verdict
 from app.web.charts import PLOTLY_JS
 from app.web.decisions import decide, fit_order
-from app.web.deps import REVIEWER_COOKIE, clean_reviewer, get_db, get_settings
+from app.web.deps import REVIEWER_COOKIE, SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
 from app.web.errors import status_of
+from app.web.forecast import forecast_check_view
 from app.web.forms import DecisionForm
 from app.web.queue import QueueFilter, approve_firm, firm_pending_ids, queue_page
 from app.web.review import FormState, custom_fit_view, review_page
+from app.web.security import check_csrf
 from app.web.templating import quote_path, templates
 from app.web.uploads import UploadOptions, import_upload
 
-router = APIRouter()
+# Pages are for browsers; the OpenAPI schema describes the JSON API only.
+router = APIRouter(dependencies=[Depends(check_csrf)], include_in_schema=False)
 
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
 Config = Annotated[Settings, Depends(get_settings)]
 COOKIE_MAX_AGE_S = 365 * 24 * 3600
 BULK_PREVIEW = 12
 VENDOR_MAX_AGE_S = 7 * 24 * 3600
+EXPORT_MEDIA_TYPES = {"json": "application/json", "csv": "text/csv; charset=utf-8"}
 NAME_NEEDED = "Give your name once (this browser remembers it); it is stored with each verdict."
 
 
@@ -64,9 +70,27 @@ def with_query(url: str, query: str) -> str:
 
 @router.get("/", name="queue")
 def queue(request: Request, db: Db, settings: Config, flt: Filter,
-          offset: Annotated[int, Query(ge=0)] = 0, approved: int | None = None) -> Response:
+          offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0, approved: int | None = None) -> Response:
     page = queue_page(db, flt, offset, settings.page_size)
     return render(request, "queue.html", {**page, "approved_count": approved})
+
+
+@router.get("/series/{series_id:path}/forecast-check", name="forecast_check")
+def forecast_check(request: Request, db: Db, flt: Filter, series_id: str, order: str,
+                   seasonal: str = "0,0,0,0", fragment: bool = False) -> Response:
+    """The forecast check of an order (in place on the review page with JavaScript, as a page without)."""
+    try:
+        check = forecast_check_view(
+            db, series_id, whole_numbers(order, 3, "order"), whole_numbers(seasonal, 4, "seasonal order")
+        )
+    except UnknownSeries:
+        raise
+    except LagdeskError as exc:
+        if fragment:
+            return render(request, "_fit_error.html", {"message": str(exc)}, status_code=status_of(exc))
+        raise
+    context = {"check": check, "series_id": series_id, "filter": flt}
+    return render(request, "_forecast_check.html" if fragment else "forecast_check.html", context)
 
 
 @router.get("/series/{series_id:path}", name="review")
@@ -121,8 +145,17 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
             return render(request, "_fit_error.html", {"message": str(exc)}, status_code=status_of(exc))
         return _redraw(request, db, series_id, flt, data, status_of(exc), str(exc))
     if data.fragment:
-        return render(request, "_candidate_detail.html", {"candidate": fit, "hidden": False})
+        return render(request, "_candidate_detail.html", {"candidate": fit, "hidden": False, "series_id": series_id})
     return _redraw(request, db, series_id, flt, data, 200, custom_fit=fit)
+
+
+@router.get("/export/lagdesk-orders.{fmt}", name="download_orders")
+def download_orders(db: Db, fmt: Literal["json", "csv"]) -> Response:
+    """The export of the decided orders as a file to save (what ``lagdesk export`` writes)."""
+    text = orders_text(build_orders_document(db), fmt)
+    return Response(text, media_type=EXPORT_MEDIA_TYPES[fmt], headers={
+        "Content-Disposition": f'attachment; filename="lagdesk-orders.{fmt}"',
+    })
 
 
 @router.get("/approve-firm", name="approve_firm_confirm")
@@ -156,7 +189,7 @@ def upload_form(request: Request) -> Response:
 def upload_save(request: Request, db: Db, settings: Config, file: UploadFile,
                 options: Annotated[UploadOptions, Form()]) -> Response:
     try:
-        report = import_upload(db, file, options, settings.max_upload_bytes)
+        report = import_upload(db, file, options, settings)
     except LagdeskError as exc:
         context = {"options": options, "report": None, "error": str(exc)}
         return render(request, "upload.html", context, status_code=status_of(exc))
@@ -175,7 +208,7 @@ def runs(request: Request, db: Db) -> Response:
 
 
 @router.get("/runs/{run_id}", name="run_progress")
-def run_progress(request: Request, db: Db, run_id: int) -> Response:
+def run_progress(request: Request, db: Db, run_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
     try:
         run = get_run(db, run_id)
     except LagdeskError as exc:

@@ -1,0 +1,98 @@
+"""The hand-off from the command line, end to end: an approved order is exported; new data that
+break it bring the series back as ``recheck`` after ``lagdesk analyze`` and the export leaves it
+out and counts it; ``lagdesk backtest`` prints the forecast check.
+
+The break is checked independently: the approved white-noise model's residuals on the new data
+fail the Ljung-Box test computed directly with statsmodels (Ljung & Box 1978). The export is
+validated against the JSON Schema shipped in schemas/.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import jsonschema
+import numpy as np
+import pandas as pd
+import pytest
+from statsmodels.stats.diagnostic import acorr_ljungbox
+
+import app
+from app.cli import main
+from app.jobs.order_fits import backtest_series
+from app.store.database import open_database
+from app.store.verdicts import get_verdict, set_verdict
+
+SCHEMA = json.loads((Path(app.__file__).resolve().parent.parent / "schemas" / "lagdesk-orders.schema.json").read_text())
+SID = "depot-3/chiller/temp"
+N = 60
+
+
+@pytest.fixture
+def run_cli(capsys):
+    def run(*argv) -> tuple[int, str, str]:
+        code = main([str(a) for a in argv])
+        out, err = capsys.readouterr()
+        return code, out, err
+
+    return run
+
+
+def write_series(path: Path, values: np.ndarray) -> Path:
+    index = pd.date_range("2020-01-06", periods=len(values), freq="W-MON")
+    pd.DataFrame({"series_id": SID, "timestamp": index.strftime("%Y-%m-%d"), "value": values}).to_csv(path, index=False)
+    return path
+
+
+def autocorrelated(n: int, phi: float = 0.95) -> np.ndarray:
+    rng = np.random.default_rng(17)
+    x = np.zeros(n)
+    for t in range(1, n):
+        x[t] = phi * x[t - 1] + rng.normal()
+    return 20.0 + 4.0 + x
+
+
+def test_export_recheck_and_backtest_from_the_command_line(run_cli, tmp_path):
+    db_path = tmp_path / "lagdesk.db"
+    noise = 20.0 + np.random.default_rng(5).normal(size=N)
+    assert run_cli("import", write_series(tmp_path / "v1.csv", noise), "--db", db_path)[0] == 0
+    assert run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")[0] == 0
+    with open_database(db_path) as db:
+        set_verdict(db, SID, status="approved", order=[0, 0, 0], seasonal_order=[0, 0, 0, 0], reviewer="ann", note="", version=0)
+
+    target = tmp_path / "orders.json"
+    code, out, _ = run_cli("export", "--db", db_path, "-o", target)
+    assert code == 0 and out.startswith(f"1 order (1 approved) written to {target} as json; left out: 0 pending")
+    document = json.loads(target.read_text())
+    jsonschema.validate(document, SCHEMA)
+    assert [(o["series_id"], o["p"], o["d"], o["q"]) for o in document["orders"]] == [(SID, 0, 0, 0)]
+
+    longer = np.r_[noise, autocorrelated(N)]
+    assert acorr_ljungbox(longer - longer.mean(), lags=[10], return_df=True)["lb_pvalue"].iloc[0] < 0.05
+    run_cli("import", write_series(tmp_path / "v2.csv", longer), "--db", db_path)
+    code, out, _ = run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")
+    assert code == 0
+    with open_database(db_path) as db:
+        verdict = get_verdict(db, SID)
+    assert verdict["status"] == "recheck" and "fail the Ljung-Box test" in verdict["recheck_reason"]
+
+    code, out, _ = run_cli("export", "--db", db_path, "-o", target, "--format", "csv")
+    assert code == 0 and "0 orders written" in out and "1 recheck" in out
+    assert target.read_text().splitlines()[1:] == []
+
+    code, out, _ = run_cli("backtest", SID, "--db", db_path, "--order", "1,0,0", "--json")
+    assert code == 0
+    with open_database(db_path) as db:
+        direct = backtest_series(db, SID, [1, 0, 0])
+    shown = json.loads(out)
+    assert (shown["mase"], shown["coverage"], shown["horizon"]) == (direct["mase"], direct["coverage"], 8)
+    code, out, _ = run_cli("backtest", SID, "--db", db_path)
+    assert code == 0 and "MASE" in out and "seasonal naive MASE" in out
+
+
+def test_backtest_of_an_unknown_series_is_one_line(run_cli, tmp_path):
+    db_path = tmp_path / "lagdesk.db"
+    run_cli("import", write_series(tmp_path / "v1.csv", np.arange(40.0)), "--db", db_path)
+    code, out, err = run_cli("backtest", "nope", "--db", db_path)
+    assert code == 2 and out == "" and len(err.splitlines()) == 1 and "nope" in err
