@@ -15,7 +15,7 @@ from contextlib import closing
 from pathlib import Path
 
 from app.config import Settings
-from app.core.errors import LagdeskError
+from app.core.errors import LagdeskError, OrderError
 from app.core.fitting import MAX_ORDER
 from app.core.backtest import DEFAULT_ORIGINS
 from app.core.identify import AUTO_PERIOD, EngineOptions
@@ -34,6 +34,7 @@ from app.store.runs import latest_run
 from app.store.status import portfolio_status
 from app.store.verdicts import DECIDED
 from app.web.security import GENERATE, TOKEN_ENV_VAR, generate_token, require_token_off_loopback
+from app.web.deps import whole_numbers
 from app.web.server import run_server
 
 EXIT_INPUT_ERROR = 2
@@ -345,12 +346,9 @@ def integers_option(count: int):
 
     def parse(text: str) -> list[int]:
         try:
-            values = [int(part) for part in text.split(",")]
-        except ValueError:
-            values = []
-        if len(values) != count:
-            raise argparse.ArgumentTypeError(f"expected {count} comma-separated whole numbers, got {text!r}")
-        return values
+            return whole_numbers(text, count, "the value")
+        except OrderError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
 
     return parse
 
