@@ -27,7 +27,6 @@ from app.jobs.order_fits import backtest_series
 from app.jobs.pool import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 from app.jobs.work import SeriesTask, identify_task
-from app.store.analyses import analysis_record, load_analysis
 from app.store.database import open_database, resolve_db_path, storage_error_text
 from app.store.imports import ImportReport, import_portfolio
 from app.store.runs import latest_run
@@ -374,14 +373,7 @@ def run_export(args: argparse.Namespace) -> int:
 
 def run_backtest(args: argparse.Namespace) -> int:
     with closing(open_database(_existing_db(args.db))) as db:
-        order, seasonal = args.order, args.seasonal or [0, 0, 0, 0]
-        if order is None:
-            analysis_record(db, args.series_id)  # names an unknown series
-            result = load_analysis(db, args.series_id)
-            if result is None:
-                raise LagdeskError(f"series {args.series_id!r} has no analysis yet: give --order, or run lagdesk analyze")
-            order, seasonal = result["suggested"]["order"], args.seasonal or result["suggested"]["seasonal_order"]
-        check = backtest_series(db, args.series_id, order, seasonal, args.transform, args.horizon, args.origins)
+        check = backtest_series(db, args.series_id, args.order, args.seasonal, args.transform, args.horizon, args.origins)
     if args.json:
         json.dump(check, sys.stdout, allow_nan=False)
         sys.stdout.write("\n")

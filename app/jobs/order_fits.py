@@ -80,13 +80,16 @@ def fill_parameters(db: sqlite_utils.Database, decided: DecidedOrder) -> None:
 def backtest_series(
     db: sqlite_utils.Database,
     series_id: str,
-    order: Sequence[int],
-    seasonal_order: Sequence[int] = (0, 0, 0, 0),
+    order: Sequence[int] | None,
+    seasonal_order: Sequence[int] | None = None,
     transform: str | dict | None = None,
     horizon: int | None = None,
     origins: int | None = None,
 ) -> dict:
     """The forecast check of one order on a stored series (:func:`app.core.backtest.backtest_order`).
+
+    ``order`` None checks the analysis' suggestion (with its seasonal order unless one is
+    given); a seasonal order left out is none.
 
     The deterministic term is the one the engine gives the order (:func:`chosen_model`); the
     transform defaults to the stored analysis' (none without an analysis). The naive benchmark
@@ -107,6 +110,11 @@ def backtest_series(
     """
     prepared, fingerprint = load_prepared(db, series_id)
     result = load_analysis(db, series_id)
+    if order is None:
+        if result is None:
+            raise LagdeskError(f"series {series_id!r} has no analysis yet: give an order, or run lagdesk analyze")
+        order, seasonal_order = result["suggested"]["order"], seasonal_order or result["suggested"]["seasonal_order"]
+    seasonal_order = seasonal_order or (0, 0, 0, 0)
     try:
         choice = TransformChoice.from_json(transform if transform is not None else (result or {}).get("transform", "none"))
         apply_transform(prepared.values, choice)

@@ -189,15 +189,8 @@ def series_backtest(
 ) -> dict:
     """Rolling-origin forecast check of an order: MASE against the seasonal naive forecast, the
     coverage of the 80% and 95% intervals, the error by step ahead, and the data to plot."""
-    seasonal = whole_numbers(seasonal_order, 4, "seasonal_order") if seasonal_order else [0, 0, 0, 0]
-    if order is None:
-        analysis_record(db, series_id)
-        suggested = (load_analysis(db, series_id) or {}).get("suggested")
-        if suggested is None:
-            raise HTTPException(status_code=422, detail=f"series {series_id!r} has no analysis yet: give an order")
-        chosen, seasonal = suggested["order"], (seasonal if seasonal_order else suggested["seasonal_order"])
-    else:
-        chosen = whole_numbers(order, 3, "order")
+    chosen = whole_numbers(order, 3, "order") if order else None
+    seasonal = whole_numbers(seasonal_order, 4, "seasonal_order") if seasonal_order else None
     return finite(backtest_series(db, series_id, chosen, seasonal, horizon=horizon, origins=origins))
 
 
