@@ -19,11 +19,11 @@ For each order it
    fitted on), puts them on their regular time grid and fills inner gaps by linear
    interpolation, as Lagdesk does;
 2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``);
-3. builds the statsmodels ``SARIMAX`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
-   period`` with the differencing inside the state, so forecasts come out in levels; the
-   deterministic term is read from ``include_constant`` and the parameter names: a ``const``
-   and a ``drift`` together are a constant plus a linear trend (SARIMAX ``trend="ct"``), one
-   of them alone is the constant of the differenced series (``trend="c"``);
+3. builds the statsmodels ``ARIMA`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
+   period`` (a regression with ARMA errors, the differencing inside the state, so forecasts
+   come out in levels); the deterministic terms are read from the parameter names: ``const``
+   is a constant in levels (``trend="c"``), ``drift`` the slope of a linear time trend in
+   levels (``trend="t"``; at d = 1 it is the mean step), both together ``trend="ct"``;
 4. filters the data with the exported ``parameters`` (or, with ``--refit``, estimates them
    again by maximum likelihood) and forecasts;
 5. back-transforms the forecasts and the interval bounds (the point forecast becomes the
@@ -42,7 +42,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from scipy.special import boxcox, inv_boxcox
-from statsmodels.tsa.statespace.sarimax import SARIMAX
+from statsmodels.tsa.arima.model import ARIMA
 
 EXPORT_SCHEMA = ("lagdesk-orders", 1)
 LEVELS = (0.80, 0.95)
@@ -111,18 +111,15 @@ def back_transform(z: np.ndarray, transform) -> np.ndarray:
     return inv_boxcox(z, transform["box_cox"])
 
 
-def sarimax_for(order: dict, z: np.ndarray) -> tuple[SARIMAX, dict]:
-    """The SARIMAX model of an exported order, and its parameters under statsmodels' names."""
+ARIMA_NAMES = {"drift": "x1"}  # statsmodels ARIMA names the time-trend coefficient x1
+
+
+def arima_for(order: dict, z: np.ndarray) -> tuple[ARIMA, dict]:
+    """The ARIMA model of an exported order, and its parameters under statsmodels' names."""
     parameters = dict(order["parameters"])
-    both = "const" in parameters and "drift" in parameters
-    trend = "n" if not order["include_constant"] else "ct" if both else "c"
-    named = {}
-    for name, value in parameters.items():
-        if name == "const" or (name == "drift" and not both):
-            named["intercept"] = value
-        else:
-            named[name] = value
-    model = SARIMAX(
+    trend = "".join(t for name, t in (("const", "c"), ("drift", "t")) if name in parameters) or "n"
+    named = {ARIMA_NAMES.get(name, name): value for name, value in parameters.items()}
+    model = ARIMA(
         z,
         order=(order["p"], order["d"], order["q"]),
         seasonal_order=(order["seasonal_p"], order["seasonal_d"], order["seasonal_q"], order["period"] or 0),
@@ -134,11 +131,11 @@ def sarimax_for(order: dict, z: np.ndarray) -> tuple[SARIMAX, dict]:
 def forecast_order(order: dict, values: pd.Series, horizon: int, refit: bool) -> list[dict]:
     """Forecast rows of one exported order."""
     z = transform_values(values.to_numpy(dtype=float), order["transform"])
-    model, named = sarimax_for(order, z)
+    model, named = arima_for(order, z)
     if refit:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            result = model.fit(disp=False)
+            result = model.fit()
     else:
         missing = [name for name in model.param_names if name not in named]
         if missing:

@@ -46,10 +46,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
-from statsmodels.tsa.statespace.sarimax import SARIMAX
+from statsmodels.tsa.arima.model import ARIMA
 
 from app.core.errors import OrderError
-from app.core.fitting import ModelOrder, differenced_trend, fit_candidate, validate_order
+from app.core.fitting import ModelOrder, fit_candidate, validate_order
 from app.core.prepare import RECOMMENDED_POINTS, PreparedSeries
 from app.core.transform import TransformChoice, apply_transform, invert_transform
 
@@ -136,11 +136,11 @@ def forecast_order(
     z = apply_transform(y, transform)
     fit = fit_candidate(z, model)
     params = np.array([p["value"] for p in fit.params])
-    # fit.params ends with sigma2 whether or not the fit concentrated it out: the full parameter
-    # vector of the unconcentrated model, in statsmodels' order.
-    levels_model = SARIMAX(
-        z, order=model.order, seasonal_order=model.seasonal_order, trend=differenced_trend(model.trend),
-        simple_differencing=False, concentrate_scale=False, enforce_stationarity=False, enforce_invertibility=False,
+    # fit.params are in statsmodels ARIMA's order (deterministic terms, AR, MA, seasonal AR,
+    # seasonal MA, sigma2) and with its meaning (regression with ARMA errors).
+    levels_model = ARIMA(
+        z, order=model.order, seasonal_order=model.seasonal_order, trend=model.trend,
+        enforce_stationarity=False, enforce_invertibility=False,
     )
     prediction = levels_model.filter(params).get_forecast(steps)
     mean = np.asarray(prediction.predicted_mean, dtype=float)

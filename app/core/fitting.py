@@ -4,12 +4,14 @@ A fit keeps what a reviewer needs to judge it: log-likelihood, AIC, AICc, BIC, p
 estimates with standard errors, whether the optimiser converged, a Ljung-Box test on the
 residuals, the residual ACF, and root checks.
 
-* Fitting: statsmodels ``SARIMAX`` on the differenced series (``simple_differencing=True``)
-  with the innovation variance concentrated out of the likelihood (``concentrate_scale=True``):
-  exact Gaussian likelihood by the Kalman filter. Measured here on monthly CO2 it reaches the
-  same log-likelihood and AIC as statsmodels ``ARIMA`` (which keeps the differencing inside the
-  state and excludes the diffuse start-up from the likelihood) at 4-5x the speed. A drift
-  (trend ``"t"`` at d = 1) is a constant of the differenced model.
+* Fitting: exact Gaussian maximum likelihood of the differenced series by the compiled Kalman
+  filter of :mod:`app.core.likelihood`, with the innovation variance and the deterministic
+  terms profiled out. The model is a regression with ARMA errors, as in statsmodels ``ARIMA``:
+  ``const`` is the mean of an undifferenced series, ``drift`` the slope of a linear trend in
+  levels, which at d = 1 is the mean of the differenced series. The likelihood is the one
+  statsmodels ``ARIMA`` computes at the same parameters (the tests check it to 1e-9); the
+  optimum is sought from several starts, the optimum of any smaller order already fitted among
+  them, so a larger order never ends below an order it contains.
 * Ljung-Box: ``h = min(2s, n/5)`` lags for a seasonal model and ``min(10, n/5)`` otherwise
   (Hyndman & Athanasopoulos' rule of thumb, common practice), degrees of freedom reduced by
   ``p + q + P + Q``, and ``h`` raised to at least ``p + q + P + Q + 3`` so the test keeps three
@@ -28,21 +30,24 @@ References
    samples. *Biometrika* 76, 297-307 (AICc).
 .. [3] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*, 3rd ed.,
    §5.4 (Ljung-Box lags) and §9.7 (roots near the unit circle).
+.. [4] Akaike, H. (1974). A new look at the statistical model identification. *IEEE Trans.
+   Automatic Control* 19, 716-723; Schwarz, G. (1978). Estimating the dimension of a model.
+   *Annals of Statistics* 6, 461-464; Hannan, E.J. & Quinn, B.G. (1979). The determination of
+   the order of an autoregression. *JRSS B* 41, 190-195.
 """
 
 from __future__ import annotations
 
 import math
-import warnings
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 
 import numpy as np
 from statsmodels.stats.diagnostic import acorr_ljungbox
-from statsmodels.tools.sm_exceptions import ConvergenceWarning
-from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from app.core.correlogram import Correlogram, correlogram, lag_count
 from app.core.errors import OrderError
+from app.core.likelihood import ArmaFit, ArmaSpec, fit_arma, nested_start, nests
 
 NEAR_UNIT_ROOT = 1.02
 CANCELLING_ROOT_DISTANCE = 0.15
@@ -70,6 +75,12 @@ class ModelOrder:
         _, d, _ = self.order
         _, sd, _, s = self.seasonal_order
         return d + s * sd
+
+    def arma_spec(self) -> ArmaSpec:
+        """The ARMA part, for the differenced series."""
+        p, _, q = self.order
+        sp, _, sq, s = self.seasonal_order
+        return ArmaSpec(p, q, sp, sq, s if sp or sq else 0)
 
     def label(self) -> str:
         p, d, q = self.order
@@ -139,6 +150,7 @@ class CandidateFit:
     residuals: np.ndarray
     flags: list[str] = field(default_factory=list)
     source: list[str] = field(default_factory=list)
+    estimate: ArmaFit | None = field(default=None, repr=False)
 
     @property
     def passes_ljung_box(self) -> bool:
@@ -172,7 +184,30 @@ def ljung_box_lags(n: int, model: ModelOrder) -> int:
     return max(h, model.n_arma + 3)
 
 
-def fit_candidate(y: np.ndarray, model: ModelOrder) -> CandidateFit:
+def difference(y: np.ndarray, model: ModelOrder) -> np.ndarray:
+    """The series (or the columns of an array) after the model's seasonal and ordinary differences."""
+    _, d, _ = model.order
+    _, sd, _, s = model.seasonal_order
+    w = np.asarray(y, dtype=float)
+    for _ in range(sd):
+        w = w[s:] - w[:-s]
+    return np.diff(w, n=d, axis=0) if d else w
+
+
+def trend_design(n: int, model: ModelOrder) -> tuple[list[str], np.ndarray | None]:
+    """Names and columns of the deterministic terms on the differenced scale: a constant
+    (``const``) and a time index ``1..n`` (``drift``) in levels, differenced like the series;
+    a column that differencing removes is dropped."""
+    levels = {"c": ["const"], "t": ["drift"], "ct": ["const", "drift"], "n": []}[model.trend]
+    columns = {"const": np.ones(n), "drift": np.arange(1.0, n + 1)}
+    if not levels:
+        return [], None
+    design = difference(np.column_stack([columns[name] for name in levels]), model)
+    kept = [i for i in range(design.shape[1]) if np.any(np.abs(design[:, i]) > 1e-12)]
+    return [levels[i] for i in kept], (design[:, kept] if kept else None)
+
+
+def fit_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = ()) -> CandidateFit:
     """Fit ``model`` to ``y`` by exact maximum likelihood and run its diagnostics.
 
     Parameters
@@ -181,50 +216,49 @@ def fit_candidate(y: np.ndarray, model: ModelOrder) -> CandidateFit:
         The (transformed) series in levels; differencing is part of the model.
     model : ModelOrder
         The order to fit.
+    fitted : iterable of CandidateFit
+        Fits already made on the same series; the best of those whose order ``model`` contains
+        (same differencing and deterministic terms) is one of the optimiser's starts.
     """
-    # A model with nothing but the variance to estimate (a random walk) has no parameter left
-    # once the variance is concentrated out, and the optimiser refuses an empty problem.
-    concentrate = model.n_arma > 0 or model.trend != "n"
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        result = SARIMAX(
-            y, order=model.order, seasonal_order=model.seasonal_order, trend=differenced_trend(model.trend),
-            simple_differencing=True, concentrate_scale=concentrate,
-            enforce_stationarity=True, enforce_invertibility=True,
-        ).fit(disp=False)
-    warned = any(issubclass(w.category, ConvergenceWarning) for w in caught)
-    converged = bool(result.mle_retvals.get("converged", True)) and not warned
-    resid = np.asarray(result.resid, dtype=float)
+    w = difference(y, model)
+    names, design = trend_design(np.asarray(y).size, model)
+    spec = model.arma_spec()
+    smaller = [f for f in fitted if f.estimate is not None and _same_base(f.model, model) and nests(f.estimate.spec, spec)]
+    starts = [nested_start(max(smaller, key=lambda f: f.loglik).estimate, spec)] if smaller else []
+    estimate = fit_arma(w, spec, design, starts)
+    resid = estimate.residuals
     h = ljung_box_lags(resid.size, model)
-    lb_p = _ljung_box_p(resid, h, model.n_arma)
-    flags = [] if converged else ["no_convergence"]
-    flags += root_flags(result.arroots, result.maroots)
+    flags = [] if estimate.converged else ["no_convergence"]
+    flags += root_flags(_roots(estimate.ar_polynomial), _roots(estimate.ma_polynomial))
     nlags = lag_count(resid.size, model.seasonal_order[3] or None)
-    bse = np.asarray(result.bse, dtype=float) if np.ndim(result.bse) else np.full(len(result.params), np.nan)
+    se = estimate.standard_errors
+    values = np.r_[estimate.beta, estimate.coefficients]
+    errors = np.r_[se[spec.n_coefficients:], se[:spec.n_coefficients]]
     params = [
-        {"name": _param_name(str(name), model.trend), "value": float(value), "se": _finite_or_none(float(se))}
-        for name, value, se in zip(result.param_names, np.asarray(result.params), bse)
+        {"name": name, "value": float(value), "se": _finite_or_none(float(error))}
+        for name, value, error in zip(names + spec.names(), values, errors)
     ]
-    if concentrate:
-        params.append({"name": "sigma2", "value": float(result.scale), "se": None})
+    params.append({"name": "sigma2", "value": estimate.sigma2, "se": None})
+    k, n, loglik = len(params), resid.size, estimate.loglik
+    aic = -2 * loglik + 2 * k
     return CandidateFit(
-        model=model, loglik=float(result.llf), aic=float(result.aic), aicc=float(result.aicc),
-        bic=float(result.bic), hqic=float(result.hqic), nobs=int(result.nobs_effective),
-        n_params=len(params), converged=converged, params=params, ljung_box_p=lb_p, ljung_box_lags=h,
-        residual_correlogram=correlogram(resid, nlags), residuals=resid, flags=flags,
+        model=model, loglik=loglik, aic=aic, aicc=aic + 2 * k * (k + 1) / (n - k - 1) if n > k + 1 else math.inf,
+        bic=-2 * loglik + k * math.log(n), hqic=-2 * loglik + 2 * k * math.log(math.log(n)), nobs=n,
+        n_params=k, converged=estimate.converged, params=params, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
+        ljung_box_lags=h, residual_correlogram=correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
     )
 
 
-def differenced_trend(trend: str) -> str:
-    """The model's deterministic term as a term of the differenced series: a drift is a constant."""
-    return "c" if trend == "t" else trend
+def _same_base(a: ModelOrder, b: ModelOrder) -> bool:
+    """Same differencing and deterministic terms: both fits are of the same differenced series."""
+    def base(m: ModelOrder) -> tuple:
+        return m.order[1], m.seasonal_order[1], m.seasonal_order[3] if m.seasonal_order[1] else 0, m.trend
+    return base(a) == base(b)
 
 
-def _param_name(name: str, trend: str) -> str:
-    """statsmodels calls the drift of a differenced model ``intercept``: name it for what it is."""
-    if name == "intercept":
-        return "drift" if trend == "t" else "const"
-    return name
+def _roots(polynomial: np.ndarray) -> np.ndarray:
+    coefficients = np.trim_zeros(np.asarray(polynomial, dtype=float), "b")
+    return np.polynomial.polynomial.polyroots(coefficients) if coefficients.size > 1 else np.zeros(0, dtype=complex)
 
 
 def _ljung_box_p(resid: np.ndarray, lags: int, model_df: int) -> float | None:

@@ -224,7 +224,7 @@ class _Search:
             if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
                 continue
             try:
-                fit = fit_candidate(self.y, model)
+                fit = fit_candidate(self.y, model, self.fitted.values())
             except (np.linalg.LinAlgError, ValueError) as exc:
                 # One order the optimiser cannot handle costs that candidate only.
                 self.failed.append(f"{model.label()} could not be fitted ({type(exc).__name__}: {exc})")

@@ -46,8 +46,9 @@ from app.core.errors import LagdeskError
 
 DEFAULT_CHUNK = 4
 EXECUTORS = ("local", "dask")
-# Imported once by the forkserver, so each worker starts with the engine already loaded.
-PRELOADED_MODULES = ["app.jobs.work"]
+# Imported once by the forkserver, so each worker starts with the engine (and its compiled
+# likelihood) already loaded.
+PRELOADED_MODULES = ["app.jobs.preload"]
 PARENT_POLL_S = 1.0
 ORPHAN_EXIT_CODE = 1
 _limits = None
