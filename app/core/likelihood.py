@@ -371,16 +371,15 @@ def fit_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, st
     w, x = _inputs(w, design)
     args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     k = spec.n_coefficients
-    best_u, best_value, converged = np.zeros(k), float(-_profile_loglik(np.zeros(k), *args)), True
-    if k:
-        best_value, converged = np.inf, False
-        for start in _starts(w, x, spec, starts):
-            result = minimize(_objective_and_gradient, start, args=args, jac=True, method="L-BFGS-B",
-                              options={"maxiter": MAX_ITERATIONS, "ftol": 1e-13, "gtol": 1e-8})
-            if result.fun < best_value:
-                best_u, best_value, converged = result.x, float(result.fun), bool(result.success) or _flat(result)
-        best_value *= w.size
-    return _finished(w, x, spec, best_u, -best_value, converged)
+    if not k:  # only the variance and the regression: nothing left to optimise
+        return _finished(w, x, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
+    best_u, best_value, converged = np.zeros(k), np.inf, False
+    for start in _starts(w, x, spec, starts):
+        result = minimize(_objective_and_gradient, start, args=args, jac=True, method="L-BFGS-B",
+                          options={"maxiter": MAX_ITERATIONS, "ftol": 1e-13, "gtol": 1e-8})
+        if result.fun < best_value:
+            best_u, best_value, converged = result.x, float(result.fun), bool(result.success) or _flat(result)
+    return _finished(w, x, spec, best_u, -best_value * w.size, converged)
 
 
 def _flat(result) -> bool:
