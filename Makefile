@@ -18,7 +18,7 @@ demo: $(STAMP)
 	$(BIN)/lagdesk demo
 
 test: $(STAMP)
-	$(BIN)/python -m pytest -m "slow or not slow"
+	$(BIN)/python -m pytest -m "slow or not slow" --durations=25
 
 clean:
 	rm -rf $(VENV) *.egg-info
