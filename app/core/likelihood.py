@@ -24,11 +24,13 @@ evaluations rather than the bookkeeping around them.
   recursion (Barndorff-Nielsen & Schou 1973; Monahan 1984; Jones 1980), so every point the
   optimiser visits is stationary and invertible. This is the parameterisation statsmodels uses
   when it enforces stationarity and invertibility.
-* Optimiser: L-BFGS-B on the profile log-likelihood per observation, with a central-difference
-  gradient computed inside the compiled code, from several starts: white noise, a two-step
-  Hannan-Rissanen regression (Hannan & Rissanen 1982) and the optimum of any smaller order
-  the caller passes (:func:`nested_start`); the best optimum is kept, which protects against
-  the local optima a single start can end in.
+* Optimiser: BFGS with a backtracking line search (Nocedal & Wright 2006, §6.1 and §3.1),
+  compiled with the likelihood so that a whole optimisation runs without returning to Python
+  (scipy's L-BFGS-B spent as long in its Python bookkeeping as in the likelihood here), on the
+  profile log-likelihood per observation with a central-difference gradient, from several
+  starts: white noise, a two-step Hannan-Rissanen regression (Hannan & Rissanen 1982) and the
+  optimum of any smaller order the caller passes (:func:`nested_start`); the best optimum is
+  kept, which protects against the local optima a single start can end in.
 * Standard errors: from a central-difference Hessian of the log-likelihood (variance still
   concentrated out) in the model's own coefficients and the regression coefficients; the
   inverse of a profile Hessian is the matching block of the full inverse Hessian.
@@ -51,6 +53,8 @@ References
    average order. *Biometrika* 69, 81-94.
 .. [8] Kohn, R. & Ansley, C.F. (1985). Efficient estimation and prediction in time series
    regression models. *Biometrika* 72, 694-697.
+.. [9] Nocedal, J. & Wright, S.J. (2006). *Numerical Optimization*, 2nd ed. Springer, ch. 3
+   and 6.
 """
 
 from __future__ import annotations
@@ -60,7 +64,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numba import njit
-from scipy.optimize import minimize
 
 LOG_2PI = math.log(2.0 * math.pi)
 DOUBLING_STEPS = 64
@@ -68,6 +71,15 @@ STEADY_STATE_TOLERANCE = 1e-13
 GRADIENT_STEP = 1e-6
 HESSIAN_STEP = 1e-4
 MAX_ITERATIONS = 500
+GRADIENT_TOLERANCE = 1e-8
+FLAT_GRADIENT = 1e-5
+RELATIVE_DECREASE = 1e-13
+ARMIJO = 1e-4
+LINE_SEARCH_HALVINGS = 40
+MAX_STEP = 2.0
+SCREEN_ITERATIONS = 20
+SCREEN_SETTLED = 0.5
+SAME_MAXIMUM = 1e-6
 START_PACF_LIMIT = 0.95
 FAILED = 1e10
 
@@ -213,6 +225,7 @@ def _filter(w, x, ar, ma, innovations):
     cross = np.zeros((k + 1, k + 1))
     log_f = 0.0
     steady = False
+    calm = 0
     f = 1.0
     keep = innovations.shape[1] == n
     for t in range(n):
@@ -251,8 +264,12 @@ def _filter(w, x, ar, ma, innovations):
             for j in range(r):
                 below_j = p[i, j + 1] if j + 1 < r else 0.0
                 m[i, j] = coef[j] * p[i, 0] + below_j + rr[i, j]
-        # Once F_t stops moving the filter has reached its steady state: gain and F stay fixed.
-        steady = abs(m[0, 0] - f) < STEADY_STATE_TOLERANCE and t > r
+        # Once F_t has stopped moving for r steps in a row the filter has reached its steady
+        # state: gain and F stay fixed. One calm step is not enough: with a seasonal MA part, F
+        # can stand still within a season and move again at the seasonal lag, and stopping
+        # there left the likelihood with small jumps that upset the optimiser.
+        calm = calm + 1 if abs(m[0, 0] - f) < STEADY_STATE_TOLERANCE else 0
+        steady = calm >= r
         p[:, :] = m
     return cross[0, 0], cross[1:, 0].copy(), cross[1:, 1:].copy(), log_f
 
@@ -278,25 +295,96 @@ def _profile_loglik(u, w, x, p, q, big_p, big_q, s):
 
 
 @njit(cache=True)
-def _objective_and_gradient(u, w, x, p, q, big_p, big_q, s):
-    """Minus the profile log-likelihood per observation and its central-difference gradient."""
-    n = w.size
-    value = -_profile_loglik(u, w, x, p, q, big_p, big_q, s) / n
+def _objective(u, w, x, p, q, big_p, big_q, s):
+    """Minus the profile log-likelihood per observation; :data:`FAILED` where the filter breaks down."""
+    value = -_profile_loglik(u, w, x, p, q, big_p, big_q, s) / w.size
+    return value if math.isfinite(value) else FAILED
+
+
+@njit(cache=True)
+def _gradient(u, w, x, p, q, big_p, big_q, s):
+    """Central-difference gradient of :func:`_objective`; all zeros (and False) when a
+    neighbouring point is outside the region where the filter works."""
     gradient = np.zeros(u.size)
-    if not math.isfinite(value):
-        return FAILED, gradient
     z = u.copy()
     for i in range(u.size):
         h = GRADIENT_STEP * max(1.0, abs(u[i]))
         z[i] = u[i] + h
-        up = -_profile_loglik(z, w, x, p, q, big_p, big_q, s) / n
+        up = _objective(z, w, x, p, q, big_p, big_q, s)
         z[i] = u[i] - h
-        down = -_profile_loglik(z, w, x, p, q, big_p, big_q, s) / n
+        down = _objective(z, w, x, p, q, big_p, big_q, s)
         z[i] = u[i]
-        if not (math.isfinite(up) and math.isfinite(down)):
-            return FAILED, np.zeros(u.size)
+        if up == FAILED or down == FAILED:
+            return np.zeros(u.size), False
         gradient[i] = (up - down) / (2.0 * h)
-    return value, gradient
+    return gradient, True
+
+
+@njit(cache=True)
+def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
+    """Minimise :func:`_objective` from ``u0`` by BFGS with a backtracking (Armijo) line search.
+
+    The inverse Hessian approximation starts as the identity scaled after the first step
+    (Nocedal & Wright 2006, eq. 6.20) and skips an update whose curvature ``s'y`` is not
+    positive; a step moves no coordinate by more than :data:`MAX_STEP`. Stops when the
+    gradient's largest element is below :data:`GRADIENT_TOLERANCE`, when a step lowers the
+    objective by less than :data:`RELATIVE_DECREASE` of its size, or when the line search
+    cannot lower it; in the last two cases the point counts as an optimum only if its gradient
+    is below :data:`FLAT_GRADIENT`. Returns ``(u, objective, converged, iterations, remaining)``,
+    ``remaining`` being the decrease the quadratic model still predicts, ``g' H^-1 g / 2`` (the
+    half squared Newton decrement; Boyd & Vandenberghe 2004, §9.5.1), infinite where unknown.
+    A screen stops as soon as ``remaining`` falls below ``settled`` (after the first updates
+    have scaled the approximation); a full fit passes 0.
+    """
+    k = u0.size
+    u = u0.copy()
+    f = _objective(u, w, x, p, q, big_p, big_q, s)
+    if f == FAILED:
+        return u, f, False, 0, np.inf
+    g, ok = _gradient(u, w, x, p, q, big_p, big_q, s)
+    if not ok:
+        return u, f, False, 0, np.inf
+    h_inv = np.eye(k)
+    for iteration in range(max_iterations):
+        if np.abs(g).max() < GRADIENT_TOLERANCE:
+            return u, f, True, iteration, 0.5 * (g @ h_inv @ g)
+        if iteration >= 2 and 0.5 * (g @ h_inv @ g) < settled:
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, 0.5 * (g @ h_inv @ g)
+        direction = -(h_inv @ g)
+        slope = g @ direction
+        if not slope < 0.0:  # not a descent direction: restart from steepest descent
+            h_inv = np.eye(k)
+            direction = -g
+            slope = g @ direction
+        largest = np.abs(direction).max()
+        t = 1.0 if largest <= MAX_STEP else MAX_STEP / largest
+        accepted = False
+        for _ in range(LINE_SEARCH_HALVINGS):
+            trial = u + t * direction
+            f_trial = _objective(trial, w, x, p, q, big_p, big_q, s)
+            if f_trial <= f + ARMIJO * t * slope:
+                accepted = True
+                break
+            t *= 0.5
+        if not accepted:
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, 0.5 * (g @ h_inv @ g)
+        g_trial, ok = _gradient(trial, w, x, p, q, big_p, big_q, s)
+        if not ok:
+            return trial, f_trial, False, iteration + 1, np.inf
+        step = trial - u
+        change = g_trial - g
+        decrease = f - f_trial
+        u, f, g = trial, f_trial, g_trial
+        if decrease <= RELATIVE_DECREASE * max(abs(f), 1.0):
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration + 1, 0.5 * (g @ h_inv @ g)
+        curvature = step @ change
+        if curvature > 1e-12 * math.sqrt((step @ step) * (change @ change)):
+            if iteration == 0:
+                h_inv = np.eye(k) * (curvature / (change @ change))
+            rho = 1.0 / curvature
+            hy = h_inv @ change
+            h_inv += (rho * rho * (change @ hy) + rho) * np.outer(step, step) - rho * (np.outer(hy, step) + np.outer(step, hy))
+    return u, f, np.abs(g).max() < FLAT_GRADIENT, max_iterations, 0.5 * (g @ h_inv @ g)
 
 
 @njit(cache=True)
@@ -352,7 +440,56 @@ def nests(inner: ArmaSpec, outer: ArmaSpec) -> bool:
     )
 
 
-def fit_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: list[np.ndarray] = ()) -> ArmaFit:
+@dataclass(frozen=True)
+class ArmaScreen:
+    """A cheap look at an order before its full fit (:func:`screen_arma`).
+
+    ``loglik`` is the profile log-likelihood reached, a lower bound on the maximum;
+    ``remaining`` the further rise the optimiser's quadratic model predicts (log-likelihood
+    units; infinite when the screen stopped on a failure). ``start`` is the start the steps
+    began from and ``unconstrained`` where they ended, so that a full fit continues from there
+    instead of repeating them; ``own_starts`` are the order's white-noise and Hannan-Rissanen
+    starts, which the full fit need not compute again.
+    """
+
+    spec: ArmaSpec
+    loglik: float
+    remaining: float
+    start: np.ndarray
+    unconstrained: np.ndarray
+    own_starts: tuple[np.ndarray, ...] = ()
+
+    @property
+    def settled(self) -> bool:
+        """Whether the quadratic model puts the maximum within :data:`SCREEN_SETTLED` of ``loglik``."""
+        return self.remaining <= SCREEN_SETTLED
+
+
+def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: list[np.ndarray] = ()) -> ArmaScreen:
+    """Screen ``spec``: evaluate the likelihood at every start (white noise, Hannan-Rissanen,
+    ``starts``) and run the optimiser from the best of them until the rise it still predicts
+    is below :data:`SCREEN_SETTLED` log-likelihood units, for at most :data:`SCREEN_ITERATIONS`
+    steps.
+
+    The Hannan-Rissanen estimate alone is often several log-likelihood units short of the
+    maximum and for some orders dozens (a root near the unit circle); a few quasi-Newton steps
+    close most of that gap. A screen that has not settled says so (:attr:`ArmaScreen.settled`),
+    and its loglik says little. A screen is a lower bound for its own start only: another start
+    can lead the full fit to a higher optimum, which is why screening keeps a margin.
+    """
+    w, x = _inputs(w, design)
+    args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
+    if not spec.n_coefficients:
+        return ArmaScreen(spec, float(_profile_loglik(np.zeros(0), *args)), 0.0, np.zeros(0), np.zeros(0))
+    own = _own_starts(w, x, spec)
+    start = min(_distinct([*own, *starts]), key=lambda u: _objective(u, *args))
+    u, value, _, _, remaining = _maximise(start, *args, SCREEN_ITERATIONS, SCREEN_SETTLED / w.size)
+    return ArmaScreen(spec, -float(value) * w.size, float(remaining) * w.size, start, u, tuple(own))
+
+
+def fit_arma(
+    w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: list[np.ndarray] = (), screen: ArmaScreen | None = None
+) -> ArmaFit:
     """Maximise the exact likelihood of ``spec`` for the series ``w`` (see the module notes).
 
     Parameters
@@ -367,25 +504,25 @@ def fit_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, st
     starts : list of ndarray
         Extra start values in the optimiser's coordinates (:func:`nested_start`), tried after
         white noise and the Hannan-Rissanen regression.
+    screen : ArmaScreen, optional
+        The screen of the same order and series (:func:`screen_arma`): the optimisation from
+        its start continues where the screen stopped.
     """
     w, x = _inputs(w, design)
     args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     k = spec.n_coefficients
     if not k:  # only the variance and the regression: nothing left to optimise
         return _finished(w, x, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
-    best_u, best_value, converged = np.zeros(k), np.inf, False
-    for start in _starts(w, x, spec, starts):
-        result = minimize(_objective_and_gradient, start, args=args, jac=True, method="L-BFGS-B",
-                          options={"maxiter": MAX_ITERATIONS, "ftol": 1e-13, "gtol": 1e-8})
-        if result.fun < best_value:
-            best_u, best_value, converged = result.x, float(result.fun), bool(result.success) or _flat(result)
-    return _finished(w, x, spec, best_u, -best_value * w.size, converged)
-
-
-def _flat(result) -> bool:
-    """L-BFGS-B stops with 'ABNORMAL' when the line search cannot improve a point whose
-    gradient is already at the level of the difference quotient's own error: that is an optimum."""
-    return bool(np.abs(result.jac).max() < 1e-5)
+    if screen is None:
+        begins = _distinct([*_own_starts(w, x, spec), *starts])
+    else:
+        begins = _distinct([screen.unconstrained, *(u for u in [*screen.own_starts, *starts] if not _same(u, screen.start))])
+    runs = [_maximise(start, *args, MAX_ITERATIONS, 0.0) for start in begins]
+    best_u, best_value, _, _, _ = min(runs, key=lambda run: run[1])
+    # The maximum counts as reached when any run that ended there converged: a run continued
+    # from a screen can stop on a flat ridge just short of the test another run passed.
+    converged = any(ok and (value - best_value) * w.size <= SAME_MAXIMUM for _, value, ok, _, _ in runs)
+    return _finished(w, x, spec, best_u, -float(best_value) * w.size, converged)
 
 
 def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
@@ -394,17 +531,26 @@ def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.nd
     return w, x
 
 
-def _starts(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, extra: list[np.ndarray]) -> list[np.ndarray]:
+def _own_starts(w: np.ndarray, x: np.ndarray, spec: ArmaSpec) -> list[np.ndarray]:
+    """White noise and two Hannan-Rissanen estimates, without repeats."""
     reach = max(spec.p + spec.s * spec.P, spec.q + spec.s * spec.Q)
     # Two lengths of the long autoregression: a generous one and a short one (twice the MA reach):
     # on an over-parameterised order their starts tend to lead to different optima.
     long_orders = (max(2 * reach, 10), max(2 * (spec.q + spec.s * spec.Q), 1))
-    candidates = [np.zeros(spec.n_coefficients), *(_hannan_rissanen_start(w, x, spec, m) for m in long_orders), *extra]
+    return _distinct([np.zeros(spec.n_coefficients), *(_hannan_rissanen_start(w, x, spec, m) for m in long_orders)])
+
+
+def _distinct(candidates: list[np.ndarray | None]) -> list[np.ndarray]:
+    """The start values in order, without missing ones and without repeats (to 1e-8)."""
     starts: list[np.ndarray] = []
     for start in candidates:
-        if start is not None and not any(np.allclose(start, seen) for seen in starts):
+        if start is not None and not any(_same(start, seen) for seen in starts):
             starts.append(np.asarray(start, dtype=float))
     return starts
+
+
+def _same(a: np.ndarray, b: np.ndarray) -> bool:
+    return bool(np.abs(np.asarray(a) - np.asarray(b)).max(initial=0.0) <= 1e-8)
 
 
 def _hannan_rissanen_start(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, long_order: int) -> np.ndarray | None:
