@@ -23,6 +23,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -64,6 +65,7 @@ def lag_count(n: int, period: int | None = None) -> int:
     return max(1, min(k, n // 2 - 1))
 
 
+@functools.lru_cache(maxsize=16)
 def z_value(alpha: float = DEFAULT_ALPHA) -> float:
     """Two-sided normal quantile: 1.96 for ``alpha=0.05``."""
     return float(norm.ppf(1 - alpha / 2))

@@ -43,11 +43,11 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 
 import numpy as np
-from statsmodels.stats.diagnostic import acorr_ljungbox
+from scipy.special import chdtrc
 
-from app.core.correlogram import Correlogram, correlogram, lag_count
+from app.core.correlogram import Correlogram, autocorrelations, correlogram, lag_count
 from app.core.errors import OrderError
-from app.core.likelihood import ArmaFit, ArmaSpec, fit_arma, nested_start, nests
+from app.core.likelihood import ArmaFit, ArmaScreen, ArmaSpec, fit_arma, nested_start, nests, screen_arma
 
 NEAR_UNIT_ROOT = 1.02
 CANCELLING_ROOT_DISTANCE = 0.15
@@ -207,7 +207,62 @@ def trend_design(n: int, model: ModelOrder) -> tuple[list[str], np.ndarray | Non
     return [levels[i] for i in kept], (design[:, kept] if kept else None)
 
 
-def fit_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = ()) -> CandidateFit:
+def information_criteria(loglik: float, k: int, n: int) -> dict[str, float]:
+    """AIC, AICc, BIC and HQIC of a fit with ``k`` estimated parameters (the innovation variance
+    included) on ``n`` observations (Akaike 1974; Hurvich & Tsai 1989; Schwarz 1978; Hannan &
+    Quinn 1979)."""
+    aic = -2 * loglik + 2 * k
+    return {
+        "aic": aic,
+        "aicc": aic + 2 * k * (k + 1) / (n - k - 1) if n > k + 1 else math.inf,
+        "bic": -2 * loglik + k * math.log(n),
+        "hqic": -2 * loglik + 2 * k * math.log(math.log(n)),
+    }
+
+
+@dataclass
+class ScreenedCandidate:
+    """An order looked at cheaply (:func:`app.core.likelihood.screen_arma`) before a full fit.
+
+    ``criteria`` are computed from the screen's log-likelihood, a lower bound on the maximum,
+    so they are upper bounds on what the full fit would give, up to ``remaining``.
+    """
+
+    model: ModelOrder
+    screen: ArmaScreen
+    n_params: int
+    nobs: int
+
+    @property
+    def criteria(self) -> dict[str, float]:
+        return information_criteria(self.screen.loglik, self.n_params, self.nobs)
+
+    def optimistic_criteria(self, slack: float) -> dict[str, float]:
+        """The criteria if the full fit rose ``remaining + slack`` above the screen."""
+        rise = self.screen.remaining + slack
+        return information_criteria(self.screen.loglik + rise, self.n_params, self.nobs)
+
+
+def _nested_starts(model: ModelOrder, fitted: Iterable[CandidateFit]) -> list[np.ndarray]:
+    """The optimum of the best fitted order that ``model`` contains, as a start (or none)."""
+    spec = model.arma_spec()
+    smaller = [f for f in fitted if f.estimate is not None and _same_base(f.model, model) and nests(f.estimate.spec, spec)]
+    return [nested_start(max(smaller, key=lambda f: f.loglik).estimate, spec)] if smaller else []
+
+
+def screen_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = ()) -> ScreenedCandidate:
+    """Look at ``model`` cheaply: a few optimiser steps from the best of its starts (the starts
+    of :func:`fit_candidate`, nested ones from ``fitted`` included)."""
+    w = difference(y, model)
+    names, design = trend_design(np.asarray(y).size, model)
+    spec = model.arma_spec()
+    screen = screen_arma(w, spec, design, _nested_starts(model, fitted))
+    return ScreenedCandidate(model, screen, len(names) + spec.n_coefficients + 1, w.size)
+
+
+def fit_candidate(
+    y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None
+) -> CandidateFit:
     """Fit ``model`` to ``y`` by exact maximum likelihood and run its diagnostics.
 
     Parameters
@@ -219,13 +274,13 @@ def fit_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFi
     fitted : iterable of CandidateFit
         Fits already made on the same series; the best of those whose order ``model`` contains
         (same differencing and deterministic terms) is one of the optimiser's starts.
+    screened : ScreenedCandidate, optional
+        The screen of this order (:func:`screen_candidate`); the fit continues from it.
     """
     w = difference(y, model)
     names, design = trend_design(np.asarray(y).size, model)
     spec = model.arma_spec()
-    smaller = [f for f in fitted if f.estimate is not None and _same_base(f.model, model) and nests(f.estimate.spec, spec)]
-    starts = [nested_start(max(smaller, key=lambda f: f.loglik).estimate, spec)] if smaller else []
-    estimate = fit_arma(w, spec, design, starts)
+    estimate = fit_arma(w, spec, design, _nested_starts(model, fitted), screened.screen if screened else None)
     resid = estimate.residuals
     h = ljung_box_lags(resid.size, model)
     flags = [] if estimate.converged else ["no_convergence"]
@@ -240,10 +295,8 @@ def fit_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFi
     ]
     params.append({"name": "sigma2", "value": estimate.sigma2, "se": None})
     k, n, loglik = len(params), resid.size, estimate.loglik
-    aic = -2 * loglik + 2 * k
     return CandidateFit(
-        model=model, loglik=loglik, aic=aic, aicc=aic + 2 * k * (k + 1) / (n - k - 1) if n > k + 1 else math.inf,
-        bic=-2 * loglik + k * math.log(n), hqic=-2 * loglik + 2 * k * math.log(math.log(n)), nobs=n,
+        model=model, loglik=loglik, **information_criteria(loglik, k, n), nobs=n,
         n_params=k, converged=estimate.converged, params=params, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
         ljung_box_lags=h, residual_correlogram=correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
     )
@@ -262,10 +315,14 @@ def _roots(polynomial: np.ndarray) -> np.ndarray:
 
 
 def _ljung_box_p(resid: np.ndarray, lags: int, model_df: int) -> float | None:
+    """p-value of ``Q = n (n + 2) sum_{k<=h} r_k^2 / (n - k)`` against chi2(h - model_df)
+    (Ljung & Box 1978), ``r_k`` the sample autocorrelations of the residuals."""
     if lags >= resid.size or lags <= model_df:
         return None
-    table = acorr_ljungbox(resid, lags=[lags], model_df=model_df, return_df=True)
-    return float(table["lb_pvalue"].iloc[0])
+    n = resid.size
+    r = autocorrelations(resid, lags)[1:]
+    statistic = n * (n + 2) * float(np.sum(r**2 / (n - np.arange(1, lags + 1))))
+    return float(chdtrc(lags - model_df, statistic))
 
 
 def root_flags(ar_roots: np.ndarray, ma_roots: np.ndarray) -> list[str]:

@@ -23,13 +23,13 @@ import numpy as np
 import pandas as pd
 
 from app import __version__
-from app.core.confidence import Confidence, score_confidence
+from app.core.confidence import FIRM_MARGIN, Confidence, score_confidence
 from app.core.correlogram import Correlogram, correlogram, lag_count
 from app.core.errors import OrderError, SeriesProblem
-from app.core.fitting import MAX_ORDER, MAX_SEASONAL_ORDER, CandidateFit, ModelOrder, fit_candidate
+from app.core.fitting import MAX_ORDER, MAX_SEASONAL_ORDER, CandidateFit, ModelOrder, ScreenedCandidate, fit_candidate, screen_candidate
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
-from app.core.ranking import DEFAULT_CRITERION, criterion_value, rank_across_d, rank_within_d
+from app.core.ranking import DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
@@ -47,6 +47,8 @@ DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2
 MIN_RESIDUAL_DF = 8
+SCREEN_SLACK = 2.0
+SCREEN_MARGIN = FIRM_MARGIN
 
 Orders = tuple[int, int, int, int]  # (p, q, P, Q)
 
@@ -66,6 +68,7 @@ class EngineOptions:
     criterion: str = DEFAULT_CRITERION
     alpha: float = 0.05
     period: int | str | None = AUTO_PERIOD
+    screening: bool = True
 
 
 @dataclass
@@ -102,6 +105,7 @@ class Identification:
     confidence: Confidence
     criterion: str
     flags: list[str] = field(default_factory=list)
+    screened_out: list[str] = field(default_factory=list)
 
     @property
     def suggested(self) -> CandidateFit:
@@ -140,6 +144,8 @@ class Identification:
                 _candidate_dict(c, criterion_value(c, self.criterion), keep_residuals=i < RESIDUALS_KEPT)
                 for i, c in enumerate(self.candidates)
             ],
+            "screened_out": list(self.screened_out),
+            "screen_margin": SCREEN_MARGIN,
             "engine_version": ENGINE_VERSION,
         }
 
@@ -212,26 +218,54 @@ class _Search:
     fitted: dict[Orders, CandidateFit] = field(default_factory=dict)
     failed: list[str] = field(default_factory=list)
     failed_keys: set[Orders] = field(default_factory=set)
+    screened_out: dict[Orders, ModelOrder] = field(default_factory=dict)
+
+    def tried(self, key: Orders) -> bool:
+        return key in self.fitted or key in self.failed_keys or key in self.screened_out
+
+    def model(self, key: Orders) -> ModelOrder | None:
+        """The model of ``key``, or None when the series is too short to fit it."""
+        p, q, P, Q = key
+        seasonal = (P, self.D, Q, self.period) if self.period and (P or Q or self.D) else (0, 0, 0, 0)
+        model = ModelOrder((p, self.d, q), seasonal, self.trend)
+        usable = self.y.size - model.lost_to_differencing
+        if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
+            return None
+        return model
+
+    def bar(self) -> float:
+        """The best rank score of a fitted candidate that is not demoted (inf before there is one)."""
+        scores = [criterion_value(f, self.options.criterion) for f in self.fitted.values() if not is_demoted(f)]
+        return min(scores, default=math.inf)
 
     def fit(self, orders: dict[Orders, list[str]]) -> None:
-        for key, sources in sorted(orders.items()):
-            if key in self.fitted or key in self.failed_keys:
-                continue
-            p, q, P, Q = key
-            seasonal = (P, self.D, Q, self.period) if self.period and (P or Q or self.D) else (0, 0, 0, 0)
-            model = ModelOrder((p, self.d, q), seasonal, self.trend)
-            usable = self.y.size - model.lost_to_differencing
-            if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
+        """Screen the untried ``orders`` and fit those that can still compete (module notes)."""
+        models = {key: m for key, src in orders.items() if not self.tried(key) and (m := self.model(key)) is not None}
+        screens = {key: self._screen(m) for key, m in models.items()} if self.options.screening else {}
+        hopes = {key: rank_score(c.optimistic_criteria(SCREEN_SLACK)[self.options.criterion], orders[key])
+                 for key, c in screens.items() if c is not None and c.screen.settled}
+        first = min(hopes, key=hopes.get) if hopes else None
+        # The most promising order first, so the bar is set early; then in order of size, so a
+        # smaller order's optimum is there to start a larger one from.
+        for key in sorted(models, key=lambda k: (k != first, k)):
+            if key in hopes and hopes[key] > self.bar() + SCREEN_MARGIN:
+                self.screened_out[key] = models[key]
                 continue
             try:
-                fit = fit_candidate(self.y, model, self.fitted.values())
+                fit = fit_candidate(self.y, models[key], self.fitted.values(), screens.get(key))
             except (np.linalg.LinAlgError, ValueError) as exc:
                 # One order the optimiser cannot handle costs that candidate only.
-                self.failed.append(f"{model.label()} could not be fitted ({type(exc).__name__}: {exc})")
+                self.failed.append(f"{models[key].label()} could not be fitted ({type(exc).__name__}: {exc})")
                 self.failed_keys.add(key)
                 continue
-            fit.source = list(sources)
+            fit.source = list(orders[key])
             self.fitted[key] = fit
+
+    def _screen(self, model: ModelOrder) -> ScreenedCandidate | None:
+        try:
+            return screen_candidate(self.y, model, self.fitted.values())
+        except (np.linalg.LinAlgError, ValueError):
+            return None  # the full fit will say what is wrong
 
     def leader(self) -> CandidateFit:
         return rank_within_d(list(self.fitted.values()), self.options.criterion)[0]
@@ -287,7 +321,7 @@ def search_candidates(
     else:
         search.fit({(p, q, 0, 0): src for (p, q), src in nonseasonal.items()})
     for _ in range(LOCAL_SEARCH_ROUNDS if search.fitted else 0):
-        fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if k not in search.fitted and k not in search.failed_keys}
+        fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if not search.tried(k)}
         if not fresh:
             break
         search.fit(fresh)
@@ -295,7 +329,7 @@ def search_candidates(
         raise SeriesProblem(
             series_id, "no candidate model could be fitted: " + "; ".join(search.failed[:3]), flag="no_fit"
         )
-    return list(search.fitted.values()), cg, w, words + search.failed
+    return list(search.fitted.values()), cg, w, words + search.failed, sorted(m.label() for m in search.screened_out.values())
 
 
 def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
@@ -309,9 +343,9 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
         seasonal.flags += seasonal.differencing.flags
     decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
     ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
-    groups, shown = {}, {}
+    groups, shown, screened_out = {}, {}, {}
     for d in ds:
-        fits, cg, w, words = search_candidates(prepared.series_id, y, d, seasonal, decision, options)
+        fits, cg, w, words, screened_out[d] = search_candidates(prepared.series_id, y, d, seasonal, decision, options)
         if d != decision.d:
             for f in fits:
                 f.source = f.source + ["alternative d"]
@@ -332,7 +366,8 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
             flags.append(flag)
     confidence = score_confidence(ranked, decision, flags, options.criterion)
     label = identified_label(transform, best.model.seasonal_order[3] or None, best.model.seasonal_order[1], best.model.order[1])
-    return Identification(prepared, transform, seasonal, decision, cg, w, label, seasonal.words + words, ranked, confidence, options.criterion, flags)
+    return Identification(prepared, transform, seasonal, decision, cg, w, label, seasonal.words + words, ranked, confidence, options.criterion, flags,
+                          [label for d in ds for label in screened_out[d]])
 
 
 def identify_series(

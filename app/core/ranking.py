@@ -37,6 +37,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 
 from app.core.fitting import CandidateFit
 
@@ -51,12 +52,16 @@ PATTERN_SOURCES = frozenset({
 })
 
 
-def criterion_value(fit: CandidateFit, criterion: str) -> float:
-    """The rank score: the criterion less the bonus for correlogram readings (module notes)."""
-    value = getattr(fit, criterion)
+def rank_score(value: float, sources: Iterable[str]) -> float:
+    """A criterion ``value`` less the bonus for the correlogram readings among ``sources``."""
     if not math.isfinite(value):
         return math.inf
-    return value - PATTERN_BONUS * len(PATTERN_SOURCES.intersection(fit.source))
+    return value - PATTERN_BONUS * len(PATTERN_SOURCES.intersection(sources))
+
+
+def criterion_value(fit: CandidateFit, criterion: str) -> float:
+    """The rank score of a fit: its criterion less the bonus for correlogram readings (module notes)."""
+    return rank_score(getattr(fit, criterion), fit.source)
 
 
 def is_demoted(fit: CandidateFit) -> bool:
