@@ -108,6 +108,13 @@ def _add_period(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def _add_screening(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--no-screening", dest="screening", action="store_false",
+        help="fit every proposed candidate in full, also those a quick estimate puts far behind (slower)",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="lagdesk", description="Box-Jenkins identification and review of ARIMA orders for a portfolio of series.")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -117,6 +124,7 @@ def build_parser() -> argparse.ArgumentParser:
     identify.add_argument("--max-p", type=int, default=MAX_ORDER, help=f"largest AR order considered (default {MAX_ORDER})")
     identify.add_argument("--max-q", type=int, default=MAX_ORDER, help=f"largest MA order considered (default {MAX_ORDER})")
     _add_period(identify)
+    _add_screening(identify)
     identify.add_argument("--json", action="store_true", help="print the full results as JSON on stdout")
     _add_workers(identify)
     _add_executor(identify)
@@ -133,6 +141,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_executor(analyze)
     analyze.add_argument("--all", action="store_true", help="analyse every series again, current or not")
     _add_period(analyze)
+    _add_screening(analyze)
     analyze.set_defaults(handler=run_analyze)
 
     status = commands.add_parser("status", help="what the portfolio database holds")
@@ -221,7 +230,7 @@ def run_identify(args: argparse.Namespace) -> int:
         if not 0 <= getattr(args, name) <= MAX_ORDER:
             raise LagdeskError(f"--{name.replace('_', '-')} must be between 0 and {MAX_ORDER}")
     portfolio = read_portfolio(args.path, args.layout, args.id_col, args.time_col, args.value_col)
-    options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period)
+    options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
@@ -262,7 +271,7 @@ def run_analyze(args: argparse.Namespace) -> int:
     shown = RunProgressLine("analyze")
     try:
         run = run_analysis(
-            path, workers=args.workers, everything=args.all, options=EngineOptions(period=args.period),
+            path, workers=args.workers, everything=args.all, options=EngineOptions(period=args.period, screening=args.screening),
             executor=executor_choice(args), on_progress=shown,
         )
     except KeyboardInterrupt:

@@ -153,6 +153,19 @@ def test_identify_json_has_the_documented_shape(run_cli, small_csv):
     assert found["series"] == [r for r in engine if r is not None]
 
 
+def test_identify_no_screening_fits_every_candidate_in_full(run_cli, small_csv):
+    _, screened_out, _ = run_cli("identify", small_csv, "--json", "--workers", 1)
+    code, out, _ = run_cli("identify", small_csv, "--json", "--workers", 1, "--no-screening")
+
+    assert code == 0
+    screened, full = json.loads(screened_out)["series"], json.loads(out)["series"]
+    assert all(series["screened_out"] == [] for series in full)
+    for a, b in zip(screened, full):
+        assert a["suggested"] == b["suggested"]
+        fitted = {c["label"] for c in b["candidates"]}
+        assert fitted == {c["label"] for c in a["candidates"]} | set(a["screened_out"])
+
+
 @pytest.mark.parametrize(
     ("content", "expected"),
     [

@@ -4,7 +4,8 @@ Everything here works on a 2-D array of equal-length series (one row per series)
 portfolio is handled in a few vectorised passes; a single series is a one-row array.
 
 * ACF: biased autocovariances (divisor ``n``) computed by FFT, as statsmodels ``acf`` with
-  ``adjusted=False`` (its default) computes them.
+  ``adjusted=False`` (its default) computes them; the series is padded to ``n + K`` points,
+  not ``2n``, since only lags up to K are wanted.
 * PACF: the Durbin-Levinson recursion on those autocovariances (the Yule-Walker estimator with
   the biased, "MLE" autocovariance), which is statsmodels ``pacf(method="ldb")`` and equals
   ``method="ywm"``. It is chosen over statsmodels' default ``"ywadjusted"`` because it always
@@ -89,10 +90,14 @@ def autocorrelations(x: np.ndarray, nlags: int) -> np.ndarray:
     n = arr.shape[1]
     if not 0 < nlags < n:
         raise ValueError(f"nlags ({nlags}) must be between 1 and the number of observations - 1 ({n - 1})")
-    centred = arr - arr.mean(axis=1, keepdims=True)
-    size = sp_fft.next_fast_len(2 * n - 1, real=True)
-    spectrum = sp_fft.rfft(centred, n=size, axis=1)
-    acov = sp_fft.irfft(spectrum * np.conj(spectrum), n=size, axis=1)[:, : nlags + 1] / n
+    # Zero padding to n + nlags points is enough: the circular products that wrap around past
+    # the end then meet only zeros for every lag up to nlags. The padding is written out because
+    # scipy's own (the n= argument) made the transform 2.6x slower here.
+    size = sp_fft.next_fast_len(n + nlags, real=True)
+    padded = np.zeros((arr.shape[0], size))
+    padded[:, :n] = arr - arr.mean(axis=1, keepdims=True)
+    spectrum = sp_fft.rfft(padded, axis=1)
+    acov = sp_fft.irfft(spectrum.real**2 + spectrum.imag**2, n=size, axis=1)[:, : nlags + 1] / n
     r = acov / acov[:, :1]
     return r[0] if np.ndim(x) == 1 else r
 
