@@ -12,6 +12,27 @@ in two stages when the model is seasonal: first each seasonal (P, Q) proposal wi
 leading non-seasonal reading, then each non-seasonal (p, q) proposal with the best seasonal
 part. Then :data:`LOCAL_SEARCH_ROUNDS` rounds of a local search fit the untried +-1
 neighbours (in p, q, P and Q) of the current leader.
+
+Screening. Every order a stage proposes is first looked at cheaply
+(:func:`app.core.fitting.screen_candidate`: the quasi-Newton steps of the full fit's best start,
+stopped once the rise the optimiser still predicts is below half a log-likelihood unit). Its
+*hope* is the rank score it would have if the full fit rose above the screen by that predicted
+rise plus :data:`SCREEN_SLACK`. The most hopeful order is fitted first, the rest in order of
+size (so smaller orders are there to start larger ones from); an order whose hope trails the
+best fitted, undemoted candidate by more than :data:`SCREEN_MARGIN` is not fitted and is listed
+in ``screened_out`` instead. The margin is the confidence's firm margin, so an order screened out
+could not have made the suggestion less than firm had its hope come true. A screen that has not
+settled is never used to leave an order out.
+
+A screen is a lower bound for its own start only: the full fit also starts from white noise,
+two Hannan-Rissanen estimates and the optimum of a smaller order, and another start can lead to
+a higher optimum. :data:`SCREEN_SLACK` (2 log-likelihood units) and the margin absorb most of
+that. Measured on the seeded accuracy batch (8 replications of 21 processes at n = 120 and
+n = 500) by fitting every screened-out order in full afterwards: 2 of 1,299 came within the
+margin of the leader (4.9 behind at n = 120; at n = 500 one ended 2.0 ahead but with nearly
+cancelling roots, so demoted), and every suggestion, confidence level and exact and top-3 hit
+was the same as without screening, with 6.5 instead of 10.0 full fits per series at n = 120
+and 4.3 instead of 9.6 at n = 500.
 """
 
 from __future__ import annotations

@@ -129,6 +129,16 @@ def test_review_page_lists_candidates_and_tests_in_words(client, results):
     assert "suggestions are statistical" in text
 
 
+def test_review_page_names_the_orders_screening_left_out(client, results):
+    screened = {series_id: r["screened_out"] for series_id, r in results.items() if r["screened_out"]}
+    assert screened, "the synthetic portfolio should have at least one series with a screened-out order"
+    for series_id, labels in screened.items():
+        text = html.unescape(client.get(page(series_id)).text)
+        assert f"Also considered, not fitted in full: {', '.join(labels)}." in text
+    quiet = next(series_id for series_id, r in results.items() if not r["screened_out"] and r.get("candidates"))
+    assert "data-screened-out" not in client.get(page(quiet)).text
+
+
 def test_review_page_unknown_is_404(client):
     response = client.get(page("no/such/series"))
     assert response.status_code == 404
