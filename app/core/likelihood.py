@@ -630,10 +630,3 @@ def _standard_errors(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, coefficients:
         return np.full(k, np.nan)
     variances = np.diag(covariance)
     return np.where(variances > 0, np.sqrt(np.abs(variances)), np.nan)
-
-
-def warm_up() -> None:
-    """Load (or, the first time on a machine, compile) every compiled function by one small fit
-    with a mean, so that a process forked afterwards has them ready."""
-    w = np.sin(np.arange(40.0)) + np.cos(np.arange(40.0) * 0.3)
-    fit_arma(w, ArmaSpec(1, 1), np.ones((w.size, 1)))

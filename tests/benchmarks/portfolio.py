@@ -147,12 +147,21 @@ def engine_score(truth, outcomes: list[SeriesOutcome]):
     return score(truth, [r[0] for r in ranks], [r[1] for r in ranks], [r[2] for r in ranks])
 
 
-def run_lagdesk(batch, workers: int, options: EngineOptions = EngineOptions()) -> tuple[float, list[SeriesOutcome]]:
+def cpu_seconds() -> float:
+    """CPU time spent on this machine so far, all processes (Linux ``/proc/stat``: user, nice and
+    system time). The pool's workers are children of its forkserver, not of this process, so
+    ``getrusage`` would not see them; this machine runs nothing else of note during a benchmark."""
+    fields = Path("/proc/stat").read_text().split("\n", 1)[0].split()[1:4]
+    return sum(int(v) for v in fields) / os.sysconf("SC_CLK_TCK")
+
+
+def run_lagdesk(batch, workers: int, options: EngineOptions = EngineOptions()) -> tuple[float, list[SeriesOutcome], float]:
+    """Wall time, outcomes in batch order, and CPU seconds spent (this process and its workers)."""
     tasks = [SeriesTask(f"{i:04d}", pd.Series(s.values), None, options) for i, s in enumerate(batch)]
-    start = time.perf_counter()
+    cpu, start = cpu_seconds(), time.perf_counter()
     outcomes = {o.series_id: o for o in map_unordered(identify_task, tasks, workers)}
     wall = time.perf_counter() - start
-    return wall, [outcomes[t.series_id] for t in tasks]
+    return wall, [outcomes[t.series_id] for t in tasks], cpu_seconds() - cpu
 
 
 def cpu_burn(rounds: int) -> int:
@@ -220,9 +229,9 @@ def bench_identification(reps: int) -> None:
         for _ in range(LAGDESK_RUNS):
             ones.append(run_lagdesk(batch, 1))
             twos.append(run_lagdesk(batch, 2))
-        (one_wall, one), (two_wall, two) = min(ones, key=lambda run: run[0]), min(twos, key=lambda run: run[0])
+        (one_wall, one, one_cpu), (two_wall, two, two_cpu) = min(ones, key=lambda run: run[0]), min(twos, key=lambda run: run[0])
         walls += (plain_wall, one_wall, two_wall)
-        unscreened_wall, unscreened = run_lagdesk(batch, 1, EngineOptions(screening=False))
+        unscreened_wall, unscreened, _ = run_lagdesk(batch, 1, EngineOptions(screening=False))
         plain_score = score(truth, plain, None, [16] * len(plain))
         one_score, unscreened_score = engine_score(truth, one), engine_score(truth, unscreened)
         same_picks = sum(engine_ranking(a)[0] == engine_ranking(b)[0] for a, b in zip(one, two))
@@ -233,6 +242,8 @@ def bench_identification(reps: int) -> None:
               f"fits/series {one_score.fits_per_series:.1f}   x{plain_wall / one_wall:.1f} vs plain")
         print(f"     Lagdesk 2 workers  {two_wall:7.1f} s*  x{plain_wall / two_wall:.1f} vs plain, x{one_wall / two_wall:.2f} vs 1 worker "
               f"(same ranking as 1 worker for {same_picks}/{len(batch)} series)")
+        print(f"       CPU time: 1 worker {one_cpu:.1f} s, 2 workers {two_cpu:.1f} s (x{two_cpu / one_cpu:.2f} for the same work: "
+              f"two processes side by side each run slower here); both CPUs busy {two_cpu / two_wall / 2:.0%} of the 2-worker run")
         gaps = loglik_shortfalls(batch, one)
         worst, best = max(gaps), min(gaps)
         print(f"     log-likelihood of the {LEADING_CANDIDATES} leading fits ({len(gaps)}) vs statsmodels ARIMA.fit(): "
