@@ -224,18 +224,15 @@ def information_criteria(loglik: float, k: int, n: int) -> dict[str, float]:
 class ScreenedCandidate:
     """An order looked at cheaply (:func:`app.core.likelihood.screen_arma`) before a full fit.
 
-    ``criteria`` are computed from the screen's log-likelihood, a lower bound on the maximum,
-    so they are upper bounds on what the full fit would give, up to ``remaining``.
+    The screen's log-likelihood is a lower bound on the maximum from its start, so criteria
+    computed from it would be upper bounds on the full fit's; :meth:`optimistic_criteria` grants
+    the full fit a rise instead.
     """
 
     model: ModelOrder
     screen: ArmaScreen
     n_params: int
     nobs: int
-
-    @property
-    def criteria(self) -> dict[str, float]:
-        return information_criteria(self.screen.loglik, self.n_params, self.nobs)
 
     def optimistic_criteria(self, slack: float) -> dict[str, float]:
         """The criteria if the full fit rose ``remaining + slack`` above the screen."""

@@ -261,7 +261,7 @@ class _Search:
 
     def fit(self, orders: dict[Orders, list[str]]) -> None:
         """Screen the untried ``orders`` and fit those that can still compete (module notes)."""
-        models = {key: m for key, src in orders.items() if not self.tried(key) and (m := self.model(key)) is not None}
+        models = {key: m for key in orders if not self.tried(key) and (m := self.model(key)) is not None}
         screens = {key: self._screen(m) for key, m in models.items()} if self.options.screening else {}
         hopes = {key: rank_score(c.optimistic_criteria(SCREEN_SLACK)[self.options.criterion], orders[key])
                  for key, c in screens.items() if c is not None and c.screen.settled}

@@ -55,6 +55,8 @@ References
    regression models. *Biometrika* 72, 694-697.
 .. [9] Nocedal, J. & Wright, S.J. (2006). *Numerical Optimization*, 2nd ed. Springer, ch. 3
    and 6.
+.. [10] Boyd, S. & Vandenberghe, L. (2004). *Convex Optimization*. Cambridge University Press,
+   §9.5.1 (the Newton decrement).
 """
 
 from __future__ import annotations
@@ -77,6 +79,10 @@ RELATIVE_DECREASE = 1e-13
 ARMIJO = 1e-4
 LINE_SEARCH_HALVINGS = 40
 MAX_STEP = 2.0
+# A screen stops once the optimiser predicts less than SCREEN_SETTLED log-likelihood units still
+# to gain (on the accuracy batch 90% of screens after 2 steps, 99% within 5), or after
+# SCREEN_ITERATIONS steps, when it is not trusted to leave an order out. Runs that end within
+# SAME_MAXIMUM units of each other share a maximum.
 SCREEN_ITERATIONS = 20
 SCREEN_SETTLED = 0.5
 SAME_MAXIMUM = 1e-6
