@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import functools
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,6 +34,7 @@ from scipy import fft as sp_fft
 from scipy.stats import norm
 
 DEFAULT_ALPHA = 0.05
+DEFAULT_CHUNK_ROWS = 1_000
 
 
 @dataclass
@@ -162,7 +164,7 @@ def correlogram(x: np.ndarray, nlags: int, alpha: float = DEFAULT_ALPHA) -> Corr
 
 
 def portfolio_correlograms(rows: np.ndarray, nlags: int, alpha: float = DEFAULT_ALPHA) -> list[Correlogram]:
-    """Correlograms of many equal-length series at once (one per row of ``rows``)."""
+    """Correlograms of many equal-length series at once (one per row of ``rows``), at lags 1..nlags."""
     arr = np.atleast_2d(np.asarray(rows, dtype=float))
     n = arr.shape[1]
     r = autocorrelations(arr, nlags)
@@ -171,3 +173,21 @@ def portfolio_correlograms(rows: np.ndarray, nlags: int, alpha: float = DEFAULT_
     lags = np.arange(1, nlags + 1)
     pband = np.full(nlags, z_value(alpha) / math.sqrt(n))
     return [Correlogram(lags, r[i, 1:], band[i], pacf[i], pband) for i in range(arr.shape[0])]
+
+
+def correlograms_by_length(
+    series: Mapping[str, np.ndarray], alpha: float = DEFAULT_ALPHA, chunk: int = DEFAULT_CHUNK_ROWS
+) -> dict[str, Correlogram]:
+    """Correlograms of a whole portfolio: series of equal length go through
+    :func:`portfolio_correlograms` together, ``chunk`` rows at a time so that the FFT's work
+    arrays stay small, each at its own :func:`lag_count` lags. Returned in the input's order."""
+    by_length: dict[int, list[str]] = {}
+    for name, values in series.items():
+        by_length.setdefault(np.asarray(values).size, []).append(name)
+    found: dict[str, Correlogram] = {}
+    for n, names in by_length.items():
+        for first in range(0, len(names), chunk):
+            batch = names[first:first + chunk]
+            rows = np.vstack([np.asarray(series[name], dtype=float) for name in batch])
+            found.update(zip(batch, portfolio_correlograms(rows, lag_count(n), alpha)))
+    return {name: found[name] for name in series}

@@ -23,7 +23,7 @@ target it answers to:
    candidates of every series against statsmodels ``ARIMA(...).fit()`` on the same order,
    trend and transformed series.
 3. Peak memory for a 10,000 x 1,000 portfolio, in a fresh process: the whole array held,
-   correlograms of all of it computed in chunks, and a sample of it identified on 2 workers
+   correlograms of all of it computed in chunks (``correlograms_by_length``), and a sample of it identified on 2 workers
    (a full analysis of 10,000 series of 1,000 points takes hours on 2 cores; the sample's
    rate gives the estimate printed). Peak RSS of the parent and of each worker.
 4. The queue and review pages with 10,000 series in the store, by tests/web/bench_pages.py.
@@ -53,7 +53,7 @@ sys.path.insert(0, str(REPO / "tests" / "core"))
 
 from accuracy_batch import accuracy_batch, plain_bic_grid, score  # noqa: E402
 
-from app.core.correlogram import lag_count, portfolio_correlograms  # noqa: E402
+from app.core.correlogram import correlograms_by_length, lag_count, portfolio_correlograms  # noqa: E402
 from app.core.transform import TransformChoice, apply_transform  # noqa: E402
 from app.jobs.pool import map_unordered  # noqa: E402
 from app.core.identify import EngineOptions  # noqa: E402
@@ -278,10 +278,9 @@ def memory_probe(sample: int) -> dict:
         data[first:first + MEMORY_CHUNK] = ar1_rows(rng, min(MEMORY_CHUNK, rows - first), n, integrate_every=3)
     figures["data_mb"] = data.nbytes / MB
     figures["after_data_mb"] = peak_rss_mb()
-    nlags = lag_count(n)
     start = time.perf_counter()
     with threadpool_limits(limits=1):
-        correlograms = [cg for first in range(0, rows, MEMORY_CHUNK) for cg in portfolio_correlograms(data[first:first + MEMORY_CHUNK], nlags)]
+        correlograms = correlograms_by_length({f"row-{i}": data[i] for i in range(rows)}, chunk=MEMORY_CHUNK)
     figures["correlogram_s"] = time.perf_counter() - start
     figures["correlograms"] = len(correlograms)
     figures["after_correlograms_mb"] = peak_rss_mb()

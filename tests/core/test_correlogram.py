@@ -21,6 +21,7 @@ from statsmodels.tsa.stattools import acf, pacf
 from app.core.correlogram import (
     autocorrelations,
     correlogram,
+    correlograms_by_length,
     lag_count,
     partial_autocorrelations,
     portfolio_correlograms,
@@ -92,6 +93,21 @@ def test_portfolio_correlograms_equal_per_row_results(sample_series):
         np.testing.assert_allclose(cg.pacf, alone.pacf, atol=1e-12)
         np.testing.assert_allclose(cg.pacf_band, alone.pacf_band, atol=1e-12)
         np.testing.assert_allclose(cg.pacf, pacf(row, nlags=nlags, method="ldb")[1:], atol=1e-10)
+
+
+def test_correlograms_by_length_group_series_of_equal_length(sample_series):
+    # Series of three lengths, interleaved, in chunks of 2 rows: every one equals statsmodels'
+    # acf (Bartlett bands) and pacf(method="ldb") on its own, at its own lag count.
+    series = {f"{name}/{n}": x[:n] for name, x in sample_series.items() for n in (60, 90, x.size)}
+    found = correlograms_by_length(series, chunk=2)
+    assert list(found) == list(series)
+    for name, x in series.items():
+        nlags = lag_count(x.size)
+        ref = acf(x, nlags=nlags, alpha=0.05, result_object=True)
+        assert found[name].lags.tolist() == list(range(1, nlags + 1))
+        np.testing.assert_allclose(found[name].acf, ref.acf[1:], atol=1e-10, err_msg=name)
+        np.testing.assert_allclose(found[name].acf_band, ref.confint[1:, 1] - ref.acf[1:], atol=1e-10, err_msg=name)
+        np.testing.assert_allclose(found[name].pacf, pacf(x, nlags=nlags, method="ldb")[1:], atol=1e-10, err_msg=name)
 
 
 def test_autocorrelations_reject_impossible_lag():
