@@ -229,7 +229,6 @@ class ScreenedCandidate:
     the full fit a rise instead.
     """
 
-    model: ModelOrder
     screen: ArmaScreen
     n_params: int
     nobs: int
@@ -254,7 +253,7 @@ def screen_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[Candidat
     names, design = trend_design(np.asarray(y).size, model)
     spec = model.arma_spec()
     screen = screen_arma(w, spec, design, _nested_starts(model, fitted))
-    return ScreenedCandidate(model, screen, len(names) + spec.n_coefficients + 1, w.size)
+    return ScreenedCandidate(screen, len(names) + spec.n_coefficients + 1, w.size)
 
 
 def fit_candidate(

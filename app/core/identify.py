@@ -254,11 +254,6 @@ class _Search:
             return None
         return model
 
-    def bar(self) -> float:
-        """The best rank score of a fitted candidate that is not demoted (inf before there is one)."""
-        scores = [criterion_value(f, self.options.criterion) for f in self.fitted.values() if not is_demoted(f)]
-        return min(scores, default=math.inf)
-
     def fit(self, orders: dict[Orders, list[str]]) -> None:
         """Screen the untried ``orders`` and fit those that can still compete (module notes)."""
         models = {key: m for key in orders if not self.tried(key) and (m := self.model(key)) is not None}
@@ -266,10 +261,12 @@ class _Search:
         hopes = {key: rank_score(c.optimistic_criteria(SCREEN_SLACK)[self.options.criterion], orders[key])
                  for key, c in screens.items() if c is not None and c.screen.settled}
         first = min(hopes, key=hopes.get) if hopes else None
+        # The bar: the best rank score of a fitted candidate that is not demoted.
+        bar = min((criterion_value(f, self.options.criterion) for f in self.fitted.values() if not is_demoted(f)), default=math.inf)
         # The most promising order first, so the bar is set early; then in order of size, so a
         # smaller order's optimum is there to start a larger one from.
         for key in sorted(models, key=lambda k: (k != first, k)):
-            if key in hopes and hopes[key] > self.bar() + SCREEN_MARGIN:
+            if key in hopes and hopes[key] > bar + SCREEN_MARGIN:
                 self.screened_out[key] = models[key]
                 continue
             try:
@@ -281,6 +278,8 @@ class _Search:
                 continue
             fit.source = list(orders[key])
             self.fitted[key] = fit
+            if not is_demoted(fit):
+                bar = min(bar, criterion_value(fit, self.options.criterion))
 
     def _screen(self, model: ModelOrder) -> ScreenedCandidate | None:
         try:

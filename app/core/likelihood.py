@@ -327,6 +327,12 @@ def _gradient(u, w, x, p, q, big_p, big_q, s):
 
 
 @njit(cache=True)
+def _half_decrement(g, h_inv):
+    """``g' H^-1 g / 2``: the decrease a quadratic model with gradient ``g`` still predicts."""
+    return 0.5 * (g @ h_inv @ g)
+
+
+@njit(cache=True)
 def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
     """Minimise :func:`_objective` from ``u0`` by BFGS with a backtracking (Armijo) line search.
 
@@ -353,9 +359,9 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
     h_inv = np.eye(k)
     for iteration in range(max_iterations):
         if np.abs(g).max() < GRADIENT_TOLERANCE:
-            return u, f, True, iteration, 0.5 * (g @ h_inv @ g)
-        if iteration >= 2 and 0.5 * (g @ h_inv @ g) < settled:
-            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, 0.5 * (g @ h_inv @ g)
+            return u, f, True, iteration, _half_decrement(g, h_inv)
+        if iteration >= 2 and _half_decrement(g, h_inv) < settled:
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, _half_decrement(g, h_inv)
         direction = -(h_inv @ g)
         slope = g @ direction
         if not slope < 0.0:  # not a descent direction: restart from steepest descent
@@ -373,7 +379,7 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
                 break
             t *= 0.5
         if not accepted:
-            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, 0.5 * (g @ h_inv @ g)
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, _half_decrement(g, h_inv)
         g_trial, ok = _gradient(trial, w, x, p, q, big_p, big_q, s)
         if not ok:
             return trial, f_trial, False, iteration + 1, np.inf
@@ -382,7 +388,7 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
         decrease = f - f_trial
         u, f, g = trial, f_trial, g_trial
         if decrease <= RELATIVE_DECREASE * max(abs(f), 1.0):
-            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration + 1, 0.5 * (g @ h_inv @ g)
+            return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration + 1, _half_decrement(g, h_inv)
         curvature = step @ change
         if curvature > 1e-12 * math.sqrt((step @ step) * (change @ change)):
             if iteration == 0:
@@ -390,7 +396,7 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled):
             rho = 1.0 / curvature
             hy = h_inv @ change
             h_inv += (rho * rho * (change @ hy) + rho) * np.outer(step, step) - rho * (np.outer(hy, step) + np.outer(step, hy))
-    return u, f, np.abs(g).max() < FLAT_GRADIENT, max_iterations, 0.5 * (g @ h_inv @ g)
+    return u, f, np.abs(g).max() < FLAT_GRADIENT, max_iterations, _half_decrement(g, h_inv)
 
 
 @njit(cache=True)
