@@ -49,7 +49,8 @@ from scipy.stats import norm
 from statsmodels.tsa.arima.model import ARIMA
 
 from app.core.errors import OrderError
-from app.core.fitting import ModelOrder, fit_candidate, validate_order
+from app.core.fitting import fit_candidate
+from app.core.order import Order, validate_order
 from app.core.prepare import RECOMMENDED_POINTS, PreparedSeries
 from app.core.transform import TransformChoice, apply_transform, invert_transform
 
@@ -124,7 +125,7 @@ class IntervalForecast:
 
 
 def forecast_order(
-    y: np.ndarray, model: ModelOrder, transform: TransformChoice, steps: int, levels: tuple[float, ...] = INTERVAL_LEVELS
+    y: np.ndarray, model: Order, transform: TransformChoice, steps: int, levels: tuple[float, ...] = INTERVAL_LEVELS
 ) -> IntervalForecast:
     """Fit ``model`` to ``y`` (original scale) and forecast ``steps`` ahead with intervals.
 
@@ -135,7 +136,7 @@ def forecast_order(
     """
     z = apply_transform(y, transform)
     fit = fit_candidate(z, model)
-    params = np.array([p["value"] for p in fit.params])
+    params = np.array([p.value for p in fit.params])
     # fit.params are in statsmodels ARIMA's order (deterministic terms, AR, MA, seasonal AR,
     # seasonal MA, sigma2) and with its meaning (regression with ARMA errors).
     levels_model = ARIMA(
@@ -160,7 +161,7 @@ def _back_transformed_bound(values: np.ndarray, transform: TransformChoice, lowe
     return np.where(np.isnan(out), 0.0 if lower else np.inf, out)
 
 
-def minimum_training(model: ModelOrder, m: int) -> int:
+def minimum_training(model: Order, m: int) -> int:
     """The shortest training window of an origin: enough for the order to be fitted
     (:func:`~app.core.fitting.validate_order`), for the naive scale (``m + 1``), and at least
     :data:`~app.core.prepare.RECOMMENDED_POINTS` (the length below which the engine already
@@ -169,7 +170,7 @@ def minimum_training(model: ModelOrder, m: int) -> int:
     return max(needed, m + 1)
 
 
-def _long_enough(model: ModelOrder, n: int) -> bool:
+def _long_enough(model: Order, n: int) -> bool:
     try:
         validate_order(model.order, model.seasonal_order, n=n, trend=model.trend)
     except OrderError:
@@ -193,7 +194,7 @@ class Backtest:
     """The result of :func:`backtest_order` (see the module notes for the method)."""
 
     series_id: str
-    model: ModelOrder
+    model: Order
     transform: TransformChoice
     m: int
     horizon: int
@@ -276,7 +277,7 @@ class Backtest:
 
 def backtest_order(
     prepared: PreparedSeries,
-    model: ModelOrder,
+    model: Order,
     transform: TransformChoice,
     period: int | None,
     horizon: int | None = None,
@@ -288,7 +289,7 @@ def backtest_order(
     ----------
     prepared : PreparedSeries
         The series on its regular grid (original scale).
-    model : ModelOrder
+    model : Order
         The order and deterministic term to evaluate.
     transform : TransformChoice
         The transform the model is fitted on; forecasts are back-transformed through it.

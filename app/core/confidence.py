@@ -21,33 +21,34 @@ from dataclasses import dataclass, field
 
 from app.core.fitting import CandidateFit
 from app.core.ranking import is_demoted, margin_to_rival
-from app.core.stationarity import DifferencingDecision
+from app.core.vocabulary import Confidence, Flag
 
-LEVELS = ("firm", "tentative", "weak")
 FIRM_MARGIN = 6.0
-WEAK_FLAGS = {"too_short", "no_convergence", "redundant_roots", "residual_autocorrelation"}
-NOT_FIRM_FLAGS = {"long_gap", "near_unit_root", "uncertain_differencing", "trend_stationary"}
+WEAK_FLAGS = {Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION}
+NOT_FIRM_FLAGS = {Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING, Flag.TREND_STATIONARY}
 
 
 @dataclass
-class Confidence:
-    level: str
+class ConfidenceScore:
+    """The level and the reasons for it, in words."""
+
+    level: Confidence
     reasons: list[str] = field(default_factory=list)
 
 
-def score_confidence(ranked: list[CandidateFit], decision: DifferencingDecision, flags: list[str], criterion: str) -> Confidence:
+def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str) -> ConfidenceScore:
     """Score the leading candidate of ``ranked`` (see the module notes)."""
     best = ranked[0]
     reasons = []
-    weak = sorted(WEAK_FLAGS.intersection(flags))
+    weak = sorted(f for f in WEAK_FLAGS if f in flags)
     if weak or is_demoted(best):
         reasons += [f"flag: {f}" for f in weak] or ["the best model fails its residual checks"]
-        return Confidence("weak", reasons)
-    not_firm = sorted(NOT_FIRM_FLAGS.intersection(flags))
+        return ConfidenceScore(Confidence.WEAK, reasons)
+    not_firm = sorted(f for f in NOT_FIRM_FLAGS if f in flags)
     reasons += [f"flag: {f}" for f in not_firm]
     margin = margin_to_rival(ranked, criterion)
     if margin < FIRM_MARGIN:
         reasons.append(f"the best rival is within {margin:.1f} of the suggestion in {criterion.upper()} rank score")
     if reasons:
-        return Confidence("tentative", reasons)
-    return Confidence("firm", [f"clean checks; the best rival trails by {margin:.1f}" if margin != float("inf") else "clean checks"])
+        return ConfidenceScore(Confidence.TENTATIVE, reasons)
+    return ConfidenceScore(Confidence.FIRM, [f"clean checks; the best rival trails by {margin:.1f}" if margin != float("inf") else "clean checks"])

@@ -2,18 +2,30 @@
 
 Every failure a user can cause (a bad file, a bad series) is raised as a subclass of
 :class:`LagdeskError`, with a message that names the file, the series and the row where
-there is one, so the command line and the web pages can show it without a traceback.
+there is one, so the command line and the web pages can show it without a traceback. Each
+class carries the HTTP status the web layer answers it with (``http_status``), so one handler
+serves them all.
 """
 
 from __future__ import annotations
 
+from typing import Any, ClassVar
+
 
 class LagdeskError(Exception):
-    """Base class of every error Lagdesk reports to a user."""
+    """Base class of every error Lagdesk reports to a user (422: a request that cannot be done)."""
+
+    http_status: ClassVar[int] = 422
+
+    def details(self) -> dict[str, Any]:
+        """What an answer to a script carries beside the message (nothing by default)."""
+        return {}
 
 
 class InputFileError(LagdeskError):
     """A whole file cannot be used (unreadable, missing column, wrong layout)."""
+
+    http_status = 400
 
     def __init__(self, path: str, message: str) -> None:
         self.path = path

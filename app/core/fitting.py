@@ -45,96 +45,22 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.special import chdtrc
 
+from app.core.analysis import Candidate, Correlation, Parameter
 from app.core.correlogram import Correlogram, autocorrelations, correlogram, lag_count
-from app.core.errors import OrderError
-from app.core.likelihood import ArmaFit, ArmaScreen, ArmaSpec, fit_arma, nested_start, nests, screen_arma
+from app.core.likelihood import ArmaFit, ArmaScreen, fit_arma, is_nested_in, nested_start, screen_arma
+from app.core.order import Order
+from app.core.vocabulary import Flag
 
 NEAR_UNIT_ROOT = 1.02
 CANCELLING_ROOT_DISTANCE = 0.15
 LJUNG_BOX_LEVEL = 0.05
-MAX_ORDER = 5
-MAX_SEASONAL_ORDER = 2
-
-
-@dataclass(frozen=True)
-class ModelOrder:
-    """A validated (p,d,q)(P,D,Q)s order with the deterministic term of the model."""
-
-    order: tuple[int, int, int]
-    seasonal_order: tuple[int, int, int, int] = (0, 0, 0, 0)
-    trend: str = "n"
-
-    @property
-    def n_arma(self) -> int:
-        p, _, q = self.order
-        sp, _, sq, _ = self.seasonal_order
-        return p + q + sp + sq
-
-    @property
-    def lost_to_differencing(self) -> int:
-        _, d, _ = self.order
-        _, sd, _, s = self.seasonal_order
-        return d + s * sd
-
-    def arma_spec(self) -> ArmaSpec:
-        """The ARMA part, for the differenced series."""
-        p, _, q = self.order
-        sp, _, sq, s = self.seasonal_order
-        return ArmaSpec(p, q, sp, sq, s if sp or sq else 0)
-
-    def label(self) -> str:
-        p, d, q = self.order
-        text = f"ARIMA({p},{d},{q})"
-        if self.seasonal_order[3]:
-            sp, sd, sq, s = self.seasonal_order
-            text += f"({sp},{sd},{sq}){s}"
-        return text
-
-
-def validate_order(order, seasonal_order=(0, 0, 0, 0), n: int | None = None, trend: str | None = None) -> ModelOrder:
-    """Check an order a person typed or a program sent, and pick the model's deterministic term.
-
-    Raises
-    ------
-    OrderError
-        With a message naming the bad value.
-    """
-    try:
-        p, d, q = (_whole(v) for v in order)
-        sp, sd, sq, s = (_whole(v) for v in seasonal_order)
-    except (TypeError, ValueError):
-        raise OrderError(f"order must be three whole numbers (p,d,q) and seasonal order four (P,D,Q,s); got {order!r}, {seasonal_order!r}") from None
-    for name, value, high in (("p", p, 10), ("d", d, 2), ("q", q, 10), ("P", sp, 3), ("D", sd, 1), ("Q", sq, 3)):
-        if not 0 <= value <= high:
-            raise OrderError(f"{name} = {value} is outside 0..{high}")
-    if s < 0 or s == 1:
-        raise OrderError(f"seasonal period s = {s} must be 0 (no season) or at least 2")
-    if s == 0 and (sp or sd or sq):
-        raise OrderError("a seasonal order (P,D,Q) needs a seasonal period s >= 2")
-    model = ModelOrder((p, d, q), (sp, sd, sq, s), trend if trend is not None else default_trend(d, sd))
-    if n is not None:
-        needed = model.lost_to_differencing + max(p + s * sp, q + s * sq) + model.n_arma + 3
-        if n < needed:
-            raise OrderError(f"{model.label()} needs at least {needed} observations; the series has {n}")
-    return model
-
-
-def _whole(value) -> int:
-    if isinstance(value, bool) or float(value) != int(float(value)):
-        raise ValueError(value)
-    return int(float(value))
-
-
-def default_trend(d: int, seasonal_d: int = 0) -> str:
-    """A constant for an undifferenced model, none once the series is differenced."""
-    return "c" if d + seasonal_d == 0 else "n"
 
 
 @dataclass
 class CandidateFit:
     """One fitted candidate with its statistics and diagnostics."""
 
-    model: ModelOrder
+    model: Order
     loglik: float
     aic: float
     aicc: float
@@ -143,7 +69,7 @@ class CandidateFit:
     nobs: int
     n_params: int
     converged: bool
-    params: list[dict]
+    params: list[Parameter]
     ljung_box_p: float | None
     ljung_box_lags: int
     residual_correlogram: Correlogram
@@ -156,35 +82,31 @@ class CandidateFit:
     def passes_ljung_box(self) -> bool:
         return self.ljung_box_p is None or math.isnan(self.ljung_box_p) or self.ljung_box_p >= LJUNG_BOX_LEVEL
 
-    def to_dict(self) -> dict:
-        return {
-            "order": list(self.model.order),
-            "seasonal_order": list(self.model.seasonal_order),
-            "trend": self.model.trend,
-            "label": self.model.label(),
-            "source": list(self.source),
-            "loglik": self.loglik, "aic": self.aic, "aicc": self.aicc, "bic": self.bic, "hqic": self.hqic,
-            "nobs": self.nobs, "n_params": self.n_params, "converged": self.converged,
-            "ljung_box_p": _finite_or_none(self.ljung_box_p), "ljung_box_lags": self.ljung_box_lags,
-            "params": self.params,
-            "residual_acf": self.residual_correlogram.to_dict()["acf"],
-            "residuals": [float(v) for v in self.residuals],
-            "flags": list(self.flags),
-        }
+    def to_candidate(self, rank_score: float | None = None, keep_residuals: bool = True) -> Candidate:
+        """The fit as the typed result keeps it (residuals only when ``keep_residuals``)."""
+        cg = self.residual_correlogram
+        return Candidate(
+            order=self.model, source=tuple(self.source), loglik=self.loglik, aic=self.aic, aicc=self.aicc,
+            bic=self.bic, hqic=self.hqic, nobs=self.nobs, n_params=self.n_params, converged=self.converged,
+            params=tuple(self.params), ljung_box_p=_finite_or_none(self.ljung_box_p), ljung_box_lags=self.ljung_box_lags,
+            residual_acf=Correlation(tuple(cg.lags.tolist()), tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
+            residuals=tuple(float(v) for v in self.residuals) if keep_residuals else None,
+            flags=tuple(self.flags), rank_score=rank_score,
+        )
 
 
 def _finite_or_none(value: float | None) -> float | None:
     return None if value is None or not math.isfinite(value) else float(value)
 
 
-def ljung_box_lags(n: int, model: ModelOrder) -> int:
+def ljung_box_lags(n: int, model: Order) -> int:
     """Lags for the residual Ljung-Box test (see the module notes)."""
     s = model.seasonal_order[3]
     h = min(2 * s, n // 5) if s else min(10, n // 5)
     return max(h, model.n_arma + 3)
 
 
-def difference(y: np.ndarray, model: ModelOrder) -> np.ndarray:
+def difference(y: np.ndarray, model: Order) -> np.ndarray:
     """The series (or the columns of an array) after the model's seasonal and ordinary differences."""
     _, d, _ = model.order
     _, sd, _, s = model.seasonal_order
@@ -194,7 +116,7 @@ def difference(y: np.ndarray, model: ModelOrder) -> np.ndarray:
     return np.diff(w, n=d, axis=0) if d else w
 
 
-def trend_design(n: int, model: ModelOrder) -> tuple[list[str], np.ndarray | None]:
+def trend_design(n: int, model: Order) -> tuple[list[str], np.ndarray | None]:
     """Names and columns of the deterministic terms on the differenced scale: a constant
     (``const``) and a time index ``1..n`` (``drift``) in levels, differenced like the series;
     a column that differencing removes is dropped."""
@@ -239,14 +161,20 @@ class ScreenedCandidate:
         return information_criteria(self.screen.loglik + rise, self.n_params, self.nobs)
 
 
-def _nested_starts(model: ModelOrder, fitted: Iterable[CandidateFit]) -> list[np.ndarray]:
+def _same_data(a: Order, b: Order) -> bool:
+    """Same differencing and deterministic terms: both fits are of the same differenced series
+    with the same regression columns, so one's optimum is a start for the other."""
+    return a.differencing_key() == b.differencing_key() and a.trend == b.trend
+
+
+def _nested_starts(model: Order, fitted: Iterable[CandidateFit]) -> list[np.ndarray]:
     """The optimum of the best fitted order that ``model`` contains, as a start (or none)."""
     spec = model.arma_spec()
-    smaller = [f for f in fitted if f.estimate is not None and _same_base(f.model, model) and nests(f.estimate.spec, spec)]
-    return [nested_start(max(smaller, key=lambda f: f.loglik).estimate, spec)] if smaller else []
+    smaller = [f.estimate for f in fitted if f.estimate is not None and _same_data(f.model, model) and is_nested_in(f.estimate.spec, spec)]
+    return [nested_start(max(smaller, key=lambda e: e.loglik), spec)] if smaller else []
 
 
-def screen_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = ()) -> ScreenedCandidate:
+def screen_candidate(y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = ()) -> ScreenedCandidate:
     """Look at ``model`` cheaply: a few optimiser steps from the best of its starts (the starts
     of :func:`fit_candidate`, nested ones from ``fitted`` included)."""
     w = difference(y, model)
@@ -257,7 +185,7 @@ def screen_candidate(y: np.ndarray, model: ModelOrder, fitted: Iterable[Candidat
 
 
 def fit_candidate(
-    y: np.ndarray, model: ModelOrder, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None
+    y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None
 ) -> CandidateFit:
     """Fit ``model`` to ``y`` by exact maximum likelihood and run its diagnostics.
 
@@ -265,7 +193,7 @@ def fit_candidate(
     ----------
     y : ndarray
         The (transformed) series in levels; differencing is part of the model.
-    model : ModelOrder
+    model : Order
         The order to fit.
     fitted : iterable of CandidateFit
         Fits already made on the same series; the best of those whose order ``model`` contains
@@ -279,30 +207,24 @@ def fit_candidate(
     estimate = fit_arma(w, spec, design, _nested_starts(model, fitted), screened.screen if screened else None)
     resid = estimate.residuals
     h = ljung_box_lags(resid.size, model)
-    flags = [] if estimate.converged else ["no_convergence"]
+    flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
     flags += root_flags(_roots(estimate.ar_polynomial), _roots(estimate.ma_polynomial))
     nlags = lag_count(resid.size, model.seasonal_order[3] or None)
     se = estimate.standard_errors
     values = np.r_[estimate.beta, estimate.coefficients]
     errors = np.r_[se[spec.n_coefficients:], se[:spec.n_coefficients]]
     params = [
-        {"name": name, "value": float(value), "se": _finite_or_none(float(error))}
+        Parameter(name, float(value), _finite_or_none(float(error)))
         for name, value, error in zip(names + spec.names(), values, errors)
     ]
-    params.append({"name": "sigma2", "value": estimate.sigma2, "se": None})
+    params.append(Parameter("sigma2", estimate.sigma2, None))
     k, n, loglik = len(params), resid.size, estimate.loglik
+    criteria = information_criteria(loglik, k, n)
     return CandidateFit(
-        model=model, loglik=loglik, **information_criteria(loglik, k, n), nobs=n,
+        model=model, loglik=loglik, aic=criteria["aic"], aicc=criteria["aicc"], bic=criteria["bic"], hqic=criteria["hqic"], nobs=n,
         n_params=k, converged=estimate.converged, params=params, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
         ljung_box_lags=h, residual_correlogram=correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
     )
-
-
-def _same_base(a: ModelOrder, b: ModelOrder) -> bool:
-    """Same differencing and deterministic terms: both fits are of the same differenced series."""
-    def base(m: ModelOrder) -> tuple:
-        return m.order[1], m.seasonal_order[1], m.seasonal_order[3] if m.seasonal_order[1] else 0, m.trend
-    return base(a) == base(b)
 
 
 def _roots(polynomial: np.ndarray) -> np.ndarray:
@@ -323,12 +245,12 @@ def _ljung_box_p(resid: np.ndarray, lags: int, model_df: int) -> float | None:
 
 def root_flags(ar_roots: np.ndarray, ma_roots: np.ndarray) -> list[str]:
     """``near_unit_root`` and ``redundant_roots`` flags from the AR and MA polynomial roots."""
-    flags = []
+    flags: list[str] = []
     ar, ma = np.asarray(ar_roots, dtype=complex), np.asarray(ma_roots, dtype=complex)
     if any(np.abs(r).min() < NEAR_UNIT_ROOT for r in (ar, ma) if r.size):
-        flags.append("near_unit_root")
+        flags.append(Flag.NEAR_UNIT_ROOT)
     if ar.size and ma.size:
         distance = np.abs((1 / ar)[:, None] - (1 / ma)[None, :]).min()
         if distance < CANCELLING_ROOT_DISTANCE:
-            flags.append("redundant_roots")
+            flags.append(Flag.REDUNDANT_ROOTS)
     return flags

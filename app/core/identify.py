@@ -27,12 +27,10 @@ settled is never used to leave an order out.
 A screen is a lower bound for its own start only: the full fit also starts from white noise,
 two Hannan-Rissanen estimates and the optimum of a smaller order, and another start can lead to
 a higher optimum. :data:`SCREEN_SLACK` (2 log-likelihood units) and the margin absorb most of
-that. Measured on the seeded accuracy batch (8 replications of 21 processes at n = 120 and
-n = 500) by fitting every screened-out order in full afterwards: 2 of 1,299 came within the
-margin of the leader (4.9 behind at n = 120; at n = 500 one ended 2.0 ahead but with nearly
-cancelling roots, so demoted), and every suggestion, confidence level and exact and top-3 hit
-was the same as without screening, with 6.5 instead of 10.0 full fits per series at n = 120
-and 4.3 instead of 9.6 at n = 500.
+that. tests/core/test_screening.py checks on a sample of the seeded accuracy batch
+(tests/core/accuracy_batch.py) that screening keeps every suggestion and confidence and that
+what it leaves out trails the leader by more than the margin when fitted in full; README's
+accuracy section gives the batch figures with and without screening.
 """
 
 from __future__ import annotations
@@ -44,13 +42,15 @@ import numpy as np
 import pandas as pd
 
 from app import __version__
-from app.core.confidence import FIRM_MARGIN, Confidence, score_confidence
-from app.core.correlogram import Correlogram, correlogram, lag_count
+from app.core.analysis import Analysis, Correlation, DifferencingSummary, SeasonalSummary, with_deltas
+from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
+from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
 from app.core.errors import OrderError, SeriesProblem
-from app.core.fitting import MAX_ORDER, MAX_SEASONAL_ORDER, CandidateFit, ModelOrder, ScreenedCandidate, fit_candidate, screen_candidate
+from app.core.fitting import CandidateFit, ScreenedCandidate, fit_candidate, screen_candidate
+from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
-from app.core.ranking import DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
+from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
@@ -61,6 +61,7 @@ from app.core.seasonality import (
 )
 from app.core.stationarity import DifferencingDecision, choose_differencing
 from app.core.transform import TransformChoice, apply_transform, choose_transform
+from app.core.vocabulary import Flag
 
 ENGINE_VERSION = __version__
 AUTO_PERIOD = "auto"
@@ -87,9 +88,20 @@ class EngineOptions:
     max_P: int = MAX_SEASONAL_ORDER
     max_Q: int = MAX_SEASONAL_ORDER
     criterion: str = DEFAULT_CRITERION
-    alpha: float = 0.05
+    alpha: float = DEFAULT_ALPHA
     period: int | str | None = AUTO_PERIOD
     screening: bool = True
+
+    def __post_init__(self) -> None:
+        limits = (("max_p", self.max_p, MAX_ORDER), ("max_q", self.max_q, MAX_ORDER),
+                  ("max_P", self.max_P, MAX_SEASONAL_ORDER), ("max_Q", self.max_Q, MAX_SEASONAL_ORDER))
+        for name, value, high in limits:
+            if not 0 <= value <= high:
+                raise OrderError(f"{name} ({value}) must be between 0 and {high}")
+        if self.criterion not in CRITERIA:
+            raise OrderError(f"criterion must be one of {', '.join(CRITERIA)}, not {self.criterion!r}")
+        if not 0 < self.alpha < 0.5:
+            raise OrderError(f"the band level alpha ({self.alpha}) must be between 0 and 0.5")
 
 
 @dataclass
@@ -105,9 +117,15 @@ class SeasonalSetup:
     def D(self) -> int:
         return self.differencing.D if self.differencing else 0
 
-    def to_dict(self) -> dict:
-        out = self.differencing.to_dict() if self.differencing else {"D": 0}
-        return {**out, "examined_period": self.examined, "words": list(self.words)}
+    def summary(self) -> SeasonalSummary:
+        sd = self.differencing
+        return SeasonalSummary(
+            examined_period=self.examined, D=self.D,
+            seasonal_strength=sd.strength if sd else None, trend_strength=sd.trend_strength if sd else None,
+            threshold=sd.threshold if sd else None, seasons=sd.seasons if sd else None,
+            enough_seasons=sd.enough_seasons if sd else None, seasonal_terms_possible=sd.seasonal_terms_possible if sd else None,
+            flags=tuple(sd.flags) if sd else (), explanation=tuple(sd.explanation) if sd else (), words=tuple(self.words),
+        )
 
 
 @dataclass
@@ -123,60 +141,46 @@ class Identification:
     identified_label: str
     pattern_words: list[str]
     candidates: list[CandidateFit]
-    confidence: Confidence
+    confidence: ConfidenceScore
     criterion: str
     flags: list[str] = field(default_factory=list)
-    screened_out: list[str] = field(default_factory=list)
+    screened_out: list[Order] = field(default_factory=list)
 
     @property
     def suggested(self) -> CandidateFit:
         return self.candidates[0]
 
-    def to_dict(self) -> dict:
+    def to_analysis(self) -> Analysis:
+        """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
         best = self.suggested
         index = self.prepared.index
-        period = best.model.seasonal_order[3] or None
-        shown_period = period or self.seasonal.examined
-        return {
-            "series_id": self.prepared.series_id,
-            "n": self.prepared.n,
-            "freq": self.prepared.freq,
-            "start": str(index[0]),
-            "end": str(index[-1]),
-            "d": best.model.order[1],
-            "D": best.model.seasonal_order[1],
-            "period": period,
-            "transform": self.transform.to_json(),
-            "transform_words": list(self.transform.explanation),
-            "trend": best.model.trend,
-            "suggested": {"order": list(best.model.order), "seasonal_order": list(best.model.seasonal_order)},
-            "confidence": self.confidence.level,
-            "confidence_reasons": list(self.confidence.reasons),
-            "flags": list(self.flags),
-            "differencing": self.differencing.to_dict(),
-            "seasonal": self.seasonal.to_dict(),
-            **self.correlogram.to_dict(),
-            "seasonal_lags": seasonal_lags(shown_period, len(self.correlogram.lags)),
-            "patterns": list(self.pattern_words),
-            "identified_on": {"values": [float(v) for v in self.identified_on], "label": self.identified_label},
-            "gaps_filled": self.prepared.gaps_filled,
-            "criterion": self.criterion,
-            "candidates": [
-                _candidate_dict(c, criterion_value(c, self.criterion), keep_residuals=i < RESIDUALS_KEPT)
-                for i, c in enumerate(self.candidates)
-            ],
-            "screened_out": list(self.screened_out),
-            "screen_margin": SCREEN_MARGIN,
-            "engine_version": ENGINE_VERSION,
-        }
-
-
-def _candidate_dict(fit: CandidateFit, rank_score: float, keep_residuals: bool) -> dict:
-    out = fit.to_dict()
-    out["rank_score"] = rank_score
-    if not keep_residuals:
-        out["residuals"] = None
-    return out
+        decision = self.differencing
+        cg = self.correlogram
+        lags = tuple(cg.lags.tolist())
+        candidates = [
+            c.to_candidate(criterion_value(c, self.criterion), keep_residuals=i < RESIDUALS_KEPT)
+            for i, c in enumerate(self.candidates)
+        ]
+        return Analysis(
+            series_id=self.prepared.series_id, n=self.prepared.n, freq=self.prepared.freq,
+            start=str(index[0]), end=str(index[-1]),
+            # What a stored analysis keeps of the transform: the choice and its words.
+            transform=TransformChoice(self.transform.kind, self.transform.lam, explanation=list(self.transform.explanation)),
+            confidence=self.confidence.level, confidence_reasons=tuple(self.confidence.reasons), flags=tuple(self.flags),
+            differencing=DifferencingSummary(
+                d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
+                trend_stationary=decision.trend_stationary,
+                tests=tuple(decision.tests), explanation=tuple(decision.explanation),
+            ),
+            seasonal=self.seasonal.summary(),
+            acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
+            pacf=Correlation(lags, tuple(cg.pacf.tolist()), tuple(cg.pacf_band.tolist())),
+            seasonal_lags=tuple(seasonal_lags(best.model.period or self.seasonal.examined, len(lags))),
+            patterns=tuple(self.pattern_words), identified_on=tuple(float(v) for v in self.identified_on),
+            identified_label=self.identified_label, gaps_filled=self.prepared.gaps_filled, criterion=self.criterion,
+            candidates=with_deltas(candidates), screened_out=tuple(self.screened_out), screen_margin=SCREEN_MARGIN,
+            engine_version=ENGINE_VERSION,
+        )
 
 
 def resolve_period(prepared: PreparedSeries, option: int | str | None) -> tuple[int | None, list[str]]:
@@ -193,6 +197,8 @@ def resolve_period(prepared: PreparedSeries, option: int | str | None) -> tuple[
         if period >= prepared.n:
             return None, [f"The series is shorter than one season ({period} points at frequency {prepared.freq}): treated as non-seasonal."]
         return period, [f"Seasonal period {period} from the sampling frequency ({prepared.freq})."]
+    if isinstance(option, str):
+        raise SeriesProblem(prepared.series_id, f"period {option!r} is not auto, none or a whole number", flag="bad_period")
     try:
         return validate_period(option, prepared.n, prepared.series_id), ([f"Seasonal period {option} as requested."] if option else [])
     except OrderError as exc:
@@ -239,16 +245,16 @@ class _Search:
     fitted: dict[Orders, CandidateFit] = field(default_factory=dict)
     failed: list[str] = field(default_factory=list)
     failed_keys: set[Orders] = field(default_factory=set)
-    screened_out: dict[Orders, ModelOrder] = field(default_factory=dict)
+    screened_out: dict[Orders, Order] = field(default_factory=dict)
 
     def tried(self, key: Orders) -> bool:
         return key in self.fitted or key in self.failed_keys or key in self.screened_out
 
-    def model(self, key: Orders) -> ModelOrder | None:
+    def model(self, key: Orders) -> Order | None:
         """The model of ``key``, or None when the series is too short to fit it."""
         p, q, P, Q = key
         seasonal = (P, self.D, Q, self.period) if self.period and (P or Q or self.D) else (0, 0, 0, 0)
-        model = ModelOrder((p, self.d, q), seasonal, self.trend)
+        model = Order.of((p, self.d, q), seasonal, self.trend)
         usable = self.y.size - model.lost_to_differencing
         if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
             return None
@@ -260,7 +266,7 @@ class _Search:
         screens = {key: self._screen(m) for key, m in models.items()} if self.options.screening else {}
         hopes = {key: rank_score(c.optimistic_criteria(SCREEN_SLACK)[self.options.criterion], orders[key])
                  for key, c in screens.items() if c is not None and c.screen.settled}
-        first = min(hopes, key=hopes.get) if hopes else None
+        first = min(hopes, key=lambda k: hopes[k]) if hopes else None
         # The bar: the best rank score of a fitted candidate that is not demoted.
         bar = min((criterion_value(f, self.options.criterion) for f in self.fitted.values() if not is_demoted(f)), default=math.inf)
         # The most promising order first, so the bar is set early; then in order of size, so a
@@ -281,7 +287,7 @@ class _Search:
             if not is_demoted(fit):
                 bar = min(bar, criterion_value(fit, self.options.criterion))
 
-    def _screen(self, model: ModelOrder) -> ScreenedCandidate | None:
+    def _screen(self, model: Order) -> ScreenedCandidate | None:
         try:
             return screen_candidate(self.y, model, self.fitted.values())
         except (np.linalg.LinAlgError, ValueError):
@@ -292,13 +298,13 @@ class _Search:
 
     def neighbours(self, key: Orders) -> dict[Orders, list[str]]:
         limits = (self.options.max_p, self.options.max_q, self.options.max_P if self.period else 0, self.options.max_Q if self.period else 0)
-        out = {}
+        out: dict[Orders, list[str]] = {}
         for axis in range(4):
             for step in (-1, 1):
                 moved = list(key)
                 moved[axis] += step
                 if 0 <= moved[axis] <= limits[axis]:
-                    out[tuple(moved)] = ["local search"]
+                    out[(moved[0], moved[1], moved[2], moved[3])] = ["local search"]
         return out
 
 
@@ -308,9 +314,22 @@ def _key(fit: CandidateFit) -> Orders:
     return (p, q, P, Q)
 
 
+@dataclass
+class SearchResult:
+    """What the search of one differencing choice found: the fitted candidates, the correlogram
+    read and the series it was read on, the words of the readings, and the orders screening
+    left out."""
+
+    fits: list[CandidateFit]
+    correlogram: Correlogram
+    identified_on: np.ndarray
+    words: list[str]
+    screened_out: list[Order]
+
+
 def search_candidates(
     series_id: str, y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: DifferencingDecision, options: EngineOptions
-):
+) -> SearchResult:
     """Read the correlograms of the differenced series, propose orders and fit them."""
     D = seasonal.D
     w = seasonal_difference(y, seasonal.examined, D)
@@ -323,7 +342,7 @@ def search_candidates(
         if nlags < period or not seasonal_structure_present(cg.acf, cg.acf_band, period):
             words.append(f"No seasonal structure at lag {period} in the ACF: a non-seasonal model is proposed.")
             period = None
-    if period and "too_few_seasons" in seasonal.flags and not seasonal.differencing.seasonal_terms_possible:
+    if period and Flag.TOO_FEW_SEASONS in seasonal.flags and seasonal.differencing and not seasonal.differencing.seasonal_terms_possible:
         period = None
     _, significant = eacf_table(w, options.max_p, options.max_q)
     reading = read_patterns(cg, options.max_p, options.max_q, eacf_vertex(significant), period)
@@ -349,7 +368,8 @@ def search_candidates(
         raise SeriesProblem(
             series_id, "no candidate model could be fitted: " + "; ".join(search.failed[:3]), flag="no_fit"
         )
-    return list(search.fitted.values()), cg, w, words + search.failed, sorted(m.label() for m in search.screened_out.values())
+    screened = sorted(search.screened_out.values(), key=lambda m: m.label())
+    return SearchResult(list(search.fitted.values()), cg, w, words + search.failed, screened)
 
 
 def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
@@ -363,31 +383,32 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
         seasonal.flags += seasonal.differencing.flags
     decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
     ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
-    groups, shown, screened_out = {}, {}, {}
-    for d in ds:
-        fits, cg, w, words, screened_out[d] = search_candidates(prepared.series_id, y, d, seasonal, decision, options)
+    searches = {d: search_candidates(prepared.series_id, y, d, seasonal, decision, options) for d in ds}
+    for d, found in searches.items():
         if d != decision.d:
-            for f in fits:
+            for f in found.fits:
                 f.source = f.source + ["alternative d"]
-        groups[d] = fits
-        shown[d] = (cg, w, words)
-    ranked = rank_across_d(groups, options.criterion)
+    ranked = rank_across_d({d: found.fits for d, found in searches.items()}, options.criterion)
     best = ranked[0]
-    cg, w, words = shown[best.model.order[1]]
+    shown = searches[best.model.d]
     flags = list(prepared.flags) + seasonal.flags
     if transform.kind != "none":
-        flags.append("transformed")
+        flags.append(Flag.TRANSFORMED)
     if decision.uncertain:
-        flags.append("uncertain_differencing")
+        flags.append(Flag.UNCERTAIN_DIFFERENCING)
     if decision.trend_stationary:
-        flags.append("trend_stationary")
-    for flag in best.flags + ([] if best.passes_ljung_box else ["residual_autocorrelation"]):
+        flags.append(Flag.TREND_STATIONARY)
+    for flag in best.flags + ([] if best.passes_ljung_box else [Flag.RESIDUAL_AUTOCORRELATION]):
         if flag not in flags:
             flags.append(flag)
-    confidence = score_confidence(ranked, decision, flags, options.criterion)
-    label = identified_label(transform, best.model.seasonal_order[3] or None, best.model.seasonal_order[1], best.model.order[1])
-    return Identification(prepared, transform, seasonal, decision, cg, w, label, seasonal.words + words, ranked, confidence, options.criterion, flags,
-                          [label for d in ds for label in screened_out[d]])
+    return Identification(
+        prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
+        correlogram=shown.correlogram, identified_on=shown.identified_on,
+        identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d),
+        pattern_words=seasonal.words + shown.words, candidates=ranked,
+        confidence=score_confidence(ranked, flags, options.criterion), criterion=options.criterion, flags=flags,
+        screened_out=[m for found in searches.values() for m in found.screened_out],
+    )
 
 
 def identify_series(

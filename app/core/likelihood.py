@@ -62,6 +62,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -444,7 +445,7 @@ def nested_start(fit: ArmaFit, spec: ArmaSpec) -> np.ndarray:
     return np.concatenate([np.r_[block, np.zeros(size - block.size)][:size] for block, size in zip(fit.spec.blocks(fit.unconstrained), sizes)])
 
 
-def nests(inner: ArmaSpec, outer: ArmaSpec) -> bool:
+def is_nested_in(inner: ArmaSpec, outer: ArmaSpec) -> bool:
     """Whether ``inner`` is ``outer`` with some coefficients fixed at zero (same season)."""
     same_season = inner.s == outer.s or not (inner.P or inner.Q)
     return same_season and inner != outer and all(
@@ -477,7 +478,7 @@ class ArmaScreen:
         return self.remaining <= SCREEN_SETTLED
 
 
-def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: list[np.ndarray] = ()) -> ArmaScreen:
+def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: Sequence[np.ndarray] = ()) -> ArmaScreen:
     """Screen ``spec``: evaluate the likelihood at every start (white noise, Hannan-Rissanen,
     ``starts``) and run the optimiser from the best of them until the rise it still predicts
     is below :data:`SCREEN_SETTLED` log-likelihood units, for at most :data:`SCREEN_ITERATIONS`
@@ -500,7 +501,7 @@ def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None,
 
 
 def fit_arma(
-    w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: list[np.ndarray] = (), screen: ArmaScreen | None = None
+    w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None, starts: Sequence[np.ndarray] = (), screen: ArmaScreen | None = None
 ) -> ArmaFit:
     """Maximise the exact likelihood of ``spec`` for the series ``w`` (see the module notes).
 

@@ -1,6 +1,6 @@
 """Putting one series on a regular grid, ready for identification.
 
-Rules (documented in DEVELOPERS.md as well):
+Rules:
 
 * observations are sorted by time; two observations with the same timestamp are an error
   naming the timestamp, unless the caller chose an aggregation (``mean``, ``sum``, ``last``);
@@ -25,12 +25,12 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
-from typing import Literal
 
 import numpy as np
 import pandas as pd
 
 from app.core.errors import SeriesProblem
+from app.core.vocabulary import Flag
 
 SHORT_GAP_MAX = 3
 MIN_POINTS = 12
@@ -44,7 +44,6 @@ MAX_POINTS = 100_000
 # Squares of values up to 1e100 stay far below the largest double (about 1.8e308) even summed
 # over billions of points; no measured quantity comes near it.
 MAX_ABS_VALUE = 1e100
-Aggregation = Literal["mean", "sum", "last"]
 INTEGER_FREQ = "step"
 
 
@@ -72,7 +71,6 @@ def prepare_series(
     series: pd.Series,
     series_id: str | None = None,
     lines: np.ndarray | None = None,
-    aggregate: Aggregation | None = None,
 ) -> PreparedSeries:
     """Sort, regularise, fill and check one series.
 
@@ -84,8 +82,6 @@ def prepare_series(
         Name used in messages; defaults to ``series.name``.
     lines : numpy.ndarray, optional
         The file line of each observation, so errors can name it.
-    aggregate : {"mean", "sum", "last"}, optional
-        How to combine observations that share a timestamp; without it they are an error.
 
     Raises
     ------
@@ -98,7 +94,7 @@ def prepare_series(
     _reject_unusable_values(values, line_of, sid)
     order = np.argsort(values.index.to_numpy(), kind="stable")
     values, line_of = values.iloc[order], line_of.iloc[order]
-    values = _resolve_duplicates(values, line_of, sid, aggregate)
+    _reject_duplicates(values, line_of, sid)
     values = values.loc[values.first_valid_index(): values.last_valid_index()] if values.notna().any() else values.iloc[:0]
     if values.size == 0:
         raise SeriesProblem(sid, "has no values", flag="empty")
@@ -116,9 +112,9 @@ def prepare_series(
         long_gaps=int(sum(1 for r in run_lengths if r > SHORT_GAP_MAX)),
     )
     if prepared.gaps_filled:
-        prepared.flags.append("gaps")
+        prepared.flags.append(Flag.GAPS)
     if prepared.long_gaps:
-        prepared.flags.append("long_gap")
+        prepared.flags.append(Flag.LONG_GAP)
     observed = prepared.n - prepared.gaps_filled
     if observed < MIN_POINTS:
         raise SeriesProblem(
@@ -133,7 +129,7 @@ def prepare_series(
     if np.ptp(filled) <= 1e-12 * max(1.0, float(np.abs(filled).max())):
         raise SeriesProblem(sid, f"is constant (every value is {filled[0]:g}); there is nothing to model", flag="constant")
     if observed < RECOMMENDED_POINTS:
-        prepared.flags.append("too_short")
+        prepared.flags.append(Flag.TOO_SHORT)
     return prepared
 
 
@@ -152,19 +148,16 @@ def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> 
                             row=line if line > 0 else None, flag="bad_value")
 
 
-def _resolve_duplicates(values: pd.Series, line_of: pd.Series, sid: str, aggregate: Aggregation | None) -> pd.Series:
+def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
     duplicated = values.index.duplicated(keep="first")
-    if not duplicated.any():
-        return values
-    if aggregate is None:
+    if duplicated.any():
         i = int(np.flatnonzero(duplicated)[0])
         line = int(line_of.iloc[i])
         raise SeriesProblem(
-            sid, f"timestamp {values.index[i]} appears more than once (choose an aggregation to combine them)",
+            sid, f"timestamp {values.index[i]} appears more than once (combine the observations of a timestamp, "
+            "e.g. their sum or mean, before importing)",
             row=line if line > 0 else None, flag="duplicate_timestamp",
         )
-    grouped = values.groupby(level=0, sort=True)
-    return {"mean": grouped.mean, "sum": grouped.sum, "last": grouped.last}[aggregate]()
 
 
 def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, pd.Index]:

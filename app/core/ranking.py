@@ -108,12 +108,6 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     return [fit for d in order for fit in ranked[d]]
 
 
-def nests(big: CandidateFit, small: CandidateFit) -> bool:
-    """Whether ``big`` contains ``small`` as a special case (every order at least as large)."""
-    pairs = list(zip(big.model.order + big.model.seasonal_order, small.model.order + small.model.seasonal_order))
-    return all(b >= a for b, a in pairs) and pairs != [(a, a) for _, a in pairs]
-
-
 def margin_to_rival(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> float:
     """How far the best *rival* of the same d trails the leader in rank score (inf if none).
 
@@ -125,7 +119,7 @@ def margin_to_rival(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERI
     lead = ranked[0]
     rivals = [
         f for f in ranked[1:]
-        if f.model.lost_to_differencing == lead.model.lost_to_differencing and not is_demoted(f) and not nests(f, lead)
+        if f.model.lost_to_differencing == lead.model.lost_to_differencing and not is_demoted(f) and not f.model.contains(lead.model)
     ]
     if not rivals:
         return math.inf

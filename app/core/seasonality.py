@@ -34,6 +34,7 @@ from pandas.tseries.frequencies import to_offset
 from statsmodels.tsa.seasonal import STL
 
 from app.core.errors import OrderError
+from app.core.vocabulary import Flag
 
 SEASONAL_STRENGTH_THRESHOLD = 0.64
 MIN_SEASONS_SEASONAL_TERMS = 2
@@ -89,20 +90,6 @@ class SeasonalDifferencing:
     seasonal_terms_possible: bool
     flags: list[str] = field(default_factory=list)
     explanation: list[str] = field(default_factory=list)
-
-    def to_dict(self) -> dict:
-        return {
-            "D": self.D,
-            "period": self.period,
-            "seasonal_strength": self.strength,
-            "trend_strength": self.trend_strength,
-            "threshold": self.threshold,
-            "seasons": self.seasons,
-            "enough_seasons": self.enough_seasons,
-            "seasonal_terms_possible": self.seasonal_terms_possible,
-            "flags": list(self.flags),
-            "explanation": list(self.explanation),
-        }
 
 
 def default_period(freq: str) -> int | None:
@@ -288,7 +275,7 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
         enough_seasons=enough, seasonal_terms_possible=terms_possible,
     )
     if not terms_possible:
-        result.flags.append("too_few_seasons")
+        result.flags.append(Flag.TOO_FEW_SEASONS)
         result.explanation.append(
             f"Only {_seasons_text(seasons)} of {period} in {n} observations: at least "
             f"{MIN_SEASONS_SEASONAL_TERMS} are needed for any seasonal term; no seasonal differencing."
@@ -299,7 +286,7 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     above = measure.seasonal > threshold
     comparison = f"Seasonal strength {measure.seasonal:.2f} {'>' if above else '<='} {threshold:.2f}"
     if not enough:
-        result.flags.append("too_few_seasons")
+        result.flags.append(Flag.TOO_FEW_SEASONS)
         result.explanation.append(
             f"{comparison}, but only {_seasons_text(seasons)} of {period} in {n} observations: at least "
             f"{MIN_SEASONS_DIFFERENCING} are needed to difference at lag {period}; not differenced."

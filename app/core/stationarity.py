@@ -45,31 +45,19 @@ References
 from __future__ import annotations
 
 import warnings
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 
 import numpy as np
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
+
+from app.core.analysis import UnitRootTest
 
 TEST_LEVEL = 0.05
 KPSS_LEVEL_KEY = "5%"
 ADF_UNCERTAIN_P = 0.10
 MAX_D = 2
 LEVEL_NAMES = ("levels", "first difference", "second difference")
-
-
-@dataclass
-class TestResult:
-    """One unit-root or stationarity test as shown to the reviewer."""
-
-    name: str
-    regression: str
-    on: str
-    statistic: float
-    p_value: float
-    lags: int
-    rejects: bool
-    null: str
 
 
 @dataclass
@@ -80,37 +68,27 @@ class DifferencingDecision:
     uncertain: bool
     alternative_d: int | None
     trend_stationary: bool
-    tests: list[TestResult] = field(default_factory=list)
+    tests: list[UnitRootTest] = field(default_factory=list)
     explanation: list[str] = field(default_factory=list)
 
-    def to_dict(self) -> dict:
-        return {
-            "d": self.d,
-            "uncertain": self.uncertain,
-            "alternative_d": self.alternative_d,
-            "trend_stationary": self.trend_stationary,
-            "tests": [asdict(t) for t in self.tests],
-            "explanation": list(self.explanation),
-        }
 
-
-def kpss_test(x: np.ndarray, regression: str, on: str) -> TestResult:
+def kpss_test(x: np.ndarray, regression: str, on: str) -> UnitRootTest:
     """KPSS test with automatic bandwidth (Hobijn et al. 1998), decision at the 5% level."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", InterpolationWarning)
         res = kpss(x, regression=regression, nlags="auto", result_object=True)
     stat = float(res.statistic)
-    return TestResult(
+    return UnitRootTest(
         name="KPSS", regression=regression, on=on, statistic=stat, p_value=float(res.pvalue),
         lags=int(res.lags), rejects=stat > res.critical_values[KPSS_LEVEL_KEY],
         null="stationary" if regression == "c" else "trend-stationary",
     )
 
 
-def adf_test(x: np.ndarray, regression: str, on: str) -> TestResult:
+def adf_test(x: np.ndarray, regression: str, on: str) -> UnitRootTest:
     """Augmented Dickey-Fuller test, lag length by AIC, decision at the 5% level."""
     res = adfuller(x, regression=regression, autolag="AIC", result_object=True)
-    return TestResult(
+    return UnitRootTest(
         name="ADF", regression=regression, on=on, statistic=float(res.statistic),
         p_value=float(res.pvalue), lags=int(res.lags), rejects=res.pvalue < TEST_LEVEL, null="unit root",
     )
@@ -127,7 +105,7 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
         Highest order of differencing considered.
     """
     values = np.asarray(x, dtype=float)
-    tests: list[TestResult] = []
+    tests: list[UnitRootTest] = []
     words: list[str] = []
     for d in range(max_d + 1):
         on = LEVEL_NAMES[d]
@@ -163,7 +141,7 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
     raise AssertionError("unreachable")
 
 
-def _uncertain(tests: list[TestResult], words: list[str], on: str, why: str) -> DifferencingDecision:
+def _uncertain(tests: list[UnitRootTest], words: list[str], on: str, why: str) -> DifferencingDecision:
     """An uncertain decision between d = 0 and d = 1; the lead d follows ADF's p-value."""
     adf = next(t for t in tests if t.name == "ADF" and t.regression == "c" and t.on == on)
     primary = 1 if adf.p_value > ADF_UNCERTAIN_P else 0

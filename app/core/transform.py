@@ -71,8 +71,10 @@ class TransformChoice:
     @classmethod
     def from_json(cls, value: str | dict) -> TransformChoice:
         """Read back what :meth:`to_json` wrote (or a reviewer typed in the same form)."""
-        if value in ("none", "log"):
-            return cls(kind=value)
+        if value == "none":
+            return cls(kind="none")
+        if value == "log":
+            return cls(kind="log")
         if isinstance(value, dict) and set(value) == {"box_cox"}:
             lam = value["box_cox"]
             if isinstance(lam, bool) or not isinstance(lam, (int, float)):

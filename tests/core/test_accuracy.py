@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 
 from accuracy_batch import accuracy_batch, plain_bic_grid, score
-from app.jobs.pool import pin_blas_threads
+from app.jobs.executors.blas import pin_blas_threads
 
 pytestmark = pytest.mark.slow
 REPLICATIONS = 8

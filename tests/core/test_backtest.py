@@ -29,7 +29,7 @@ from app.core.backtest import (
     seasonal_naive_scale,
 )
 from app.core.errors import OrderError
-from app.core.fitting import validate_order
+from app.core.order import validate_order
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice
 

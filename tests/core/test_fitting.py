@@ -29,8 +29,8 @@ from app.core.fitting import (
     NEAR_UNIT_ROOT,
     fit_candidate,
     ljung_box_lags,
-    validate_order,
 )
+from app.core.order import validate_order
 
 
 @pytest.fixture(scope="module")
@@ -73,7 +73,7 @@ def case(request):
     reference = ARIMA(y, order=order, seasonal_order=seasonal, trend=trend)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        at_estimates = reference.smooth(np.array([p["value"] for p in fit.params]), cov_type="approx")
+        at_estimates = reference.smooth(np.array([p.value for p in fit.params]), cov_type="approx")
         optimum = reference.fit()
     return y, model, fit, at_estimates, optimum
 
@@ -85,14 +85,14 @@ def test_likelihood_residuals_and_criteria_equal_statsmodels_at_the_estimates(ca
     # finite variance (an approximate diffuse start), which moves its log-likelihood by ~1e-7;
     # statsmodels SARIMAX on the differenced series has no such start and agrees to 1e-9.
     y, model, fit, ref, _ = case
-    assert [p["name"] for p in fit.params] == [_engine_name(n) for n in ref.model.param_names]
+    assert [p.name for p in fit.params] == [_engine_name(n) for n in ref.model.param_names]
     differenced = model.lost_to_differencing > 0
     assert fit.loglik == pytest.approx(ref.llf, rel=1e-9, abs=1e-5 if differenced else 0)
     assert fit.nobs == ref.nobs_effective == y.size - model.lost_to_differencing
     np.testing.assert_allclose(fit.residuals, np.asarray(ref.resid)[model.lost_to_differencing:], rtol=1e-7, atol=1e-4 if differenced else 1e-9)
     if differenced and model.trend == "n":
         direct = SARIMAX(y, order=model.order, seasonal_order=model.seasonal_order, simple_differencing=True)
-        exact = direct.smooth(np.array([p["value"] for p in fit.params]))
+        exact = direct.smooth(np.array([p.value for p in fit.params]))
         assert fit.loglik == pytest.approx(exact.llf, rel=1e-9)
         np.testing.assert_allclose(fit.residuals, np.asarray(exact.resid), rtol=1e-7, atol=1e-9)
     for criterion in ("aic", "aicc", "bic", "hqic"):
@@ -108,7 +108,7 @@ def test_standard_errors_equal_statsmodels_numerical_hessian(case):
     # Both invert a numerical Hessian of the log-likelihood at the same point; the engine's has
     # the variance profiled out, whose inverse is the matching block of the full one.
     _, _, fit, ref, _ = case
-    got = [p["se"] for p in fit.params[:-1]]
+    got = [p.se for p in fit.params[:-1]]
     np.testing.assert_allclose(got, np.asarray(ref.bse)[:-1], rtol=2e-3)
 
 
@@ -117,7 +117,7 @@ def test_fit_reaches_the_optimum_of_statsmodels_default_arima(case):
     # default ARIMA fit reaches for the order, up to its optimiser's tolerance.
     _, _, fit, _, optimum = case
     assert fit.loglik >= optimum.llf - 1e-4
-    np.testing.assert_allclose([p["value"] for p in fit.params], optimum.params, rtol=2e-2, atol=2e-3)
+    np.testing.assert_allclose([p.value for p in fit.params], optimum.params, rtol=2e-2, atol=2e-3)
 
 
 def test_criteria_follow_their_definitions(case):

@@ -39,20 +39,7 @@ def test_duplicate_timestamp_error_names_timestamp_and_line():
     assert problem.flag == "duplicate_timestamp"
     assert problem.row == 12  # the second observation of 2021-03-10 is on file line 12
     assert "2021-03-10" in str(problem) and "shop-1" in str(problem) and "line 12" in str(problem)
-    assert "aggregation" in str(problem)
-
-
-@pytest.mark.parametrize("how, combined", [("mean", 9.5), ("sum", 19.0), ("last", 10.0)])
-def test_aggregation_combines_duplicate_timestamps(how, combined):
-    # Values 9 and 10 share 2021-03-10, so 2021-03-11 has no value and is a one-point gap.
-    s = _daily(np.arange(N, dtype=float))
-    index = s.index.tolist()
-    index[10] = index[9]
-    prepared = prepare_series(pd.Series(s.to_numpy(), index=pd.DatetimeIndex(index)), "shop-1", aggregate=how)
-    assert prepared.n == N and prepared.freq == "D"
-    assert prepared.values[9] == combined
-    assert prepared.values[10] == pytest.approx((combined + 11.0) / 2)  # linear between its neighbours
-    assert prepared.gaps_filled == 1
+    assert "combine the observations" in str(problem)
 
 
 # --- gaps -----------------------------------------------------------------------------------

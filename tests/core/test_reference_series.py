@@ -98,7 +98,7 @@ def test_pattern_words_describe_the_correlogram_shown(name, request):
     np.testing.assert_allclose(result.identified_on, np.diff(result.prepared.values, n=d))
     vertex = eacf_vertex(eacf_table(result.identified_on, 5, 5)[1])
     assert read_patterns(result.correlogram, 5, 5, vertex).words == result.pattern_words
-    assert result.to_dict()["identified_on"]["label"] == {0: "series as observed", 1: "first difference"}[d]
+    assert result.identified_label == {0: "series as observed", 1: "first difference"}[d]
 
 
 # --- lynx -----------------------------------------------------------------------------------
@@ -119,7 +119,7 @@ def test_lynx_ar2_among_top_candidates(lynx_result):
 
 def test_lynx_ar2_coefficients_match_statsmodels_mle(lynx_result, lynx):
     ar2 = next(c for c in lynx_result.candidates if c.model.order == (2, 0, 0))
-    params = {p["name"]: p["value"] for p in ar2.params}
+    params = {p.name: p.value for p in ar2.params}
     got = [params["ar.L1"], params["ar.L2"]]
     np.testing.assert_allclose(got, REFERENCE["lynx_ar2_mle"]["ar"], atol=1e-3)
     direct = ARIMA(lynx.to_numpy(), order=(2, 0, 0), trend="c").fit()

@@ -21,7 +21,8 @@ from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
 
 from accuracy_batch import accuracy_batch
-from app.core.fitting import fit_candidate, validate_order
+from app.core.fitting import fit_candidate
+from app.core.order import validate_order
 from app.core.identify import SCREEN_MARGIN, EngineOptions, Identification, identify_series
 from app.core.ranking import criterion_value
 from app.core.transform import apply_transform
@@ -55,8 +56,8 @@ def test_screening_saves_full_fits_and_lists_what_it_left_out(pairs):
     full_fits = sum(len(f.candidates) for _, f in pairs)
     assert screened_fits < 0.8 * full_fits
     for screened, _ in pairs:
-        assert not set(screened.screened_out) & set(_labels(screened))
-        assert screened.to_dict()["screened_out"] == screened.screened_out
+        assert not {m.label() for m in screened.screened_out} & set(_labels(screened))
+        assert screened.to_analysis().screened_out == tuple(screened.screened_out)
 
 
 def test_screened_out_orders_trail_the_leader_by_more_than_the_margin(pairs):
@@ -65,13 +66,11 @@ def test_screened_out_orders_trail_the_leader_by_more_than_the_margin(pairs):
         for screened, _ in pairs:
             lead = screened.suggested
             y = apply_transform(screened.prepared.values, screened.transform)
-            for label in screened.screened_out:
-                p, d, q = (int(v) for v in label[len("ARIMA("):label.index(")")].split(","))
-                if d != lead.model.order[1]:
+            for model in screened.screened_out:
+                if model.differencing_key() != lead.model.differencing_key():
                     continue  # criteria compare only models of the same differencing
-                model = validate_order((p, d, q), trend=lead.model.trend)
                 gap = criterion_value(fit_candidate(y, model), screened.criterion) - criterion_value(lead, screened.criterion)
-                assert gap > SCREEN_MARGIN, (screened.prepared.series_id, label, gap)
+                assert gap > SCREEN_MARGIN, (screened.prepared.series_id, model.label(), gap)
                 checked += 1
     assert checked > 0
 

@@ -46,7 +46,8 @@ from threadpoolctl import threadpool_limits
 
 from app.core import identify
 from app.core.errors import SeriesProblem
-from app.core.fitting import fit_candidate, validate_order
+from app.core.fitting import fit_candidate
+from app.core.order import validate_order
 from app.core.identify import EngineOptions, Identification, identify_series
 from app.core.transform import LOG_TOLERANCE, choose_transform
 from seasonal_batch import PERIODS, plain_seasonal_grid, score, seasonal_batch
@@ -100,12 +101,12 @@ def co2_result(request, co2_monthly) -> Identification:
 def test_co2_airline_model_among_top_candidates(co2_result):
     # Cryer & Chan (2008) ch. 10 (from memory); Box, Jenkins, Reinsel & Ljung (2015) §9.2.
     print(_describe(co2_result))
-    assert co2_result.to_dict()["period"] == 12
+    assert co2_result.to_analysis().to_dict()["period"] == 12
     assert AIRLINE in _top(co2_result), _top(co2_result, 6)
 
 
 def test_co2_is_differenced_at_lag_12_by_its_seasonal_strength(co2_result):
-    seasonal = co2_result.to_dict()["seasonal"]
+    seasonal = co2_result.to_analysis().to_dict()["seasonal"]
     # F_S > 0.64 (Wang, Smith & Hyndman 2006 measure; threshold common practice).
     assert seasonal["D"] == 1 and seasonal["seasonal_strength"] > seasonal["threshold"]
     assert co2_result.transform.kind == "none"
@@ -181,7 +182,7 @@ def test_air_passengers_transform_is_the_published_log_or_close(air_result, air_
 def test_air_passengers_correlogram_reaches_two_seasons_and_marks_the_seasonal_lags(air_result):
     # The differenced series has 131 points, so 10 log10(n) = 21 lags would stop short of
     # lag 24: the rule (app.core.correlogram.lag_count) raises the count to 2s + 1 = 25.
-    out = air_result.to_dict()
+    out = air_result.to_analysis().to_dict()
     lags = out["acf"]["lags"]
     assert len(air_result.identified_on) == 144 - 13
     assert lags == list(range(1, len(lags) + 1)) and lags[-1] >= 2 * 12 + 1
@@ -191,7 +192,7 @@ def test_air_passengers_correlogram_reaches_two_seasons_and_marks_the_seasonal_l
 
 def test_period_none_gives_a_non_seasonal_order_on_a_seasonal_series(air_passengers):
     result = _identify(air_passengers, EngineOptions(period=None))
-    out = result.to_dict()
+    out = result.to_analysis().to_dict()
     assert out["period"] is None and out["D"] == 0 and out["seasonal_lags"] == []
     assert all(c["seasonal_order"] == [0, 0, 0, 0] for c in out["candidates"])
     assert out["seasonal"]["examined_period"] is None
@@ -211,7 +212,7 @@ def _monthly_seasonal(n: int, seed: int) -> pd.Series:
 def test_too_few_seasons_get_no_seasonal_differencing_and_a_flag(n, seasons):
     # Common practice (app.core.seasonality): 3 seasons for D = 1, 2 for any seasonal term.
     result = _identify(_monthly_seasonal(n, seed=n))
-    out = result.to_dict()
+    out = result.to_analysis().to_dict()
     assert "too_few_seasons" in out["flags"]
     assert out["seasonal"]["seasons"] == seasons
     assert all(c["seasonal_order"][1] == 0 for c in out["candidates"])
@@ -254,7 +255,7 @@ def test_daily_ar1_gets_no_seasonal_structure_and_a_non_seasonal_order(daily_ar1
             if "No seasonal structure at lag 7 in the ACF: a non-seasonal model is proposed." in r.pattern_words]
     assert len(said) >= 8, [_describe(r) for r in daily_ar1_results]
     for r in said:
-        out = r.to_dict()
+        out = r.to_analysis().to_dict()
         assert out["suggested"]["seasonal_order"] == [0, 0, 0, 0] and out["period"] is None
         assert out["seasonal"]["examined_period"] == 7 and out["D"] == 0
         assert out["seasonal_lags"] == list(range(7, out["acf"]["lags"][-1] + 1, 7))
@@ -265,7 +266,7 @@ def test_daily_ar1_gets_no_seasonal_structure_and_a_non_seasonal_order(daily_ar1
 def test_suggestion_without_seasonal_terms_carries_no_period(daily_ar1_results):
     # A model with P = D = Q = 0 is the non-seasonal model, whatever s: it must read as one.
     for r in daily_ar1_results:
-        for c in r.to_dict()["candidates"]:
+        for c in r.to_analysis().to_dict()["candidates"]:
             P, D, Q, s = c["seasonal_order"]
             assert s == 0 or P + D + Q > 0, c["label"]
             assert not c["label"].endswith(f"(0,0,0){s}"), c["label"]
@@ -289,7 +290,7 @@ def test_an_order_statsmodels_sarimax_cannot_fit_is_fitted_at_its_exact_likeliho
         else:
             pytest.skip("SARIMAX fits (2,0,0)(2,0,0)7 here: nothing left to check")
         fit = fit_candidate(y, validate_order((2, 0, 0), (2, 0, 0, 7), trend="c"))
-        reference = ARIMA(y, order=(2, 0, 0), seasonal_order=(2, 0, 0, 7), trend="c").smooth([p["value"] for p in fit.params])
+        reference = ARIMA(y, order=(2, 0, 0), seasonal_order=(2, 0, 0, 7), trend="c").smooth([p.value for p in fit.params])
     assert fit.converged
     assert fit.loglik == pytest.approx(reference.llf, rel=1e-9)
 

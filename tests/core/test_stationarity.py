@@ -102,14 +102,6 @@ def test_stored_tests_equal_statsmodels_run_directly(make):
         assert stored.rejects == rejects
 
 
-def test_decision_round_trips_to_dict():
-    decision = choose_differencing(np.cumsum(_noise(1)))
-    out = decision.to_dict()
-    assert out["d"] == 1 and len(out["tests"]) == len(decision.tests)
-    assert out["tests"][0]["statistic"] == decision.tests[0].statistic
-    assert out["explanation"] == decision.explanation
-
-
 def test_sunspots_yule_span_is_stationary(sunspots):
     # Yule (1927) fitted a stationary AR(2) to the yearly numbers 1749-1924 [from memory].
     years = sm.datasets.sunspots.load_pandas().data["YEAR"].to_numpy().astype(int)

@@ -1,0 +1,55 @@
+"""The closed sets of words every layer shares: confidence levels, analysis flags, verdict states.
+
+They are ``StrEnum`` members, so they compare equal to their text, are written to JSON and
+SQLite as that text, and a misspelt name fails where it is written rather than where it is
+read.
+"""
+
+from __future__ import annotations
+
+from enum import StrEnum
+
+
+class Confidence(StrEnum):
+    """How far a suggestion can be trusted (:mod:`app.core.confidence` says how it is scored).
+
+    Listed from the most to the least trusted.
+    """
+
+    FIRM = "firm"
+    TENTATIVE = "tentative"
+    WEAK = "weak"
+
+
+class Flag(StrEnum):
+    """Why a series or a fitted candidate deserves a second look."""
+
+    TOO_SHORT = "too_short"
+    GAPS = "gaps"
+    LONG_GAP = "long_gap"
+    TOO_FEW_SEASONS = "too_few_seasons"
+    TRANSFORMED = "transformed"
+    UNCERTAIN_DIFFERENCING = "uncertain_differencing"
+    TREND_STATIONARY = "trend_stationary"
+    NO_CONVERGENCE = "no_convergence"
+    RESIDUAL_AUTOCORRELATION = "residual_autocorrelation"
+    NEAR_UNIT_ROOT = "near_unit_root"
+    REDUNDANT_ROOTS = "redundant_roots"
+
+
+class VerdictStatus(StrEnum):
+    """The review state of a series. ``recheck`` is set by Lagdesk when new data break a decided
+    order; every other state is a reviewer's."""
+
+    PENDING = "pending"
+    APPROVED = "approved"
+    OVERRIDDEN = "overridden"
+    PARKED = "parked"
+    RECHECK = "recheck"
+
+
+DECIDED = (VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN)
+"""The states whose order is handed on to forecasting."""
+
+REVIEWER_STATUSES = (VerdictStatus.PENDING, VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN, VerdictStatus.PARKED)
+"""The states a reviewer may set (``pending`` reopens a decided series)."""
