@@ -15,16 +15,16 @@ import sys
 import dask
 import pytest
 from distributed import Client, LocalCluster
+from simulated_portfolio import write_portfolio_csv
+from test_pool import assert_same_results, blas_threads
 
 from app.cli import main
 from app.core.errors import LagdeskError
-from app.jobs.pool import ExecutorChoice, map_unordered
+from app.jobs.executors import ExecutorChoice, map_unordered
 from app.store.analyses import load_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
 from app.store.series import series_ids_to_analyse
-from simulated_portfolio import write_portfolio_csv
-from test_pool import assert_same_results, blas_threads
 
 SERIES = 5
 
@@ -45,6 +45,11 @@ def unpinned_cluster(monkeypatch):
     with dask.config.set({"distributed.nanny.pre-spawn-environ": {}}):
         with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
             yield cluster.scheduler_address
+
+
+def _json_form(analysis):
+    """A stored analysis as JSON, so :func:`assert_same_results` compares it leaf by leaf."""
+    return analysis.to_dict() if analysis is not None else None
 
 
 def run_cli(capsys, *argv) -> tuple[int, str, str]:
@@ -72,7 +77,7 @@ def test_analyze_on_an_existing_scheduler_stores_the_local_results(portfolio_csv
         code, _, err = run_cli(capsys, "analyze", "--db", db_path, "--workers", 1, "--executor", executor, *extra)
         assert code == 0, err
         with open_database(db_path) as db:
-            stored[executor] = {i: load_analysis(db, i) for i in series_ids_to_analyse(db, everything=True)}
+            stored[executor] = {i: _json_form(load_analysis(db, i)) for i in series_ids_to_analyse(db, everything=True)}
     assert_same_results(stored["dask"], stored["local"])
     assert len(stored["local"]) == SERIES and all(v is not None for v in stored["local"].values())
 
@@ -90,13 +95,13 @@ def test_dask_workers_run_blas_on_one_thread(unpinned_cluster):
 
 def test_dask_executor_says_how_to_install_dask_when_it_is_missing(monkeypatch):
     monkeypatch.setitem(sys.modules, "distributed", None)
-    monkeypatch.delitem(sys.modules, "app.jobs.dask_executor", raising=False)
+    monkeypatch.delitem(sys.modules, "app.jobs.executors.dask", raising=False)
     with pytest.raises(LagdeskError, match=r"install lagdesk\[dask\]"):
         list(map_unordered(blas_threads, range(2), 2, executor=ExecutorChoice("dask")))
 
 
 def test_identify_names_a_scheduler_it_cannot_reach(portfolio_csv, monkeypatch, capsys):
-    import app.jobs.dask_executor as dask_executor
+    import app.jobs.executors.dask as dask_executor
 
     monkeypatch.setattr(dask_executor, "CONNECT_TIMEOUT_S", 1)
     with socket.socket() as probe:  # a port nobody listens on

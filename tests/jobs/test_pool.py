@@ -17,12 +17,13 @@ import time
 from pathlib import Path
 
 import pytest
+from simulated_portfolio import simulated_series
 from threadpoolctl import threadpool_info, threadpool_limits
 
 from app.core.errors import LagdeskError
-from app.jobs.pool import ExecutorChoice, chunks, map_unordered
+from app.jobs.executors import ExecutorChoice, map_unordered
+from app.jobs.executors.chunks import chunks
 from app.jobs.work import SeriesTask, identify_task
-from simulated_portfolio import simulated_series
 
 REPO = Path(__file__).resolve().parents[2]
 WAIT_S = 60
@@ -77,7 +78,9 @@ def assert_same_results(got, expected) -> None:
 
 
 def by_series(outcomes) -> dict[str, dict]:
-    return {o.series_id: {"result": o.result, "problem": o.problem} for o in outcomes}
+    """Each outcome in its JSON form, so :func:`assert_same_results` compares it leaf by leaf."""
+    return {o.series_id: {"result": o.result.to_dict() if o.result is not None else None, "problem": o.problem}
+            for o in outcomes}
 
 
 @pytest.fixture(scope="module")
@@ -153,7 +156,7 @@ def test_pool_workers_exit_when_their_parent_is_killed(tmp_path):
     script = textwrap.dedent(f"""
         import sys
         sys.path.insert(0, {str(Path(__file__).parent)!r})
-        from app.jobs.pool import map_unordered
+        from app.jobs.executors import map_unordered
         from test_pool import reports_pid_and_waits
         if __name__ == "__main__":
             for _ in map_unordered(reports_pid_and_waits, [{str(tmp_path)!r}] * 2, workers=2, chunk=1):

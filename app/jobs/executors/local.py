@@ -1,10 +1,4 @@
-"""Running per-series work in parallel: a local process pool, or a Dask cluster.
-
-BLAS threads. statsmodels fits are small dense problems; with OpenBLAS' default threading every
-worker would start one thread per core and they fight over the cores (measured here: fits
-21-45x slower on a busy 2-core machine). Each worker therefore limits BLAS to one thread when
-it starts, and the series are sent in chunks so the pool's overhead stays small next to the
-fits. Results come back in order of completion, so progress can be shown as they land.
+"""The per-series work on this machine: a pool of worker processes, or this process alone.
 
 Start method. The pool's workers are started by a *forkserver* where the platform has one (Linux,
 macOS), else by *spawn*. A plain ``fork`` copies the parent as it is at that moment, and an
@@ -12,7 +6,7 @@ analysis started from the web page runs in a thread of uvicorn's process: forkin
 whatever locks the server's other threads hold (logging, allocators, the BLAS thread pool) into
 a child that has none of those threads to release them, and it hands the children the
 process' open database connections. The forkserver is a small clean process started once per
-process (from a fresh interpreter, with :mod:`app.jobs.work` imported in advance), and every
+process (from a fresh interpreter, with :mod:`app.jobs.preload` imported in advance), and every
 worker is forked from it, so later pools start fast and no worker inherits the parent's open
 files or database connections. The cost is the first pool's start (one interpreter
 importing statsmodels) and that the work function must be importable by name.
@@ -37,54 +31,19 @@ import threading
 import time
 from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
-from dataclasses import dataclass
 from typing import Any
 
 from threadpoolctl import threadpool_limits
 
-from app.core.errors import LagdeskError
+from app.jobs.executors.blas import pin_blas_threads
+from app.jobs.executors.chunks import chunks, run_chunk
 
-DEFAULT_CHUNK = 4
-EXECUTORS = ("local", "dask")
 # Imported once by the forkserver, so each worker starts with the engine (and its compiled
-# likelihood) already loaded.
+# likelihood) already loaded. multiprocessing ignores a preload that fails to import, so a
+# wrong name here only shows as slower first series.
 PRELOADED_MODULES = ["app.jobs.preload"]
 PARENT_POLL_S = 1.0
 ORPHAN_EXIT_CODE = 1
-_limits = None
-
-
-@dataclass(frozen=True)
-class ExecutorChoice:
-    """Where the per-series work runs: ``local`` (a process pool on this machine) or ``dask``
-    (a Dask distributed cluster; ``scheduler`` is its address, or None for a LocalCluster
-    started for the run)."""
-
-    kind: str = "local"
-    scheduler: str | None = None
-
-    def __post_init__(self) -> None:
-        if self.kind not in EXECUTORS:
-            raise LagdeskError(f"executor {self.kind!r} is not one of {', '.join(EXECUTORS)}")
-        if self.scheduler is not None and self.kind != "dask":
-            raise LagdeskError(f"a scheduler address ({self.scheduler}) is only used with the dask executor")
-
-
-LOCAL = ExecutorChoice()
-
-
-def default_workers() -> int:
-    """One worker per CPU the process may use."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:
-        return max(1, os.cpu_count() or 1)
-
-
-def pin_blas_threads() -> None:
-    """Limit BLAS/OpenMP pools of this process to one thread (kept for the process' life)."""
-    global _limits
-    _limits = threadpool_limits(limits=1)
 
 
 def exit_with_parent(creator_pid: int) -> None:
@@ -133,33 +92,26 @@ def pool_context() -> multiprocessing.context.BaseContext:
     return multiprocessing.get_context("spawn")
 
 
-def run_chunk(func: Callable[[Any], Any], chunk: list[Any]) -> list[Any]:
-    """Apply ``func`` to every item of one chunk, in a worker."""
-    return [func(item) for item in chunk]
+def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], workers: int, chunk: int) -> Iterator[Any]:
+    """Apply ``func`` to every item on this machine, yielding results as they complete.
 
+    Parameters
+    ----------
+    func : callable
+        Importable by name (the pool's workers receive it by reference).
+    items : iterable
+        Pulled lazily, ``chunk`` at a time.
+    workers : int
+        Worker processes. With 1 or fewer the work runs in this process, BLAS on one thread,
+        and no pool is started.
+    chunk : int
+        Items per task sent to a worker.
 
-def chunks(items: Iterable[Any], size: int) -> Iterator[list[Any]]:
-    """Consecutive lists of ``size`` items (the last may be shorter), pulled lazily."""
-    iterator = iter(items)
-    while batch := [x for _, x in zip(range(size), iterator)]:
-        yield batch
-
-
-def map_unordered(
-    func: Callable[[Any], Any], items: Iterable[Any], workers: int, chunk: int = DEFAULT_CHUNK, executor: ExecutorChoice = LOCAL
-) -> Iterator[Any]:
-    """Apply ``func`` to every item, yielding results as they complete.
-
-    With the local executor and ``workers == 1`` the work runs in this process (no pool to
-    start); otherwise in a pool whose workers pin BLAS to one thread. At most ``2 * workers``
-    chunks are in flight, so a large portfolio is never held in the pool's queue all at once.
-    ``executor`` sends the chunks to a Dask cluster instead (:mod:`app.jobs.dask_executor`).
+    Notes
+    -----
+    At most ``2 * workers`` chunks are in flight, so a large portfolio is never held in the
+    pool's queue all at once.
     """
-    if executor.kind == "dask":
-        from app.jobs.dask_executor import map_unordered_dask
-
-        yield from map_unordered_dask(func, items, workers, chunk, executor.scheduler)
-        return
     if workers <= 1:
         with threadpool_limits(limits=1):
             for item in items:

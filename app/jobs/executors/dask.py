@@ -24,7 +24,8 @@ from contextlib import contextmanager
 from typing import Any
 
 from app.core.errors import LagdeskError
-from app.jobs.pool import chunks, pin_blas_threads, run_chunk
+from app.jobs.executors.blas import pin_blas_threads
+from app.jobs.executors.chunks import chunks, run_chunk
 
 try:
     import distributed
