@@ -15,27 +15,38 @@ from contextlib import closing
 from pathlib import Path
 
 from app.config import Settings
-from app.core.errors import LagdeskError, OrderError
-from app.core.fitting import MAX_ORDER
+from app.core.analysis import Analysis
 from app.core.backtest import DEFAULT_ORIGINS
+from app.core.errors import LagdeskError, OrderError
 from app.core.identify import AUTO_PERIOD, EngineOptions
+from app.core.order import MAX_ORDER, order_label
 from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, read_portfolio
+from app.core.vocabulary import DECIDED, Confidence, VerdictStatus
 from app.jobs.analyze import RunProgress, run_analysis
 from app.jobs.demo import build_demo_database
-from app.jobs.export import FORMATS as EXPORT_FORMATS, export_command
-from app.jobs.order_fits import backtest_series
-from app.jobs.pool import EXECUTORS, ExecutorChoice, default_workers, map_unordered
+from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 from app.jobs.work import SeriesTask, identify_task
+from app.review.bulk import approve_firm
+from app.review.decisions import decide
+from app.review.export import FORMATS as EXPORT_FORMATS
+from app.review.export import export_command
+from app.review.filters import SeriesFilter
+from app.review.forecast_check import backtest_series
 from app.store.database import open_database, resolve_db_path, storage_error_text
 from app.store.imports import ImportReport, import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
-from app.store.verdicts import DECIDED
+from app.store.verdicts import get_verdict
+from app.web.deps import clean_reviewer, whole_numbers
 from app.web.security import GENERATE, TOKEN_ENV_VAR, generate_token, require_token_off_loopback
-from app.web.deps import whole_numbers
 from app.web.server import run_server
 
+# What ``lagdesk decide`` calls each verdict state a reviewer can set.
+DECIDE_ACTIONS = {
+    "approve": VerdictStatus.APPROVED, "override": VerdictStatus.OVERRIDDEN,
+    "park": VerdictStatus.PARKED, "pending": VerdictStatus.PENDING,
+}
 EXIT_INPUT_ERROR = 2
 EXIT_STORAGE_ERROR = 3
 DEFAULT_HOST = "127.0.0.1"
@@ -179,6 +190,45 @@ def build_parser() -> argparse.ArgumentParser:
     backtest.add_argument("--json", action="store_true", help="print the full check as JSON on stdout")
     backtest.set_defaults(handler=run_backtest)
 
+    decide = commands.add_parser(
+        "decide", help="record a verdict on one series, or approve every pending firm suggestion (--all-firm)",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        usage="lagdesk decide SERIES_ID ACTION --reviewer NAME [--note TEXT] [--order p,d,q [--seasonal P,D,Q,s]]\n"
+        "                      [--version N] [--json] [--db DB]\n"
+        "       lagdesk decide --all-firm [--prefix ID_PREFIX] --reviewer NAME [--note TEXT] [--json] [--db DB]",
+        description="Record a verdict on one series, as the review page does: approve the suggestion, override\n"
+        "it with another order, park the series for later, or reopen it (pending). With --all-firm,\n"
+        "approve every pending series whose current analysis is firm (only those under --prefix).",
+        epilog="examples:\n"
+        "  lagdesk decide shop/sales approve --reviewer ann\n"
+        "  lagdesk decide shop/sales override --order 0,1,1 --seasonal 0,1,1,12 --reviewer ann --note \"MA fits better\"\n"
+        "  lagdesk decide shop/sales pending --reviewer ann --version 3\n"
+        "  lagdesk decide --all-firm --prefix shop/ --reviewer ann",
+    )
+    decide.add_argument("series_id", nargs="?", metavar="SERIES_ID", help="the series to decide (not with --all-firm)")
+    decide.add_argument(
+        "action", nargs="?", choices=DECIDE_ACTIONS, metavar="ACTION",
+        help="approve (the suggested order), override (with --order), park (set aside, optionally with --order) "
+        "or pending (reopen: clears the order; the history keeps every step)",
+    )
+    decide.add_argument("--all-firm", action="store_true", help="approve every pending series with a firm, current analysis")
+    decide.add_argument("--prefix", metavar="ID_PREFIX", help="with --all-firm: only series whose id starts with this text")
+    # Checked by run_decide rather than argparse, so a missing name is one line on stderr like every other refusal.
+    decide.add_argument("--reviewer", metavar="NAME", help="your name, stored with the verdict (required)")
+    decide.add_argument("--note", default="", metavar="TEXT", help="why (stored with the verdict)")
+    decide.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="the order, for override (or park)")
+    decide.add_argument(
+        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="with --order: its seasonal part (default none)",
+    )
+    decide.add_argument(
+        "--version", type=int, metavar="N",
+        help="the verdict version you decided on (lagdesk decide and the API show it): refused, and nothing "
+        "saved, if the verdict has changed since (default: the current version)",
+    )
+    _add_db(decide)
+    decide.add_argument("--json", action="store_true", help="print the new verdict (or the ids approved) as JSON")
+    decide.set_defaults(handler=run_decide)
+
     serve = commands.add_parser("serve", help="serve the review dashboard")
     _add_db(serve)
     _add_server_options(serve)
@@ -226,11 +276,8 @@ def run_serve(args: argparse.Namespace) -> int:
 
 
 def run_identify(args: argparse.Namespace) -> int:
-    for name in ("max_p", "max_q"):
-        if not 0 <= getattr(args, name) <= MAX_ORDER:
-            raise LagdeskError(f"--{name.replace('_', '-')} must be between 0 and {MAX_ORDER}")
-    portfolio = read_portfolio(args.path, args.layout, args.id_col, args.time_col, args.value_col)
     options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
+    portfolio = read_portfolio(args.path, args.layout, args.id_col, args.time_col, args.value_col)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
@@ -242,7 +289,8 @@ def run_identify(args: argparse.Namespace) -> int:
     results = [o.result for o in ordered if o.result is not None]
     problems = [p.to_dict() for p in portfolio.problems] + [o.problem for o in ordered if o.problem is not None]
     if args.json:
-        json.dump({"series": results, "problems": problems}, sys.stdout, allow_nan=False, default=_json_default)
+        document = {"series": [r.to_dict() for r in results], "problems": problems}
+        json.dump(document, sys.stdout, allow_nan=False, default=_json_default)
         sys.stdout.write("\n")
     else:
         print(identify_table(results, problems))
@@ -375,6 +423,51 @@ def transform_option(text: str) -> str | dict:
     raise argparse.ArgumentTypeError(f"expected none, log or box_cox:LAMBDA, got {text!r}")
 
 
+def run_decide(args: argparse.Namespace) -> int:
+    reviewer = clean_reviewer(args.reviewer)  # stored as the pages and the API store it
+    if not reviewer:
+        raise LagdeskError("--reviewer NAME is required: every verdict records who decided it")
+    if args.seasonal is not None and args.order is None:
+        raise LagdeskError("--seasonal goes with --order (the seasonal part of that order)")
+    with closing(open_database(_existing_db(args.db))) as db:
+        if args.all_firm:
+            if args.series_id or args.action:
+                raise LagdeskError("--all-firm decides every pending firm series: give no series id or action")
+            if args.order is not None or args.version is not None:
+                raise LagdeskError("--all-firm approves each suggestion at its current version: give no --order, --seasonal or --version")
+            approved = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
+            _print(approved if args.json else f"{len(approved)} firm suggestion(s) approved" + (
+                f" under {args.prefix!r}" if args.prefix else ""), args.json)
+            return 0
+        if not (args.series_id and args.action):
+            raise LagdeskError("give a series id and an action (approve, override, park, pending), or --all-firm")
+        if args.prefix:
+            raise LagdeskError("--prefix goes with --all-firm")
+        if args.action == "pending" and args.order is not None:
+            raise LagdeskError("pending reopens the series and clears its order: give no --order")
+        version = args.version if args.version is not None else get_verdict(db, args.series_id)["version"]
+        verdict = decide(
+            db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,
+            note=args.note, reviewer=reviewer, version=version,
+        )
+    _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
+    return 0
+
+
+def verdict_line(series_id: str, verdict: dict) -> str:
+    """A verdict in one line: series, status, order, version."""
+    order = f" {order_label(verdict['order'], verdict['seasonal_order'])}" if verdict["order"] else ""
+    return f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})"
+
+
+def _print(value: object, as_json: bool) -> None:
+    if as_json:
+        json.dump(value, sys.stdout, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        print(value)
+
+
 def run_export(args: argparse.Namespace) -> int:
     print(export_command(_existing_db(args.db), args.format, args.output, args.status))
     return 0
@@ -446,24 +539,16 @@ def _json_default(value):
     raise TypeError(f"cannot write {type(value).__name__} as JSON")
 
 
-def format_order(order: Sequence[int], seasonal_order: Sequence[int] = (0, 0, 0, 0)) -> str:
-    text = "ARIMA({},{},{})".format(*order)
-    if seasonal_order and seasonal_order[3]:
-        text += "({},{},{}){}".format(*seasonal_order)
-    return text
-
-
-def identify_table(results: list[dict], problems: list[dict]) -> str:
+def identify_table(results: list[Analysis], problems: list[dict]) -> str:
     """The readable summary: one line per series, then the problems."""
     rows = [("series", "n", "d", "suggested", "confidence", "flags")]
     for r in results:
-        s = r["suggested"]
-        rows.append((r["series_id"], str(r["n"]), str(r["d"]), format_order(s["order"], s["seasonal_order"]), r["confidence"], ", ".join(r["flags"]) or "-"))
+        rows.append((r.series_id, str(r.n), str(r.d), r.suggested.label, str(r.confidence), ", ".join(r.flags) or "-"))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]
     lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows]
-    counts = {level: sum(r["confidence"] == level for r in results) for level in ("firm", "tentative", "weak")}
+    counts = ", ".join(f"{sum(r.confidence == level for r in results)} {level}" for level in Confidence)
     lines.append("")
-    lines.append(f"{len(results)} series identified ({counts['firm']} firm, {counts['tentative']} tentative, {counts['weak']} weak); {len(problems)} could not be analysed.")
+    lines.append(f"{len(results)} series identified ({counts}); {len(problems)} could not be analysed.")
     lines += [f"  problem: {p['message']}" for p in problems]
     return "\n".join(lines)
 

@@ -3,33 +3,41 @@
 The ``identify --json`` shape is the one fixed in issue 2 (checked with a JSON Schema); the
 ``status --json`` shape the one fixed in issue 4. A file that cannot be used exits with code 2
 and one line on stderr; a series that cannot be used is listed with its reason and the command
-still succeeds.
+still succeeds. ``decide`` records verdicts through the review service; a request it refuses
+(a stale version, a bad combination of options) exits with code 2 and one line, and changes
+nothing.
 """
 
 from __future__ import annotations
 
 import json
+import sqlite3
 import subprocess
 import sys
+from contextlib import closing
 from pathlib import Path
 
 import jsonschema
 import numpy as np
+import pandas as pd
 import pytest
+from jobs.simulated_portfolio import SHORT_SERIES_ID, simulated_series, write_portfolio_csv
 from threadpoolctl import threadpool_limits
 
-from app.cli import main
+from app.cli import DECIDE_ACTIONS, main
 from app.core.errors import LagdeskError, SeriesProblem
+from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
 from app.core.prepare import prepare_series
+from app.jobs.analyze import run_analysis
 from app.jobs.demo import DEMO_PORTFOLIO, build_demo_database
 from app.jobs.work import SeriesTask, identify_task
-from app.store.analyses import analysis_record
+from app.store.analyses import analysis_record, load_analysis
 from app.store.database import DB_ENV_VAR, open_database
 from app.store.imports import import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
-from jobs.simulated_portfolio import SHORT_SERIES_ID, write_portfolio_csv
+from app.store.verdicts import get_verdict, verdict_history
 
 REPO = Path(__file__).resolve().parents[1]
 SERIES = 3
@@ -150,7 +158,7 @@ def test_identify_json_has_the_documented_shape(run_cli, small_csv):
     # The command adds nothing and loses nothing: the engine's own result for each series.
     with threadpool_limits(limits=1):
         engine = [identify_task(SeriesTask(s.series_id, s.values, s.lines)).result for s in read_portfolio(small_csv).series]
-    assert found["series"] == [r for r in engine if r is not None]
+    assert found["series"] == [r.to_dict() for r in engine if r is not None]
 
 
 def test_identify_no_screening_fits_every_candidate_in_full(run_cli, small_csv):
@@ -163,7 +171,7 @@ def test_identify_no_screening_fits_every_candidate_in_full(run_cli, small_csv):
     for a, b in zip(screened, full):
         assert a["suggested"] == b["suggested"]
         fitted = {c["label"] for c in b["candidates"]}
-        assert fitted == {c["label"] for c in a["candidates"]} | set(a["screened_out"])
+        assert fitted == {c["label"] for c in a["candidates"]} | {Order.from_json(o).label() for o in a["screened_out"]}
 
 
 @pytest.mark.parametrize(
@@ -349,3 +357,222 @@ def test_demo_builds_an_analysed_database_and_reuses_it(run_cli, tmp_path):
     with open_database(db) as handle:
         again = latest_run(handle)
     assert (again["run_id"], again["total"]) == (first + 1, 0)
+
+
+# ---------------------------------------------------------------------------------------------
+# lagdesk decide: verdicts from the command line, on a small analysed database.
+# ---------------------------------------------------------------------------------------------
+
+# Simulated series (seeded, see jobs/simulated_portfolio.py) under ids of three prefixes; the
+# ARMA(1,1) path is the one the engine is not firm about.
+DECIDE_IDS = {
+    "sim/000/white-noise": "north/a", "sim/001/ar1": "north/b", "sim/002/ar2": "north/c",
+    "sim/003/ma1": "south/a", "sim/004/arma11": "north/d", "sim/005/random-walk": "west/a",
+}
+PREFIX = "north/"
+
+
+@pytest.fixture(scope="module")
+def decide_template(tmp_path_factory) -> Path:
+    """The series of :data:`DECIDE_IDS` imported and analysed once; every verdict pending."""
+    folder = tmp_path_factory.mktemp("decide")
+    series = simulated_series(len(DECIDE_IDS), (80, 150), seed=2)
+    rows = [(DECIDE_IDS[sid], step, repr(float(v))) for sid, values in series.items() for step, v in values.items()]
+    csv_path = folder / "portfolio.csv"
+    pd.DataFrame(rows, columns=["series_id", "timestamp", "value"]).to_csv(csv_path, index=False)
+    db_path = folder / "template.db"
+    with open_database(db_path) as db:
+        import_portfolio(db, csv_path)
+    run = run_analysis(db_path, workers=1)
+    assert (run["state"], run["done"], run["failed"]) == ("finished", len(DECIDE_IDS), 0)
+    return db_path
+
+
+@pytest.fixture
+def decide_db(decide_template, tmp_path) -> Path:
+    """A private copy of the analysed template, for one test to change."""
+    target = tmp_path / "lagdesk.db"
+    with closing(sqlite3.connect(decide_template)) as source, closing(sqlite3.connect(target)) as copy:
+        source.backup(copy)
+    return target
+
+
+def _snapshot(db_path: Path) -> dict[str, list]:
+    """Every verdict and every history row, as stored."""
+    with closing(sqlite3.connect(db_path)) as conn:
+        conn.row_factory = sqlite3.Row
+        return {table: [dict(row) for row in conn.execute(f"SELECT * FROM {table} ORDER BY rowid")]
+                for table in ("verdicts", "verdict_history")}
+
+
+def _read(db_path: Path, read, *args):
+    with open_database(db_path) as db:
+        return read(db, *args)
+
+
+def test_decide_approve_records_the_suggestion_and_a_history_row(run_cli, decide_db):
+    suggested = _read(decide_db, load_analysis, "north/b").suggested.order
+
+    code, out, err = run_cli("decide", "north/b", "approve", "--reviewer", " Ann   Lee\n", "--note", "a clear AR(1)",
+                             "--db", decide_db)
+
+    assert (code, err) == (0, "")
+    assert out.splitlines() == [f"north/b: approved {suggested.label()} (version 1, by Ann Lee)"]
+    verdict = _read(decide_db, get_verdict, "north/b")
+    analysis = _read(decide_db, load_analysis, "north/b")
+    assert (verdict["status"], verdict["order"], verdict["seasonal_order"]) == (
+        "approved", list(suggested.order), list(suggested.seasonal_order))
+    # The reviewer's name is stored as the pages and the API store it: trimmed, one line.
+    assert (verdict["reviewer"], verdict["note"], verdict["version"]) == ("Ann Lee", "a clear AR(1)", 1)
+    assert verdict["transform"] == analysis.transform.to_json() and verdict["decided_at"] is not None
+    [row] = _read(decide_db, verdict_history, "north/b")
+    assert (row["version"], row["from_status"], row["status"], row["order"], row["reviewer"]) == (
+        1, "pending", "approved", list(suggested.order), "Ann Lee")
+
+
+def test_decide_override_stores_the_order_given_and_json_prints_the_stored_verdict(run_cli, decide_db):
+    order, seasonal = [1, 0, 0], [1, 0, 0, 4]
+    assert not _read(decide_db, load_analysis, "north/a").suggested.order.same_orders(order, seasonal)
+
+    code, out, err = run_cli("decide", "north/a", "override", "--order", "1,0,0", "--seasonal", "1,0,0,4",
+                             "--reviewer", "bob", "--note", "a season of four", "--json", "--db", decide_db)
+
+    assert (code, err) == (0, "")
+    printed = json.loads(out)
+    verdict = _read(decide_db, get_verdict, "north/a")
+    assert printed == verdict
+    assert (verdict["status"], verdict["order"], verdict["seasonal_order"], verdict["version"]) == (
+        "overridden", order, seasonal, 1)
+    [row] = _read(decide_db, verdict_history, "north/a")
+    assert (row["from_status"], row["status"], row["order"], row["seasonal_order"], row["reviewer"], row["note"]) == (
+        "pending", "overridden", order, seasonal, "bob", "a season of four")
+
+
+def test_decide_with_a_stale_version_is_refused_in_one_line_and_changes_nothing(run_cli, decide_db):
+    assert run_cli("decide", "north/b", "approve", "--reviewer", "ann", "--db", decide_db)[0] == 0
+    before = _snapshot(decide_db)
+
+    code, out, err = run_cli("decide", "north/b", "override", "--order", "1,0,1", "--version", 0,
+                             "--reviewer", "bob", "--db", decide_db)
+
+    assert (code, out) == (2, "")
+    [line] = err.splitlines()
+    assert line.startswith("lagdesk decide: series 'north/b': the verdict changed since version 0 was read")
+    assert "now version 1, approved by ann" in line and "Traceback" not in err
+    assert _snapshot(decide_db) == before
+
+
+def test_decide_pending_reopens_a_decided_series_and_the_history_keeps_every_step(run_cli, decide_db):
+    code, out, _ = run_cli("decide", "south/a", "approve", "--reviewer", "ann", "--json", "--db", decide_db)
+    approved = json.loads(out)
+    code, out, _ = run_cli("decide", "south/a", "override", "--order", "2,0,0", "--reviewer", "bob",
+                           "--version", approved["version"], "--json", "--db", decide_db)
+    overridden = json.loads(out)
+
+    code, out, err = run_cli("decide", "south/a", "pending", "--reviewer", "cy", "--note", "look again",
+                             "--version", overridden["version"], "--json", "--db", decide_db)
+
+    assert (code, err) == (0, "")
+    reopened = json.loads(out)
+    assert reopened == _read(decide_db, get_verdict, "south/a")
+    assert (reopened["status"], reopened["order"], reopened["seasonal_order"], reopened["decided_at"]) == (
+        "pending", None, None, None)
+    assert (reopened["version"], reopened["reviewer"], reopened["note"]) == (3, "cy", "look again")
+    steps = [(r["version"], r["from_status"], r["status"], r["order"], r["reviewer"])
+             for r in _read(decide_db, verdict_history, "south/a")]
+    assert steps == [
+        (1, "pending", "approved", approved["order"], "ann"),
+        (2, "approved", "overridden", [2, 0, 0], "bob"),
+        (3, "overridden", "pending", None, "cy"),
+    ]
+    assert _read(decide_db, portfolio_status)["verdicts"]["pending"] == len(DECIDE_IDS)
+
+
+def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(run_cli, decide_db):
+    assert run_cli("decide", "north/b", "park", "--reviewer", "ann", "--db", decide_db)[0] == 0
+    with open_database(decide_db) as db:
+        confidence = {sid: load_analysis(db, sid).confidence for sid in DECIDE_IDS.values()}
+        status = {sid: get_verdict(db, sid)["status"] for sid in DECIDE_IDS.values()}
+    expected = sorted(s for s in DECIDE_IDS.values() if s.startswith(PREFIX) and status[s] == "pending" and confidence[s] == "firm")
+    # The portfolio tests each rule: firm and pending under the prefix, a parked firm one and a
+    # pending one the engine is not firm about under it, firm pending ones outside it.
+    assert expected and status["north/b"] == "parked" and confidence["north/b"] == "firm"
+    assert any(s.startswith(PREFIX) and status[s] == "pending" and confidence[s] != "firm" for s in status)
+    assert any(not s.startswith(PREFIX) and status[s] == "pending" and confidence[s] == "firm" for s in status)
+    before = _snapshot(decide_db)
+    untouched = {row["series_id"] for row in before["verdicts"]} - set(expected)
+
+    code, out, err = run_cli("decide", "--all-firm", "--prefix", PREFIX, "--reviewer", "dee", "--note", "bulk",
+                             "--json", "--db", decide_db)
+
+    assert (code, err) == (0, "")
+    approved = json.loads(out)
+    assert sorted(approved) == expected and len(set(approved)) == len(approved)
+    with open_database(decide_db) as db:
+        for sid in expected:
+            verdict, suggested = get_verdict(db, sid), load_analysis(db, sid).suggested.order
+            assert (verdict["status"], verdict["order"], verdict["seasonal_order"], verdict["reviewer"], verdict["note"]) == (
+                "approved", list(suggested.order), list(suggested.seasonal_order), "dee", "bulk")
+    after = _snapshot(decide_db)
+    def kept(rows):
+        return [r for r in rows if r["series_id"] in untouched]
+
+    assert kept(after["verdicts"]) == kept(before["verdicts"])
+    new_rows = after["verdict_history"][len(before["verdict_history"]):]
+    assert sorted(r["series_id"] for r in new_rows) == expected
+    # Nothing is left to approve there: a second run approves none and says so.
+    code, out, _ = run_cli("decide", "--all-firm", "--prefix", PREFIX, "--reviewer", "dee", "--db", decide_db)
+    assert (code, out.splitlines()) == (0, [f"0 firm suggestion(s) approved under {PREFIX!r}"])
+    assert _snapshot(decide_db)["verdicts"] == after["verdicts"]
+
+
+@pytest.mark.parametrize(
+    ("argv", "expected"),
+    [
+        (["north/a", "approve"], "--reviewer NAME is required"),
+        (["north/a", "approve", "--reviewer", "  "], "--reviewer NAME is required"),
+        (["north/a", "--reviewer", "ann"], "give a series id and an action"),
+        (["north/a", "override", "--reviewer", "ann"], "an overridden verdict needs an order"),
+        (["north/a", "approve", "--order", "5,0,5", "--reviewer", "ann"], "use 'overridden' for ARIMA(5,0,5)"),
+        (["north/a", "override", "--order", "11,0,0", "--reviewer", "ann"], "p = 11 is outside 0..10"),
+        (["north/a", "park", "--seasonal", "0,1,1,12", "--reviewer", "ann"], "--seasonal goes with --order"),
+        (["north/a", "pending", "--order", "1,0,0", "--reviewer", "ann"], "give no --order"),
+        (["north/a", "approve", "--prefix", "north/", "--reviewer", "ann"], "--prefix goes with --all-firm"),
+        (["north/a", "approve", "--all-firm", "--reviewer", "ann"], "give no series id or action"),
+        (["--all-firm", "--version", "0", "--reviewer", "ann"], "give no --order, --seasonal or --version"),
+        (["--all-firm", "--order", "1,0,0", "--reviewer", "ann"], "give no --order, --seasonal or --version"),
+        (["nope/x", "approve", "--reviewer", "ann"], "no series 'nope/x'"),
+    ],
+    ids=["no-reviewer", "blank-reviewer", "no-action", "override-without-order", "approve-another-order",
+         "order-out-of-range", "seasonal-without-order", "pending-with-order", "prefix-without-all-firm",
+         "all-firm-with-series", "all-firm-with-version", "all-firm-with-order", "unknown-series"],
+)
+def test_decide_refuses_a_bad_request_in_one_line_and_changes_nothing(run_cli, decide_db, argv, expected):
+    before = _snapshot(decide_db)
+
+    code, out, err = run_cli("decide", *argv, "--db", decide_db)
+
+    assert (code, out) == (2, "")
+    [line] = err.splitlines()
+    assert line.startswith("lagdesk decide: ") and expected in line
+    assert _snapshot(decide_db) == before
+
+
+def test_decide_does_not_create_a_database(run_cli, tmp_path):
+    db = tmp_path / "missing.db"
+
+    code, out, err = run_cli("decide", "north/a", "approve", "--reviewer", "ann", "--db", db)
+
+    assert (code, out) == (2, "")
+    assert err.splitlines() == [f"lagdesk decide: {db}: no such database; create it with lagdesk import PATH --db {db}"]
+    assert not db.exists()
+
+
+def test_decide_help_shows_both_forms_and_the_actions(capsys):
+    with pytest.raises(SystemExit) as shown:
+        main(["decide", "--help"])
+
+    text = capsys.readouterr().out
+    assert shown.value.code == 0
+    assert "lagdesk decide SERIES_ID ACTION --reviewer NAME" in text and "lagdesk decide --all-firm [--prefix ID_PREFIX]" in text
+    assert all(action in text for action in DECIDE_ACTIONS)

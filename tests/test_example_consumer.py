@@ -21,9 +21,9 @@ from threadpoolctl import threadpool_limits
 import app
 from app.core.backtest import forecast_order
 from app.core.portfolio_file import read_portfolio
-from app.jobs.export import write_export
 from app.jobs.order_fits import load_prepared
 from app.jobs.work import SeriesTask, identify_task
+from app.review.export import write_export
 from app.store.analyses import save_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
@@ -53,8 +53,9 @@ def exported(tmp_path_factory):
             result = identify_task(SeriesTask(raw.series_id, raw.values, raw.lines)).result
             save_analysis(db, raw.series_id, series_fingerprint(db, raw.series_id), result, None)
             if raw.series_id in APPROVED:
-                set_verdict(db, raw.series_id, status="approved", order=result["suggested"]["order"],
-                            seasonal_order=result["suggested"]["seasonal_order"], transform=result["transform"],
+                suggested = result.suggested.order
+                set_verdict(db, raw.series_id, status="approved", order=list(suggested.order),
+                            seasonal_order=list(suggested.seasonal_order), transform=result.transform.to_json(),
                             reviewer="ann", version=0)
             elif raw.series_id in OVERRIDDEN:
                 order, transform = OVERRIDDEN[raw.series_id]

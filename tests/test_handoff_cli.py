@@ -20,7 +20,7 @@ from statsmodels.stats.diagnostic import acorr_ljungbox
 
 import app
 from app.cli import main
-from app.jobs.order_fits import backtest_series
+from app.review.forecast_check import backtest_series
 from app.store.database import open_database
 from app.store.verdicts import get_verdict, set_verdict
 

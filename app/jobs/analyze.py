@@ -27,11 +27,11 @@ import sqlite_utils
 
 from app.core.errors import LagdeskError
 from app.core.identify import ENGINE_VERSION, EngineOptions
+from app.jobs.executors import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.recheck import recheck_after_analysis
-from app.jobs.pool import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
-from app.store.database import open_database, write_transaction
+from app.store.database import UnknownSeries, open_database, write_transaction
 from app.store.runs import finish_run, get_run, list_runs, record_progress, start_run
 from app.store.series import load_series, series_fingerprint, series_ids_to_analyse
 
@@ -50,6 +50,8 @@ _held: dict[Path, int] = {}
 
 class AnalysisInProgress(LagdeskError):
     """Another analysis run on the same database has not finished yet."""
+
+    http_status = 409
 
     def __init__(self, db_path: Path, run_id: int | None) -> None:
         self.run_id = run_id
@@ -113,23 +115,27 @@ class AnalysisRun:
         # if an import lands in between, the result is stored under the older fingerprint and
         # shows as stale, never as current for data it did not see.
         for series_id in self.series_ids:
-            self._fingerprints[series_id] = series_fingerprint(self.db, series_id)
+            fingerprint = series_fingerprint(self.db, series_id)
+            if fingerprint is None:  # series are never deleted; a run only chooses stored ones
+                raise UnknownSeries(series_id)
+            self._fingerprints[series_id] = fingerprint
             yield SeriesTask(series_id, load_series(self.db, series_id), None, self.options)
 
     def _commit(self, outcome: SeriesOutcome, progress: RunProgress) -> None:
         fingerprint = self._fingerprints.pop(outcome.series_id)
-        failed = outcome.problem is not None
+        result = outcome.result
+        problem = outcome.problem or {"series_id": outcome.series_id, "message": "the analysis returned nothing"}
         with write_transaction(self.db):
-            if failed:
-                save_failure(self.db, outcome.series_id, fingerprint, outcome.problem["message"], self.run_id)
+            if result is None:
+                save_failure(self.db, outcome.series_id, fingerprint, problem["message"], self.run_id)
             else:
-                save_analysis(self.db, outcome.series_id, fingerprint, outcome.result, self.run_id)
-            record_progress(self.db, self.run_id, progress.done + 1, progress.failed + int(failed))
-        recheck_after_analysis(self.db, outcome.series_id, outcome.result)
+                save_analysis(self.db, outcome.series_id, fingerprint, result, self.run_id)
+            record_progress(self.db, self.run_id, progress.done + 1, progress.failed + int(result is None))
+        recheck_after_analysis(self.db, outcome.series_id, result)
         progress.done += 1
-        if failed:
+        if result is None:
             progress.failed += 1
-            progress.problems.append(outcome.problem)
+            progress.problems.append(problem)
 
     def _close(self, state: str) -> dict:
         try:

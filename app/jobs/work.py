@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from app.core.analysis import Analysis
 from app.core.errors import SeriesProblem
 from app.core.identify import EngineOptions, identify_series
 
@@ -21,10 +22,10 @@ class SeriesTask:
 
 @dataclass
 class SeriesOutcome:
-    """Either ``result`` (the engine's dict) or ``problem`` (a SeriesProblem as a dict)."""
+    """Either ``result`` (the engine's analysis) or ``problem`` (a SeriesProblem as a dict)."""
 
     series_id: str
-    result: dict | None = None
+    result: Analysis | None = None
     problem: dict | None = None
 
 
@@ -36,6 +37,6 @@ def identify_task(task: SeriesTask) -> SeriesOutcome:
         return SeriesOutcome(task.series_id, problem=problem.to_dict())
     except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         # A numerical failure inside a fit must cost this series only, never the whole run.
-        problem = SeriesProblem(task.series_id, f"analysis failed ({type(exc).__name__}: {exc})", flag="analysis_error")
-        return SeriesOutcome(task.series_id, problem=problem.to_dict())
-    return SeriesOutcome(task.series_id, result=found.to_dict())
+        failure = SeriesProblem(task.series_id, f"analysis failed ({type(exc).__name__}: {exc})", flag="analysis_error")
+        return SeriesOutcome(task.series_id, problem=failure.to_dict())
+    return SeriesOutcome(task.series_id, result=found.to_analysis())

@@ -1,7 +1,8 @@
 """Stored analyses: the engine's result per series, kept until the next one replaces it.
 
-The result dict is stored as JSON text, exactly as the engine returned it, in
-``analysis_results``; ``analyses`` holds the state and the few summary columns (confidence,
+The engine's :class:`~app.core.analysis.Analysis` is stored as JSON text
+(:meth:`~app.core.analysis.Analysis.to_dict`) in ``analysis_results`` and read back as an
+``Analysis`` (older schema versions included); ``analyses`` holds the state and the few summary columns (confidence,
 flags, suggested orders, d) that the dashboard filters and sorts on without reading results.
 An analysis records the fingerprint of the data it was run on: it is *current* while that
 equals the series' fingerprint and *stale* once new data changed it. A failure is stored too,
@@ -14,11 +15,9 @@ import json
 
 import sqlite_utils
 
+from app.core.analysis import Analysis
 from app.core.errors import LagdeskError
 from app.store.database import require_series, utc_now, write_transaction
-
-CONFIDENCE_LEVELS = ("weak", "tentative", "firm")
-ANALYSIS_STATES = ("current", "stale", "failed", "missing")
 
 # The state of a series' analysis, for a query over ``series s LEFT JOIN analyses a``.
 ANALYSIS_STATE_SQL = (
@@ -28,28 +27,38 @@ ANALYSIS_STATE_SQL = (
 )
 
 
-def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, result: dict, run_id: int | None) -> None:
-    """Store the engine's result for a series, replacing any earlier analysis of it.
+def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, analysis: Analysis, run_id: int | None) -> None:
+    """Store the engine's analysis of a series, replacing any earlier one.
 
     Parameters
     ----------
     fingerprint : str
         The fingerprint of the data that was analysed (read before the series was loaded).
-    result : dict
-        ``Identification.to_dict()``; read back unchanged by :func:`load_analysis`.
+    analysis : Analysis
+        Read back equal by :func:`load_analysis`.
 
     Raises
     ------
     LagdeskError
-        When the result lacks a summary field or names another series.
+        When the analysis names another series.
     UnknownSeries
         When the database holds no such series.
     """
-    summary = _summary(series_id, result)
-    text = json.dumps(result)
+    if analysis.series_id != series_id:
+        raise LagdeskError(f"series {series_id!r}: the analysis is for series {analysis.series_id!r}")
+    suggested = analysis.suggested.order
+    summary = {
+        "confidence": str(analysis.confidence),
+        "flags": json.dumps([str(f) for f in analysis.flags]),
+        "suggested_order": json.dumps(list(suggested.order)),
+        "suggested_seasonal_order": json.dumps(list(suggested.seasonal_order)),
+        "d": suggested.d,
+        "engine_version": analysis.engine_version,
+    }
+    text = json.dumps(analysis.to_dict())
     with write_transaction(db):
         _store(db, series_id, fingerprint, run_id, state="complete", **summary)
-        db["analysis_results"].insert({"series_id": series_id, "result": text}, replace=True)
+        db.table("analysis_results").insert({"series_id": series_id, "result": text}, replace=True)
 
 
 def save_failure(db: sqlite_utils.Database, series_id: str, fingerprint: str, message: str, run_id: int | None) -> None:
@@ -62,7 +71,7 @@ def save_failure(db: sqlite_utils.Database, series_id: str, fingerprint: str, me
 def _store(db: sqlite_utils.Database, series_id: str, fingerprint: str, run_id: int | None, **columns) -> None:
     """Write the ``analyses`` row (state and summary), replacing any earlier one."""
     require_series(db, series_id)
-    db["analyses"].insert({
+    db.table("analyses").insert({
         "series_id": series_id,
         "fingerprint": fingerprint,
         "message": None,
@@ -78,35 +87,30 @@ def _store(db: sqlite_utils.Database, series_id: str, fingerprint: str, run_id: 
     }, replace=True)
 
 
-def _summary(series_id: str, result: dict) -> dict:
-    try:
-        confidence = result["confidence"]
-        flags = list(result["flags"])
-        order = list(result["suggested"]["order"])
-        seasonal = list(result["suggested"]["seasonal_order"])
-        d = int(result["d"])
-    except (KeyError, TypeError, ValueError) as exc:
-        raise LagdeskError(f"series {series_id!r}: the analysis result has no usable {exc} field") from None
-    if result.get("series_id", series_id) != series_id:
-        raise LagdeskError(f"series {series_id!r}: the analysis result is for series {result['series_id']!r}")
-    if confidence not in CONFIDENCE_LEVELS:
-        raise LagdeskError(
-            f"series {series_id!r}: confidence must be one of {', '.join(CONFIDENCE_LEVELS)}, not {confidence!r}"
-        )
-    return {
-        "confidence": confidence,
-        "flags": json.dumps(flags),
-        "suggested_order": json.dumps(order),
-        "suggested_seasonal_order": json.dumps(seasonal),
-        "d": d,
-        "engine_version": result.get("engine_version"),
-    }
+def load_analysis(db: sqlite_utils.Database, series_id: str) -> Analysis | None:
+    """The stored analysis of a series (current or stale), or None without a complete one.
 
-
-def load_analysis(db: sqlite_utils.Database, series_id: str) -> dict | None:
-    """The stored result dict of a series (current or stale), or None without a complete one."""
+    Raises
+    ------
+    LagdeskError
+        When the stored result cannot be read (written by an unknown, newer schema version).
+    """
     row = db.execute("SELECT result FROM analysis_results WHERE series_id = ?", [series_id]).fetchone()
-    return None if row is None else json.loads(row[0])
+    return None if row is None else analysis_from_json(series_id, row[0])
+
+
+def analysis_from_json(series_id: str, text: str) -> Analysis:
+    """An analysis as stored in ``analysis_results.result``.
+
+    Raises
+    ------
+    LagdeskError
+        Naming the series, when the text is not an analysis this version of Lagdesk reads.
+    """
+    try:
+        return Analysis.from_dict(json.loads(text))
+    except (KeyError, TypeError, ValueError) as exc:
+        raise LagdeskError(f"series {series_id!r}: the stored analysis cannot be read ({type(exc).__name__}: {exc})") from None
 
 
 def analysis_record(db: sqlite_utils.Database, series_id: str) -> dict:

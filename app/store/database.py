@@ -13,7 +13,7 @@ import os
 import sqlite3
 from collections.abc import Iterator
 from contextlib import contextmanager
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 import sqlite_utils
@@ -29,6 +29,8 @@ BUSY_TIMEOUT_S = 10
 class UnknownSeries(LagdeskError):
     """A series id that the database does not hold."""
 
+    http_status = 404
+
     def __init__(self, series_id: str) -> None:
         self.series_id = series_id
         super().__init__(f"no series {series_id!r} in the database")
@@ -36,6 +38,16 @@ class UnknownSeries(LagdeskError):
 
 class StorageUnavailable(LagdeskError):
     """The database exists but cannot be written here (read-only file or folder)."""
+
+    http_status = 503
+
+
+def insert_row(db: sqlite_utils.Database, table: str, row: dict) -> int:
+    """Insert ``row`` into ``table`` and return the rowid SQLite gave it."""
+    pk = db.table(table).insert(row).last_pk
+    if pk is None:
+        raise sqlite3.DatabaseError(f"the insert into {table} returned no row id")
+    return int(pk)
 
 
 def resolve_db_path(explicit: str | None) -> Path:
@@ -149,4 +161,4 @@ def storage_error_text(exc: sqlite3.Error, path: str | Path | None = None) -> st
 
 def utc_now() -> str:
     """The current time as an ISO-8601 UTC string with milliseconds."""
-    return datetime.now(timezone.utc).isoformat(timespec="milliseconds")
+    return datetime.now(UTC).isoformat(timespec="milliseconds")

@@ -37,7 +37,7 @@ from app.core.portfolio_file import (
     read_portfolio,
 )
 from app.core.prepare import PreparedSeries, prepare_series
-from app.store.database import utc_now, write_transaction
+from app.store.database import insert_row, utc_now, write_transaction
 from app.store.timestamps import DATETIME, index_from_keys, time_kind, timestamp_keys
 from app.store.verdicts import add_pending
 
@@ -222,7 +222,7 @@ def _write(
         rejected=rejected,
         imported_at=utc_now(),
     )
-    report.import_id = db["imports"].insert({
+    report.import_id = insert_row(db, "imports", {
         "file": file,
         "imported_at": report.imported_at,
         "layout": layout,
@@ -230,7 +230,7 @@ def _write(
         "updated": json.dumps(report.updated),
         "unchanged": json.dumps(report.unchanged),
         "rejected": json.dumps(report.rejected),
-    }).last_pk
+    })
     written = [p for p in plans if p.changed]
     db.conn.executemany(
         "INSERT INTO series (series_id, time_kind, freq, n, observed, gaps_filled, first_timestamp, "

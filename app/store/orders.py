@@ -22,23 +22,19 @@ from dataclasses import dataclass
 import sqlite_utils
 
 from app.core.errors import LagdeskError, OrderError
-from app.core.fitting import ModelOrder, validate_order
+from app.core.order import Order, validate_order
 from app.core.transform import TransformChoice
+from app.core.vocabulary import DECIDED, VerdictStatus
+from app.store.analyses import analysis_from_json
 from app.store.database import utc_now, write_transaction
-from app.store.verdicts import DECIDED, STATUSES, verdict_counts
+from app.store.verdicts import verdict_counts
 
 ORDER_FIELDS = (
     "series_id", "p", "d", "q", "seasonal_p", "seasonal_d", "seasonal_q", "period", "transform",
     "include_constant", "decision", "reviewer", "decided_at", "note", "data_sha256", "last_timestamp",
     "engine_version", "parameters",
 )
-ALWAYS_COUNTED = ("pending", "parked", "recheck")
-
-_CANDIDATES_SQL = (
-    "(SELECT json_group_array(json_object('order', c.value -> '$.order', 'seasonal_order', "
-    "c.value -> '$.seasonal_order', 'trend', c.value ->> '$.trend', 'params', c.value -> '$.params')) "
-    "FROM json_each(r.result, '$.candidates') AS c)"
-)
+ALWAYS_COUNTED = (VerdictStatus.PENDING, VerdictStatus.PARKED, VerdictStatus.RECHECK)
 
 
 @dataclass
@@ -47,7 +43,7 @@ class DecidedOrder:
     refit is needed), the model and transform to fit, and the fingerprint of the current data."""
 
     record: dict
-    model: ModelOrder
+    model: Order
     transform: TransformChoice
     fingerprint: str
 
@@ -77,7 +73,7 @@ def decided_orders(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED)
         "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.reviewer, v.decided_at, "
         "v.note, v.data_sha256, s.last_timestamp, s.fingerprint, "
         "a.state = 'complete' AND a.fingerprint = s.fingerprint AS analysis_current, a.engine_version, "
-        f"r.result -> '$.transform' AS analysed_transform, {_CANDIDATES_SQL} AS candidates, "
+        "r.result AS analysis, "
         "f.fingerprint AS fit_fingerprint, f.model AS fit_model, f.parameters AS fit_parameters, "
         "f.engine_version AS fit_engine_version "
         "FROM verdicts v JOIN series s ON s.series_id = v.series_id "
@@ -93,22 +89,20 @@ def decided_orders(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED)
 def _decided(row: dict) -> DecidedOrder:
     order, seasonal = json.loads(row["arima_order"]), json.loads(row["seasonal_order"])
     transform = TransformChoice.from_json(json.loads(row["transform"]))
-    candidates = json.loads(row["candidates"]) if row["candidates"] else []
+    analysis = analysis_from_json(row["series_id"], row["analysis"]) if row["analysis"] else None
     try:
-        model, candidate = chosen_model(candidates, order, seasonal)
+        model, candidate = analysis.model_for(order, seasonal) if analysis else (validate_order(order, seasonal), None)
     except OrderError as exc:
         raise OrderError(f"series {row['series_id']!r}: the {row['status']} order cannot be used ({exc})") from None
     parameters, engine_version = None, None
-    same_transform = row["analysed_transform"] is not None and json.loads(row["analysed_transform"]) == transform.to_json()
+    same_transform = analysis is not None and analysis.transform.to_json() == transform.to_json()
     if row["analysis_current"] and same_transform and candidate is not None:
-        parameters, engine_version = candidate_parameters(candidate), row["engine_version"]
+        parameters, engine_version = candidate.parameter_values(), row["engine_version"]
     elif row["fit_fingerprint"] == row["fingerprint"] and row["fit_model"] == model_key(model, transform):
         parameters, engine_version = json.loads(row["fit_parameters"]), row["fit_engine_version"]
-    p, d, q = model.order
-    sp, sd, sq, s = model.seasonal_order
     record = {
-        "series_id": row["series_id"], "p": p, "d": d, "q": q,
-        "seasonal_p": sp, "seasonal_d": sd, "seasonal_q": sq, "period": s or None,
+        "series_id": row["series_id"], "p": model.p, "d": model.d, "q": model.q,
+        "seasonal_p": model.P, "seasonal_d": model.D, "seasonal_q": model.Q, "period": model.period,
         "transform": transform.to_json(), "include_constant": model.trend != "n",
         "decision": row["status"], "reviewer": row["reviewer"], "decided_at": row["decided_at"],
         "note": row["note"], "data_sha256": row["data_sha256"], "last_timestamp": row["last_timestamp"],
@@ -117,31 +111,7 @@ def _decided(row: dict) -> DecidedOrder:
     return DecidedOrder(record, model, transform, row["fingerprint"])
 
 
-def chosen_model(candidates: list[dict], order: Sequence[int], seasonal_order: Sequence[int]) -> tuple[ModelOrder, dict | None]:
-    """The model of a chosen order with the deterministic term the engine gives it, and the
-    analysis candidate of that order (None for a custom order).
-
-    ``candidates`` are the analysis' candidate dicts (``order``, ``seasonal_order``, ``trend``,
-    ...). A custom order takes the term of the candidates with the same differencing (d, D), as
-    the engine picks the term from the differencing alone; without any, the default of
-    :func:`~app.core.fitting.validate_order`.
-    """
-    order, seasonal_order = list(order), list(seasonal_order)
-    match = next((c for c in candidates if c["order"] == order and c["seasonal_order"] == seasonal_order), None)
-    if match is not None:
-        trend = match["trend"]
-    else:
-        same = [c["trend"] for c in candidates if c["order"][1] == order[1] and c["seasonal_order"][1] == seasonal_order[1]]
-        trend = same[0] if same else None
-    return validate_order(order, seasonal_order, trend=trend), match
-
-
-def candidate_parameters(candidate: dict) -> dict[str, float]:
-    """A fitted candidate's coefficients by name."""
-    return {p["name"]: p["value"] for p in candidate["params"]}
-
-
-def model_key(model: ModelOrder, transform: TransformChoice) -> str:
+def model_key(model: Order, transform: TransformChoice) -> str:
     """The model a refit was for, as stored in ``order_fits.model``."""
     return json.dumps({
         "order": list(model.order), "seasonal_order": list(model.seasonal_order), "trend": model.trend,
@@ -150,12 +120,12 @@ def model_key(model: ModelOrder, transform: TransformChoice) -> str:
 
 
 def save_order_fit(
-    db: sqlite_utils.Database, series_id: str, fingerprint: str, model: ModelOrder, transform: TransformChoice,
+    db: sqlite_utils.Database, series_id: str, fingerprint: str, model: Order, transform: TransformChoice,
     parameters: dict[str, float], engine_version: str,
 ) -> None:
     """Keep the parameters of a refit of a chosen order, replacing the series' earlier refit."""
     with write_transaction(db):
-        db["order_fits"].insert({
+        db.table("order_fits").insert({
             "series_id": series_id, "fingerprint": fingerprint, "model": model_key(model, transform),
             "parameters": json.dumps(parameters), "engine_version": engine_version, "fitted_at": utc_now(),
         }, replace=True)
@@ -178,4 +148,4 @@ def left_out_counts(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED
     and recheck, plus a decided status that was not chosen."""
     chosen = checked_statuses(statuses)
     counts = verdict_counts(db)
-    return {status: counts[status] for status in STATUSES if status in ALWAYS_COUNTED or status not in chosen}
+    return {str(status): counts[status] for status in VerdictStatus if status in ALWAYS_COUNTED or status not in chosen}

@@ -13,11 +13,22 @@ from datetime import datetime
 import sqlite_utils
 
 from app.core.errors import LagdeskError
-from app.store.database import utc_now
+from app.store.database import insert_row, utc_now
 
 FINAL_STATES = ("finished", "interrupted", "failed")
 
 _COLUMNS = "run_id, started_at, updated_at, finished_at, engine_version, settings, total, done, failed, state, duration_s"
+
+
+
+class UnknownRun(LagdeskError):
+    """A run id that the database does not hold."""
+
+    http_status = 404
+
+    def __init__(self, run_id: int) -> None:
+        self.run_id = run_id
+        super().__init__(f"no run {run_id} in the database")
 
 
 def start_run(db: sqlite_utils.Database, settings: dict, total: int, engine_version: str) -> int:
@@ -25,7 +36,7 @@ def start_run(db: sqlite_utils.Database, settings: dict, total: int, engine_vers
     if total < 0:
         raise LagdeskError(f"a run's total ({total}) must be >= 0")
     now = utc_now()
-    return db["runs"].insert({
+    return insert_row(db, "runs", {
         "started_at": now,
         "updated_at": now,
         "engine_version": engine_version,
@@ -34,7 +45,7 @@ def start_run(db: sqlite_utils.Database, settings: dict, total: int, engine_vers
         "done": 0,
         "failed": 0,
         "state": "running",
-    }).last_pk
+    })
 
 
 def record_progress(db: sqlite_utils.Database, run_id: int, done: int, failed: int) -> None:
@@ -55,7 +66,7 @@ def finish_run(db: sqlite_utils.Database, run_id: int, state: str) -> None:
 
 def _update(db: sqlite_utils.Database, run_id: int, assignments: str, params: list) -> None:
     if db.execute(f"UPDATE runs SET {assignments} WHERE run_id = ?", params + [run_id]).rowcount != 1:
-        raise LagdeskError(f"no run {run_id} in the database")
+        raise UnknownRun(run_id)
 
 
 def get_run(db: sqlite_utils.Database, run_id: int) -> dict:
@@ -64,7 +75,7 @@ def get_run(db: sqlite_utils.Database, run_id: int) -> dict:
     is the time since it started."""
     runs = _select(db, "WHERE run_id = ?", [run_id])
     if not runs:
-        raise LagdeskError(f"no run {run_id} in the database")
+        raise UnknownRun(run_id)
     return runs[0]
 
 

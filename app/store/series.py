@@ -13,9 +13,13 @@ import pandas as pd
 import sqlite_utils
 
 from app.core.errors import LagdeskError
-from app.store.analyses import ANALYSIS_STATE_SQL, CONFIDENCE_LEVELS
+from app.core.vocabulary import Confidence
+from app.store.analyses import ANALYSIS_STATE_SQL
 from app.store.timestamps import index_from_keys
 from app.store.verdicts import STATUSES, verdict_counts
+
+# Weakest first: the order the queue sorts and counts confidence levels in.
+CONFIDENCE_LEVELS = tuple(str(c) for c in reversed(Confidence))
 
 _FROM = (
     "FROM series s JOIN verdicts v ON v.series_id = s.series_id "
@@ -111,7 +115,8 @@ def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -
 
 
 def _where(
-    status: str | Iterable[str] | None, confidence: str | Iterable[str] | None, flag: str | None, q: str | None
+    status: str | Iterable[str] | None, confidence: str | Iterable[str] | None, flag: str | None, q: str | None,
+    prefix: str | None = None,
 ) -> tuple[str, list]:
     clauses: list[str] = []
     params: list = []
@@ -134,6 +139,10 @@ def _where(
     if q:
         clauses.append("instr(lower(s.series_id), lower(?)) > 0")
         params.append(q)
+    if prefix:
+        # substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too).
+        clauses.append("substr(s.series_id, 1, ?) = ?")
+        params.extend([len(prefix), prefix])
     return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
 
 
@@ -154,6 +163,7 @@ def list_series(
     confidence: str | Iterable[str] | None = None,
     flag: str | None = None,
     q: str | None = None,
+    prefix: str | None = None,
     sort: str = "attention",
     descending: bool = False,
 ) -> tuple[int, list[dict]]:
@@ -167,6 +177,8 @@ def list_series(
         Keep series whose analysis carries this flag.
     q : str, optional
         Keep series whose id contains this text (ignoring ASCII case).
+    prefix : str, optional
+        Keep series whose id starts with this text (``bakery/shop-3/``).
     sort : str
         A key of :data:`SORT_KEYS`. ``attention`` (the default) puts what needs a human first;
         the others sort ascending. ``descending`` reverses the chosen order.
@@ -182,7 +194,7 @@ def list_series(
     """
     if limit < 0 or offset < 0:
         raise LagdeskError(f"limit ({limit}) and offset ({offset}) must be >= 0")
-    where, params = _where(status, confidence, flag, q)
+    where, params = _where(status, confidence, flag, q, prefix)
     total = db.execute(f"SELECT count(*) {_FROM} {where}", params).fetchone()[0]
     rows = db.query(
         f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.suggested_order, a.suggested_seasonal_order, "
@@ -222,6 +234,7 @@ def series_neighbours(
     confidence: str | Iterable[str] | None = None,
     flag: str | None = None,
     q: str | None = None,
+    prefix: str | None = None,
     sort: str = "attention",
     descending: bool = False,
 ) -> tuple[str | None, str | None]:
@@ -229,7 +242,7 @@ def series_neighbours(
 
     Both are None when ``series_id`` does not pass the filters.
     """
-    where, params = _where(status, confidence, flag, q)
+    where, params = _where(status, confidence, flag, q, prefix)
     window = _order_by(sort, descending)
     row = db.execute(
         f"WITH ordered AS (SELECT s.series_id, lag(s.series_id) OVER w AS prev, lead(s.series_id) OVER w AS next "

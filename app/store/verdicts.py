@@ -21,11 +21,10 @@ from collections.abc import Iterable, Sequence
 import sqlite_utils
 
 from app.core.errors import LagdeskError, OrderError
+from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, VerdictStatus
 from app.store.database import require_series, utc_now, write_transaction
 
-STATUSES = ("pending", "approved", "overridden", "parked", "recheck")
-DECIDED = ("approved", "overridden")
-REVIEWER_STATUSES = ("pending", "approved", "overridden", "parked")
+STATUSES = tuple(VerdictStatus)
 TRANSFORMS = ("none", "log")
 SYSTEM_REVIEWER = "lagdesk"
 NO_SEASONAL_ORDER = [0, 0, 0, 0]
@@ -33,6 +32,11 @@ NO_SEASONAL_ORDER = [0, 0, 0, 0]
 
 class StaleVersion(LagdeskError):
     """A verdict change named a version that is no longer the current one."""
+
+    http_status = 409
+
+    def details(self) -> dict:
+        return {"verdict": self.current}
 
     def __init__(self, series_id: str, named: int, current: dict) -> None:
         self.series_id = series_id
@@ -123,16 +127,11 @@ def set_verdict(
         )
     if status in DECIDED and order is None:
         raise InvalidVerdict(f"series {series_id!r}: an {status} verdict needs an order (p, d, q)")
-    new = {
-        "status": status,
-        "order": _checked_order(order, 3, "order", series_id),
-        "seasonal_order": _checked_order(seasonal_order, 4, "seasonal order", series_id),
-        "transform": _checked_transform(transform, series_id),
-        "note": str(note),
-        "reviewer": str(reviewer),
-    }
-    if new["order"] is not None and new["seasonal_order"] is None:
-        new["seasonal_order"] = list(NO_SEASONAL_ORDER)
+    new_order = _checked_order(order, 3, "order", series_id)
+    new_seasonal = _checked_order(seasonal_order, 4, "seasonal order", series_id)
+    new_transform = _checked_transform(transform, series_id)
+    if new_order is not None and new_seasonal is None:
+        new_seasonal = list(NO_SEASONAL_ORDER)
     with write_transaction(db):
         current = get_verdict(db, series_id)
         decided_at = utc_now() if status != "pending" else None
@@ -141,8 +140,8 @@ def set_verdict(
             "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
             "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ? "
             "WHERE series_id = ? AND version = ?",
-            [status, _dumps(new["order"]), _dumps(new["seasonal_order"]), json.dumps(new["transform"]),
-             new["note"], new["reviewer"], decided_at, seen, series_id, version],
+            [status, _dumps(new_order), _dumps(new_seasonal), json.dumps(new_transform),
+             str(note), str(reviewer), decided_at, seen, series_id, version],
         )
         if updated.rowcount != 1:
             raise StaleVersion(series_id, version, current)
@@ -250,7 +249,7 @@ def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
 
 def verdict_counts(db: sqlite_utils.Database) -> dict[str, int]:
     """How many series hold each status (every status present, zero when unused)."""
-    counts = dict.fromkeys(STATUSES, 0)
+    counts = dict.fromkeys((str(s) for s in STATUSES), 0)
     counts.update(db.execute("SELECT status, count(*) FROM verdicts GROUP BY status").fetchall())
     return counts
 

@@ -18,6 +18,8 @@ from pathlib import Path
 import plotly
 import plotly.io as pio
 
+from app.core.analysis import Correlation
+
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 
 BLUE = "#0072B2"
@@ -56,21 +58,21 @@ def _as_json(data: list[dict], layout: dict) -> dict:
     return json.loads(pio.to_json({"data": data, "layout": layout}, validate=False))
 
 
-def lag_bar_figure(correlation: dict, seasonal_lags: Sequence[int] = (), y_title: str = "ACF") -> dict:
+def lag_bar_figure(correlation: Correlation, seasonal_lags: Sequence[int] = (), y_title: str = "ACF") -> dict:
     """Bars of a correlogram with its band drawn as a shaded area around zero.
 
     Parameters
     ----------
-    correlation : dict
-        ``{"lags": [1..K], "values": [...], "band": [...]}`` as the engine stores it; ``band``
-        is the half-width at each lag (Bartlett's, widening with lag, for an ACF; constant
-        ``z / sqrt(n)`` for a PACF).
+    correlation : Correlation
+        One panel of the analysis (lags 1..K, a value per lag and ``band``, the half-width at
+        each lag: Bartlett's, widening with lag, for an ACF; constant ``z / sqrt(n)`` for a
+        PACF).
     seasonal_lags : sequence of int
         Lags to mark (multiples of the seasonal period).
     """
-    lags = [int(k) for k in correlation["lags"]]
-    values = [float(v) for v in correlation["values"]]
-    band = [float(b) for b in correlation["band"]]
+    lags = [int(k) for k in correlation.lags]
+    values = [float(v) for v in correlation.values]
+    band = [float(b) for b in correlation.band]
     seasonal = set(int(k) for k in seasonal_lags)
     # The band is a step: constant across each lag's slot, as each lag has its own width.
     upper_x = [x for k in lags for x in (k - 0.5, k + 0.5)]

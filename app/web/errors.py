@@ -12,33 +12,18 @@ from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-from app.core.errors import InputFileError, LagdeskError
-from app.jobs.analyze import AnalysisInProgress
-from app.store.database import StorageUnavailable, UnknownSeries, storage_error_text
-from app.store.verdicts import StaleVersion
-from app.web.security import CsrfRejected
+from app.core.errors import LagdeskError
+from app.store.database import storage_error_text
 from app.web.templating import templates
-from app.web.uploads import UploadTooLarge
 
 API_PREFIX = "/api/"
 
 
 def status_of(exc: LagdeskError) -> int:
-    """404 unknown series, 409 stale verdict or busy analysis, 400 unusable file, 413 file too large,
-    403 form without its CSRF token, 503 database that cannot be written, 422 otherwise."""
-    if isinstance(exc, UnknownSeries):
-        return 404
-    if isinstance(exc, (StaleVersion, AnalysisInProgress)):
-        return 409
-    if isinstance(exc, InputFileError):
-        return 400
-    if isinstance(exc, UploadTooLarge):
-        return 413
-    if isinstance(exc, CsrfRejected):
-        return 403
-    if isinstance(exc, StorageUnavailable):
-        return 503
-    return 422
+    """The HTTP status an error class carries (``http_status``: 404 unknown series or run, 409
+    stale verdict or busy analysis, 400 unusable file, 413 file too large, 403 form without its
+    CSRF token, 503 database that cannot be written, 422 otherwise)."""
+    return exc.http_status
 
 
 def error_response(request: Request, status: int, message: str, extra: dict | None = None) -> Response:
@@ -49,17 +34,21 @@ def error_response(request: Request, status: int, message: str, extra: dict | No
     )
 
 
-async def _lagdesk_error(request: Request, exc: LagdeskError) -> Response:
-    extra = {"verdict": exc.current} if isinstance(exc, StaleVersion) else None
+# Starlette types every handler as taking an Exception; each is registered for one class only.
+async def _lagdesk_error(request: Request, exc: Exception) -> Response:
+    assert isinstance(exc, LagdeskError)
+    extra = exc.details()  # e.g. a stale verdict answers with the verdict as it now is
     return error_response(request, status_of(exc), str(exc), extra)
 
 
-async def _http_error(request: Request, exc: StarletteHTTPException) -> Response:
+async def _http_error(request: Request, exc: Exception) -> Response:
+    assert isinstance(exc, StarletteHTTPException)
     return error_response(request, exc.status_code, str(exc.detail))
 
 
-async def _storage_error(request: Request, exc: sqlite3.Error) -> Response:
+async def _storage_error(request: Request, exc: Exception) -> Response:
     """A full disk, a read-only file or a database busy past the timeout: 503, nothing half-written."""
+    assert isinstance(exc, sqlite3.Error)
     return error_response(request, 503, storage_error_text(exc))
 
 

@@ -2,7 +2,7 @@
 error by step ahead, and a chart of the end of the series with the forecasts and intervals.
 
 The check itself (rolling origins, refits, MASE against the seasonal naive forecast, interval
-coverage) is :func:`app.jobs.order_fits.backtest_series`.
+coverage) is :func:`app.review.forecast_check.backtest_series`.
 """
 
 from __future__ import annotations
@@ -11,7 +11,7 @@ from collections.abc import Sequence
 
 import sqlite_utils
 
-from app.jobs.order_fits import backtest_series
+from app.review.forecast_check import backtest_series
 from app.web.charts import forecast_figure
 from app.web.templating import number
 

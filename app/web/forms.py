@@ -6,6 +6,7 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, Field
 
+from app.core.analysis import Analysis
 from app.core.errors import OrderError
 from app.web.deps import SQLITE_MAX_INTEGER
 from app.web.review import CUSTOM_FIELDS
@@ -59,7 +60,7 @@ class DecisionForm(BaseModel):
                 raise OrderError(f"{name} must be a whole number, not {text!r}") from None
         return values[:3], values[3:]
 
-    def decision(self, analysis: dict | None) -> tuple[str, list[int] | None, list[int] | None]:
+    def decision(self, analysis: Analysis | None) -> tuple[str, list[int] | None, list[int] | None]:
         """``(status, order, seasonal_order)`` the form asks for.
 
         A chosen candidate or custom order equal to the suggestion is an approval; any other is
@@ -69,14 +70,13 @@ class DecisionForm(BaseModel):
             return "parked", None, None
         if self.action == "approve":
             return "approved", None, None
-        candidates = (analysis or {}).get("candidates", [])
+        candidates = analysis.candidates if analysis else ()
         if self.choice == "custom":
             order, seasonal = self.custom_order()
         elif self.choice.isdigit() and 1 <= int(self.choice) <= len(candidates):
-            picked = candidates[int(self.choice) - 1]
-            order, seasonal = list(picked["order"]), list(picked["seasonal_order"])
+            picked = candidates[int(self.choice) - 1].order
+            order, seasonal = list(picked.order), list(picked.seasonal_order)
         else:
             raise OrderError(f"choice {self.choice!r} is neither a candidate (1..{len(candidates)}) nor 'custom'")
-        suggested = (analysis or {}).get("suggested")
-        is_suggestion = bool(suggested) and order == list(suggested["order"]) and seasonal == list(suggested["seasonal_order"])
+        is_suggestion = analysis is not None and analysis.suggested.order.same_orders(order, seasonal)
         return ("approved" if is_suggestion else "overridden"), order, seasonal

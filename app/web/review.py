@@ -1,4 +1,4 @@
-"""The review page of one series, as a plain dict for its template.
+"""The review page of one series, as a plain dict for its template (the view model).
 
 The page shows the series, the series the model was identified on, the differencing tests in
 words, the ACF and PACF, the candidates with their statistics, the selected candidate's
@@ -13,19 +13,23 @@ from dataclasses import dataclass, field
 import pandas as pd
 import sqlite_utils
 
+from app.core.analysis import Analysis, Candidate, Correlation, UnitRootTest
 from app.core.errors import SeriesProblem
 from app.core.prepare import prepare_series
 from app.core.seasonality import seasonal_lags
+from app.core.stationarity import TEST_LEVEL
+from app.review.filters import SeriesFilter
 from app.store.analyses import analysis_record, load_analysis
+from app.store.database import UnknownSeries
 from app.store.series import load_series, series_neighbours
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import lag_bar_figure, line_figure
-from app.web.queue import QueueFilter
-from app.web.templating import number, order_label, p_value
+from app.web.templating import number, p_value
 
-ON_WORDS = {"levels": "the series as observed", "diff1": "the first difference", "diff2": "the second difference"}
+# The series a test ran on (app.core.stationarity.LEVEL_NAMES) and its regression, in words.
+ON_WORDS = {"levels": "the series as observed", "first difference": "the first difference",
+            "second difference": "the second difference"}
 REGRESSION_WORDS = {"c": "around a constant", "ct": "around a linear trend"}
-TEST_LEVEL = "5%"
 CUSTOM_FIELDS = ("p", "d", "q", "P", "D", "Q", "s")
 
 
@@ -64,8 +68,8 @@ def line_chart(chart_id: str, x: list, y: list, y_title: str, zero_line: bool = 
     }
 
 
-def lag_chart(chart_id: str, correlation: dict, period: int | None, y_title: str) -> dict:
-    lags = correlation["lags"]
+def lag_chart(chart_id: str, correlation: Correlation, period: int | None, y_title: str) -> dict:
+    lags = correlation.lags
     marked = seasonal_lags(period, len(lags))
     return {
         "id": chart_id,
@@ -73,55 +77,44 @@ def lag_chart(chart_id: str, correlation: dict, period: int | None, y_title: str
         "columns": ["lag", y_title, "band ±", "outside band", "seasonal lag"],
         "rows": [
             (k, number(v, 3), number(b, 3), "yes" if abs(v) > b else "", "yes" if k in marked else "")
-            for k, v, b in zip(lags, correlation["values"], correlation["band"])
+            for k, v, b in zip(lags, correlation.values, correlation.band)
         ],
         "seasonal_lags": marked,
         "n_lags": len(lags),
     }
 
 
-def candidate_view(candidate: dict, rank: int | str, labels: list, period: int | None, delta_aicc: float | None) -> dict:
+def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: int | None) -> dict:
     """One candidate as the table and its detail panel show it (stored or custom-fitted)."""
-    residuals = candidate.get("residuals")
     key = str(rank)
+    residuals = candidate.residuals
     return {
-        **candidate,
+        **vars(candidate),
+        "order": list(candidate.order.order),
+        "seasonal_order": list(candidate.order.seasonal_order),
         "rank": rank,
         "key": key,
-        "label": order_label(candidate["order"], candidate["seasonal_order"]),
-        "delta_aicc": delta_aicc,
-        "residual_acf_chart": lag_chart(f"resid-acf-{key}", candidate["residual_acf"], period, "residual ACF"),
+        "label": candidate.label,
+        "residual_acf_chart": lag_chart(f"resid-acf-{key}", candidate.residual_acf, period, "residual ACF"),
         "residuals_chart": (
-            line_chart(f"resid-{key}", _last(labels, len(residuals)), residuals, "residual", zero_line=True)
+            line_chart(f"resid-{key}", _last(labels, len(residuals)), list(residuals), "residual", zero_line=True)
             if residuals else None
         ),
     }
 
 
-def _deltas(candidates: list[dict]) -> list[float | None]:
-    """AICc minus the smallest AICc among candidates of the same differencing (d, D, s)."""
-    def group(c: dict) -> tuple:
-        return (c["order"][1], *c["seasonal_order"][1:])
-
-    best: dict[tuple, float] = {}
-    for c in candidates:
-        best[group(c)] = min(best.get(group(c), c["aicc"]), c["aicc"])
-    return [c["aicc"] - best[group(c)] for c in candidates]
-
-
-def test_rows(tests: list[dict]) -> list[dict]:
+def test_rows(tests: tuple[UnitRootTest, ...]) -> list[dict]:
     """The unit-root and stationarity tests, each with its outcome in words."""
-    rows = []
-    for t in tests:
-        null = t.get("null", "")
-        verb = "rejects" if t["rejects"] else "does not reject"
-        rows.append({
-            **t,
-            "on_words": ON_WORDS.get(t["on"], t["on"]),
-            "regression_words": REGRESSION_WORDS.get(t["regression"], t["regression"]),
-            "sentence": f"{t['name']} {verb} {null} at {TEST_LEVEL} (p = {p_value(t['p_value'])}).",
-        })
-    return rows
+    return [
+        {
+            **vars(t),
+            "on_words": ON_WORDS.get(t.on, t.on),
+            "regression_words": REGRESSION_WORDS.get(t.regression, t.regression),
+            "sentence": f"{t.name} {'rejects' if t.rejects else 'does not reject'} {t.null} at {TEST_LEVEL:.0%} "
+                        f"(p = {p_value(t.p_value)}).",
+        }
+        for t in tests
+    ]
 
 
 def chosen_key(verdict: dict, candidates: list[dict]) -> str:
@@ -129,28 +122,24 @@ def chosen_key(verdict: dict, candidates: list[dict]) -> str:
     if verdict["order"] is None:
         return "1"
     for c in candidates:
-        if list(c["order"]) == verdict["order"] and list(c["seasonal_order"]) == (verdict["seasonal_order"] or [0, 0, 0, 0]):
+        if c["order"] == verdict["order"] and c["seasonal_order"] == (verdict["seasonal_order"] or [0, 0, 0, 0]):
             return c["key"]
     return "custom"
 
 
-def custom_defaults(verdict: dict, analysis: dict | None) -> dict:
+def custom_defaults(verdict: dict, analysis: Analysis | None) -> dict:
     """The custom-order fields before anything is typed: the verdict's order, else the suggestion's."""
-    source = verdict if verdict["order"] is not None else (analysis or {}).get("suggested")
-    if not source:
+    if verdict["order"] is not None:
+        values = [*verdict["order"], *(verdict["seasonal_order"] or [0, 0, 0, 0])]
+    elif analysis is not None:
+        values = [*analysis.suggested.order.order, *analysis.suggested.order.seasonal_order]
+    else:
         return dict.fromkeys(CUSTOM_FIELDS, "")
-    seasonal = source.get("seasonal_order") or [0, 0, 0, 0]
-    return dict(zip(CUSTOM_FIELDS, [*source["order"], *seasonal]))
-
-
-def marked_period(analysis: dict) -> int | None:
-    """The seasonal period whose lags the charts mark: the model's, else the one the engine
-    examined (a series can have a season the model did not need terms for)."""
-    return analysis.get("period") or (analysis.get("seasonal") or {}).get("examined_period")
+    return dict(zip(CUSTOM_FIELDS, values))
 
 
 def review_page(
-    db: sqlite_utils.Database, series_id: str, flt: QueueFilter, selected: str | None = None, form: FormState | None = None
+    db: sqlite_utils.Database, series_id: str, flt: SeriesFilter, selected: str | None = None, form: FormState | None = None
 ) -> dict:
     """Everything the review page shows for ``series_id``.
 
@@ -161,6 +150,8 @@ def review_page(
     form = form or FormState()
     verdict = get_verdict(db, series_id)
     raw = load_series(db, series_id)
+    if raw is None:
+        raise UnknownSeries(series_id)
     analysis = load_analysis(db, series_id)
     record = analysis_record(db, series_id)
     previous_id, next_id = series_neighbours(db, series_id, **flt.store_kwargs())
@@ -187,23 +178,20 @@ def review_page(
     if analysis is None:
         page.update(candidates=[], selected=None, choice="custom", custom=form.custom or custom_defaults(verdict, None))
         return page
-    period = marked_period(analysis)
-    identified = analysis["identified_on"]["values"]
-    candidates = [
-        candidate_view(c, i + 1, labels, period, delta)
-        for i, (c, delta) in enumerate(zip(analysis["candidates"], _deltas(analysis["candidates"])))
-    ]
+    period = analysis.marked_period
+    identified = list(analysis.identified_on)
+    candidates = [candidate_view(c, i + 1, labels, period) for i, c in enumerate(analysis.candidates)]
     choice = form.choice or chosen_key(verdict, candidates)
     keys = [c["key"] for c in candidates]
     page.update(
         # Nothing to show beyond the series chart when the model was identified on the series itself.
         identified_chart=(
             line_chart("identified", _last(labels, len(identified)), identified, "value")
-            if analysis["d"] or analysis.get("D") or analysis.get("transform", "none") != "none" else None
+            if analysis.is_transformed_or_differenced else None
         ),
-        acf_chart=lag_chart("acf", analysis["acf"], period, "ACF"),
-        pacf_chart=lag_chart("pacf", analysis["pacf"], period, "PACF"),
-        tests=test_rows(analysis["differencing"]["tests"]),
+        acf_chart=lag_chart("acf", analysis.acf, period, "ACF"),
+        pacf_chart=lag_chart("pacf", analysis.pacf, period, "PACF"),
+        tests=test_rows(analysis.differencing.tests),
         candidates=candidates,
         choice=choice,
         selected=selected if selected in keys else (choice if choice in keys else "1"),
@@ -212,9 +200,9 @@ def review_page(
     return page
 
 
-def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: dict) -> dict:
+def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: Candidate) -> dict:
     """A custom-fitted order as a candidate view, on the same time axis as the stored ones."""
     raw = load_series(db, series_id)
     labels = time_labels(prepare_series(raw, series_id).index)
     analysis = load_analysis(db, series_id)
-    return candidate_view(fit, "custom", labels, marked_period(analysis) if analysis else None, fit.get("delta_aicc"))
+    return candidate_view(fit, "custom", labels, analysis.marked_period if analysis else None)

@@ -56,6 +56,8 @@ class ExposedWithoutToken(LagdeskError):
 class CsrfRejected(LagdeskError):
     """A form post without the CSRF token of this browser."""
 
+    http_status = 403
+
 
 def is_loopback(host: str) -> bool:
     """True for ``localhost`` and addresses of the loopback range (127.0.0.0/8, ::1)."""
@@ -111,7 +113,8 @@ async def check_csrf(request: Request) -> None:
     if given is None and request.headers.get("content-type", "").startswith(
         ("application/x-www-form-urlencoded", "multipart/form-data")
     ):
-        given = (await request.form()).get(CSRF_FIELD)
+        field = (await request.form()).get(CSRF_FIELD)
+        given = field if isinstance(field, str) else None
     cookie = request.cookies.get(CSRF_COOKIE)
     if not cookie or not isinstance(given, str) or not tokens_match(given, cookie):
         raise CsrfRejected("the form is missing its security token (or it has expired); reload the page and try again")

@@ -13,7 +13,7 @@ BUCKETS = 40
 PAD = 1.5
 
 
-def envelope(values: Sequence[float], buckets: int = BUCKETS) -> np.ndarray:
+def envelope(values: Sequence[float] | np.ndarray, buckets: int = BUCKETS) -> np.ndarray:
     """Indices of the points to draw: in each of ``buckets`` equal stretches of time, the lowest
     and the highest value (in time order), so spikes survive the thinning. NaNs are skipped."""
     y = np.asarray(values, dtype=float)

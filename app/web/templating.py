@@ -6,12 +6,14 @@ import math
 from pathlib import Path
 from urllib.parse import quote
 
-from fastapi.templating import Jinja2Templates
 from fastapi import Request
+from fastapi.templating import Jinja2Templates
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, pass_context
 from markupsafe import Markup
 
 import app
+from app.core.order import order_label
+from app.core.vocabulary import Flag
 from app.web.deps import get_reviewer
 from app.web.security import CSRF_FIELD, csrf_token
 
@@ -20,17 +22,19 @@ PROJECT_DIR = Path(app.__file__).resolve().parent.parent
 TEMPLATES_DIR = PROJECT_DIR / "templates"
 STATIC_DIR = PROJECT_DIR / "static"
 
-FLAG_WORDS = {
-    "too_short": "short series: fewer points than Box-Jenkins identification asks for",
-    "gaps": "missing points were filled by interpolation",
-    "long_gap": "a long gap was filled: the correlograms lean on invented values",
-    "no_convergence": "the optimiser did not converge",
-    "residual_autocorrelation": "the residuals are still autocorrelated (Ljung-Box)",
-    "near_unit_root": "a root lies near the unit circle",
-    "redundant_roots": "AR and MA roots nearly cancel: the order may be too large",
-    "uncertain_differencing": "the differencing tests disagree",
-    "trend_stationary": "stationary around a trend rather than a unit root",
-    "too_few_seasons": "too few full seasons for seasonal terms",
+# Every flag the engine writes (app.core.vocabulary.Flag), in words.
+FLAG_WORDS: dict[str, str] = {
+    Flag.TOO_SHORT: "short series: fewer points than Box-Jenkins identification asks for",
+    Flag.GAPS: "missing points were filled by interpolation",
+    Flag.LONG_GAP: "a long gap was filled: the correlograms lean on invented values",
+    Flag.NO_CONVERGENCE: "the optimiser did not converge",
+    Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
+    Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
+    Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
+    Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
+    Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
+    Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
+    Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
 }
 
 
@@ -38,16 +42,6 @@ FREQ_WORDS = {"D": "daily", "B": "business days", "h": "hourly", "H": "hourly", 
               "W": "weekly", "M": "monthly", "MS": "monthly", "ME": "monthly", "Q": "quarterly", "QS": "quarterly",
               "QE": "quarterly", "A": "yearly", "AS": "yearly", "Y": "yearly", "YS": "yearly", "YE": "yearly",
               "step": "steps"}
-
-
-def order_label(order: list | None, seasonal_order: list | None = None) -> str:
-    """``ARIMA(p,d,q)`` plus ``(P,D,Q)s`` when the model has seasonal terms; an em dash for no order."""
-    if not order:
-        return "—"
-    text = "ARIMA({},{},{})".format(*order)
-    if seasonal_order and any(seasonal_order[:3]):
-        text += "({},{},{}){}".format(*seasonal_order)
-    return text
 
 
 def freq_words(freq: str | None) -> str:
@@ -114,7 +108,7 @@ def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
     env.filters.update(number=number, p_value=p_value, flag_words=flag_words, quote_path=quote_path,
                        freq_words=freq_words, when=when, significant=significant)
-    env.globals.update(order_label=order_label, known_flags=sorted(FLAG_WORDS), url_for=url_for,
+    env.globals.update(order_label=order_label, known_flags=sorted(str(f) for f in FLAG_WORDS), url_for=url_for,
                        csrf_field=csrf_field)
     return env
 

@@ -21,6 +21,8 @@ COPY_CHUNK = 1024 * 1024
 class UploadTooLarge(LagdeskError):
     """A file bigger than the server's upload limit."""
 
+    http_status = 413
+
 
 class UploadOptions(BaseModel):
     """How to read the uploaded CSV (the column names matter for the long layout, and the time

@@ -15,10 +15,10 @@ from pathlib import Path
 
 import httpx
 import pytest
+from corpus_files import csv_bytes, good_values, series_rows
 
 from app.store.database import open_database
 from app.store.imports import import_portfolio
-from corpus_files import csv_bytes, good_values, series_rows
 
 REPO = Path(__file__).resolve().parents[2]
 SEED_ID = "seed/already-stored"

@@ -16,10 +16,10 @@ from urllib.parse import quote
 
 import httpx
 import numpy as np
+from corpus_files import csv_bytes, good_values, month_starts, series_rows
 
 from app.store.database import open_database
 from app.store.imports import import_portfolio
-from corpus_files import csv_bytes, good_values, month_starts, series_rows
 
 REQUEST_TIMEOUT_S = 30.0
 STALE_EVERY = 5  # every fifth post names a version known to be outdated

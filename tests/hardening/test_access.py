@@ -16,6 +16,8 @@ from urllib.parse import quote
 
 import httpx
 import pytest
+from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
+from corpus_files import CORPUS_DIR, csv_bytes, good_values, series_rows
 from fastapi.testclient import TestClient
 
 from app.config import Settings
@@ -24,8 +26,6 @@ from app.store.imports import import_portfolio
 from app.web import security
 from app.web.main import create_app
 from app.web.security import CSRF_COOKIE, CSRF_FIELD, TOKEN_COOKIE, TOKEN_HEADER, require_token_off_loopback
-from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
-from corpus_files import CORPUS_DIR, csv_bytes, good_values, series_rows
 
 TOKEN = "correct-horse-battery-staple-42"
 SCRIPT = "<script>alert('note')</script>"

@@ -18,13 +18,13 @@ import json
 import re
 
 import pytest
+from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
+from corpus_files import CASES, CORPUS_DIR, write_corpus
 from fastapi.testclient import TestClient
 
 from app.config import Settings
 from app.web.main import create_app
 from app.web.security import CSRF_COOKIE, CSRF_FIELD
-from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
-from corpus_files import CASES, CORPUS_DIR, write_corpus
 
 FILE_ERRORS = [name for name, case in CASES.items() if case.file_error]
 IMPORTS = [name for name, case in CASES.items() if not case.file_error]

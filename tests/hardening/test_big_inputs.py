@@ -14,10 +14,10 @@ import json
 
 import httpx
 import pytest
+from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
+from corpus_files import good_values
 
 from app.core.prepare import MAX_POINTS
-from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
-from corpus_files import csv_bytes, good_values, series_rows
 
 MILLION = 10**6
 BIG_SERIES = 4_000

@@ -12,7 +12,6 @@ from urllib.parse import quote
 
 import httpx
 import pytest
-
 from conftest import SEED_ID
 from reviewers import stored_history
 

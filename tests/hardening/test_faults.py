@@ -23,7 +23,6 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
-
 from conftest import REPO, run_lagdesk, table_rows
 from reviewers import build_portfolio, run_reviewers, stored_history
 
@@ -64,11 +63,14 @@ def test_kill_9_of_the_server_loses_no_acknowledged_verdict(tmp_path, live_serve
         stop = threading.Event()
         result: dict = {}
         worker = threading.Thread(
-            target=lambda: result.update(logs=run_reviewers(server.url, CLIENTS, series_ids, POSTS_PER_CLIENT, stop)[0]),
+            # This kill's server, stop and result bound now: a worker outliving its join must not see the next ones.
+            target=lambda url=server.url, stop=stop, result=result: result.update(
+                logs=run_reviewers(url, CLIENTS, series_ids, POSTS_PER_CLIENT, stop)[0]),
             daemon=True,
         )
         worker.start()
-        _wait_for(lambda: len(stored_history(db_path)) >= sum(acknowledged.values()) + ACKS_BEFORE_KILL, "verdicts")
+        wanted = sum(acknowledged.values()) + ACKS_BEFORE_KILL
+        _wait_for(lambda wanted=wanted: len(stored_history(db_path)) >= wanted, "verdicts")
         server.kill()
         stop.set()
         worker.join(timeout=WAIT_LIMIT_S)
@@ -125,7 +127,8 @@ def test_analysis_killed_five_times_ends_complete_and_consistent(tmp_path):
             cwd=REPO, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True,
         )
         try:
-            _wait_for(lambda: _analysed(db_path) >= min(before + extra, ANALYSIS_SERIES) or run.poll() is not None, "progress")
+            target = min(before + extra, ANALYSIS_SERIES)
+            _wait_for(lambda run=run, target=target: _analysed(db_path) >= target or run.poll() is not None, "progress")
             time.sleep(rng.uniform(0, 0.5))  # somewhere inside the next series
         finally:
             if run.poll() is None:

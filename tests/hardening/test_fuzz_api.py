@@ -15,13 +15,13 @@ import pytest
 import schemathesis
 from hypothesis import HealthCheck, find, given, settings
 from hypothesis.errors import NoSuchExample, Unsatisfiable
+from reviewers import build_portfolio
 from schemathesis import GenerationMode
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import content_type_conformance, response_schema_conformance
 
 from app.config import Settings
 from app.web.main import create_app
-from reviewers import build_portfolio
 
 EXAMPLES_PER_OPERATION = 30
 STARTS_A_RUN = r"^(/api)?/runs$"

@@ -11,7 +11,6 @@ from __future__ import annotations
 from collections import Counter
 
 import pytest
-
 from conftest import table_rows
 from reviewers import build_portfolio, percentiles_ms, run_reviewers, stored_history
 

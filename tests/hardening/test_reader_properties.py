@@ -12,6 +12,7 @@ import tempfile
 from pathlib import Path
 
 import pytest
+from conftest import table_rows
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -20,7 +21,6 @@ from app.core.portfolio_file import read_portfolio
 from app.core.prepare import prepare_series
 from app.store.database import open_database
 from app.store.imports import import_portfolio
-from conftest import table_rows
 
 EXAMPLES = 150
 HEADER = ["series_id", "timestamp", "value"]

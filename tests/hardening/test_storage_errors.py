@@ -16,12 +16,12 @@ from pathlib import Path
 from urllib.parse import quote
 
 import pytest
+from conftest import SEED_ID, assert_no_traceback, run_lagdesk, table_rows
+from corpus_files import CORPUS_DIR, csv_bytes, good_values, series_rows
 from fastapi.testclient import TestClient
 
 from app.config import Settings
 from app.web.main import create_app
-from conftest import SEED_ID, assert_no_traceback, run_lagdesk, table_rows
-from corpus_files import CORPUS_DIR, csv_bytes, good_values, series_rows
 
 TMPFS_SIZE = "512k"
 EXIT_STORAGE_ERROR = 3

@@ -15,8 +15,10 @@ import time
 from pathlib import Path
 
 import pytest
+from simulated_portfolio import SHORT_SERIES_ID, write_portfolio_csv
 from threadpoolctl import threadpool_limits
 
+from app.core.analysis import Analysis
 from app.core.identify import EngineOptions
 from app.core.portfolio_file import read_portfolio
 from app.jobs.analyze import AnalysisInProgress, begin_analysis, run_analysis, start_background_analysis
@@ -27,7 +29,6 @@ from app.store.imports import import_portfolio
 from app.store.runs import get_run, list_runs, start_run
 from app.store.series import series_ids_to_analyse
 from app.store.status import portfolio_status
-from simulated_portfolio import SHORT_SERIES_ID, write_portfolio_csv
 
 REPO = Path(__file__).resolve().parents[2]
 SMALL_PORTFOLIO = 6
@@ -41,7 +42,7 @@ def portfolio_csv(tmp_path_factory) -> Path:
 
 
 @pytest.fixture(scope="module")
-def engine_results(portfolio_csv) -> dict[str, dict]:
+def engine_results(portfolio_csv) -> dict[str, Analysis]:
     """What the engine returns for each good series of the file, computed without the store."""
     portfolio = read_portfolio(portfolio_csv)
     with threadpool_limits(limits=1):

@@ -19,7 +19,9 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
 import app.jobs.recheck as recheck_module
-from app.core.fitting import fit_candidate, validate_order
+from app.core.analysis import Analysis
+from app.core.fitting import fit_candidate
+from app.core.order import validate_order
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice
 from app.jobs.recheck import AICC_MARGIN, check_order, log_jacobian, recheck_after_analysis
@@ -41,7 +43,7 @@ def write_series(path, values: np.ndarray):
     return path
 
 
-def analyse(db) -> dict:
+def analyse(db) -> Analysis:
     """The real engine on the stored data, stored as an analysis run would store it."""
     fingerprint = series_fingerprint(db, SID)
     with threadpool_limits(limits=1):
@@ -61,7 +63,7 @@ def approved(tmp_path, noise):
     db = open_database(tmp_path / "lagdesk.db")
     import_portfolio(db, write_series(tmp_path / "v1.csv", noise))
     result = analyse(db)
-    assert result["suggested"]["order"] == [0, 0, 0]  # the engine reads white noise as white noise
+    assert result.suggested.order.order == (0, 0, 0)  # the engine reads white noise as white noise
     set_verdict(db, SID, status="approved", order=[0, 0, 0], seasonal_order=[0, 0, 0, 0], reviewer="ann",
                 note="plain noise", version=0)
     assert recheck_after_analysis(db, SID, result) is None  # decided on this very data
@@ -93,7 +95,7 @@ def test_changed_data_that_break_the_order_send_it_to_recheck_with_a_reason(appr
     resid = SARIMAX(longer, order=(0, 0, 0), trend="c").fit(disp=False).resid
     lb_p = float(acorr_ljungbox(resid, lags=[10], model_df=0, return_df=True)["lb_pvalue"].iloc[0])
     assert lb_p < 0.05 and "fail the Ljung-Box test" in reason
-    assert ("the analysis now differences" in reason) == ((result["d"], result["D"]) != (0, 0))
+    assert ("the analysis now differences" in reason) == ((result.d, result.D) != (0, 0))
     # The queue shows why.
     _, items = list_series(approved, status="recheck")
     assert [(i["series_id"], i["recheck_reason"]) for i in items] == [(SID, reason)]
@@ -166,7 +168,7 @@ def test_log_jacobian_turns_a_log_scale_likelihood_into_that_of_the_data():
     # log-likelihood at the same parameters (scipy's density as the reference).
     x = np.exp(1.5 + 0.4 * np.random.default_rng(2).normal(size=200))
     fit = fit_candidate(np.log(x), validate_order((0, 0, 0)))
-    params = {p["name"]: p["value"] for p in fit.params}
+    params = {p.name: p.value for p in fit.params}
     reference = lognorm.logpdf(x, s=np.sqrt(params["sigma2"]), scale=np.exp(params["const"])).sum()
     assert fit.loglik + log_jacobian(x, TransformChoice("log")) == pytest.approx(reference, rel=1e-9)
     assert log_jacobian(x, TransformChoice("none")) == 0.0
@@ -184,14 +186,14 @@ def test_an_order_on_the_wrong_scale_is_sent_back_by_the_aicc_margin():
     series = pd.Series(y, index=pd.date_range("2010-01-01", periods=y.size, freq="MS"))
     with threadpool_limits(limits=1):
         result = identify_task(SeriesTask("z", series)).result
-    assert (result["transform"], result["d"]) == ("log", 0)
-    verdict = {"transform": "none", "order": result["suggested"]["order"], "seasonal_order": [0, 0, 0, 0]}
+    assert (result.transform.to_json(), result.d) == ("log", 0)
+    verdict = {"transform": "none", "order": list(result.suggested.order.order), "seasonal_order": [0, 0, 0, 0]}
     check = check_order(prepare_series(series, "z"), verdict, result)
     # Independently: statsmodels' AICc of the order on the original scale, against the best
     # log-scale candidate's AICc put on the original scale with the log's Jacobian, -2 * sum(-log y).
     p, d, q = verdict["order"]
     direct = SARIMAX(y, order=(p, d, q), trend="c", concentrate_scale=True).fit(disp=False).aicc
-    best = min(c["aicc"] for c in result["candidates"] if c["order"][1] == 0) + 2 * np.log(y).sum()
+    best = min(c.aicc for c in result.candidates if c.order.d == 0) + 2 * np.log(y).sum()
     assert direct - best > AICC_MARGIN
     [reason] = check.reasons
     found = float(re.search(r"AICc of ARIMA\(\d,0,\d\) is ([\d.]+) above", reason).group(1))

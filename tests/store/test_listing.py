@@ -5,6 +5,8 @@ from __future__ import annotations
 import pytest
 
 from app.core.errors import LagdeskError
+from app.core.order import Order
+from app.core.vocabulary import Confidence
 from app.store.analyses import save_analysis, save_failure
 from app.store.imports import import_portfolio
 from app.store.series import SORT_KEYS, count_by, list_series, load_series, series_fingerprint, series_neighbours
@@ -39,9 +41,8 @@ def listed_db(fresh_db, write_csv, monthly, relabel):
         if confidence == "failed":
             save_failure(fresh_db, sid, fingerprint, "every candidate failed", None)
         elif confidence is not None:
-            suggested = {"order": order, "seasonal_order": [0, 0, 0, 0]}
-            save_analysis(fresh_db, sid, fingerprint, relabel(sid, confidence=confidence, flags=flags,
-                                                              suggested=suggested, d=order[1]), None)
+            save_analysis(fresh_db, sid, fingerprint, relabel(sid, confidence=Confidence(confidence), flags=tuple(flags),
+                                                              suggested=Order.of(order)), None)
         decided = "approved" if status == "recheck" else status
         if decided != "pending":
             set_verdict(fresh_db, sid, status=decided, order=None if decided == "parked" else order,

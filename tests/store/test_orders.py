@@ -10,13 +10,12 @@ from __future__ import annotations
 import pytest
 
 from app.core.errors import LagdeskError
-from app.core.fitting import validate_order
+from app.core.order import validate_order
 from app.core.transform import TransformChoice
 from app.store.analyses import save_analysis
 from app.store.imports import import_portfolio
 from app.store.orders import (
     ORDER_FIELDS,
-    chosen_model,
     decided_orders,
     export_snapshot,
     left_out_counts,
@@ -49,13 +48,13 @@ def test_one_record_per_decided_series_with_every_field_from_the_store(decided_d
     assert list(orders) == ["a", "b", "f"]
     a = orders["a"].record
     assert tuple(a) == ORDER_FIELDS
-    candidate = next(c for c in engine_result["candidates"] if c["order"] == [2, 0, 0])
+    candidate = engine_result.candidate_of([2, 0, 0], None)
     assert a == {
         "series_id": "a", "p": 2, "d": 0, "q": 0, "seasonal_p": 0, "seasonal_d": 0, "seasonal_q": 0, "period": None,
-        "transform": "none", "include_constant": candidate["trend"] != "n", "decision": "approved", "reviewer": "ann",
+        "transform": "none", "include_constant": candidate.order.trend != "n", "decision": "approved", "reviewer": "ann",
         "decided_at": a["decided_at"], "note": "as suggested", "data_sha256": decision_fingerprint(decided_db, "a"),
-        "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result["engine_version"],
-        "parameters": {p["name"]: p["value"] for p in candidate["params"]},
+        "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result.engine_version,
+        "parameters": candidate.parameter_values(),
     }
     assert a["decided_at"] is not None and a["data_sha256"] == series_fingerprint(decided_db, "a")
     # A custom order (and another transform than the analysis') has no fitted parameters yet.
@@ -105,14 +104,3 @@ def test_only_decided_statuses_can_be_exported(decided_db, statuses, message):
         decided_orders(decided_db, statuses)
 
 
-def test_chosen_model_takes_the_engine_term_of_the_order_or_of_its_differencing():
-    candidates = [
-        {"order": [1, 1, 0], "seasonal_order": [0, 0, 0, 0], "trend": "t", "params": []},
-        {"order": [2, 0, 0], "seasonal_order": [0, 0, 0, 0], "trend": "ct", "params": []},
-    ]
-    model, match = chosen_model(candidates, [1, 1, 0], [0, 0, 0, 0])
-    assert (model.trend, match) == ("t", candidates[0])
-    assert chosen_model(candidates, [0, 1, 2], [0, 0, 0, 0]) == (validate_order((0, 1, 2), trend="t"), None)
-    assert chosen_model(candidates, [1, 0, 1], [0, 0, 0, 0])[0].trend == "ct"
-    # No candidate with this differencing: the default term (none once differenced).
-    assert chosen_model(candidates, [0, 1, 1], [0, 1, 1, 12])[0].trend == "n"

@@ -12,11 +12,11 @@ reads, so the pages do the same work as on a fully analysed portfolio.
 from __future__ import annotations
 
 import argparse
-import copy
 import statistics
 import sys
 import tempfile
 import time
+from dataclasses import replace
 from pathlib import Path
 from urllib.parse import quote
 
@@ -27,6 +27,7 @@ from threadpoolctl import threadpool_limits
 
 from app.config import Settings
 from app.core.identify import identify_series
+from app.core.vocabulary import Confidence
 from app.store.analyses import save_analysis
 from app.store.database import open_database, write_transaction
 from app.store.imports import import_portfolio
@@ -55,13 +56,12 @@ def write_portfolio(path: Path, n_series: int, n_points: int, seed: int = 0) -> 
 
 def analyse(db, ids: list[str]) -> None:
     with threadpool_limits(1):
-        templates = [identify_series(load_series(db, sid), sid).to_dict() for sid in ids[:3]]
-    levels = ["firm", "tentative", "weak"]
+        templates = [identify_series(load_series(db, sid), sid).to_analysis() for sid in ids[:3]]
+    levels = list(Confidence)
     with write_transaction(db):
         for i, sid in enumerate(ids):
-            result = copy.deepcopy(templates[i % 3])
-            result["series_id"] = sid
-            result["confidence"] = levels[i % 3]  # a spread of confidences for the filters
+            # a spread of confidences for the filters
+            result = replace(templates[i % 3], series_id=sid, confidence=levels[i % 3])
             save_analysis(db, sid, series_fingerprint(db, sid), result, None)
 
 

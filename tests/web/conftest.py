@@ -8,10 +8,11 @@ import pytest
 from fastapi.testclient import TestClient
 
 from app.config import Settings
+from app.core.analysis import Analysis
 from app.store.database import open_database
 from app.web.main import create_app
 from app.web.security import CSRF_COOKIE, CSRF_HEADER
-from web_portfolio import build_database, synthetic_series, write_long_csv
+from web_portfolio import add_stored_seasonal_analysis, build_database, synthetic_series, write_long_csv
 
 
 @pytest.fixture(scope="session")
@@ -21,12 +22,13 @@ def analysed(tmp_path_factory):
     csv_path = write_long_csv(folder / "portfolio.csv", synthetic_series())
     db_path = folder / "portfolio.db"
     results = build_database(db_path, csv_path)
-    return db_path, results
+    series_id, stored = add_stored_seasonal_analysis(db_path, folder)
+    return db_path, {**results, series_id: stored}
 
 
 @pytest.fixture
-def results(analysed) -> dict[str, dict]:
-    """The engine's result for each analysed series, as the fixture computed it."""
+def results(analysed) -> dict[str, Analysis]:
+    """The engine's analysis of each analysed series, as the fixture computed it."""
     return analysed[1]
 
 

@@ -9,6 +9,7 @@ import plotly.graph_objects as go
 import pytest
 from statsmodels.tsa.stattools import acf
 
+from app.core.analysis import Correlation
 from app.core.correlogram import correlogram
 from app.web.charts import BAND_FILL, BLUE, VERMILLION, lag_bar_figure, line_figure
 
@@ -24,23 +25,24 @@ def ar1_series() -> np.ndarray:
 
 
 @pytest.fixture
-def ar1_correlogram(ar1_series) -> dict:
-    return correlogram(ar1_series, 24).to_dict()["acf"]
+def ar1_correlogram(ar1_series) -> Correlation:
+    """The ACF panel as an analysis stores it."""
+    return Correlation.from_dict(correlogram(ar1_series, 24).to_dict()["acf"])
 
 
 def test_lag_bars_one_per_lag_with_values(ar1_correlogram):
     fig = lag_bar_figure(ar1_correlogram)
     bars = [t for t in fig["data"] if t["type"] == "bar"]
     assert len(bars) == 1
-    assert bars[0]["x"] == ar1_correlogram["lags"]
-    assert bars[0]["y"] == pytest.approx(ar1_correlogram["values"])
+    assert bars[0]["x"] == list(ar1_correlogram.lags)
+    assert bars[0]["y"] == pytest.approx(ar1_correlogram.values)
 
 
 def test_band_is_a_shaded_step_at_plus_minus_the_half_width(ar1_correlogram):
     fig = lag_bar_figure(ar1_correlogram)
     (band,) = [t for t in fig["data"] if t.get("fill") == "toself"]
     assert band["fillcolor"] == BAND_FILL
-    lags, half = ar1_correlogram["lags"], ar1_correlogram["band"]
+    lags, half = ar1_correlogram.lags, ar1_correlogram.band
     m = 2 * len(lags)
     upper_x, upper_y, lower_y = band["x"][:m], band["y"][:m], band["y"][m:][::-1]
     for i, (k, b) in enumerate(zip(lags, half)):
@@ -74,7 +76,7 @@ def test_seasonal_lags_are_marked_by_colour_pattern_and_guide(ar1_correlogram):
 def test_y_range_shows_the_tallest_bar_and_the_band(ar1_correlogram):
     fig = lag_bar_figure(ar1_correlogram)
     low, high = fig["layout"]["yaxis"]["range"]
-    reach = max(max(abs(v) for v in ar1_correlogram["values"]), max(ar1_correlogram["band"]))
+    reach = max(max(abs(v) for v in ar1_correlogram.values), max(ar1_correlogram.band))
     assert high >= reach and low == -high and high <= 1
 
 

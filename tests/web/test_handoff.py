@@ -2,9 +2,9 @@
 and the forecast check (JSON at /api/series/{id}/backtest, in place on the review page).
 
 The document is checked against the JSON Schema shipped in schemas/ and against what
-``lagdesk export`` builds from the same database (app.jobs.export, itself checked against the
+``lagdesk export`` builds from the same database (app.review.export, itself checked against the
 store and statsmodels in tests/jobs/test_export.py); the forecast check against
-app.jobs.order_fits.backtest_series, whose MASE and coverage are checked against Hyndman &
+app.review.forecast_check.backtest_series, whose MASE and coverage are checked against Hyndman &
 Koehler (2006) in tests/core/test_backtest.py.
 """
 
@@ -20,8 +20,8 @@ import jsonschema
 import pytest
 
 import app
-from app.jobs.export import build_orders_document
-from app.jobs.order_fits import backtest_series
+from app.review.export import build_orders_document
+from app.review.forecast_check import backtest_series
 from app.store.orders import ORDER_FIELDS
 
 SCHEMA = json.loads((Path(app.__file__).resolve().parent.parent / "schemas" / "lagdesk-orders.schema.json").read_text())
@@ -74,9 +74,9 @@ def test_queue_offers_the_download_once_something_is_decided(client, fmt):
 
 def test_backtest_defaults_to_the_suggested_order(client, db, results):
     body = client.get(f"/api/series/{SERIES}/backtest").json()
-    suggested = results[SERIES]["suggested"]
-    assert (body["order"], body["seasonal_order"]) == (suggested["order"], suggested["seasonal_order"])
-    direct = backtest_series(db, SERIES, suggested["order"], suggested["seasonal_order"])
+    suggested = results[SERIES].suggested.order
+    assert (body["order"], body["seasonal_order"]) == (list(suggested.order), list(suggested.seasonal_order))
+    direct = backtest_series(db, SERIES, list(suggested.order), list(suggested.seasonal_order))
     assert (body["mase"], body["naive_mase"], body["coverage"]) == (direct["mase"], direct["naive_mase"], direct["coverage"])
     assert set(body["plot"]) == {"history", "holdout", "ahead"}
 
@@ -92,8 +92,8 @@ def test_backtest_of_a_chosen_order_and_its_errors(client):
 
 def test_review_page_links_each_candidate_to_its_forecast_check(client, results):
     page = client.get(f"/series/{SERIES}").text
-    suggested = results[SERIES]["suggested"]
-    query = f"order={','.join(map(str, suggested['order']))}&amp;seasonal={','.join(map(str, suggested['seasonal_order']))}"
+    suggested = results[SERIES].suggested.order
+    query = f"order={','.join(map(str, suggested.order))}&amp;seasonal={','.join(map(str, suggested.seasonal_order))}"
     assert f'href="/series/{SERIES}/forecast-check?{query}" data-forecast-check' in page
 
 

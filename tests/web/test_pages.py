@@ -10,14 +10,19 @@ from urllib.parse import quote
 import numpy as np
 import pytest
 
+from app.core.vocabulary import Confidence, Flag
 from app.store.runs import start_run
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
-from web_portfolio import AWKWARD_ID, ODD_ID, write_long_csv
+from app.web.templating import FLAG_WORDS, number
+from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
 SERIES = "plant-a/line-1/ar1"
 FIGURE = re.compile(r"""id="chart-([\w-]+)" data-figure='([^']*)'""")
+CANDIDATE_ROW = re.compile(r'<tr data-candidate="(\w+)"[^>]*>(.*?)</tr>', re.S)
+PLAIN_NUMBER_CELL = re.compile(r'<td class="num">([^<]*)</td>')
+DETAIL_DELTA = re.compile(r'data-candidate-detail="(\w+)".*?<dt>ΔAICc</dt><dd>([^<]*)</dd>', re.S)
 
 
 def page(series_id: str, suffix: str = "") -> str:
@@ -48,7 +53,7 @@ def test_queue_lists_a_page_of_series_with_counts(client, results):
 def test_queue_second_page_and_filter(client, results):
     second = client.get("/", params={"offset": 4}).text
     assert f"5–{len(results)} of {len(results)}" in second
-    weak = sorted(sid for sid, r in results.items() if r["confidence"] == "weak")
+    weak = sorted(sid for sid, r in results.items() if r.confidence == Confidence.WEAK)
     text = client.get("/", params={"confidence": "weak"}).text
     rows = re.findall(r'data-series-id="([^"]+)"', text)
     assert sorted(html.unescape(r) for r in rows) == weak
@@ -63,8 +68,23 @@ def test_queue_bad_filter_is_a_422_page(client):
 def test_queue_sorts_by_length(client, results):
     text = client.get("/", params={"sort": "n", "descending": "1"}).text
     rows = [html.unescape(r) for r in re.findall(r'data-series-id="([^"]+)"', text)]
-    lengths = [results[r]["n"] for r in rows]
+    lengths = [results[r].n for r in rows]
     assert lengths == sorted(lengths, reverse=True)
+
+
+def test_queue_keeps_an_id_prefix_when_filtering_again(client):
+    text = client.get("/", params={"prefix": "plant-a/"}).text
+    rows = sorted(html.unescape(r) for r in re.findall(r'data-series-id="([^"]+)"', text))
+    assert rows == ["plant-a/line-1/ar1", "plant-a/line-2/ma1"]
+    assert re.search(r'<input name="prefix" value="plant-a/"', text)  # the filter form sends it again
+    assert "prefix=plant-a%2F" in text  # and the sort and count links keep it
+
+
+def test_every_flag_the_engine_writes_has_words_and_is_offered_in_the_filter(client):
+    assert set(FLAG_WORDS) == set(Flag)
+    text = client.get("/").text
+    for flag in Flag:
+        assert f'<option value="{flag}">' in text
 
 
 def test_queue_escapes_series_ids(client):
@@ -75,7 +95,7 @@ def test_queue_escapes_series_ids(client):
 
 
 def test_queue_offers_bulk_approval_of_firm_series(client, results):
-    firm = sum(r["confidence"] == "firm" for r in results.values())
+    firm = sum(r.confidence == Confidence.FIRM for r in results.values())
     text = client.get("/").text
     assert f"Approve {firm} firm suggestion" in text
     assert "btn-primary bulk" not in client.get("/", params={"status": "approved"}).text
@@ -88,23 +108,23 @@ def test_review_page_shows_charts_with_stored_lag_counts(client, results):
     assert response.status_code == 200
     found = figures(response.text)
     stored = results[SERIES]
-    for name in ("acf", "pacf"):
+    for name, correlation in (("acf", stored.acf), ("pacf", stored.pacf)):
         bars = [t for t in found[name]["data"] if t["type"] == "bar"]
-        assert len(bars) == 1 and len(bars[0]["x"]) == len(stored[name]["lags"])
+        assert len(bars) == 1 and len(bars[0]["x"]) == len(correlation.lags)
         band = [t for t in found[name]["data"] if t.get("fill") == "toself"]
         assert len(band) == 1
-        assert max(band[0]["y"]) == pytest.approx(max(stored[name]["band"]))
-    assert len(found["series"]["data"][0]["y"]) == stored["n"]
-    assert stored["d"] == 0 and stored["transform"] == "none"
+        assert max(band[0]["y"]) == pytest.approx(max(correlation.band))
+    assert len(found["series"]["data"][0]["y"]) == stored.n
+    assert stored.d == 0 and stored.transform.kind == "none"
     assert "identified" not in found  # identified on the series itself: no second chart
 
 
 def test_review_page_draws_the_transformed_or_differenced_series(client, results):
-    changed = [sid for sid, r in results.items() if r["d"] or r["D"] or r["transform"] != "none"]
+    changed = [sid for sid, r in results.items() if r.d or r.D or r.transform.kind != "none"]
     assert changed, "the synthetic portfolio should hold a differenced or transformed series"
     for sid in changed:
         found = figures(client.get(page(sid)).text)
-        assert found["identified"]["data"][0]["y"] == pytest.approx(results[sid]["identified_on"]["values"])
+        assert found["identified"]["data"][0]["y"] == pytest.approx(results[sid].identified_on)
     # the suggested candidate's residual ACF and residuals are drawn for the selected panel
     assert "resid-acf-1" in found and "resid-1" in found
 
@@ -112,30 +132,50 @@ def test_review_page_draws_the_transformed_or_differenced_series(client, results
 def test_review_page_tables_hold_the_chart_numbers(client, results):
     text = client.get(page(SERIES)).text
     stored = results[SERIES]
-    assert f"Numbers ({len(stored['acf']['lags'])} rows)" in text
-    first_lag = f"<td>1</td><td>{stored['acf']['values'][0]:.3f}</td><td>{stored['acf']['band'][0]:.3f}</td>"
+    assert f"Numbers ({len(stored.acf.lags)} rows)" in text
+    first_lag = f"<td>1</td><td>{stored.acf.values[0]:.3f}</td><td>{stored.acf.band[0]:.3f}</td>"
     assert first_lag in text
 
 
 def test_review_page_lists_candidates_and_tests_in_words(client, results):
     text = client.get(page(SERIES)).text
     stored = results[SERIES]
-    assert text.count('data-candidate="') == len(stored["candidates"])
+    assert text.count('data-candidate="') == len(stored.candidates)
     assert text.count("tag-suggested") >= 1
-    for test in stored["differencing"]["tests"]:
-        assert test["name"] in text
-    for line in stored["differencing"]["explanation"]:
+    for test in stored.differencing.tests:
+        assert test.name in text
+    for line in stored.differencing.explanation:
         assert html.escape(line) in text
     assert "suggestions are statistical" in text
 
 
+def test_review_page_shows_each_candidates_delta_aicc_within_its_differencing(client, results):
+    """ΔAICc in the table and in each detail panel is AICc less the best AICc of the same d, D
+    and s, so a seasonal candidate that loses to a non-seasonal one of the same d is not 0."""
+    seasonal = [sid for sid, r in results.items() if q_only_pairs(r)]
+    assert seasonal, "the synthetic portfolio should hold a series with seasonal candidates differing only in Q"
+    for sid in seasonal:
+        stored = results[sid]
+        text = client.get(page(sid)).text
+        expected = deltas_by_hand([(c.aicc, c.order.order, c.order.seasonal_order) for c in stored.candidates])
+        shown_rows = {key: PLAIN_NUMBER_CELL.findall(row) for key, row in CANDIDATE_ROW.findall(text)}
+        shown_details = dict(DETAIL_DELTA.findall(text))
+        for rank, (c, delta) in enumerate(zip(stored.candidates, expected), start=1):
+            aicc_cell, delta_cell = shown_rows[str(rank)][:2]
+            assert aicc_cell == number(c.aicc, 1)
+            assert (delta_cell, shown_details[str(rank)]) == (number(delta, 1), number(delta, 2)), (sid, c.label)
+        for _, high in q_only_pairs(stored):
+            rank = stored.candidates.index(high) + 1
+            assert shown_details[str(rank)] != "0.00" and float(shown_details[str(rank)]) > 0
+
+
 def test_review_page_names_the_orders_screening_left_out(client, results):
-    screened = {series_id: r["screened_out"] for series_id, r in results.items() if r["screened_out"]}
+    screened = {series_id: [o.label() for o in r.screened_out] for series_id, r in results.items() if r.screened_out}
     assert screened, "the synthetic portfolio should have at least one series with a screened-out order"
     for series_id, labels in screened.items():
         text = html.unescape(client.get(page(series_id)).text)
         assert f"Also considered, not fitted in full: {', '.join(labels)}." in text
-    quiet = next(series_id for series_id, r in results.items() if not r["screened_out"] and r.get("candidates"))
+    quiet = next(series_id for series_id, r in results.items() if not r.screened_out and r.candidates)
     assert "data-screened-out" not in client.get(page(quiet)).text
 
 
@@ -167,17 +207,17 @@ def test_form_approve_saves_redirects_to_next_and_remembers_reviewer(client, db,
     assert response.cookies.get(REVIEWER_COOKIE) == "Ada"
     verdict = get_verdict(db, SERIES)
     assert (verdict["status"], verdict["order"], verdict["reviewer"], verdict["note"]) == (
-        "approved", results[SERIES]["suggested"]["order"], "Ada", "looks clean")
+        "approved", list(results[SERIES].suggested.order.order), "Ada", "looks clean")
     follow = client.get(response.headers["location"])
     assert "Saved the verdict of" in follow.text
 
 
 def test_form_pick_another_candidate_is_an_override(client, db, results):
-    second = results[SERIES]["candidates"][1]
+    second = results[SERIES].candidates[1]
     response = client.post(page(SERIES, "/verdict"), data=decision(action="save", choice="2"), follow_redirects=False)
     assert response.status_code == 303
     verdict = get_verdict(db, SERIES)
-    assert verdict["status"] == "overridden" and verdict["order"] == second["order"]
+    assert verdict["status"] == "overridden" and verdict["order"] == list(second.order.order)
     history = client.get(page(SERIES)).text
     assert "overridden" in history and "Ada" in history
 
@@ -251,7 +291,7 @@ def test_reviewer_cookie_prefills_the_forms(client):
 # --- bulk approval -----------------------------------------------------------------------------
 
 def test_bulk_approval_confirms_the_count_then_approves(client, db, results):
-    firm = sorted(sid for sid, r in results.items() if r["confidence"] == "firm")
+    firm = sorted(sid for sid, r in results.items() if r.confidence == Confidence.FIRM)
     confirm = client.get("/approve-firm")
     assert f"Approve {len(firm)} firm suggestion" in confirm.text
     stale = client.post("/approve-firm", data={"expected": str(len(firm) + 1), "reviewer": "Ada"})

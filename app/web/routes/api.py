@@ -15,19 +15,19 @@ from fastapi import APIRouter, Depends, Form, HTTPException, Path, Query, Upload
 from pydantic import BaseModel, ConfigDict, Field
 
 from app.config import Settings
-from app.core.errors import LagdeskError
 from app.core.backtest import DEFAULT_ORIGINS
 from app.jobs.analyze import start_background_analysis
-from app.jobs.export import build_orders_document, parse_statuses
-from app.jobs.order_fits import backtest_series
+from app.review.bulk import approve_firm
+from app.review.decisions import decide, fit_custom_order
+from app.review.export import build_orders_document, parse_statuses
+from app.review.filters import SeriesFilter
+from app.review.forecast_check import backtest_series
 from app.store.analyses import analysis_record, load_analysis
 from app.store.runs import get_run, latest_run, list_runs
 from app.store.series import count_by, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
-from app.web.decisions import decide, fit_order
 from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
-from app.web.queue import QueueFilter, approve_firm
 from app.web.uploads import UploadOptions, import_upload
 
 
@@ -101,7 +101,7 @@ class Verdict(BaseModel):
 
 
 class VerdictIn(BaseModel):
-    status: Literal["approved", "overridden", "parked"]
+    status: Literal["approved", "overridden", "parked", "pending"] = Field(description="'pending' reopens a decided series")
     order: Order | None = Field(None, description="needed for 'overridden'; 'approved' takes the suggestion")
     seasonal_order: SeasonalOrder | None = None
     note: str = ""
@@ -144,14 +144,15 @@ class RunStarted(BaseModel):
 
 def filter_params(
     status: str | None = None, confidence: str | None = None, flag: str | None = None, q: str | None = None,
+    prefix: Annotated[str | None, Query(description="keep series whose id starts with this text")] = None,
     sort: str = "attention", descending: bool = False,
-) -> QueueFilter:
+) -> SeriesFilter:
     """The queue filter from query parameters (``sort``: attention, series_id, n, order,
     confidence, status or reviewer)."""
-    return QueueFilter(status=status, confidence=confidence, flag=flag, q=q, sort=sort, descending=descending)
+    return SeriesFilter(status=status, confidence=confidence, flag=flag, q=q, prefix=prefix, sort=sort, descending=descending)
 
 
-Filter = Annotated[QueueFilter, Depends(filter_params)]
+Filter = Annotated[SeriesFilter, Depends(filter_params)]
 
 
 @router.get("/series", response_model=SeriesList)
@@ -175,8 +176,9 @@ def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
 @router.post("/series/{series_id:path}/fit")
 def series_fit(db: Db, series_id: str, body: FitIn) -> dict:
     """Fit an order to the stored series now (nothing is saved): the candidate statistics, its
-    residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same d."""
-    return finite(fit_order(db, series_id, body.order, body.seasonal_order))
+    residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same
+    differencing (d, D and s; null when there is none)."""
+    return finite(fit_custom_order(db, series_id, body.order, body.seasonal_order).to_dict())
 
 
 @router.get("/series/{series_id:path}/backtest")
@@ -206,9 +208,10 @@ def series_detail(db: Db, series_id: str) -> dict:
     """The stored analysis of a series with its verdict and history (oldest first)."""
     verdict = get_verdict(db, series_id)
     record = analysis_record(db, series_id)
+    analysis = load_analysis(db, series_id)
     return finite({
         "series_id": series_id,
-        **(load_analysis(db, series_id) or {}),
+        **(analysis.to_dict() if analysis else {}),
         "analysis_state": record["state"],
         "analysis_message": record["message"],
         "verdict": verdict,
@@ -250,10 +253,7 @@ def runs_latest(db: Db) -> dict | None:
 
 @router.get("/runs/{run_id}", response_model=Run)
 def run_detail(db: Db, run_id: Annotated[int, Path(ge=1, le=SQLITE_MAX_INTEGER)]) -> dict:
-    try:
-        return get_run(db, run_id)
-    except LagdeskError as exc:
-        raise HTTPException(status_code=404, detail=str(exc)) from None
+    return get_run(db, run_id)
 
 
 @router.post("/runs", response_model=RunStarted, status_code=202)

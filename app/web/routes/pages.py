@@ -1,7 +1,7 @@
 """The HTML pages: queue, series review, bulk approval, upload, runs.
 
-Each view asks the store (through :mod:`app.web.queue`, :mod:`app.web.review`,
-:mod:`app.web.decisions`) for a plain dict and hands it to a template. Every form is a plain
+Each view asks the view models (:mod:`app.web.queue`, :mod:`app.web.review`) for a plain dict
+and hands it to a template; decisions go through :mod:`app.review`. Every form is a plain
 POST answered by a redirect (or by the page again with a message), so the pages work without
 JavaScript; the scripts add keyboard shortcuts, the charts and in-place fitting.
 """
@@ -11,26 +11,28 @@ from __future__ import annotations
 from typing import Annotated, Literal
 
 import sqlite_utils
-from fastapi import APIRouter, Depends, Form, HTTPException, Query, Request, UploadFile
+from fastapi import APIRouter, Depends, Form, Query, Request, UploadFile
 from fastapi import Path as FastApiPath
 from fastapi.responses import FileResponse, RedirectResponse, Response
 
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
-from app.jobs.export import build_orders_document, orders_text
+from app.review.bulk import approve_firm, firm_pending_ids
+from app.review.decisions import decide, fit_custom_order
+from app.review.export import build_orders_document, orders_text
+from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
 from app.store.database import UnknownSeries
 from app.store.runs import get_run, list_runs
 from app.store.series import series_neighbours
 from app.store.verdicts import get_verdict
 from app.web.charts import PLOTLY_JS
-from app.web.decisions import decide, fit_order
 from app.web.deps import REVIEWER_COOKIE, SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
 from app.web.errors import status_of
 from app.web.forecast import forecast_check_view
 from app.web.forms import DecisionForm
-from app.web.queue import QueueFilter, approve_firm, firm_pending_ids, queue_page
+from app.web.queue import queue_page
 from app.web.review import FormState, custom_fit_view, review_page
 from app.web.security import check_csrf
 from app.web.templating import quote_path, templates
@@ -52,11 +54,11 @@ def render(request: Request, name: str, context: dict, status_code: int = 200) -
     return templates.TemplateResponse(request=request, name=name, context=context, status_code=status_code)
 
 
-def queue_filter(request: Request) -> QueueFilter:
-    return QueueFilter.from_params(request.query_params)
+def queue_filter(request: Request) -> SeriesFilter:
+    return SeriesFilter.from_params(request.query_params)
 
 
-Filter = Annotated[QueueFilter, Depends(queue_filter)]
+Filter = Annotated[SeriesFilter, Depends(queue_filter)]
 
 
 def remember_reviewer(response: Response, reviewer: str) -> Response:
@@ -100,7 +102,7 @@ def review(request: Request, db: Db, flt: Filter, series_id: str,
     return render(request, "review.html", {**page, "saved": saved})
 
 
-def _redraw(request: Request, db: sqlite_utils.Database, series_id: str, flt: QueueFilter, data: DecisionForm,
+def _redraw(request: Request, db: sqlite_utils.Database, series_id: str, flt: SeriesFilter, data: DecisionForm,
             status: int, error: str | None = None, custom_fit: dict | None = None) -> Response:
     """The review page again, keeping what the reviewer typed, with an error or a custom fit."""
     form = FormState(
@@ -137,7 +139,7 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
     """Fit the typed custom order and show it (in place with JavaScript, as a page without)."""
     try:
         order, seasonal = data.custom_order()
-        fit = custom_fit_view(db, series_id, fit_order(db, series_id, order, seasonal))
+        fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal))
     except UnknownSeries:
         raise
     except LagdeskError as exc:
@@ -209,11 +211,7 @@ def runs(request: Request, db: Db) -> Response:
 
 @router.get("/runs/{run_id}", name="run_progress")
 def run_progress(request: Request, db: Db, run_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
-    try:
-        run = get_run(db, run_id)
-    except LagdeskError as exc:
-        raise HTTPException(status_code=404, detail=str(exc)) from None
-    return render(request, "run.html", {"run": run})
+    return render(request, "run.html", {"run": get_run(db, run_id)})
 
 
 @router.post("/reviewer", name="set_reviewer")

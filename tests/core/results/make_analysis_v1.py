@@ -13,14 +13,22 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from app.core.identify import identify_series
+SERIES_ID = "shop-1/flour"
 
-rng = np.random.default_rng(20261203)
-n, burn = 96, 40
-e = rng.normal(size=n + burn)
-y = np.zeros(n + burn)
-for t in range(13, n + burn):
-    y[t] = y[t - 1] + y[t - 12] - y[t - 13] + e[t] - 0.5 * e[t - 1] - 0.6 * e[t - 12] + 0.3 * e[t - 13]
-series = pd.Series(100 + y[burn:], index=pd.date_range("2015-01-01", periods=n, freq="MS"))
-result = identify_series(series, "shop-1/flour").to_dict()
-Path(__file__).with_name("analysis_v1.json").write_text(json.dumps(result))
+
+def invented_airline_series() -> pd.Series:
+    """The series the stored analysis is of (tests that store it beside its data use this)."""
+    rng = np.random.default_rng(20261203)
+    n, burn = 96, 40
+    e = rng.normal(size=n + burn)
+    y = np.zeros(n + burn)
+    for t in range(13, n + burn):
+        y[t] = y[t - 1] + y[t - 12] - y[t - 13] + e[t] - 0.5 * e[t - 1] - 0.6 * e[t - 12] + 0.3 * e[t - 13]
+    return pd.Series(100 + y[burn:], index=pd.date_range("2015-01-01", periods=n, freq="MS"), name=SERIES_ID)
+
+
+if __name__ == "__main__":
+    from app.core.identify import identify_series
+
+    result = identify_series(invented_airline_series(), SERIES_ID).to_dict()
+    Path(__file__).with_name("analysis_v1.json").write_text(json.dumps(result))
