@@ -54,9 +54,9 @@ sys.path.insert(0, str(REPO / "tests" / "core"))
 from accuracy_batch import accuracy_batch, plain_bic_grid, score  # noqa: E402
 
 from app.core.correlogram import correlograms_by_length, lag_count, portfolio_correlograms  # noqa: E402
+from app.core.identify import EngineOptions  # noqa: E402
 from app.core.transform import TransformChoice, apply_transform  # noqa: E402
 from app.jobs.executors import map_unordered  # noqa: E402
-from app.core.identify import EngineOptions  # noqa: E402
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task  # noqa: E402
 
 SEED = 20261202

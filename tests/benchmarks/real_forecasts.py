@@ -97,6 +97,7 @@ import argparse
 import json
 import math
 import multiprocessing
+import os
 import sys
 import time
 import warnings
@@ -163,6 +164,9 @@ class Choice:
     cpu_seconds: float = 0.0
 
 
+CRITERION_ENV = "LAGDESK_BENCH_CRITERION"
+
+
 class LagdeskRefused(Exception):
     """Lagdesk reported that it cannot analyse the series (its ``SeriesProblem``)."""
 
@@ -177,11 +181,11 @@ def lagdesk_choice(train: pd.Series, name: str) -> Choice:
     """
     # Imported here so that this function is the one place naming Lagdesk's modules.
     from app.core.errors import SeriesProblem
-    from app.core.identify import identify_series
+    from app.core.identify import EngineOptions, identify_series
 
     start = time.process_time()
     try:
-        ident = identify_series(train, name)
+        ident = identify_series(train, name, EngineOptions(criterion=os.environ.get(CRITERION_ENV, "bic")))
     except SeriesProblem as exc:
         raise LagdeskRefused(str(exc)) from None
     cpu = time.process_time() - start
@@ -671,7 +675,10 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--only", nargs="+", metavar="NAME", help="only these series (names as in real_series.py)")
     parser.add_argument("--jobs", type=int, default=1, help="series evaluated at a time (default 1)")
     parser.add_argument("--out", type=Path, default=REPO / "test-artifacts" / "real_forecasts.json")
+    parser.add_argument("--criterion", choices=("bic", "aicc", "aic", "hqic"), default="bic",
+                        help="Lagdesk's ranking criterion, to compare designs (default: the engine's own, bic)")
     args = parser.parse_args(argv)
+    os.environ[CRITERION_ENV] = args.criterion  # read by lagdesk_choice, in worker processes too
     entries = select(real_series(), args.quick, args.only)
     started = time.perf_counter()
     rows = []
