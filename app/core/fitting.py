@@ -12,15 +12,26 @@ residuals, the residual ACF, and root checks.
   statsmodels ``ARIMA`` computes at the same parameters (the tests check it to 1e-9); the
   optimum is sought from several starts, the optimum of any smaller order already fitted among
   them, so a larger order never ends below an order it contains.
-* Ljung-Box: ``h = min(2s, n/5)`` lags for a seasonal model and ``min(10, n/5)`` otherwise
-  (Hyndman & Athanasopoulos' rule of thumb, common practice), degrees of freedom reduced by
-  ``p + q + P + Q``, and ``h`` raised to at least ``p + q + P + Q + 3`` so the test keeps three
-  degrees of freedom. Residuals are those of the differenced series, so the ``d + sD`` start-up
-  values that a levels filter would produce never enter the test.
-* Roots: an AR or MA root with modulus below :data:`NEAR_UNIT_ROOT` is flagged
-  ``near_unit_root`` (the model sits on the edge of stationarity/invertibility); an AR root and
-  an MA root closer than :data:`CANCELLING_ROOT_DISTANCE` (inverse roots, complex plane) are
-  flagged ``redundant_roots`` (they nearly cancel: the order is over-specified).
+* Ljung-Box: ``h = 10`` lags without seasonal terms and ``h = 2s`` with them, at most ``n/5``
+  (Hyndman & Athanasopoulos' rule, common practice), degrees of freedom ``h - (p + q + P + Q)``;
+  ``h`` is raised to at least ``p + q + P + Q + 3`` so the test keeps three degrees of freedom,
+  and for a seasonal model to at least ``s + p + q + P + Q + 3`` when that is below ``n``, so
+  lag ``s`` is always tested (see :func:`ljung_box_lags`). Residuals are those of the
+  differenced series, so the ``d + sD`` start-up values that a levels filter would produce never
+  enter the test.
+* Residual ACF: drawn and judged against the white-noise band ``+-1.96/sqrt(n)`` at every lag,
+  not Bartlett's widening band: the residuals of an adequate model are white noise, and that is
+  the hypothesis they are checked against.
+* Roots, factor by factor: the model is ``phi(B) Phi(B^s) w_t = theta(B) Theta(B^s) e_t``, and
+  each factor is judged on its own scale, ``phi`` and ``theta`` as polynomials in ``z = B``,
+  ``Phi`` and ``Theta`` as polynomials in ``z = B^s``. A root of any factor with modulus below
+  :data:`NEAR_UNIT_ROOT` is flagged ``near_unit_root`` (the model sits on the edge of
+  stationarity/invertibility); an inverse root of ``phi`` and one of ``theta``, or of ``Phi`` and
+  of ``Theta``, closer than :data:`CANCELLING_ROOT_DISTANCE` are flagged ``redundant_roots``
+  (they nearly cancel: the order is over-specified). The expanded polynomials are not judged:
+  a seasonal root ``r`` becomes ``s`` roots of modulus ``|r|^(1/s)``, all close to the unit
+  circle (``1 + 0.8 z^12`` has its 12 roots at modulus ``0.8^(-1/12) = 1.019``), and an ordinary
+  root near one of those is no common factor of the multiplicative model.
 
 References
 ----------
@@ -30,7 +41,10 @@ References
    samples. *Biometrika* 76, 297-307 (AICc).
 .. [3] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*, 3rd ed.,
    §5.4 (Ljung-Box lags) and §9.7 (roots near the unit circle).
-.. [4] Akaike, H. (1974). A new look at the statistical model identification. *IEEE Trans.
+.. [4] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series Analysis:
+   Forecasting and Control*, 5th ed., Wiley, §8.2.1 (residual autocorrelations against
+   ``+-2/sqrt(n)``) and §9.1 (the multiplicative seasonal model); sections from memory.
+.. [5] Akaike, H. (1974). A new look at the statistical model identification. *IEEE Trans.
    Automatic Control* 19, 716-723; Schwarz, G. (1978). Estimating the dimension of a model.
    *Annals of Statistics* 6, 461-464; Hannan, E.J. & Quinn, B.G. (1979). The determination of
    the order of an autoregression. *JRSS B* 41, 190-195.
@@ -40,14 +54,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.special import chdtrc
 
 from app.core.analysis import Candidate, Correlation, Parameter
-from app.core.correlogram import Correlogram, autocorrelations, correlogram, lag_count
-from app.core.likelihood import ArmaFit, ArmaScreen, fit_arma, is_nested_in, nested_start, screen_arma
+from app.core.correlogram import DEFAULT_ALPHA, Correlogram, autocorrelations, correlogram, lag_count, z_value
+from app.core.likelihood import ArmaFit, ArmaScreen, ArmaSpec, fit_arma, is_nested_in, nested_start, screen_arma
 from app.core.order import Order
 from app.core.vocabulary import Flag
 
@@ -100,10 +114,44 @@ def _finite_or_none(value: float | None) -> float | None:
 
 
 def ljung_box_lags(n: int, model: Order) -> int:
-    """Lags for the residual Ljung-Box test (see the module notes)."""
-    s = model.seasonal_order[3]
-    h = min(2 * s, n // 5) if s else min(10, n // 5)
-    return max(h, model.n_arma + 3)
+    """Lags ``h`` of the Ljung-Box test on the ``n`` residuals of a fit of ``model``.
+
+    The rule, with ``k = p + q + P + Q`` the number of ARMA coefficients:
+
+    1. ``h = min(10, n // 5)`` for a model without seasonal terms, ``h = min(2s, n // 5)`` for a
+       seasonal one (Hyndman & Athanasopoulos 2021, §5.4: "common practice");
+    2. ``h`` is raised to ``k + 3``, so the chi-square reference keeps three degrees of freedom;
+    3. for a seasonal model ``h`` is raised to ``s + k + 3`` when that is below ``n``.
+
+    Step 3 is there because lag ``s`` is where a wrong seasonal part shows in the residuals, and
+    the ``n/5`` cap alone leaves it out of the test on short or long-period series (``s = 52``
+    below 260 residuals, ``s = 24`` below 120, ``s = 12`` below 60). ``s + k + 3`` lags take in
+    lag ``s`` and leave, as step 2 does, three degrees of freedom beyond the season
+    (``h - k = s + 3``). With fewer than ``s + k + 4`` residuals lag ``s`` rests on a handful of
+    pairs and steps 1-2 stand.
+
+    Parameters
+    ----------
+    n : int
+        Number of residuals (observations after differencing).
+    model : Order
+        The fitted order; its period counts only when it has seasonal terms.
+
+    Returns
+    -------
+    int
+        The number of lags; the test's degrees of freedom are ``h - k``.
+
+    References
+    ----------
+    .. [1] Ljung, G.M. & Box, G.E.P. (1978). On a measure of lack of fit in time series models.
+       *Biometrika* 65, 297-303.
+    .. [2] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
+       3rd ed., OTexts, §5.4.
+    """
+    s, k = model.seasonal_order[3], model.n_arma
+    h = max(min(2 * s, n // 5) if s else min(10, n // 5), k + 3)
+    return max(h, s + k + 3) if s and s + k + 3 < n else h
 
 
 def difference(y: np.ndarray, model: Order) -> np.ndarray:
@@ -208,7 +256,7 @@ def fit_candidate(
     resid = estimate.residuals
     h = ljung_box_lags(resid.size, model)
     flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
-    flags += root_flags(_roots(estimate.ar_polynomial), _roots(estimate.ma_polynomial))
+    flags += root_flags(*factor_roots(spec, estimate.coefficients))
     nlags = lag_count(resid.size, model.seasonal_order[3] or None)
     se = estimate.standard_errors
     values = np.r_[estimate.beta, estimate.coefficients]
@@ -223,8 +271,83 @@ def fit_candidate(
     return CandidateFit(
         model=model, loglik=loglik, aic=criteria["aic"], aicc=criteria["aicc"], bic=criteria["bic"], hqic=criteria["hqic"], nobs=n,
         n_params=k, converged=estimate.converged, params=params, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
-        ljung_box_lags=h, residual_correlogram=correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
+        ljung_box_lags=h, residual_correlogram=residual_correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
     )
+
+
+def residual_correlogram(resid: np.ndarray, nlags: int, alpha: float = DEFAULT_ALPHA) -> Correlogram:
+    """ACF and PACF of a fit's residuals at lags ``1..nlags``, both with the white-noise band.
+
+    The residuals of an adequate model are white noise, so each autocorrelation is judged
+    against ``+-z / sqrt(n)`` (``z = 1.96`` at 5%), the same at every lag, and not against
+    Bartlett's band, which widens with the correlations at lower lags.
+
+    Parameters
+    ----------
+    resid : ndarray
+        The residuals (one-step prediction errors of the differenced series).
+    nlags : int
+        Highest lag.
+    alpha : float
+        Two-sided level of the band.
+
+    Returns
+    -------
+    Correlogram
+        With ``acf_band`` and ``pacf_band`` both ``z / sqrt(n)``.
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, §8.2.1 (from memory).
+    """
+    values = np.asarray(resid, dtype=float)
+    return replace(correlogram(values, nlags, alpha), acf_band=np.full(nlags, z_value(alpha) / math.sqrt(values.size)))
+
+
+def factor_polynomials(spec: ArmaSpec, coefficients: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The four factors ``phi(z), theta(z), Phi(z), Theta(z)`` of a seasonal ARMA model.
+
+    The model is ``phi(B) Phi(B^s) w_t = theta(B) Theta(B^s) e_t`` with
+    ``phi(z) = 1 - sum phi_i z^i``, ``theta(z) = 1 + sum theta_j z^j`` (statsmodels' signs) and
+    the seasonal factors written as polynomials in ``z = B^s``: ``Phi(z) = 1 - sum Phi_i z^i``,
+    ``Theta(z) = 1 + sum Theta_j z^j``.
+
+    Parameters
+    ----------
+    spec : ArmaSpec
+        The orders; ``coefficients`` follow its layout (:meth:`ArmaSpec.names`).
+    coefficients : ndarray
+        ``ar.L1.., ma.L1.., ar.S.L{s}.., ma.S.L{s}..``.
+
+    Returns
+    -------
+    tuple of ndarray
+        Coefficients of each factor in increasing powers of its own ``z``, constant term first.
+        The expanded AR polynomial in ``B`` is ``phi(B) Phi(B^s)``, the MA one
+        ``theta(B) Theta(B^s)``.
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, §9.1 (from memory).
+    """
+    phi, theta, big_phi, big_theta = spec.blocks(np.asarray(coefficients, dtype=float))
+    return np.r_[1.0, -phi], np.r_[1.0, theta], np.r_[1.0, -big_phi], np.r_[1.0, big_theta]
+
+
+def factor_roots(spec: ArmaSpec, coefficients: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Roots of the four factors of :func:`factor_polynomials`: those of ``phi`` and ``theta``
+    in ``z = B``, those of ``Phi`` and ``Theta`` in ``z = B^s`` (an empty array for a factor
+    of degree 0).
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, §9.1 (from memory).
+    """
+    ar, ma, seasonal_ar, seasonal_ma = (_roots(f) for f in factor_polynomials(spec, coefficients))
+    return ar, ma, seasonal_ar, seasonal_ma
 
 
 def _roots(polynomial: np.ndarray) -> np.ndarray:
@@ -243,14 +366,48 @@ def _ljung_box_p(resid: np.ndarray, lags: int, model_df: int) -> float | None:
     return float(chdtrc(lags - model_df, statistic))
 
 
-def root_flags(ar_roots: np.ndarray, ma_roots: np.ndarray) -> list[str]:
-    """``near_unit_root`` and ``redundant_roots`` flags from the AR and MA polynomial roots."""
+def root_flags(ar_roots: np.ndarray, ma_roots: np.ndarray, seasonal_ar_roots: np.ndarray, seasonal_ma_roots: np.ndarray) -> list[str]:
+    """``near_unit_root`` and ``redundant_roots`` flags from the roots of a model's factors.
+
+    Each factor is judged on its own scale (the roots of :func:`factor_roots`): a root of any
+    factor with modulus below :data:`NEAR_UNIT_ROOT` gives ``near_unit_root``; an inverse root
+    of the AR factor within :data:`CANCELLING_ROOT_DISTANCE` of one of the MA factor, or of the
+    seasonal AR factor within that distance of one of the seasonal MA factor, gives
+    ``redundant_roots``. An ordinary and a seasonal factor are not paired: a root ``r`` of
+    ``Theta(z)`` stands for the factor ``1 - B^s / r`` of ``s`` roots in ``B``, which an
+    ordinary factor cancels only by containing all ``s`` of them (so only when ``p >= s``, a
+    case left unflagged).
+
+    Parameters
+    ----------
+    ar_roots, ma_roots : ndarray
+        Roots of ``phi(z)`` and ``theta(z)``, ``z = B``.
+    seasonal_ar_roots, seasonal_ma_roots : ndarray
+        Roots of ``Phi(z)`` and ``Theta(z)``, ``z = B^s``.
+
+    Returns
+    -------
+    list of str
+        The flags raised, in that order.
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, §7.3 (parameter redundancy) and §9.1
+       (the multiplicative seasonal model); sections from memory.
+    .. [2] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
+       3rd ed., OTexts, §9.7 (roots near the unit circle).
+    """
     flags: list[str] = []
-    ar, ma = np.asarray(ar_roots, dtype=complex), np.asarray(ma_roots, dtype=complex)
-    if any(np.abs(r).min() < NEAR_UNIT_ROOT for r in (ar, ma) if r.size):
+    factors = [np.asarray(r, dtype=complex) for r in (ar_roots, ma_roots, seasonal_ar_roots, seasonal_ma_roots)]
+    if any(np.abs(r).min() < NEAR_UNIT_ROOT for r in factors if r.size):
         flags.append(Flag.NEAR_UNIT_ROOT)
-    if ar.size and ma.size:
-        distance = np.abs((1 / ar)[:, None] - (1 / ma)[None, :]).min()
-        if distance < CANCELLING_ROOT_DISTANCE:
-            flags.append(Flag.REDUNDANT_ROOTS)
+    if any(_closest_inverse_roots(ar, ma) < CANCELLING_ROOT_DISTANCE for ar, ma in (factors[:2], factors[2:])):
+        flags.append(Flag.REDUNDANT_ROOTS)
     return flags
+
+
+def _closest_inverse_roots(ar: np.ndarray, ma: np.ndarray) -> float:
+    """The smallest distance between an inverse AR root and an inverse MA root (inf if either
+    factor has none)."""
+    return float(np.abs((1 / ar)[:, None] - (1 / ma)[None, :]).min()) if ar.size and ma.size else math.inf

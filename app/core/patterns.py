@@ -11,6 +11,15 @@ either is one of the first :data:`LOW_LAGS` lags or follows a significant lag, o
 crosses the stricter Bonferroni band ``z(1 - alpha / (2L))`` on its own. The cut-off is the last
 significant lag in the window (0 when none is).
 
+For a seasonal model the window is the same ``L = max_order + 3`` lags whatever the period, so a
+short season (quarterly, weekly) leaves room to tell a cut-off from a decay. The lags from
+``s - 1`` on (lags 1 and 2 excepted) belong to the seasonal part, which
+:func:`read_seasonal_patterns` reads: the spikes at the multiples of ``s`` and, in a
+multiplicative model, the satellites on either side of them (the airline model's ACF has
+spikes at ``s - 1``, ``s`` and ``s + 1``). Inside the window such a lag counts only as the
+continuation of a run of significant lags (a decay that reaches it), never as a spike on its
+own.
+
 References
 ----------
 .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series Analysis*,
@@ -35,22 +44,52 @@ LOW_LAGS = 2
 EACF_THRESHOLD_Z = 2.0
 
 
-def significant_lags(values: np.ndarray, band: np.ndarray, window: int, alpha: float = DEFAULT_ALPHA) -> list[int]:
-    """Lags (1-based) in ``1..window`` that count as significant by the rule in the module notes."""
+def significant_lags(
+    values: np.ndarray, band: np.ndarray, window: int, alpha: float = DEFAULT_ALPHA, period: int | None = None
+) -> list[int]:
+    """Lags (1-based) in ``1..window`` that count as significant by the rule in the module notes.
+
+    Parameters
+    ----------
+    values, band : ndarray
+        Correlations at lags ``1..K`` and the half-widths of their 95% band.
+    window : int
+        Number of lags examined (at most ``K``).
+    alpha : float
+        Level of the band.
+    period : int, optional
+        Seasonal period ``s``: a lag from ``s - 1`` on (beyond :data:`LOW_LAGS`) counts only
+        when it crosses the band right after a significant lag, never on its own (a lone spike
+        there is the seasonal part's: at ``s`` or a satellite of it).
+
+    Returns
+    -------
+    list of int
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis*, 5th ed., §6.2 and ch. 9 (from memory).
+    """
     window = min(window, len(values))
     z95 = norm.ppf(1 - alpha / 2)
     strict = band[:window] * norm.ppf(1 - alpha / (2 * window)) / z95
     found: list[int] = []
     for k in range(1, window + 1):
         v, b = abs(values[k - 1]), band[k - 1]
-        if v > strict[k - 1] or (v > b and (k <= LOW_LAGS or (k - 1) in found)):
+        follows = (k - 1) in found
+        if period and k >= max(period - 1, LOW_LAGS + 1):
+            significant = v > b and follows
+        else:
+            significant = v > strict[k - 1] or (v > b and (k <= LOW_LAGS or follows))
+        if significant:
             found.append(k)
     return found
 
 
-def cutoff(values: np.ndarray, band: np.ndarray, window: int, alpha: float = DEFAULT_ALPHA) -> int:
-    """The last significant lag within the window (0 when none is)."""
-    lags = significant_lags(values, band, window, alpha)
+def cutoff(values: np.ndarray, band: np.ndarray, window: int, alpha: float = DEFAULT_ALPHA, period: int | None = None) -> int:
+    """The last significant lag within the window (0 when none is); see :func:`significant_lags`."""
+    lags = significant_lags(values, band, window, alpha, period)
     return lags[-1] if lags else 0
 
 
@@ -75,12 +114,12 @@ def read_patterns(
     """Propose (p, q) pairs from the cut-off and decay patterns of a correlogram.
 
     The window examined for a cut-off is ``max_order + 3`` lags, so a cut-off at the maximum
-    order can be told from a slow decay; for a seasonal model it stops before lag ``s``, whose
-    spikes belong to the seasonal part.
+    order can be told from a slow decay, with or without a season. For a seasonal model
+    (``period`` given) the lags from ``s - 1`` on count only as part of a run of significant
+    lags: a lone spike there is the seasonal part's (:func:`significant_lags`).
     """
-    cap = period - 1 if period else len(cg.lags)
-    q_cut = cutoff(cg.acf, cg.acf_band, min(max_q + 3, cap))
-    p_cut = cutoff(cg.pacf, cg.pacf_band, min(max_p + 3, cap))
+    q_cut = cutoff(cg.acf, cg.acf_band, max_q + 3, period=period)
+    p_cut = cutoff(cg.pacf, cg.pacf_band, max_p + 3, period=period)
     reading = PatternReading(acf_cutoff=q_cut, pacf_cutoff=p_cut)
     acf_cuts, pacf_cuts = q_cut <= max_q, p_cut <= max_p
     if q_cut == 0 and p_cut == 0:

@@ -136,9 +136,10 @@ def test_ljung_box_equals_statsmodels_on_the_residuals(case):
     _, model, fit, _, _ = case
     n = fit.residuals.size
     # Lags: min(10, n/5), or min(2s, n/5) with a season (Hyndman & Athanasopoulos 2021, §5.4;
-    # common practice), at least p+q+P+Q+3.
-    s = model.seasonal_order[3]
-    assert fit.ljung_box_lags == max(min(2 * s, n // 5) if s else min(10, n // 5), model.n_arma + 3)
+    # common practice), at least p+q+P+Q+3, and at least s+p+q+P+Q+3 with a season.
+    s, k = model.seasonal_order[3], model.n_arma
+    expected = max(min(2 * s, n // 5) if s else min(10, n // 5), k + 3, s + k + 3 if s and s + k + 3 < n else 0)
+    assert fit.ljung_box_lags == expected
     table = acorr_ljungbox(fit.residuals, lags=[fit.ljung_box_lags], model_df=model.n_arma, return_df=True)
     assert fit.ljung_box_p == pytest.approx(float(table["lb_pvalue"].iloc[0]), rel=1e-9)
 
@@ -162,10 +163,58 @@ def test_ljung_box_lags_keep_three_degrees_of_freedom():
     assert ljung_box_lags(300, seasonal) == 24  # min(2s, n/5) for a seasonal model
 
 
+@pytest.mark.parametrize(
+    "n, seasonal_order, expected",
+    [
+        (200, (0, 1, 1, 52), 52 + 2 + 3),  # weekly data, under four years: n/5 = 40 < 52
+        (100, (1, 0, 0, 24), 24 + 2 + 3),  # hourly: n/5 = 20 < 24
+        (50, (0, 1, 1, 12), 12 + 2 + 3),  # monthly, short: n/5 = 10 < 12
+        (131, (0, 1, 1, 12), 24),  # AirPassengers' differenced length: 2s, as before
+        (300, (1, 0, 0, 7), 14),  # daily with a weekly cycle: 2s
+        (16, (0, 1, 1, 12), 5),  # too short for lag 12 (12 + 5 >= n): p + q + P + Q + 3
+    ],
+)
+def test_ljung_box_lags_reach_the_seasonal_lag(n, seasonal_order, expected):
+    # h = 2s capped at n/5 (Hyndman & Athanasopoulos 2021, §5.4), never below s + k + 3 while
+    # that is below n, so lag s is in the test; k = p + q + P + Q = 2 here.
+    assert ljung_box_lags(n, validate_order((0, 0, 1), seasonal_order)) == expected
+
+
+def _seasonal_ar_series(s: int, n: int, seed: int) -> np.ndarray:
+    """(1,0,0)(1,0,0)s with phi = 0.5, Phi = 0.5 around a mean of 5 (statsmodels ArmaProcess,
+    the product polynomial (1 - 0.5B)(1 - 0.5B^s))."""
+    ar = np.convolve([1.0, -0.5], np.r_[1.0, np.zeros(s - 1), -0.5])
+    rng = np.random.default_rng([20261204, s, n, seed])
+    return 5.0 + ArmaProcess(ar, [1]).generate_sample(n, distrvs=rng.standard_normal, burnin=400)
+
+
+@pytest.mark.parametrize("s, n", [(7, 300), (24, 300), (24, 100)], ids=["daily s=7 n=300", "hourly s=24 n=300", "hourly s=24 n=100"])
+def test_seasonal_ljung_box_tests_lag_s_and_equals_statsmodels(s, n):
+    model = validate_order((1, 0, 0), (1, 0, 0, s), trend="c")
+    fit = fit_candidate(_seasonal_ar_series(s, n, 0), model)
+    assert fit.ljung_box_lags >= s + 1
+    table = acorr_ljungbox(fit.residuals, lags=[fit.ljung_box_lags], model_df=model.n_arma, return_df=True)
+    assert fit.ljung_box_p == pytest.approx(float(table["lb_pvalue"].iloc[0]), rel=1e-9)
+
+
 def test_residual_correlogram_is_of_kept_residuals(case):
     _, _, fit, _, _ = case
     nlags = fit.residual_correlogram.lags.size
     np.testing.assert_allclose(fit.residual_correlogram.acf, acf(fit.residuals, nlags=nlags, fft=True)[1:], atol=1e-10)
+
+
+def test_residual_acf_band_is_the_white_noise_band(case):
+    # Residuals are judged against white noise: +-1.96/sqrt(n) at every lag (Box, Jenkins,
+    # Reinsel & Ljung 2015, §8.2.1, from memory; the +-2/sqrt(n) rule, common practice), not
+    # Bartlett's band, which widens with the lower-lag correlations.
+    _, _, fit, _, _ = case
+    half_width = 1.959963984540054 / math.sqrt(fit.residuals.size)
+    cg = fit.residual_correlogram
+    np.testing.assert_allclose(cg.acf_band, half_width, rtol=1e-12)
+    np.testing.assert_allclose(cg.pacf_band, half_width, rtol=1e-12)
+    stored = fit.to_candidate().residual_acf
+    assert stored.lags == tuple(cg.lags.tolist())
+    np.testing.assert_allclose(stored.band, half_width, rtol=1e-12)
 
 
 # --- root checks ----------------------------------------------------------------------------

@@ -17,7 +17,7 @@ from statsmodels.api import OLS
 from statsmodels.tsa.arima_process import ArmaProcess
 from threadpoolctl import threadpool_limits
 
-from app.core.correlogram import Correlogram, bartlett_band, correlogram, z_value
+from app.core.correlogram import Correlogram, bartlett_band, correlogram, lag_count, z_value
 from app.core.patterns import cutoff, eacf_table, eacf_vertex, read_patterns, significant_lags, with_neighbours
 
 MAX_P = MAX_Q = 5
@@ -95,6 +95,83 @@ def test_with_neighbours_adds_one_step_moves_within_limits():
     out = with_neighbours({(0, 0): ["white noise"], (5, 1): ["PACF cut-off"]}, 5, 5)
     assert set(out) == {(0, 0), (1, 0), (0, 1), (5, 1), (4, 1), (5, 0), (5, 2)}
     assert out[(0, 0)] == ["white noise"] and out[(1, 0)] == ["neighbour"]
+
+
+# --- seasonal periods: the cut-off window -----------------------------------------------------
+
+THEORETICAL_CASES = {
+    "AR(1)": ([1, -0.6], [1]), "AR(2)": ([1, -0.5, -0.3], [1]), "AR(3)": ([1, -0.4, 0.3, -0.3], [1]),
+    "MA(1)": ([1], [1, 0.6]), "MA(2)": ([1], [1, 0.5, 0.4]), "ARMA(1,1)": ([1, -0.6], [1, 0.5]),
+}
+
+
+@pytest.mark.parametrize("name", list(THEORETICAL_CASES))
+def test_monthly_period_leaves_the_reading_as_it_was(name):
+    # The window of max_order + 3 = 8 lags stops before lag 12 anyway: a monthly season changes
+    # nothing in the non-seasonal reading.
+    cg = _theoretical_correlogram(*THEORETICAL_CASES[name], nlags=25)
+    plain, monthly = read_patterns(cg, MAX_P, MAX_Q), read_patterns(cg, MAX_P, MAX_Q, period=12)
+    assert (monthly.acf_cutoff, monthly.pacf_cutoff, monthly.proposals) == (plain.acf_cutoff, plain.pacf_cutoff, plain.proposals)
+
+
+def test_quarterly_seasonal_spike_alone_is_left_to_the_seasonal_reading():
+    # A seasonal MA(1) at s = 4 (Theta = 0.6) has ACF and PACF spikes at multiples of 4 only
+    # (Box, Jenkins, Reinsel & Ljung 2015, ch. 9, from memory): the spike at lag 4 clears even
+    # the Bonferroni band, so read without a season it is an MA(4); with s = 4 it is the
+    # seasonal part's and the non-seasonal reading is white noise.
+    cg = _theoretical_correlogram([1], [1, 0, 0, 0, 0.6])
+    assert read_patterns(cg, MAX_P, MAX_Q).acf_cutoff == 4, "precondition: the lone spike counts without a season"
+    reading = read_patterns(cg, MAX_P, MAX_Q, period=4)
+    assert (reading.acf_cutoff, reading.pacf_cutoff) == (0, 0)
+    assert "white noise" in reading.proposals[(0, 0)]
+
+
+def test_quarterly_seasonal_satellite_is_left_to_the_seasonal_reading():
+    # (1 - 0.5B)(1 - 0.6B^4): the PACF has its spike at lag 1, the seasonal one at 4 and
+    # satellites at 3 and 5 = s -+ 1 (BJRL 2015 ch. 9, from memory). Without a season the
+    # satellite at 3 is a lone spike beyond the Bonferroni band and starts a run to lag 5, an
+    # AR(5); with s = 4 the PACF cuts off after lag 1.
+    cg = _theoretical_correlogram(np.convolve([1, -0.5], [1, 0, 0, 0, -0.6]).tolist(), [1])
+    assert read_patterns(cg, MAX_P, MAX_Q).pacf_cutoff == 5, "precondition: lags 4 and 5 count without a season"
+    reading = read_patterns(cg, MAX_P, MAX_Q, period=4)
+    assert reading.pacf_cutoff == 1
+    assert "PACF cut-off" in reading.proposals[(1, 0)]
+
+
+def test_quarterly_airline_acf_reads_the_non_seasonal_ma1():
+    # The differenced airline model (1 - 0.4B)(1 - 0.6B^4) has ACF spikes at 1, s - 1, s and
+    # s + 1 (BJRL 2015 §9.2, from memory): read with s = 4 the ACF cuts off after lag 1.
+    cg = _theoretical_correlogram([1], np.convolve([1, -0.4], [1, 0, 0, 0, -0.6]).tolist())
+    assert read_patterns(cg, MAX_P, MAX_Q).acf_cutoff > 1, "precondition: the seasonal spikes count without a season"
+    reading = read_patterns(cg, MAX_P, MAX_Q, period=4)
+    assert reading.acf_cutoff == 1
+    assert "ACF cut-off" in reading.proposals[(0, 1)]
+
+
+def test_quarterly_ar1_acf_is_read_past_the_season():
+    # An AR(1) with phi = 0.8 has rho_k = 0.8^k, a decay (BJRL 2015 §3.2, from memory). A window
+    # that stopped before lag s = 4 read every such ACF as cutting off by lag 3; the full window
+    # reads a quarterly series as it reads the same series without a season. n = 120 (30 years).
+    # Measured on these seeds: the quarterly reading equals the plain one in 47 of 50, the ACF
+    # runs past lag 3 in 25 and stops at lag 3 in 19, (1, 0) is proposed in 49; the old window
+    # stopped at lag 3 in 44 and never went past it. At n = 120 Bartlett's band at lags 4-5
+    # (about 0.35) is as wide as rho_4, rho_5 of the process: that a third of these ACFs stop at
+    # lag 3 is the band's verdict, not the window's.
+    seeds, n = range(50), 120
+    same = past_three = at_three = ar1 = 0
+    for seed in seeds:
+        x = ArmaProcess([1, -0.8], [1]).generate_sample(n, distrvs=np.random.default_rng([20261207, seed]).standard_normal, burnin=200)
+        cg = correlogram(x, lag_count(n, 4))
+        vertex = eacf_vertex(eacf_table(x, MAX_P, MAX_Q)[1])
+        quarterly, plain = read_patterns(cg, MAX_P, MAX_Q, vertex, period=4), read_patterns(cg, MAX_P, MAX_Q, vertex)
+        same += (quarterly.acf_cutoff, quarterly.pacf_cutoff) == (plain.acf_cutoff, plain.pacf_cutoff)
+        past_three += quarterly.acf_cutoff > 3
+        at_three += quarterly.acf_cutoff == 3
+        ar1 += (1, 0) in quarterly.proposals
+    assert same >= 0.9 * len(seeds)
+    assert past_three >= 0.4 * len(seeds), past_three
+    assert at_three <= 0.4 * len(seeds), at_three
+    assert ar1 >= 0.9 * len(seeds), ar1
 
 
 # --- extended ACF ------------------------------------------------------------------------------
