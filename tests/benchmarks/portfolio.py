@@ -89,7 +89,7 @@ def ar1_rows(rng: np.random.Generator, rows: int, n: int, integrate_every: int =
 
 
 def load_text() -> str:
-    return "load average %.1f / %.1f / %.1f" % os.getloadavg()
+    return "load average {:.1f} / {:.1f} / {:.1f}".format(*os.getloadavg())
 
 
 def heading(title: str) -> None:

@@ -30,10 +30,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from accuracy_batch import plain_kpss_d
 from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
-from accuracy_batch import plain_kpss_d
 from app.core.seasonality import choose_seasonal_differencing
 
 BURN_IN = 300

@@ -14,15 +14,13 @@ from __future__ import annotations
 
 import warnings
 
-import numpy as np
 import pandas as pd
 import pytest
+from accuracy_batch import accuracy_batch
 from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
 
-from accuracy_batch import accuracy_batch
 from app.core.fitting import fit_candidate
-from app.core.order import validate_order
 from app.core.identify import SCREEN_MARGIN, EngineOptions, Identification, identify_series
 from app.core.ranking import criterion_value
 from app.core.transform import apply_transform

@@ -10,7 +10,6 @@ from __future__ import annotations
 import pytest
 
 from app.core.errors import LagdeskError
-from app.core.order import validate_order
 from app.core.transform import TransformChoice
 from app.store.analyses import save_analysis
 from app.store.imports import import_portfolio

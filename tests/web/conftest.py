@@ -6,13 +6,13 @@ import shutil
 
 import pytest
 from fastapi.testclient import TestClient
+from web_portfolio import add_stored_seasonal_analysis, build_database, synthetic_series, write_long_csv
 
 from app.config import Settings
 from app.core.analysis import Analysis
 from app.store.database import open_database
 from app.web.main import create_app
 from app.web.security import CSRF_COOKIE, CSRF_HEADER
-from web_portfolio import add_stored_seasonal_analysis, build_database, synthetic_series, write_long_csv
 
 
 @pytest.fixture(scope="session")

@@ -8,10 +8,10 @@ from urllib.parse import quote
 import numpy as np
 import pandas as pd
 import pytest
+from fastapi.testclient import TestClient
 from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
-
-from fastapi.testclient import TestClient
+from web_portfolio import AWKWARD_ID, CONSTANT_ID, ODD_ID, deltas_by_hand, q_only_pairs, synthetic_series, write_long_csv
 
 from app.config import Settings
 from app.core.analysis import Analysis
@@ -20,7 +20,6 @@ from app.store.runs import finish_run, record_progress, start_run
 from app.store.series import load_series
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.main import create_app
-from web_portfolio import AWKWARD_ID, CONSTANT_ID, ODD_ID, deltas_by_hand, q_only_pairs, synthetic_series, write_long_csv
 
 SERIES = "plant-a/line-1/ar1"
 

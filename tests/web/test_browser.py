@@ -19,10 +19,10 @@ from urllib.parse import quote, urlsplit
 import httpx
 import pytest
 import uvicorn
+from web_portfolio import build_database, demo_subset_csv
 
 from app.config import Settings
 from app.web.main import create_app
-from web_portfolio import build_database, demo_subset_csv
 
 pytestmark = pytest.mark.browser
 

@@ -9,6 +9,7 @@ from urllib.parse import quote
 
 import numpy as np
 import pytest
+from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
 from app.core.vocabulary import Confidence, Flag
 from app.store.runs import start_run
@@ -16,7 +17,6 @@ from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
 from app.web.templating import FLAG_WORDS, number
-from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
 SERIES = "plant-a/line-1/ar1"
 FIGURE = re.compile(r"""id="chart-([\w-]+)" data-figure='([^']*)'""")
