@@ -8,10 +8,12 @@ seasonal lags and from the extended ACF; fit every candidate by maximum likeliho
 residuals; rank; say how far the suggestion can be trusted.
 
 Candidate search. The orders read from the correlograms and their +-1 neighbours are fitted
-in two stages when the model is seasonal: first each seasonal (P, Q) proposal with the
-leading non-seasonal reading, then each non-seasonal (p, q) proposal with the best seasonal
-part. Then :data:`LOCAL_SEARCH_ROUNDS` rounds of a local search fit the untried +-1
-neighbours (in p, q, P and Q) of the current leader.
+in two stages when the model is seasonal: first every seasonal (P, Q) up to the limits
+(:func:`seasonal_grid`) with the leading non-seasonal reading, then each non-seasonal (p, q)
+proposal with the best seasonal part. Then :data:`LOCAL_SEARCH_ROUNDS` rounds of a local
+search fit the untried +-1 neighbours (in p, q, P and Q) of the current leader and the leader
+with the other deterministic term (:func:`trend_choices`): whether a model has a mean, a trend
+or a drift is decided by the same criterion as its order, on the same data.
 
 Screening. Every order a stage proposes is first looked at cheaply
 (:func:`app.core.fitting.screen_candidate`: the quasi-Newton steps of the full fit's best start,
@@ -36,6 +38,7 @@ accuracy section gives the batch figures with and without screening.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -68,11 +71,13 @@ AUTO_PERIOD = "auto"
 DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2
+TREND_TOGGLE = "deterministic term toggled"
 MIN_RESIDUAL_DF = 8
 SCREEN_SLACK = 2.0
 SCREEN_MARGIN = FIRM_MARGIN
+TRANSFORM_PASSES = 2
 
-Orders = tuple[int, int, int, int]  # (p, q, P, Q)
+Orders = tuple[int, int, int, int, str]  # (p, q, P, Q, trend)
 
 
 @dataclass(frozen=True)
@@ -150,6 +155,18 @@ class Identification:
     def suggested(self) -> CandidateFit:
         return self.candidates[0]
 
+    def across_d_words(self) -> list[str]:
+        """What decided d when the tests left it open, in words drawn from the ranking itself."""
+        ds = list(dict.fromkeys(c.model.d for c in self.candidates))
+        if len(ds) < 2:
+            return []
+        chosen, other = ds[0], ds[1]
+        return [
+            f"The best model with d = {chosen} predicts the levels better than the best with d = {other} "
+            "(a BIC of their one-step prediction errors over the same final stretch), so the suggestion "
+            f"has d = {chosen}."
+        ]
+
     def to_analysis(self) -> Analysis:
         """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
         best = self.suggested
@@ -170,7 +187,7 @@ class Identification:
             differencing=DifferencingSummary(
                 d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
                 trend_stationary=decision.trend_stationary,
-                tests=tuple(decision.tests), explanation=tuple(decision.explanation),
+                tests=tuple(decision.tests), explanation=(*decision.explanation, *self.across_d_words()),
             ),
             seasonal=self.seasonal.summary(),
             acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
@@ -209,19 +226,23 @@ def seasonal_difference(y: np.ndarray, period: int | None, D: int) -> np.ndarray
     return y[period:] - y[:-period] if D and period else y
 
 
-def choose_trend(y: np.ndarray, decision: DifferencingDecision, d: int, D: int) -> str:
-    """The deterministic term: a constant (or constant + trend) when nothing is differenced, a
-    drift at d = 1 when the mean difference is significant (|t| > 1.96, common practice), none
-    once the series is differenced twice or seasonally."""
-    if D:
-        return "n"
-    if d == 0:
-        return "ct" if decision.trend_stationary else "c"
-    if d == 1:
-        diff = np.diff(y)
-        se = diff.std(ddof=1) / math.sqrt(diff.size)
-        return "t" if se > 0 and abs(diff.mean()) / se > DRIFT_Z else "n"
-    return "n"
+def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int) -> tuple[str, ...]:
+    """The deterministic terms the search compares for differencing ``(d, D)``, the one it
+    starts from first; ``w`` is the differenced series.
+
+    With nothing differenced, a mean with or without a linear trend (the trend first when the
+    tests found trend-stationarity); after one difference, ordinary or seasonal, none or a drift
+    (a linear trend in levels), the drift first when the mean of ``w`` is clearly away from 0
+    (|t| > 1.96, common practice; a start only); after two, none. The criterion decides between
+    them on the same data, as the stepwise search of Hyndman & Khandakar (2008, §3.2) toggles
+    the constant, instead of a pre-test that ignores autocorrelation deciding alone.
+    """
+    if d + D == 0:
+        return ("ct", "c") if decision.trend_stationary else ("c", "ct")
+    if d + D == 1:
+        se = w.std(ddof=1) / math.sqrt(w.size) if w.size > 1 else 0.0
+        return ("t", "n") if se > 0 and abs(w.mean()) / se > DRIFT_Z else ("n", "t")
+    return ("n",)
 
 
 def identified_label(transform: TransformChoice, period: int | None, D: int, d: int) -> str:
@@ -240,7 +261,7 @@ class _Search:
     d: int
     D: int
     period: int | None
-    trend: str
+    trends: tuple[str, ...]
     options: EngineOptions
     fitted: dict[Orders, CandidateFit] = field(default_factory=dict)
     failed: list[str] = field(default_factory=list)
@@ -252,9 +273,9 @@ class _Search:
 
     def model(self, key: Orders) -> Order | None:
         """The model of ``key``, or None when the series is too short to fit it."""
-        p, q, P, Q = key
+        p, q, P, Q, trend = key
         seasonal = (P, self.D, Q, self.period) if self.period and (P or Q or self.D) else (0, 0, 0, 0)
-        model = Order.of((p, self.d, q), seasonal, self.trend)
+        model = Order.of((p, self.d, q), seasonal, trend)
         usable = self.y.size - model.lost_to_differencing
         if usable < model.n_arma + max(p + (self.period or 0) * P, q + (self.period or 0) * Q) + MIN_RESIDUAL_DF:
             return None
@@ -296,22 +317,30 @@ class _Search:
     def leader(self) -> CandidateFit:
         return rank_within_d(list(self.fitted.values()), self.options.criterion)[0]
 
+    def seed(self, p: int, q: int, P: int, Q: int) -> Orders:
+        """The key of an order read from the correlograms: with the default deterministic term."""
+        return (p, q, P, Q, self.trends[0])
+
     def neighbours(self, key: Orders) -> dict[Orders, list[str]]:
+        """The +-1 moves in p, q, P and Q of ``key``, and ``key`` with each other deterministic term."""
         limits = (self.options.max_p, self.options.max_q, self.options.max_P if self.period else 0, self.options.max_Q if self.period else 0)
+        *orders, trend = key
         out: dict[Orders, list[str]] = {}
         for axis in range(4):
             for step in (-1, 1):
-                moved = list(key)
+                moved = list(orders)
                 moved[axis] += step
                 if 0 <= moved[axis] <= limits[axis]:
-                    out[(moved[0], moved[1], moved[2], moved[3])] = ["local search"]
+                    out[(moved[0], moved[1], moved[2], moved[3], trend)] = ["local search"]
+        for other in self.trends:
+            if other != trend:
+                out[(orders[0], orders[1], orders[2], orders[3], other)] = [TREND_TOGGLE]
         return out
 
 
 def _key(fit: CandidateFit) -> Orders:
-    p, _, q = fit.model.order
-    P, _, Q, _ = fit.model.seasonal_order
-    return (p, q, P, Q)
+    m = fit.model
+    return (m.p, m.q, m.P, m.Q, m.trend)
 
 
 @dataclass
@@ -347,18 +376,19 @@ def search_candidates(
     _, significant = eacf_table(w, options.max_p, options.max_q)
     reading = read_patterns(cg, options.max_p, options.max_q, eacf_vertex(significant), period)
     words += reading.words
-    search = _Search(y, d, D if period else 0, period, choose_trend(y, decision, d, D if period else 0), options)
+    D = D if period else 0
+    search = _Search(y, d, D, period, trend_choices(w, decision, d, D), options)
     nonseasonal = with_neighbours(reading.proposals, options.max_p, options.max_q)
     if period:
         seasonal_props, seasonal_words = read_seasonal_patterns(cg, period, options.max_P, options.max_Q)
         words += seasonal_words
         lead_pq = max(reading.proposals, key=lambda pq: (len(reading.proposals[pq]), -sum(pq)))
-        seasonal_all = with_neighbours(seasonal_props, options.max_P, options.max_Q)
-        search.fit({(*lead_pq, P, Q): reading.proposals[lead_pq] + seasonal_all[(P, Q)] for P, Q in seasonal_all})
-        best_PQ = _key(search.leader())[2:] if search.fitted else (0, 0)
-        search.fit({(p, q, *best_PQ): src + seasonal_all.get(best_PQ, []) for (p, q), src in nonseasonal.items()})
+        seasonal_all = seasonal_grid(seasonal_props, options.max_P, options.max_Q)
+        search.fit({search.seed(*lead_pq, P, Q): reading.proposals[lead_pq] + src for (P, Q), src in seasonal_all.items()})
+        best_PQ = _key(search.leader())[2:4] if search.fitted else (0, 0)
+        search.fit({search.seed(p, q, *best_PQ): src + seasonal_all.get(best_PQ, []) for (p, q), src in nonseasonal.items()})
     else:
-        search.fit({(p, q, 0, 0): src for (p, q), src in nonseasonal.items()})
+        search.fit({search.seed(p, q, 0, 0): src for (p, q), src in nonseasonal.items()})
     for _ in range(LOCAL_SEARCH_ROUNDS if search.fitted else 0):
         fresh = {k: v for k, v in search.neighbours(_key(search.leader())).items() if not search.tried(k)}
         if not fresh:
@@ -369,15 +399,35 @@ def search_candidates(
             series_id, "no candidate model could be fitted: " + "; ".join(search.failed[:3]), flag="no_fit"
         )
     screened = sorted(search.screened_out.values(), key=lambda m: m.label())
-    return SearchResult(list(search.fitted.values()), cg, w, words + search.failed, screened)
+    return SearchResult(best_term_per_order(list(search.fitted.values()), options.criterion), cg, w, words + search.failed, screened)
 
 
-def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
-    """Run the identification on a series already on its regular grid."""
-    period, period_words = resolve_period(prepared, options.period)
-    transform = choose_transform(prepared.values, period)
+def best_term_per_order(fits: list[CandidateFit], criterion: str) -> list[CandidateFit]:
+    """One fit per ARIMA order: of the same order fitted with different deterministic terms,
+    the one that ranks better (an order names one candidate for the reviewer and the export)."""
+    best: dict[tuple, CandidateFit] = {}
+    for fit in sorted(fits, key=lambda f: (is_demoted(f), criterion_value(f, criterion))):
+        best.setdefault((fit.model.order, fit.model.seasonal_order), fit)
+    return list(best.values())
+
+
+def seasonal_grid(proposals: dict[tuple[int, int], list[str]], max_P: int, max_Q: int) -> dict[tuple[int, int], list[str]]:
+    """Every seasonal (P, Q) up to the limits, with the readings that proposed it.
+
+    Lags s and 2s carry little information on a short series, so the seasonal correlogram
+    readings alone often miss the seasonal part a fit prefers (a (1, 1) read as (2, 0) or
+    (0, 2)); the whole small grid is screened instead, the readings kept as sources for the
+    rank bonus. Hyndman & Khandakar (2008, §3.2) search P, Q <= 2 as well.
+    """
+    return {(P, Q): list(proposals.get((P, Q), ["seasonal grid"])) for P in range(max_P + 1) for Q in range(max_Q + 1)}
+
+
+def _identify_on(
+    prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions
+) -> Identification:
+    """One identification pass: differencing, correlograms and candidates of the series under ``transform``."""
     y = apply_transform(prepared.values, transform)
-    seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, period_words)
+    seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, list(period_words))
     if seasonal.differencing:
         seasonal.words += seasonal.differencing.explanation
         seasonal.flags += seasonal.differencing.flags
@@ -409,6 +459,65 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
         confidence=score_confidence(ranked, flags, options.criterion), criterion=options.criterion, flags=flags,
         screened_out=[m for found in searches.values() for m in found.screened_out],
     )
+
+
+def _loglik_on(prepared: PreparedSeries, found: Identification) -> Callable[[TransformChoice], float]:
+    """The maximised log-likelihood of ``found``'s leading order on the series under a transform
+    (the leader's own on the scale it was identified on; NaN when the order cannot be fitted)."""
+    leader = found.suggested
+
+    def loglik(choice: TransformChoice) -> float:
+        if choice.to_json() == found.transform.to_json():
+            return leader.loglik
+        try:
+            return fit_candidate(apply_transform(prepared.values, choice), leader.model).loglik
+        except (np.linalg.LinAlgError, ValueError):
+            return math.nan
+
+    return loglik
+
+
+def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
+    """Run the identification on a series already on its regular grid.
+
+    The transform is chosen under the leading order (:func:`app.core.transform.choose_transform`,
+    Box & Cox 1964): the series is identified as observed; for a strictly positive series, the
+    leader's order (same d, D and deterministic term) is refitted under each transform weighed and
+    the likelihoods of the original data compared. When a transform wins, the identification runs
+    again on the transformed series, so the correlograms, the differencing and the candidates are
+    those of the series actually modelled, and the comparison is repeated under the new leader
+    (an order found on one scale favours that scale). It stops when the comparison keeps the
+    scale the leader was found on, returns to a scale already identified, or after
+    :data:`TRANSFORM_PASSES` identifications on a transformed series.
+
+    References
+    ----------
+    .. [1] Box, G.E.P. & Cox, D.R. (1964). An analysis of transformations. *JRSS B* 26, 211-252.
+    """
+    period, period_words = resolve_period(prepared, options.period)
+    found = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
+    passes = {str(found.transform.to_json()): found}
+    words: list[str] = []
+    while True:
+        leader = found.suggested.model
+        choice = choose_transform(prepared.values, period, leader.label(), leader.lost_to_differencing, found.transform,
+                                  _loglik_on(prepared, found))
+        words += choice.explanation
+        key = str(choice.to_json())
+        if key in passes:
+            if passes[key] is not found:
+                words.append(f"Back to the identification on the {choice.name()} scale made before.")
+            found = passes[key]
+            break
+        if len(passes) > TRANSFORM_PASSES:
+            words.append(f"Stopped after {TRANSFORM_PASSES} identifications on a transformed series: "
+                         f"the {found.transform.name()} scale kept.")
+            break
+        words.append(f"Identified again on the {choice.name()} scale.")
+        found = _identify_on(prepared, choice, period, period_words, options)
+        passes[key] = found
+    found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
+    return found
 
 
 def identify_series(

@@ -146,7 +146,7 @@ def _uncertain(tests: list[UnitRootTest], words: list[str], on: str, why: str) -
     adf = next(t for t in tests if t.name == "ADF" and t.regression == "c" and t.on == on)
     primary = 1 if adf.p_value > ADF_UNCERTAIN_P else 0
     words.append(
-        f"On the {on} {why}. Candidates are kept for d = 0 and d = 1; d = {primary} leads because ADF's "
-        f"p-value is {'above' if primary else 'below'} {ADF_UNCERTAIN_P}."
+        f"On the {on} {why}. Candidates are searched for d = 0 and d = 1 (d = {primary} first, as ADF's "
+        f"p-value is {'above' if primary else 'below'} {ADF_UNCERTAIN_P}); the fits decide between them."
     )
     return DifferencingDecision(primary, True, 1 - primary, False, tests, words)

@@ -1,8 +1,13 @@
-"""Variance-stabilising transforms: none, the log, or Box-Cox with Guerrero's lambda.
+"""Variance-stabilising transforms: none, the log, or Box-Cox with a simple lambda.
 
-A transform is suggested only for a strictly positive series whose spread grows with its level
-(:func:`choose_transform`); lambda is chosen by Guerrero's (1993) method
-(:func:`guerrero_lambda`). The Box-Cox transform with parameter lambda is
+A transform is chosen by the likelihood of the *original* data under the leading order
+(:func:`choose_transform`): the order found on the series is fitted with no transform, on the
+log, on the square root and on Box-Cox with Guerrero's (1993) lambda rounded to a simple value
+(:func:`simple_lambda`), and each log-likelihood is put on the scale of the observations by
+adding the log-Jacobian of the transform (:func:`log_jacobian`; Box & Cox 1964, §3). A transform
+is kept only when it lowers the AIC of the original data clearly (:data:`CLEAR_AIC_DROP`).
+:func:`app.core.identify.identify_prepared` runs the comparison and, when a transform wins,
+identifies the transformed series again. The Box-Cox transform with parameter lambda is
 ``(x**lambda - 1) / lambda``, and ``log(x)`` at lambda = 0 (Box & Cox 1964).
 
 References
@@ -10,12 +15,16 @@ References
 .. [1] Box, G.E.P. & Cox, D.R. (1964). An analysis of transformations. *JRSS B* 26, 211-252.
 .. [2] Guerrero, V.M. (1993). Time-series analysis supported by power transformations.
    *J. Forecasting* 12, 37-48.
-.. [3] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
+.. [3] Burnham, K.P. & Anderson, D.R. (2002). *Model Selection and Multimodel Inference*, 2nd ed.,
+   Springer, §2.6 (rules of thumb for AIC differences).
+.. [4] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
    3rd ed., OTexts, §3.1 (transformations).
 """
 
 from __future__ import annotations
 
+import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Literal
 
@@ -28,12 +37,11 @@ from app.core.errors import OrderError
 TransformKind = Literal["none", "log", "box_cox"]
 LAMBDA_BOUNDS = (-1.0, 2.0)
 NONSEASONAL_SUBSERIES_LENGTH = 2
-NONSEASONAL_CHECK_LENGTH = 4
-MIN_SUBSERIES = 4
-SPREAD_LEVEL_CORRELATION_MIN = 0.5
-LAMBDA_MAX_FOR_TRANSFORM = 0.5
-LOG_TOLERANCE = 0.15
-LAMBDA_DECIMALS = 2
+LAMBDA_STEP = 0.5
+LAMBDA_TOLERANCE = 0.15
+LAMBDA_DECIMALS = 1
+SQUARE_ROOT = 0.5
+CLEAR_AIC_DROP = 10.0
 
 
 @dataclass
@@ -41,15 +49,11 @@ class TransformChoice:
     """A variance-stabilising transform and why it was chosen.
 
     ``kind`` is ``"none"``, ``"log"`` or ``"box_cox"``; ``lam`` is the lambda applied (None for
-    no transform, 0 for the log). ``guerrero`` is the unrounded estimate and
-    ``spread_level_correlation`` the correlation of subseries means and standard deviations,
-    when they were computed.
+    no transform, 0 for the log); ``explanation`` says in words what was compared.
     """
 
     kind: TransformKind
     lam: float | None = None
-    guerrero: float | None = None
-    spread_level_correlation: float | None = None
     explanation: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
@@ -82,6 +86,10 @@ class TransformChoice:
             return cls(kind="box_cox", lam=float(lam))
         raise ValueError(f'transform {value!r} is not "none", "log" or {{"box_cox": lambda}}')
 
+    def name(self) -> str:
+        """``none``, ``log`` or ``Box-Cox (lambda 0.5)``: the transform in words."""
+        return f"Box-Cox (lambda {self.lam:g})" if self.kind == "box_cox" else self.kind
+
 
 def guerrero_lambda(x: np.ndarray, period: int | None = None) -> float:
     """Box-Cox lambda by Guerrero's (1993) coefficient-of-variation method.
@@ -99,6 +107,12 @@ def guerrero_lambda(x: np.ndarray, period: int | None = None) -> float:
         A strictly positive series.
     period : int, optional
         Seasonal period; None for a non-seasonal series.
+
+    Raises
+    ------
+    ValueError
+        The series is not strictly positive, or has fewer than two subseries or no spread
+        within them.
 
     Notes
     -----
@@ -134,27 +148,113 @@ def _subseries_levels_and_spreads(values: np.ndarray, length: int) -> tuple[np.n
     return blocks.mean(axis=1), blocks.std(axis=1, ddof=1)
 
 
-def choose_transform(x: np.ndarray, period: int | None = None) -> TransformChoice:
-    """Suggest no transform, the log, or a Box-Cox transform for one series.
+def simple_lambda(lam: float) -> float:
+    """A Box-Cox lambda rounded to a value that is easy to explain.
 
-    Rule, every step common practice with thresholds of our choosing:
-
-    1. only a strictly positive series is transformed;
-    2. it is cut into consecutive subseries of length ``period`` (or
-       :data:`NONSEASONAL_CHECK_LENGTH` = 4 for a non-seasonal series: the standard deviation
-       of 2 points is too noisy for a correlation); fewer than :data:`MIN_SUBSERIES` (4)
-       subseries are too few to judge, and nothing is done;
-    3. the spread must grow with the level: the correlation of subseries means and standard
-       deviations above :data:`SPREAD_LEVEL_CORRELATION_MIN` (0.5);
-    4. Guerrero's lambda must be clearly below 1: under :data:`LAMBDA_MAX_FOR_TRANSFORM` (0.5);
-    5. lambda within :data:`LOG_TOLERANCE` (0.15) of 0 gives the log, which is easier to
-       read; otherwise Box-Cox with lambda rounded to 2 decimals.
+    The nearest multiple of :data:`LAMBDA_STEP` (0.5: -1, -0.5, 0 the log, 0.5 the square
+    root, 1 no transform, ...) when within :data:`LAMBDA_TOLERANCE` (0.15) of it, else one
+    decimal; never outside :data:`LAMBDA_BOUNDS` [-1, 2]. Common practice, the steps of our
+    choosing: simple values of lambda are easier to explain (Hyndman & Athanasopoulos 2021,
+    §3.1, from memory), and the likelihood of the original data decides whether the rounded
+    value is used at all (:func:`choose_transform`).
 
     References
     ----------
-    .. [1] Guerrero (1993), *J. Forecasting* 12, 37-48.
-    .. [2] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed.,
-       §3.1 (simple values of lambda are easier to explain; from memory).
+    .. [1] Box & Cox (1964), *JRSS B* 26, 211-252.
+    .. [2] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed., §3.1.
+    """
+    nearest = LAMBDA_STEP * round(lam / LAMBDA_STEP)
+    value = nearest if abs(lam - nearest) <= LAMBDA_TOLERANCE else round(lam, LAMBDA_DECIMALS)
+    return float(min(max(value, LAMBDA_BOUNDS[0]), LAMBDA_BOUNDS[1])) + 0.0  # + 0.0: no -0.0
+
+
+def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
+    """``sum log g'(x_t)`` for the transform ``g``: what the log-likelihood of transformed data
+    gains to become that of the original data.
+
+    ``g'(x) = x**(lambda - 1)`` for Box-Cox (``1/x`` for the log, lambda = 0), 1 for none. Pass
+    the observations the likelihood covers: for a model differenced ``d + sD`` times, those
+    after the first ``d + sD`` (the likelihood is conditional on them).
+
+    References
+    ----------
+    .. [1] Box & Cox (1964), *JRSS B* 26, 211-252, §3 (the Jacobian of the transformation).
+    """
+    if transform.kind == "none" or transform.lam is None:  # lam is None only for none
+        return 0.0
+    return float((transform.lam - 1.0) * np.sum(np.log(np.asarray(x, dtype=float))))
+
+
+def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[list[TransformChoice], list[str]]:
+    """The transforms weighed against none for a strictly positive series, simplest first, and words.
+
+    The log and the square root (Box-Cox lambda 0.5), the two in common use (Box & Cox 1964;
+    Hyndman & Athanasopoulos 2021, §3.1), and Box-Cox with Guerrero's (1993) lambda rounded by
+    :func:`simple_lambda` when that is another value than 0, 0.5 and 1 (lambda 1 is a shift of
+    the data: no transform).
+
+    References
+    ----------
+    .. [1] Box & Cox (1964), *JRSS B* 26, 211-252.
+    .. [2] Guerrero (1993), *J. Forecasting* 12, 37-48.
+    .. [3] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed., §3.1.
+    """
+    alternatives = [TransformChoice("log"), TransformChoice("box_cox", lam=SQUARE_ROOT)]
+    try:
+        estimate = guerrero_lambda(x, period)
+    except ValueError as exc:
+        return alternatives, [f"Guerrero's lambda could not be estimated ({exc})."]
+    lam = simple_lambda(estimate)
+    if lam in (0.0, SQUARE_ROOT, 1.0):
+        return alternatives, [f"Guerrero's lambda {estimate:.2f} rounds to {lam:g}."]
+    alternatives.append(TransformChoice("box_cox", lam=lam))
+    return alternatives, [f"Guerrero's lambda {estimate:.2f} rounds to {lam:g}, weighed as well."]
+
+
+def choose_transform(
+    x: np.ndarray, period: int | None, order_label: str, lost: int, scale: TransformChoice,
+    loglik_on: Callable[[TransformChoice], float],
+) -> TransformChoice:
+    """No transform, the log, or Box-Cox, by the likelihood of the original data under one order.
+
+    Rule (the threshold tied to Burnham & Anderson's rule of thumb):
+
+    1. only a strictly positive series is transformed;
+    2. the order ``order_label``, the leader of the identification on the ``scale`` series, is
+       fitted with no transform and with each of :func:`transform_alternatives`
+       (``loglik_on``); the log-Jacobian over the observations its likelihood covers (those
+       after the first ``lost`` = d + sD) is added, which makes the log-likelihoods those of
+       the same original data (Box & Cox 1964, §3), so they can be compared;
+    3. simplest first (none, log, square root, Guerrero's lambda), a transform replaces the
+       choice so far only when it lowers the AIC of the original data by at least
+       :data:`CLEAR_AIC_DROP` (10), lambda counted as one estimated parameter of any
+       transform: a gain of 6 log-likelihood units over no transform, of 5 over another
+       transform. Burnham & Anderson (2002, §2.6) read an AIC difference above 10 as
+       essentially no support for the worse model; a smaller gain keeps the simpler choice,
+       since the comparison is made under an order found on one of the scales and the best of
+       several transforms is taken.
+
+    Parameters
+    ----------
+    x : ndarray
+        The series as observed.
+    period : int, optional
+        Seasonal period for Guerrero's subseries; None for a non-seasonal series.
+    order_label : str
+        The order compared under, for the words.
+    lost : int
+        Observations the order's differencing uses up (``d + sD``).
+    scale : TransformChoice
+        The transform of the series the order was identified on, for the words.
+    loglik_on : callable
+        The order's maximised log-likelihood on the series under a given transform (NaN when
+        it cannot be fitted).
+
+    References
+    ----------
+    .. [1] Box & Cox (1964), *JRSS B* 26, 211-252.
+    .. [2] Burnham & Anderson (2002), *Model Selection and Multimodel Inference*, 2nd ed., §2.6.
+    .. [3] Guerrero (1993), *J. Forecasting* 12, 37-48.
     """
     values = np.asarray(x, dtype=float)
     if (values <= 0).any():
@@ -162,51 +262,38 @@ def choose_transform(x: np.ndarray, period: int | None = None) -> TransformChoic
             "none",
             explanation=[f"The series has values <= 0 (smallest {values.min():.4g}): no log or Box-Cox transform."],
         )
-    length = period or NONSEASONAL_CHECK_LENGTH
-    means, sds = _subseries_levels_and_spreads(values, length)
-    if means.size < MIN_SUBSERIES:
-        return TransformChoice(
-            "none",
-            explanation=[
-                f"Only {means.size} subseries of length {length}: too few to judge whether the spread "
-                f"grows with the level (at least {MIN_SUBSERIES} needed); no transform."
-            ],
-        )
-    correlation = _correlation(means, sds)
-    if not correlation > SPREAD_LEVEL_CORRELATION_MIN:
-        return TransformChoice(
-            "none", spread_level_correlation=correlation,
-            explanation=[
-                f"The spread does not grow with the level (correlation of subseries means and standard "
-                f"deviations {correlation:.2f} <= {SPREAD_LEVEL_CORRELATION_MIN:.2f}): no transform."
-            ],
-        )
-    lam = guerrero_lambda(values, period)
-    grows = f"The spread grows with the level (correlation {correlation:.2f})"
-    if lam >= LAMBDA_MAX_FOR_TRANSFORM:
-        return TransformChoice(
-            "none", guerrero=lam, spread_level_correlation=correlation,
-            explanation=[
-                f"{grows}, but Guerrero's lambda {lam:.2f} is not clearly below 1 "
-                f"(>= {LAMBDA_MAX_FOR_TRANSFORM:.2f}): no transform."
-            ],
-        )
-    if abs(lam) <= LOG_TOLERANCE:
-        return TransformChoice(
-            "log", guerrero=lam, spread_level_correlation=correlation,
-            explanation=[f"{grows}; Guerrero's lambda {lam:.2f} is within {LOG_TOLERANCE:.2f} of 0 -> log transform."],
-        )
-    rounded = round(lam, LAMBDA_DECIMALS)
-    return TransformChoice(
-        "box_cox", lam=rounded, guerrero=lam, spread_level_correlation=correlation,
-        explanation=[f"{grows}; Guerrero's lambda {lam:.2f} -> Box-Cox transform with lambda {rounded:.2f}."],
+    alternatives, words = transform_alternatives(values, period)
+    scored: list[tuple[TransformChoice, float]] = []
+    for choice in [TransformChoice("none"), *alternatives]:
+        loglik = loglik_on(choice) + log_jacobian(values[lost:], choice)
+        if math.isfinite(loglik):
+            scored.append((choice, loglik))
+        else:
+            words.append(f"{order_label} could not be fitted on the {choice.name()} scale: not weighed.")
+    if not scored:
+        return TransformChoice("none", explanation=[*words, "Nothing to compare: no transform."])
+    on = "the series as observed" if scale.kind == "none" else f"the {scale.name()} scale"
+    words.append(
+        f"Under {order_label}, the leader on {on}, the log-likelihoods of the original data (Jacobian of the "
+        f"transform included, observations {lost + 1}-{values.size}) are: "
+        + ", ".join(f"{c.name()} {ll:.1f}" for c, ll in scored) + "."
     )
 
+    def aic(choice: TransformChoice, loglik: float) -> float:
+        return -2.0 * loglik + 2.0 * (choice.kind != "none")
 
-def _correlation(a: np.ndarray, b: np.ndarray) -> float:
-    if np.ptp(a) == 0 or np.ptp(b) == 0:
-        return 0.0
-    return float(np.corrcoef(a, b)[0, 1])
+    best, best_loglik = scored[0]
+    for choice, loglik in scored[1:]:
+        gain, drop = loglik - best_loglik, aic(best, best_loglik) - aic(choice, loglik)
+        said = (f"{choice.name()} {'gains' if gain >= 0 else 'loses'} {abs(gain):.1f} "
+                f"{'over' if gain >= 0 else 'to'} {best.name()} on the original scale under {order_label} "
+                f"(AIC {abs(drop):.1f} {'lower' if drop >= 0 else 'higher'}, lambda counted")
+        if drop >= CLEAR_AIC_DROP:
+            words.append(f"{said}; at least {CLEAR_AIC_DROP:g} needed).")
+            best, best_loglik = choice, loglik
+        else:
+            words.append(f"{said}): less than {CLEAR_AIC_DROP:g}, {best.name()} kept.")
+    return TransformChoice(best.kind, best.lam, explanation=words)
 
 
 def apply_transform(x: np.ndarray, choice: TransformChoice) -> np.ndarray:

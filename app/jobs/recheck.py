@@ -35,40 +35,27 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import numpy as np
 import pandas as pd
 import sqlite_utils
 
+from app.core.analysis import Analysis
 from app.core.errors import OrderError
-from app.core.fitting import LJUNG_BOX_LEVEL, ModelOrder
+from app.core.fitting import LJUNG_BOX_LEVEL
 from app.core.identify import ENGINE_VERSION
+from app.core.order import Order
 from app.core.prepare import PreparedSeries
-from app.core.transform import TransformChoice
+from app.core.transform import TransformChoice, log_jacobian
+from app.core.vocabulary import DECIDED
 from app.jobs.order_fits import fit_stored_order, load_prepared
 from app.store.analyses import analysis_record
 from app.store.database import write_transaction
-from app.store.orders import candidate_parameters, chosen_model, save_order_fit
-from app.store.verdicts import DECIDED, confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck
+from app.store.orders import save_order_fit
+from app.store.verdicts import confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck
 
 AICC_MARGIN = 10.0
 
 
-def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
-    """``sum log g'(x_t)`` for the transform ``g``: what the log-likelihood of transformed data
-    gains to become that of the original data.
-
-    ``g'(x) = x**(lambda - 1)`` for Box-Cox (``1/x`` for the log, lambda = 0), 1 for none.
-
-    References
-    ----------
-    .. [1] Box & Cox (1964), *JRSS B* 26, 211-252, §3 (the Jacobian of the transformation).
-    """
-    if transform.kind == "none":
-        return 0.0
-    return float((transform.lam - 1.0) * np.sum(np.log(np.asarray(x, dtype=float))))
-
-
-def aicc_on_original_scale(aicc: float, prepared: PreparedSeries, model: ModelOrder, transform: TransformChoice) -> float:
+def aicc_on_original_scale(aicc: float, prepared: PreparedSeries, model: Order, transform: TransformChoice) -> float:
     """The AICc of a fit on the ``transform`` scale, as the AICc of the original data.
 
     The fit's likelihood is that of the observations after the first ``d + sD`` (conditional on
@@ -82,67 +69,61 @@ class OrderCheck:
     """What the new data say about a chosen order: ``reasons`` to look again (empty when it
     holds), ``checked`` (what was found, in words), and the refit when one was made."""
 
-    model: ModelOrder
+    model: Order
     transform: TransformChoice
     reasons: list[str] = field(default_factory=list)
     checked: list[str] = field(default_factory=list)
     parameters: dict[str, float] | None = None
 
 
-def check_order(prepared: PreparedSeries, verdict: dict, result: dict) -> OrderCheck:
-    """Judge the verdict's order on ``prepared`` against the analysis ``result`` of the same data."""
+def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> OrderCheck:
+    """Judge the verdict's order on ``prepared`` against the ``analysis`` of the same data."""
     transform = TransformChoice.from_json(verdict["transform"])
-    model, candidate = chosen_model(result["candidates"], verdict["order"], verdict["seasonal_order"])
+    model, candidate = analysis.model_for(verdict["order"], verdict["seasonal_order"])
     check = OrderCheck(model, transform)
     label = model.label()
-    d, D = model.order[1], model.seasonal_order[1]
-    if (result["d"], result["D"]) != (d, D):
+    if (analysis.d, analysis.D) != (model.d, model.D):
         check.reasons.append(
-            f"the analysis now differences d = {result['d']}, D = {result['D']}; {label} has d = {d}, D = {D}"
+            f"the analysis now differences d = {analysis.d}, D = {analysis.D}; {label} has d = {model.d}, D = {model.D}"
         )
-    analysed = TransformChoice.from_json(result["transform"])
-    if candidate is not None and analysed.to_json() == transform.to_json():
-        lb_p, lb_lags, aicc = candidate["ljung_box_p"], candidate["ljung_box_lags"], candidate["aicc"]
+    if candidate is not None and analysis.transform.to_json() == transform.to_json():
+        lb_p, lb_lags, aicc = candidate.ljung_box_p, candidate.ljung_box_lags, candidate.aicc
     else:
         try:
-            fit = fit_stored_order(prepared, model, transform)
+            fit = fit_stored_order(prepared, model, transform).to_candidate(keep_residuals=False)
         except OrderError as exc:
             check.reasons.append(f"{label} can no longer be fitted: {exc}")
             return check
         lb_p, lb_lags, aicc = fit.ljung_box_p, fit.ljung_box_lags, fit.aicc
-        check.parameters = candidate_parameters(fit.to_dict())
+        check.parameters = fit.parameter_values()
     if lb_p is not None and lb_p < LJUNG_BOX_LEVEL:
         check.reasons.append(f"the residuals of {label} fail the Ljung-Box test (p = {lb_p:.3g} at {lb_lags} lags)")
     else:
         check.checked.append("Ljung-Box " + (f"p = {lb_p:.3g}" if lb_p is not None else "not computable"))
-    _compare_aicc(check, prepared, result, analysed, aicc)
+    _compare_aicc(check, prepared, analysis, aicc)
     return check
 
 
-def _compare_aicc(check: OrderCheck, prepared: PreparedSeries, result: dict, analysed: TransformChoice, aicc: float) -> None:
+def _compare_aicc(check: OrderCheck, prepared: PreparedSeries, analysis: Analysis, aicc: float) -> None:
     model = check.model
-    rivals = [
-        c for c in result["candidates"]
-        if (c["order"][1], c["seasonal_order"][1]) == (model.order[1], model.seasonal_order[1])
-        and c["order"][1] + c["seasonal_order"][1] * c["seasonal_order"][3] == model.lost_to_differencing
-    ]
+    rivals = [c for c in analysis.candidates if c.order.differencing_key() == model.differencing_key()]
     if not rivals:
         return
-    best = min(rivals, key=lambda c: c["aicc"])
+    best = min(rivals, key=lambda c: c.aicc)
     gap = (aicc_on_original_scale(aicc, prepared, model, check.transform)
-           - aicc_on_original_scale(best["aicc"], prepared, model, analysed))
+           - aicc_on_original_scale(best.aicc, prepared, model, analysis.transform))
     if gap > AICC_MARGIN:
         check.reasons.append(
-            f"the AICc of {model.label()} is {gap:.1f} above that of {best['label']}, the best candidate with "
+            f"the AICc of {model.label()} is {gap:.1f} above that of {best.label}, the best candidate with "
             f"the same differencing (margin {AICC_MARGIN:g})"
         )
     elif gap > 0:
-        check.checked.append(f"AICc {gap:.1f} above the best candidate {best['label']} (margin {AICC_MARGIN:g})")
+        check.checked.append(f"AICc {gap:.1f} above the best candidate {best.label} (margin {AICC_MARGIN:g})")
     else:
         check.checked.append("the lowest AICc of the candidates with the same differencing")
 
 
-def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: dict | None) -> str | None:
+def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: Analysis | None) -> str | None:
     """After an analysis of ``series_id`` was stored (``result``, or None for a failed one):
     re-check an approved or overridden order decided on other data (see the module notes).
     Returns the reason when the verdict was sent to ``recheck``, else None.
