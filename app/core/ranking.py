@@ -26,12 +26,20 @@ best candidate of each d is compared by :func:`common_level_bic`, a BIC computed
 one-step prediction errors over the same final stretch of time points, which are level
 prediction errors whatever the model's d.
 
+Rivals of the leader, for the confidence (:mod:`app.core.confidence`), are of two kinds. A
+candidate that *nests* the leader (:func:`nests`: the leader with terms added, the deterministic
+term included) is compared with it by a likelihood-ratio test (:func:`likelihood_ratio_p`),
+the textbook comparison of nested models; every other candidate of the same differencing, a
+smaller or a non-nested order, by its gap in rank score (:func:`margin_to_rival`).
+
 References
 ----------
 .. [1] Schwarz, G. (1978). Estimating the dimension of a model. *Ann. Statist.* 6, 461-464 (BIC).
 .. [2] Hurvich, C.M. & Tsai, C.-L. (1989). *Biometrika* 76, 297-307 (AICc).
 .. [3] Hannan, E.J. & Quinn, B.G. (1979). The determination of the order of an autoregression.
    *JRSS B* 41, 190-195 (HQIC).
+.. [4] Wilks, S.S. (1938). The large-sample distribution of the likelihood ratio for testing
+   composite hypotheses. *Ann. Math. Statist.* 9, 60-62.
 """
 
 from __future__ import annotations
@@ -39,7 +47,11 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable
 
+from scipy.special import chdtrc
+
 from app.core.fitting import CandidateFit
+from app.core.likelihood import is_nested_in
+from app.core.order import Order
 
 CRITERIA = ("bic", "aicc", "aic", "hqic")
 DEFAULT_CRITERION = "bic"
@@ -108,18 +120,92 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     return [fit for d in order for fit in ranked[d]]
 
 
+_TREND_TERMS = {"n": frozenset(), "c": frozenset("c"), "t": frozenset("t"), "ct": frozenset("ct")}
+
+
+def nests(outer: Order, inner: Order) -> bool:
+    """Whether ``outer`` is ``inner`` with more terms.
+
+    Unlike :meth:`app.core.order.Order.contains`, the deterministic term counts: ``outer`` has
+    the same differencing, every ARMA coefficient and every deterministic term of ``inner``
+    (a mean, a drift, a trend), and at least one term more. ARIMA(1,0,0) with a mean and a
+    trend nests ARIMA(1,0,0) with a mean; ARIMA(2,0,0) with a mean does not nest ARIMA(1,0,0)
+    with a mean and a trend.
+
+    Parameters
+    ----------
+    outer, inner : Order
+        The larger and the smaller model.
+
+    Returns
+    -------
+    bool
+        True when ``inner`` is ``outer`` with some terms fixed at zero.
+    """
+    if outer == inner or outer.differencing_key() != inner.differencing_key():
+        return False
+    arma = outer.arma_spec() == inner.arma_spec() or is_nested_in(inner.arma_spec(), outer.arma_spec())
+    return arma and _TREND_TERMS[inner.trend] <= _TREND_TERMS[outer.trend]
+
+
+def likelihood_ratio_p(smaller: CandidateFit, larger: CandidateFit) -> float:
+    """p-value of the likelihood-ratio test of ``smaller`` against a ``larger`` model nesting it.
+
+    Twice the rise in maximised log-likelihood is referred to chi-square with as many degrees
+    of freedom as ``larger`` has extra parameters (Wilks' theorem). Both fits are exact
+    likelihoods of the same differenced series. A ``larger`` fit below ``smaller`` (an optimiser
+    that stopped short) counts as no rise.
+
+    Parameters
+    ----------
+    smaller, larger : CandidateFit
+        Fits of two orders, ``larger.model`` nesting ``smaller.model`` (:func:`nests`).
+
+    Returns
+    -------
+    float
+        The upper tail probability of ``2 (l_larger - l_smaller)``.
+
+    References
+    ----------
+    .. [1] Wilks, S.S. (1938). The large-sample distribution of the likelihood ratio for testing
+       composite hypotheses. *Ann. Math. Statist.* 9, 60-62.
+    """
+    statistic = max(0.0, 2.0 * (larger.loglik - smaller.loglik))
+    return float(chdtrc(larger.n_params - smaller.n_params, statistic))
+
+
+def strongest_nesting_rival(ranked: list[CandidateFit]) -> tuple[CandidateFit, float] | None:
+    """The candidate nesting the leader that the likelihood-ratio test favours most.
+
+    Parameters
+    ----------
+    ranked : list of CandidateFit
+        Candidates best first; ``ranked[0]`` is the leader.
+
+    Returns
+    -------
+    tuple of (CandidateFit, float) or None
+        The undemoted candidate that nests the leader (:func:`nests`) with the smallest
+        :func:`likelihood_ratio_p`, and that p-value; None when no candidate nests the leader.
+    """
+    lead = ranked[0]
+    tested = [(f, likelihood_ratio_p(lead, f)) for f in ranked[1:] if not is_demoted(f) and nests(f.model, lead.model)]
+    return min(tested, key=lambda t: t[1], default=None)
+
+
 def margin_to_rival(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERION) -> float:
     """How far the best *rival* of the same d trails the leader in rank score (inf if none).
 
-    A rival is a candidate that does not merely extend the leader: a model that nests the
-    leader trails it by about its extra penalty (ln n per parameter under BIC) whatever the
-    data, so its gap says nothing about whether the leader is the right structure. The real
-    competitors are the non-nested orders (AR(3) against MA(1)) and the smaller ones.
+    A rival here is a candidate that does not nest the leader (:func:`nests`): a smaller order
+    or a non-nested one (AR(3) against MA(1)). A model that nests the leader trails it by about
+    its extra penalty (ln n per parameter under BIC) whatever the data, so its gap in rank score
+    says nothing; such models are judged by :func:`strongest_nesting_rival` instead.
     """
     lead = ranked[0]
     rivals = [
         f for f in ranked[1:]
-        if f.model.lost_to_differencing == lead.model.lost_to_differencing and not is_demoted(f) and not f.model.contains(lead.model)
+        if f.model.differencing_key() == lead.model.differencing_key() and not is_demoted(f) and not nests(f.model, lead.model)
     ]
     if not rivals:
         return math.inf

@@ -71,8 +71,8 @@ def accuracy_batch(n: int, replications: int, seed: int = 20261201) -> list[Simu
 
 
 def plain_kpss_d(y: np.ndarray, max_d: int = 2) -> int:
-    from statsmodels.tsa.stattools import kpss
     from statsmodels.tools.sm_exceptions import InterpolationWarning
+    from statsmodels.tsa.stattools import kpss
 
     d = 0
     while d < max_d:

@@ -15,8 +15,8 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-
 from accuracy_batch import accuracy_batch, plain_bic_grid, score
+
 from app.jobs.executors.blas import pin_blas_threads
 
 pytestmark = pytest.mark.slow

@@ -1,0 +1,132 @@
+"""The rules of ``firm`` that concern rivals nesting the suggestion and the differencing alternative.
+
+Check values: the chi-square upper 5% point for one degree of freedom is 3.841 and for two
+5.991 (any chi-square table); Wilks (1938) for the likelihood-ratio test; the Dickey-Fuller
+normalised-bias 5% point with a mean, about -14.1 (Fuller 1976, Table 8.5.1, from memory).
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from app.core.analysis import Parameter
+from app.core.confidence import (
+    MIN_DIFFERENCED_LENGTH,
+    NESTED_LEVEL_LONG,
+    NESTED_LEVEL_SHORT,
+    largest_real_ar_root,
+    nested_level,
+    score_confidence,
+    unit_root_doubt,
+)
+from app.core.fitting import CandidateFit, fit_candidate
+from app.core.order import Order
+from app.core.ranking import likelihood_ratio_p, margin_to_rival, nests, strongest_nesting_rival
+from app.core.vocabulary import Confidence
+
+
+@pytest.fixture(scope="module")
+def noise() -> np.ndarray:
+    return 10.0 + np.random.default_rng(20270316).standard_normal(300)
+
+
+@pytest.fixture(scope="module")
+def fits(noise) -> dict[str, CandidateFit]:
+    """White noise with a mean, the same with a trend, and AR(1) with a mean, fitted to white noise."""
+    wn = fit_candidate(noise, Order(0, 0, 0, trend="c"))
+    return {
+        "wn": wn,
+        "wn_trend": fit_candidate(noise, Order(0, 0, 0, trend="ct"), [wn]),
+        "ar1": fit_candidate(noise, Order(1, 0, 0, trend="c"), [wn]),
+    }
+
+
+def _with_gain(fit: CandidateFit, lead: CandidateFit, statistic: float) -> CandidateFit:
+    """``fit`` with its log-likelihood set so that ``2 (l_fit - l_lead) = statistic``."""
+    return replace(fit, loglik=lead.loglik + statistic / 2)
+
+
+def _ar(fit: CandidateFit, phi: list[float], nobs: int) -> CandidateFit:
+    """``fit`` as an AR(len(phi)) with those coefficients, fitted on ``nobs`` observations."""
+    params = [Parameter("const", 10.0, None)] + [Parameter(f"ar.L{i}", v, None) for i, v in enumerate(phi, 1)]
+    return replace(fit, model=Order(len(phi), 0, 0, trend="c"), params=params, nobs=nobs)
+
+
+@pytest.mark.parametrize("outer, inner, expected", [
+    (Order(2, 0, 0, trend="c"), Order(1, 0, 0, trend="c"), True),
+    (Order(1, 0, 1, trend="c"), Order(1, 0, 0, trend="c"), True),
+    (Order(1, 0, 0, trend="ct"), Order(1, 0, 0, trend="c"), True),
+    (Order(0, 1, 1, trend="t"), Order(0, 1, 0, trend="n"), True),
+    (Order(2, 0, 0, trend="c"), Order(1, 0, 0, trend="ct"), False),
+    (Order(0, 0, 1, trend="c"), Order(1, 0, 0, trend="c"), False),
+    (Order(1, 1, 0), Order(1, 0, 0), False),
+    (Order(1, 0, 0, trend="c"), Order(1, 0, 0, trend="c"), False),
+    (Order(1, 0, 0, 1, 0, 0, 12, "c"), Order(1, 0, 0, trend="c"), True),
+])
+def test_nests_counts_arma_terms_and_the_deterministic_term(outer, inner, expected):
+    assert nests(outer, inner) is expected
+
+
+@pytest.mark.parametrize("statistic, rival, p", [(3.841, "ar1", 0.05), (3.841, "wn_trend", 0.05), (0.0, "ar1", 1.0)])
+def test_likelihood_ratio_p_refers_twice_the_gain_to_chi_square_with_the_extra_parameters(fits, statistic, rival, p):
+    assert likelihood_ratio_p(fits["wn"], _with_gain(fits[rival], fits["wn"], statistic)) == pytest.approx(p, abs=1e-4)
+
+
+def test_likelihood_ratio_p_with_two_extra_parameters(fits, noise):
+    ar2 = fit_candidate(noise, Order(2, 0, 0, trend="c"), fits.values())
+    assert ar2.n_params - fits["wn"].n_params == 2
+    assert likelihood_ratio_p(fits["wn"], _with_gain(ar2, fits["wn"], 5.991)) == pytest.approx(0.05, abs=1e-4)
+
+
+def test_a_fit_below_the_model_it_nests_counts_as_no_gain(fits):
+    assert likelihood_ratio_p(fits["wn"], _with_gain(fits["ar1"], fits["wn"], -1.0)) == 1.0
+
+
+def test_nesting_rivals_leave_the_margin_rule_and_meet_the_likelihood_ratio_test(fits):
+    ranked = [fits["wn"], _with_gain(fits["ar1"], fits["wn"], 4.0), fits["wn_trend"]]
+    assert margin_to_rival(ranked) == float("inf")
+    rival, p = strongest_nesting_rival(ranked)
+    assert rival.model == Order(1, 0, 0, trend="c") and p == pytest.approx(0.0455, abs=1e-4)
+
+
+def test_nested_level_by_length_band():
+    assert nested_level(120) == NESTED_LEVEL_SHORT and nested_level(400) == NESTED_LEVEL_LONG
+
+
+def test_a_nesting_model_that_fits_better_keeps_the_suggestion_from_firm(fits):
+    lead = fits["wn"]
+    assert lead.passes_ljung_box and not lead.flags
+    assert score_confidence([lead, _with_gain(fits["ar1"], lead, 1.0)], [], "bic").level == Confidence.FIRM
+    score = score_confidence([lead, _with_gain(fits["ar1"], lead, 4.7)], [], "bic")
+    assert score.level == Confidence.TENTATIVE
+    assert score.reasons == ["ARIMA(1,0,0) fits better by a likelihood-ratio test (p = 0.03)"]
+
+
+def test_a_better_fit_with_a_trend_is_named_with_its_trend(fits):
+    score = score_confidence([fits["wn"], _with_gain(fits["wn_trend"], fits["wn"], 9.0)], [], "bic")
+    assert score.reasons == ["ARIMA(0,0,0) with a mean and a linear trend fits better by a likelihood-ratio test (p < 0.01)"]
+
+
+@pytest.mark.parametrize("phi, root", [([0.95], 0.95), ([1.2, -0.35], 0.7), ([-0.97], 0.0), ([1.6, -0.8], 0.0), ([], 0.0)])
+def test_largest_real_ar_root_ignores_negative_and_complex_roots(fits, phi, root):
+    # 1 - 1.2z + 0.35z^2 = (1 - 0.7z)(1 - 0.5z); 1 - 1.6z + 0.8z^2 has complex roots of modulus 0.8^-0.5.
+    assert largest_real_ar_root(_ar(fits["wn"], phi, 300)) == pytest.approx(root)
+
+
+@pytest.mark.parametrize("nobs, doubt", [(120, True), (400, False)])
+def test_an_ar_root_within_dickey_fuller_reach_of_one_is_not_firm(fits, nobs, doubt):
+    # n (1 - 0.95) = 6 at n = 120 and 20 at n = 400, against 14.1.
+    fit = _ar(fits["wn"], [0.95], nobs)
+    assert (unit_root_doubt(fit) is not None) is doubt
+    if doubt:
+        assert score_confidence([fit], [], "bic").level == Confidence.TENTATIVE
+
+
+@pytest.mark.parametrize("n, doubt", [(120, True), (MIN_DIFFERENCED_LENGTH - 1, True), (MIN_DIFFERENCED_LENGTH, False)])
+def test_a_differenced_suggestion_of_a_short_series_is_not_firm(fits, n, doubt):
+    assert MIN_DIFFERENCED_LENGTH == 282  # 14.1 / (1 - 0.95), rounded up
+    walk = replace(fits["wn"], model=Order(0, 1, 0), params=[Parameter("sigma2", 1.0, None)], nobs=n - 1)
+    assert (unit_root_doubt(walk) is not None) is doubt
