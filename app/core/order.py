@@ -83,9 +83,15 @@ class Order:
         return Order.of(order, seasonal_order, self.trend) == self
 
     def contains(self, other: Order) -> bool:
-        """Whether ``other`` is this order with some ARMA coefficients fixed at zero (same
-        differencing; the deterministic term aside)."""
-        return self.differencing_key() == other.differencing_key() and is_nested_in(other.arma_spec(), self.arma_spec())
+        """Whether ``other`` is this order with some terms fixed at zero: the same differencing,
+        every ARMA coefficient and every deterministic term of ``other`` (a mean, a drift, a
+        trend), and at least one term more. ARIMA(1,0,0) with a mean and a trend contains
+        ARIMA(1,0,0) with a mean; ARIMA(2,0,0) with a mean does not contain ARIMA(1,0,0) with a
+        mean and a trend."""
+        if self == other or self.differencing_key() != other.differencing_key():
+            return False
+        spec, inner = self.arma_spec(), other.arma_spec()
+        return (spec == inner or is_nested_in(inner, spec)) and set(other.trend) - {"n"} <= set(self.trend) - {"n"}
 
     def arma_spec(self) -> ArmaSpec:
         """The ARMA part, for the differenced series."""

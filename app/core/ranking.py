@@ -50,8 +50,6 @@ from collections.abc import Iterable
 from scipy.special import chdtrc
 
 from app.core.fitting import CandidateFit
-from app.core.likelihood import is_nested_in
-from app.core.order import Order
 
 CRITERIA = ("bic", "aicc", "aic", "hqic")
 DEFAULT_CRITERION = "bic"
@@ -120,34 +118,6 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     return [fit for d in order for fit in ranked[d]]
 
 
-_TREND_TERMS = {"n": frozenset(), "c": frozenset("c"), "t": frozenset("t"), "ct": frozenset("ct")}
-
-
-def nests(outer: Order, inner: Order) -> bool:
-    """Whether ``outer`` is ``inner`` with more terms.
-
-    Unlike :meth:`app.core.order.Order.contains`, the deterministic term counts: ``outer`` has
-    the same differencing, every ARMA coefficient and every deterministic term of ``inner``
-    (a mean, a drift, a trend), and at least one term more. ARIMA(1,0,0) with a mean and a
-    trend nests ARIMA(1,0,0) with a mean; ARIMA(2,0,0) with a mean does not nest ARIMA(1,0,0)
-    with a mean and a trend.
-
-    Parameters
-    ----------
-    outer, inner : Order
-        The larger and the smaller model.
-
-    Returns
-    -------
-    bool
-        True when ``inner`` is ``outer`` with some terms fixed at zero.
-    """
-    if outer == inner or outer.differencing_key() != inner.differencing_key():
-        return False
-    arma = outer.arma_spec() == inner.arma_spec() or is_nested_in(inner.arma_spec(), outer.arma_spec())
-    return arma and _TREND_TERMS[inner.trend] <= _TREND_TERMS[outer.trend]
-
-
 def likelihood_ratio_p(smaller: CandidateFit, larger: CandidateFit) -> float:
     """p-value of the likelihood-ratio test of ``smaller`` against a ``larger`` model nesting it.
 
@@ -190,7 +160,7 @@ def strongest_nesting_rival(ranked: list[CandidateFit]) -> tuple[CandidateFit, f
         :func:`likelihood_ratio_p`, and that p-value; None when no candidate nests the leader.
     """
     lead = ranked[0]
-    tested = [(f, likelihood_ratio_p(lead, f)) for f in ranked[1:] if not is_demoted(f) and nests(f.model, lead.model)]
+    tested = [(f, likelihood_ratio_p(lead, f)) for f in ranked[1:] if not is_demoted(f) and f.model.contains(lead.model)]
     return min(tested, key=lambda t: t[1], default=None)
 
 
@@ -205,7 +175,7 @@ def margin_to_rival(ranked: list[CandidateFit], criterion: str = DEFAULT_CRITERI
     lead = ranked[0]
     rivals = [
         f for f in ranked[1:]
-        if f.model.differencing_key() == lead.model.differencing_key() and not is_demoted(f) and not nests(f.model, lead.model)
+        if f.model.differencing_key() == lead.model.differencing_key() and not is_demoted(f) and not f.model.contains(lead.model)
     ]
     if not rivals:
         return math.inf

@@ -24,7 +24,7 @@ from app.core.confidence import (
 )
 from app.core.fitting import CandidateFit, fit_candidate
 from app.core.order import Order
-from app.core.ranking import likelihood_ratio_p, margin_to_rival, nests, strongest_nesting_rival
+from app.core.ranking import likelihood_ratio_p, margin_to_rival, strongest_nesting_rival
 from app.core.vocabulary import Confidence
 
 
@@ -67,7 +67,7 @@ def _ar(fit: CandidateFit, phi: list[float], nobs: int) -> CandidateFit:
     (Order(1, 0, 0, 1, 0, 0, 12, "c"), Order(1, 0, 0, trend="c"), True),
 ])
 def test_nests_counts_arma_terms_and_the_deterministic_term(outer, inner, expected):
-    assert nests(outer, inner) is expected
+    assert outer.contains(inner) is expected
 
 
 @pytest.mark.parametrize("statistic, rival, p", [(3.841, "ar1", 0.05), (3.841, "wn_trend", 0.05), (0.0, "ar1", 1.0)])
