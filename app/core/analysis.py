@@ -218,9 +218,12 @@ class SeasonalSummary:
     flags: tuple[str, ...]
     explanation: tuple[str, ...]
     words: tuple[str, ...]
+    stability_statistic: float | None = None
+    stability_p: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return {"D": self.D, "period": self.examined_period,
+                "stability_statistic": self.stability_statistic, "stability_p": self.stability_p,
                 "seasonal_strength": self.seasonal_strength, "trend_strength": self.trend_strength,
                 "threshold": self.threshold, "seasons": self.seasons, "enough_seasons": self.enough_seasons,
                 "seasonal_terms_possible": self.seasonal_terms_possible, "flags": list(self.flags),
@@ -232,7 +235,8 @@ class SeasonalSummary:
         return cls(data.get("examined_period"), int(data.get("D", 0)), data.get("seasonal_strength"),
                    data.get("trend_strength"), data.get("threshold"), data.get("seasons"), data.get("enough_seasons"),
                    data.get("seasonal_terms_possible"), tuple(data.get("flags", ())),
-                   tuple(data.get("explanation", ())), tuple(data.get("words", ())))
+                   tuple(data.get("explanation", ())), tuple(data.get("words", ())),
+                   data.get("stability_statistic"), data.get("stability_p"))
 
 
 @dataclass(frozen=True)

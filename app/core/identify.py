@@ -49,7 +49,7 @@ from app.core.analysis import Analysis, Correlation, DifferencingSummary, Season
 from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
 from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
 from app.core.errors import OrderError, SeriesProblem
-from app.core.fitting import CandidateFit, ScreenedCandidate, fit_candidate, screen_candidate
+from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
@@ -76,6 +76,7 @@ MIN_RESIDUAL_DF = 8
 SCREEN_SLACK = 2.0
 SCREEN_MARGIN = FIRM_MARGIN
 TRANSFORM_PASSES = 2
+SEASONAL_MA_BOUNDARY = 0.9
 
 Orders = tuple[int, int, int, int, str]  # (p, q, P, Q, trend)
 
@@ -130,6 +131,8 @@ class SeasonalSetup:
             threshold=sd.threshold if sd else None, seasons=sd.seasons if sd else None,
             enough_seasons=sd.enough_seasons if sd else None, seasonal_terms_possible=sd.seasonal_terms_possible if sd else None,
             flags=tuple(sd.flags) if sd else (), explanation=tuple(sd.explanation) if sd else (), words=tuple(self.words),
+            stability_statistic=sd.stability.statistic if sd and sd.stability else None,
+            stability_p=sd.stability.p_value if sd and sd.stability else None,
         )
 
 
@@ -422,6 +425,31 @@ def seasonal_grid(proposals: dict[tuple[int, int], list[str]], max_P: int, max_Q
     return {(P, Q): list(proposals.get((P, Q), ["seasonal grid"])) for P in range(max_P + 1) for Q in range(max_Q + 1)}
 
 
+def fixed_seasonality_words(leader: CandidateFit, seasonal: SeasonalSetup) -> str | None:
+    """Words for a seasonal difference that looks one too many, or None.
+
+    Two independent signs must agree: the Canova-Hansen test did not reject a fixed seasonal
+    pattern (:mod:`app.core.seasonal_stability`), and the leader, fitted after the seasonal
+    difference, has a seasonal MA inverse root of modulus at least :data:`SEASONAL_MA_BOUNDARY`
+    (0.9, our choice). A seasonal difference of fixed seasonal means leaves exactly the factor
+    ``1 − B^s`` in the MA part, an inverse root on the unit circle: the classical sign of
+    over-differencing (Box, Jenkins, Reinsel & Ljung 2015, §4.1.3 and §9.2, from memory; Abraham
+    & Ledolter 1983, §6.5, from memory). The forecasts of such a model are close to those of
+    fixed seasonal means, so the order still serves; the flag tells the reviewer that seasonal
+    dummies with D = 0 are the more direct model.
+    """
+    sd = seasonal.differencing
+    if leader.model.D != 1 or not sd or not sd.stability or not sd.stability.fixed or leader.estimate is None:
+        return None
+    seasonal_ma = factor_roots(leader.estimate.spec, leader.estimate.coefficients)[3]
+    if not seasonal_ma.size or float(np.max(1.0 / np.abs(seasonal_ma))) < SEASONAL_MA_BOUNDARY:
+        return None
+    return (f"The seasonal pattern looks fixed: the Canova-Hansen test did not reject it (p = {sd.stability.p_value:.2f}) "
+            f"and the seasonal MA of {leader.model.label()} sits near the unit circle, the trace a seasonal difference "
+            "of fixed seasonal means leaves. Its forecasts are close to fixed seasonal means; seasonal dummies "
+            "with D = 0 model that more directly.")
+
+
 def _identify_on(
     prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions
 ) -> Identification:
@@ -451,6 +479,10 @@ def _identify_on(
     for flag in best.flags + ([] if best.passes_ljung_box else [Flag.RESIDUAL_AUTOCORRELATION]):
         if flag not in flags:
             flags.append(flag)
+    fixed = fixed_seasonality_words(best, seasonal)
+    if fixed:
+        flags.append(Flag.FIXED_SEASONALITY)
+        seasonal.words.append(fixed)
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,

@@ -9,6 +9,14 @@
 * :func:`seasonal_structure_present` tells whether the correlogram shows anything at the
   seasonal lags, so the engine can say "no seasonal structure at lag s" instead of forcing a
   seasonal model; :func:`seasonal_lags` lists the lags ``s, 2s, ...`` a correlogram marks.
+* When the strength calls for a seasonal difference, the Canova-Hansen test of a fixed seasonal
+  pattern (:mod:`app.core.seasonal_stability`) runs beside it and its result is reported. It
+  does not overrule the strength: on short monthly series it has little power (a monthly
+  seasonal random walk was rejected in 0 of 60 runs at 72 points, 46 of 60 at 120 and 60 of 60
+  at 240; measured once, seed 11, with the simulation of ``tests/core/test_seasonal_stability.py``),
+  so a non-rejection is weak evidence on its own. The engine acts on it only together with the
+  leader's own sign of a fixed pattern, a seasonal MA near −1
+  (:func:`app.core.identify.fixed_seasonality_words`).
 
 The OCSB test (Osborn, Chui, Smith & Birchenhall 1988) is not implemented: statsmodels does not
 have it and its critical values could not be checked against a published table here.
@@ -34,6 +42,7 @@ from pandas.tseries.frequencies import to_offset
 from statsmodels.tsa.seasonal import STL
 
 from app.core.errors import OrderError
+from app.core.seasonal_stability import SeasonalStability, canova_hansen
 from app.core.vocabulary import Flag
 
 SEASONAL_STRENGTH_THRESHOLD = 0.64
@@ -90,6 +99,7 @@ class SeasonalDifferencing:
     seasonal_terms_possible: bool
     flags: list[str] = field(default_factory=list)
     explanation: list[str] = field(default_factory=list)
+    stability: SeasonalStability | None = None
 
 
 def default_period(freq: str) -> int | None:
@@ -294,6 +304,8 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     elif above:
         result.D = 1
         result.explanation.append(f"{comparison} -> differenced once at lag {period}.")
+        result.stability = canova_hansen(x, period)
+        result.explanation.append(result.stability.words())
     else:
         result.explanation.append(f"{comparison} -> no seasonal differencing at lag {period}.")
     return result

@@ -35,6 +35,7 @@ class Flag(StrEnum):
     RESIDUAL_AUTOCORRELATION = "residual_autocorrelation"
     NEAR_UNIT_ROOT = "near_unit_root"
     REDUNDANT_ROOTS = "redundant_roots"
+    FIXED_SEASONALITY = "fixed_seasonality"
 
 
 class VerdictStatus(StrEnum):

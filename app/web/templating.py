@@ -35,6 +35,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
     Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
     Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
+    Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
 }
 
 
