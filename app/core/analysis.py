@@ -272,6 +272,7 @@ class Analysis:
     screened_out: tuple[Order, ...]
     screen_margin: float
     engine_version: str
+    data_notes: tuple[str, ...] = ()
 
     @property
     def suggested(self) -> Candidate:
@@ -356,6 +357,7 @@ class Analysis:
             "screened_out": [o.to_json() for o in self.screened_out],
             "screen_margin": self.screen_margin,
             "engine_version": self.engine_version,
+            "data_notes": list(self.data_notes),
         }
 
     @classmethod
@@ -392,7 +394,7 @@ class Analysis:
             identified_label=str(data["identified_on"]["label"]), gaps_filled=int(data.get("gaps_filled", 0)),
             criterion=str(data.get("criterion", "bic")), candidates=with_deltas(candidates),
             screened_out=screened, screen_margin=float(data.get("screen_margin", 0.0)),
-            engine_version=str(data.get("engine_version", "")),
+            engine_version=str(data.get("engine_version", "")), data_notes=tuple(data.get("data_notes", ())),
         )
 
 

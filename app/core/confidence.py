@@ -5,7 +5,9 @@ every check is clean:
 
 1. the differencing tests agree, the series is long enough and has no long gap, the suggested
    model converged, passes the Ljung-Box test at 5%, has no root on the edge and no nearly
-   cancelling roots;
+   cancelling roots, leaves no residual beyond the outlier threshold
+   (:mod:`app.core.residual_outliers`), and the series is not intermittent or lumpy demand
+   (:mod:`app.core.demand`);
 2. no smaller or non-nested candidate of the same differencing comes within
    :data:`FIRM_MARGIN` of it in rank score (:func:`app.core.ranking.margin_to_rival`);
 3. no candidate that nests it (the suggestion with terms added, a mean, drift or trend
@@ -63,6 +65,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -183,7 +186,7 @@ def _p_words(p: float) -> str:
     return f"= {p:.2f}" if p >= 0.01 else "< 0.01"
 
 
-def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str) -> ConfidenceScore:
+def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str, doubts: Sequence[str] = ()) -> ConfidenceScore:
     """Score the leading candidate of ``ranked`` (see the module notes).
 
     Parameters
@@ -194,6 +197,9 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
         The flags of the series and of the suggested fit.
     criterion : str
         The criterion of the rank score (``bic`` by default).
+    doubts : sequence of str
+        Reasons found outside the ranking that keep the suggestion from ``firm``, in words
+        (a residual the model does not explain, intermittent demand).
 
     Returns
     -------
@@ -207,6 +213,7 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
         reasons += [f"flag: {f}" for f in weak] or ["the best model fails its residual checks"]
         return ConfidenceScore(Confidence.WEAK, reasons)
     reasons += [f"flag: {f}" for f in sorted(f for f in NOT_FIRM_FLAGS if f in flags)]
+    reasons += list(doubts)
     margin = margin_to_rival(ranked, criterion)
     if margin < FIRM_MARGIN:
         reasons.append(f"the best rival is within {margin:.1f} of the suggestion in {criterion.upper()} rank score")

@@ -48,12 +48,14 @@ from app import __version__
 from app.core.analysis import Analysis, Correlation, DifferencingSummary, SeasonalSummary, with_deltas
 from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
 from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
+from app.core.demand import classify_demand
 from app.core.errors import OrderError, SeriesProblem
 from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
+from app.core.residual_outliers import largest_residual
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
@@ -153,6 +155,7 @@ class Identification:
     criterion: str
     flags: list[str] = field(default_factory=list)
     screened_out: list[Order] = field(default_factory=list)
+    data_notes: list[str] = field(default_factory=list)
 
     @property
     def suggested(self) -> CandidateFit:
@@ -199,7 +202,7 @@ class Identification:
             patterns=tuple(self.pattern_words), identified_on=tuple(float(v) for v in self.identified_on),
             identified_label=self.identified_label, gaps_filled=self.prepared.gaps_filled, criterion=self.criterion,
             candidates=with_deltas(candidates), screened_out=tuple(self.screened_out), screen_margin=SCREEN_MARGIN,
-            engine_version=ENGINE_VERSION,
+            engine_version=ENGINE_VERSION, data_notes=tuple(self.data_notes),
         )
 
 
@@ -483,12 +486,23 @@ def _identify_on(
     if fixed:
         flags.append(Flag.FIXED_SEASONALITY)
         seasonal.words.append(fixed)
+    data_notes, doubts = [], []
+    demand = classify_demand(prepared.values)
+    if demand and demand.sparse:  # smooth and erratic series are left to the ARIMA without comment
+        data_notes.append(demand.words())
+        flags.append(Flag.INTERMITTENT_DEMAND)
+        doubts.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
+    large = largest_residual(best.residuals, prepared.index)
+    if large:
+        flags.append(Flag.LARGE_RESIDUAL)
+        data_notes.append(large.words())
+        doubts.append(f"a residual of {large.z:+.1f} robust SD at {large.when} that the model does not explain")
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,
         identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d),
-        pattern_words=seasonal.words + shown.words, candidates=ranked,
-        confidence=score_confidence(ranked, flags, options.criterion), criterion=options.criterion, flags=flags,
+        pattern_words=seasonal.words + shown.words, candidates=ranked, data_notes=data_notes,
+        confidence=score_confidence(ranked, flags, options.criterion, doubts), criterion=options.criterion, flags=flags,
         screened_out=[m for found in searches.values() for m in found.screened_out],
     )
 

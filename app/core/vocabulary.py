@@ -36,6 +36,8 @@ class Flag(StrEnum):
     NEAR_UNIT_ROOT = "near_unit_root"
     REDUNDANT_ROOTS = "redundant_roots"
     FIXED_SEASONALITY = "fixed_seasonality"
+    LARGE_RESIDUAL = "large_residual"
+    INTERMITTENT_DEMAND = "intermittent_demand"
 
 
 class VerdictStatus(StrEnum):

@@ -36,6 +36,8 @@ FLAG_WORDS: dict[str, str] = {
     Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
     Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
     Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
+    Flag.LARGE_RESIDUAL: "a residual beyond the outlier threshold: an outlier or a shift the model does not explain",
+    Flag.INTERMITTENT_DEMAND: "intermittent or lumpy demand: a Gaussian ARIMA suits it poorly",
 }
 
 

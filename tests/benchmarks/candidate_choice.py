@@ -1,7 +1,7 @@
 """Would a forecast check on the training data choose better orders than the criterion?
 
-Run from the repository root (not collected by pytest; asserts nothing; about an hour on two
-cores):
+Run from the repository root (not collected by pytest; asserts nothing; about 20 minutes on
+two cores):
 
     .venv/bin/python tests/benchmarks/candidate_choice.py [--jobs 2] [--only NAME ...]
         [--out test-artifacts/candidate_choice.json]

@@ -1,0 +1,102 @@
+"""Residuals the model does not explain: the largest robustly standardised residual of a fit.
+
+An outlier, a level shift or a temporary change leaves a residual far beyond what the
+innovation variance allows. Before any outlier is modelled, the engine only needs to know
+whether the leading model leaves such a residual, and where: that blocks ``firm`` and tells
+the reviewer what to look at.
+
+* **Scale**: the residuals are divided by a robust estimate of the innovation standard
+  deviation, ``1.483 × median |e_t − median(e)|`` (the median absolute deviation, consistent
+  for the normal), so that the outliers themselves do not inflate it. Chen & Liu (1993) use a
+  robust scale for the same reason (from memory).
+* **Threshold** ``C``: 3.0 up to 100 observations and 3.5 from 200, linear in between. Chen &
+  Liu (1993) recommend critical values of about 3.0 for short series and 3.5 for long ones
+  (from memory); the interpolation between is ours. With Gaussian innovations the largest of
+  ``n`` standardised residuals passes ``C`` by chance in about 1 − (1 − 2Φ(−C))^n of clean
+  series: about 24% at n = 100 and 17% at n = 400, the price of letting no unexplained spike
+  through as ``firm``.
+
+References
+----------
+.. [1] Chen, C. & Liu, L.-M. (1993). Joint estimation of model parameters and outlier effects
+   in time series. *JASA* 88, 284-297.
+.. [2] Hampel, F.R. (1974). The influence curve and its role in robust estimation. *JASA* 69,
+   383-393 (the median absolute deviation and its constant 1.4826).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+MAD_TO_SD = 1.4826
+SHORT_LENGTH, LONG_LENGTH = 100, 200
+SHORT_THRESHOLD, LONG_THRESHOLD = 3.0, 3.5
+
+
+@dataclass(frozen=True)
+class LargeResidual:
+    """The largest standardised residual of a fit, where it falls, and the threshold it passed."""
+
+    position: int
+    when: str
+    z: float
+    threshold: float
+
+    def words(self) -> str:
+        return (f"A residual of {self.z:+.1f} robust standard deviations at {self.when} is beyond the outlier "
+                f"threshold {self.threshold:.1f}: an outlier, a level shift or a change the model does not explain.")
+
+
+def outlier_threshold(n: int) -> float:
+    """The critical value ``C`` for a series of ``n`` observations (see the module notes)."""
+    if n <= SHORT_LENGTH:
+        return SHORT_THRESHOLD
+    if n >= LONG_LENGTH:
+        return LONG_THRESHOLD
+    share = (n - SHORT_LENGTH) / (LONG_LENGTH - SHORT_LENGTH)
+    return SHORT_THRESHOLD + share * (LONG_THRESHOLD - SHORT_THRESHOLD)
+
+
+def robust_scale(residuals: np.ndarray) -> float:
+    """``1.4826 × median |e − median(e)|`` (Hampel 1974)."""
+    e = np.asarray(residuals, dtype=float)
+    return float(MAD_TO_SD * np.median(np.abs(e - np.median(e))))
+
+
+def largest_residual(residuals: np.ndarray, index: pd.Index) -> LargeResidual | None:
+    """The largest robustly standardised residual when it passes :func:`outlier_threshold`.
+
+    Parameters
+    ----------
+    residuals : ndarray
+        One-step prediction errors of a fit; they belong to the last ``len(residuals)`` points
+        of the series (the first ones are lost to differencing).
+    index : pandas.Index
+        The series' time index, to say when the residual fell.
+
+    Returns
+    -------
+    LargeResidual or None
+        None when every residual is within the threshold, or the robust scale is zero.
+    """
+    e = np.asarray(residuals, dtype=float)
+    scale = robust_scale(e) if e.size else 0.0
+    if scale <= 0.0:
+        return None
+    z = (e - np.median(e)) / scale
+    i = int(np.argmax(np.abs(z)))
+    threshold = outlier_threshold(len(index))
+    if abs(z[i]) <= threshold:
+        return None
+    position = len(index) - e.size + i
+    return LargeResidual(position=position, when=_moment(index[position]), z=float(z[i]), threshold=threshold)
+
+
+def _moment(stamp: object) -> str:
+    """A time stamp as a reader writes it: the date alone at midnight, else date and time."""
+    if isinstance(stamp, pd.Timestamp):
+        return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")
+    return str(stamp)

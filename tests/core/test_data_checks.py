@@ -1,0 +1,91 @@
+"""Residuals the model does not explain (app/core/residual_outliers.py) and intermittent demand
+(app/core/demand.py), each checked against its published definition, and the engine's use of
+them: neither can leave a suggestion ``firm``."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy.stats import median_abs_deviation, norm
+
+from app.core.demand import classify_demand
+from app.core.identify import identify_series
+from app.core.residual_outliers import largest_residual, outlier_threshold, robust_scale
+from app.core.vocabulary import Confidence, Flag
+
+
+def test_robust_scale_is_scipys_normal_consistent_mad():
+    e = np.random.default_rng(1).standard_t(4, size=301)
+    assert robust_scale(e) == pytest.approx(median_abs_deviation(e, scale="normal"), rel=1e-4)
+
+
+def test_threshold_follows_chen_and_liu_by_length():
+    # Chen & Liu (1993): about 3.0 for short series, 3.5 for long ones (from memory); ours between.
+    assert outlier_threshold(60) == 3.0
+    assert outlier_threshold(150) == pytest.approx(3.25)
+    assert outlier_threshold(5000) == 3.5
+
+
+def test_chance_rate_on_gaussian_noise_matches_the_formula():
+    rng = np.random.default_rng(20261203)
+    n, runs = 400, 600
+    index = pd.RangeIndex(n)
+    hits = sum(largest_residual(rng.normal(size=n), index) is not None for _ in range(runs))
+    expected = 1.0 - (1.0 - 2.0 * norm.sf(3.5)) ** n  # the largest of n |z| passing C = 3.5
+    sd = np.sqrt(expected * (1 - expected) / runs)
+    assert abs(hits / runs - expected) < 4 * sd
+
+
+def test_a_spike_is_found_where_it_is():
+    rng = np.random.default_rng(3)
+    e = rng.normal(size=200)
+    e[137] += 9.0
+    index = pd.date_range("2024-01-01", periods=210, freq="D")
+    found = largest_residual(e, index)  # residuals of the last 200 of 210 points
+    assert found is not None and found.position == 147 and found.when == "2024-05-27"
+    assert found.z > 8.0
+
+
+def test_demand_classes_from_a_hand_computed_example():
+    # y = 0 0 5 0 3 0 0 4: ADI = 8 / 3 = 2.67 >= 1.32; sizes 5, 3, 4: mean 4, population
+    # variance 2/3, CV² = 0.042 < 0.49 -> intermittent (Syntetos, Boylan & Croston 2005).
+    found = classify_demand(np.array([0, 0, 5, 0, 3, 0, 0, 4.0]))
+    assert found is not None
+    assert found.adi == pytest.approx(8 / 3) and found.cv2 == pytest.approx((2 / 3) / 16)
+    assert found.label == "intermittent" and found.sparse
+    assert classify_demand(np.array([0, 1, 20, 0, 2, 0, 0, 30.0])).label == "lumpy"
+    assert classify_demand(np.array([0, 10, 11, 9, 10, 12, 10, 9.0])).label == "smooth"
+    assert classify_demand(np.array([0, 1, 20, 2, 30, 1, 25, 3.0])).label == "erratic"
+    assert classify_demand(np.array([1.0, 2.0, 3.0])) is None  # no zero: not demand-like
+    assert classify_demand(np.array([0.0, -1.0, 3.0, 4.0])) is None  # negative values
+
+
+def _ar1(rng, n, phi):
+    e = rng.normal(size=n + 50)
+    x = np.zeros(n + 50)
+    for t in range(1, n + 50):
+        x[t] = phi * x[t - 1] + e[t]
+    return x[50:]
+
+
+def test_engine_does_not_call_a_spiked_series_firm():
+    rng = np.random.default_rng(8)
+    y = 20 + _ar1(rng, 300, 0.6)
+    clean = identify_series(pd.Series(y, pd.date_range("2020-01-01", periods=300, freq="D")), "clean")
+    y[180] += 8.0
+    spiked = identify_series(pd.Series(y, pd.date_range("2020-01-01", periods=300, freq="D")), "spiked")
+    assert Flag.LARGE_RESIDUAL not in clean.flags
+    assert Flag.LARGE_RESIDUAL in spiked.flags
+    assert spiked.confidence.level != Confidence.FIRM
+    assert any("2020-06-29" in reason for reason in spiked.confidence.reasons)
+
+
+def test_engine_flags_intermittent_demand_and_never_calls_it_firm():
+    rng = np.random.default_rng(4)
+    sales = np.where(rng.random(200) < 0.15, rng.poisson(4, 200) + 1, 0).astype(float)
+    found = identify_series(pd.Series(sales, pd.date_range("2022-01-03", periods=200, freq="D")), "slow/item")
+    assert Flag.INTERMITTENT_DEMAND in found.flags
+    assert found.confidence.level != Confidence.FIRM
+    assert any("Croston" in words for words in found.data_notes)
+    assert found.to_analysis().data_notes == tuple(found.data_notes)
