@@ -66,7 +66,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit
+
+from app.core.numba_cache import njit
 
 LOG_2PI = math.log(2.0 * math.pi)
 DOUBLING_STEPS = 64
