@@ -244,6 +244,17 @@ def test_fit_fragment_is_a_partial(client):
     assert bad.status_code == 422 and "whole number" in bad.text and "<html" not in bad.text
 
 
+def test_a_note_belongs_to_its_own_decision(client, db, results):
+    client.post(page(SERIES, "/verdict"), data=decision(action="save", choice="2", note="peak season"), follow_redirects=False)
+    shown = client.get(page(SERIES)).text
+    assert "Note with it: peak season" in shown
+    assert re.search(r'<textarea name="note"[^>]*>\s*</textarea>', shown)  # the note box starts empty
+    client.post(page(SERIES, "/verdict"), data=decision(version=1, action="approve"), follow_redirects=False)
+    verdict = get_verdict(db, SERIES)
+    assert verdict["status"] == "approved" and verdict["note"] in ("", None)
+    assert [h["note"] for h in verdict_history(db, SERIES)][-2:] in (["peak season", ""], ["peak season", None])
+
+
 def test_form_bad_custom_order_is_422_and_keeps_input(client, db):
     fields = decision(action="save", choice="custom", p="12", d="0", q="0", note="typed note")
     response = client.post(page(SERIES, "/verdict"), data=fields)
