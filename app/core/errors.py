@@ -11,6 +11,16 @@ from __future__ import annotations
 
 from typing import Any, ClassVar
 
+# Cells, ids and column names are echoed in messages (terminal, pages, the stored rejection
+# list) at most this long: enough to recognise a value, never a 20 MB cell.
+ECHO_CHARS = 80
+
+
+def shorten(text: str, limit: int = ECHO_CHARS) -> str:
+    """``text`` cut to its first ``limit`` characters followed by "…" when it is longer; every
+    message that echoes something read from a file passes it through here."""
+    return text if len(text) <= limit else f"{text[:limit]}…"
+
 
 class LagdeskError(Exception):
     """Base class of every error Lagdesk reports to a user (422: a request that cannot be done)."""

@@ -3,36 +3,36 @@
 *Long* layout: one row per observation, columns ``series_id,timestamp,value`` by default.
 *Wide* layout: one time column and one column per series.
 
-Timestamps are dates/datetimes or plain integer steps (1, 2, 3, ...). Empty value cells are
-missing observations (gaps), not errors. A cell that is not a number, or is not finite
-(``nan``, ``inf``, a value that overflows), makes its series unusable and is reported with the
-line it is on; the other series are still read. Anything that makes the whole file unusable
-raises :class:`~app.core.errors.InputFileError`.
+The file is read in chunks (:mod:`app.core.csv_chunks`), so memory holds the numbers kept, not
+the text: a series past the points limit, or with a bad cell, stops being kept as soon as it is
+seen, and a file past the series limit is refused as soon as the series that passes it appears.
+Timestamps follow :mod:`app.core.timestamp_column` (steps or dates, one date format, one time
+zone). Empty value cells are missing observations (gaps), not errors. A cell that is not a
+number, or is not finite (``nan``, ``inf``, a value that overflows), makes its series unusable
+and is reported with the line it is on; so is a series id that :func:`~app.core.series_ids.id_problem`
+refuses; the other series are still read. Anything that makes the whole file unusable raises
+:class:`~app.core.errors.InputFileError`. Line numbers are physical lines of the file (the
+header is line 1), also after a quoted cell that spans lines.
 """
 
 from __future__ import annotations
 
-import csv
-import io
-import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from app.core.errors import InputFileError, SeriesProblem
+from app.core.csv_chunks import CsvChunks, RowChunk, joined
+from app.core.errors import InputFileError, SeriesProblem, shorten
+from app.core.series_ids import id_problem
+from app.core.timestamp_column import TimestampColumn
 
 LAYOUTS = ("long", "wide")
 DEFAULT_ID_COL = "series_id"
 DEFAULT_TIME_COL = "timestamp"
 DEFAULT_VALUE_COL = "value"
-FIRST_DATA_LINE = 2  # line 1 is the header
-# Integer steps beyond 2**53 are not exact as floats (and beyond 2**63 do not fit the store).
-MAX_INTEGER_STEP = 2**53
-# Dates are kept as nanoseconds since 1970 (pandas' default unit), which spans these years.
-STORABLE_YEARS = f"{pd.Timestamp.min.year + 1}-{pd.Timestamp.max.year - 1}"
-_ZONE_SUFFIX = r"(?i)(?<=\d)(z|[+-]\d\d:?\d\d)$"
+_NOT_FINITE_WORDS = frozenset({"nan", "inf", "infinity"})
 
 
 @dataclass
@@ -61,6 +61,7 @@ class PortfolioFile:
     """The readable series of a file and the problems of the unreadable ones."""
 
     path: str
+    layout: str = "long"
     series: list[RawSeries] = field(default_factory=list)
     problems: list[SeriesProblem] = field(default_factory=list)
 
@@ -73,6 +74,7 @@ def read_portfolio(
     value_col: str = DEFAULT_VALUE_COL,
     display_name: str | None = None,
     limits: ReadLimits | None = None,
+    date_format: str | None = None,
 ) -> PortfolioFile:
     """Read a long or wide CSV file into raw series.
 
@@ -87,206 +89,280 @@ def read_portfolio(
     display_name : str, optional
         The name used in messages (e.g. the uploaded file's name); defaults to ``path``.
     limits : ReadLimits, optional
-        Most series per file and rows per series (a server sets these for uploads).
+        Most series per file and rows per series (none when not given).
+    date_format : str, optional
+        The ``strftime`` format of the dates (``%d/%m/%Y``); by default the first timestamp's.
 
     Raises
     ------
     InputFileError
-        When the file cannot be read at all or lacks a required column.
+        When the file cannot be read at all, lacks a required column, holds too many series or
+        timestamps that cannot be read (see :mod:`app.core.timestamp_column`).
     """
     name = display_name or str(path)
     if layout not in LAYOUTS:
         raise InputFileError(name, f"layout must be one of {', '.join(LAYOUTS)}, not {layout!r}")
-    table = _read_table(Path(path), name)
-    if layout == "long":
-        return _read_long(table, name, id_col, time_col, value_col, limits)
-    return _read_wide(table, name, time_col, limits)
+    with CsvChunks(Path(path), name) as table:
+        stamps = TimestampColumn(name, date_format)
+        reader: _LongReader | _WideReader
+        if layout == "long":
+            reader = _LongReader(table, stamps, id_col, time_col, value_col, limits)
+        else:
+            reader = _WideReader(table, stamps, time_col, limits)
+        rows = 0
+        for chunk in table.chunks():
+            rows += len(chunk)
+            reader.add(chunk)
+        if not rows:
+            raise InputFileError(name, "has a header but no data rows")
+        return reader.result()
 
 
-def _check_limits(name: str, series_count: int, limits: ReadLimits | None) -> None:
-    if limits is not None and series_count > limits.max_series:
-        raise InputFileError(name, f"holds {series_count:,} series; at most {limits.max_series:,} are accepted in one file")
+def _column_positions(table: CsvChunks, columns: list[str]) -> list[int]:
+    """Where each named column is in the header; a missing or repeated one is an error."""
+    header = table.header
+    missing = [c for c in columns if c not in header]
+    if missing:
+        found = ", ".join(repr(shorten(c)) for c in header[:10])
+        hint = ""
+        if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
+            hint = " (the file may use another delimiter than a comma)"
+        raise InputFileError(
+            table.name, f"no column named {', '.join(repr(shorten(c)) for c in missing)}; the header has {found}{hint}"
+        )
+    for column in columns:
+        _refuse_repeated(table, column)
+    return [header.index(c) for c in columns]
 
 
-def _too_many_points(series_id: str, lines: np.ndarray, limits: ReadLimits | None) -> SeriesProblem | None:
-    if limits is None or len(lines) <= limits.max_points:
-        return None
+def _refuse_repeated(table: CsvChunks, column: str) -> None:
+    positions = [i + 1 for i, name in enumerate(table.header) if name == column]
+    if len(positions) > 1:
+        raise InputFileError(
+            table.name, f"line {table.header_line}: column {shorten(column)!r} appears more than once in the header "
+            f"(columns {', '.join(map(str, positions))}); give each column its own name",
+        )
+
+
+def _numbers(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite number."""
+    texts = pd.Series(cells.ravel(), dtype=object)
+    empty = texts.eq("").to_numpy()
+    numbers = pd.to_numeric(texts.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
+    bad = ~empty & ~np.isfinite(numbers)
+    numbers[empty] = np.nan
+    return numbers.reshape(cells.shape), bad.reshape(cells.shape)
+
+
+def _value_problem(series_id: str, cell: str, number: float, line: int) -> SeriesProblem:
+    word = cell.lower().lstrip("+-")
+    kind = "not finite" if word in _NOT_FINITE_WORDS or np.isinf(number) else "not a number"
+    return SeriesProblem(series_id, f"value {shorten(cell)!r} is {kind}", row=int(line), flag="bad_value")
+
+
+def _too_many_rows(series_id: str, rows: int, line: int, limits: ReadLimits) -> SeriesProblem:
+    """The problem of a series with more rows than the limit; ``line`` is its first row past it."""
     return SeriesProblem(
-        series_id, f"has {len(lines):,} rows; at most {limits.max_points:,} are accepted per series",
-        row=int(lines[limits.max_points]), flag="too_long",
+        series_id, f"has {rows:,} rows; at most {limits.max_points:,} are accepted per series", row=int(line), flag="too_long",
     )
 
 
-def _read_table(path: Path, name: str) -> pd.DataFrame:
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise InputFileError(name, f"cannot be read ({exc.strerror or exc})") from None
-    if not raw.strip():
-        raise InputFileError(name, "the file is empty")
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise InputFileError(name, f"is not UTF-8 text (byte {exc.start} cannot be decoded)") from None
-    try:
-        # index_col=False: a first data row longer than the header would otherwise silently
-        # turn its leading cells into a row index; pandas warns instead, and that is an error.
-        with warnings.catch_warnings():
-            warnings.simplefilter("error", pd.errors.ParserWarning)
-            table = pd.read_csv(
-                io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True,
-                quoting=csv.QUOTE_MINIMAL, skip_blank_lines=False, index_col=False,
-            )
-    except pd.errors.ParserWarning:
-        raise InputFileError(name, f"line {FIRST_DATA_LINE} has more fields than the header") from None
-    except (pd.errors.ParserError, csv.Error, ValueError) as exc:
-        raise InputFileError(name, f"is not a readable CSV file ({str(exc).strip()})") from None
-    table.columns = [str(c).strip() for c in table.columns]
-    # Blank lines are kept while reading so that row i is file line i + 2, then dropped.
-    table.index = np.arange(FIRST_DATA_LINE, FIRST_DATA_LINE + len(table))
-    table = table[~(table == "").all(axis=1)]
-    if table.empty:
-        raise InputFileError(name, "has a header but no data rows")
-    return table
+def _bad_id(series_id: str, line: int) -> SeriesProblem | None:
+    reason = id_problem(series_id)
+    return None if reason is None else SeriesProblem(shorten(series_id), reason, row=line, flag="bad_id")
 
 
-def _require_columns(table: pd.DataFrame, name: str, columns: list[str]) -> None:
-    missing = [c for c in columns if c not in table.columns]
-    if missing:
-        found = ", ".join(repr(c) for c in table.columns[:10])
-        hint = ""
-        if len(table.columns) == 1 and any(sep in table.columns[0] for sep in ";\t|"):
-            hint = " (the file may use another delimiter than a comma)"
-        raise InputFileError(
-            name, f"no column named {', '.join(repr(c) for c in missing)}; the header has {found}{hint}"
-        )
+def _too_many_series(name: str, count: str, limits: ReadLimits) -> InputFileError:
+    return InputFileError(name, f"holds {count} series; at most {limits.max_series:,} are accepted in one file")
 
 
-def parse_timestamps(texts: pd.Series, name: str, lines: np.ndarray) -> pd.Index:
-    """Parse a column of timestamps: all integers, or all dates/datetimes.
-
-    Raises
-    ------
-    InputFileError
-        Naming the first line whose timestamp cannot be read, lies outside
-        :data:`STORABLE_YEARS`, or has another time zone than the first line's.
-    """
-    stripped = texts.str.strip()
-    as_number = pd.to_numeric(stripped, errors="coerce")
-    is_step = (as_number == np.round(as_number)) & (as_number.abs() <= MAX_INTEGER_STEP)
-    if is_step.all():
-        return pd.Index(as_number.astype(np.int64).to_numpy(), name="timestamp")
-    if is_step.mean() > 0.5:  # mostly steps: the first cell that is not one is the culprit
-        _bad_timestamp(name, texts, lines, ~is_step.to_numpy(), "is not an integer step like the others")
-    try:
-        parsed = pd.to_datetime(stripped, errors="coerce", format="ISO8601")
-        if parsed.isna().any():
-            parsed = pd.to_datetime(stripped, errors="coerce", format="mixed")
-    except (ValueError, TypeError) as exc:
-        _mixed_zones(name, stripped, lines)
-        raise InputFileError(name, f"timestamps cannot be read together ({exc})") from None
-    _bad_timestamp(name, texts, lines, parsed.isna().to_numpy(), "is not a date, time or integer step")
-    index = pd.DatetimeIndex(parsed, name="timestamp")
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    outside = (index < pd.Timestamp.min) | (index > pd.Timestamp.max)
-    _bad_timestamp(name, texts, lines, outside, f"is outside the years {STORABLE_YEARS} that can be stored")
-    return index.as_unit("ns")
+def _first_of_each(codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct codes and the position of each one's first occurrence."""
+    distinct, first = np.unique(codes, return_index=True)
+    return distinct, first
 
 
-def _bad_timestamp(name: str, texts: pd.Series, lines: np.ndarray, bad: np.ndarray, why: str) -> None:
-    """Raise naming the first line where ``bad`` holds, if any."""
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise InputFileError(name, f"line {lines[i]}: timestamp {texts.iloc[i]!r} {why}")
+class _LongReader:
+    """The long layout, chunk by chunk: series numbered in order of appearance (codes), their
+    observations kept as flat arrays until the end."""
+
+    def __init__(
+        self, table: CsvChunks, stamps: TimestampColumn, id_col: str, time_col: str, value_col: str,
+        limits: ReadLimits | None,
+    ) -> None:
+        self.name = table.name
+        self.id_col = id_col
+        self.positions = _column_positions(table, [id_col, time_col, value_col])
+        self.stamps = stamps
+        self.limits = limits
+        self.codes: dict[str, int] = {}
+        self.ids: list[str] = []
+        self.rows = np.zeros(0, dtype=np.int64)  # rows so far, per code
+        self.rejected = np.zeros(0, dtype=bool)
+        self.problems: dict[int, SeriesProblem] = {}
+        self.too_long: dict[int, int] = {}  # code -> its first line past the points limit
+        self.kept: tuple[list[np.ndarray], ...] = ([], [], [])  # codes, values, lines of the rows kept
+
+    def add(self, chunk: RowChunk) -> None:
+        id_cells, time_cells, value_cells = (chunk.columns[i] for i in self.positions)
+        lines = chunk.lines
+        codes = self._codes(id_cells, lines)
+        numbers, bad = _numbers(value_cells)
+        for i in self._first_rows(codes, bad):
+            self._reject(codes[i], _value_problem(self.ids[codes[i]], value_cells[i], numbers[i], lines[i]))
+        if self.limits is not None:
+            self._count_rows(codes, lines, self.limits)
+        keep = ~self.rejected[codes]
+        self.stamps.add(time_cells, lines, keep)
+        for parts, column in zip(self.kept, (codes, numbers, lines)):
+            parts.append(column[keep])
+
+    def result(self) -> PortfolioFile:
+        # A file written series by series is in series order already: each series is then a slice
+        # (a view) of the columns. Otherwise the columns are reordered one at a time.
+        codes = joined(self.kept[0])
+        order = None if bool(np.all(codes[1:] >= codes[:-1])) else np.argsort(codes, kind="stable")
+
+        def in_series_order(column: np.ndarray) -> np.ndarray:
+            return column if order is None else column[order]
+
+        codes = in_series_order(codes)
+        values, lines = (in_series_order(joined(parts)) for parts in self.kept[1:])
+        stamps = in_series_order(self.stamps.stamps())
+        starts = np.flatnonzero(np.diff(codes, prepend=-1))
+        result = PortfolioFile(path=self.name, layout="long")
+        for start, end in zip(starts, [*starts[1:], len(codes)]):
+            code = codes[start]
+            if not self.rejected[code]:  # else rejected after some of its rows were kept
+                rows = slice(start, end)
+                values_read = pd.Series(values[rows], index=self.stamps.index(stamps[rows]), copy=False)
+                result.series.append(RawSeries(self.ids[code], values_read, lines[rows]))
+        for code, line in self.too_long.items():
+            assert self.limits is not None
+            self.problems[code] = _too_many_rows(self.ids[code], int(self.rows[code]), line, self.limits)
+        result.problems = [self.problems[code] for code in sorted(self.problems)]
+        return result
+
+    def _codes(self, id_cells: np.ndarray, lines: np.ndarray) -> np.ndarray:
+        """Each row's series code; a series seen for the first time is counted and its id checked."""
+        ids = pd.Series(id_cells, dtype=object)
+        empty = ids.eq("").to_numpy()
+        if empty.any():
+            line = lines[np.flatnonzero(empty)[0]]
+            raise InputFileError(self.name, f"line {line}: empty series id in column {shorten(self.id_col)!r}")
+        local, distinct = pd.factorize(ids)
+        _, first = _first_of_each(local)
+        known = len(self.ids)
+        codes = np.array([self._code(series_id) for series_id in distinct], dtype=np.int32)
+        if len(self.ids) > known:
+            grown = len(self.ids) - known
+            self.rows = np.concatenate((self.rows, np.zeros(grown, dtype=np.int64)))
+            self.rejected = np.concatenate((self.rejected, np.zeros(grown, dtype=bool)))
+            for code, i in zip(codes, first):
+                if code >= known and (problem := _bad_id(self.ids[code], int(lines[i]))):
+                    self._reject(code, problem)
+        return codes[local]
+
+    def _code(self, series_id: str) -> int:
+        """The series' code; a new one is numbered (past the series limit the file is refused)."""
+        code = self.codes.get(series_id)
+        if code is not None:
+            return code
+        if self.limits is not None and len(self.ids) >= self.limits.max_series:
+            raise _too_many_series(self.name, f"more than {self.limits.max_series:,}", self.limits)
+        code = self.codes[series_id] = len(self.ids)
+        self.ids.append(series_id)
+        return code
+
+    def _first_rows(self, codes: np.ndarray, bad: np.ndarray) -> np.ndarray:
+        """The first row of each series still kept where ``bad`` holds."""
+        rows = np.flatnonzero(bad & ~self.rejected[codes])
+        _, first = _first_of_each(codes[rows])
+        return rows[first]
+
+    def _count_rows(self, codes: np.ndarray, lines: np.ndarray, limits: ReadLimits) -> None:
+        """Count the chunk's rows per series; a series is rejected at its first row past the limit
+        (its rows are still counted, for the message)."""
+        live = np.flatnonzero(~self.rejected[codes])
+        order = live[np.argsort(codes[live], kind="stable")]
+        _, starts = _first_of_each(codes[order])
+        rank = np.arange(len(order)) - np.repeat(starts, np.diff(np.append(starts, len(order))))
+        for row in order[self.rows[codes[order]] + rank == limits.max_points]:
+            self.rejected[codes[row]] = True
+            self.too_long[int(codes[row])] = int(lines[row])
+        self.rows += np.bincount(codes, minlength=len(self.rows))
+
+    def _reject(self, code: int, problem: SeriesProblem) -> None:
+        self.rejected[code] = True
+        self.problems[code] = problem
 
 
-def _mixed_zones(name: str, stripped: pd.Series, lines: np.ndarray) -> None:
-    """Raise naming the first line whose time zone differs from the first line's, if any."""
-    zones = stripped.str.extract(_ZONE_SUFFIX, expand=False).fillna("")
-    zones = zones.replace({"z": "Z", "+00:00": "Z", "+0000": "Z"}).str.upper()
-    differs = (zones != zones.iloc[0]).to_numpy()
-    if differs.any():
-        i = int(np.flatnonzero(differs)[0])
-        first = zones.iloc[0] or "no time zone"
-        here = zones.iloc[i] or "no time zone"
-        raise InputFileError(
-            name, f"line {lines[i]}: timestamp {stripped.iloc[i]!r} has time zone {here}, but line {lines[0]} has "
-            f"{first}; give every timestamp the same time zone (or none)",
-        )
+class _WideReader:
+    """The wide layout, chunk by chunk: one value column per series, every column's values kept
+    as a matrix until the end."""
 
+    def __init__(self, table: CsvChunks, stamps: TimestampColumn, time_col: str, limits: ReadLimits | None) -> None:
+        self.name = table.name
+        (self.time_position,) = _column_positions(table, [time_col])
+        for name in table.header:
+            _refuse_repeated(table, name)
+        self.value_positions = [i for i, name in enumerate(table.header) if name != time_col]
+        if not self.value_positions:
+            raise InputFileError(self.name, f"wide layout needs at least one series column besides {time_col!r}")
+        if limits is not None and len(self.value_positions) > limits.max_series:
+            raise _too_many_series(self.name, f"{len(self.value_positions):,}", limits)
+        self.ids = [table.header[i] for i in self.value_positions]
+        self.stamps = stamps
+        self.limits = limits
+        self.rows = 0
+        self.rejected = np.zeros(len(self.ids), dtype=bool)
+        self.problems: dict[int, SeriesProblem] = {}
+        for column, series_id in enumerate(self.ids):
+            if problem := _bad_id(series_id, table.header_line):
+                self._reject(column, problem)
+        self.kept: tuple[list[np.ndarray], list[np.ndarray]] = ([], [])  # values (a column per series), lines
+        self.past_limit: int | None = None  # the first line past the points limit
 
-def parse_values(texts: pd.Series, series_id: str, lines: np.ndarray) -> np.ndarray:
-    """Parse value cells: empty cells are gaps (NaN); anything else must be a finite number.
+    def add(self, chunk: RowChunk) -> None:
+        """Read a chunk; past the points limit, every series is rejected and rows are only counted."""
+        room = len(chunk) if self.limits is None else self.limits.max_points - self.rows
+        self.rows += len(chunk)
+        if self.past_limit is not None:
+            return
+        if room < len(chunk):
+            self.past_limit = int(chunk.lines[room])
+            return
+        cells = np.stack([chunk.columns[i] for i in self.value_positions])
+        numbers, bad = _numbers(cells)
+        for column in map(int, np.flatnonzero(bad.any(axis=1) & ~self.rejected)):
+            i = int(np.argmax(bad[column]))
+            self._reject(column, _value_problem(self.ids[column], cells[column, i], numbers[column, i], chunk.lines[i]))
+        self.stamps.add(chunk.columns[self.time_position], chunk.lines, np.ones(len(chunk), dtype=bool))
+        self.kept[0].append(numbers)
+        self.kept[1].append(chunk.lines)
 
-    Raises
-    ------
-    SeriesProblem
-        Naming the first line with a non-numeric or non-finite value.
-    """
-    stripped = texts.str.strip()
-    empty = stripped.eq("").to_numpy()
-    numbers = pd.to_numeric(stripped.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
-    bad = ~empty & ~np.isfinite(numbers)
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        cell = texts.iloc[i]
-        kind = "not finite" if stripped.iloc[i].lower().lstrip("+-") in {"nan", "inf", "infinity"} or np.isinf(numbers[i]) else "not a number"
-        raise SeriesProblem(series_id, f"value {cell!r} is {kind}", row=int(lines[i]), flag="bad_value")
-    numbers[empty] = np.nan
-    return numbers
+    def result(self) -> PortfolioFile:
+        result = PortfolioFile(path=self.name, layout="wide")
+        if self.past_limit is not None:
+            assert self.limits is not None
+            for column in range(len(self.ids)):
+                self.problems.setdefault(column, _too_many_rows(self.ids[column], self.rows, self.past_limit, self.limits))
+        elif self.kept[1]:
+            stamps = self.stamps.stamps()
+            numbers = joined(self.kept[0], axis=1)
+            lines = joined(self.kept[1])
+            for column in map(int, np.flatnonzero(~self.rejected)):
+                values = numbers[column]
+                observed = np.flatnonzero(~np.isnan(values))
+                if not observed.size:
+                    self._reject(column, SeriesProblem(self.ids[column], "has no values at all", flag="empty"))
+                    continue
+                span = slice(observed[0], observed[-1] + 1)
+                index = self.stamps.index(stamps[span])
+                result.series.append(RawSeries(self.ids[column], pd.Series(values[span], index=index, copy=False), lines[span]))
+        result.problems = [self.problems[column] for column in sorted(self.problems)]
+        return result
 
-
-def _read_long(
-    table: pd.DataFrame, name: str, id_col: str, time_col: str, value_col: str, limits: ReadLimits | None
-) -> PortfolioFile:
-    _require_columns(table, name, [id_col, time_col, value_col])
-    result = PortfolioFile(path=name)
-    lines = table.index.to_numpy()
-    ids = table[id_col].str.strip()
-    if (ids == "").any():
-        bad = int(np.flatnonzero((ids == "").to_numpy())[0])
-        raise InputFileError(name, f"line {lines[bad]}: empty series id in column {id_col!r}")
-    groups = ids.groupby(ids, sort=False).indices
-    _check_limits(name, len(groups), limits)
-    index = parse_timestamps(table[time_col], name, lines)
-    for series_id, positions in groups.items():
-        series_lines = lines[positions]
-        if problem := _too_many_points(series_id, series_lines, limits):
-            result.problems.append(problem)
-            continue
-        try:
-            values = parse_values(table[value_col].iloc[positions], series_id, series_lines)
-        except SeriesProblem as problem:
-            result.problems.append(problem)
-            continue
-        result.series.append(RawSeries(series_id, pd.Series(values, index=index[positions]), series_lines))
-    return result
-
-
-def _read_wide(table: pd.DataFrame, name: str, time_col: str, limits: ReadLimits | None) -> PortfolioFile:
-    _require_columns(table, name, [time_col])
-    value_cols = [c for c in table.columns if c != time_col]
-    if not value_cols:
-        raise InputFileError(name, f"wide layout needs at least one series column besides {time_col!r}")
-    _check_limits(name, len(value_cols), limits)
-    result = PortfolioFile(path=name)
-    lines = table.index.to_numpy()
-    index = parse_timestamps(table[time_col], name, lines)
-    for column in value_cols:
-        if problem := _too_many_points(column, lines, limits):
-            result.problems.append(problem)
-            continue
-        try:
-            values = parse_values(table[column], column, lines)
-        except SeriesProblem as problem:
-            result.problems.append(problem)
-            continue
-        keep = ~np.isnan(values)
-        if not keep.any():
-            result.problems.append(SeriesProblem(column, "has no values at all", flag="empty"))
-            continue
-        first, last = np.flatnonzero(keep)[[0, -1]]
-        span = slice(first, last + 1)
-        result.series.append(RawSeries(column, pd.Series(values[span], index=index[span]), lines[span]))
-    return result
+    def _reject(self, column: int, problem: SeriesProblem) -> None:
+        self.rejected[column] = True
+        self.problems[column] = problem

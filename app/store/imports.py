@@ -93,16 +93,23 @@ def import_portfolio(
     value_col: str = DEFAULT_VALUE_COL,
     display_name: str | None = None,
     limits: ReadLimits | None = None,
+    date_format: str | None = None,
 ) -> ImportReport:
-    """Read, check and store a portfolio file (see the module docstring for the rules);
-    ``limits`` bounds the series and rows a file may hold (see :func:`read_portfolio`).
+    """Read, check and store a portfolio file (see the module docstring for the rules); the
+    reading options are :func:`~app.core.portfolio_file.read_portfolio`'s.
 
     Raises
     ------
     InputFileError
         When the file cannot be used at all; the database is then unchanged.
     """
-    portfolio = read_portfolio(path, layout, id_col, time_col, value_col, display_name, limits)
+    portfolio = read_portfolio(path, layout, id_col, time_col, value_col, display_name, limits, date_format)
+    return store_portfolio(db, portfolio)
+
+
+def store_portfolio(db: sqlite_utils.Database, portfolio: PortfolioFile) -> ImportReport:
+    """Check and store the series of a file already read (so that a caller can read a file before
+    it opens, and so creates, a database)."""
     # Plan without holding the write lock (preparing thousands of series takes seconds, and an
     # analysis run writes meanwhile); only imports change observations, so the plan still holds
     # if no import committed since.
@@ -111,7 +118,7 @@ def import_portfolio(
     with write_transaction(db):
         if _data_generation(db) != generation:
             plans, rejected = _plan(db, portfolio)
-        return _write(db, portfolio.path, layout, plans, rejected)
+        return _write(db, portfolio.path, portfolio.layout, plans, rejected)
 
 
 def list_imports(db: sqlite_utils.Database, limit: int = 20) -> list[ImportReport]:

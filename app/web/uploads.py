@@ -1,7 +1,14 @@
-"""Receiving a portfolio file from the upload page and importing it into the database."""
+"""Receiving a portfolio file from the upload page and importing it into the database.
+
+The upload is copied to a private temporary folder named after the server's process
+(``lagdesk-upload-PID-…``) and removed when the import ends; a server killed mid-upload cannot
+remove its own, so every upload first removes the folders of processes that no longer run.
+"""
 
 from __future__ import annotations
 
+import os
+import shutil
 import tempfile
 from pathlib import Path
 from typing import Literal
@@ -16,6 +23,7 @@ from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VA
 from app.store.imports import ImportReport, import_portfolio
 
 COPY_CHUNK = 1024 * 1024
+UPLOAD_FOLDER_PREFIX = "lagdesk-upload-"
 
 
 class UploadTooLarge(LagdeskError):
@@ -25,13 +33,14 @@ class UploadTooLarge(LagdeskError):
 
 
 class UploadOptions(BaseModel):
-    """How to read the uploaded CSV (the column names matter for the long layout, and the time
-    column for both)."""
+    """How to read the uploaded CSV (the column names matter for the long layout, the time column
+    and the date format for both; an empty date format means the first timestamp's)."""
 
     layout: Literal["long", "wide"] = "long"
     id_col: str = DEFAULT_ID_COL
     time_col: str = DEFAULT_TIME_COL
     value_col: str = DEFAULT_VALUE_COL
+    date_format: str = ""
 
 
 def upload_name(upload: UploadFile) -> str:
@@ -53,7 +62,8 @@ def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: Upload
     """
     max_bytes = settings.max_upload_bytes
     name = upload_name(upload)
-    with tempfile.TemporaryDirectory(prefix="lagdesk-upload-") as folder:
+    remove_stale_upload_folders()
+    with tempfile.TemporaryDirectory(prefix=f"{UPLOAD_FOLDER_PREFIX}{os.getpid()}-") as folder:
         path = Path(folder) / name
         copied = 0
         with path.open("wb") as out:
@@ -67,4 +77,29 @@ def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: Upload
             time_col=options.time_col.strip() or DEFAULT_TIME_COL,
             value_col=options.value_col.strip() or DEFAULT_VALUE_COL, display_name=name,
             limits=ReadLimits(settings.max_upload_series, settings.max_upload_points),
+            date_format=options.date_format.strip() or None,
         )
+
+
+def remove_stale_upload_folders(parent: Path | None = None) -> list[Path]:
+    """Remove the upload folders (in ``parent``, by default the temporary folder) left by server
+    processes that no longer run; those of running processes, this one included, are kept.
+    Returns the folders removed."""
+    removed = []
+    for folder in Path(parent or tempfile.gettempdir()).glob(f"{UPLOAD_FOLDER_PREFIX}*"):
+        pid = folder.name.removeprefix(UPLOAD_FOLDER_PREFIX).partition("-")[0]
+        if folder.is_dir() and pid.isdigit() and not _process_runs(int(pid)):
+            shutil.rmtree(folder, ignore_errors=True)
+            removed.append(folder)
+    return removed
+
+
+def _process_runs(pid: int) -> bool:
+    """Whether a process with this id runs (one of another user's included)."""
+    try:
+        os.kill(pid, 0)  # signal 0: nothing is sent, only the process looked up
+    except (ProcessLookupError, OverflowError):
+        return False
+    except PermissionError:
+        return True
+    return True

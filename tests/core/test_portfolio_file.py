@@ -12,9 +12,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from app.core.errors import InputFileError, SeriesProblem
-from app.core.portfolio_file import read_portfolio
+from app.core import csv_chunks
+from app.core.errors import ECHO_CHARS, InputFileError, SeriesProblem
+from app.core.portfolio_file import ReadLimits, read_portfolio
 from app.core.prepare import prepare_series
+from app.core.series_ids import MAX_ID_LENGTH, id_problem
 
 
 def _write(tmp_path: Path, text: str | bytes, name: str = "portfolio.csv") -> Path:
@@ -160,3 +162,203 @@ def test_line_numbers_survive_a_blank_line(tmp_path):
     portfolio = read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,1,1\n\na,2,x\n"))
     (problem,) = portfolio.problems
     assert problem.row == 4
+
+
+# Issue 19: reading in chunks, physical lines, one date format, one time zone, safe ids, limits.
+
+@pytest.fixture
+def tiny_chunks(monkeypatch):
+    """Chunks of a few cells, so that every rule is also exercised across chunk boundaries."""
+    monkeypatch.setattr(csv_chunks, "CHUNK_CELLS", 7)
+
+
+def _long(rows: list[tuple]) -> str:
+    return "series_id,timestamp,value\n" + "".join(",".join(map(str, row)) + "\n" for row in rows)
+
+
+@pytest.mark.parametrize("chunked", [False, True], ids=["one chunk", "many chunks"])
+def test_interleaved_series_are_read_whole_in_any_chunking(tmp_path, monkeypatch, chunked):
+    if chunked:
+        monkeypatch.setattr(csv_chunks, "CHUNK_CELLS", 7)
+    rows = [(sid, t, t * 10 + i) for t in range(1, 16) for i, sid in enumerate("abc")]
+    portfolio = read_portfolio(_write(tmp_path, _long(rows)))
+    series = _by_id(portfolio)
+    assert list(series) == ["a", "b", "c"]
+    assert series["b"].values.index.tolist() == list(range(1, 16))
+    assert series["b"].values.tolist() == [t * 10 + 1.0 for t in range(1, 16)]
+    np.testing.assert_array_equal(series["c"].lines, [4 + 3 * i for i in range(15)])
+
+
+def test_lines_are_physical_after_quoted_line_breaks(tmp_path, tiny_chunks):
+    text = (
+        "series_id,timestamp,value,note\n"
+        'a,1,1,"two\nlines"\n'
+        'a,2,2,"three\r\nlines\rhere"\n'
+        "a,3,3,\n"
+        "\n"
+        "a,4,x,\n"
+    )
+    (problem,) = read_portfolio(_write(tmp_path, text)).problems
+    assert problem.row == 9 and "'x' is not a number" in str(problem)
+
+
+def test_a_longer_row_is_refused_on_its_line_and_a_shorter_one_padded(tmp_path, tiny_chunks):
+    with pytest.raises(InputFileError, match=r"line 5 has more fields than the header \(4, not 3\)"):
+        read_portfolio(_write(tmp_path, _long([("a", 1, 1), ("a", 2, 2), ("a", 3, 3), ("a", 4, "4,5")])))
+    a = _by_id(read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,1,1\na,2\na,3,3\n")))["a"]
+    np.testing.assert_array_equal(a.values.to_numpy(), [1.0, np.nan, 3.0])
+
+
+@pytest.mark.parametrize("text", ['series_id,timestamp,value\n"a,1,1\n', 'series_id,timestamp,value\n"a"b,1,1\n'])
+def test_broken_quoting_is_refused(tmp_path, text):
+    with pytest.raises(InputFileError, match="is not a readable CSV file"):
+        read_portfolio(_write(tmp_path, text))
+
+
+def test_endless_line_and_huge_cell_stop_with_a_message(tmp_path, monkeypatch):
+    with pytest.raises(InputFileError, match=f"line 3 has a cell longer than {csv_chunks.MAX_CELL_CHARS:,} characters"):
+        read_portfolio(_write(tmp_path, 'series_id,timestamp,value\na,1,1\na,2,"' + "9" * (csv_chunks.MAX_CELL_CHARS + 1) + '"\n'))
+    monkeypatch.setattr(csv_chunks, "MAX_LINE_CHARS", 1000)
+    with pytest.raises(InputFileError, match="line 2 is longer than 1,000 characters"):
+        read_portfolio(_write(tmp_path, "series_id,timestamp,value\n" + "\0" * 5000))
+
+
+def test_undecodable_byte_names_its_line(tmp_path):
+    with pytest.raises(InputFileError, match=r"not UTF-8 text \(line 3 holds the byte 0xFF"):
+        read_portfolio(_write(tmp_path, b"series_id,timestamp,value\na,1,1\na,2,\xff\n"))
+
+
+def test_repeated_column_names_are_refused(tmp_path):
+    with pytest.raises(InputFileError, match=r"line 1: column 'b' appears more than once in the header \(columns 2, 4\)"):
+        read_portfolio(_write(tmp_path, "timestamp,b,c,b\n1,1,2,3\n"), layout="wide")
+    with pytest.raises(InputFileError, match="column 'value' appears more than once"):
+        read_portfolio(_write(tmp_path, "series_id,timestamp,value,value\na,1,2,3\n"))
+    # A repeated column the long layout does not read is no one's business.
+    assert _by_id(read_portfolio(_write(tmp_path, "series_id,note,timestamp,value,note\na,x,1,2,y\n")))["a"].values.tolist() == [2.0]
+
+
+def _stamps(tmp_path, stamps: list[str], **options) -> pd.Index:
+    rows = [("a", ts, i) for i, ts in enumerate(stamps)]
+    return _by_id(read_portfolio(_write(tmp_path, _long(rows)), **options))["a"].values.index
+
+
+def test_dates_are_read_in_the_first_timestamps_format(tmp_path, tiny_chunks):
+    iso = ["2024-01-01", "2024-01-02 06:00", "2024-01-03T12:00:00.5"]
+    assert _stamps(tmp_path, iso).tolist() == pd.to_datetime(["2024-01-01", "2024-01-02 06:00", "2024-01-03 12:00:00.5"], format="ISO8601").tolist()
+    # Day first: 01/03 could be either until the 13th says which, chunks later.
+    day_first = [f"{d:02d}/03/2021" for d in range(1, 16)]
+    assert _stamps(tmp_path, day_first).tolist() == pd.date_range("2021-03-01", periods=15).tolist()
+    month_first = [f"03/{d:02d}/2021" for d in range(1, 16)]
+    assert _stamps(tmp_path, month_first).tolist() == pd.date_range("2021-03-01", periods=15).tolist()
+    dotted = ["31.12.2023", "01.01.2024"]
+    assert _stamps(tmp_path, dotted).tolist() == pd.to_datetime(["2023-12-31", "2024-01-01"]).tolist()
+
+
+def test_a_second_date_format_is_refused_on_its_line(tmp_path, tiny_chunks):
+    with pytest.raises(InputFileError, match=r"line 5: timestamp '01/04/2024' is not written like the first timestamp '2024-01-01' \(line 2\)"):
+        _stamps(tmp_path, ["2024-01-01", "2024-02-01", "2024-03-01", "01/04/2024", "2024-05-01"])
+    with pytest.raises(InputFileError, match=r"line 4: timestamp '2024-03-01' is not written like the first timestamp '01/01/2024'"):
+        _stamps(tmp_path, ["01/01/2024", "01/02/2024", "2024-03-01"])
+
+
+def test_dates_that_read_both_ways_are_refused_unless_the_format_is_given(tmp_path, tiny_chunks):
+    stamps = [f"01/{m:02d}/2024" for m in range(1, 13)]
+    with pytest.raises(InputFileError) as info:
+        _stamps(tmp_path, stamps)
+    assert str(info.value).endswith(
+        "line 3: timestamp '01/02/2024' reads as another date day first (%d/%m/%Y) than month first (%m/%d/%Y), and no "
+        "date in the file tells which; give the date format (for example --date-format %d/%m/%Y)"
+    )
+    assert _stamps(tmp_path, stamps, date_format="%d/%m/%Y").tolist() == pd.date_range("2024-01-01", periods=12, freq="MS").tolist()
+    assert _stamps(tmp_path, stamps, date_format="%m/%d/%Y").tolist() == pd.date_range("2024-01-01", periods=12).tolist()
+    with pytest.raises(InputFileError, match=r"line 2: timestamp '01/01/2024' does not match the date format '%Y-%m-%d'"):
+        _stamps(tmp_path, stamps, date_format="%Y-%m-%d")
+
+
+@pytest.mark.parametrize("word", ["today", "now"])
+def test_words_pandas_reads_as_the_current_time_are_not_dates(tmp_path, word):
+    with pytest.raises(InputFileError, match=f"line 3: timestamp '{word}' is not a date"):
+        _stamps(tmp_path, ["2024-01-01", word])
+    with pytest.raises(InputFileError, match=f"line 2: timestamp '{word}' is not a date"):
+        _stamps(tmp_path, [word, "2024-01-01"])
+
+
+def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
+    with pytest.raises(InputFileError, match=r"line 2: timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
+        _stamps(tmp_path, ["Jan 2024", "Feb 2024"])
+    assert _stamps(tmp_path, ["Jan 2024", "Feb 2024"], date_format="%b %Y").tolist() == pd.to_datetime(["2024-01-01", "2024-02-01"]).tolist()
+
+
+def test_offsets_of_one_zone_across_daylight_saving_keep_the_local_clock(tmp_path, tiny_chunks):
+    # Europe/Berlin: +01:00 until 2024-03-31 02:00, then +02:00.
+    daily = [f"2024-03-{d:02d}T00:00:00{'+02:00' if d >= 31 else '+01:00'}" for d in range(25, 32)] + ["2024-04-01T00:00:00+02:00"]
+    assert _stamps(tmp_path, daily).tolist() == pd.date_range("2024-03-25", periods=8).tolist()
+    hourly = ["2024-03-31T00:00:00+01:00", "2024-03-31T01:00:00+01:00", "2024-03-31T03:00:00+02:00", "2024-03-31T04:00:00+02:00"]
+    assert _stamps(tmp_path, hourly).tolist() == pd.to_datetime(["2024-03-31 00:00", "2024-03-31 01:00", "2024-03-31 03:00", "2024-03-31 04:00"]).tolist()
+    # London writes Z in winter and +01:00 in summer.
+    assert _stamps(tmp_path, ["2024-03-30T12:00:00Z", "2024-03-31T12:00:00+01:00"]).tolist() == pd.to_datetime(["2024-03-30 12:00", "2024-03-31 12:00"]).tolist()
+
+
+def test_offsets_of_different_zones_or_with_and_without_are_refused(tmp_path, tiny_chunks):
+    with pytest.raises(InputFileError, match=r"line 5: timestamp '2024-01-04T00:00:00-05:00' is at UTC-05:00, another time zone than \+01:00 \(line 2\)"):
+        _stamps(tmp_path, ["2024-01-01T00:00:00+01:00", "2024-01-02T00:00:00+01:00", "2024-01-03T00:00:00+01:00", "2024-01-04T00:00:00-05:00"])
+    three = ["2024-01-01T00:00:00+01:00", "2024-07-01T00:00:00+02:00", "2024-08-01T00:00:00+03:00"]
+    with pytest.raises(InputFileError, match=r"line 4: .* is at UTC\+03:00, another time zone than \+01:00 \(line 2\) and \+02:00 \(line 3\)"):
+        _stamps(tmp_path, three)
+    with pytest.raises(InputFileError, match=r"line 3: timestamp '2024-01-02T00:00:00' has no UTC offset \(time zone\), but the timestamp on line 2"):
+        _stamps(tmp_path, ["2024-01-01T00:00:00+01:00", "2024-01-02T00:00:00"])
+
+
+def test_bad_series_ids_are_rejected_with_the_reason_and_line(tmp_path, tiny_chunks):
+    long_id = "q" * (MAX_ID_LENGTH + 1)
+    text = _long([("ok/a", 1, 1), ("ok/a", 2, 2), ("a/../b", 1, 1), ("esc\x1b[2J", 1, 1), (long_id, 1, 1), ("ok/a", 3, 3), ("a/../b", 2, 2)])
+    portfolio = read_portfolio(_write(tmp_path, text))
+    assert [s.series_id for s in portfolio.series] == ["ok/a"] and len(portfolio.series[0].lines) == 3
+    assert [(p.series_id, p.row, p.flag) for p in portfolio.problems] == [
+        ("a/../b", 4, "bad_id"), ("esc\x1b[2J", 5, "bad_id"), ("q" * ECHO_CHARS + "…", 6, "bad_id"),
+    ]
+    assert "U+001B (escape)" in str(portfolio.problems[1])
+    assert f"has {MAX_ID_LENGTH + 1} characters; at most {MAX_ID_LENGTH}" in str(portfolio.problems[2])
+    wide = read_portfolio(_write(tmp_path, "timestamp,ok,./x\n1,1,1\n2,2,2\n"), layout="wide")
+    assert [s.series_id for s in wide.series] == ["ok"] and [(p.series_id, p.row) for p in wide.problems] == [("./x", 1)]
+
+
+@pytest.mark.parametrize("series_id", ["shop 3/bread", "caf\u00e9 \U0001f4c8", "a.b/..c", "x" * MAX_ID_LENGTH, "a/b?c=d#e%20f"])
+def test_ordinary_ids_are_accepted(series_id):
+    assert id_problem(series_id) is None
+
+
+@pytest.mark.parametrize("series_id", ["", "a\tb", "a\nb", "a\x00", "\u2028x", "a/", "/a", "a//b", ".", "..", "a/./b", "x" * (MAX_ID_LENGTH + 1)])
+def test_unsafe_ids_are_refused(series_id):
+    assert id_problem(series_id) is not None
+
+
+def test_a_long_cell_is_echoed_cut(tmp_path):
+    cell = "z" * 5000
+    (problem,) = read_portfolio(_write(tmp_path, _long([("a", 1, 1), ("a", 2, cell)]))).problems
+    assert f"value '{'z' * ECHO_CHARS}…' is not a number" in str(problem) and len(str(problem)) < 200
+    with pytest.raises(InputFileError) as info:
+        read_portfolio(_write(tmp_path, _long([("a", 1, 1), ("a", cell, 2)])))
+    assert len(str(info.value)) < 300
+
+
+def test_limits_refuse_a_file_at_the_first_series_too_many(tmp_path, tiny_chunks):
+    # The file breaks after the third series: the limit is met first, so reading stops there.
+    text = _long([("a", 1, 1), ("b", 1, 1), ("c", 1, 1)]) + "d,1,\xff\n"
+    with pytest.raises(InputFileError, match=r"holds more than 2 series; at most 2 are accepted in one file"):
+        read_portfolio(_write(tmp_path, text.encode("utf-8", "surrogateescape")), limits=ReadLimits(2, 10))
+    with pytest.raises(InputFileError, match=r"holds 3 series; at most 2 are accepted in one file"):
+        read_portfolio(_write(tmp_path, "timestamp,a,b,c\n1,1,1,1\n"), layout="wide", limits=ReadLimits(2, 10))
+
+
+def test_limits_reject_a_series_at_its_first_row_past_the_limit(tmp_path, tiny_chunks):
+    rows = [(sid, t, t) for t in range(1, 8) for sid in ("long", "short")][:-3] + [("long", 8, 8)]
+    portfolio = read_portfolio(_write(tmp_path, _long(rows)), limits=ReadLimits(5, 5))
+    assert [s.series_id for s in portfolio.series] == ["short"]
+    (problem,) = portfolio.problems
+    assert (problem.series_id, problem.row, problem.flag) == ("long", 12, "too_long")
+    assert str(problem) == "series 'long' (line 12): has 7 rows; at most 5 are accepted per series"
+    wide = read_portfolio(_write(tmp_path, "timestamp,a,b\n" + "".join(f"{t},{t},{t}\n" for t in range(1, 9))), layout="wide", limits=ReadLimits(5, 5))
+    assert wide.series == [] and [(p.series_id, p.row, str(p).split(": ")[1]) for p in wide.problems] == [
+        ("a", 7, "has 8 rows; at most 5 are accepted per series"), ("b", 7, "has 8 rows; at most 5 are accepted per series"),
+    ]

@@ -16,9 +16,13 @@ from pathlib import Path
 import httpx
 import pytest
 from corpus_files import csv_bytes, good_values, series_rows
+from fastapi.testclient import TestClient
 
+from app.config import Settings
 from app.store.database import open_database
 from app.store.imports import import_portfolio
+from app.web.main import create_app
+from app.web.security import CSRF_COOKIE, CSRF_FIELD, CSRF_HEADER, CSRF_PATH
 
 REPO = Path(__file__).resolve().parents[2]
 SEED_ID = "seed/already-stored"
@@ -50,6 +54,24 @@ def stored_series(db_path: Path) -> set[str]:
 
 def assert_no_traceback(text: str) -> None:
     assert "Traceback" not in text and 'File "' not in text, text[-2000:]
+
+
+def web_client(db_path: Path, **settings) -> TestClient:
+    """The app on ``db_path`` as a test client reaches it (``testserver`` is the host it sends)."""
+    return TestClient(create_app(Settings(db_path=db_path, analysis_workers=1, allowed_hosts=("testserver",), **settings)))
+
+
+def upload(client: TestClient, url: str, name: str, content: bytes, fields: dict[str, str]) -> httpx.Response:
+    """Post a file as the upload form does (with the CSRF field of the page it was shown on) or,
+    under ``/api/``, as a script does (with the CSRF header)."""
+    fields, headers = dict(fields), {}
+    if url.startswith("/api/"):
+        client.get(CSRF_PATH)
+        headers[CSRF_HEADER] = client.cookies[CSRF_COOKIE]
+    else:
+        client.get(url)
+        fields[CSRF_FIELD] = client.cookies[CSRF_COOKIE]
+    return client.post(url, files={"file": (name, content, "text/csv")}, data=fields, headers=headers)
 
 
 @pytest.fixture(scope="session")

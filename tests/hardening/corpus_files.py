@@ -19,6 +19,9 @@ from dataclasses import dataclass, field
 from datetime import date, timedelta
 from pathlib import Path
 
+from app.core.errors import shorten
+from app.core.series_ids import MAX_ID_LENGTH
+
 CORPUS_DIR = Path(__file__).with_name("corpus")
 HEADER = ("series_id", "timestamp", "value")
 GOOD_ID = "good"
@@ -131,8 +134,10 @@ def _cases() -> dict[str, Case]:
     cases["timestamp_unparseable.csv"] = Case(
         csv_bytes(series_rows(GOOD_ID, good_values(), stamps)), file_error=("line 9", "2020-02-30"),
     )
+    # +01:00 and +05:30 cannot be one zone's standard and daylight-saving time (+01:00 and Z can:
+    # London's winter and summer).
     stamps = [f"{s}T00:00:00+01:00" for s in month_starts(GOOD_POINTS)]
-    stamps[10] = stamps[10].replace("+01:00", "Z")
+    stamps[10] = stamps[10].replace("+01:00", "+05:30")
     cases["timestamp_mixed_zones.csv"] = Case(
         csv_bytes(series_rows(GOOD_ID, good_values(), stamps)), file_error=("line 12", "time zone"),
     )
@@ -210,8 +215,9 @@ def _cases() -> dict[str, Case]:
         "<script>alert('id')</script>",
         'say "hi", \'there\'',
         "\U0001f4c8 sales \u2615 caf\u00e9",
-        "x" * 1000,
+        "x" * MAX_ID_LENGTH,
         "a/b?c=d#e%20f",
+        "shop 3/.hidden/..more",
     )
     rows = [row for i, sid in enumerate(odd_ids) for row in series_rows(sid, good_values(level=10.0 * (i + 1)))]
     cases["odd_ids.csv"] = Case(csv_bytes(rows), stored=odd_ids)
@@ -223,6 +229,59 @@ def _cases() -> dict[str, Case]:
         csv_bytes(wide_rows, header=("timestamp", GOOD_ID, "bad")), stored=(GOOD_ID,), rejected={"bad": 5},
         layout="wide",
     )
+    cases.update(_issue_19_cases())
+    return cases
+
+
+def physical_line(content: bytes, row: tuple) -> int:
+    """The line of the file on which the record of ``row`` (as the csv module writes it) starts."""
+    record = csv_bytes([row], header=())[1:]  # without the empty header line
+    return content[: content.index(b"\n" + record) + 1].count(b"\n") + 1
+
+
+def _issue_19_cases() -> dict[str, Case]:
+    """Input that used to be misread without a word (issue 19, items 6-10)."""
+    cases: dict[str, Case] = {}
+    # Item 6: pandas renamed the second 'b' to 'b.1' and imported both.
+    rows = [(ts, g, b, g + 1) for ts, g, b in zip(month_starts(GOOD_POINTS), good_values(), good_values(level=5.0))]
+    cases["wide_duplicate_column.csv"] = Case(
+        csv_bytes(rows, header=("timestamp", GOOD_ID, "b", "b")), file_error=("column 'b' appears more than once", "columns 3, 4"),
+        layout="wide",
+    )
+    # Item 7: with ISO dates present, 01/08/2020 was read month first (January 8).
+    stamps = month_starts(GOOD_POINTS)
+    stamps[7] = "01/08/2020"
+    cases["dates_mixed_formats.csv"] = Case(
+        csv_bytes(series_rows(GOOD_ID, good_values(), stamps)), file_error=("line 9", "'01/08/2020'", "first timestamp"),
+    )
+    # Month starts written day first: every one also reads as a January day month first.
+    day_first_months = [f"01/{m % 12 + 1:02d}/{2020 + m // 12}" for m in range(GOOD_POINTS)]
+    cases["dates_ambiguous.csv"] = Case(
+        csv_bytes(series_rows(GOOD_ID, good_values(), day_first_months)),
+        file_error=("line 3", "'01/02/2020'", "day first", "month first", "--date-format %d/%m/%Y"),
+    )
+    # Day first, and the 13th of March tells so: the whole file is read day first.
+    march = [f"{d:02d}/03/2021" for d in range(1, GOOD_POINTS + 1)]
+    cases["dates_day_first.csv"] = Case(csv_bytes(series_rows("march", good_values(level=30.0), march)), stored=("march",))
+    # Item 8: local midnights of one zone across the change to summer time (2024-03-31, +01:00 -> +02:00).
+    days = [date(2024, 3, 20) + timedelta(days=i) for i in range(GOOD_POINTS)]
+    stamps = [f"{d.isoformat()}T00:00:00{'+02:00' if d >= date(2024, 3, 31) else '+01:00'}" for d in days]
+    cases["timestamp_dst.csv"] = Case(csv_bytes(series_rows("dst", good_values(), stamps)), stored=("dst",))
+    # Item 9: a quoted comment with a line break on every row; the bad cell's line is physical.
+    rows = [(*row, "checked\nby ann") for row in _good()]
+    values: list = good_values(level=50.0)
+    values[5] = "twelve"
+    rows += [(*row, "") for row in series_rows("bad", values)]
+    content = csv_bytes(rows, header=(*HEADER, "comment"))
+    cases["quoted_line_breaks.csv"] = Case(content, stored=(GOOD_ID,), rejected={"bad": physical_line(content, rows[GOOD_POINTS + 5])})
+    # Item 10: ids that break a terminal, a URL or a page; each rejected on its first line.
+    bad_ids = (
+        "red\x1b[31m alert", "two\nlines", "zero\u200bwidth", "back\u202ewards", "a/../b", "./x", "shop//bread", "shop/", "y" * (MAX_ID_LENGTH + 1),
+    )
+    rows = _good() + [row for i, sid in enumerate(bad_ids) for row in series_rows(sid, good_values(level=10.0 * (i + 2)))]
+    content = csv_bytes(rows)
+    first_rows = {sid: physical_line(content, series_rows(sid, good_values(level=10.0 * (i + 2)))[0]) for i, sid in enumerate(bad_ids)}
+    cases["bad_ids.csv"] = Case(content, stored=(GOOD_ID,), rejected={shorten(sid): line for sid, line in first_rows.items()})
     return cases
 
 

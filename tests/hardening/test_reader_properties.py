@@ -10,12 +10,14 @@ import csv
 import io
 import tempfile
 from pathlib import Path
+from unittest.mock import patch
 
 import pytest
 from conftest import table_rows
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from app.core import csv_chunks
 from app.core.errors import LagdeskError
 from app.core.portfolio_file import read_portfolio
 from app.core.prepare import prepare_series
@@ -104,6 +106,33 @@ def test_odd_tables_are_read_or_refused_with_a_lagdesk_error(table):
 def test_odd_wide_tables_are_read_or_refused(cells, names):
     header = ["timestamp", *names][:3] + [""] * max(0, 3 - len(names) - 1)
     _read_and_prepare(_csv([tuple(r) for r in cells], header=header), layout="wide")
+
+
+def _outcome(content: bytes) -> tuple | None:
+    """What reading gives, in comparable form: the series (id, timestamps, values, lines) and the
+    problems; None for a file refused whole."""
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "input.csv"
+        path.write_bytes(content)
+        try:
+            portfolio = read_portfolio(path)
+        except LagdeskError:
+            return None
+    series = [
+        (s.series_id, s.values.index.tolist(), s.values.fillna(-0.5).tolist(), s.lines.tolist()) for s in portfolio.series
+    ]
+    return (series, [str(p) for p in portfolio.problems])
+
+
+@PROPERTY_SETTINGS
+@given(st.one_of(rows, plausible_rows))
+def test_reading_in_small_chunks_gives_what_reading_at_once_gives(table):
+    """The same series, values, lines and problems, or a refusal both ways (a file with several
+    faults may be refused naming another one first)."""
+    content = _csv(table)
+    whole = _outcome(content)
+    with patch.object(csv_chunks, "CHUNK_CELLS", 4):
+        assert _outcome(content) == whole
 
 
 @pytest.fixture(scope="module")

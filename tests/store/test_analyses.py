@@ -15,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from app.core.errors import LagdeskError
+from app.core.series_ids import id_problem
 from app.core.vocabulary import Confidence, Flag
 from app.store.analyses import analysis_record, load_analysis, save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database
@@ -109,7 +110,8 @@ def test_an_unknown_series_or_unreadable_result_is_refused(lynx_db, engine_resul
 
 
 @settings(max_examples=30, deadline=None)
-@given(series_id=st.text(st.characters(whitelist_categories=("L", "N"), whitelist_characters="/-_."), min_size=1, max_size=40),
+@given(series_id=st.text(st.characters(whitelist_categories=("L", "N"), whitelist_characters="/-_."), min_size=1, max_size=40)
+       .filter(lambda text: id_problem(text) is None),
        confidence=st.sampled_from(list(Confidence)),
        flags=st.lists(st.sampled_from(list(Flag)), unique=True, max_size=4))
 def test_any_series_id_confidence_and_flags_round_trip(engine_result, series_id, confidence, flags):

@@ -1,0 +1,38 @@
+"""What a series id may be.
+
+An id is shown in pages, terminals and URLs (``/series/shop-3/bread``, its slashes kept so that
+ids group by prefix) and exported to a forecasting job, so it must survive all of them
+unchanged: no control or format characters (a newline made a series unreachable, an escape
+sequence rewrote the terminal, a direction mark reorders what is shown), no path segment a
+browser or a file system resolves (an empty one, ``.`` or ``..``: ``a/../b`` opened ``b``),
+and a length a person can read.
+"""
+
+from __future__ import annotations
+
+import unicodedata
+
+MAX_ID_LENGTH = 200
+# Control (Cc), format (Cf: zero-width and direction marks), surrogate (Cs), line and
+# paragraph separator (Zl, Zp) characters.
+_UNSAFE_CATEGORIES = frozenset({"Cc", "Cf", "Cs", "Zl", "Zp"})
+_RESOLVED_SEGMENTS = frozenset({"", ".", ".."})
+_CONTROL_NAMES = {"\n": "line feed", "\r": "carriage return", "\t": "tab", "\x1b": "escape", "\x00": "NUL"}
+
+
+def id_problem(series_id: str) -> str | None:
+    """Why ``series_id`` cannot be a series id, or None when it can (it is expected stripped)."""
+    if not series_id:
+        return "the series id is empty"
+    if len(series_id) > MAX_ID_LENGTH:
+        return f"the series id has {len(series_id):,} characters; at most {MAX_ID_LENGTH} are accepted"
+    unsafe = next((c for c in series_id if unicodedata.category(c) in _UNSAFE_CATEGORIES), None)
+    if unsafe is not None:
+        return f"the series id contains the control character U+{ord(unsafe):04X} ({_character_name(unsafe)})"
+    if any(segment in _RESOLVED_SEGMENTS for segment in series_id.split("/")):
+        return "the series id has an empty, '.' or '..' part between slashes (it would not survive a URL)"
+    return None
+
+
+def _character_name(character: str) -> str:
+    return _CONTROL_NAMES.get(character) or unicodedata.name(character, "unnamed").lower()

@@ -1,0 +1,277 @@
+"""Reading a file's timestamp column, chunk by chunk: integer steps, or dates and times written
+in one format.
+
+Rules (each refusal names the first line to blame):
+
+* **Steps or dates.** The first timestamp decides: a whole number makes the column integer
+  steps (1, 2, 3, ...), and a cell that is not one is an error; otherwise the column holds dates.
+* **One date format.** Without a given format, the first timestamp sets it: ISO 8601 when it is
+  ISO 8601 (``2024-03-01``, ``2024-03-01 10:00``, ``2024-03-01T10:00:00+01:00``), else the
+  format pandas guesses for it, month first and day first both kept while the file allows both.
+  A timestamp written in another format is refused; so is a file whose dates read differently
+  month first and day first (``01/02/2024``) with none telling which, naming the first line
+  where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
+* **Time zones.** Either every timestamp carries a UTC offset or none does. The offsets of one
+  file must be one time zone's: at most two, at most an hour apart (standard and daylight-saving
+  time, e.g. +01:00 and +02:00). The local clock time as written is kept and the offset
+  dropped, so a daily or monthly series stays on its calendar grid across a change of clock (an
+  hourly series repeats an hour in autumn: that is refused as a duplicate timestamp, and such
+  data belong in UTC).
+* Dates must lie within :data:`STORABLE_YEARS`; steps within ±:data:`MAX_INTEGER_STEP`.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import NoReturn
+
+import numpy as np
+import pandas as pd
+from pandas.tseries.api import guess_datetime_format
+
+from app.core.csv_chunks import joined
+from app.core.errors import InputFileError, shorten
+
+ISO8601 = "ISO8601"
+STEPS = "steps"
+DATES = "dates"
+# Integer steps beyond 2**53 are not exact as floats (and beyond 2**63 do not fit the store).
+MAX_INTEGER_STEP = 2**53
+# Dates are kept as nanoseconds since 1970 (pandas' default unit), which spans these years.
+STORABLE_YEARS = f"{pd.Timestamp.min.year + 1}-{pd.Timestamp.max.year - 1}"
+# No way of writing a date and time is longer (and guessing the format of a long text is slow).
+MAX_DATE_CHARS = 64
+# Daylight-saving time moves the clock by an hour (half an hour on Lord Howe Island).
+MAX_ZONE_STEP_MINUTES = 60
+_CLOCK_WORDS = ("now", "today")  # pandas reads them as the time of reading, whatever the format
+_OFFSET_SUFFIX = r"(?i)(?<=\d)\s?(?:(?P<z>z)|(?P<sign>[+-])(?P<hours>\d\d):?(?P<minutes>\d\d)?)$"
+
+
+class TimestampColumn:
+    """The timestamps of a file, fed chunk by chunk with :meth:`add`; :meth:`stamps` gives those of
+    the rows kept, once the whole column has been seen.
+
+    Parameters
+    ----------
+    name : str
+        The file's name, for messages.
+    date_format : str, optional
+        A ``strftime`` format every date is read with (``%d/%m/%Y``); by default the first
+        timestamp's format (see the module docstring).
+    """
+
+    def __init__(self, name: str, date_format: str | None = None) -> None:
+        self.name = name
+        self.date_format = date_format or None
+        self.kind: str | None = None
+        self._first: tuple[int, str] = (0, "")
+        self._kept: dict[str, list[np.ndarray]] = {}  # each reading still possible -> stamps of kept rows
+        self._readings_differ: tuple[int, str] | None = None
+        self._offsets: dict[int, tuple[int, str]] = {}  # UTC offset in minutes -> first line, text
+        self._has_offsets: bool | None = None
+
+    def add(self, cells: np.ndarray, lines: np.ndarray, keep: np.ndarray) -> None:
+        """Read a chunk's timestamp cells (on ``lines``); keep those where ``keep`` holds.
+
+        Raises
+        ------
+        InputFileError
+            Naming the first line whose timestamp cannot be read (see the module docstring).
+        """
+        texts = pd.Series(cells, dtype=object)
+        if self.kind is None:
+            self._start(texts, lines)
+        if self.kind == STEPS:
+            self._kept[STEPS].append(self._steps(texts, lines)[keep])
+            return
+        for fmt, stamps in self._dates(texts, lines).items():
+            self._kept[fmt].append(stamps[keep])
+
+    def stamps(self) -> np.ndarray:
+        """The kept rows' timestamps in file order: steps, or nanoseconds since 1970 (local clock time).
+
+        Raises
+        ------
+        InputFileError
+            When the dates read differently month first and day first and nothing tells which.
+        """
+        if self._readings_differ is not None and len(self._kept) > 1:
+            line, text = self._readings_differ
+            month_first, day_first = self._kept
+            self._refuse(
+                line, text, f"reads as another date day first ({day_first}) than month first ({month_first}), and "
+                f"no date in the file tells which; give the date format (for example --date-format {day_first})",
+            )
+        chunks = next(iter(self._kept.values()), [])
+        return joined(chunks) if chunks else np.empty(0, dtype=np.int64)
+
+    def index(self, stamps: np.ndarray) -> pd.Index:
+        """The pandas index of some of :meth:`stamps`."""
+        if self.kind == STEPS:
+            return pd.Index(stamps, name="timestamp")
+        return pd.DatetimeIndex(stamps.view("datetime64[ns]"), name="timestamp")
+
+    def _start(self, texts: pd.Series, lines: np.ndarray) -> None:
+        """Steps or dates, and the date formats the first timestamp allows."""
+        self._first = (int(lines[0]), texts.iloc[0])
+        if np.isfinite(_steps(texts.iloc[:1]))[0]:
+            self.kind = STEPS
+            self._kept = {STEPS: []}
+            return
+        self.kind = DATES
+        formats = [self.date_format] if self.date_format else _formats_of(texts.iloc[0])
+        if not formats:
+            self._refuse(
+                lines[0], texts.iloc[0], "is not a date, time or integer step Lagdesk recognises; give its format "
+                "with --date-format (for example %b %Y for 'Jan 2024')",
+            )
+        self._kept = {fmt: [] for fmt in formats}
+
+    def _steps(self, texts: pd.Series, lines: np.ndarray) -> np.ndarray:
+        steps = _steps(texts)
+        unread = np.isnan(steps)
+        if unread.any():
+            i = int(np.flatnonzero(unread)[0])
+            self._refuse(lines[i], texts.iloc[i], "is not an integer step like the others")
+        return steps.astype(np.int64)
+
+    def _dates(self, texts: pd.Series, lines: np.ndarray) -> dict[str, np.ndarray]:
+        """The chunk read with every format still possible (nanoseconds, local clock time)."""
+        readings: dict[str, tuple[pd.Series, np.ndarray | None]] = {}
+        failures: dict[str, int] = {}
+        for fmt in self._kept:
+            local, offsets = self._parse(texts, fmt)
+            unread = local.isna().to_numpy()
+            if unread.any():
+                failures[fmt] = int(np.flatnonzero(unread)[0])
+            else:
+                readings[fmt] = (local, offsets)
+        if not readings:
+            i = max(failures.values())  # where the last possible reading breaks
+            self._refuse(lines[i], texts.iloc[i], self._misread_reason(texts.iloc[i]))
+        self._kept = {fmt: chunks for fmt, chunks in self._kept.items() if fmt in readings}
+        local, offsets = next(iter(readings.values()))
+        self._check_zones(offsets, texts, lines)
+        outside = ((local < pd.Timestamp.min) | (local > pd.Timestamp.max)).to_numpy()
+        if outside.any():
+            i = int(np.flatnonzero(outside)[0])
+            self._refuse(lines[i], texts.iloc[i], f"is outside the years {STORABLE_YEARS} that can be stored")
+        stamps = {fmt: reading.to_numpy(dtype="datetime64[ns]").view(np.int64) for fmt, (reading, _) in readings.items()}
+        if len(stamps) > 1 and self._readings_differ is None:
+            first, second = stamps.values()
+            differ = np.flatnonzero(first != second)
+            if differ.size:
+                self._readings_differ = (int(lines[differ[0]]), texts.iloc[differ[0]])
+        return stamps
+
+    def _parse(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
+        """Local clock times (NaT where unreadable) and the UTC offset of each, in minutes (NaN
+        where none is written); no offsets at all for a chunk without any."""
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UserWarning)
+                try:
+                    parsed = pd.to_datetime(texts, format=fmt, errors="coerce")
+                except ValueError as exc:
+                    if "Mixed timezones" not in str(exc):
+                        raise
+                    instants = pd.to_datetime(texts, format=fmt, errors="coerce", utc=True)
+                    offsets = _offset_minutes(texts)
+                    shift = pd.to_timedelta(np.nan_to_num(offsets), unit="min")
+                    return (instants.dt.tz_localize(None) + shift).mask(texts.isin(_CLOCK_WORDS)), offsets
+        except ValueError as exc:
+            raise InputFileError(self.name, f"the date format {fmt!r} cannot be used ({exc})") from None
+        fixed: np.ndarray | None = None  # one offset for the chunk, or none
+        if parsed.dt.tz is not None:
+            offset = parsed.dt.tz.utcoffset(None)
+            fixed = np.full(len(parsed), np.nan if offset is None else offset.total_seconds() / 60)
+            parsed = parsed.dt.tz_localize(None)
+        return parsed.mask(texts.isin(_CLOCK_WORDS)), fixed
+
+    def _check_zones(self, offsets: np.ndarray | None, texts: pd.Series, lines: np.ndarray) -> None:
+        """Offsets on every timestamp or on none, and those of one time zone."""
+        has_offset = np.zeros(len(texts), dtype=bool) if offsets is None else ~np.isnan(offsets)
+        if self._has_offsets is None:
+            self._has_offsets = bool(has_offset[0])
+        differs = has_offset != self._has_offsets
+        if differs.any():
+            i = int(np.flatnonzero(differs)[0])
+            line, text = self._first
+            here, there = ("no", "one") if self._has_offsets else ("a", "none")
+            self._refuse(
+                lines[i], texts.iloc[i], f"has {here} UTC offset (time zone), but the timestamp on line {line} "
+                f"({shorten(text)!r}) has {there}: give every timestamp of the file an offset, or none",
+            )
+        if offsets is None or not self._has_offsets:
+            return
+        for minutes in np.unique(offsets):
+            if int(minutes) in self._offsets:
+                continue
+            i = int(np.flatnonzero(offsets == minutes)[0])
+            seen = sorted(self._offsets)
+            if len(seen) == 2 or any(abs(minutes - other) > MAX_ZONE_STEP_MINUTES for other in seen):
+                others = " and ".join(f"{_offset_text(m)} (line {self._offsets[m][0]})" for m in seen)
+                self._refuse(
+                    lines[i], texts.iloc[i], f"is at UTC{_offset_text(minutes)}, another time zone than {others}: "
+                    f"the offsets of one file must be one time zone's (standard and daylight-saving time, at most "
+                    f"{MAX_ZONE_STEP_MINUTES} minutes apart)",
+                )
+            self._offsets[int(minutes)] = (int(lines[i]), texts.iloc[i])
+
+    def _misread_reason(self, text: str) -> str:
+        if not _formats_of(text):
+            return "is not a date, time or integer step"
+        if self.date_format:
+            return f"does not match the date format {self.date_format!r}"
+        line, first = self._first
+        return f"is not written like the first timestamp {shorten(first)!r} (line {line}): the timestamps of a file must share one format"
+
+    def _refuse(self, line: int, text: str, why: str) -> NoReturn:
+        raise InputFileError(self.name, f"line {line}: timestamp {shorten(text)!r} {why}")
+
+
+def _steps(texts: pd.Series) -> np.ndarray:
+    """Each cell as an integer step, NaN where it is not one."""
+    numbers = pd.to_numeric(texts, errors="coerce").to_numpy(dtype=float, copy=True)
+    numbers[~((numbers == np.round(numbers)) & (np.abs(numbers) <= MAX_INTEGER_STEP))] = np.nan
+    return numbers
+
+
+def _formats_of(text: str) -> list[str]:
+    """The formats a timestamp can be read with: ISO 8601, or pandas' guesses month first and
+    day first (only the first for a year-first date: nobody writes year, day, month)."""
+    if len(text) > MAX_DATE_CHARS or text in _CLOCK_WORDS:
+        return []
+    if _reads(text, ISO8601):
+        return [ISO8601]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        month_first = guess_datetime_format(text)
+        guesses = [month_first] if month_first and month_first.startswith("%Y") else [month_first, guess_datetime_format(text, dayfirst=True)]
+    return [fmt for i, fmt in enumerate(guesses) if fmt and fmt not in guesses[:i] and _reads(text, fmt)]
+
+
+def _reads(text: str, fmt: str) -> bool:
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)
+            return bool(pd.to_datetime(pd.Series([text], dtype=object), format=fmt, errors="coerce", utc=True).notna().all())
+    except ValueError:
+        return False
+
+
+def _offset_minutes(texts: pd.Series) -> np.ndarray:
+    """The UTC offset written at the end of each timestamp, in minutes; NaN where there is none."""
+    parts = texts.str.extract(_OFFSET_SUFFIX)
+    sign = parts["sign"].map({"+": 1.0, "-": -1.0}).to_numpy(dtype=float)
+    hours = pd.to_numeric(parts["hours"]).to_numpy(dtype=float)
+    minutes = pd.to_numeric(parts["minutes"]).fillna(0).to_numpy(dtype=float)
+    offsets = sign * (60 * hours + minutes)
+    offsets[parts["z"].notna().to_numpy()] = 0.0
+    return offsets
+
+
+def _offset_text(minutes: float) -> str:
+    sign = "-" if minutes < 0 else "+"
+    hours, rest = divmod(int(abs(minutes)), 60)
+    return f"{sign}{hours:02d}:{rest:02d}"
