@@ -20,9 +20,9 @@ from app.core.backtest import DEFAULT_ORIGINS
 from app.core.errors import LagdeskError, OrderError
 from app.core.identify import AUTO_PERIOD, EngineOptions
 from app.core.order import MAX_ORDER, order_label
-from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, read_portfolio
+from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, PortfolioFile, ReadLimits, read_portfolio
 from app.core.vocabulary import DECIDED, Confidence, VerdictStatus
-from app.jobs.analyze import RunProgress, run_analysis
+from app.jobs.analyze import RunProgress, close_abandoned_runs, run_analysis
 from app.jobs.demo import build_demo_database
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
@@ -34,7 +34,7 @@ from app.review.export import export_command
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import backtest_series
 from app.store.database import open_database, resolve_db_path, storage_error_text
-from app.store.imports import ImportReport, import_portfolio
+from app.store.imports import ImportReport, store_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict
@@ -65,12 +65,59 @@ def open_browser_later(url: str) -> None:
         threading.Timer(BROWSER_DELAY_SECONDS, webbrowser.open, args=(url,)).start()
 
 
+def terminal_text(text: str) -> str:
+    """``text`` safe to print on a terminal: each character that is not printable (the escape
+    that starts a terminal control sequence, a newline, a direction mark) written as its Python
+    escape (``\\x1b``), so a series id or a cell can neither rewrite the screen nor break a line."""
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)
+
+
+def whole_number(text: str, minimum: int, name: str = "it", accepted: str = "a whole number", hint: str = "") -> int:
+    """An option's ``text`` as a whole number of at least ``minimum``; else an error naming what
+    is ``accepted`` (and a ``hint`` when the number is too small)."""
+    try:
+        number = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not {accepted}") from None
+    if number < minimum:
+        raise argparse.ArgumentTypeError(f"{name} must be at least {minimum}, not {number}{hint}")
+    return number
+
+
+def count_option(text: str) -> int:
+    """A whole number of at least 1 (``--max-series``, ``--max-points``)."""
+    return whole_number(text, 1)
+
+
 def _add_file_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("path", help="CSV file, long or wide layout")
     parser.add_argument("--layout", choices=LAYOUTS, default="long", help="long: one row per observation (default); wide: one column per series")
     parser.add_argument("--id-col", default=DEFAULT_ID_COL, help=f"series id column, long layout (default {DEFAULT_ID_COL})")
     parser.add_argument("--time-col", default=DEFAULT_TIME_COL, help=f"timestamp column (default {DEFAULT_TIME_COL})")
     parser.add_argument("--value-col", default=DEFAULT_VALUE_COL, help=f"value column, long layout (default {DEFAULT_VALUE_COL})")
+    parser.add_argument(
+        "--date-format", metavar="FORMAT",
+        help="strftime format of the dates, e.g. %%d/%%m/%%Y (default: the first timestamp's; a file whose dates read "
+        "differently day first and month first is refused without it)",
+    )
+    parser.add_argument(
+        "--max-series", type=count_option, default=Settings.max_upload_series, metavar="N",
+        help=f"refuse a file with more series than this (default {Settings.max_upload_series:,}, as the upload page)",
+    )
+    parser.add_argument(
+        "--max-points", type=count_option, default=Settings.max_upload_points, metavar="N",
+        help=f"reject a series with more rows than this (default {Settings.max_upload_points:,}, as the upload page)",
+    )
+
+
+def read_named_file(args: argparse.Namespace) -> PortfolioFile:
+    """The portfolio file the options name, read within their limits."""
+    return read_portfolio(
+        args.path, args.layout, args.id_col, args.time_col, args.value_col,
+        limits=ReadLimits(args.max_series, args.max_points), date_format=args.date_format,
+    )
 
 
 def _add_workers(parser: argparse.ArgumentParser) -> None:
@@ -103,13 +150,7 @@ def period_option(text: str) -> int | str | None:
         return AUTO_PERIOD
     if word == "none":
         return None
-    try:
-        period = int(word)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not auto, none or a whole number") from None
-    if period < 2:
-        raise argparse.ArgumentTypeError(f"a seasonal period must be at least 2, not {period} (use none for non-seasonal)")
-    return period
+    return whole_number(word, 2, "a seasonal period", "auto, none or a whole number", " (use none for non-seasonal)")
 
 
 def _add_period(parser: argparse.ArgumentParser) -> None:
@@ -245,6 +286,11 @@ def _add_server_options(parser: argparse.ArgumentParser) -> None:
         help=f"access token every request must carry; needed for any --host but loopback "
         f"(default: ${TOKEN_ENV_VAR}; '{GENERATE}' makes one and prints it once)",
     )
+    parser.add_argument(
+        "--allowed-host", action="append", default=[], metavar="NAME[:PORT]",
+        help="another name requests may address the server by (a reverse proxy, an SSH tunnel's localhost:9000); "
+        "repeat for more. Requests naming any other host are refused (DNS rebinding)",
+    )
 
 
 def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
@@ -255,7 +301,8 @@ def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
         token = generate_token()
         print(f"Access token (shown this once; give it to each reviewer): {token}", flush=True)
     try:
-        settings = Settings(db_path=db_path, host=args.host, port=args.port, access_token=token)
+        settings = Settings(db_path=db_path, host=args.host, port=args.port, access_token=token,
+                            allowed_hosts=tuple(args.allowed_host))
     except ValueError as exc:
         raise LagdeskError(str(exc)) from None
     require_token_off_loopback(settings)
@@ -277,7 +324,7 @@ def run_serve(args: argparse.Namespace) -> int:
 
 def run_identify(args: argparse.Namespace) -> int:
     options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
-    portfolio = read_portfolio(args.path, args.layout, args.id_col, args.time_col, args.value_col)
+    portfolio = read_named_file(args)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
@@ -299,8 +346,9 @@ def run_identify(args: argparse.Namespace) -> int:
 
 def run_import(args: argparse.Namespace) -> int:
     path = resolve_db_path(args.db)
+    portfolio = read_named_file(args)  # first: a file refused whole leaves no new, empty database behind
     with closing(open_database(path)) as db:
-        report = import_portfolio(db, args.path, args.layout, args.id_col, args.time_col, args.value_col)
+        report = store_portfolio(db, portfolio)
     print(import_report_text(report, path))
     return 0
 
@@ -311,7 +359,7 @@ def import_report_text(report: ImportReport, db_path: Path) -> str:
     lines += [f"  rejected: {r['message']}" for r in report.rejected]
     if report.added or report.updated:
         lines.append(f"Next: lagdesk analyze --db {db_path}")
-    return "\n".join(lines)
+    return "\n".join(map(terminal_text, lines))
 
 
 def run_analyze(args: argparse.Namespace) -> int:
@@ -364,12 +412,13 @@ def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
         ]
     lines += [f"  failed: {p['message']}" for p in problems]
     lines.append(f"{status['analysed']} of {status['series']} series have a current analysis.")
-    return "\n".join(lines)
+    return "\n".join(map(terminal_text, lines))
 
 
 def run_status(args: argparse.Namespace) -> int:
     path = _existing_db(args.db)
     with closing(open_database(path)) as db:
+        close_abandoned_runs(db, path)  # a run killed with kill -9 shows as interrupted, not running
         status = portfolio_status(db)
         last = latest_run(db)
     if args.json:
@@ -436,8 +485,8 @@ def run_decide(args: argparse.Namespace) -> int:
             if args.order is not None or args.version is not None:
                 raise LagdeskError("--all-firm approves each suggestion at its current version: give no --order, --seasonal or --version")
             approved = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
-            _print(approved if args.json else f"{len(approved)} firm suggestion(s) approved" + (
-                f" under {args.prefix!r}" if args.prefix else ""), args.json)
+            _print(approved if args.json else terminal_text(f"{len(approved)} firm suggestion(s) approved" + (
+                f" under {args.prefix!r}" if args.prefix else "")), args.json)
             return 0
         if not (args.series_id and args.action):
             raise LagdeskError("give a series id and an action (approve, override, park, pending), or --all-firm")
@@ -457,7 +506,7 @@ def run_decide(args: argparse.Namespace) -> int:
 def verdict_line(series_id: str, verdict: dict) -> str:
     """A verdict in one line: series, status, order, version."""
     order = f" {order_label(verdict['order'], verdict['seasonal_order'])}" if verdict["order"] else ""
-    return f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})"
+    return terminal_text(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
 
 
 def _print(value: object, as_json: bool) -> None:
@@ -492,7 +541,7 @@ def backtest_text(check: dict) -> str:
         return "n/a" if value is None else f"{value:.3f}"
 
     lines = [
-        f"{check['series_id']}: {check['label']}, transform {json.dumps(check['transform'])}, "
+        f"{terminal_text(check['series_id'])}: {check['label']}, transform {json.dumps(check['transform'])}, "
         f"horizon {check['horizon']}, {check['origins']} origins (refitted at each)",
         f"  MASE {number(check['mase'])}   seasonal naive MASE {number(check['naive_mase'])} (m={check['m']})",
         "  interval coverage: " + ", ".join(f"{level}% -> {share:.0%}" for level, share in check["coverage"].items()),
@@ -543,13 +592,13 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
     """The readable summary: one line per series, then the problems."""
     rows = [("series", "n", "d", "suggested", "confidence", "flags")]
     for r in results:
-        rows.append((r.series_id, str(r.n), str(r.d), r.suggested.label, str(r.confidence), ", ".join(r.flags) or "-"))
+        rows.append((terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.label, str(r.confidence), ", ".join(r.flags) or "-"))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]
     lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows]
     counts = ", ".join(f"{sum(r.confidence == level for r in results)} {level}" for level in Confidence)
     lines.append("")
     lines.append(f"{len(results)} series identified ({counts}); {len(problems)} could not be analysed.")
-    lines += [f"  problem: {p['message']}" for p in problems]
+    lines += [terminal_text(f"  problem: {p['message']}") for p in problems]
     return "\n".join(lines)
 
 
@@ -559,15 +608,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return args.handler(args)
     except LagdeskError as exc:
-        print(f"lagdesk {args.command}: {exc}", file=sys.stderr)
+        print(terminal_text(f"lagdesk {args.command}: {exc}"), file=sys.stderr)
         return EXIT_INPUT_ERROR
     except sqlite3.Error as exc:
         db = resolve_db_path(args.db) if "db" in vars(args) else None
-        print(f"lagdesk {args.command}: {storage_error_text(exc, db)}", file=sys.stderr)
+        print(terminal_text(f"lagdesk {args.command}: {storage_error_text(exc, db)}"), file=sys.stderr)
         return EXIT_STORAGE_ERROR
     except OSError as exc:  # a full disk or a missing permission outside the database
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"lagdesk {args.command}: {where}{exc.strerror or exc}", file=sys.stderr)
+        print(terminal_text(f"lagdesk {args.command}: {where}{exc.strerror or exc}"), file=sys.stderr)
         return EXIT_STORAGE_ERROR
     except KeyboardInterrupt:
         print(f"lagdesk {args.command}: interrupted", file=sys.stderr)

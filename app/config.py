@@ -6,12 +6,19 @@ pulling in the rest.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
 MEBIBYTE = 1024 * 1024
 # Shorter tokens can be guessed by trying; a generated one has 43 characters (256 bits).
 MIN_TOKEN_LENGTH = 16
+# Time a client may take to send a request's headers, or leave its body silent: generous for a
+# person on a slow link, short enough that half-sent requests cannot pile up (Apache's
+# mod_reqtimeout starts its header window at 20 s by default, from memory).
+REQUEST_TIMEOUT_S = 20.0
+# A host name or IPv4 address, or an IPv6 address in brackets, with an optional :port.
+HOST_AND_PORT = re.compile(r"(?:[A-Za-z0-9](?:[A-Za-z0-9.-]*[A-Za-z0-9])?|\[[0-9A-Fa-f:.]+\])(?::\d{1,5})?")
 
 
 @dataclass(frozen=True)
@@ -45,6 +52,14 @@ class Settings:
         When set, every request must carry it (the ``lagdesk_token`` cookie set by the login
         page, or the ``X-Lagdesk-Token`` header; state-changing API calls need the header).
         ``lagdesk serve`` refuses a non-loopback ``host`` without one.
+    allowed_hosts : tuple of str
+        Names besides 127.0.0.1, localhost, [::1] and ``host`` (those on ``port``) that the
+        ``Host`` header of a request may carry, e.g. the name of a reverse proxy or a tunnel; a
+        name without ``:port`` is allowed on any port. Every other ``Host`` is refused (a page
+        of another site whose name was made to resolve to this machine: DNS rebinding).
+    request_timeout_s : float
+        Seconds a client may take to send a request's headers, or let its body stall, before
+        the server drops the request.
     """
 
     db_path: Path
@@ -57,6 +72,8 @@ class Settings:
     max_upload_series: int = 10_000
     max_upload_points: int = 100_000
     access_token: str | None = None
+    allowed_hosts: tuple[str, ...] = ()
+    request_timeout_s: float = REQUEST_TIMEOUT_S
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "db_path", Path(self.db_path))
@@ -73,6 +90,11 @@ class Settings:
             )
         if self.access_token is not None and len(self.access_token) < MIN_TOKEN_LENGTH:
             raise ValueError(f"an access token needs at least {MIN_TOKEN_LENGTH} characters")
+        wrong = [entry for entry in self.allowed_hosts if not HOST_AND_PORT.fullmatch(entry)]
+        if wrong:
+            raise ValueError(f"allowed host {wrong[0]!r} is not a host name (or [IPv6] address) with an optional :port")
+        if not self.request_timeout_s > 0:
+            raise ValueError(f"request_timeout_s ({self.request_timeout_s}) must be > 0")
         if not 1 <= self.page_size <= self.max_page_size:
             raise ValueError(f"page_size ({self.page_size}) must be between 1 and max_page_size ({self.max_page_size})")
 

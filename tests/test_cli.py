@@ -24,7 +24,7 @@ import pytest
 from jobs.simulated_portfolio import SHORT_SERIES_ID, simulated_series, write_portfolio_csv
 from threadpoolctl import threadpool_limits
 
-from app.cli import DECIDE_ACTIONS, main
+from app.cli import DECIDE_ACTIONS, build_parser, main, server_settings, terminal_text
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
@@ -273,6 +273,46 @@ def test_import_of_an_unusable_file_stores_nothing(run_cli, small_csv, tmp_path)
         assert portfolio_status(handle)["series"] == SERIES
 
 
+def test_import_of_an_unusable_file_into_a_new_path_creates_no_database(run_cli, tmp_path):
+    db = tmp_path / "new.db"
+    bad = tmp_path / "bad.csv"
+    bad.write_text("id,timestamp,value\na,1,2\n")
+
+    code, _, err = run_cli("import", bad, "--db", db)
+
+    assert code == 2 and "no column named 'series_id'" in err
+    assert list(tmp_path.iterdir()) == [bad]
+
+
+def test_import_and_identify_apply_the_limits_and_date_format_given(run_cli, tmp_path):
+    path = tmp_path / "three.csv"
+    path.write_text(HEADER + "\n" + "".join(f"{sid},{d:02d}/01/2024,{d * (i + 1)}\n" for i, sid in enumerate("abc") for d in range(1, 13)))
+    db = tmp_path / "p.db"
+
+    code, _, err = run_cli("import", path, "--db", db, "--max-series", "2")
+    assert code == 2 and err.endswith("holds more than 2 series; at most 2 are accepted in one file\n") and not db.exists()
+
+    code, out, _ = run_cli("identify", path, "--max-points", "11", "--date-format", "%d/%m/%Y", "--workers", "1", "--json")
+    problems = json.loads(out)["problems"]
+    assert code == 0 and [(p["series_id"], p["row"], p["flag"]) for p in problems] == [("a", 13, "too_long"), ("b", 25, "too_long"), ("c", 37, "too_long")]
+
+    code, _, err = run_cli("import", path, "--db", db)  # 01/01/2024 ... 12/01/2024: day first or month first?
+    assert code == 2 and "line 3: timestamp '02/01/2024' reads as another date day first" in err
+
+    code, out, _ = run_cli("import", path, "--db", db, "--date-format", "%m/%d/%Y")
+    assert code == 0 and out.startswith(f"{path}: 3 added")
+
+
+@pytest.mark.parametrize(("text", "shown"), [
+    ("shop/caf\u00e9 \U0001f4c8", "shop/caf\u00e9 \U0001f4c8"),
+    ("red\x1b[31m", "red\\x1b[31m"),
+    ("two\nlines\r", "two\\nlines\\r"),
+    ("back\u202ewards", "back\\u202ewards"),
+])
+def test_terminal_text_escapes_what_a_terminal_would_act_on(text, shown):
+    assert terminal_text(text) == shown
+
+
 @pytest.mark.parametrize("command", ["analyze", "status"])
 def test_commands_that_read_a_database_do_not_create_one(run_cli, tmp_path, command):
     db = tmp_path / "missing.db"
@@ -376,7 +416,7 @@ PREFIX = "north/"
 def decide_template(tmp_path_factory) -> Path:
     """The series of :data:`DECIDE_IDS` imported and analysed once; every verdict pending."""
     folder = tmp_path_factory.mktemp("decide")
-    series = simulated_series(len(DECIDE_IDS), (80, 150), seed=2)
+    series = simulated_series(len(DECIDE_IDS), (200, 300), seed=2)
     rows = [(DECIDE_IDS[sid], step, repr(float(v))) for sid, values in series.items() for step, v in values.items()]
     csv_path = folder / "portfolio.csv"
     pd.DataFrame(rows, columns=["series_id", "timestamp", "value"]).to_csv(csv_path, index=False)
@@ -489,14 +529,16 @@ def test_decide_pending_reopens_a_decided_series_and_the_history_keeps_every_ste
 
 
 def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(run_cli, decide_db):
-    assert run_cli("decide", "north/b", "park", "--reviewer", "ann", "--db", decide_db)[0] == 0
     with open_database(decide_db) as db:
         confidence = {sid: load_analysis(db, sid).confidence for sid in DECIDE_IDS.values()}
+    parked = min(s for s in confidence if s.startswith(PREFIX) and confidence[s] == "firm")
+    assert run_cli("decide", parked, "park", "--reviewer", "ann", "--db", decide_db)[0] == 0
+    with open_database(decide_db) as db:
         status = {sid: get_verdict(db, sid)["status"] for sid in DECIDE_IDS.values()}
     expected = sorted(s for s in DECIDE_IDS.values() if s.startswith(PREFIX) and status[s] == "pending" and confidence[s] == "firm")
     # The portfolio tests each rule: firm and pending under the prefix, a parked firm one and a
     # pending one the engine is not firm about under it, firm pending ones outside it.
-    assert expected and status["north/b"] == "parked" and confidence["north/b"] == "firm"
+    assert expected and status[parked] == "parked"
     assert any(s.startswith(PREFIX) and status[s] == "pending" and confidence[s] != "firm" for s in status)
     assert any(not s.startswith(PREFIX) and status[s] == "pending" and confidence[s] == "firm" for s in status)
     before = _snapshot(decide_db)
@@ -576,3 +618,13 @@ def test_decide_help_shows_both_forms_and_the_actions(capsys):
     assert shown.value.code == 0
     assert "lagdesk decide SERIES_ID ACTION --reviewer NAME" in text and "lagdesk decide --all-firm [--prefix ID_PREFIX]" in text
     assert all(action in text for action in DECIDE_ACTIONS)
+
+
+def test_serve_takes_extra_host_names_for_the_host_check(tmp_path):
+    args = build_parser().parse_args(["serve", "--allowed-host", "localhost:9000", "--allowed-host", "review.example",
+                                      "--db", str(tmp_path / "x.db")])
+    settings = server_settings(tmp_path / "x.db", args)
+    assert settings.allowed_hosts == ("localhost:9000", "review.example")
+    bad = build_parser().parse_args(["serve", "--allowed-host", "a b", "--db", str(tmp_path / "x.db")])
+    with pytest.raises(LagdeskError, match="allowed host 'a b'"):
+        server_settings(tmp_path / "x.db", bad)

@@ -8,8 +8,9 @@ stale.
 
 One run at a time per database: a run holds an OS lock on a file beside the database for as
 long as it lasts. The operating system drops the lock with the process that held it, so a run
-record still marked ``running`` while the lock is free was left by a run that died, and the next
-run closes it as ``interrupted``.
+record still marked ``running`` while the lock is free was left by a run that died: the next run
+closes it as ``interrupted``, and so does the dashboard when it shows runs
+(:func:`close_abandoned_runs`).
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ from app.jobs.recheck import recheck_after_analysis
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database, write_transaction
-from app.store.runs import finish_run, get_run, list_runs, record_progress, start_run
+from app.store.runs import finish_run, get_run, interrupt_running_runs, list_runs, record_progress, running_run_ids, start_run
 from app.store.series import load_series, series_fingerprint, series_ids_to_analyse
 
 LOCK_SUFFIX = "-analysis.lock"
@@ -176,9 +177,7 @@ def begin_analysis(
             if lock_fd is None:
                 raise AnalysisInProgress(path, _running_run_id(db))
             try:
-                for run in list_runs(db):
-                    if run["state"] == "running":
-                        finish_run(db, run["run_id"], "interrupted")
+                interrupt_running_runs(db)
                 series_ids = series_ids_to_analyse(db, everything)
                 settings = {"workers": workers, "everything": everything, "options": asdict(options), "executor": asdict(executor)}
                 run_id = start_run(db, settings, len(series_ids), ENGINE_VERSION)
@@ -224,6 +223,28 @@ def start_background_analysis(db_path: str | Path, workers: int | None = None) -
         return busy.run_id
     threading.Thread(target=_execute_logged, args=(run,), name=f"lagdesk-run-{run.run_id}", daemon=True).start()
     return run.run_id
+
+
+def close_abandoned_runs(db: sqlite_utils.Database, db_path: str | Path) -> list[int]:
+    """Close as ``interrupted`` the runs still marked ``running`` whose process has died (no
+    process holds the run lock, and this one runs none); their ids. Costs one query while no run
+    is marked running.
+    """
+    if not running_run_ids(db):
+        return []
+    path = Path(db_path).resolve()
+    with _start_guard:
+        # Within this process the lock cannot be probed: a second lock on the file would be
+        # granted, and releasing it would release the live run's too.
+        if path in _held:
+            return []
+        lock_fd = _acquire(path)
+        if lock_fd is None:
+            return []
+        try:
+            return interrupt_running_runs(db)
+        finally:
+            _release_fd(lock_fd)
 
 
 def _execute_logged(run: AnalysisRun) -> None:

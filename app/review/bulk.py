@@ -5,6 +5,7 @@ from __future__ import annotations
 import sqlite_utils
 
 from app.core.vocabulary import Confidence, VerdictStatus
+from app.review.decisions import checked_note
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
 from app.store.series import list_series
@@ -25,7 +26,13 @@ def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, no
     """Approve the suggestion of every pending, firm series in ``flt``; returns the ids approved.
 
     Each series is re-read before it is approved: one decided or re-analysed meanwhile is left alone.
+
+    Raises
+    ------
+    DecisionError
+        When the note is longer than :data:`app.review.decisions.MAX_NOTE_LENGTH`.
     """
+    checked_note(note)
     approved = []
     for series_id in firm_pending_ids(db, flt):
         verdict = get_verdict(db, series_id)

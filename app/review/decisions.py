@@ -21,9 +21,26 @@ from app.jobs.order_fits import fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
 from app.store.verdicts import get_verdict, set_verdict
 
+# A note is a reviewer's reason in a few sentences; the bound keeps a pasted file (or an
+# attacker's megabytes) out of the history, which keeps every version of it.
+MAX_NOTE_LENGTH = 5_000
+
 
 class DecisionError(LagdeskError):
     """A decision that contradicts the analysis (e.g. 'approved' with an order that was not suggested)."""
+
+
+def checked_note(note: str) -> str:
+    """``note`` when it is at most :data:`MAX_NOTE_LENGTH` characters long.
+
+    Raises
+    ------
+    DecisionError
+        Saying the bound and the note's length.
+    """
+    if len(note) > MAX_NOTE_LENGTH:
+        raise DecisionError(f"a note may hold at most {MAX_NOTE_LENGTH:,} characters; this one has {len(note):,}")
+    return note
 
 
 def checked_order(analysis: Analysis | None, n: int, order: Sequence[int], seasonal_order: Sequence[int] | None) -> Order:
@@ -81,6 +98,7 @@ def decide(
     UnknownSeries, StaleVersion, OrderError, DecisionError
     """
     get_verdict(db, series_id)  # UnknownSeries before anything else
+    checked_note(note)
     if status not in REVIEWER_STATUSES:
         raise DecisionError(f"status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}")
     analysis = load_analysis(db, series_id)

@@ -14,7 +14,12 @@ gets a leading single quote, as OWASP's guidance on CSV injection advises; numbe
 they are, so a negative value stays a number.
 
 A file is written whole or not at all: into a temporary file in the same folder, flushed to
-disk, then renamed over the target (:func:`os.replace` is atomic on one file system).
+disk, then renamed over the target (:func:`os.replace` is atomic on one file system). A new
+file gets the permissions any program of the user's would (``0666`` less the umask: ``0644``
+under the usual ``022``, ``0640`` under ``027``), so the forecasting job's account can read it
+as the site's policy says; a file that already exists keeps its own permissions, so an export
+someone restricted on purpose (orders are business data) stays restricted when it is written
+again.
 
 References
 ----------
@@ -28,7 +33,8 @@ import io
 import json
 import os
 import re
-import tempfile
+import secrets
+import stat
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -38,7 +44,6 @@ from app.core.errors import LagdeskError
 from app.jobs.order_fits import fill_parameters
 from app.store.database import open_database, utc_now
 from app.store.orders import ORDER_FIELDS, export_snapshot
-from app.store.series import series_fingerprint
 from app.store.verdicts import DECIDED
 
 SCHEMA_NAME = "lagdesk-orders"
@@ -140,18 +145,21 @@ def neutralise_formula(text: str) -> str:
 
 
 def write_atomically(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` so that a reader sees the old file or the new one, never a part."""
-    handle = tempfile.NamedTemporaryFile(
-        "w", encoding="utf-8", newline="", dir=path.parent, prefix=f".{path.name}.", suffix=".tmp", delete=False
-    )
+    """Write ``text`` to ``path`` so that a reader sees the old file or the new one, never a part;
+    with the permissions of the module notes."""
+    temporary = path.with_name(f".{path.name}.{secrets.token_hex(8)}.tmp")
+    # Created as any new file is (0666 less the umask, applied by the kernel); not tempfile's 0600.
+    fd = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
     try:
-        with handle:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
             handle.write(text)
             handle.flush()
+            if path.exists():
+                os.chmod(handle.fileno(), stat.S_IMODE(path.stat().st_mode))
             os.fsync(handle.fileno())
-        os.replace(handle.name, path)
+        os.replace(temporary, path)
     except BaseException:
-        Path(handle.name).unlink(missing_ok=True)
+        temporary.unlink(missing_ok=True)
         raise
 
 
@@ -168,15 +176,16 @@ def export_command(
     db = open_database(db_path)
     try:
         document = write_export(db, target, fmt, chosen)
-        moved = [o["series_id"] for o in document["orders"] if series_fingerprint(db, o["series_id"]) != o["data_sha256"]]
     finally:
         db.close()
-    return export_summary(document, target, fmt, moved)
+    return export_summary(document, target, fmt)
 
 
-def export_summary(document: dict, target: Path, fmt: str, moved: Sequence[str] = ()) -> str:
-    """One line: what was written where, what was left out, and which orders await a re-check."""
+def export_summary(document: dict, target: Path, fmt: str) -> str:
+    """One line: what was written where, what was left out, and which orders await a re-check
+    (``data_changed``)."""
     orders = document["orders"]
+    moved = [o["series_id"] for o in orders if o["data_changed"]]
     by_decision = {d: sum(o["decision"] == d for o in orders) for d in DECIDED}
     decided = ", ".join(f"{n} {d}" for d, n in by_decision.items() if n)
     left = ", ".join(f"{n} {status}" for status, n in document["left_out"].items())
@@ -184,6 +193,6 @@ def export_summary(document: dict, target: Path, fmt: str, moved: Sequence[str] 
     if moved:
         line += (
             f"; {len(moved)} of them were decided on data that has changed since "
-            f"(e.g. {moved[0]!r}): run the analysis to re-check them"
+            f"(e.g. {moved[0]!r}), marked data_changed: run the analysis to re-check them"
         )
     return line

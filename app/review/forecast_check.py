@@ -1,5 +1,12 @@
 """The forecast check of an order on a stored series, for the review page, the API and
-``lagdesk backtest`` (the method is :func:`app.core.backtest.backtest_order`)."""
+``lagdesk backtest`` (the method is :func:`app.core.backtest.backtest_order`).
+
+Each origin refits the order, so the work grows with the origins, the horizon and the order;
+a check is bounded, since anyone who can open a page can ask for one: at most
+:data:`MAX_ORIGINS` origins, a horizon of at most two seasons or :data:`MIN_HORIZON_CAP` steps
+(whichever is longer), and orders within the engine's own search limits
+(:data:`app.core.order.MAX_ORDER`, :data:`app.core.order.MAX_SEASONAL_ORDER`).
+"""
 
 from __future__ import annotations
 
@@ -11,10 +18,45 @@ from threadpoolctl import threadpool_limits
 
 from app.core.backtest import backtest_order
 from app.core.errors import LagdeskError, OrderError
-from app.core.order import validate_order
+from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order, validate_order
 from app.core.transform import TransformChoice, apply_transform
 from app.jobs.order_fits import NUMERICAL_FAILURES, load_prepared
 from app.store.analyses import load_analysis
+
+MAX_ORIGINS = 20
+MIN_HORIZON_CAP = 30
+HORIZON_CAP_SEASONS = 2
+
+
+class ForecastCheckTooLarge(LagdeskError):
+    """A forecast check asked for more origins, a longer horizon or a larger order than it takes."""
+
+
+def max_horizon(period: int | None) -> int:
+    """The longest horizon a check takes: two seasons or :data:`MIN_HORIZON_CAP` steps, whichever is longer."""
+    return max(HORIZON_CAP_SEASONS * (period or 0), MIN_HORIZON_CAP)
+
+
+def check_bounds(model: Order, period: int | None, horizon: int | None, origins: int | None) -> None:
+    """Refuse a check beyond the bounds of the module notes.
+
+    Raises
+    ------
+    ForecastCheckTooLarge
+        Naming the bound passed.
+    """
+    if max(model.p, model.q) > MAX_ORDER or max(model.P, model.Q) > MAX_SEASONAL_ORDER:
+        raise ForecastCheckTooLarge(
+            f"the forecast check takes orders up to the engine's search limits (p, q <= {MAX_ORDER}; "
+            f"P, Q <= {MAX_SEASONAL_ORDER}), not {model.label()}"
+        )
+    if origins is not None and not 1 <= origins <= MAX_ORIGINS:
+        raise ForecastCheckTooLarge(f"origins ({origins}) must be between 1 and {MAX_ORIGINS}")
+    cap = max_horizon(period)
+    if horizon is not None and not 1 <= horizon <= cap:
+        raise ForecastCheckTooLarge(
+            f"horizon ({horizon}) must be between 1 and {cap} (two seasons or {MIN_HORIZON_CAP} steps, whichever is longer)"
+        )
 
 
 def backtest_series(
@@ -46,6 +88,8 @@ def backtest_series(
     ------
     UnknownSeries
         When the database holds no such series.
+    ForecastCheckTooLarge
+        When the order, the horizon or the origins pass the bounds of the module notes.
     LagdeskError
         When the order or transform is not valid, or the series is too short for the check.
     """
@@ -65,6 +109,7 @@ def backtest_series(
         raise LagdeskError(f"series {series_id!r}: {exc}") from None
     model = analysis.model_for(order, seasonal_order)[0] if analysis else validate_order(order, seasonal_order)
     period = model.period or (analysis.seasonal.examined_period if analysis else None)
+    check_bounds(model, period, horizon, origins)
     try:
         with threadpool_limits(limits=1):
             check = backtest_order(prepared, model, choice, period, horizon=horizon, origins=origins)

@@ -5,6 +5,12 @@ turns on write-ahead logging (readers never block the writer, so the dashboard s
 during an analysis run), a busy timeout (a second writer waits instead of failing at once),
 and foreign keys, then applies any pending schema migrations, so a user who upgrades Lagdesk
 never runs a manual step.
+
+The first time a process opens a file, SQLite's ``PRAGMA quick_check`` reads all of it, so a
+damaged file is reported in one line naming it when a command or the server starts, not as
+the odd error of whichever request reaches a damaged page first. Later connections of the same
+process (one per request in the server) skip it: it reads the whole file (about 0.25 s for
+2,000 series x 1,000 points, measured here).
 """
 
 from __future__ import annotations
@@ -24,6 +30,13 @@ from app.store.migrations import MIGRATIONS, STEPS
 DEFAULT_DB_NAME = "lagdesk.db"
 DB_ENV_VAR = "LAGDESK_DB"
 BUSY_TIMEOUT_S = 10
+# What SQLite says of a file whose pages are damaged (SQLITE_CORRUPT). A file that is not
+# SQLite at all ("file is not a database") is told apart: it was never a portfolio.
+DAMAGE_WORDS = ("malformed", "corrupt")
+RECOVERY_HINT = "restore it from a backup (sqlite3's .recover command can save what is still readable)"
+
+# Files this process has found sound, by (device, inode): a replaced file is checked again.
+_checked_files: set[tuple[int, int]] = set()
 
 
 class UnknownSeries(LagdeskError):
@@ -38,6 +51,12 @@ class UnknownSeries(LagdeskError):
 
 class StorageUnavailable(LagdeskError):
     """The database exists but cannot be written here (read-only file or folder)."""
+
+    http_status = 503
+
+
+class DamagedDatabase(LagdeskError):
+    """The database file has damaged pages (``PRAGMA quick_check`` finds problems)."""
 
     http_status = 503
 
@@ -83,9 +102,12 @@ def open_database(path: str | Path) -> sqlite_utils.Database:
         db.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_S * 1000}")
         db.execute("PRAGMA foreign_keys = ON")
         db.enable_wal()
+        _check_once(db, path)
         _migrate(db, path)
     except sqlite3.DatabaseError as exc:
         db.close()
+        if is_damage(exc):
+            raise DamagedDatabase(damage_text(exc, path)) from None
         if not os.access(path.parent, os.W_OK) or (path.exists() and not os.access(path, os.W_OK)):
             raise StorageUnavailable(
                 f"{path}: the database file (or its folder) is read-only; Lagdesk keeps its journal "
@@ -96,6 +118,36 @@ def open_database(path: str | Path) -> sqlite_utils.Database:
         db.close()
         raise
     return db
+
+
+def _check_once(db: sqlite_utils.Database, path: Path) -> None:
+    """``PRAGMA quick_check`` the first time this process opens the file (see the module notes).
+
+    Raises
+    ------
+    DamagedDatabase
+        When SQLite finds damage, naming the file and the first problem.
+    """
+    stat = path.stat()
+    key = (stat.st_dev, stat.st_ino)
+    if key in _checked_files:
+        return
+    problems = [row[0] for row in db.execute("PRAGMA quick_check").fetchall()]  # may raise: see open_database
+    if problems != ["ok"]:
+        raise DamagedDatabase(damage_text(problems[0], path))
+    _checked_files.add(key)
+
+
+def is_damage(exc: sqlite3.Error) -> bool:
+    """Whether SQLite reports damaged pages."""
+    return any(word in str(exc).lower() for word in DAMAGE_WORDS)
+
+
+def damage_text(problem: sqlite3.Error | str, path: str | Path | None = None) -> str:
+    """One line saying the file is damaged, with SQLite's first problem and what to do."""
+    where = f"{path}: " if path is not None else ""
+    detail = " ".join(str(problem).split())  # quick_check's report may span lines
+    return f"{where}the database file is damaged ({detail}); {RECOVERY_HINT}"
 
 
 def _migrate(db: sqlite_utils.Database, path: Path) -> None:
@@ -142,11 +194,15 @@ def require_series(db: sqlite_utils.Database, series_id: str) -> None:
         raise UnknownSeries(series_id)
 
 
-def storage_error_text(exc: sqlite3.Error, path: str | Path | None = None) -> str:
-    """One line on a database failure for a person: what happened and that nothing half-done
-    was kept (every write happens in a transaction, which SQLite rolls back on failure)."""
+def storage_error_text(exc: sqlite3.Error, path: str | Path | None = None, writing: bool = True) -> str:
+    """One line on a database failure for a person: what happened and, for a write, that nothing
+    half-done was kept (every write happens in a transaction, which SQLite rolls back on failure).
+    ``writing`` False: the failure came while only reading."""
+    if is_damage(exc):
+        return damage_text(exc, path)
     detail = str(exc).strip() or type(exc).__name__
     lowered = detail.lower()
+    where = f"{path}: " if path is not None else ""
     if "full" in lowered:
         cause = "the disk is full"
     elif "readonly" in lowered or "read-only" in lowered:
@@ -154,8 +210,9 @@ def storage_error_text(exc: sqlite3.Error, path: str | Path | None = None) -> st
     elif "locked" in lowered or "busy" in lowered:
         cause = f"another process kept the database busy for more than {BUSY_TIMEOUT_S} s"
     else:
-        cause = "the database could not be written"
-    where = f"{path}: " if path is not None else ""
+        cause = "the database could not be written" if writing else "the database could not be read"
+    if not writing:
+        return f"{where}{cause} ({detail})"
     return f"{where}{cause} ({detail}); the change was rolled back, the database is as it was before"
 
 

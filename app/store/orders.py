@@ -4,6 +4,11 @@ One record per series whose verdict has one of the chosen statuses (approved, ov
 the fields of :data:`ORDER_FIELDS`. Their names are fixed, so forecasting jobs can rely on
 them; the seasonal fields are spelled out so that nobody confuses ``d`` with ``D``.
 
+``data_changed`` is true when the series' data changed after the decision (an import since
+then, and no analysis yet to re-check the order on the new data): the order was chosen for
+data the forecasting job will no longer see, so the record says so until ``lagdesk analyze``
+confirms the order or sends the series back to the queue (``recheck``).
+
 ``parameters`` are the fitted coefficients of the chosen model on the series' current data, by
 name (statsmodels' names, with ``const`` for a constant, ``drift`` for a drift or trend slope,
 and ``sigma2`` for the innovation variance). They come from the stored analysis when it is
@@ -31,8 +36,8 @@ from app.store.verdicts import verdict_counts
 
 ORDER_FIELDS = (
     "series_id", "p", "d", "q", "seasonal_p", "seasonal_d", "seasonal_q", "period", "transform",
-    "include_constant", "decision", "reviewer", "decided_at", "note", "data_sha256", "last_timestamp",
-    "engine_version", "parameters",
+    "include_constant", "decision", "reviewer", "decided_at", "note", "data_sha256", "data_changed",
+    "last_timestamp", "engine_version", "parameters",
 )
 ALWAYS_COUNTED = (VerdictStatus.PENDING, VerdictStatus.PARKED, VerdictStatus.RECHECK)
 
@@ -105,7 +110,8 @@ def _decided(row: dict) -> DecidedOrder:
         "seasonal_p": model.P, "seasonal_d": model.D, "seasonal_q": model.Q, "period": model.period,
         "transform": transform.to_json(), "include_constant": model.trend != "n",
         "decision": row["status"], "reviewer": row["reviewer"], "decided_at": row["decided_at"],
-        "note": row["note"], "data_sha256": row["data_sha256"], "last_timestamp": row["last_timestamp"],
+        "note": row["note"], "data_sha256": row["data_sha256"], "data_changed": row["data_sha256"] != row["fingerprint"],
+        "last_timestamp": row["last_timestamp"],
         "engine_version": engine_version, "parameters": parameters,
     }
     return DecidedOrder(record, model, transform, row["fingerprint"])

@@ -1,8 +1,9 @@
 """Analysis run records: when, which engine and settings, and progress readable by the web page.
 
 ``done`` counts the series finished so far (analysed or failed) and ``failed`` those of them
-that failed, so ``done / total`` is the progress. A run whose process died keeps the state
-``running``; ``updated_at`` (the last progress) tells how long it has been silent.
+that failed, so ``done / total`` is the progress. A run whose process died is left ``running``
+until someone who can tell that it died (the run lock is free:
+:func:`app.jobs.analyze.close_abandoned_runs`) closes it with :func:`interrupt_running_runs`.
 """
 
 from __future__ import annotations
@@ -18,7 +19,6 @@ from app.store.database import insert_row, utc_now
 FINAL_STATES = ("finished", "interrupted", "failed")
 
 _COLUMNS = "run_id, started_at, updated_at, finished_at, engine_version, settings, total, done, failed, state, duration_s"
-
 
 
 class UnknownRun(LagdeskError):
@@ -62,6 +62,22 @@ def finish_run(db: sqlite_utils.Database, run_id: int, state: str) -> None:
     now = utc_now()
     started = get_run(db, run_id)["started_at"]
     _update(db, run_id, "state = ?, finished_at = ?, updated_at = ?, duration_s = ?", [state, now, now, _seconds(started, now)])
+
+
+def running_run_ids(db: sqlite_utils.Database) -> list[int]:
+    """The runs whose record still says ``running``, oldest first."""
+    return [run_id for (run_id,) in db.execute("SELECT run_id FROM runs WHERE state = 'running' ORDER BY run_id")]
+
+
+def interrupt_running_runs(db: sqlite_utils.Database) -> list[int]:
+    """Close every run still marked ``running`` as ``interrupted``; their ids.
+
+    Only for a caller that knows no process is running them any more (it holds the run lock).
+    """
+    run_ids = running_run_ids(db)
+    for run_id in run_ids:
+        finish_run(db, run_id, "interrupted")
+    return run_ids
 
 
 def _update(db: sqlite_utils.Database, run_id: int, assignments: str, params: list) -> None:

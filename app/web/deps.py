@@ -1,14 +1,18 @@
-"""Dependencies shared by the page and API routes: settings, a database per request, the reviewer."""
+"""Dependencies shared by the page and API routes: settings, a database per request, the
+reviewer, and one expensive computation per series at a time."""
 
 from __future__ import annotations
 
+import threading
 from collections.abc import Iterator
+from contextlib import AbstractContextManager, contextmanager
 
 import sqlite_utils
 from fastapi import Depends, Request
 
 from app.config import Settings
-from app.core.errors import OrderError
+from app.core.errors import LagdeskError, OrderError
+from app.jobs.analyze import close_abandoned_runs
 from app.store.database import open_database
 
 REVIEWER_COOKIE = "lagdesk_reviewer"
@@ -34,6 +38,56 @@ def get_db(settings: Settings = Depends(get_settings)) -> Iterator[sqlite_utils.
         yield db
     finally:
         db.close()
+
+
+def get_runs_db(db: sqlite_utils.Database = Depends(get_db), settings: Settings = Depends(get_settings)) -> sqlite_utils.Database:
+    """The request's database, with the runs of processes that died closed as interrupted
+    first, so a page that shows runs never shows a dead one as running."""
+    close_abandoned_runs(db, settings.db_path)
+    return db
+
+
+class SeriesBusy(LagdeskError):
+    """A forecast check or custom fit asked for while one of the same series is running."""
+
+    http_status = 429
+
+
+class SeriesSlots:
+    """The series with an expensive computation (a forecast check, a custom fit) running in
+    this server: each may have one at a time, so repeated requests cannot pile work on it."""
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._busy: set[str] = set()
+
+    @contextmanager
+    def hold(self, series_id: str) -> Iterator[None]:
+        """Run the block as the series' one computation.
+
+        Raises
+        ------
+        SeriesBusy
+            When another computation of ``series_id`` has not finished.
+        """
+        with self._lock:
+            if series_id in self._busy:
+                raise SeriesBusy(
+                    f"series {series_id!r} is already busy with a forecast check or fit; "
+                    "try again once it has finished"
+                )
+            self._busy.add(series_id)
+        try:
+            yield
+        finally:
+            with self._lock:
+                self._busy.discard(series_id)
+
+
+def computation_slot(request: Request, series_id: str) -> AbstractContextManager[None]:
+    """The series' one slot for a forecast check or a custom fit (:class:`SeriesSlots`), to
+    hold while it runs; :class:`SeriesBusy` (429) when it is taken."""
+    return request.app.state.series_slots.hold(series_id)
 
 
 def clean_reviewer(name: str | None) -> str:

@@ -7,6 +7,7 @@ names what is wrong; the handlers give each kind its status code.
 from __future__ import annotations
 
 import sqlite3
+from collections.abc import Mapping
 
 from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse, Response
@@ -14,6 +15,7 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from app.core.errors import LagdeskError
 from app.store.database import storage_error_text
+from app.web.security import SAFE_METHODS
 from app.web.templating import templates
 
 API_PREFIX = "/api/"
@@ -21,16 +23,19 @@ API_PREFIX = "/api/"
 
 def status_of(exc: LagdeskError) -> int:
     """The HTTP status an error class carries (``http_status``: 404 unknown series or run, 409
-    stale verdict or busy analysis, 400 unusable file, 413 file too large, 403 form without its
-    CSRF token, 503 database that cannot be written, 422 otherwise)."""
+    stale verdict or busy analysis, 429 a series already busy with a forecast check or fit, 400
+    unusable file, 413 file too large, 403 form without its CSRF token, 503 database that cannot
+    be used, 422 otherwise)."""
     return exc.http_status
 
 
-def error_response(request: Request, status: int, message: str, extra: dict | None = None) -> Response:
+def error_response(request: Request, status: int, message: str, extra: dict | None = None,
+                   headers: Mapping[str, str] | None = None) -> Response:
     if request.url.path.startswith(API_PREFIX):
-        return JSONResponse({"detail": message, **(extra or {})}, status_code=status)
+        return JSONResponse({"detail": message, **(extra or {})}, status_code=status, headers=headers)
     return templates.TemplateResponse(
-        request=request, name="error.html", context={"status": status, "message": message}, status_code=status
+        request=request, name="error.html", context={"status": status, "message": message}, status_code=status,
+        headers=headers,
     )
 
 
@@ -43,13 +48,14 @@ async def _lagdesk_error(request: Request, exc: Exception) -> Response:
 
 async def _http_error(request: Request, exc: Exception) -> Response:
     assert isinstance(exc, StarletteHTTPException)
-    return error_response(request, exc.status_code, str(exc.detail))
+    return error_response(request, exc.status_code, str(exc.detail), headers=exc.headers)
 
 
 async def _storage_error(request: Request, exc: Exception) -> Response:
-    """A full disk, a read-only file or a database busy past the timeout: 503, nothing half-written."""
+    """A full disk, a read-only or damaged file, a database busy past the timeout: 503. A page
+    or call that only reads says the database could not be read."""
     assert isinstance(exc, sqlite3.Error)
-    return error_response(request, 503, storage_error_text(exc))
+    return error_response(request, 503, storage_error_text(exc, writing=request.method not in SAFE_METHODS))
 
 
 def install_error_handlers(app: FastAPI) -> None:

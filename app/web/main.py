@@ -7,6 +7,7 @@ from fastapi.staticfiles import StaticFiles
 
 from app import __version__
 from app.config import Settings
+from app.web.deps import SeriesSlots
 from app.web.errors import install_error_handlers
 from app.web.routes import access, api, pages
 from app.web.security import AccessGuard
@@ -20,6 +21,7 @@ def create_app(settings: Settings) -> FastAPI:
                   # this machine, so only the schema itself is served.
                   docs_url=None, redoc_url=None)
     app.state.settings = settings
+    app.state.series_slots = SeriesSlots()
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(access.router)
     app.include_router(pages.router)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import random
 import threading
 import time
+from contextlib import closing
 from dataclasses import dataclass, field
 from pathlib import Path
 from urllib.parse import quote
@@ -20,6 +21,7 @@ from corpus_files import csv_bytes, good_values, month_starts, series_rows
 
 from app.store.database import open_database
 from app.store.imports import import_portfolio
+from app.web.security import CSRF_HEADER, CSRF_PATH
 
 REQUEST_TIMEOUT_S = 30.0
 STALE_EVERY = 5  # every fifth post names a version known to be outdated
@@ -61,6 +63,15 @@ def build_portfolio(db_path: Path, series: int) -> list[str]:
     return ids
 
 
+def api_client(base: str) -> httpx.Client:
+    """An HTTP client as a script uses the API: it keeps the CSRF cookie ``GET /api/csrf`` sets
+    and sends the token in the ``X-CSRF-Token`` header of every request (already opened: close
+    it with ``contextlib.closing``)."""
+    client = httpx.Client(timeout=REQUEST_TIMEOUT_S)
+    client.headers[CSRF_HEADER] = client.get(f"{base}{CSRF_PATH}").json()["csrf_token"]
+    return client
+
+
 def _verdict_url(base: str, series_id: str) -> str:
     return f"{base}/api/series/{quote(series_id, safe='/')}/verdict"
 
@@ -71,7 +82,7 @@ def run_reviewer(
 ) -> None:
     """Post ``posts`` decisions (fewer if ``stop`` is set or the server goes away)."""
     rng = random.Random(reviewer)
-    with httpx.Client(timeout=REQUEST_TIMEOUT_S) as client:
+    with closing(api_client(base)) as client:
         for i in range(posts):
             if stop is not None and stop.is_set():
                 return

@@ -23,21 +23,27 @@ from fastapi.testclient import TestClient
 from app.config import Settings
 from app.store.database import open_database
 from app.store.imports import import_portfolio
-from app.web import security
+from app.web import limits, security
 from app.web.main import create_app
-from app.web.security import CSRF_COOKIE, CSRF_FIELD, TOKEN_COOKIE, TOKEN_HEADER, require_token_off_loopback
+from app.web.security import CSRF_COOKIE, CSRF_FIELD, CSRF_HEADER, TOKEN_COOKIE, TOKEN_HEADER, require_token_off_loopback
 
 TOKEN = "correct-horse-battery-staple-42"
+TEST_HOSTS = ("testserver",)  # the test client's Host header
 SCRIPT = "<script>alert('note')</script>"
 
 
 def _client(db_path, **settings) -> TestClient:
-    return TestClient(create_app(Settings(db_path=db_path, analysis_workers=1, **settings)))
+    return TestClient(create_app(Settings(db_path=db_path, analysis_workers=1, allowed_hosts=TEST_HOSTS, **settings)))
 
 
 def _csrf(client: TestClient, page: str = "/") -> str:
     client.get(page)
     return client.cookies[CSRF_COOKIE]
+
+
+def _api_csrf(client: TestClient) -> dict[str, str]:
+    """The header a script sends with every state-changing API call."""
+    return {CSRF_HEADER: _csrf(client)}
 
 
 # --- serve: loopback by default, a token for anything else ------------------------------------
@@ -211,7 +217,8 @@ def test_a_cross_site_post_is_refused_even_with_a_token(seeded_db):
 def test_a_note_with_markup_is_shown_as_text(seeded_db):
     with _client(seeded_db) as client:
         url = f"/api/series/{quote(SEED_ID, safe='/')}/verdict"
-        assert client.post(url, json={"status": "parked", "version": 0, "note": SCRIPT, "reviewer": SCRIPT}).status_code == 200
+        assert client.post(url, json={"status": "parked", "version": 0, "note": SCRIPT, "reviewer": SCRIPT},
+                           headers=_api_csrf(client)).status_code == 200
         for page in (f"/series/{quote(SEED_ID, safe='/')}", "/"):
             assert SCRIPT not in client.get(page).text
         review = client.get(f"/series/{quote(SEED_ID, safe='/')}").text
@@ -242,11 +249,11 @@ def test_an_upload_over_the_size_limit_is_refused_before_it_is_read(seeded_db):
     before = table_rows(seeded_db)
     with _client(seeded_db, max_upload_bytes=1024) as client:
         big = csv_bytes(series_rows("big", good_values(100_000 // 30)))
-        assert len(big) > 1024 + security.FORM_ENVELOPE_BYTES
+        assert len(big) > 1024 + limits.FORM_ENVELOPE_BYTES
         response = client.post("/api/imports", files={"file": ("big.csv", big, "text/csv")})
         assert response.status_code == 413 and "upload limit" in response.json()["detail"]
         small_enough = csv_bytes(series_rows("mid", good_values(100)))  # over the file limit, inside the envelope
-        response = client.post("/api/imports", files={"file": ("mid.csv", small_enough, "text/csv")})
+        response = client.post("/api/imports", files={"file": ("mid.csv", small_enough, "text/csv")}, headers=_api_csrf(client))
         assert response.status_code == 413 and "mid.csv" in response.json()["detail"]
     assert table_rows(seeded_db) == before
 
@@ -255,16 +262,16 @@ def test_an_upload_with_too_many_series_is_refused_whole(seeded_db, tmp_path):
     before = table_rows(seeded_db)
     rows = [row for sid in ("a", "b", "c") for row in series_rows(sid, good_values())]
     with _client(seeded_db, max_upload_series=2) as client:
-        response = client.post("/api/imports", files={"file": ("three.csv", csv_bytes(rows), "text/csv")})
+        response = client.post("/api/imports", files={"file": ("three.csv", csv_bytes(rows), "text/csv")}, headers=_api_csrf(client))
     assert response.status_code == 400
-    assert response.json()["detail"] == "three.csv: holds 3 series; at most 2 are accepted in one file"
+    assert response.json()["detail"] == "three.csv: holds more than 2 series; at most 2 are accepted in one file"
     assert table_rows(seeded_db) == before
 
 
 def test_an_uploaded_series_with_too_many_points_is_rejected_and_the_rest_kept(seeded_db):
     rows = series_rows("long", good_values(30)) + series_rows("fine", good_values(20))
     with _client(seeded_db, max_upload_points=25) as client:
-        response = client.post("/api/imports", files={"file": ("mixed.csv", csv_bytes(rows), "text/csv")})
+        response = client.post("/api/imports", files={"file": ("mixed.csv", csv_bytes(rows), "text/csv")}, headers=_api_csrf(client))
     assert response.status_code == 200
     report = response.json()
     assert report["added"] == ["fine"]
@@ -280,7 +287,7 @@ def test_a_live_server_refuses_a_huge_or_unsized_body_at_once(seeded_db, live_se
     server = live_server(seeded_db)
     with socket.create_connection(("127.0.0.1", server.port), timeout=10) as conn:
         conn.sendall(
-            b"POST /api/imports HTTP/1.1\r\nHost: 127.0.0.1\r\nContent-Type: multipart/form-data; boundary=x\r\n"
+            f"POST /api/imports HTTP/1.1\r\nHost: 127.0.0.1:{server.port}\r\n".encode() + b"Content-Type: multipart/form-data; boundary=x\r\n"
             b"Content-Length: 10000000000\r\n\r\n"
         )
         reply = b""
@@ -290,6 +297,6 @@ def test_a_live_server_refuses_a_huge_or_unsized_body_at_once(seeded_db, live_se
     assert reply.startswith("HTTP/1.1 413"), reply
     assert "upload limit" in reply
     with socket.create_connection(("127.0.0.1", server.port), timeout=10) as conn:
-        conn.sendall(b"POST /api/imports HTTP/1.1\r\nHost: 127.0.0.1\r\nTransfer-Encoding: chunked\r\n\r\n5\r\nhello\r\n")
+        conn.sendall(f"POST /api/imports HTTP/1.1\r\nHost: 127.0.0.1:{server.port}\r\n".encode() + b"Transfer-Encoding: chunked\r\n\r\n5\r\nhello\r\n")
         reply = conn.recv(4096).decode()
     assert reply.startswith("HTTP/1.1 411"), reply  # no length: it could not be refused up front

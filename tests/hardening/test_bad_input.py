@@ -18,13 +18,9 @@ import json
 import re
 
 import pytest
-from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows
+from conftest import SEED_ID, assert_no_traceback, run_lagdesk, stored_series, table_rows, upload, web_client
 from corpus_files import CASES, CORPUS_DIR, write_corpus
 from fastapi.testclient import TestClient
-
-from app.config import Settings
-from app.web.main import create_app
-from app.web.security import CSRF_COOKIE, CSRF_FIELD
 
 FILE_ERRORS = [name for name, case in CASES.items() if case.file_error]
 IMPORTS = [name for name, case in CASES.items() if not case.file_error]
@@ -113,19 +109,13 @@ def test_cli_identify_analyses_the_good_series_and_names_the_bad(name):
 
 @pytest.fixture
 def client(seeded_db):
-    with TestClient(create_app(Settings(db_path=seeded_db, analysis_workers=1))) as test_client:
+    with web_client(seeded_db) as test_client:
         yield test_client
 
 
 def _upload(client: TestClient, url: str, name: str):
-    """Post a corpus file as the API client or, for the page, as the upload form does (with the
-    CSRF field of the page it was shown on)."""
-    content = (CORPUS_DIR / name).read_bytes()
-    fields = {"layout": CASES[name].layout}
-    if not url.startswith("/api/"):
-        client.get(url)
-        fields[CSRF_FIELD] = client.cookies[CSRF_COOKIE]
-    return client.post(url, files={"file": (name, content, "text/csv")}, data=fields)
+    """Post a corpus file to the upload page or the API."""
+    return upload(client, url, name, (CORPUS_DIR / name).read_bytes(), {"layout": CASES[name].layout})
 
 
 @pytest.mark.parametrize("name", FILE_ERRORS)

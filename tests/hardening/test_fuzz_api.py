@@ -22,10 +22,14 @@ from schemathesis.specs.openapi.checks import content_type_conformance, response
 
 from app.config import Settings
 from app.web.main import create_app
+from app.web.security import CSRF_COOKIE, CSRF_HEADER
 
 EXAMPLES_PER_OPERATION = 30
 STARTS_A_RUN = r"^(/api)?/runs$"
 CHECKS = [not_a_server_error, response_schema_conformance, content_type_conformance]
+SCHEMATHESIS_HOST = "testserver"  # the Host header of schemathesis' in-process client
+# The CSRF cookie and header a script holds after GET /api/csrf (any value, as long as they agree).
+CSRF_TOKEN = "fuzz-csrf-token"
 QUIET = settings(max_examples=EXAMPLES_PER_OPERATION, deadline=None, suppress_health_check=list(HealthCheck), database=None)
 
 
@@ -34,14 +38,14 @@ def _schema(settings: Settings):
 
 
 # The schema does not depend on the data: list the operations once, without a database.
-OPERATIONS = [result.ok().label for result in _schema(Settings(db_path="unused.db")).get_all_operations()]
+OPERATIONS = [result.ok().label for result in _schema(Settings(db_path="unused.db", allowed_hosts=(SCHEMATHESIS_HOST,))).get_all_operations()]
 
 
 @pytest.fixture(scope="module")
 def api_schema(tmp_path_factory):
     db_path = tmp_path_factory.mktemp("fuzz") / "fuzz.db"
     build_portfolio(db_path, 6)
-    return _schema(Settings(db_path=db_path, analysis_workers=1))
+    return _schema(Settings(db_path=db_path, analysis_workers=1, allowed_hosts=(SCHEMATHESIS_HOST,)))
 
 
 @pytest.mark.slow
@@ -55,7 +59,7 @@ def test_no_operation_answers_with_a_server_error(api_schema, label, mode):
     @given(case=strategy)
     @QUIET
     def check(case):
-        case.call_and_validate(checks=CHECKS)
+        case.call_and_validate(checks=CHECKS, headers={CSRF_HEADER: CSRF_TOKEN}, cookies={CSRF_COOKIE: CSRF_TOKEN})
 
     check()
 

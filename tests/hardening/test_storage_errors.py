@@ -22,6 +22,7 @@ from fastapi.testclient import TestClient
 
 from app.config import Settings
 from app.web.main import create_app
+from app.web.security import CSRF_COOKIE, CSRF_HEADER
 
 TMPFS_SIZE = "512k"
 EXIT_STORAGE_ERROR = 3
@@ -102,8 +103,10 @@ def test_import_into_an_immutable_database_file_says_so(seeded_db):
 def test_a_verdict_on_a_read_only_database_is_a_503_page_not_a_crash(small_disk):
     mount_point, db_path = small_disk
     assert _run("mount", "-o", "remount,ro", str(mount_point))
-    with TestClient(create_app(Settings(db_path=db_path)), raise_server_exceptions=False) as client:
-        response = client.post(f"/api/series/{quote(SEED_ID, safe='/')}/verdict", json={"status": "parked", "version": 0, "reviewer": "Ada"})
+    with TestClient(create_app(Settings(db_path=db_path, allowed_hosts=("testserver",))), raise_server_exceptions=False) as client:
+        client.get("/login")  # the CSRF cookie, whose value the API call sends back in the header
+        response = client.post(f"/api/series/{quote(SEED_ID, safe='/')}/verdict", json={"status": "parked", "version": 0, "reviewer": "Ada"},
+                               headers={CSRF_HEADER: client.cookies[CSRF_COOKIE]})
         assert response.status_code == 503, response.text
         assert "read-only" in response.json()["detail"]
         assert_no_traceback(response.text)

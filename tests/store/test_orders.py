@@ -52,7 +52,7 @@ def test_one_record_per_decided_series_with_every_field_from_the_store(decided_d
         "series_id": "a", "p": 2, "d": 0, "q": 0, "seasonal_p": 0, "seasonal_d": 0, "seasonal_q": 0, "period": None,
         "transform": "none", "include_constant": candidate.order.trend != "n", "decision": "approved", "reviewer": "ann",
         "decided_at": a["decided_at"], "note": "as suggested", "data_sha256": decision_fingerprint(decided_db, "a"),
-        "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result.engine_version,
+        "data_changed": False, "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result.engine_version,
         "parameters": candidate.parameter_values(),
     }
     assert a["decided_at"] is not None and a["data_sha256"] == series_fingerprint(decided_db, "a")

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from fastapi.testclient import TestClient
 from threadpoolctl import threadpool_limits
+from web_client import TEST_HOSTS
 
 from app.config import Settings
 from app.core.identify import identify_series
@@ -89,7 +90,7 @@ def run(folder: Path, n_series: int, n_points: int) -> None:
     db = open_database(db_path)
     some = db.execute("SELECT series_id FROM series ORDER BY series_id LIMIT 1 OFFSET ?", [n_series // 2]).fetchone()[0]
     db.close()
-    client = TestClient(create_app(Settings(db_path=db_path)))
+    client = TestClient(create_app(Settings(db_path=db_path, allowed_hosts=TEST_HOSTS)))
     urls = {
         "queue, first page": "/",
         "queue, weak only": "/?confidence=weak",

@@ -6,13 +6,13 @@ import shutil
 
 import pytest
 from fastapi.testclient import TestClient
+from web_client import TEST_HOSTS, with_csrf
 from web_portfolio import add_stored_seasonal_analysis, build_database, synthetic_series, write_long_csv
 
 from app.config import Settings
 from app.core.analysis import Analysis
 from app.store.database import open_database
 from app.web.main import create_app
-from app.web.security import CSRF_COOKIE, CSRF_HEADER
 
 
 @pytest.fixture(scope="session")
@@ -42,15 +42,7 @@ def db_path(analysed, tmp_path):
 
 @pytest.fixture
 def settings(db_path) -> Settings:
-    return Settings(db_path=db_path, page_size=4, analysis_workers=1)
-
-
-def with_csrf(test_client: TestClient) -> TestClient:
-    """A client that sends this browser's CSRF token with every request, as the pages' forms do
-    (one page visit sets the cookie; app.web.security checks it on every form post)."""
-    test_client.get("/login")
-    test_client.headers[CSRF_HEADER] = test_client.cookies[CSRF_COOKIE]
-    return test_client
+    return Settings(db_path=db_path, page_size=4, analysis_workers=1, allowed_hosts=TEST_HOSTS)
 
 
 @pytest.fixture

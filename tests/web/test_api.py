@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import subprocess
+import sys
 import time
+from contextlib import contextmanager
 from urllib.parse import quote
 
 import numpy as np
@@ -11,11 +14,13 @@ import pytest
 from fastapi.testclient import TestClient
 from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
+from web_client import TEST_HOSTS, with_csrf
 from web_portfolio import AWKWARD_ID, CONSTANT_ID, ODD_ID, deltas_by_hand, q_only_pairs, synthetic_series, write_long_csv
 
 from app.config import Settings
 from app.core.analysis import Analysis
 from app.core.vocabulary import Confidence, Flag
+from app.jobs.analyze import LOCK_SUFFIX
 from app.store.runs import finish_run, record_progress, start_run
 from app.store.series import load_series
 from app.store.verdicts import get_verdict, verdict_history
@@ -96,7 +101,7 @@ def test_series_list_bad_filter_is_422(client):
 
 
 def test_series_list_limit_is_capped(db_path):
-    settings = Settings(db_path=db_path, page_size=2, max_page_size=3)
+    settings = Settings(db_path=db_path, page_size=2, max_page_size=3, allowed_hosts=TEST_HOSTS)
     with TestClient(create_app(settings)) as client:
         assert client.get("/api/series").json()["limit"] == 2
         assert client.get("/api/series", params={"limit": 100}).json()["limit"] == 3
@@ -363,22 +368,40 @@ def test_import_unusable_file_is_400_and_oversize_413(client, db_path, tmp_path)
         response = client.post("/api/imports", files={"file": ("bad.csv", handle)}, data={"layout": "long"})
     assert response.status_code == 400
     assert "bad.csv" in response.json()["detail"]
-    small = Settings(db_path=db_path, max_upload_bytes=64)
+    small = Settings(db_path=db_path, max_upload_bytes=64, allowed_hosts=TEST_HOSTS)
     big = write_long_csv(tmp_path / "big.csv", {"big/one": np.arange(40.0)})
     with TestClient(create_app(small)) as limited, big.open("rb") as handle:
-        response = limited.post("/api/imports", files={"file": ("big.csv", handle)}, data={"layout": "long"})
+        response = with_csrf(limited).post("/api/imports", files={"file": ("big.csv", handle)}, data={"layout": "long"})
     assert response.status_code == 413
     assert "upload limit" in response.json()["detail"]
 
 
-def test_runs_list_detail_latest_and_unknown(client, db):
+@contextmanager
+def run_lock_held_elsewhere(db_path):
+    """The database's run lock held by another process, as a run going on there holds it."""
+    lock_path = f"{db_path.resolve()}{LOCK_SUFFIX}"
+    holder = subprocess.Popen(
+        [sys.executable, "-c", "import fcntl, os, sys; fd = os.open(sys.argv[1], os.O_RDWR | os.O_CREAT); "
+         "fcntl.lockf(fd, fcntl.LOCK_EX); print('locked', flush=True); sys.stdin.read()", lock_path],
+        stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True,
+    )
+    try:
+        assert holder.stdout.readline().strip() == "locked"
+        yield
+    finally:
+        holder.stdin.close()
+        holder.wait(timeout=30)
+
+
+def test_runs_list_detail_latest_and_unknown(client, db, db_path):
     assert client.get("/api/runs").json() == []
     assert client.get("/api/runs/latest").json() is None
-    run_id = start_run(db, {"workers": 1}, total=6, engine_version="test")
-    record_progress(db, run_id, done=4, failed=1)
-    running = client.get(f"/api/runs/{run_id}").json()
-    assert (running["state"], running["done"], running["failed"], running["total"]) == ("running", 4, 1, 6)
-    finish_run(db, run_id, "finished")
+    with run_lock_held_elsewhere(db_path):
+        run_id = start_run(db, {"workers": 1}, total=6, engine_version="test")
+        record_progress(db, run_id, done=4, failed=1)
+        running = client.get(f"/api/runs/{run_id}").json()
+        assert (running["state"], running["done"], running["failed"], running["total"]) == ("running", 4, 1, 6)
+        finish_run(db, run_id, "finished")
     assert client.get("/api/runs/latest").json()["state"] == "finished"
     assert [r["run_id"] for r in client.get("/api/runs").json()] == [run_id]
     assert client.get("/api/runs/999").status_code == 404

@@ -1,8 +1,14 @@
 """The JSON API: the data of every page, for scripts (OpenAPI schema at ``/openapi.json``).
 
+Every state-changing call (POST) carries the ``X-CSRF-Token`` header equal to the
+``lagdesk_csrf`` cookie: ``GET /api/csrf`` gives a client that keeps cookies both (a call that
+sends the access token in ``X-Lagdesk-Token`` needs neither; see :mod:`app.web.security`).
+
 Errors come back as ``{"detail": message}``: 404 for an unknown series or run, 409 (with the
 current ``verdict``) when a verdict names a version that is no longer current, 422 for an
-impossible order or a bad value, 400 for an unusable file, 413 for a file over the limit.
+impossible order or a bad value, 429 while the series is busy with another forecast check or
+fit, 400 for an unusable file or a malformed request, 403 without the CSRF header or from
+another site, 413 for a body over the limit.
 """
 
 from __future__ import annotations
@@ -11,23 +17,24 @@ import math
 from typing import Annotated, Literal
 
 import sqlite_utils
-from fastapi import APIRouter, Depends, Form, HTTPException, Path, Query, UploadFile
+from fastapi import APIRouter, Depends, Form, HTTPException, Path, Query, Request, UploadFile
 from pydantic import BaseModel, ConfigDict, Field
 
 from app.config import Settings
 from app.core.backtest import DEFAULT_ORIGINS
 from app.jobs.analyze import start_background_analysis
 from app.review.bulk import approve_firm
-from app.review.decisions import decide, fit_custom_order
+from app.review.decisions import MAX_NOTE_LENGTH, decide, fit_custom_order
 from app.review.export import build_orders_document, parse_statuses
 from app.review.filters import SeriesFilter
-from app.review.forecast_check import backtest_series
+from app.review.forecast_check import MAX_ORIGINS, MIN_HORIZON_CAP, backtest_series
 from app.store.analyses import analysis_record, load_analysis
 from app.store.runs import get_run, latest_run, list_runs
 from app.store.series import count_by, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
-from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
+from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, computation_slot, get_db, get_runs_db, get_settings, whole_numbers
+from app.web.security import CSRF_HEADER, CSRF_PATH, csrf_token
 from app.web.uploads import UploadOptions, import_upload
 
 
@@ -39,13 +46,13 @@ class ErrorMessage(BaseModel):
     detail: str | list[dict]
 
 
-ERROR_STATUSES = (400, 401, 403, 404, 409, 411, 413, 422, 503)
+ERROR_STATUSES = (400, 401, 403, 404, 408, 409, 411, 413, 422, 429, 503)
 router = APIRouter(prefix="/api", tags=["api"], responses={code: {"model": ErrorMessage} for code in ERROR_STATUSES})
 
-MAX_HORIZON = 1000
-MAX_ORIGINS = 50
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
+RunsDb = Annotated[sqlite_utils.Database, Depends(get_runs_db)]
 Config = Annotated[Settings, Depends(get_settings)]
+Note = Annotated[str, Field(description=f"at most {MAX_NOTE_LENGTH:,} characters")]
 Order = Annotated[list[int], Field(min_length=3, max_length=3, description="[p, d, q]")]
 SeasonalOrder = Annotated[list[int], Field(min_length=4, max_length=4, description="[P, D, Q, s]; s = 0 for no season")]
 
@@ -104,7 +111,7 @@ class VerdictIn(BaseModel):
     status: Literal["approved", "overridden", "parked", "pending"] = Field(description="'pending' reopens a decided series")
     order: Order | None = Field(None, description="needed for 'overridden'; 'approved' takes the suggestion")
     seasonal_order: SeasonalOrder | None = None
-    note: str = ""
+    note: Note = ""
     reviewer: str = ""
     version: int = Field(ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
 
@@ -116,7 +123,7 @@ class FitIn(BaseModel):
 
 class BulkApprovalIn(BaseModel):
     reviewer: str
-    note: str = ""
+    note: Note = ""
 
 
 class BulkApproval(BaseModel):
@@ -142,6 +149,11 @@ class RunStarted(BaseModel):
     run_id: int
 
 
+class CsrfToken(BaseModel):
+    csrf_token: str = Field(description="send it back in the header named by `header`, with the cookie this answer sets")
+    header: str
+
+
 def filter_params(
     status: str | None = None, confidence: str | None = None, flag: str | None = None, q: str | None = None,
     prefix: Annotated[str | None, Query(description="keep series whose id starts with this text")] = None,
@@ -153,6 +165,13 @@ def filter_params(
 
 
 Filter = Annotated[SeriesFilter, Depends(filter_params)]
+
+
+@router.get(CSRF_PATH.removeprefix("/api"), response_model=CsrfToken)
+def csrf(request: Request) -> dict:
+    """The CSRF token every POST of the API sends in the ``X-CSRF-Token`` header; the answer
+    also sets the ``lagdesk_csrf`` cookie it must match, so keep cookies between calls."""
+    return {"csrf_token": csrf_token(request), "header": CSRF_HEADER}
 
 
 @router.get("/series", response_model=SeriesList)
@@ -174,26 +193,33 @@ def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
 
 
 @router.post("/series/{series_id:path}/fit")
-def series_fit(db: Db, series_id: str, body: FitIn) -> dict:
+def series_fit(request: Request, db: Db, series_id: str, body: FitIn) -> dict:
     """Fit an order to the stored series now (nothing is saved): the candidate statistics, its
     residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same
-    differencing (d, D and s; null when there is none)."""
-    return finite(fit_custom_order(db, series_id, body.order, body.seasonal_order).to_dict())
+    differencing (d, D and s; null when there is none). 429 while another fit or forecast check
+    of the series runs."""
+    with computation_slot(request, series_id):
+        return finite(fit_custom_order(db, series_id, body.order, body.seasonal_order).to_dict())
 
 
 @router.get("/series/{series_id:path}/backtest")
 def series_backtest(
-    db: Db, series_id: str,
+    request: Request, db: Db, series_id: str,
     order: Annotated[str | None, Query(description="p,d,q (default: the suggested order)", examples=["0,1,1"])] = None,
     seasonal_order: Annotated[str | None, Query(description="P,D,Q,s (default: the suggested one when order is not given, else none)")] = None,
-    horizon: Annotated[int | None, Query(ge=1, le=MAX_HORIZON, description="steps ahead (default: one season, or 8)")] = None,
+    horizon: Annotated[int | None, Query(ge=1, description=(
+        f"steps ahead (default: one season, or 8); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
     origins: Annotated[int | None, Query(ge=1, le=MAX_ORIGINS, description=f"forecast origins (default {DEFAULT_ORIGINS})")] = None,
 ) -> dict:
     """Rolling-origin forecast check of an order: MASE against the seasonal naive forecast, the
-    coverage of the 80% and 95% intervals, the error by step ahead, and the data to plot."""
+    coverage of the 80% and 95% intervals, the error by step ahead, and the data to plot.
+
+    Orders up to the engine's search limits (p, q <= 5; P, Q <= 2); one check or fit per series
+    at a time (429 while another runs)."""
     chosen = whole_numbers(order, 3, "order") if order else None
     seasonal = whole_numbers(seasonal_order, 4, "seasonal_order") if seasonal_order else None
-    return finite(backtest_series(db, series_id, chosen, seasonal, horizon=horizon, origins=origins))
+    with computation_slot(request, series_id):
+        return finite(backtest_series(db, series_id, chosen, seasonal, horizon=horizon, origins=origins))
 
 
 @router.get("/orders")
@@ -242,17 +268,17 @@ def imports(db: Db, settings: Config, file: UploadFile, options: Annotated[Uploa
 
 
 @router.get("/runs", response_model=list[Run])
-def runs(db: Db, limit: Annotated[int, Query(ge=1, le=500)] = 50) -> list[dict]:
+def runs(db: RunsDb, limit: Annotated[int, Query(ge=1, le=500)] = 50) -> list[dict]:
     return list_runs(db, limit)
 
 
 @router.get("/runs/latest", response_model=Run | None)
-def runs_latest(db: Db) -> dict | None:
+def runs_latest(db: RunsDb) -> dict | None:
     return latest_run(db)
 
 
 @router.get("/runs/{run_id}", response_model=Run)
-def run_detail(db: Db, run_id: Annotated[int, Path(ge=1, le=SQLITE_MAX_INTEGER)]) -> dict:
+def run_detail(db: RunsDb, run_id: Annotated[int, Path(ge=1, le=SQLITE_MAX_INTEGER)]) -> dict:
     return get_run(db, run_id)
 
 

@@ -28,7 +28,16 @@ from app.store.runs import get_run, list_runs
 from app.store.series import series_neighbours
 from app.store.verdicts import get_verdict
 from app.web.charts import PLOTLY_JS
-from app.web.deps import REVIEWER_COOKIE, SQLITE_MAX_INTEGER, clean_reviewer, get_db, get_settings, whole_numbers
+from app.web.deps import (
+    REVIEWER_COOKIE,
+    SQLITE_MAX_INTEGER,
+    clean_reviewer,
+    computation_slot,
+    get_db,
+    get_runs_db,
+    get_settings,
+    whole_numbers,
+)
 from app.web.errors import status_of
 from app.web.forecast import forecast_check_view
 from app.web.forms import DecisionForm
@@ -42,6 +51,7 @@ from app.web.uploads import UploadOptions, import_upload
 router = APIRouter(dependencies=[Depends(check_csrf)], include_in_schema=False)
 
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
+RunsDb = Annotated[sqlite_utils.Database, Depends(get_runs_db)]
 Config = Annotated[Settings, Depends(get_settings)]
 COOKIE_MAX_AGE_S = 365 * 24 * 3600
 BULK_PREVIEW = 12
@@ -71,7 +81,7 @@ def with_query(url: str, query: str) -> str:
 
 
 @router.get("/", name="queue")
-def queue(request: Request, db: Db, settings: Config, flt: Filter,
+def queue(request: Request, db: RunsDb, settings: Config, flt: Filter,
           offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0, approved: int | None = None) -> Response:
     page = queue_page(db, flt, offset, settings.page_size)
     return render(request, "queue.html", {**page, "approved_count": approved})
@@ -82,9 +92,10 @@ def forecast_check(request: Request, db: Db, flt: Filter, series_id: str, order:
                    seasonal: str = "0,0,0,0", fragment: bool = False) -> Response:
     """The forecast check of an order (in place on the review page with JavaScript, as a page without)."""
     try:
-        check = forecast_check_view(
-            db, series_id, whole_numbers(order, 3, "order"), whole_numbers(seasonal, 4, "seasonal order")
-        )
+        with computation_slot(request, series_id):
+            check = forecast_check_view(
+                db, series_id, whole_numbers(order, 3, "order"), whole_numbers(seasonal, 4, "seasonal order")
+            )
     except UnknownSeries:
         raise
     except LagdeskError as exc:
@@ -139,7 +150,8 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
     """Fit the typed custom order and show it (in place with JavaScript, as a page without)."""
     try:
         order, seasonal = data.custom_order()
-        fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal))
+        with computation_slot(request, series_id):
+            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal))
     except UnknownSeries:
         raise
     except LagdeskError as exc:
@@ -205,12 +217,12 @@ def start_run(request: Request, settings: Config) -> Response:
 
 
 @router.get("/runs", name="runs")
-def runs(request: Request, db: Db) -> Response:
+def runs(request: Request, db: RunsDb) -> Response:
     return render(request, "runs.html", {"runs": list_runs(db)})
 
 
 @router.get("/runs/{run_id}", name="run_progress")
-def run_progress(request: Request, db: Db, run_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
+def run_progress(request: Request, db: RunsDb, run_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
     return render(request, "run.html", {"run": get_run(db, run_id)})
 
 
