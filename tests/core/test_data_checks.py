@@ -20,11 +20,11 @@ def test_robust_scale_is_scipys_normal_consistent_mad():
     assert robust_scale(e) == pytest.approx(median_abs_deviation(e, scale="normal"), rel=1e-4)
 
 
-def test_threshold_follows_chen_and_liu_by_length():
-    # Chen & Liu (1993): about 3.0 for short series, 3.5 for long ones (from memory); ours between.
-    assert outlier_threshold(60) == 3.0
-    assert outlier_threshold(150) == pytest.approx(3.25)
-    assert outlier_threshold(5000) == 3.5
+def test_threshold_is_the_bonferroni_bound_by_length():
+    # Dunn (1961): the largest of n |z| passes norm.isf(0.05 / (2n)) with probability <= 0.05.
+    for n, bound in ((100, 3.4808), (400, 3.8361), (1000, 4.0556)):
+        assert outlier_threshold(n) == pytest.approx(bound, abs=1e-3)
+        assert 1.0 - (1.0 - 2.0 * norm.sf(outlier_threshold(n))) ** n == pytest.approx(0.05, abs=0.002)
 
 
 def test_chance_rate_on_gaussian_noise_matches_the_formula():
@@ -32,7 +32,7 @@ def test_chance_rate_on_gaussian_noise_matches_the_formula():
     n, runs = 400, 600
     index = pd.RangeIndex(n)
     hits = sum(largest_residual(rng.normal(size=n), index) is not None for _ in range(runs))
-    expected = 1.0 - (1.0 - 2.0 * norm.sf(3.5)) ** n  # the largest of n |z| passing C = 3.5
+    expected = 1.0 - (1.0 - 2.0 * norm.sf(outlier_threshold(n))) ** n  # about 0.05
     sd = np.sqrt(expected * (1 - expected) / runs)
     assert abs(hits / runs - expected) < 4 * sd
 
