@@ -40,7 +40,8 @@ class Settings:
     page_size : int
         Series per page of the queue when the request does not say.
     max_page_size : int
-        Largest page a request may ask for (``limit`` of ``/api/series``).
+        Largest page a request may ask for (``limit`` of ``/api/series`` and of the queue,
+        which offers 50, 200 and 1,000 rows).
     analysis_workers : int or None
         Worker processes of an analysis run started from the dashboard; None for one per CPU.
     max_upload_series : int
@@ -67,7 +68,7 @@ class Settings:
     port: int = 8000
     max_upload_bytes: int = 200 * MEBIBYTE
     page_size: int = 50
-    max_page_size: int = 500
+    max_page_size: int = 1000
     analysis_workers: int | None = None
     max_upload_series: int = 10_000
     max_upload_points: int = 100_000

@@ -1,15 +1,27 @@
-"""Decisions on many series at once: the approval of every pending, firm suggestion in a filter."""
+"""Decisions on many series at once: the approval of every pending, firm suggestion in a filter,
+and parking a selection of series (or every waiting one in a filter) with one note."""
 
 from __future__ import annotations
+
+from collections.abc import Iterable
 
 import sqlite_utils
 
 from app.core.vocabulary import Confidence, VerdictStatus
-from app.review.decisions import checked_note
+from app.review.decisions import DecisionError, checked_note, decide
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
 from app.store.series import list_series
-from app.store.verdicts import get_verdict, set_verdict
+from app.store.verdicts import StaleVersion, get_verdict, set_verdict
+
+# What a reviewer may park in bulk: series still waiting for a decision.
+WAITING = (VerdictStatus.PENDING.value, VerdictStatus.RECHECK.value)
+
+
+def _items(db: sqlite_utils.Database, store_kwargs: dict) -> list[dict]:
+    """Every series ``list_series`` finds with these arguments, in its order."""
+    total, _ = list_series(db, limit=0, **store_kwargs)
+    return list_series(db, limit=total, **store_kwargs)[1]
 
 
 def firm_pending_ids(db: sqlite_utils.Database, flt: SeriesFilter) -> list[str]:
@@ -17,9 +29,56 @@ def firm_pending_ids(db: sqlite_utils.Database, flt: SeriesFilter) -> list[str]:
     target = flt.firm_pending()
     if target is None:
         return []
-    total, _ = list_series(db, limit=0, **target.store_kwargs())
-    _, items = list_series(db, limit=total, **target.store_kwargs())
-    return [item["series_id"] for item in items if item["analysis_state"] == "current"]
+    return [item["series_id"] for item in _items(db, target.store_kwargs()) if item["analysis_state"] == "current"]
+
+
+def _waiting(flt: SeriesFilter) -> dict | None:
+    """``list_series`` arguments for the series of ``flt`` waiting for a decision; None when
+    the filter asks for another status."""
+    if flt.status is not None and flt.status not in WAITING:
+        return None
+    return {**flt.store_kwargs(), "status": [flt.status] if flt.status else list(WAITING)}
+
+
+def count_waiting(db: sqlite_utils.Database, flt: SeriesFilter) -> int:
+    """How many series of ``flt`` wait for a decision (pending or recheck)."""
+    target = _waiting(flt)
+    return 0 if target is None else list_series(db, limit=0, **target)[0]
+
+
+def waiting_ids(db: sqlite_utils.Database, flt: SeriesFilter) -> list[str]:
+    """Series in ``flt`` waiting for a decision (pending or recheck): what parking the filter parks."""
+    target = _waiting(flt)
+    return [] if target is None else [item["series_id"] for item in _items(db, target)]
+
+
+def park(db: sqlite_utils.Database, series_ids: Iterable[str], reviewer: str, note: str) -> list[str]:
+    """Park every series of ``series_ids`` that waits for a decision, with one note; returns the
+    ids parked. Decided and already parked series are left alone, and so is one decided by
+    someone else while this runs.
+
+    Raises
+    ------
+    DecisionError
+        When the note is empty (it says why the series wait) or too long; nothing is parked.
+    UnknownSeries
+        When an id names no series; nothing is parked.
+    """
+    checked_note(note)
+    if not note.strip():
+        raise DecisionError("parking series in bulk needs a note saying why they wait")
+    verdicts = {series_id: get_verdict(db, series_id) for series_id in dict.fromkeys(series_ids)}
+    parked = []
+    for series_id, verdict in verdicts.items():
+        if verdict["status"] not in WAITING:
+            continue
+        try:
+            decide(db, series_id, status=VerdictStatus.PARKED, order=None, seasonal_order=None, note=note,
+                   reviewer=reviewer, version=verdict["version"])
+        except StaleVersion:
+            continue
+        parked.append(series_id)
+    return parked
 
 
 def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, note: str = "") -> list[str]:

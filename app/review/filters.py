@@ -42,13 +42,17 @@ class SeriesFilter:
         """Keyword arguments of ``list_series`` / ``series_neighbours``."""
         return asdict(self)
 
-    def query(self, **changes: Any) -> str:
-        """This filter (with ``changes``) as a query string, default values left out."""
+    def params(self, **changes: Any) -> dict[str, Any]:
+        """This filter (with ``changes``) as query parameters, default values left out."""
         merged = {**asdict(self), **changes}
         fields = {k: v for k, v in merged.items() if v not in (None, "", False) and not (k == "sort" and v == DEFAULT_SORT)}
         if fields.get("descending") is True:
             fields["descending"] = "1"
-        return urlencode(fields)
+        return fields
+
+    def query(self, **changes: Any) -> str:
+        """This filter (with ``changes``) as a query string, default values left out."""
+        return urlencode(self.params(**changes))
 
     @property
     def is_empty(self) -> bool:

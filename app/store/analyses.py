@@ -3,7 +3,7 @@
 The engine's :class:`~app.core.analysis.Analysis` is stored as JSON text
 (:meth:`~app.core.analysis.Analysis.to_dict`) in ``analysis_results`` and read back as an
 ``Analysis`` (older schema versions included); ``analyses`` holds the state and the few summary columns (confidence,
-flags, suggested orders, d) that the dashboard filters and sorts on without reading results.
+its main reason, flags, suggested orders, d) that the dashboard shows, filters and sorts on without reading results.
 An analysis records the fingerprint of the data it was run on: it is *current* while that
 equals the series' fingerprint and *stale* once new data changed it. A failure is stored too,
 with its message, so a run does not retry it forever.
@@ -49,6 +49,7 @@ def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, a
     suggested = analysis.suggested.order
     summary = {
         "confidence": str(analysis.confidence),
+        "main_reason": analysis.confidence_reasons[0] if analysis.confidence_reasons else None,
         "flags": json.dumps([str(f) for f in analysis.flags]),
         "suggested_order": json.dumps(list(suggested.order)),
         "suggested_seasonal_order": json.dumps(list(suggested.seasonal_order)),
@@ -76,6 +77,7 @@ def _store(db: sqlite_utils.Database, series_id: str, fingerprint: str, run_id: 
         "fingerprint": fingerprint,
         "message": None,
         "confidence": None,
+        "main_reason": None,
         "flags": "[]",
         "suggested_order": None,
         "suggested_seasonal_order": None,

@@ -32,6 +32,13 @@ verdicts.data_sha256  the fingerprint of the data a verdict was decided on (that
 order_fits            per series, the parameters of the latest refit of a chosen order that was not
                       among the analysis' candidates (for the export), with the fingerprint of the
                       data, the model (order, seasonal order, trend, transform) and engine version
+
+Version 3
+---------
+analyses.main_reason  the first of the analysis' confidence reasons, in the engine's words (a flag
+                      as ``flag: NAME``), for the queue row; filled for older files from the
+                      results in ``analysis_results`` (one pass over them; NULL when a result
+                      carries no reasons)
 """
 
 from __future__ import annotations
@@ -181,7 +188,16 @@ def verdict_data_fingerprint(db: sqlite_utils.Database) -> None:
     )
 
 
-STEPS = (initial_schema, verdict_data_fingerprint)
+def analysis_main_reason(db: sqlite_utils.Database) -> None:
+    """Version 3: the main reason of each analysis' confidence, read from its stored result."""
+    db.execute("ALTER TABLE analyses ADD COLUMN main_reason TEXT")
+    db.execute(
+        "UPDATE analyses SET main_reason = (SELECT json_extract(r.result, '$.confidence_reasons[0]') "
+        "FROM analysis_results r WHERE r.series_id = analyses.series_id) WHERE state = 'complete'"
+    )
+
+
+STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

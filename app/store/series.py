@@ -12,8 +12,9 @@ from collections.abc import Iterable
 import pandas as pd
 import sqlite_utils
 
+from app.core.confidence import NOT_FIRM_FLAGS, WEAK_FLAGS
 from app.core.errors import LagdeskError
-from app.core.vocabulary import Confidence
+from app.core.vocabulary import Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL
 from app.store.timestamps import index_from_keys
 from app.store.verdicts import STATUSES, verdict_counts
@@ -26,8 +27,33 @@ _FROM = (
     "LEFT JOIN analyses a ON a.series_id = s.series_id"
 )
 
+# How much a flag weighs in the attention order: 3 for a flag that makes a suggestion weak (a
+# residual failure, non-convergence, cancelling roots, a short series), 2 for one that keeps it
+# from firm (differencing in doubt, a long gap, an outlier, intermittent demand), 1 for the rest
+# (gaps filled, too few seasons, transformed), which say how the series was read, not a doubt.
+FLAG_SEVERITY: dict[str, int] = {
+    str(flag): 3 if flag in WEAK_FLAGS
+    else 2 if flag in NOT_FIRM_FLAGS | {Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND}
+    else 1
+    for flag in Flag
+}
+
+
+def _severity_sql() -> str:
+    """The weight of a row's most severe flag (0 without flags): a search of the flags' JSON text
+    for each quoted name, which costs far less per row than unpacking the array with json_each."""
+    tiers = sorted(set(FLAG_SEVERITY.values()), reverse=True)
+    cases = " ".join(
+        "WHEN " + " OR ".join(f"instr(a.flags, '\"{flag}\"')" for flag, w in FLAG_SEVERITY.items() if w == weight)
+        + f" THEN {weight}"
+        for weight in tiers
+    )
+    return f"(CASE {cases} ELSE 0 END)"
+
+
 # What needs a human first: a recheck, then pending, parked, decided; within each, a failed or
-# weak analysis before a tentative, then a firm one, then none yet; then more flags first.
+# weak analysis before a tentative, then a firm one, then none yet; within those, the most severe
+# flag first (FLAG_SEVERITY), then more flags first.
 _STATUS_TIER_SQL = "CASE v.status WHEN 'recheck' THEN 4 WHEN 'pending' THEN 3 WHEN 'parked' THEN 2 ELSE 1 END"
 _DOUBT_SQL = (
     "CASE WHEN a.state = 'failed' THEN 3 WHEN a.confidence = 'weak' THEN 3 "
@@ -35,7 +61,7 @@ _DOUBT_SQL = (
 )
 MAX_COUNTED_FLAGS = 9
 ATTENTION_SQL = (
-    f"({_STATUS_TIER_SQL}) * 10 + ({_DOUBT_SQL}) "
+    f"({_STATUS_TIER_SQL}) * 100 + ({_DOUBT_SQL}) * 10 + {_severity_sql()} "
     f"+ min(json_array_length(coalesce(a.flags, '[]')), {MAX_COUNTED_FLAGS}) / 10.0"
 )
 
@@ -68,6 +94,13 @@ def load_series(db: sqlite_utils.Database, series_id: str) -> pd.Series | None:
     rows = db.execute("SELECT ts, value FROM observations WHERE series_id = ? ORDER BY ts", [series_id]).fetchall()
     keys = [ts for ts, _ in rows]
     return pd.Series([value for _, value in rows], index=index_from_keys(keys, kind[0]), name=series_id, dtype=float)
+
+
+def series_values(db: sqlite_utils.Database, series_id: str) -> list[float]:
+    """The raw observed values of a series in time order, without their timestamps (empty for
+    no such series): what a sparkline draws, without the cost of reading the time index."""
+    rows = db.execute("SELECT value FROM observations WHERE series_id = ? ORDER BY ts", [series_id])
+    return [value for (value,) in rows]
 
 
 def get_series(db: sqlite_utils.Database, series_id: str) -> dict | None:
@@ -114,6 +147,11 @@ def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -
     return [series_id for (series_id,) in rows]
 
 
+# substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too).
+# Parameters: the prefix's length, the prefix.
+_PREFIX_SQL = "substr({column}, 1, ?) = ?"
+
+
 def _where(
     status: str | Iterable[str] | None, confidence: str | Iterable[str] | None, flag: str | None, q: str | None,
     prefix: str | None = None,
@@ -140,8 +178,7 @@ def _where(
         clauses.append("instr(lower(s.series_id), lower(?)) > 0")
         params.append(q)
     if prefix:
-        # substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too).
-        clauses.append("substr(s.series_id, 1, ?) = ?")
+        clauses.append(_PREFIX_SQL.format(column="s.series_id"))
         params.extend([len(prefix), prefix])
     return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
 
@@ -188,17 +225,19 @@ def list_series(
     total : int
         How many series pass the filters.
     items : list of dict
-        ``{"series_id", "n", "freq", "status", "confidence", "suggested": {"order",
-        "seasonal_order"}, "chosen": {"order", "seasonal_order"}, "flags", "reviewer",
-        "analysis_state", "attention", "recheck_reason"}``.
+        ``{"series_id", "n", "freq", "status", "confidence", "main_reason", "suggested":
+        {"order", "seasonal_order"}, "chosen": {"order", "seasonal_order"}, "flags", "reviewer",
+        "analysis_state", "attention", "recheck_reason"}``; ``main_reason`` is the first
+        confidence reason in the engine's words (None for a series not analysed, or analysed by
+        a version that gave no reasons).
     """
     if limit < 0 or offset < 0:
         raise LagdeskError(f"limit ({limit}) and offset ({offset}) must be >= 0")
     where, params = _where(status, confidence, flag, q, prefix)
     total = db.execute(f"SELECT count(*) {_FROM} {where}", params).fetchone()[0]
     rows = db.query(
-        f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.suggested_order, a.suggested_seasonal_order, "
-        f"v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
+        f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.main_reason, a.suggested_order, "
+        f"a.suggested_seasonal_order, v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
         f"{ANALYSIS_STATE_SQL} AS analysis_state, {ATTENTION_SQL} AS attention, v.recheck_reason "
         f"{_FROM} {where} {_order_by(sort, descending)} LIMIT ? OFFSET ?",
         params + [limit, offset],
@@ -216,6 +255,7 @@ def _item(row: dict) -> dict:
         "freq": row["freq"],
         "status": row["status"],
         "confidence": row["confidence"],
+        "main_reason": row["main_reason"],
         "suggested": {"order": loads(row["suggested_order"]), "seasonal_order": loads(row["suggested_seasonal_order"])},
         "chosen": {"order": loads(row["arima_order"]), "seasonal_order": loads(row["seasonal_order"])},
         "flags": json.loads(row["flags"]),
@@ -250,6 +290,63 @@ def series_neighbours(
         params + [series_id],
     ).fetchone()
     return (None, None) if row is None else (row[0], row[1])
+
+
+# Separates the parts of a structured series id (company/site/channel).
+ID_SEPARATOR = "/"
+GROUP_COUNTS = ("total", "pending", *reversed(CONFIDENCE_LEVELS), "decided", "parked", "recheck")
+
+
+def id_group(series_id: str, depth: int) -> str:
+    """The group of a series at ``depth``: its id's first ``depth`` parts and the separator
+    (``bakery/shop-3/`` at depth 2), or the whole id when it has no more parts than that."""
+    parts = series_id.split(ID_SEPARATOR, depth)
+    return series_id if len(parts) <= depth else series_id[: len(series_id) - len(parts[-1])]
+
+
+def group_counts(db: sqlite_utils.Database, depth: int, prefix: str | None = None) -> list[dict]:
+    """Counts per id group at ``depth`` (see :func:`id_group`), of the series under ``prefix``.
+
+    Returns ``[{"prefix", "total", "pending", "weak", "tentative", "firm", "decided", "parked",
+    "recheck"}]`` by prefix: ``weak``, ``tentative`` and ``firm`` count the pending series of
+    that confidence (what is left to review), ``decided`` the approved and overridden ones.
+
+    Raises
+    ------
+    LagdeskError
+        When ``depth`` is below 1.
+    """
+    if depth < 1:
+        raise LagdeskError(f"depth ({depth}) must be at least 1")
+    # verdicts holds one row per series: the series table is not needed to count them.
+    where, params = (f"WHERE {_PREFIX_SQL.format(column='v.series_id')}", [len(prefix), prefix]) if prefix else ("", [])
+    groups: dict[str, dict] = {}
+    for series_id, status, confidence in db.execute(
+        f"SELECT v.series_id, v.status, a.confidence FROM verdicts v LEFT JOIN analyses a ON a.series_id = v.series_id {where}",
+        params,
+    ):
+        group = id_group(series_id, depth)
+        counts = groups.get(group)
+        if counts is None:
+            counts = groups[group] = dict.fromkeys(GROUP_COUNTS, 0)
+        counts["total"] += 1
+        if status == "pending":
+            counts["pending"] += 1
+            if confidence in counts:
+                counts[confidence] += 1
+        elif status in ("approved", "overridden"):
+            counts["decided"] += 1
+        else:
+            counts[status] += 1
+    return [{"prefix": group, **counts} for group, counts in sorted(groups.items())]
+
+
+def flags_present(db: sqlite_utils.Database) -> dict[str, int]:
+    """How many stored analyses carry each flag, for the flags that occur, by flag name."""
+    return dict(db.execute(
+        "SELECT json_each.value, count(*) FROM analyses, json_each(analyses.flags) "
+        "GROUP BY json_each.value ORDER BY json_each.value"
+    ).fetchall())
 
 
 def count_by(db: sqlite_utils.Database) -> dict:

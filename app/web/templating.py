@@ -14,6 +14,7 @@ from markupsafe import Markup
 import app
 from app.core.order import order_label
 from app.core.vocabulary import Flag
+from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
 from app.web.security import CSRF_FIELD, csrf_token
 
@@ -94,6 +95,28 @@ def flag_words(flag: str) -> str:
     return FLAG_WORDS.get(flag, flag.replace("_", " "))
 
 
+# How the engine writes a flag among its confidence reasons (app.core.confidence).
+FLAG_REASON_PREFIX = "flag: "
+
+
+def reason_words(reason: str) -> str:
+    """A confidence reason for reading: a flag (``flag: NAME``) in its words, others as written."""
+    if reason.startswith(FLAG_REASON_PREFIX):
+        return flag_words(reason.removeprefix(FLAG_REASON_PREFIX))
+    return reason
+
+
+# Each weight of app.store.series.FLAG_SEVERITY, for the help overlay.
+SEVERITY_WORDS = {3: "most (they make a suggestion weak)", 2: "more (they keep it from firm)",
+                  1: "least (they say how the series was read)"}
+
+
+def _severity_tiers() -> list[tuple[str, list[str]]]:
+    """The flags of each weight in the attention order, heaviest first, with the weight in words."""
+    weights = sorted(set(FLAG_SEVERITY.values()), reverse=True)
+    return [(SEVERITY_WORDS[w], sorted(f for f, weight in FLAG_SEVERITY.items() if weight == w)) for w in weights]
+
+
 @pass_context
 def url_for(context: dict, name: str, /, **path_params) -> str:
     """The path of a route or static file, without scheme and host: the pages link only to the
@@ -109,10 +132,10 @@ def csrf_field(context: dict) -> Markup:
 
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
-    env.filters.update(number=number, p_value=p_value, flag_words=flag_words, quote_path=quote_path,
+    env.filters.update(number=number, p_value=p_value, flag_words=flag_words, reason_words=reason_words, quote_path=quote_path,
                        freq_words=freq_words, when=when, significant=significant)
-    env.globals.update(order_label=order_label, known_flags=sorted(str(f) for f in FLAG_WORDS), url_for=url_for,
-                       csrf_field=csrf_field)
+    env.globals.update(order_label=order_label, url_for=url_for,
+                       csrf_field=csrf_field, severity_tiers=_severity_tiers())
     return env
 
 

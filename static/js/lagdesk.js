@@ -91,6 +91,41 @@
     keys.Enter = function () {
       if (marked >= 0) rows[marked].querySelector("[data-open]").click();
     };
+    keys.x = function () {
+      if (marked < 0) return;
+      var box = rows[marked].querySelector("[data-pick]");
+      box.checked = !box.checked;
+      countPicked();
+    };
+  }
+
+  // Ticked rows: their count beside the park form, and a box that ticks the whole page.
+  function countPicked() {
+    var count = document.querySelector("[data-picked-count]");
+    if (count) count.textContent = document.querySelectorAll("[data-pick]:checked").length;
+  }
+
+  function setupPicking() {
+    var all = document.querySelector("[data-pick-all]");
+    if (all) {
+      all.addEventListener("change", function () {
+        document.querySelectorAll("[data-pick]").forEach(function (box) { box.checked = all.checked; });
+        countPicked();
+      });
+    }
+    document.querySelectorAll("[data-pick]").forEach(function (box) { box.addEventListener("change", countPicked); });
+    countPicked();
+  }
+
+  // A new page size opens the page that holds the first row shown now.
+  function setupPager() {
+    var pager = document.querySelector("[data-pager]");
+    if (!pager) return;
+    pager.querySelector("[data-page-size]").addEventListener("change", function (event) {
+      var size = parseInt(event.target.value, 10);
+      pager.querySelector("[data-page-input]").value = Math.floor(parseInt(pager.dataset.offset, 10) / size) + 1;
+      pager.submit();
+    });
   }
 
   document.addEventListener("keydown", function (event) {
@@ -118,6 +153,8 @@
 
   document.addEventListener("DOMContentLoaded", function () {
     setupQueue();
+    setupPager();
+    setupPicking();
     setupRunProgress();
     drawCharts(document);
   });

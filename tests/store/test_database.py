@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import pytest
 import sqlite_utils
 
@@ -28,7 +30,7 @@ def test_open_database_twice_applies_each_migration_once(tmp_path):
     path = tmp_path / "twice.db"
     open_database(path).close()
     db = open_database(path)
-    rows = db.execute("SELECT name FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATION_SET]).fetchall()
+    rows = db.execute("SELECT name FROM _sqlite_migrations WHERE migration_set = ? ORDER BY id", [MIGRATION_SET]).fetchall()
     assert rows == [(step.__name__,) for step in STEPS]
     assert schema_version(db) == len(STEPS)
     db.close()
@@ -77,3 +79,22 @@ def test_resolve_db_path_prefers_option_then_environment_then_working_folder(mon
     assert str(resolve_db_path(None)) == "/data/from_env.db"
     monkeypatch.delenv("LAGDESK_DB")
     assert resolve_db_path(None) == tmp_path / DEFAULT_DB_NAME
+
+
+def test_upgrade_fills_the_main_reason_of_stored_analyses_from_their_results(tmp_path):
+    path = tmp_path / "old.db"
+    old = sqlite_utils.Database(path)
+    MIGRATIONS.apply(old, stop_before="analysis_main_reason")
+    for sid, reasons in (("a", ["flag: residual_autocorrelation", "x"]), ("b", None)):
+        old["series"].insert({"series_id": sid, "time_kind": "integer", "freq": "step", "n": 40, "observed": 40,
+                              "gaps_filled": 0, "first_timestamp": "1", "last_timestamp": "40", "prep_flags": "[]",
+                              "fingerprint": "f", "created_import_id": 1, "updated_import_id": 1})
+        old["analyses"].insert({"series_id": sid, "fingerprint": "f", "state": "complete", "confidence": "weak",
+                                "flags": "[]", "analysed_at": "2026-01-01"})
+        result = {"confidence": "weak"} if reasons is None else {"confidence": "weak", "confidence_reasons": reasons}
+        old["analysis_results"].insert({"series_id": sid, "result": json.dumps(result)})
+    old.close()
+    db = open_database(path)
+    assert db.execute("SELECT series_id, main_reason FROM analyses ORDER BY series_id").fetchall() == [
+        ("a", "flag: residual_autocorrelation"), ("b", None)]
+    db.close()

@@ -6,10 +6,22 @@ import pytest
 
 from app.core.errors import LagdeskError
 from app.core.order import Order
-from app.core.vocabulary import Confidence
+from app.core.vocabulary import Confidence, Flag
 from app.store.analyses import save_analysis, save_failure
 from app.store.imports import import_portfolio
-from app.store.series import SORT_KEYS, count_by, list_series, load_series, series_fingerprint, series_neighbours
+from app.store.series import (
+    FLAG_SEVERITY,
+    SORT_KEYS,
+    count_by,
+    flags_present,
+    group_counts,
+    id_group,
+    list_series,
+    load_series,
+    series_fingerprint,
+    series_neighbours,
+    series_values,
+)
 from app.store.status import portfolio_status
 from app.store.verdicts import mark_recheck, set_verdict
 
@@ -168,3 +180,62 @@ def test_loading_a_series_and_its_analysis_uses_indexes_not_scans(listed_db):
     assert len(plans) == 3
     assert all("SCAN" not in plan and "SEARCH" in plan for plan in plans), plans
     assert any("observations USING PRIMARY KEY (series_id=?)" in plan for plan in plans)
+
+
+def test_items_carry_the_main_reason_of_the_confidence(listed_db, relabel):
+    sid = "d-tentative"
+    reasons = ("flag: uncertain_differencing", "the best rival is within 3.9 of the suggestion in BIC rank score")
+    save_analysis(listed_db, sid, series_fingerprint(listed_db, sid),
+                  relabel(sid, confidence=Confidence.TENTATIVE, confidence_reasons=reasons), None)
+    items = {item["series_id"]: item for item in list_series(listed_db)[1]}
+    assert items[sid]["main_reason"] == "flag: uncertain_differencing"
+    assert items["g-missing"]["main_reason"] is None and items["f-failed"]["main_reason"] is None
+
+
+def test_attention_puts_a_severe_flag_before_more_flags_of_less_weight(listed_db, relabel):
+    # Two tentative pending series: one with a residual failure, one transformed with filled gaps.
+    for sid, flags in (("d-tentative", ["residual_autocorrelation"]), ("e-firm", ["transformed", "gaps"])):
+        save_analysis(listed_db, sid, series_fingerprint(listed_db, sid),
+                      relabel(sid, confidence=Confidence.TENTATIVE, flags=tuple(flags)), None)
+    order = ids(list_series(listed_db, status="pending", confidence="tentative")[1])
+    assert order == ["d-tentative", "e-firm"]
+
+
+def test_flag_severity_ranks_residual_failure_and_non_convergence_above_transformed():
+    assert FLAG_SEVERITY["residual_autocorrelation"] == FLAG_SEVERITY["no_convergence"] == 3
+    assert FLAG_SEVERITY["transformed"] == 1
+    assert set(FLAG_SEVERITY) == {str(flag) for flag in Flag}
+
+
+def test_flags_present_counts_the_flags_stored_analyses_carry(listed_db):
+    assert flags_present(listed_db) == {"gaps": 2, "long_gap": 1, "near_unit_root": 2, "redundant_roots": 1}
+
+
+@pytest.mark.parametrize("series_id, depth, group", [
+    ("bakery/shop-3/bread", 1, "bakery/"), ("bakery/shop-3/bread", 2, "bakery/shop-3/"),
+    ("bakery/shop-3/bread", 3, "bakery/shop-3/bread"), ("flat-id", 1, "flat-id"),
+])
+def test_id_group_is_the_first_parts_of_an_id_or_the_whole_id(series_id, depth, group):
+    assert id_group(series_id, depth) == group
+
+
+def test_group_counts_count_each_group_by_status_and_pending_confidence(fresh_db, write_csv, monthly, relabel):
+    ids = ["co/a/x", "co/a/y", "co/b/z", "other/q"]
+    import_portfolio(fresh_db, write_csv("g.csv", {sid: monthly(i) for i, sid in enumerate(ids)}))
+    for sid, level in zip(ids, ["weak", "firm", "firm", "tentative"]):
+        save_analysis(fresh_db, sid, series_fingerprint(fresh_db, sid), relabel(sid, confidence=Confidence(level)), None)
+    set_verdict(fresh_db, "co/a/y", status="approved", order=[1, 0, 0], seasonal_order=None, reviewer="ann", version=0)
+    zero = dict(total=0, pending=0, weak=0, tentative=0, firm=0, decided=0, parked=0, recheck=0)
+    assert group_counts(fresh_db, 1) == [
+        {**zero, "prefix": "co/", "total": 3, "pending": 2, "weak": 1, "firm": 1, "decided": 1},
+        {**zero, "prefix": "other/", "total": 1, "pending": 1, "tentative": 1},
+    ]
+    assert [g["prefix"] for g in group_counts(fresh_db, 2, prefix="co/")] == ["co/a/", "co/b/"]
+    assert group_counts(fresh_db, 2, prefix="co/a/")[0]["total"] == 2
+    with pytest.raises(LagdeskError, match="depth"):
+        group_counts(fresh_db, 0)
+
+
+def test_series_values_are_the_observed_values_in_time_order(listed_db):
+    assert series_values(listed_db, "b-weak") == load_series(listed_db, "b-weak").tolist()
+    assert series_values(listed_db, "no-such-series") == []

@@ -95,11 +95,16 @@ def run(folder: Path, n_series: int, n_points: int) -> None:
         "queue, first page": "/",
         "queue, weak only": "/?confidence=weak",
         "queue, page 100": "/?offset=5000",
+        "queue, 200 rows": "/?limit=200",
+        "queue, 1,000 rows": "/?limit=1000",
+        "queue, jump to page 9": "/?limit=1000&page=9",
         "queue, sorted by length": "/?sort=n&descending=1",
         "queue, id search": "/?q=unit-42",
         "review page": f"/series/{quote(some, safe='/')}",
         "review page, in a filter": f"/series/{quote(some, safe='/')}?confidence=weak",
+        "queue, one group": "/?prefix=site-042/",
         "GET /api/series": "/api/series",
+        "GET /api/groups?depth=2": "/api/groups?depth=2",
         "GET /api/series/{id}": f"/api/series/{quote(some, safe='/')}",
     }
     print(f"{n_series} series x {n_points} points; median of {REPEATS} requests (in-process client)")

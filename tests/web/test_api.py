@@ -92,6 +92,7 @@ def test_series_list_suggestions_match_the_engine(client, results):
         suggested = results[item["series_id"]].suggested.order
         assert item["suggested"] == {"order": list(suggested.order), "seasonal_order": list(suggested.seasonal_order)}
         assert item["status"] == "pending"
+        assert item["main_reason"] == results[item["series_id"]].confidence_reasons[0]
 
 
 def test_series_list_bad_filter_is_422(client):
@@ -336,6 +337,38 @@ def test_bulk_approval_keeps_to_the_id_prefix(client, db, results):
     # a prefix the ids only contain, not start with, approves nothing
     assert client.post("/api/approve-firm", params={"prefix": "line"}, json={"reviewer": "Ada"}).json() == {"count": 0, "approved": []}
     assert all(get_verdict(db, sid)["status"] == "pending" for sid in outside)
+
+
+def test_groups_count_each_id_prefix_at_a_depth(client, results):
+    body = client.get("/api/groups", params={"depth": 1}).json()
+    tops = {sid.split("/")[0] + "/" for sid in results}
+    assert [g["prefix"] for g in body] == sorted(tops)
+    for group in body:
+        inside = [r for sid, r in results.items() if sid.startswith(group["prefix"])]
+        assert group["total"] == group["pending"] == len(inside)
+        for level in ("weak", "tentative", "firm"):
+            assert group[level] == sum(r.confidence == level for r in inside)
+        assert group["decided"] == group["parked"] == group["recheck"] == 0
+    client.post(url("plant-a/line-1/ar1", "/verdict"), json={"status": "approved", "reviewer": "Ada", "version": 0})
+    plant_a = client.get("/api/groups", params={"depth": 2, "prefix": "plant-a/"}).json()
+    assert [(g["prefix"], g["decided"], g["pending"]) for g in plant_a] == [("plant-a/line-1/", 1, 0), ("plant-a/line-2/", 0, 1)]
+    deep = client.get("/api/groups", params={"depth": 2, "prefix": "plant-b/"}).json()
+    assert [g["prefix"] for g in deep] == ["plant-b/ar2", "plant-b/walk"]  # ids with no more parts are their own group
+    assert client.get("/api/groups", params={"depth": 0}).status_code == 422
+
+
+def test_park_a_selection_or_a_filter_with_one_note(client, db, results):
+    client.post(url("plant-a/line-1/ar1", "/verdict"), json={"status": "approved", "reviewer": "Ada", "version": 0})
+    body = client.post("/api/park", json={"series_ids": ["plant-a/line-1/ar1", "plant-a/line-2/ma1"],
+                                           "reviewer": "Ada", "note": "wait for the new line"}).json()
+    assert body == {"count": 1, "parked": ["plant-a/line-2/ma1"]}  # the approved one is left alone
+    assert get_verdict(db, "plant-a/line-2/ma1")["note"] == "wait for the new line"
+    group = client.post("/api/park", params={"prefix": "plant-b/"}, json={"reviewer": "Ada", "note": "plant closed"}).json()
+    assert sorted(group["parked"]) == sorted(sid for sid in results if sid.startswith("plant-b/"))
+    assert all(get_verdict(db, sid)["status"] == "pending" for sid in results if not sid.startswith("plant-"))
+    assert client.post("/api/park", json={"series_ids": ["x"], "reviewer": "Ada", "note": ""}).status_code == 422
+    assert client.post("/api/park", json={"series_ids": ["no/such"], "reviewer": "Ada", "note": "n"}).status_code == 404
+    assert client.post("/api/park", json={"series_ids": [], "reviewer": " ", "note": "n"}).status_code == 422
 
 
 def test_import_upload_reports_added_and_rejected(client, tmp_path):

@@ -134,6 +134,9 @@ def test_queue_loads_and_filters(page, live_server):
     assert shown == sorted(item["series_id"] for item in weak)
     page.keyboard.press("?")
     assert page.locator("#help").is_visible()
+    assert "residual autocorrelation" in page.locator("#help .help-order").inner_text()
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "queue-help.png"))
     assert not page.errors
 
 
@@ -221,4 +224,37 @@ def test_forecast_check_is_drawn_in_place_and_the_orders_download(page, live_ser
     assert REVIEWED in [o["series_id"] for o in document["orders"]]
     host = urlsplit(live_server).netloc
     assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
+    assert not page.errors
+
+
+def test_group_picker_page_size_and_parking_ticked_rows(page, live_server):
+    set_reviewer(page, live_server)
+    page.goto(live_server + "/")
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "queue.png"), full_page=True)
+    reasons = page.locator("[data-queue] .reason").all_inner_texts()
+    assert reasons and all(reasons) and not any(r.startswith("flag: ") for r in reasons)
+    groups = api(live_server, "/api/groups?depth=1")
+    assert [g["prefix"] for g in groups] == ["hearthloaf/", "polarquay/"]
+    with page.expect_navigation():
+        page.click('[data-group="polarquay/"] a')
+    assert "prefix=polarquay%2F" in page.url
+    shown = page.locator("[data-queue] [data-row]").evaluate_all("rows => rows.map(r => r.dataset.seriesId)")
+    assert sorted(shown) == sorted(sid for sid in DEMO_IDS if sid.startswith("polarquay/"))
+    assert page.locator(".crumbs [aria-current]").inner_text() == "polarquay/"
+    page.screenshot(path=str(ARTIFACTS / "queue-group.png"), full_page=True)
+    page.keyboard.press("j")
+    page.keyboard.press("x")  # tick the marked row from the keyboard
+    first = page.locator("[data-queue] [data-row]").first.get_attribute("data-series-id")
+    assert api(live_server, f"/api/series/{quote(first, safe='/')}")["verdict"]["status"] == "pending"  # attention order
+    assert page.locator("[data-picked-count]").inner_text() == "1"
+    page.fill("[data-park-note]", "sensor recalibration pending")
+    with page.expect_navigation():
+        page.click("#park-form button[type=submit]")
+    assert "Parked" in page.locator(".message-ok").inner_text()
+    verdict = api(live_server, f"/api/series/{quote(first, safe='/')}")["verdict"]
+    assert (verdict["status"], verdict["note"], verdict["reviewer"]) == ("parked", "sensor recalibration pending", "Browser Test")
+    page.select_option("[data-page-size]", "200")
+    page.wait_for_url("**limit=200**")
+    assert page.locator("[data-page-input]").input_value() == "1"
     assert not page.errors

@@ -9,13 +9,17 @@ from urllib.parse import quote
 
 import numpy as np
 import pytest
+from fastapi.testclient import TestClient
+from web_client import TEST_HOSTS
 from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
+from app.config import Settings
 from app.core.vocabulary import Confidence, Flag
 from app.store.runs import start_run
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
+from app.web.main import create_app
 from app.web.templating import FLAG_WORDS, number
 
 SERIES = "plant-a/line-1/ar1"
@@ -80,11 +84,122 @@ def test_queue_keeps_an_id_prefix_when_filtering_again(client):
     assert "prefix=plant-a%2F" in text  # and the sort and count links keep it
 
 
-def test_every_flag_the_engine_writes_has_words_and_is_offered_in_the_filter(client):
-    assert set(FLAG_WORDS) == set(Flag)
+def test_queue_page_size_is_chosen_and_kept_in_the_links(client, results):
+    text = client.get("/", params={"limit": 2, "sort": "n"}).text
+    assert len(re.findall(r"data-series-id=", text)) == 2
+    assert f"1–2 of {len(results)}" in text
+    sizes = re.search(r"<select name=\"limit\" data-page-size>(.*?)</select>", text, re.S).group(1)
+    assert re.findall(r'<option value="(\d+)"', sizes) == ["2", "50", "200", "1000"]
+    assert re.search(r'<option value="2"\s*selected>', sizes)
+    next_link = re.search(r'rel="next" href="\?([^"]+)"', text).group(1)
+    assert html.unescape(next_link) == "sort=n&offset=2&limit=2"
+    assert 'sort=series_id&amp;limit=2' in text  # a sort link keeps the page size
+    assert '<input type="hidden" name="limit" value="2">' in text  # and so does the filter form
+
+
+def test_queue_default_page_size_is_left_out_of_the_links(client):
     text = client.get("/").text
-    for flag in Flag:
-        assert f'<option value="{flag}">' in text
+    assert "limit=" not in text
+    assert Settings(db_path="x.db").max_page_size >= 1000
+
+
+def test_queue_jumps_to_a_page_and_past_the_end_to_the_last(client, results):
+    ranked = [item["series_id"] for item in client.get("/api/series", params={"limit": 100}).json()["items"]]
+    second = client.get("/", params={"limit": 2, "page": 2}).text
+    assert [html.unescape(r) for r in re.findall(r'data-series-id="([^"]+)"', second)] == ranked[2:4]
+    assert re.search(r'name="page" value="2" min="1" max="(\d+)"', second).group(1) == str(-(-len(results) // 2))
+    last = client.get("/", params={"limit": 2, "page": 999}).text
+    last_rows = [html.unescape(r) for r in re.findall(r'data-series-id="([^"]+)"', last)]
+    assert last_rows == ranked[(len(ranked) - 1) // 2 * 2:]
+    assert client.get("/", params={"page": 0}).status_code == 422
+
+
+def test_queue_page_size_is_capped_by_the_settings(db_path):
+    settings = Settings(db_path=db_path, page_size=2, max_page_size=3, allowed_hosts=TEST_HOSTS)
+    with TestClient(create_app(settings)) as capped:
+        text = capped.get("/", params={"limit": 1000}).text
+    assert len(re.findall(r"data-series-id=", text)) == 3
+
+
+def test_queue_picks_a_group_by_prefix_with_counts_and_a_breadcrumb(client, results):
+    top = client.get("/").text
+    groups = dict(re.findall(r'<li data-group="([^"]+)"><a href="\?([^"]+)">', top))
+    assert set(groups) == {sid.split("/")[0] + "/" for sid in results}
+    assert html.unescape(groups["plant-a/"]) == "prefix=plant-a%2F"
+    inside = client.get("/", params={"prefix": "plant-a/"}).text
+    assert set(re.findall(r'<li data-group="([^"]+)">', inside)) == {"plant-a/line-1/", "plant-a/line-2/"}
+    assert '<span aria-current="location">plant-a/</span>' in inside
+    deeper = client.get("/", params={"prefix": "plant-a/line-1/", "status": "pending"}).text
+    crumbs = re.search(r'<ol class="crumbs">(.*?)</ol>', deeper, re.S).group(1)
+    assert [html.unescape(h) for h in re.findall(r'href="\?([^"]*)"', crumbs)] == ["status=pending", "status=pending&prefix=plant-a%2F"]
+    assert 'data-group=' not in deeper  # the series of line-1 have no further parts
+    firm_a = [sid for sid, r in results.items() if sid.startswith("plant-a/") and r.confidence == Confidence.FIRM]
+    assert f"Approve {len(firm_a)} firm suggestion" in inside
+    assert "approve-firm?prefix=plant-a%2F" in inside  # the bulk approval keeps to the group
+
+
+def test_queue_parks_ticked_rows_with_one_note(client, db, results):
+    text = client.get("/").text
+    assert re.search(r'<input type="checkbox" name="series" value="[^"]+" form="park-form"', text)
+    chosen = ["plant-a/line-1/ar1", "plant-b/walk"]
+    done = client.post("/park", data={"scope": "selected", "series": chosen, "note": "ask the plant", "reviewer": "Ada"},
+                       follow_redirects=False)
+    assert done.status_code == 303 and done.headers["location"] == "/?parked=2"
+    assert "Parked 2 series." in client.get(done.headers["location"]).text
+    assert [get_verdict(db, sid)["status"] for sid in chosen] == ["parked", "parked"]
+    assert client.post("/park", data={"scope": "selected", "note": "n", "reviewer": "Ada"}).status_code == 422
+
+
+def test_queue_parks_every_waiting_series_of_a_group(client, db, results):
+    inside = sorted(sid for sid in results if sid.startswith("plant-a/"))
+    text = client.get("/", params={"prefix": "plant-a/"}).text
+    assert f"every waiting series of this group and filter ({len(inside)})" in text
+    stale = client.post("/park?prefix=plant-a%2F", data={"scope": "filter", "expected": "9", "note": "n", "reviewer": "Ada"})
+    assert stale.status_code == 422 and all(get_verdict(db, sid)["status"] == "pending" for sid in inside)
+    done = client.post("/park?prefix=plant-a%2F", data={"scope": "filter", "expected": str(len(inside)), "note": "line stopped",
+                                                         "reviewer": "Ada"}, follow_redirects=False)
+    assert done.headers["location"] == f"/?prefix=plant-a%2F&parked={len(inside)}"
+    assert all(get_verdict(db, sid)["note"] == "line stopped" for sid in inside)
+    assert all(get_verdict(db, sid)["status"] == "pending" for sid in results if sid not in inside)
+
+
+def test_every_flag_the_engine_writes_has_words(client):
+    assert set(FLAG_WORDS) == set(Flag)
+
+
+def test_flag_filter_offers_the_flags_present_by_their_words_with_counts(client, results):
+    present = {str(f) for r in results.values() for f in r.flags}
+    text = client.get("/").text
+    options = dict(re.findall(r'<option value="([a-z_]+)"\s*>([^<]*) \(\d+\)</option>', text))
+    assert set(options) == present and present
+    assert all(html.unescape(words) == FLAG_WORDS[flag] for flag, words in options.items())
+    near = sum("near_unit_root" in r.flags for r in results.values())
+    assert f"{html.escape(FLAG_WORDS[Flag.NEAR_UNIT_ROOT])} ({near})</option>" in text
+    chosen = client.get("/", params={"flag": "near_unit_root"}).text
+    assert re.search(r'<option value="near_unit_root"\s*selected>', chosen)
+
+
+def test_queue_row_says_the_main_reason_in_words(client, results):
+    doubtful = {sid: r for sid, r in results.items() if r.confidence != Confidence.FIRM}
+    assert any(r.confidence_reasons[0].startswith("flag: ") for r in doubtful.values())
+    assert any(not r.confidence_reasons[0].startswith("flag: ") for r in doubtful.values())
+    for sid, r in doubtful.items():
+        text = client.get("/", params={"q": sid}).text
+        reason = r.confidence_reasons[0]
+        words = FLAG_WORDS[reason.removeprefix("flag: ")] if reason.startswith("flag: ") else reason
+        assert f'<span class="reason">{html.escape(words)}</span>' in text, sid
+        assert "flag: " not in text
+    firm = next(sid for sid, r in results.items() if r.confidence == Confidence.FIRM)
+    assert 'class="reason"' not in client.get("/", params={"q": firm}).text
+
+
+def test_help_overlay_says_how_flags_weigh_in_the_queue_order(client):
+    text = client.get("/").text
+    help_text = text[text.index('id="help"'):]
+    most = re.search(r"<strong>most[^<]*</strong>:([^<]*)</li>", help_text).group(1)
+    least = re.search(r"<strong>least[^<]*</strong>:([^<]*)</li>", help_text).group(1)
+    assert "residual autocorrelation" in most and "no convergence" in most
+    assert "transformed" in least
 
 
 def test_queue_escapes_series_ids(client):

@@ -22,15 +22,16 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from app.config import Settings
 from app.core.backtest import DEFAULT_ORIGINS
+from app.core.series_ids import MAX_ID_LENGTH
 from app.jobs.analyze import start_background_analysis
-from app.review.bulk import approve_firm
+from app.review.bulk import approve_firm, park, waiting_ids
 from app.review.decisions import MAX_NOTE_LENGTH, decide, fit_custom_order
 from app.review.export import build_orders_document, parse_statuses
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import MAX_ORIGINS, MIN_HORIZON_CAP, backtest_series
 from app.store.analyses import analysis_record, load_analysis
 from app.store.runs import get_run, latest_run, list_runs
-from app.store.series import count_by, list_series
+from app.store.series import count_by, group_counts, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, computation_slot, get_db, get_runs_db, get_settings, whole_numbers
@@ -47,6 +48,8 @@ class ErrorMessage(BaseModel):
 
 
 ERROR_STATUSES = (400, 401, 403, 404, 408, 409, 411, 413, 422, 429, 503)
+# An id of MAX_ID_LENGTH characters has at most half as many non-empty parts between slashes.
+MAX_GROUP_DEPTH = MAX_ID_LENGTH // 2
 router = APIRouter(prefix="/api", tags=["api"], responses={code: {"model": ErrorMessage} for code in ERROR_STATUSES})
 
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
@@ -79,6 +82,7 @@ class SeriesItem(BaseModel):
     freq: str | None
     status: str
     confidence: str | None
+    main_reason: str | None = Field(description="the first reason for the confidence, in the engine's words")
     suggested: Suggested
     chosen: Suggested
     flags: list[str]
@@ -86,6 +90,18 @@ class SeriesItem(BaseModel):
     analysis_state: str
     attention: float
     recheck_reason: str | None
+
+
+class GroupCounts(BaseModel):
+    prefix: str = Field(description="the id's first `depth` parts and '/', or a whole id with no more parts")
+    total: int
+    pending: int
+    weak: int = Field(description="pending series with a weak suggestion (tentative and firm likewise)")
+    tentative: int
+    firm: int
+    decided: int = Field(description="approved or overridden")
+    parked: int
+    recheck: int
 
 
 class SeriesList(BaseModel):
@@ -124,6 +140,17 @@ class FitIn(BaseModel):
 class BulkApprovalIn(BaseModel):
     reviewer: str
     note: Note = ""
+
+
+class ParkIn(BaseModel):
+    series_ids: list[str] | None = Field(None, description="the series to park; without it, every waiting series of the filter")
+    reviewer: str
+    note: Note
+
+
+class Parked(BaseModel):
+    count: int
+    parked: list[str]
 
 
 class BulkApproval(BaseModel):
@@ -181,6 +208,13 @@ def series_list(db: Db, settings: Config, flt: Filter, limit: Annotated[int | No
     limit = settings.page_size if limit is None else min(limit, settings.max_page_size)
     total, items = list_series(db, limit=limit, offset=offset, **flt.store_kwargs())
     return {"total": total, "limit": limit, "offset": offset, "items": items}
+
+
+@router.get("/groups", response_model=list[GroupCounts])
+def groups(db: Db, depth: Annotated[int, Query(ge=1, le=MAX_GROUP_DEPTH)] = 1,
+           prefix: Annotated[str | None, Query(description="count only series whose id starts with this text")] = None) -> list[dict]:
+    """Counts per id prefix at ``depth`` ('/'-separated parts: ``company/`` at 1, ``company/site/`` at 2)."""
+    return group_counts(db, depth, prefix)
 
 
 @router.post("/series/{series_id:path}/verdict", response_model=Verdict)
@@ -259,6 +293,18 @@ def bulk_approve(db: Db, flt: Filter, body: BulkApprovalIn) -> dict:
         raise HTTPException(status_code=422, detail="reviewer must not be empty")
     approved = approve_firm(db, flt, reviewer, body.note)
     return {"count": len(approved), "approved": approved}
+
+
+@router.post("/park", response_model=Parked)
+def bulk_park(db: Db, flt: Filter, body: ParkIn) -> dict:
+    """Park, with one note, the listed series (or every series of the filter) that wait for a
+    decision (pending or recheck); decided and parked ones are left alone."""
+    reviewer = clean_reviewer(body.reviewer)
+    if not reviewer:
+        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    ids = waiting_ids(db, flt) if body.series_ids is None else body.series_ids
+    parked = park(db, ids, reviewer, body.note)
+    return {"count": len(parked), "parked": parked}
 
 
 @router.post("/imports")

@@ -18,8 +18,8 @@ from fastapi.responses import FileResponse, RedirectResponse, Response
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
-from app.review.bulk import approve_firm, firm_pending_ids
-from app.review.decisions import decide, fit_custom_order
+from app.review.bulk import approve_firm, firm_pending_ids, park, waiting_ids
+from app.review.decisions import DecisionError, decide, fit_custom_order
 from app.review.export import build_orders_document, orders_text
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
@@ -82,9 +82,17 @@ def with_query(url: str, query: str) -> str:
 
 @router.get("/", name="queue")
 def queue(request: Request, db: RunsDb, settings: Config, flt: Filter,
-          offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0, approved: int | None = None) -> Response:
-    page = queue_page(db, flt, offset, settings.page_size)
-    return render(request, "queue.html", {**page, "approved_count": approved})
+          offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0,
+          limit: Annotated[int | None, Query(ge=1, le=SQLITE_MAX_INTEGER)] = None,
+          page: Annotated[int | None, Query(ge=1, le=SQLITE_MAX_INTEGER)] = None, approved: int | None = None,
+          parked: int | None = None) -> Response:
+    """The queue: ``limit`` rows a page (at most ``max_page_size``), from ``offset`` or from
+    ``page`` (1 is the first; a page past the end shows the last)."""
+    size = settings.page_size if limit is None else min(limit, settings.max_page_size)
+    if page is not None:
+        offset = min((page - 1) * size, SQLITE_MAX_INTEGER)
+    view = queue_page(db, flt, offset, size, settings.page_size)
+    return render(request, "queue.html", {**view, "approved_count": approved, "parked_count": parked})
 
 
 @router.get("/series/{series_id:path}/forecast-check", name="forecast_check")
@@ -191,6 +199,28 @@ def approve_firm_save(request: Request, db: Db, flt: Filter, expected: Annotated
         return render(request, "approve_firm.html", context, status_code=422 if not name else 409)
     approved = approve_firm(db, flt, name, note)
     url = with_query(request.app.url_path_for("queue"), flt.query(approved=len(approved)))
+    return remember_reviewer(RedirectResponse(url, status_code=303), name)
+
+
+@router.post("/park", name="park_save")
+def park_save(request: Request, db: Db, flt: Filter, note: Annotated[str, Form()],
+              scope: Annotated[Literal["selected", "filter"], Form()] = "selected",
+              series: Annotated[list[str] | None, Form()] = None, expected: Annotated[int | None, Form()] = None,
+              reviewer: Annotated[str, Form()] = "") -> Response:
+    """Park the rows ticked on the queue, or every waiting series of its filter, with one note."""
+    name = clean_reviewer(reviewer)
+    if not name:
+        raise DecisionError(NAME_NEEDED)
+    if scope == "filter":
+        ids = waiting_ids(db, flt)
+        if len(ids) != expected:
+            raise DecisionError(f"The filter now holds {len(ids)} waiting series, not the {expected} shown; check again.")
+    else:
+        ids = series or []
+        if not ids:
+            raise DecisionError("Tick the rows to park first (or choose every waiting series of the filter).")
+    parked = park(db, ids, name, note)
+    url = with_query(request.app.url_path_for("queue"), flt.query(parked=len(parked)))
     return remember_reviewer(RedirectResponse(url, status_code=303), name)
 
 
