@@ -1,5 +1,11 @@
 """The ``lagdesk`` command line: thin wrappers that parse options and call the same functions
-the web pages use."""
+the web pages use.
+
+The engine, the web app and the modules behind them are imported in the commands (and the
+options) that use them, not here: ``lagdesk --help`` and the other commands then answer without
+loading numba, statsmodels, scipy or plotly. A command's options are added only when that
+command is parsed (:class:`CommandParser`), so each needs only its own imports.
+"""
 
 from __future__ import annotations
 
@@ -10,37 +16,23 @@ import sqlite3
 import sys
 import threading
 import webbrowser
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from contextlib import closing
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from app.config import Settings
-from app.core.analysis import Analysis
-from app.core.backtest import DEFAULT_ORIGINS
 from app.core.errors import LagdeskError, OrderError
-from app.core.identify import AUTO_PERIOD, EngineOptions
 from app.core.order import MAX_ORDER, order_label
-from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS, PortfolioFile, ReadLimits, read_portfolio
 from app.core.vocabulary import DECIDED, Confidence, VerdictStatus
-from app.jobs.analyze import RunProgress, close_abandoned_runs, run_analysis
-from app.jobs.demo import build_demo_database
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
-from app.jobs.work import SeriesTask, identify_task
-from app.review.bulk import approve_firm
-from app.review.decisions import decide
-from app.review.export import FORMATS as EXPORT_FORMATS
-from app.review.export import export_command
-from app.review.filters import SeriesFilter
-from app.review.forecast_check import backtest_series
-from app.store.database import open_database, resolve_db_path, storage_error_text
-from app.store.imports import ImportReport, store_portfolio
-from app.store.runs import latest_run
-from app.store.status import portfolio_status
-from app.store.verdicts import get_verdict
-from app.web.deps import clean_reviewer, whole_numbers
-from app.web.security import GENERATE, TOKEN_ENV_VAR, generate_token, require_token_off_loopback
-from app.web.server import run_server
+
+if TYPE_CHECKING:
+    from app.core.analysis import Analysis
+    from app.core.portfolio_file import PortfolioFile
+    from app.jobs.analyze import RunProgress
+    from app.store.imports import ImportReport
 
 # What ``lagdesk decide`` calls each verdict state a reviewer can set.
 DECIDE_ACTIONS = {
@@ -92,6 +84,8 @@ def count_option(text: str) -> int:
 
 
 def _add_file_options(parser: argparse.ArgumentParser) -> None:
+    from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, LAYOUTS
+
     parser.add_argument("path", help="CSV file, long or wide layout")
     parser.add_argument("--layout", choices=LAYOUTS, default="long", help="long: one row per observation (default); wide: one column per series")
     parser.add_argument("--id-col", default=DEFAULT_ID_COL, help=f"series id column, long layout (default {DEFAULT_ID_COL})")
@@ -114,6 +108,8 @@ def _add_file_options(parser: argparse.ArgumentParser) -> None:
 
 def read_named_file(args: argparse.Namespace) -> PortfolioFile:
     """The portfolio file the options name, read within their limits."""
+    from app.core.portfolio_file import ReadLimits, read_portfolio
+
     return read_portfolio(
         args.path, args.layout, args.id_col, args.time_col, args.value_col,
         limits=ReadLimits(args.max_series, args.max_points), date_format=args.date_format,
@@ -145,6 +141,8 @@ def _add_db(parser: argparse.ArgumentParser) -> None:
 
 def period_option(text: str) -> int | str | None:
     """``--period``: ``auto`` (from the sampling frequency), ``none`` (non-seasonal) or a whole number >= 2."""
+    from app.core.identify import AUTO_PERIOD
+
     word = text.strip().lower()
     if word == AUTO_PERIOD:
         return AUTO_PERIOD
@@ -154,6 +152,8 @@ def period_option(text: str) -> int | str | None:
 
 
 def _add_period(parser: argparse.ArgumentParser) -> None:
+    from app.core.identify import AUTO_PERIOD
+
     parser.add_argument(
         "--period", type=period_option, default=AUTO_PERIOD, metavar="N|none|auto",
         help="seasonal period: auto from the sampling frequency (default), none, or a whole number >= 2",
@@ -167,71 +167,32 @@ def _add_screening(parser: argparse.ArgumentParser) -> None:
     )
 
 
+class CommandParser(argparse.ArgumentParser):
+    """A command's parser whose options are added the first time it parses (``add_options``),
+    so that ``lagdesk --help`` and the other commands import nothing this command's options need."""
+
+    def __init__(self, *args: Any, add_options: Callable[[argparse.ArgumentParser], None] | None = None, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        self._add_options = add_options
+
+    def parse_known_args(self, args=None, namespace=None):
+        if self._add_options is not None:
+            add_options, self._add_options = self._add_options, None
+            add_options(self)
+        return super().parse_known_args(args, namespace)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="lagdesk", description="Box-Jenkins identification and review of ARIMA orders for a portfolio of series.")
-    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-
-    identify = commands.add_parser("identify", help="identify every series of a CSV file (one shot, no database)")
-    _add_file_options(identify)
-    identify.add_argument("--max-p", type=int, default=MAX_ORDER, help=f"largest AR order considered (default {MAX_ORDER})")
-    identify.add_argument("--max-q", type=int, default=MAX_ORDER, help=f"largest MA order considered (default {MAX_ORDER})")
-    _add_period(identify)
-    _add_screening(identify)
-    identify.add_argument("--json", action="store_true", help="print the full results as JSON on stdout")
-    _add_workers(identify)
-    _add_executor(identify)
-    identify.set_defaults(handler=run_identify)
-
-    load = commands.add_parser("import", help="import (or update) the series of a CSV file into the database")
-    _add_file_options(load)
-    _add_db(load)
-    load.set_defaults(handler=run_import)
-
-    analyze = commands.add_parser("analyze", help="analyse every series whose analysis is missing or out of date")
-    _add_db(analyze)
-    _add_workers(analyze)
-    _add_executor(analyze)
-    analyze.add_argument("--all", action="store_true", help="analyse every series again, current or not")
-    _add_period(analyze)
-    _add_screening(analyze)
-    analyze.set_defaults(handler=run_analyze)
-
-    status = commands.add_parser("status", help="what the portfolio database holds")
-    _add_db(status)
-    status.add_argument("--json", action="store_true", help="print the counts as JSON on stdout")
-    status.set_defaults(handler=run_status)
-
-    demo = commands.add_parser("demo", help="build (or reuse) the analysed demo portfolio and open the dashboard on it")
-    _add_db(demo)
-    _add_workers(demo)
-    _add_server_options(demo)
-    demo.add_argument("--build-only", action="store_true", help="build the database and exit without serving")
-    demo.set_defaults(handler=run_demo)
-
-    export = commands.add_parser("export", help="write the decided orders for a forecasting job (CSV or JSON)")
-    _add_db(export)
-    export.add_argument("--format", choices=EXPORT_FORMATS, default="json", help="file format (default json)")
-    export.add_argument("-o", "--output", help="file to write (default ./lagdesk-orders.FORMAT); written atomically")
-    export.add_argument(
-        "--status", default=",".join(DECIDED), metavar="LIST",
-        help=f"decisions to include, comma-separated (default {','.join(DECIDED)})",
-    )
-    export.set_defaults(handler=run_export)
-
-    backtest = commands.add_parser("backtest", help="rolling-origin forecast check of an order on one stored series")
-    backtest.add_argument("series_id", help="the series to check")
-    _add_db(backtest)
-    backtest.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="order to check (default: the suggested one)")
-    backtest.add_argument(
-        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the suggested one when --order is not given, else none)",
-    )
-    backtest.add_argument("--transform", metavar="none|log|box_cox:LAMBDA", type=transform_option, help="transform (default: the analysis')")
-    backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season, or 8 for a non-seasonal order)")
-    backtest.add_argument("--origins", type=int, help=f"forecast origins (default {DEFAULT_ORIGINS})")
-    backtest.add_argument("--json", action="store_true", help="print the full check as JSON on stdout")
-    backtest.set_defaults(handler=run_backtest)
-
-    decide = commands.add_parser(
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=CommandParser)
+    commands.add_parser("identify", help="identify every series of a CSV file (one shot, no database)", add_options=_identify_options)
+    commands.add_parser("import", help="import (or update) the series of a CSV file into the database", add_options=_import_options)
+    commands.add_parser("analyze", help="analyse every series whose analysis is missing or out of date", add_options=_analyze_options)
+    commands.add_parser("status", help="what the portfolio database holds", add_options=_status_options)
+    commands.add_parser("demo", help="build (or reuse) the analysed demo portfolio and open the dashboard on it", add_options=_demo_options)
+    commands.add_parser("export", help="write the decided orders for a forecasting job (CSV or JSON)", add_options=_export_options)
+    commands.add_parser("backtest", help="rolling-origin forecast check of an order on one stored series", add_options=_backtest_options)
+    commands.add_parser(
         "decide", help="record a verdict on one series, or approve every pending firm suggestion (--all-firm)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
         usage="lagdesk decide SERIES_ID ACTION --reviewer NAME [--note TEXT] [--order p,d,q [--seasonal P,D,Q,s]]\n"
@@ -245,7 +206,84 @@ def build_parser() -> argparse.ArgumentParser:
         "  lagdesk decide shop/sales override --order 0,1,1 --seasonal 0,1,1,12 --reviewer ann --note \"MA fits better\"\n"
         "  lagdesk decide shop/sales pending --reviewer ann --version 3\n"
         "  lagdesk decide --all-firm --prefix shop/ --reviewer ann",
+        add_options=_decide_options,
     )
+    commands.add_parser("serve", help="serve the review dashboard", add_options=_serve_options)
+    return parser
+
+
+def _identify_options(identify: argparse.ArgumentParser) -> None:
+    _add_file_options(identify)
+    identify.add_argument("--max-p", type=int, default=MAX_ORDER, help=f"largest AR order considered (default {MAX_ORDER})")
+    identify.add_argument("--max-q", type=int, default=MAX_ORDER, help=f"largest MA order considered (default {MAX_ORDER})")
+    _add_period(identify)
+    _add_screening(identify)
+    identify.add_argument("--json", action="store_true", help="print the full results as JSON on stdout")
+    _add_workers(identify)
+    _add_executor(identify)
+    identify.set_defaults(handler=run_identify)
+
+
+def _import_options(load: argparse.ArgumentParser) -> None:
+    _add_file_options(load)
+    _add_db(load)
+    load.set_defaults(handler=run_import)
+
+
+def _analyze_options(analyze: argparse.ArgumentParser) -> None:
+    _add_db(analyze)
+    _add_workers(analyze)
+    _add_executor(analyze)
+    analyze.add_argument("--all", action="store_true", help="analyse every series again, current or not")
+    _add_period(analyze)
+    _add_screening(analyze)
+    analyze.set_defaults(handler=run_analyze)
+
+
+def _status_options(status: argparse.ArgumentParser) -> None:
+    _add_db(status)
+    status.add_argument("--json", action="store_true", help="print the counts as JSON on stdout")
+    status.set_defaults(handler=run_status)
+
+
+def _demo_options(demo: argparse.ArgumentParser) -> None:
+    _add_db(demo)
+    _add_workers(demo)
+    _add_server_options(demo)
+    demo.add_argument("--build-only", action="store_true", help="build the database and exit without serving")
+    demo.set_defaults(handler=run_demo)
+
+
+def _export_options(export: argparse.ArgumentParser) -> None:
+    from app.review.export import FORMATS
+
+    _add_db(export)
+    export.add_argument("--format", choices=FORMATS, default="json", help="file format (default json)")
+    export.add_argument("-o", "--output", help="file to write (default ./lagdesk-orders.FORMAT); written atomically")
+    export.add_argument(
+        "--status", default=",".join(DECIDED), metavar="LIST",
+        help=f"decisions to include, comma-separated (default {','.join(DECIDED)})",
+    )
+    export.set_defaults(handler=run_export)
+
+
+def _backtest_options(backtest: argparse.ArgumentParser) -> None:
+    from app.core.backtest import DEFAULT_ORIGINS
+
+    backtest.add_argument("series_id", help="the series to check")
+    _add_db(backtest)
+    backtest.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="order to check (default: the suggested one)")
+    backtest.add_argument(
+        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the suggested one when --order is not given, else none)",
+    )
+    backtest.add_argument("--transform", metavar="none|log|box_cox:LAMBDA", type=transform_option, help="transform (default: the analysis')")
+    backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season, or 8 for a non-seasonal order)")
+    backtest.add_argument("--origins", type=int, help=f"forecast origins (default {DEFAULT_ORIGINS})")
+    backtest.add_argument("--json", action="store_true", help="print the full check as JSON on stdout")
+    backtest.set_defaults(handler=run_backtest)
+
+
+def _decide_options(decide: argparse.ArgumentParser) -> None:
     decide.add_argument("series_id", nargs="?", metavar="SERIES_ID", help="the series to decide (not with --all-firm)")
     decide.add_argument(
         "action", nargs="?", choices=DECIDE_ACTIONS, metavar="ACTION",
@@ -270,14 +308,16 @@ def build_parser() -> argparse.ArgumentParser:
     decide.add_argument("--json", action="store_true", help="print the new verdict (or the ids approved) as JSON")
     decide.set_defaults(handler=run_decide)
 
-    serve = commands.add_parser("serve", help="serve the review dashboard")
+
+def _serve_options(serve: argparse.ArgumentParser) -> None:
     _add_db(serve)
     _add_server_options(serve)
     serve.set_defaults(handler=run_serve)
-    return parser
 
 
 def _add_server_options(parser: argparse.ArgumentParser) -> None:
+    from app.web.security import GENERATE, TOKEN_ENV_VAR
+
     parser.add_argument("--host", default=DEFAULT_HOST, help=f"interface to listen on (default {DEFAULT_HOST}: this machine only)")
     parser.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"TCP port (default {DEFAULT_PORT})")
     parser.add_argument("--no-browser", action="store_true", help="do not try to open a browser")
@@ -296,6 +336,8 @@ def _add_server_options(parser: argparse.ArgumentParser) -> None:
 def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
     """The server's settings from the options, with its access token (generated and printed once
     when asked); refuses a non-loopback host without a token."""
+    from app.web.security import GENERATE, TOKEN_ENV_VAR, generate_token, require_token_off_loopback
+
     token = args.token or os.environ.get(TOKEN_ENV_VAR) or None
     if token == GENERATE:
         token = generate_token()
@@ -310,6 +352,8 @@ def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
 
 
 def _serve(db_path: Path, args: argparse.Namespace) -> int:
+    from app.web.server import run_server
+
     settings = server_settings(db_path, args)
     print(f"Lagdesk dashboard on {settings.url} (database {db_path}); Ctrl-C stops it.", flush=True)
     if not args.no_browser:
@@ -319,13 +363,20 @@ def _serve(db_path: Path, args: argparse.Namespace) -> int:
 
 
 def run_serve(args: argparse.Namespace) -> int:
+    from app.store.database import resolve_db_path
+
     return _serve(resolve_db_path(args.db), args)
 
 
 def run_identify(args: argparse.Namespace) -> int:
+    from app.core.identify import EngineOptions
+    from app.jobs.work import SeriesTask, identify_task
+
     options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
     portfolio = read_named_file(args)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
+    if tasks:
+        announce_compile()
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
     for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
@@ -345,6 +396,9 @@ def run_identify(args: argparse.Namespace) -> int:
 
 
 def run_import(args: argparse.Namespace) -> int:
+    from app.store.database import open_database, resolve_db_path
+    from app.store.imports import store_portfolio
+
     path = resolve_db_path(args.db)
     portfolio = read_named_file(args)  # first: a file refused whole leaves no new, empty database behind
     with closing(open_database(path)) as db:
@@ -363,6 +417,11 @@ def import_report_text(report: ImportReport, db_path: Path) -> str:
 
 
 def run_analyze(args: argparse.Namespace) -> int:
+    from app.core.identify import EngineOptions
+    from app.jobs.analyze import run_analysis
+    from app.store.database import open_database
+    from app.store.status import portfolio_status
+
     path = _existing_db(args.db)
     shown = RunProgressLine("analyze")
     try:
@@ -381,6 +440,15 @@ def run_analyze(args: argparse.Namespace) -> int:
     return 0
 
 
+def announce_compile() -> None:
+    """Say on stderr that the engine's first call will compile the likelihood, when it will:
+    otherwise the command goes quiet for half a minute and looks hung."""
+    from app.core import numba_cache  # loads numba: called only by commands that run the engine
+
+    if numba_cache.compile_pending():
+        print(numba_cache.COMPILE_NOTICE, file=sys.stderr, flush=True)
+
+
 class RunProgressLine:
     """Shows a run's progress on a :class:`ProgressLine`, made once the run knows its total."""
 
@@ -391,6 +459,8 @@ class RunProgressLine:
 
     def __call__(self, progress: RunProgress) -> None:
         if self.line is None:
+            if progress.total:
+                announce_compile()
             self.line = ProgressLine(progress.total, self.label)
         while self.line.done < progress.done:
             self.line.advance(failed=self.line.failed < progress.failed)
@@ -416,6 +486,11 @@ def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
 
 
 def run_status(args: argparse.Namespace) -> int:
+    from app.jobs.run_lock import close_abandoned_runs
+    from app.store.database import open_database
+    from app.store.runs import latest_run
+    from app.store.status import portfolio_status
+
     path = _existing_db(args.db)
     with closing(open_database(path)) as db:
         close_abandoned_runs(db, path)  # a run killed with kill -9 shows as interrupted, not running
@@ -450,6 +525,8 @@ def integers_option(count: int):
     """An option of ``count`` comma-separated whole numbers (``--order 1,1,0``)."""
 
     def parse(text: str) -> list[int]:
+        from app.web.deps import whole_numbers
+
         try:
             return whole_numbers(text, count, "the value")
         except OrderError as exc:
@@ -473,6 +550,13 @@ def transform_option(text: str) -> str | dict:
 
 
 def run_decide(args: argparse.Namespace) -> int:
+    from app.review.bulk import approve_firm
+    from app.review.decisions import decide
+    from app.review.filters import SeriesFilter
+    from app.store.database import open_database
+    from app.store.verdicts import get_verdict
+    from app.web.deps import clean_reviewer
+
     reviewer = clean_reviewer(args.reviewer)  # stored as the pages and the API store it
     if not reviewer:
         raise LagdeskError("--reviewer NAME is required: every verdict records who decided it")
@@ -518,12 +602,19 @@ def _print(value: object, as_json: bool) -> None:
 
 
 def run_export(args: argparse.Namespace) -> int:
+    from app.review.export import export_command
+
     print(export_command(_existing_db(args.db), args.format, args.output, args.status))
     return 0
 
 
 def run_backtest(args: argparse.Namespace) -> int:
-    with closing(open_database(_existing_db(args.db))) as db:
+    from app.review.forecast_check import backtest_series
+    from app.store.database import open_database
+
+    path = _existing_db(args.db)
+    announce_compile()
+    with closing(open_database(path)) as db:
         check = backtest_series(db, args.series_id, args.order, args.seasonal, args.transform, args.horizon, args.origins)
     if args.json:
         json.dump(check, sys.stdout, allow_nan=False)
@@ -553,6 +644,10 @@ def backtest_text(check: dict) -> str:
 
 
 def run_demo(args: argparse.Namespace) -> int:
+    from app.jobs.demo import build_demo_database
+    from app.store.database import open_database, resolve_db_path
+    from app.store.status import portfolio_status
+
     shown = RunProgressLine("demo")
     path = build_demo_database(resolve_db_path(args.db), args.workers, on_progress=shown)
     shown.close()
@@ -578,6 +673,8 @@ def demo_next_steps(db_path: Path, status: dict) -> str:
 
 def _existing_db(explicit: str | None) -> Path:
     """The database to read; unlike import, these commands never create an empty one."""
+    from app.store.database import resolve_db_path
+
     path = resolve_db_path(explicit)
     if not path.is_file():
         raise LagdeskError(f"{path}: no such database; create it with lagdesk import PATH --db {path}")
@@ -611,6 +708,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(terminal_text(f"lagdesk {args.command}: {exc}"), file=sys.stderr)
         return EXIT_INPUT_ERROR
     except sqlite3.Error as exc:
+        from app.store.database import resolve_db_path, storage_error_text
+
         db = resolve_db_path(args.db) if "db" in vars(args) else None
         print(terminal_text(f"lagdesk {args.command}: {storage_error_text(exc, db)}"), file=sys.stderr)
         return EXIT_STORAGE_ERROR

@@ -17,7 +17,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from app.core.order import Order, validate_order
-from app.core.transform import TransformChoice
+from app.core.transform_choice import TransformChoice
 from app.core.vocabulary import Confidence
 
 SCHEMA_VERSION = 2

@@ -12,10 +12,12 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from app.core.errors import OrderError
-from app.core.likelihood import ArmaSpec, is_nested_in
+
+if TYPE_CHECKING:
+    from app.core.likelihood import ArmaSpec
 
 MAX_ORDER = 5
 MAX_SEASONAL_ORDER = 2
@@ -88,6 +90,8 @@ class Order:
         trend), and at least one term more. ARIMA(1,0,0) with a mean and a trend contains
         ARIMA(1,0,0) with a mean; ARIMA(2,0,0) with a mean does not contain ARIMA(1,0,0) with a
         mean and a trend."""
+        from app.core.likelihood import is_nested_in  # here: numba is loaded only by code that fits
+
         if self == other or self.differencing_key() != other.differencing_key():
             return False
         spec, inner = self.arma_spec(), other.arma_spec()
@@ -95,6 +99,8 @@ class Order:
 
     def arma_spec(self) -> ArmaSpec:
         """The ARMA part, for the differenced series."""
+        from app.core.likelihood import ArmaSpec
+
         return ArmaSpec(self.p, self.q, self.P, self.Q, self.s if self.P or self.Q else 0)
 
     def label(self) -> str:

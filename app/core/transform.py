@@ -25,16 +25,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
-from typing import Literal
 
 import numpy as np
 from scipy.optimize import minimize_scalar
 from scipy.special import boxcox, inv_boxcox
 
 from app.core.errors import OrderError
+from app.core.transform_choice import TransformChoice
 
-TransformKind = Literal["none", "log", "box_cox"]
 LAMBDA_BOUNDS = (-1.0, 2.0)
 NONSEASONAL_SUBSERIES_LENGTH = 2
 LAMBDA_STEP = 0.5
@@ -42,53 +40,6 @@ LAMBDA_TOLERANCE = 0.15
 LAMBDA_DECIMALS = 1
 SQUARE_ROOT = 0.5
 CLEAR_AIC_DROP = 10.0
-
-
-@dataclass
-class TransformChoice:
-    """A variance-stabilising transform and why it was chosen.
-
-    ``kind`` is ``"none"``, ``"log"`` or ``"box_cox"``; ``lam`` is the lambda applied (None for
-    no transform, 0 for the log); ``explanation`` says in words what was compared.
-    """
-
-    kind: TransformKind
-    lam: float | None = None
-    explanation: list[str] = field(default_factory=list)
-
-    def __post_init__(self) -> None:
-        if self.kind not in ("none", "log", "box_cox"):
-            raise ValueError(f"unknown transform {self.kind!r} (expected none, log or box_cox)")
-        if self.kind == "none" and self.lam is not None:
-            raise ValueError("a 'none' transform has no lambda")
-        if self.kind == "log" and self.lam not in (None, 0.0):
-            raise ValueError(f"the log transform is Box-Cox with lambda 0, not {self.lam}")
-        if self.kind == "log":
-            self.lam = 0.0
-        if self.kind == "box_cox" and (self.lam is None or not np.isfinite(self.lam)):
-            raise ValueError(f"a Box-Cox transform needs a finite lambda, not {self.lam!r}")
-
-    def to_json(self) -> str | dict:
-        """``"none"``, ``"log"`` or ``{"box_cox": lambda}``."""
-        return {"box_cox": self.lam} if self.kind == "box_cox" else self.kind
-
-    @classmethod
-    def from_json(cls, value: str | dict) -> TransformChoice:
-        """Read back what :meth:`to_json` wrote (or a reviewer typed in the same form)."""
-        if value == "none":
-            return cls(kind="none")
-        if value == "log":
-            return cls(kind="log")
-        if isinstance(value, dict) and set(value) == {"box_cox"}:
-            lam = value["box_cox"]
-            if isinstance(lam, bool) or not isinstance(lam, (int, float)):
-                raise ValueError(f"Box-Cox lambda must be a number, not {lam!r}")
-            return cls(kind="box_cox", lam=float(lam))
-        raise ValueError(f'transform {value!r} is not "none", "log" or {{"box_cox": lambda}}')
-
-    def name(self) -> str:
-        """``none``, ``log`` or ``Box-Cox (lambda 0.5)``: the transform in words."""
-        return f"Box-Cox (lambda {self.lam:g})" if self.kind == "box_cox" else self.kind
 
 
 def guerrero_lambda(x: np.ndarray, period: int | None = None) -> float:

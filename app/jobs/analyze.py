@@ -10,14 +10,12 @@ One run at a time per database: a run holds an OS lock on a file beside the data
 long as it lasts. The operating system drops the lock with the process that held it, so a run
 record still marked ``running`` while the lock is free was left by a run that died: the next run
 closes it as ``interrupted``, and so does the dashboard when it shows runs
-(:func:`close_abandoned_runs`).
+(:func:`app.jobs.run_lock.close_abandoned_runs`).
 """
 
 from __future__ import annotations
 
-import fcntl
 import logging
-import os
 import threading
 import time
 from collections.abc import Callable, Iterator
@@ -30,23 +28,20 @@ from app.core.errors import LagdeskError
 from app.core.identify import ENGINE_VERSION, EngineOptions
 from app.jobs.executors import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.recheck import recheck_after_analysis
+from app.jobs.run_lock import LOCK_SUFFIX as LOCK_SUFFIX  # re-exported: app.web's tests import it from here
+from app.jobs.run_lock import acquire_run_lock, held_runs, release_lock_fd, release_run, start_guard
+from app.jobs.run_lock import close_abandoned_runs as close_abandoned_runs  # re-exported: app.web imports it from here
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database, write_transaction
-from app.store.runs import finish_run, get_run, interrupt_running_runs, list_runs, record_progress, running_run_ids, start_run
+from app.store.runs import finish_run, get_run, interrupt_running_runs, list_runs, record_progress, start_run
 from app.store.series import load_series, series_fingerprint, series_ids_to_analyse
 
-LOCK_SUFFIX = "-analysis.lock"
 # How long a caller waits for the run record of a run that holds the lock but is still starting.
 STARTING_RUN_WAIT_S = 5.0
 _STARTING_RUN_POLL_S = 0.05
 
 log = logging.getLogger(__name__)
-
-# Within one process the OS lock cannot tell two threads apart (POSIX record locks belong to
-# the process), so starts are serialised here and the runs this process holds are kept by path.
-_start_guard = threading.Lock()
-_held: dict[Path, int] = {}
 
 
 class AnalysisInProgress(LagdeskError):
@@ -144,7 +139,7 @@ class AnalysisRun:
             return get_run(self.db, self.run_id)
         finally:
             self.db.close()
-            _release(self.db_path, self.lock_fd)
+            release_run(self.db_path, self.lock_fd)
 
 
 def begin_analysis(
@@ -168,12 +163,12 @@ def begin_analysis(
     if workers < 1:
         raise LagdeskError(f"workers ({workers}) must be at least 1")
     path = Path(db_path).resolve()
-    with _start_guard:
-        if path in _held:
-            raise AnalysisInProgress(path, _held[path])
+    with start_guard:
+        if path in held_runs:
+            raise AnalysisInProgress(path, held_runs[path])
         db = open_database(path)
         try:
-            lock_fd = _acquire(path)
+            lock_fd = acquire_run_lock(path)
             if lock_fd is None:
                 raise AnalysisInProgress(path, _running_run_id(db))
             try:
@@ -182,12 +177,12 @@ def begin_analysis(
                 settings = {"workers": workers, "everything": everything, "options": asdict(options), "executor": asdict(executor)}
                 run_id = start_run(db, settings, len(series_ids), ENGINE_VERSION)
             except BaseException:
-                _release_fd(lock_fd)
+                release_lock_fd(lock_fd)
                 raise
         except BaseException:
             db.close()
             raise
-        _held[path] = run_id
+        held_runs[path] = run_id
     return AnalysisRun(db, path, lock_fd, run_id, series_ids, workers, options, executor)
 
 
@@ -225,28 +220,6 @@ def start_background_analysis(db_path: str | Path, workers: int | None = None) -
     return run.run_id
 
 
-def close_abandoned_runs(db: sqlite_utils.Database, db_path: str | Path) -> list[int]:
-    """Close as ``interrupted`` the runs still marked ``running`` whose process has died (no
-    process holds the run lock, and this one runs none); their ids. Costs one query while no run
-    is marked running.
-    """
-    if not running_run_ids(db):
-        return []
-    path = Path(db_path).resolve()
-    with _start_guard:
-        # Within this process the lock cannot be probed: a second lock on the file would be
-        # granted, and releasing it would release the live run's too.
-        if path in _held:
-            return []
-        lock_fd = _acquire(path)
-        if lock_fd is None:
-            return []
-        try:
-            return interrupt_running_runs(db)
-        finally:
-            _release_fd(lock_fd)
-
-
 def _execute_logged(run: AnalysisRun) -> None:
     try:
         run.execute()
@@ -262,29 +235,3 @@ def _running_run_id(db: sqlite_utils.Database) -> int | None:
         if running or time.monotonic() >= deadline:
             return running[0] if running else None
         time.sleep(_STARTING_RUN_POLL_S)
-
-
-def _acquire(path: Path) -> int | None:
-    """Lock the run-lock file beside the database; None when another process holds it.
-
-    A POSIX record lock (``lockf``) rather than ``flock``: it is not inherited by the pool's
-    forked workers, so a worker orphaned by a killed run cannot keep the database locked.
-    """
-    fd = os.open(f"{path}{LOCK_SUFFIX}", os.O_RDWR | os.O_CREAT, 0o644)
-    try:
-        fcntl.lockf(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-    except OSError:
-        os.close(fd)
-        return None
-    return fd
-
-
-def _release_fd(fd: int) -> None:
-    fcntl.lockf(fd, fcntl.LOCK_UN)
-    os.close(fd)
-
-
-def _release(path: Path, fd: int) -> None:
-    with _start_guard:
-        _held.pop(path, None)
-        _release_fd(fd)

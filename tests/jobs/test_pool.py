@@ -14,6 +14,7 @@ import sys
 import textwrap
 import threading
 import time
+from contextlib import closing
 from pathlib import Path
 
 import pytest
@@ -21,13 +22,18 @@ from simulated_portfolio import simulated_series
 from threadpoolctl import threadpool_info, threadpool_limits
 
 from app.core.errors import LagdeskError
-from app.jobs.executors import ExecutorChoice, map_unordered
+from app.jobs.analyze import run_analysis
+from app.jobs.executors import ExecutorChoice, local, map_unordered
 from app.jobs.executors.chunks import chunks
+from app.jobs.executors.local import IN_PROCESS_MAX_ITEMS
 from app.jobs.work import SeriesTask, identify_task
+from app.store.database import open_database
+from app.store.imports import import_portfolio
 
 REPO = Path(__file__).resolve().parents[2]
 WAIT_S = 60
 ORDER_ITEMS = 6
+POOLED_ITEMS = IN_PROCESS_MAX_ITEMS + 1  # the smallest job that starts a pool
 
 
 def blocks_until_last_item_ran(job: tuple[int, str]) -> int:
@@ -119,10 +125,41 @@ def test_pool_workers_run_blas_on_one_thread():
 def test_pool_started_from_a_thread_works_as_from_the_main_thread():
     # As an analysis started from the web page does: it runs in a thread of the server.
     found = []
-    runner = threading.Thread(target=lambda: found.extend(map_unordered(blas_threads, range(2), workers=2, chunk=1)))
+    runner = threading.Thread(target=lambda: found.extend(map_unordered(blas_threads, range(POOLED_ITEMS), workers=2, chunk=1)))
     runner.start()
     runner.join(WAIT_S)
-    assert len(found) == 2 and all(threads == 1 for pools in found for _, threads in pools), found
+    assert len(found) == POOLED_ITEMS and all(threads == 1 for pools in found for _, threads in pools), found
+
+
+def process_id(_: object) -> int:
+    return os.getpid()
+
+
+class NoPool:
+    def __init__(self, *args, **kwargs) -> None:
+        raise AssertionError("a small job started a process pool")
+
+
+def test_a_small_job_runs_in_this_process_without_starting_a_pool(monkeypatch):
+    monkeypatch.setattr(local, "ProcessPoolExecutor", NoPool)
+    assert list(map_unordered(process_id, range(IN_PROCESS_MAX_ITEMS), workers=2)) == [os.getpid()] * IN_PROCESS_MAX_ITEMS
+
+
+def test_a_job_larger_than_the_in_process_limit_uses_the_pool():
+    assert os.getpid() not in set(map_unordered(process_id, range(POOLED_ITEMS), workers=2, chunk=1))
+
+
+def test_analysing_one_series_starts_no_pool(monkeypatch, tmp_path):
+    values = simulated_series(1, (80, 80), seed=5)
+    csv = tmp_path / "one.csv"
+    csv.write_text("series_id,timestamp,value\n" + "".join(
+        f"{series_id},{t},{v!r}\n" for series_id, path in values.items() for t, v in enumerate(path)))
+    db_path = tmp_path / "one.db"
+    with closing(open_database(db_path)) as db:
+        import_portfolio(db, csv)
+    monkeypatch.setattr(local, "ProcessPoolExecutor", NoPool)
+    run = run_analysis(db_path, workers=2)
+    assert (run["state"], run["done"], run["failed"]) == ("finished", 1, 0)
 
 
 def test_executor_choice_rejects_unknown_executors_and_stray_schedulers():
@@ -159,7 +196,7 @@ def test_pool_workers_exit_when_their_parent_is_killed(tmp_path):
         from app.jobs.executors import map_unordered
         from test_pool import reports_pid_and_waits
         if __name__ == "__main__":
-            for _ in map_unordered(reports_pid_and_waits, [{str(tmp_path)!r}] * 2, workers=2, chunk=1):
+            for _ in map_unordered(reports_pid_and_waits, [{str(tmp_path)!r}] * {POOLED_ITEMS}, workers=2, chunk=1):
                 pass
     """)
     (tmp_path / "run_pool.py").write_text(script)

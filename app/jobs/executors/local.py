@@ -24,6 +24,7 @@ see their pipes close and exit too.
 
 from __future__ import annotations
 
+import itertools
 import multiprocessing
 import os
 import select
@@ -44,6 +45,12 @@ from app.jobs.executors.chunks import chunks, run_chunk
 PRELOADED_MODULES = ["app.jobs.preload"]
 PARENT_POLL_S = 1.0
 ORPHAN_EXIT_CODE = 1
+# A job of at most this many items runs in this process: the pool's start (its forkserver
+# importing the engine and running it once) costs more than two short series take. `lagdesk
+# identify` on demo series, 2 workers against this process, machine under load: one series
+# 7.2 s against 3.5 s, two 12.0 s against 4.7 s (four 4.6 s against 2.7 s, but one monthly
+# seasonal series takes about 9 s, so the pool pays from three of those).
+IN_PROCESS_MAX_ITEMS = 2
 
 
 def exit_with_parent(creator_pid: int) -> None:
@@ -102,8 +109,8 @@ def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], worker
     items : iterable
         Pulled lazily, ``chunk`` at a time.
     workers : int
-        Worker processes. With 1 or fewer the work runs in this process, BLAS on one thread,
-        and no pool is started.
+        Worker processes. With 1 or fewer, or for a job of at most :data:`IN_PROCESS_MAX_ITEMS`
+        items, the work runs in this process, BLAS on one thread, and no pool is started.
     chunk : int
         Items per task sent to a worker.
 
@@ -112,12 +119,14 @@ def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], worker
     At most ``2 * workers`` chunks are in flight, so a large portfolio is never held in the
     pool's queue all at once.
     """
-    if workers <= 1:
+    iterator = iter(items)
+    head = list(itertools.islice(iterator, IN_PROCESS_MAX_ITEMS + 1))
+    if workers <= 1 or len(head) <= IN_PROCESS_MAX_ITEMS:
         with threadpool_limits(limits=1):
-            for item in items:
+            for item in itertools.chain(head, iterator):
                 yield func(item)
         return
-    batches = chunks(items, chunk)
+    batches = chunks(itertools.chain(head, iterator), chunk)
     with ProcessPoolExecutor(max_workers=workers, mp_context=pool_context(), initializer=start_worker, initargs=(os.getpid(),)) as pool:
         pending: set[Future] = set()
 
