@@ -46,7 +46,7 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 
 import numpy as np
-from real_forecasts import REPO, fit_order, forecast_fit, holdout_length, inverse_box_cox, mase_scale, run_snaive
+from real_forecasts import REPO, fit_order, forecast_fit, inverse_box_cox, split
 from real_series import RealSeries, real_series
 from scipy.special import boxcox
 from threadpoolctl import threadpool_limits
@@ -88,16 +88,11 @@ def evaluate(entry: RealSeries) -> dict:
     from app.core.identify import identify_series
     from app.core.ranking import is_demoted
 
-    h = holdout_length(entry.period)
-    train = entry.values.iloc[:-h]
-    y = train.to_numpy(dtype=float)
-    actual = entry.values.iloc[-h:].to_numpy(dtype=float)
-    scale = mase_scale(y, entry.period)
-    snaive = run_snaive(y, entry.period, actual, scale)
-    found = identify_series(train, entry.name)
+    part = split(entry)
+    found = identify_series(part.train, entry.name)
     kind = found.transform.kind
     lam = None if kind == "none" else (0.0 if kind == "log" else found.transform.lam)
-    z = y if lam is None else boxcox(y, lam)
+    z = part.y if lam is None else boxcox(part.y, lam)
     ranked: list = []
     for fit in found.candidates:
         if len(ranked) < TOP and not is_demoted(fit) and all(fit.model != m for m, _ in ranked):
@@ -111,8 +106,8 @@ def evaluate(entry: RealSeries) -> dict:
         except (LagdeskError, np.linalg.LinAlgError, ValueError):
             check = None
         rows.append({"order": model.label(), "candidate": is_candidate,
-                     "holdout": _holdout_mase(z, model, lam, actual, scale), "check": check})
-    return {"name": entry.name, "freq": entry.frequency, "snaive": snaive.mase, "models": rows}
+                     "holdout": _holdout_mase(z, model, lam, part.actual, part.scale), "check": check})
+    return {"name": entry.name, "freq": entry.frequency, "snaive": part.snaive.mase, "models": rows}
 
 
 def _start() -> None:

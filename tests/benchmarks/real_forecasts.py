@@ -530,22 +530,39 @@ def run_stepwise(y: np.ndarray, m: int, actual: np.ndarray, scale: float, snaive
     return Outcome(found.fit.label(), mase, inside, cpu, None, details)
 
 
-def evaluate(entry: RealSeries) -> dict:
-    """All methods on one series: the per-series row of the JSON."""
-    started = time.perf_counter()
+@dataclass
+class Split:
+    """One series cut into its training part and its holdout, with the holdout's MASE scale and
+    the seasonal naive forecast scored on it."""
+
+    train: pd.Series
+    y: np.ndarray
+    actual: np.ndarray
+    scale: float
+    snaive: Outcome
+
+
+def split(entry: RealSeries) -> Split:
+    """The training part and the last season (:func:`holdout_length`) of ``entry``."""
     h = holdout_length(entry.period)
     train = entry.values.iloc[:-h]
     y = train.to_numpy(dtype=float)
     actual = entry.values.iloc[-h:].to_numpy(dtype=float)
     scale = mase_scale(y, entry.period)
-    snaive = run_snaive(y, entry.period, actual, scale)
+    return Split(train, y, actual, scale, run_snaive(y, entry.period, actual, scale))
+
+
+def evaluate(entry: RealSeries) -> dict:
+    """All methods on one series: the per-series row of the JSON."""
+    started = time.perf_counter()
+    part = split(entry)
     outcomes = {
-        "lagdesk": run_lagdesk(train, entry.name, actual, scale, snaive),
-        "stepwise": run_stepwise(y, entry.period, actual, scale, snaive),
-        "snaive": snaive,
+        "lagdesk": run_lagdesk(part.train, entry.name, part.actual, part.scale, part.snaive),
+        "stepwise": run_stepwise(part.y, entry.period, part.actual, part.scale, part.snaive),
+        "snaive": part.snaive,
     }
     return {"name": entry.name, "source": entry.source, "freq": entry.frequency, "m": entry.period,
-            "derivation": entry.derivation, "n": len(entry.values), "n_train": len(train), "h": h,
+            "derivation": entry.derivation, "n": len(entry.values), "n_train": len(part.train), "h": part.actual.size,
             "wall_seconds": round(time.perf_counter() - started, 2),
             **{method: outcome.to_dict() for method, outcome in outcomes.items()}}
 

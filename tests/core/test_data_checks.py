@@ -7,6 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from accuracy_batch import simulate
 from scipy.stats import median_abs_deviation, norm
 
 from app.core.demand import classify_demand
@@ -62,11 +63,7 @@ def test_demand_classes_from_a_hand_computed_example():
 
 
 def _ar1(rng, n, phi):
-    e = rng.normal(size=n + 50)
-    x = np.zeros(n + 50)
-    for t in range(1, n + 50):
-        x[t] = phi * x[t - 1] + e[t]
-    return x[50:]
+    return simulate((1, 0, 0), [phi], [], n, rng) - 10.0
 
 
 def test_engine_does_not_call_a_spiked_series_firm():

@@ -14,6 +14,7 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
+from accuracy_batch import simulate
 from statsmodels.tsa.stattools import kpss
 
 from app.core.identify import identify_series
@@ -66,11 +67,7 @@ def test_regressors_span_the_seasonal_means():
 
 
 def _ar1(rng, n, phi):
-    e = rng.normal(size=n + 100)
-    x = np.zeros(n + 100)
-    for t in range(1, n + 100):
-        x[t] = phi * x[t - 1] + e[t]
-    return x[100:]
+    return simulate((1, 0, 0), [phi], [], n, rng) - 10.0
 
 
 def _seasonal_walk(rng, n, s):
