@@ -76,7 +76,7 @@ def test_status_loads_no_engine_library(portfolio_db, output):
     assert engine_libraries(imported_modules("-m", "app.cli", "status", "--db", portfolio_db, *output)) == []
 
 
-@pytest.mark.xfail(strict=True, reason="app.review.export imports app.jobs.order_fits and app.store.series, which load the engine")
+@pytest.mark.xfail(strict=True, reason="app.review.export imports app.jobs.order_fits, which loads the engine")
 def test_export_loads_no_engine_library(portfolio_db, tmp_path):
     modules = imported_modules("-m", "app.cli", "export", "--db", portfolio_db, "-o", str(tmp_path / "orders.json"))
     assert engine_libraries(modules) == []

@@ -72,7 +72,7 @@ import numpy as np
 
 from app.core.fitting import CandidateFit
 from app.core.ranking import is_demoted, margin_to_rival, strongest_nesting_rival
-from app.core.vocabulary import Confidence, Flag
+from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, Confidence
 
 # Accuracy batch (tests/core/accuracy_batch.py), tuning seed: 92% of firm right (margins 2 and 4: 86%, 90%); kept.
 FIRM_MARGIN = 6.0
@@ -87,8 +87,6 @@ DICKEY_FULLER_BIAS = 14.1
 # The near unit root; with DICKEY_FULLER_BIAS it sets MIN_DIFFERENCED_LENGTH = 282; not tuned.
 STATIONARY_ALTERNATIVE = 0.95
 MIN_DIFFERENCED_LENGTH = math.ceil(DICKEY_FULLER_BIAS / (1.0 - STATIONARY_ALTERNATIVE))
-WEAK_FLAGS = {Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION}
-NOT_FIRM_FLAGS = {Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING, Flag.TREND_STATIONARY, Flag.FIXED_SEASONALITY}
 _TREND_WORDS = {"n": "", "c": " with a mean", "t": " with a drift", "ct": " with a mean and a linear trend"}
 
 

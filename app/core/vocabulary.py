@@ -40,6 +40,18 @@ class Flag(StrEnum):
     INTERMITTENT_DEMAND = "intermittent_demand"
 
 
+WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
+"""Flags that make a suggestion ``weak`` (:mod:`app.core.confidence`)."""
+
+NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING, Flag.TREND_STATIONARY,
+                            Flag.FIXED_SEASONALITY})
+"""Flags that keep a suggestion from ``firm``, their reason given as the flag."""
+
+WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND})
+"""Flags that keep a suggestion from ``firm`` too, their reason written out by the check that
+raised them (where, how large, what class)."""
+
+
 class VerdictStatus(StrEnum):
     """The review state of a series. ``recheck`` is set by Lagdesk when new data break a decided
     order; every other state is a reviewer's."""

@@ -12,9 +12,8 @@ from collections.abc import Iterable
 import pandas as pd
 import sqlite_utils
 
-from app.core.confidence import NOT_FIRM_FLAGS, WEAK_FLAGS
 from app.core.errors import LagdeskError
-from app.core.vocabulary import Confidence, Flag
+from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL
 from app.store.timestamps import index_from_keys
 from app.store.verdicts import STATUSES, verdict_counts
@@ -33,7 +32,7 @@ _FROM = (
 # (gaps filled, too few seasons, transformed), which say how the series was read, not a doubt.
 FLAG_SEVERITY: dict[str, int] = {
     str(flag): 3 if flag in WEAK_FLAGS
-    else 2 if flag in NOT_FIRM_FLAGS | {Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND}
+    else 2 if flag in NOT_FIRM_FLAGS | WORDED_DOUBT_FLAGS
     else 1
     for flag in Flag
 }
