@@ -10,115 +10,15 @@ and analysed by the real store and engine.
 from __future__ import annotations
 
 import json
-import os
-import socket
-import threading
 from pathlib import Path
 from urllib.parse import quote, urlsplit
 
-import httpx
 import pytest
-import uvicorn
-from web_portfolio import build_database, demo_subset_csv
-
-from app.config import Settings
-from app.web.main import create_app
+from browser_kit import ARTIFACTS, DEMO_IDS, api, series_url, set_reviewer
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = Path("/usr/bin/chromium")
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--no-first-run"]
-ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
-DEMO_IDS = [
-    "polarquay/freezer-3/temp-c",
-    "polarquay/freezer-5/temp-c",
-    "hearthloaf/riverside/sourdough",
-    "hearthloaf/chain/sugar-kg",
-    "hearthloaf/station-row/coffee-cake",
-    "polarquay/chiller-4/temp-c",
-]
 REVIEWED = "hearthloaf/chain/sugar-kg"  # monthly, on the log scale: seasonal lags marked
-
-
-def _playwright():
-    """The Playwright entry point, or skip/fail (under CI) when the browser cannot run."""
-    problem = None
-    try:
-        from playwright.sync_api import sync_playwright
-    except ImportError:
-        problem = "Playwright for Python is not installed (pip install playwright)"
-    if problem is None and not CHROMIUM.exists():
-        problem = f"no browser at {CHROMIUM} (apt-get install -y chromium)"
-    if problem:
-        if os.environ.get("CI"):
-            pytest.fail(f"browser tests cannot run under CI: {problem}")
-        pytest.skip(f"browser tests skipped: {problem}")
-    return sync_playwright
-
-
-@pytest.fixture(scope="module")
-def demo_db(tmp_path_factory) -> Path:
-    folder = tmp_path_factory.mktemp("browser")
-    build_database(folder / "demo.db", demo_subset_csv(folder / "demo.csv", DEMO_IDS))
-    return folder / "demo.db"
-
-
-@pytest.fixture(scope="module")
-def live_server(demo_db):
-    """The dashboard served by uvicorn in a thread on a free loopback port; yields its base URL."""
-    sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
-    sock.bind(("127.0.0.1", 0))
-    port = sock.getsockname()[1]
-    settings = Settings(db_path=demo_db, port=port)
-    server = uvicorn.Server(uvicorn.Config(create_app(settings), log_level="warning"))
-    thread = threading.Thread(target=server.run, kwargs={"sockets": [sock]}, daemon=True)
-    thread.start()
-    base = f"http://127.0.0.1:{port}"
-    for _ in range(200):
-        if server.started:
-            break
-        threading.Event().wait(0.05)
-    yield base
-    server.should_exit = True
-    thread.join()
-    sock.close()
-
-
-@pytest.fixture(scope="module")
-def browser():
-    sync_playwright = _playwright()
-    with sync_playwright() as p:
-        chromium = p.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)
-        yield chromium
-        chromium.close()
-
-
-@pytest.fixture
-def page(browser, live_server):
-    """A fresh page that records every request it makes and every script error."""
-    context = browser.new_context(viewport={"width": 1440, "height": 900})
-    tab = context.new_page()
-    tab.requests, tab.errors = [], []
-    tab.on("request", lambda request: tab.requests.append(request.url))
-    tab.on("pageerror", lambda error: tab.errors.append(str(error)))
-    yield tab
-    context.close()
-
-
-def api(live_server: str, path: str) -> dict:
-    return httpx.get(live_server + path).json()
-
-
-def series_url(live_server: str, series_id: str) -> str:
-    return f"{live_server}/series/{quote(series_id, safe='/')}"
-
-
-def set_reviewer(page, live_server: str, name: str = "Browser Test") -> None:
-    page.goto(live_server + "/")
-    page.fill("#reviewer-name", name)
-    page.click(".whoami button")
-    page.wait_for_load_state()
 
 
 def test_queue_loads_and_filters(page, live_server):
