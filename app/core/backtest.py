@@ -25,6 +25,11 @@ The check answers "does this order forecast well?" before a reviewer approves it
   against the simplest benchmark on the same origins.
 * **Coverage**: the share of the evaluated observations that fall inside the 80% and 95%
   intervals; a well-specified model comes close to the nominal levels.
+* **Missing points** (NaN) stay missing: a training window with gaps is fitted by the exact
+  likelihood, which skips them, and the Kalman filter forecasts from the observed points; a
+  missing actual value is not scored (errors, MASE and coverage average over the points
+  present); the naive scale uses the pairs ``Y_t, Y_{t-m}`` present, and the seasonal naive
+  forecast repeats the latest observed value of the same season.
 
 References
 ----------
@@ -48,13 +53,13 @@ import pandas as pd
 from scipy.stats import norm
 from statsmodels.tsa.arima.model import ARIMA
 
+from app.core.defaults import DEFAULT_ORIGINS
 from app.core.errors import OrderError
 from app.core.fitting import fit_candidate
 from app.core.order import Order, validate_order
 from app.core.prepare import RECOMMENDED_POINTS, PreparedSeries
 from app.core.transform import TransformChoice, apply_transform, invert_transform
 
-DEFAULT_ORIGINS = 5
 NONSEASONAL_HORIZON = 8
 INTERVAL_LEVELS = (0.80, 0.95)
 
@@ -82,7 +87,7 @@ def seasonal_naive_scale(training: np.ndarray, m: int = 1) -> float:
     values = np.asarray(training, dtype=float)
     if m < 1 or values.size <= m:
         raise ValueError(f"the seasonal naive scale needs more than m = {m} training values; got {values.size}")
-    return float(np.mean(np.abs(values[m:] - values[:-m])))
+    return _mean_present(np.abs(values[m:] - values[:-m]))
 
 
 def mase(actual: np.ndarray, forecast: np.ndarray, training: np.ndarray, m: int = 1) -> float:
@@ -99,14 +104,23 @@ def mase(actual: np.ndarray, forecast: np.ndarray, training: np.ndarray, m: int 
     """
     errors = np.abs(np.asarray(actual, dtype=float) - np.asarray(forecast, dtype=float))
     scale = seasonal_naive_scale(training, m)
-    return float(np.mean(errors) / scale) if scale > 0 else math.inf
+    return _mean_present(errors) / scale if scale > 0 else math.inf
 
 
 def seasonal_naive_forecast(training: np.ndarray, steps: int, m: int = 1) -> np.ndarray:
-    """``Y_hat_{T+k} = Y_{T+k-m*ceil(k/m)}``: the last observed season repeated (``m = 1``: the last value)."""
+    """``Y_hat_{T+k} = Y_{T+k-m*ceil(k/m)}``: the last observed season repeated (``m = 1``: the last value).
+
+    Where that value is missing, the latest observed value ``m``, ``2m``, ... steps before it
+    stands in (NaN when its season has no observed value at all)."""
     values = np.asarray(training, dtype=float)
     k = np.arange(1, steps + 1)
-    return values[values.size - 1 + k - m * ((k - 1) // m + 1)]
+    positions = values.size - 1 + k - m * ((k - 1) // m + 1)
+    forecast = values[positions]
+    for i in np.flatnonzero(np.isnan(forecast)):
+        earlier = values[positions[i]::-m]
+        observed = earlier[~np.isnan(earlier)]
+        forecast[i] = observed[0] if observed.size else np.nan
+    return forecast
 
 
 @dataclass
@@ -206,42 +220,46 @@ class Backtest:
     notes: list[str] = field(default_factory=list)
 
     def _scaled(self, which: str) -> np.ndarray:
-        """Absolute scaled errors, one row per origin, one column per step."""
+        """Absolute scaled errors, one row per origin, one column per step (NaN where the actual
+        value is missing)."""
         return np.array([
             np.abs(o.actual - (o.forecast.mean if which == "model" else o.naive)) / o.scale for o in self.origins
         ])
 
     @property
     def mase(self) -> float:
-        return float(np.mean(self._scaled("model")))
+        return _mean_present(self._scaled("model"))
 
     @property
     def naive_mase(self) -> float:
-        return float(np.mean(self._scaled("naive")))
+        return _mean_present(self._scaled("naive"))
 
     def _inside(self, level: float) -> np.ndarray:
+        """1.0 inside the ``level`` interval, 0.0 outside, NaN where the actual value is missing."""
         return np.array([
-            (o.forecast.intervals[level][0] <= o.actual) & (o.actual <= o.forecast.intervals[level][1])
+            np.where(np.isnan(o.actual), np.nan,
+                     (o.forecast.intervals[level][0] <= o.actual) & (o.actual <= o.forecast.intervals[level][1]))
             for o in self.origins
         ])
 
     def coverage(self, level: float) -> float:
         """Share of the evaluated observations inside the ``level`` prediction interval."""
-        return float(np.mean(self._inside(level)))
+        return _mean_present(self._inside(level))
 
     def by_horizon(self) -> list[dict]:
-        """Per step ahead: how many forecasts, MAE, RMSE, MASE and interval coverage."""
+        """Per step ahead: how many forecasts were scored (actual value present), MAE, RMSE,
+        MASE and interval coverage."""
         errors = np.array([o.actual - o.forecast.mean for o in self.origins])
         scaled = self._scaled("model")
         inside = {level: self._inside(level) for level in self.levels}
         return [
             {
                 "step": step + 1,
-                "count": int(errors.shape[0]),
-                "mae": float(np.mean(np.abs(errors[:, step]))),
-                "rmse": float(np.sqrt(np.mean(errors[:, step] ** 2))),
-                "mase": float(np.mean(scaled[:, step])),
-                **{f"coverage_{_percent(level)}": float(np.mean(inside[level][:, step])) for level in self.levels},
+                "count": int(np.count_nonzero(~np.isnan(errors[:, step]))),
+                "mae": _mean_present(np.abs(errors[:, step])),
+                "rmse": math.sqrt(_mean_present(errors[:, step] ** 2)),
+                "mase": _mean_present(scaled[:, step]),
+                **{f"coverage_{_percent(level)}": _mean_present(inside[level][:, step]) for level in self.levels},
             }
             for step in range(self.horizon)
         ]
@@ -359,6 +377,13 @@ def future_index(prepared: PreparedSeries, steps: int) -> pd.Index:
         return pd.date_range(index[-1], periods=steps + 1, freq=prepared.freq)[1:]
     step = int(index[1] - index[0]) if index.size > 1 else 1
     return pd.Index(int(index[-1]) + step * np.arange(1, steps + 1))
+
+
+def _mean_present(values: np.ndarray) -> float:
+    """The mean of the values that are not NaN (NaN when none is)."""
+    present = np.asarray(values, dtype=float)
+    present = present[~np.isnan(present)]
+    return float(present.mean()) if present.size else math.nan
 
 
 def _stamps(index: pd.Index) -> list:

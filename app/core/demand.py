@@ -64,7 +64,8 @@ def classify_demand(values: np.ndarray) -> DemandPattern | None:
     Parameters
     ----------
     values : ndarray
-        The series on its regular grid (finite values).
+        The series on its regular grid; missing points (NaN) are left out, so ADI counts the
+        observed periods per period with a demand.
 
     Returns
     -------
@@ -77,6 +78,7 @@ def classify_demand(values: np.ndarray) -> DemandPattern | None:
     .. [1] Syntetos, Boylan & Croston (2005), *JORS* 56, 495-503 (cut-offs 1.32 and 0.49).
     """
     y = np.asarray(values, dtype=float)
+    y = y[~np.isnan(y)]
     if y.size == 0 or np.any(y < 0) or not np.any(y == 0):
         return None
     sizes = y[y > 0]

@@ -22,6 +22,11 @@ residuals, the residual ACF, and root checks.
 * Residual ACF: drawn and judged against the white-noise band ``+-1.96/sqrt(n)`` at every lag,
   not Bartlett's widening band: the residuals of an adequate model are white noise, and that is
   the hypothesis they are checked against.
+* Missing points: the differences that reach a missing point are missing (:func:`difference`),
+  the exact likelihood skips them and their residuals are NaN. The residual ACF and the
+  Ljung-Box test then use the pairs of residuals present (:mod:`app.core.correlogram`), with
+  ``n`` at lag k the pairs present on the complete-data scale, ``n_k``; ``nobs`` and the
+  criteria count the observed residuals.
 * Roots, factor by factor: the model is ``phi(B) Phi(B^s) w_t = theta(B) Theta(B^s) e_t``, and
   each factor is judged on its own scale, ``phi`` and ``theta`` as polynomials in ``z = B``,
   ``Phi`` and ``Theta`` as polynomials in ``z = B^s``. A root of any factor with modulus below
@@ -60,7 +65,7 @@ import numpy as np
 from scipy.special import chdtrc
 
 from app.core.analysis import Candidate, Correlation, Parameter
-from app.core.correlogram import DEFAULT_ALPHA, Correlogram, autocorrelations, correlogram, lag_count, z_value
+from app.core.correlogram import DEFAULT_ALPHA, Correlogram, autocorrelations, correlogram, effective_sizes, lag_count
 from app.core.likelihood import ArmaFit, ArmaScreen, ArmaSpec, fit_arma, is_nested_in, nested_start, screen_arma
 from app.core.order import Order
 from app.core.vocabulary import Flag
@@ -155,7 +160,12 @@ def ljung_box_lags(n: int, model: Order) -> int:
 
 
 def difference(y: np.ndarray, model: Order) -> np.ndarray:
-    """The series (or the columns of an array) after the model's seasonal and ordinary differences."""
+    """The series (or the columns of an array) after the model's seasonal and ordinary differences.
+
+    A difference that reaches a missing point (NaN) is missing: nothing is invented across a
+    gap. A missing ``y_t`` leaves ``w_t`` and ``w_{t+1}`` missing after one difference, and
+    ``w_t``, ``w_{t+s}`` after a seasonal one; the likelihood then skips them.
+    """
     _, d, _ = model.order
     _, sd, _, s = model.seasonal_order
     w = np.asarray(y, dtype=float)
@@ -225,11 +235,29 @@ def _nested_starts(model: Order, fitted: Iterable[CandidateFit]) -> list[np.ndar
 def screen_candidate(y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = ()) -> ScreenedCandidate:
     """Look at ``model`` cheaply: a few optimiser steps from the best of its starts (the starts
     of :func:`fit_candidate`, nested ones from ``fitted`` included)."""
+    w, names, design, spec = _model_data(y, model)
+    screen = screen_arma(w, spec, design, _nested_starts(model, fitted))
+    return ScreenedCandidate(screen, len(names) + spec.n_coefficients + 1, int(np.count_nonzero(~np.isnan(w))))
+
+
+def _model_data(y: np.ndarray, model: Order) -> tuple[np.ndarray, list[str], np.ndarray | None, ArmaSpec]:
+    """The differenced series, the names and columns of the deterministic terms, and the ARMA
+    orders of ``model`` on ``y``.
+
+    Raises
+    ------
+    ValueError
+        When too few differences are observed to estimate the model's parameters (gaps leave
+        every difference that reaches them missing).
+    """
     w = difference(y, model)
     names, design = trend_design(np.asarray(y).size, model)
     spec = model.arma_spec()
-    screen = screen_arma(w, spec, design, _nested_starts(model, fitted))
-    return ScreenedCandidate(screen, len(names) + spec.n_coefficients + 1, w.size)
+    observed, needed = int(np.count_nonzero(~np.isnan(w))), len(names) + spec.n_coefficients + 3
+    if observed < needed:
+        raise ValueError(f"only {observed} of the {w.size} values after differencing are observed (gaps); "
+                         f"{model.label()} needs at least {needed}")
+    return w, names, design, spec
 
 
 def fit_candidate(
@@ -249,15 +277,14 @@ def fit_candidate(
     screened : ScreenedCandidate, optional
         The screen of this order (:func:`screen_candidate`); the fit continues from it.
     """
-    w = difference(y, model)
-    names, design = trend_design(np.asarray(y).size, model)
-    spec = model.arma_spec()
+    w, names, design, spec = _model_data(y, model)
     estimate = fit_arma(w, spec, design, _nested_starts(model, fitted), screened.screen if screened else None)
     resid = estimate.residuals
-    h = ljung_box_lags(resid.size, model)
+    n = int(np.count_nonzero(~np.isnan(resid)))
+    h = ljung_box_lags(n, model)
     flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
     flags += root_flags(*factor_roots(spec, estimate.coefficients))
-    nlags = lag_count(resid.size, model.seasonal_order[3] or None)
+    nlags = min(lag_count(n, model.seasonal_order[3] or None), resid.size - 1)
     se = estimate.standard_errors
     values = np.r_[estimate.beta, estimate.coefficients]
     errors = np.r_[se[spec.n_coefficients:], se[:spec.n_coefficients]]
@@ -266,7 +293,7 @@ def fit_candidate(
         for name, value, error in zip(names + spec.names(), values, errors)
     ]
     params.append(Parameter("sigma2", estimate.sigma2, None))
-    k, n, loglik = len(params), resid.size, estimate.loglik
+    k, loglik = len(params), estimate.loglik
     criteria = information_criteria(loglik, k, n)
     return CandidateFit(
         model=model, loglik=loglik, aic=criteria["aic"], aicc=criteria["aicc"], bic=criteria["bic"], hqic=criteria["hqic"], nobs=n,
@@ -294,15 +321,16 @@ def residual_correlogram(resid: np.ndarray, nlags: int, alpha: float = DEFAULT_A
     Returns
     -------
     Correlogram
-        With ``acf_band`` and ``pacf_band`` both ``z / sqrt(n)``.
+        With ``acf_band`` and ``pacf_band`` both ``z / sqrt(n)``; with missing residuals (NaN)
+        ``n`` at lag k is :func:`app.core.correlogram.effective_sizes`, from the pairs present.
 
     References
     ----------
     .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
        Analysis: Forecasting and Control*, 5th ed., Wiley, §8.2.1 (from memory).
     """
-    values = np.asarray(resid, dtype=float)
-    return replace(correlogram(values, nlags, alpha), acf_band=np.full(nlags, z_value(alpha) / math.sqrt(values.size)))
+    cg = correlogram(np.asarray(resid, dtype=float), nlags, alpha)
+    return replace(cg, acf_band=cg.pacf_band.copy())  # the PACF's band is the white-noise one, z / sqrt(n)
 
 
 def factor_polynomials(spec: ArmaSpec, coefficients: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -357,12 +385,16 @@ def _roots(polynomial: np.ndarray) -> np.ndarray:
 
 def _ljung_box_p(resid: np.ndarray, lags: int, model_df: int) -> float | None:
     """p-value of ``Q = n (n + 2) sum_{k<=h} r_k^2 / (n - k)`` against chi2(h - model_df)
-    (Ljung & Box 1978), ``r_k`` the sample autocorrelations of the residuals."""
+    (Ljung & Box 1978), ``r_k`` the sample autocorrelations of the residuals.
+
+    With missing residuals ``r_k`` is the pairwise ACF and ``n`` at lag k its ``n_k``
+    (:func:`app.core.correlogram.effective_sizes`): ``Q = sum n_k (n_k + 2) r_k^2 / (n_k - k)``,
+    the usual statistic on complete residuals."""
     if lags >= resid.size or lags <= model_df:
         return None
-    n = resid.size
+    n = effective_sizes(resid, lags)
     r = autocorrelations(resid, lags)[1:]
-    statistic = n * (n + 2) * float(np.sum(r**2 / (n - np.arange(1, lags + 1))))
+    statistic = float(np.sum(n * (n + 2) * r**2 / np.maximum(n - np.arange(1, lags + 1), 1.0)))
     return float(chdtrc(lags - model_df, statistic))
 
 

@@ -19,6 +19,10 @@ evaluations rather than the bookkeeping around them.
   the columns go through the same filter and their coefficients are the generalised-least-
   squares ones (Harvey 1989, §3.4.2; Kohn & Ansley 1985). The log-likelihood left to maximise is
   ``-n/2 (log 2 pi + 1 + log sigma2_hat) - 1/2 sum log F_t``.
+* Missing points: a NaN in ``w`` is a missing observation. The filter skips its measurement
+  update, so the state and its covariance are carried forward by the transition alone; the
+  likelihood sums over the observed points only and ``n`` above is their number (Jones 1980;
+  Durbin & Koopman 2012, §4.10). The residual at a missing point is NaN.
 * Parameters: each polynomial is written through its partial autocorrelations, mapped from the
   real line by ``x / sqrt(1 + x^2)`` and turned into coefficients by the Durbin-Levinson
   recursion (Barndorff-Nielsen & Schou 1973; Monahan 1984; Jones 1980), so every point the
@@ -43,7 +47,8 @@ References
    exact maximum likelihood estimation of autoregressive-moving average models by means of
    Kalman filtering. *Applied Statistics* 29, 311-322.
 .. [3] Durbin, J. & Koopman, S.J. (2012). *Time Series Analysis by State Space Methods*, 2nd
-   ed. Oxford University Press, §3.4 and §4.3.
+   ed. Oxford University Press, §3.4, §4.3 and §4.10 (missing observations; that section
+   number from memory).
 .. [4] Anderson, B.D.O. & Moore, J.B. (1979). *Optimal Filtering*. Prentice-Hall, §6.7.
 .. [5] Monahan, J.F. (1984). A note on enforcing stationarity in autoregressive-moving average
    models. *Biometrika* 71, 403-404.
@@ -68,6 +73,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from app.core.numba_cache import njit
+from app.core.prepare import interpolate_gaps
 
 LOG_2PI = math.log(2.0 * math.pi)
 DOUBLING_STEPS = 64
@@ -126,7 +132,8 @@ class ArmaFit:
     ``coefficients`` follow :meth:`ArmaSpec.names`; ``beta`` are the regression coefficients
     of the columns of the design (the mean, a trend slope). ``standard_errors`` cover the
     coefficients and then ``beta``; NaN where the Hessian is not negative definite.
-    ``residuals`` are the one-step prediction errors ``w_t - E(w_t | w_1..w_{t-1})``.
+    ``residuals`` are the one-step prediction errors ``w_t - E(w_t | w_1..w_{t-1})``, NaN where
+    ``w_t`` is missing; ``sigma2`` is profiled over the observed points.
     ``unconstrained`` is the optimum in the optimiser's coordinates, a start for a larger order
     (:func:`nested_start`).
     """
@@ -211,10 +218,15 @@ def _stationary_covariance(ar, rr):
 def _filter(w, x, ar, ma, innovations):
     """Run the Kalman filter over ``w`` and, with the same gains, over each column of ``x``.
 
-    Returns ``(S_ww, S_xw, S_xx, sum log F)``, the innovations' weighted cross products
-    ``sum v v' / F``; with ``innovations`` of ``n`` columns it also stores the one-step
-    prediction errors of ``w`` (row 0) and of the columns of ``x`` (rows 1..). ``S_ww`` is
-    negative when the filter broke down.
+    Returns ``(S_ww, S_xw, S_xx, sum log F, n)``, the innovations' weighted cross products
+    ``sum v v' / F`` over the ``n`` observed points; with ``innovations`` of ``len(w)`` columns
+    it also stores the one-step prediction errors of ``w`` (row 0) and of the columns of ``x``
+    (rows 1..). ``S_ww`` is negative when the filter broke down.
+
+    A missing ``w_t`` (NaN) has no measurement update (Jones 1980; Durbin & Koopman 2012,
+    §4.10): ``a_{t+1} = T a_t``, ``P_{t+1} = T P_t T' + R R'``; it adds nothing to the sums or
+    to ``log F`` and its innovation is NaN. The regression columns skip the same rows. The
+    steady-state shortcut is left at a gap and taken again once ``F_t`` settles after it.
     """
     n, k = x.shape
     r = max(ar.size, ma.size + 1)
@@ -235,23 +247,37 @@ def _filter(w, x, ar, ma, innovations):
     steady = False
     calm = 0
     f = 1.0
+    observed = 0
     keep = innovations.shape[1] == n
     for t in range(n):
-        if not steady:
-            f = p[0, 0]
-            if not f > 0.0:
-                return -1.0, np.zeros(k), np.zeros((k, k)), 0.0
+        missing = math.isnan(w[t])
+        if missing:
+            # No update: the prediction carries on from a_t and P_t alone.
+            steady = False
+            calm = 0
+            for c in range(k + 1):
+                v[c] = 0.0
+                if keep:
+                    innovations[c, t] = np.nan
             for i in range(r):
-                gain[i] = p[i, 0] / f
-        v[0] = w[t] - a[0, 0]
-        for c in range(k):
-            v[c + 1] = x[t, c] - a[0, c + 1]
-        for c in range(k + 1):
-            if keep:
-                innovations[c, t] = v[c]
-            for e in range(k + 1):
-                cross[c, e] += v[c] * v[e] / f
-        log_f += math.log(f)
+                gain[i] = 0.0
+        else:
+            if not steady:
+                f = p[0, 0]
+                if not f > 0.0:
+                    return -1.0, np.zeros(k), np.zeros((k, k)), 0.0, 0
+                for i in range(r):
+                    gain[i] = p[i, 0] / f
+            v[0] = w[t] - a[0, 0]
+            for c in range(k):
+                v[c + 1] = x[t, c] - a[0, c + 1]
+            for c in range(k + 1):
+                if keep:
+                    innovations[c, t] = v[c]
+                for e in range(k + 1):
+                    cross[c, e] += v[c] * v[e] / f
+            log_f += math.log(f)
+            observed += 1
         # a_{t+1} = T (a_t + K v_t): T shifts the state up and adds coef * its first element.
         for c in range(k + 1):
             first = a[0, c] + gain[0] * v[c]
@@ -260,10 +286,11 @@ def _filter(w, x, ar, ma, innovations):
             a[r - 1, c] = coef[r - 1] * first
         if steady:
             continue
-        # P_{t+1} = T (P - P e1 e1' P / F) T' + R R', using the shape of T: O(r^2) per step.
+        # P_{t+1} = T (P - P e1 e1' P / F) T' + R R' (no P e1 e1' P / F term at a missing point),
+        # using the shape of T: O(r^2) per step.
         for i in range(r):
             for j in range(r):
-                m[i, j] = p[i, j] - p[i, 0] * p[0, j] / f
+                m[i, j] = p[i, j] if missing else p[i, j] - p[i, 0] * p[0, j] / f
         for i in range(r):
             for j in range(r):
                 below_i = m[i + 1, j] if i + 1 < r else 0.0
@@ -276,10 +303,11 @@ def _filter(w, x, ar, ma, innovations):
         # state: gain and F stay fixed. One calm step is not enough: with a seasonal MA part, F
         # can stand still within a season and move again at the seasonal lag, and stopping
         # there left the likelihood with small jumps that upset the optimiser.
-        calm = calm + 1 if abs(m[0, 0] - f) < STEADY_STATE_TOLERANCE else 0
-        steady = calm >= r
+        if not missing:
+            calm = calm + 1 if abs(m[0, 0] - f) < STEADY_STATE_TOLERANCE else 0
+            steady = calm >= r
         p[:, :] = m
-    return cross[0, 0], cross[1:, 0].copy(), cross[1:, 1:].copy(), log_f
+    return cross[0, 0], cross[1:, 0].copy(), cross[1:, 1:].copy(), log_f, observed
 
 
 @njit(cache=True)
@@ -293,13 +321,13 @@ def _concentrated(ssr, log_f, n):
 def _profile_loglik(u, w, x, p, q, big_p, big_q, s):
     """The log-likelihood with the variance and the regression coefficients profiled out."""
     ar, ma = _polynomials(u, p, q, big_p, big_q, s)
-    s_ww, s_xw, s_xx, log_f = _filter(w, x, ar, ma, np.zeros((0, 0)))
+    s_ww, s_xw, s_xx, log_f, observed = _filter(w, x, ar, ma, np.zeros((0, 0)))
     if s_ww < 0.0:
         return -np.inf
     ssr = s_ww
     if x.shape[1]:
         ssr -= s_xw @ np.linalg.solve(s_xx, s_xw)
-    return _concentrated(ssr, log_f, w.size)
+    return _concentrated(ssr, log_f, observed)
 
 
 @njit(cache=True)
@@ -407,8 +435,8 @@ def _coefficient_loglik(phi, theta, big_phi, big_theta, s, beta, w, x):
     coefficients ``beta``; -inf when the filter breaks down."""
     ar = _expand(phi, big_phi, s, -1.0)
     ma = _expand(theta, big_theta, s, 1.0)
-    s_ww, _, _, log_f = _filter(w - x @ beta, np.zeros((w.size, 0)), ar, ma, np.zeros((0, 0)))
-    return _concentrated(s_ww, log_f, w.size)
+    s_ww, _, _, log_f, observed = _filter(w - x @ beta, np.zeros((w.size, 0)), ar, ma, np.zeros((0, 0)))
+    return _concentrated(s_ww, log_f, observed)
 
 
 # --- fitting ---------------------------------------------------------------------------------
@@ -571,7 +599,12 @@ def _hannan_rissanen_start(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, long_or
     """Start values by two regressions: a long autoregression estimates the innovations, then
     ``w`` is regressed on its own lags and the innovations' lags (Hannan & Rissanen 1982). A
     seasonal part is read at the seasonal lags of the same regression, additively. The series
-    is first freed of the regression columns by least squares."""
+    is first freed of the regression columns by least squares.
+
+    The regressions need every point: a series with missing points (NaN) is filled by linear
+    interpolation first. That series serves only as a start; the likelihood maximised from it
+    is the exact one, with the points missing."""
+    w = interpolate_gaps(w)
     z = w - x @ np.linalg.lstsq(x, w, rcond=None)[0] if x.shape[1] else w
     n = z.size
     reach = max(spec.p + spec.s * spec.P, spec.q + spec.s * spec.Q)
@@ -601,12 +634,12 @@ def _finished(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, u: np.ndarray, logli
     big_phi, big_theta = _pacf_to_coefficients(big_phi_u), -_pacf_to_coefficients(big_theta_u)
     ar, ma = _expand(phi, big_phi, spec.s, -1.0), _expand(theta, big_theta, spec.s, 1.0)
     innovations = np.zeros((1 + x.shape[1], w.size))
-    s_ww, s_xw, s_xx, _ = _filter(w, x, ar, ma, innovations)
+    s_ww, s_xw, s_xx, _, observed = _filter(w, x, ar, ma, innovations)
     beta = np.linalg.solve(s_xx, s_xw) if x.shape[1] else np.zeros(0)
     coefficients = np.concatenate([phi, theta, big_phi, big_theta])
     residuals = innovations[0] - beta @ innovations[1:]
     return ArmaFit(
-        spec=spec, coefficients=coefficients, beta=beta, sigma2=float((s_ww - s_xw @ beta) / w.size),
+        spec=spec, coefficients=coefficients, beta=beta, sigma2=float((s_ww - s_xw @ beta) / observed),
         loglik=float(loglik), standard_errors=_standard_errors(w, x, spec, coefficients, beta),
         residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
         converged=converged, unconstrained=u,

@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.stats import norm
 
-from app.core.correlogram import DEFAULT_ALPHA, Correlogram
+from app.core.correlogram import DEFAULT_ALPHA, Correlogram, autocorrelations
 
 LOW_LAGS = 2
 EACF_THRESHOLD_Z = 2.0
@@ -161,13 +161,17 @@ def eacf_table(x: np.ndarray, max_ar: int = 5, max_ma: int = 5) -> tuple[np.ndar
     lags and, at lag ``h``, the residuals of iteration ``j - h``). For an ARMA(p, q) the cells
     with ``k >= p`` and ``j - q >= k - p`` vanish: a triangle of zeros with vertex ``(p, q)``.
 
+    With missing points (NaN) each regression uses the rows that are complete, a filtered value
+    that needs a missing one is missing, the autocorrelations are those of the pairs present
+    (:func:`app.core.correlogram.autocorrelations`) and ``n`` counts the observed points.
+
     Returns
     -------
     values : ndarray, shape (max_ar + 1, max_ma + 1)
     significant : ndarray of bool, same shape; ``|r| > 2 / sqrt(n - k - j)`` (Tsay & Tiao 1984)
     """
-    z = np.asarray(x, dtype=float) - np.mean(x)
-    n = z.size
+    z = np.asarray(x, dtype=float) - np.nanmean(x)
+    n = int(np.count_nonzero(~np.isnan(z)))
     values = np.zeros((max_ar + 1, max_ma + 1))
     significant = np.zeros_like(values, dtype=bool)
     for k in range(max_ar + 1):
@@ -191,7 +195,8 @@ def _iterated_ar_filter(z: np.ndarray, k: int, residual_history: list[np.ndarray
     cols += [residual_history[j - h][start - h : n - h] for h in range(1, j + 1)]
     design = np.column_stack(cols)
     target = z[start:]
-    coef, *_ = np.linalg.lstsq(design, target, rcond=None)
+    complete = ~np.isnan(design).any(axis=1) & ~np.isnan(target)
+    coef, *_ = np.linalg.lstsq(design[complete], target[complete], rcond=None)
     resid = np.full(n, 0.0)
     resid[start:] = target - design @ coef
     residual_history.append(resid)
@@ -203,6 +208,8 @@ def _iterated_ar_filter(z: np.ndarray, k: int, residual_history: list[np.ndarray
 def _autocorrelation_at(w: np.ndarray, lag: int) -> float:
     if lag >= w.size:
         return 0.0
+    if np.isnan(w).any():
+        return float(autocorrelations(w, lag)[lag])
     c = w - w.mean()
     denom = float(c @ c)
     return float(c[lag:] @ c[:-lag]) / denom if denom > 0 else 0.0

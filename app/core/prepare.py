@@ -6,9 +6,14 @@ Rules:
   naming the timestamp, unless the caller chose an aggregation (``mean``, ``sum``, ``last``);
 * the sampling frequency is inferred from the timestamps (the most common spacing when some
   are missing); timestamps off that grid are an error naming the first one;
-* runs of up to :data:`SHORT_GAP_MAX` missing points are filled by linear interpolation and
-  counted; longer runs are also interpolated, so that the analysis can run, but flagged
-  ``long_gap`` so the reviewer knows the correlograms lean on invented values;
+* missing points on the grid stay missing (NaN in :attr:`PreparedSeries.values`) and are
+  counted and flagged ``gaps``; runs longer than :data:`SHORT_GAP_MAX` points are also
+  flagged ``long_gap`` (a long gap keeps a suggestion from being ``firm``). The likelihood,
+  the fits and their residuals, the correlograms (pairs present), the Ljung-Box test and the
+  forecast check use the observed points only. Methods that need a complete series get it
+  filled by linear interpolation (:attr:`PreparedSeries.filled`, :func:`interpolate_gaps`):
+  the KPSS and ADF tests of the differencing, STL's seasonal strength, the Canova-Hansen test
+  and Guerrero's lambda of the transform, and the start values of the optimiser;
 * missing values at the start or end are dropped;
 * infinite values, and values beyond :data:`MAX_ABS_VALUE` in size (their squares overflow), are
   an error naming the first;
@@ -35,8 +40,8 @@ from app.core.vocabulary import Flag
 SHORT_GAP_MAX = 3
 MIN_POINTS = 12
 RECOMMENDED_POINTS = 30
-# Common practice: with more invented (interpolated) points than observed ones, the
-# correlograms describe the interpolation rather than the data.
+# Common practice: with more missing points than observed ones, the correlograms rest on few
+# pairs and the tests that need a complete series describe the interpolation rather than the data.
 MIN_OBSERVED_SHARE = 0.5
 # Identification time and memory grow with the length (a 10^5-point series takes minutes and
 # about 3 GB); longer grids are refused before they are built.
@@ -49,7 +54,13 @@ INTEGER_FREQ = "step"
 
 @dataclass
 class PreparedSeries:
-    """A series on a regular grid with what was done to get it there."""
+    """A series on a regular grid with what was done to get it there.
+
+    ``values`` holds NaN at the grid points with no observation; ``gaps_filled`` counts them
+    (the name is kept from when they were filled) and ``long_gaps`` counts their runs longer
+    than :data:`SHORT_GAP_MAX`. ``n`` is the length of the grid, ``observed`` the points with a
+    value.
+    """
 
     series_id: str
     values: np.ndarray
@@ -62,6 +73,16 @@ class PreparedSeries:
     @property
     def n(self) -> int:
         return int(self.values.size)
+
+    @property
+    def observed(self) -> int:
+        return int(np.count_nonzero(~np.isnan(self.values)))
+
+    @property
+    def filled(self) -> np.ndarray:
+        """The values with the missing points filled by linear interpolation, for the methods
+        that need a complete series (module notes)."""
+        return interpolate_gaps(self.values)
 
     def to_series(self) -> pd.Series:
         return pd.Series(self.values, index=self.index, name=self.series_id)
@@ -102,10 +123,9 @@ def prepare_series(
     on_grid = values.reindex(grid)
     missing = on_grid.isna().to_numpy()
     run_lengths = _missing_runs(missing)
-    filled = on_grid.interpolate(method="linear", limit_area="inside").to_numpy()
     prepared = PreparedSeries(
         series_id=sid,
-        values=filled,
+        values=on_grid.to_numpy(dtype=float),
         index=grid,
         freq=freq,
         gaps_filled=int(missing.sum()),
@@ -115,7 +135,7 @@ def prepare_series(
         prepared.flags.append(Flag.GAPS)
     if prepared.long_gaps:
         prepared.flags.append(Flag.LONG_GAP)
-    observed = prepared.n - prepared.gaps_filled
+    observed = prepared.observed
     if observed < MIN_POINTS:
         raise SeriesProblem(
             sid, f"has {observed} observations; at least {MIN_POINTS} are needed to identify a model",
@@ -123,14 +143,32 @@ def prepare_series(
         )
     if observed < MIN_OBSERVED_SHARE * prepared.n:
         raise SeriesProblem(
-            sid, f"has {observed} observations on a grid of {prepared.n} {freq} points: most values would be "
-            "invented to fill the gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
+            sid, f"has {observed} observations on a grid of {prepared.n} {freq} points: most of the grid "
+            "would be gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
         )
-    if np.ptp(filled) <= 1e-12 * max(1.0, float(np.abs(filled).max())):
-        raise SeriesProblem(sid, f"is constant (every value is {filled[0]:g}); there is nothing to model", flag="constant")
+    present = prepared.values[~missing]
+    if np.ptp(present) <= 1e-12 * max(1.0, float(np.abs(present).max())):
+        raise SeriesProblem(sid, f"is constant (every value is {present[0]:g}); there is nothing to model", flag="constant")
     if observed < RECOMMENDED_POINTS:
         prepared.flags.append(Flag.TOO_SHORT)
     return prepared
+
+
+def interpolate_gaps(x: np.ndarray) -> np.ndarray:
+    """``x`` with its missing points (NaN) filled by linear interpolation between the nearest
+    observed neighbours, and beyond the first or last observed point by that point's value.
+
+    Only for the methods that need a complete series (module notes); ``x`` itself (not a copy)
+    when nothing is missing. Raises ``ValueError`` when nothing is observed.
+    """
+    values = np.asarray(x, dtype=float)
+    missing = np.isnan(values)
+    if not missing.any():
+        return values
+    if missing.all():
+        raise ValueError("every value is missing: nothing to interpolate from")
+    t = np.arange(values.size)
+    return np.interp(t, t[~missing], values[~missing])
 
 
 def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> None:

@@ -47,6 +47,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable
 
+import numpy as np
 from scipy.special import chdtrc
 
 from app.core.fitting import CandidateFit
@@ -92,20 +93,25 @@ def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) 
     return [simplest] + [f for f in ordered if f is not simplest]
 
 
-def common_level_bic(fit: CandidateFit, m: int) -> float:
+def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = None) -> float:
     """BIC from the last ``m`` one-step prediction errors.
 
     ``m * ln(SSE / m) + k * ln(m)`` with ``k`` estimated parameters (including the innovation
     variance). The one-step prediction error of a level equals that of its difference (the
     previous levels are known), so every model's residuals are level prediction errors and the
     criterion is comparable across models with different d, as long as all use the same
-    ``m`` final time points.
+    ``m`` final time points. With missing points the errors of a level whose previous level is
+    missing are missing too, and more of them with more differencing: ``present`` (a mask over
+    the ``m`` points) keeps the points where every compared model has an error, and their
+    number takes the place of ``m``.
     """
-    errors = fit.residuals[-m:]
-    sse = float(errors @ errors)
-    if m <= 0 or sse <= 0:
+    if m <= 0:
         return math.inf
-    return m * math.log(sse / m) + fit.n_params * math.log(m)
+    errors = fit.residuals[-m:] if present is None else fit.residuals[-m:][present]
+    count, sse = errors.size, float(errors @ errors)
+    if count <= 0 or sse <= 0:
+        return math.inf
+    return count * math.log(sse / count) + fit.n_params * math.log(count)
 
 
 def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
@@ -114,7 +120,8 @@ def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAUL
     if len(ranked) == 1:
         return next(iter(ranked.values()))
     m = min(f.residuals.size for fits in ranked.values() for f in fits) - 1
-    order = sorted(ranked, key=lambda d: (is_demoted(ranked[d][0]), common_level_bic(ranked[d][0], m)))
+    present = np.logical_and.reduce([~np.isnan(fits[0].residuals[-m:]) for fits in ranked.values()])
+    order = sorted(ranked, key=lambda d: (is_demoted(ranked[d][0]), common_level_bic(ranked[d][0], m, present)))
     return [fit for d in order for fit in ranked[d]]
 
 

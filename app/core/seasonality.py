@@ -18,6 +18,9 @@
   leader's own sign of a fixed pattern, a seasonal MA near −1
   (:func:`app.core.identify.fixed_seasonality_words`).
 
+STL and the Canova-Hansen test need a complete series: a series with missing points (NaN) is
+filled by linear interpolation (:func:`app.core.prepare.interpolate_gaps`) for them.
+
 The OCSB test (Osborn, Chui, Smith & Birchenhall 1988) is not implemented: statsmodels does not
 have it and its critical values could not be checked against a published table here.
 
@@ -42,6 +45,7 @@ from pandas.tseries.frequencies import to_offset
 from statsmodels.tsa.seasonal import STL
 
 from app.core.errors import OrderError
+from app.core.prepare import interpolate_gaps
 from app.core.seasonal_stability import SeasonalStability, canova_hansen
 from app.core.vocabulary import Flag
 
@@ -259,7 +263,8 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     Parameters
     ----------
     x : ndarray
-        The series (after any variance-stabilising transform).
+        The series (after any variance-stabilising transform); missing points (NaN) are
+        interpolated for STL and the Canova-Hansen test.
     period : int or None
         A period already checked by :func:`validate_period`; None means non-seasonal.
 
@@ -291,7 +296,8 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
             f"{MIN_SEASONS_SEASONAL_TERMS} are needed for any seasonal term; no seasonal differencing."
         )
         return result
-    measure = seasonal_strength(x, period)
+    filled = interpolate_gaps(x)
+    measure = seasonal_strength(filled, period)
     result.strength, result.trend_strength = measure.seasonal, measure.trend
     above = measure.seasonal > threshold
     comparison = f"Seasonal strength {measure.seasonal:.2f} {'>' if above else '<='} {threshold:.2f}"
@@ -304,7 +310,7 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     elif above:
         result.D = 1
         result.explanation.append(f"{comparison} -> differenced once at lag {period}.")
-        result.stability = canova_hansen(x, period)
+        result.stability = canova_hansen(filled, period)
         result.explanation.append(result.stability.words())
     else:
         result.explanation.append(f"{comparison} -> no seasonal differencing at lag {period}.")

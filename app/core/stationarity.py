@@ -32,6 +32,10 @@ otherwise. ``d = 2`` is taken only when both tests agree on the first difference
 KPSS p-values are interpolated in a table and clipped to [0.01, 0.10]; the decision uses the
 5% critical value, never the clipped p-value.
 
+Both tests need a complete series: missing points (NaN) are filled by linear interpolation
+(:func:`app.core.prepare.interpolate_gaps`) for them alone; the fits that follow use the
+observed points only.
+
 References
 ----------
 .. [1] Kwiatkowski, D., Phillips, P.C.B., Schmidt, P. & Shin, Y. (1992). Testing the null
@@ -52,6 +56,7 @@ from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
 
 from app.core.analysis import UnitRootTest
+from app.core.prepare import interpolate_gaps
 
 TEST_LEVEL = 0.05
 KPSS_LEVEL_KEY = "5%"
@@ -100,11 +105,12 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
     Parameters
     ----------
     x : ndarray
-        The series (already transformed and seasonally differenced if that applies).
+        The series (already transformed and seasonally differenced if that applies); missing
+        points (NaN) are interpolated for the tests.
     max_d : int
         Highest order of differencing considered.
     """
-    values = np.asarray(x, dtype=float)
+    values = interpolate_gaps(x)
     tests: list[UnitRootTest] = []
     words: list[str] = []
     for d in range(max_d + 1):

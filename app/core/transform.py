@@ -7,7 +7,10 @@ log, on the square root and on Box-Cox with Guerrero's (1993) lambda rounded to 
 adding the log-Jacobian of the transform (:func:`log_jacobian`; Box & Cox 1964, §3). A transform
 is kept only when it lowers the AIC of the original data clearly (:data:`CLEAR_AIC_DROP`).
 :func:`app.core.identify.identify_prepared` runs the comparison and, when a transform wins,
-identifies the transformed series again. The Box-Cox transform with parameter lambda is
+identifies the transformed series again. Missing points (NaN) stay missing through a transform;
+Guerrero's lambda, which needs a complete series, is estimated on the series with its gaps
+filled by linear interpolation (:func:`app.core.prepare.interpolate_gaps`), and the log-Jacobian
+sums over the observed points. The Box-Cox transform with parameter lambda is
 ``(x**lambda - 1) / lambda``, and ``log(x)`` at lambda = 0 (Box & Cox 1964).
 
 References
@@ -31,6 +34,7 @@ from scipy.optimize import minimize_scalar
 from scipy.special import boxcox, inv_boxcox
 
 from app.core.errors import OrderError
+from app.core.prepare import interpolate_gaps
 from app.core.transform_choice import TransformChoice
 
 LAMBDA_BOUNDS = (-1.0, 2.0)
@@ -125,7 +129,8 @@ def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
 
     ``g'(x) = x**(lambda - 1)`` for Box-Cox (``1/x`` for the log, lambda = 0), 1 for none. Pass
     the observations the likelihood covers: for a model differenced ``d + sD`` times, those
-    after the first ``d + sD`` (the likelihood is conditional on them).
+    after the first ``d + sD`` (the likelihood is conditional on them). Missing points (NaN)
+    are left out of the sum.
 
     References
     ----------
@@ -133,7 +138,7 @@ def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
     """
     if transform.kind == "none" or transform.lam is None:  # lam is None only for none
         return 0.0
-    return float((transform.lam - 1.0) * np.sum(np.log(np.asarray(x, dtype=float))))
+    return float((transform.lam - 1.0) * np.nansum(np.log(np.asarray(x, dtype=float))))
 
 
 def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[list[TransformChoice], list[str]]:
@@ -152,7 +157,7 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
     """
     alternatives = [TransformChoice("log"), TransformChoice("box_cox", lam=SQUARE_ROOT)]
     try:
-        estimate = guerrero_lambda(x, period)
+        estimate = guerrero_lambda(interpolate_gaps(x), period)
     except ValueError as exc:
         return alternatives, [f"Guerrero's lambda could not be estimated ({exc})."]
     lam = simple_lambda(estimate)
@@ -211,7 +216,7 @@ def choose_transform(
     if (values <= 0).any():
         return TransformChoice(
             "none",
-            explanation=[f"The series has values <= 0 (smallest {values.min():.4g}): no log or Box-Cox transform."],
+            explanation=[f"The series has values <= 0 (smallest {np.nanmin(values):.4g}): no log or Box-Cox transform."],
         )
     alternatives, words = transform_alternatives(values, period)
     scored: list[tuple[TransformChoice, float]] = []
@@ -261,7 +266,7 @@ def apply_transform(x: np.ndarray, choice: TransformChoice) -> np.ndarray:
     if (values <= 0).any():
         raise OrderError(
             f"a {choice.kind.replace('_', '-')} transform needs strictly positive values; "
-            f"{int((values <= 0).sum())} values are <= 0 (smallest {values.min():.4g})"
+            f"{int((values <= 0).sum())} values are <= 0 (smallest {np.nanmin(values):.4g})"
         )
     return np.log(values) if choice.kind == "log" else boxcox(values, choice.lam)
 

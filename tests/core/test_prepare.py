@@ -1,7 +1,8 @@
 """Checks of app.core.prepare: putting one series on a regular grid, and refusing what cannot be.
 
-The expected values are worked out by hand from the rules in the module notes (linear
-interpolation between the neighbours of a gap; the grid of the modal spacing); pandas'
+The expected values are worked out by hand from the rules in the module notes (a missing point
+stays missing; the filled series interpolates linearly between the neighbours of a gap; the
+grid of the modal spacing); pandas'
 ``date_range`` provides the calendars.
 """
 
@@ -44,16 +45,17 @@ def test_duplicate_timestamp_error_names_timestamp_and_line():
 
 # --- gaps -----------------------------------------------------------------------------------
 
-def test_short_gap_is_filled_linearly_and_counted():
+def test_short_gap_stays_missing_is_counted_and_filled_linearly_on_request():
     values = np.arange(N, dtype=float) ** 1.5
     holed = values.copy()
     holed[[5, 6, 20]] = np.nan
     prepared = prepare_series(_daily(holed), "shop-1")
-    assert prepared.gaps_filled == 3 and prepared.long_gaps == 0
+    assert prepared.gaps_filled == 3 and prepared.long_gaps == 0 and prepared.observed == N - 3
     assert prepared.flags == ["gaps"]
+    np.testing.assert_array_equal(prepared.values, holed)
     known = ~np.isnan(holed)
     expected = np.interp(np.arange(N), np.flatnonzero(known), holed[known])
-    np.testing.assert_allclose(prepared.values, expected, rtol=1e-12)
+    np.testing.assert_allclose(prepared.filled, expected, rtol=1e-12)
 
 
 def test_run_of_short_gap_max_is_not_a_long_gap():
@@ -64,13 +66,13 @@ def test_run_of_short_gap_max_is_not_a_long_gap():
     assert "long_gap" not in prepared.flags
 
 
-def test_long_gap_is_filled_but_flagged():
+def test_long_gap_is_flagged():
     holed = _daily().to_numpy().copy()
     holed[10: 10 + SHORT_GAP_MAX + 1] = np.nan
     prepared = prepare_series(_daily(holed), "shop-1")
     assert (prepared.gaps_filled, prepared.long_gaps) == (SHORT_GAP_MAX + 1, 1)
     assert {"gaps", "long_gap"} <= set(prepared.flags)
-    assert np.isfinite(prepared.values).all()
+    assert np.isnan(prepared.values[10: 10 + SHORT_GAP_MAX + 1]).all() and np.isfinite(prepared.filled).all()
 
 
 def test_missing_values_at_the_ends_are_dropped():
@@ -108,7 +110,7 @@ def test_integer_steps_with_a_gap():
     values = np.arange(1.0, N + 1)[index.to_numpy() - 1] * 2.0
     prepared = prepare_series(pd.Series(values, index=index), "sensor-3")
     assert prepared.freq == "step" and prepared.n == N
-    assert prepared.gaps_filled == 1 and prepared.values[16] == pytest.approx(34.0)
+    assert prepared.gaps_filled == 1 and np.isnan(prepared.values[16]) and prepared.filled[16] == pytest.approx(34.0)
 
 
 def test_integer_steps_of_five():
@@ -129,7 +131,7 @@ def test_monthly_series_with_a_missing_month():
     prepared = prepare_series(pd.Series(values, index=index), "store-9")
     assert prepared.freq == "MS" and prepared.n == 36
     assert prepared.index[5] == pd.Timestamp("2019-06-01")
-    assert prepared.gaps_filled == 1 and prepared.values[5] == pytest.approx(115.0)
+    assert prepared.gaps_filled == 1 and np.isnan(prepared.values[5]) and prepared.filled[5] == pytest.approx(115.0)
 
 
 def test_month_end_series_with_missing_months():
