@@ -18,7 +18,7 @@ from typing import Any
 
 from app.core.order import Order, validate_order
 from app.core.transform_choice import TransformChoice
-from app.core.vocabulary import Confidence
+from app.core.vocabulary import Confidence, InterventionKind
 
 SCHEMA_VERSION = 2
 
@@ -58,6 +58,31 @@ class Parameter:
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> Parameter:
         return cls(str(data["name"]), float(data["value"]), _finite_or_none(data.get("se")))
+
+
+@dataclass(frozen=True)
+class Intervention:
+    """An outlier or a level shift found in the series and estimated with the suggested order
+    (:mod:`app.core.interventions`): where (``position``, 0-based, and ``timestamp``), what kind,
+    its size on the modelled scale and its t statistic in the joint fit."""
+
+    position: int
+    timestamp: str
+    kind: InterventionKind
+    size: float
+    t_stat: float
+
+    def words(self) -> str:
+        return f"{self.kind.words()} at {self.timestamp} (size {self.size:+.3g}, t = {self.t_stat:+.1f})"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"position": self.position, "timestamp": self.timestamp, "kind": str(self.kind),
+                "size": self.size, "t_stat": self.t_stat}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Intervention:
+        return cls(int(data["position"]), str(data["timestamp"]), InterventionKind(data["kind"]),
+                   float(data["size"]), float(data["t_stat"]))
 
 
 @dataclass(frozen=True)
@@ -109,7 +134,7 @@ class Candidate:
             "ljung_box_p": _finite_or_none(self.ljung_box_p), "ljung_box_lags": self.ljung_box_lags,
             "params": [p.to_dict() for p in self.params],
             "residual_acf": self.residual_acf.to_dict(),
-            "residuals": list(self.residuals) if self.residuals is not None else None,
+            "residuals": [_finite_or_none(v) for v in self.residuals] if self.residuals is not None else None,  # NaN (missing) as null
             "flags": list(self.flags),
             "rank_score": self.rank_score,
             "delta_aicc": self.delta_aicc,
@@ -126,7 +151,7 @@ class Candidate:
             params=tuple(Parameter.from_dict(p) for p in data["params"]),
             ljung_box_p=_finite_or_none(data.get("ljung_box_p")), ljung_box_lags=int(data["ljung_box_lags"]),
             residual_acf=Correlation.from_dict(data["residual_acf"]),
-            residuals=tuple(float(v) for v in residuals) if residuals is not None else None,
+            residuals=tuple(math.nan if v is None else float(v) for v in residuals) if residuals is not None else None,
             flags=tuple(data.get("flags", ())), rank_score=_finite_or_none(data.get("rank_score")),
             delta_aicc=_finite_or_none(data.get("delta_aicc")),
         )
@@ -273,6 +298,7 @@ class Analysis:
     screen_margin: float
     engine_version: str
     data_notes: tuple[str, ...] = ()
+    interventions: tuple[Intervention, ...] = ()
 
     @property
     def suggested(self) -> Candidate:
@@ -300,6 +326,11 @@ class Analysis:
     @property
     def is_transformed_or_differenced(self) -> bool:
         return bool(self.d or self.D or self.transform.kind != "none")
+
+    def interventions_on(self, transform: TransformChoice) -> tuple[Intervention, ...]:
+        """The interventions a fit on the ``transform`` scale takes out of the series: the
+        analysis' own on its own scale, none on another (their sizes are on the analysis' scale)."""
+        return self.interventions if transform.to_json() == self.transform.to_json() else ()
 
     def candidate_of(self, order: Sequence[int], seasonal_order: Sequence[int] | None) -> Candidate | None:
         """The candidate of that order, None when the engine did not fit it."""
@@ -350,7 +381,7 @@ class Analysis:
             "pacf": self.pacf.to_dict(),
             "seasonal_lags": list(self.seasonal_lags),
             "patterns": list(self.patterns),
-            "identified_on": {"values": list(self.identified_on), "label": self.identified_label},
+            "identified_on": {"values": [_finite_or_none(v) for v in self.identified_on], "label": self.identified_label},
             "gaps_filled": self.gaps_filled,
             "criterion": self.criterion,
             "candidates": [c.to_dict() for c in self.candidates],
@@ -358,6 +389,7 @@ class Analysis:
             "screen_margin": self.screen_margin,
             "engine_version": self.engine_version,
             "data_notes": list(self.data_notes),
+            "interventions": [i.to_dict() for i in self.interventions],
         }
 
     @classmethod
@@ -390,11 +422,12 @@ class Analysis:
             acf=Correlation.from_dict(data["acf"]), pacf=Correlation.from_dict(data["pacf"]),
             seasonal_lags=tuple(int(k) for k in data.get("seasonal_lags", ())),
             patterns=tuple(data.get("patterns", ())),
-            identified_on=tuple(float(v) for v in data["identified_on"]["values"]),
+            identified_on=tuple(math.nan if v is None else float(v) for v in data["identified_on"]["values"]),
             identified_label=str(data["identified_on"]["label"]), gaps_filled=int(data.get("gaps_filled", 0)),
             criterion=str(data.get("criterion", "bic")), candidates=with_deltas(candidates),
             screened_out=screened, screen_margin=float(data.get("screen_margin", 0.0)),
             engine_version=str(data.get("engine_version", "")), data_notes=tuple(data.get("data_notes", ())),
+            interventions=tuple(Intervention.from_dict(i) for i in data.get("interventions", ())),
         )
 
 

@@ -39,18 +39,20 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
 
 from app import __version__
-from app.core.analysis import Analysis, Correlation, DifferencingSummary, SeasonalSummary, with_deltas
+from app.core.analysis import Analysis, Correlation, DifferencingSummary, Intervention, SeasonalSummary, with_deltas
 from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
 from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
+from app.core.defaults import AUTO_PERIOD
 from app.core.demand import classify_demand
 from app.core.errors import OrderError, SeriesProblem
 from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
+from app.core.interventions import adjusted, detect_interventions, estimate_jointly
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
@@ -65,11 +67,10 @@ from app.core.seasonality import (
     validate_period,
 )
 from app.core.stationarity import DifferencingDecision, choose_differencing
-from app.core.transform import TransformChoice, apply_transform, choose_transform
-from app.core.vocabulary import Flag
+from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform
+from app.core.vocabulary import Flag, InterventionKind
 
 ENGINE_VERSION = __version__
-AUTO_PERIOD = "auto"
 DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2
@@ -156,6 +157,7 @@ class Identification:
     flags: list[str] = field(default_factory=list)
     screened_out: list[Order] = field(default_factory=list)
     data_notes: list[str] = field(default_factory=list)
+    interventions: list[Intervention] = field(default_factory=list)
 
     @property
     def suggested(self) -> CandidateFit:
@@ -202,7 +204,7 @@ class Identification:
             patterns=tuple(self.pattern_words), identified_on=tuple(float(v) for v in self.identified_on),
             identified_label=self.identified_label, gaps_filled=self.prepared.gaps_filled, criterion=self.criterion,
             candidates=with_deltas(candidates), screened_out=tuple(self.screened_out), screen_margin=SCREEN_MARGIN,
-            engine_version=ENGINE_VERSION, data_notes=tuple(self.data_notes),
+            engine_version=ENGINE_VERSION, data_notes=tuple(self.data_notes), interventions=tuple(self.interventions),
         )
 
 
@@ -246,8 +248,9 @@ def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int)
     if d + D == 0:
         return ("ct", "c") if decision.trend_stationary else ("c", "ct")
     if d + D == 1:
-        se = w.std(ddof=1) / math.sqrt(w.size) if w.size > 1 else 0.0
-        return ("t", "n") if se > 0 and abs(w.mean()) / se > DRIFT_Z else ("n", "t")
+        present = w[~np.isnan(w)]  # the differences that reach a missing point are missing
+        se = present.std(ddof=1) / math.sqrt(present.size) if present.size > 1 else 0.0
+        return ("t", "n") if se > 0 and abs(present.mean()) / se > DRIFT_Z else ("n", "t")
     return ("n",)
 
 
@@ -453,25 +456,122 @@ def fixed_seasonality_words(leader: CandidateFit, seasonal: SeasonalSetup) -> st
             "with D = 0 model that more directly.")
 
 
-def _identify_on(
-    prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions
-) -> Identification:
-    """One identification pass: differencing, correlograms and candidates of the series under ``transform``."""
-    y = apply_transform(prepared.values, transform)
-    seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, list(period_words))
-    if seasonal.differencing:
-        seasonal.words += seasonal.differencing.explanation
-        seasonal.flags += seasonal.differencing.flags
-    decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
-    ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
-    searches = {d: search_candidates(prepared.series_id, y, d, seasonal, decision, options) for d in ds}
+@dataclass
+class _Identified:
+    """The differencing decision and the ranked candidates of one (possibly adjusted) series."""
+
+    seasonal: SeasonalSetup
+    decision: DifferencingDecision
+    searches: dict[int, SearchResult]
+    ranked: list[CandidateFit]
+
+
+def _search_on(
+    series_id: str, y: np.ndarray, period: int | None, period_words: list[str], options: EngineOptions,
+    kept: tuple[SeasonalSetup, DifferencingDecision, int] | None = None,
+) -> _Identified:
+    """Seasonal and ordinary differencing, correlograms and ranked candidates of ``y``; with
+    ``kept``, the differencing (seasonal setup, decision, d) of an earlier search is kept."""
+    if kept is None:
+        seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, list(period_words))
+        if seasonal.differencing:
+            seasonal.words += seasonal.differencing.explanation
+            seasonal.flags += seasonal.differencing.flags
+        decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
+        ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
+    else:
+        seasonal, decision, d_kept = kept
+        ds = [d_kept]
+    searches = {d: search_candidates(series_id, y, d, seasonal, decision, options) for d in ds}
     for d, found in searches.items():
         if d != decision.d:
             for f in found.fits:
                 f.source = f.source + ["alternative d"]
-    ranked = rank_across_d({d: found.fits for d, found in searches.items()}, options.criterion)
+    return _Identified(seasonal, decision, searches, rank_across_d({d: found.fits for d, found in searches.items()}, options.criterion))
+
+
+def _with_interventions(
+    prepared: PreparedSeries, y: np.ndarray, first: _Identified, period: int | None, period_words: list[str], options: EngineOptions
+) -> tuple[_Identified, list[Intervention]]:
+    """Outliers and level shifts under the leading order (Chen & Liu 1993); when there are any,
+    the series is identified again with their effects taken out and they are estimated jointly
+    with the new leader. The differencing is decided again only after a level shift (so that
+    the shift is not read as a unit root); otherwise only the ARMA orders are read again."""
+    leader = first.ranked[0]
+    if leader.estimate is None:
+        return first, []
+    found = detect_interventions(y, leader.model, leader.estimate, prepared.index)
+    shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in found)
+    if leader.model.d and first.decision.uncertain and not shifted:
+        # A level shift makes a stationary series look integrated (Perron 1989), and under a
+        # differenced model it is only one step: when the unit-root tests disagree, the
+        # stationary alternative is searched for a shift too.
+        alternative = _one_difference_less(leader.model)
+        fit = fit_candidate(y, alternative)
+        if fit.estimate is not None:
+            seen = detect_interventions(y, alternative, fit.estimate, prepared.index)
+            if any(i.kind is InterventionKind.LEVEL_SHIFT for i in seen):
+                found, shifted = seen, True
+    if not found:
+        return first, []
+    if leader.model.d and shifted:
+        # Its size for the adjustment is the one under the stationary alternative; the
+        # unit-root tests of the adjusted series decide whether a difference is still needed.
+        found = estimate_jointly(y, _one_difference_less(leader.model), found, np.zeros(0), prepared.index) or found
+    # Without a level shift the differencing stays: an outlier or a temporary change is not a
+    # change of level, and the tests on the adjusted series would only add their noise to a
+    # decision the ranking has already made. The ARMA orders are read again. The search is
+    # repeated once when the joint fit under the new leader keeps a different set; a set that
+    # still moves is not one to adjust the series by, and the series is left as it is.
+    current: list[Intervention] = found
+    for _ in range(2):
+        shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
+        differencing = None if shifted else (first.seasonal, first.decision, leader.model.d)
+        again = _search_on(prepared.series_id, adjusted(y, current), period, period_words, options, differencing)
+        best = again.ranked[0]
+        start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
+        kept = estimate_jointly(y, best.model, current, start, prepared.index)
+        if not kept:
+            break
+        if {(i.kind, i.position) for i in kept} == {(i.kind, i.position) for i in current}:
+            # The sizes the series was adjusted by (the candidates were fitted to that series,
+            # so the hand-off's parameters and sizes belong together), the t of the joint fit.
+            by_place = {(i.kind, i.position): i.t_stat for i in kept}
+            return again, [replace(i, t_stat=by_place[(i.kind, i.position)]) for i in sorted(current, key=lambda i: i.position)]
+        current = kept
+    return first, []
+
+
+def _one_difference_less(model: Order) -> Order:
+    """``model`` with one ordinary difference fewer, a mean where no difference is left."""
+    trend = model.trend if model.d - 1 + model.D else ("ct" if "t" in model.trend else "c")
+    return replace(model, d=model.d - 1, trend=trend)
+
+
+def _intervention_words(found: list[Intervention]) -> str:
+    return ("Interventions found in the residuals of the leading order and estimated jointly with it (Chen & Liu 1993): "
+            + "; ".join(i.words() for i in found)
+            + ". The differencing, the correlograms and the candidates were read from the series with their effects "
+            "taken out; the forecasting job must model them too.")
+
+
+def _identify_on(
+    prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions
+) -> tuple[Identification, _Identified]:
+    """One identification pass: differencing, correlograms and candidates of the series under
+    ``transform``; also the search itself, for :func:`_with_interventions`."""
+    y = apply_transform(prepared.values, transform)
+    search = _search_on(prepared.series_id, y, period, period_words, options)
+    return _finished(prepared, transform, search, [], options), search
+
+
+def _finished(
+    prepared: PreparedSeries, transform: TransformChoice, search: _Identified, interventions: list[Intervention], options: EngineOptions
+) -> Identification:
+    """The identification of a search: flags, data checks, confidence."""
+    seasonal, decision, ranked = search.seasonal, search.decision, search.ranked
     best = ranked[0]
-    shown = searches[best.model.d]
+    shown = search.searches[best.model.d]
     flags = list(prepared.flags) + seasonal.flags
     if transform.kind != "none":
         flags.append(Flag.TRANSFORMED)
@@ -487,6 +587,15 @@ def _identify_on(
         flags.append(Flag.FIXED_SEASONALITY)
         seasonal.words.append(fixed)
     data_notes, doubts = [], []
+    if interventions:
+        data_notes.append(_intervention_words(interventions))
+        kinds = {i.kind for i in interventions}
+        if InterventionKind.LEVEL_SHIFT in kinds:
+            flags.append(Flag.LEVEL_SHIFT)
+        if kinds - {InterventionKind.LEVEL_SHIFT}:
+            flags.append(Flag.OUTLIERS)
+        doubts.append(f"{len(interventions)} intervention{'s' if len(interventions) > 1 else ''} "
+                      f"({interventions[0].words()}{', ...' if len(interventions) > 1 else ''}) the forecasting job must model")
     demand = classify_demand(prepared.values)
     if demand and demand.sparse:  # smooth and erratic series are left to the ARIMA without comment
         data_notes.append(demand.words())
@@ -503,20 +612,19 @@ def _identify_on(
         identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d),
         pattern_words=seasonal.words + shown.words, candidates=ranked, data_notes=data_notes,
         confidence=score_confidence(ranked, flags, options.criterion, doubts), criterion=options.criterion, flags=flags,
-        screened_out=[m for found in searches.values() for m in found.screened_out],
+        screened_out=[m for found in search.searches.values() for m in found.screened_out], interventions=interventions,
     )
 
 
-def _loglik_on(prepared: PreparedSeries, found: Identification) -> Callable[[TransformChoice], float]:
-    """The maximised log-likelihood of ``found``'s leading order on the series under a transform
-    (the leader's own on the scale it was identified on; NaN when the order cannot be fitted)."""
-    leader = found.suggested
+def _loglik_on(values: np.ndarray, transform: TransformChoice, leader: CandidateFit) -> Callable[[TransformChoice], float]:
+    """The maximised log-likelihood of the ``leader``, found on the ``transform`` scale, for
+    ``values`` under a transform (its own on that scale; NaN when the order cannot be fitted)."""
 
     def loglik(choice: TransformChoice) -> float:
-        if choice.to_json() == found.transform.to_json():
+        if choice.to_json() == transform.to_json():
             return leader.loglik
         try:
-            return fit_candidate(apply_transform(prepared.values, choice), leader.model).loglik
+            return fit_candidate(apply_transform(values, choice), leader.model).loglik
         except (np.linalg.LinAlgError, ValueError):
             return math.nan
 
@@ -536,32 +644,59 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     scale the leader was found on, returns to a scale already identified, or after
     :data:`TRANSFORM_PASSES` identifications on a transformed series.
 
+    On the scale chosen, outliers, level shifts and temporary changes are sought in the leading
+    order's residuals (:mod:`app.core.interventions`, Chen & Liu 1993); when any is found, the
+    series is identified again with their effects taken out and they are estimated jointly with
+    the new leader.
+
     References
     ----------
     .. [1] Box, G.E.P. & Cox, D.R. (1964). An analysis of transformations. *JRSS B* 26, 211-252.
+    .. [2] Chen, C. & Liu, L.-M. (1993). Joint estimation of model parameters and outlier effects
+       in time series. *JASA* 88, 284-297.
     """
     period, period_words = resolve_period(prepared, options.period)
-    found = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
-    passes = {str(found.transform.to_json()): found}
+    found, search = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
+    passes = {str(found.transform.to_json()): (found, search)}
     words: list[str] = []
     while True:
         leader = found.suggested.model
         choice = choose_transform(prepared.values, period, leader.label(), leader.lost_to_differencing, found.transform,
-                                  _loglik_on(prepared, found))
+                                  _loglik_on(prepared.values, found.transform, found.suggested))
         words += choice.explanation
         key = str(choice.to_json())
         if key in passes:
-            if passes[key] is not found:
+            if passes[key][0] is not found:
                 words.append(f"Back to the identification on the {choice.name()} scale made before.")
-            found = passes[key]
+            found, search = passes[key]
             break
         if len(passes) > TRANSFORM_PASSES:
             words.append(f"Stopped after {TRANSFORM_PASSES} identifications on a transformed series: "
                          f"the {found.transform.name()} scale kept.")
             break
         words.append(f"Identified again on the {choice.name()} scale.")
-        found = _identify_on(prepared, choice, period, period_words, options)
-        passes[key] = found
+        found, search = _identify_on(prepared, choice, period, period_words, options)
+        passes[key] = (found, search)
+    # Outliers and level shifts are sought on the scale chosen: on the wrong one, the larger
+    # swings of a multiplicative series would read as outliers.
+    y = apply_transform(prepared.values, found.transform)
+    adjusted_search, interventions = _with_interventions(prepared, y, search, period, period_words, options)
+    if interventions and found.transform.kind != "none":
+        # A spike alone can make a transform that shrinks it win the comparison: it is weighed
+        # again on the series with the interventions taken out, under the leader found there.
+        cleaned = invert_transform(adjusted(y, interventions), found.transform)
+        cleaned_leader = adjusted_search.ranked[0]
+        choice = choose_transform(cleaned, period, cleaned_leader.model.label(), cleaned_leader.model.lost_to_differencing,
+                                  found.transform, _loglik_on(cleaned, found.transform, cleaned_leader))
+        if choice.to_json() != found.transform.to_json():
+            words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
+                      "transforms were weighed again:", *choice.explanation,
+                      f"Identified again on the {choice.name()} scale."]
+            found, search = _identify_on(prepared, choice, period, period_words, options)
+            y = apply_transform(prepared.values, choice)
+            adjusted_search, interventions = _with_interventions(prepared, y, search, period, period_words, options)
+    if interventions:
+        found = _finished(prepared, found.transform, adjusted_search, interventions, options)
     found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
     return found
 

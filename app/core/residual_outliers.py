@@ -72,7 +72,8 @@ def largest_residual(residuals: np.ndarray, index: pd.Index) -> LargeResidual | 
     ----------
     residuals : ndarray
         One-step prediction errors of a fit; they belong to the last ``len(residuals)`` points
-        of the series (the first ones are lost to differencing).
+        of the series (the first ones are lost to differencing). Missing residuals (NaN, at
+        missing points) are skipped.
     index : pandas.Index
         The series' time index, to say when the residual fell.
 
@@ -82,19 +83,20 @@ def largest_residual(residuals: np.ndarray, index: pd.Index) -> LargeResidual | 
         None when every residual is within the threshold, or the robust scale is zero.
     """
     e = np.asarray(residuals, dtype=float)
-    scale = robust_scale(e) if e.size else 0.0
+    present = e[~np.isnan(e)]
+    scale = robust_scale(present) if present.size else 0.0
     if scale <= 0.0:
         return None
-    z = (e - np.median(e)) / scale
-    i = int(np.argmax(np.abs(z)))
+    z = (e - np.median(present)) / scale
+    i = int(np.nanargmax(np.abs(z)))
     threshold = outlier_threshold(len(index))
     if abs(z[i]) <= threshold:
         return None
     position = len(index) - e.size + i
-    return LargeResidual(position=position, when=_moment(index[position]), z=float(z[i]), threshold=threshold)
+    return LargeResidual(position=position, when=moment(index[position]), z=float(z[i]), threshold=threshold)
 
 
-def _moment(stamp: object) -> str:
+def moment(stamp: object) -> str:
     """A time stamp as a reader writes it: the date alone at midnight, else date and time."""
     if isinstance(stamp, pd.Timestamp):
         return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")

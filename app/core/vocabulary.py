@@ -38,6 +38,8 @@ class Flag(StrEnum):
     FIXED_SEASONALITY = "fixed_seasonality"
     LARGE_RESIDUAL = "large_residual"
     INTERMITTENT_DEMAND = "intermittent_demand"
+    OUTLIERS = "outliers"
+    LEVEL_SHIFT = "level_shift"
 
 
 WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
@@ -47,24 +49,39 @@ NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_D
                             Flag.FIXED_SEASONALITY})
 """Flags that keep a suggestion from ``firm``, their reason given as the flag."""
 
-WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND})
+WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT})
 """Flags that keep a suggestion from ``firm`` too, their reason written out by the check that
 raised them (where, how large, what class)."""
 
 
+class InterventionKind(StrEnum):
+    """The kinds of intervention the engine detects (Chen & Liu 1993, §2)."""
+
+    ADDITIVE = "additive"
+    LEVEL_SHIFT = "level_shift"
+    TEMPORARY_CHANGE = "temporary_change"
+
+    def words(self) -> str:
+        return {"additive": "additive outlier", "level_shift": "level shift", "temporary_change": "temporary change"}[self.value]
+
+
 class VerdictStatus(StrEnum):
     """The review state of a series. ``recheck`` is set by Lagdesk when new data break a decided
-    order; every other state is a reviewer's."""
+    order; every other state is a reviewer's. ``not_arima`` is the reviewer's decision that no
+    ARIMA order should forecast the series (intermittent or lumpy demand, say): it is decided,
+    carries no order, and the export lists it apart for the forecasting job to route."""
 
     PENDING = "pending"
     APPROVED = "approved"
     OVERRIDDEN = "overridden"
     PARKED = "parked"
     RECHECK = "recheck"
+    NOT_ARIMA = "not_arima"
 
 
 DECIDED = (VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN)
 """The states whose order is handed on to forecasting."""
 
-REVIEWER_STATUSES = (VerdictStatus.PENDING, VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN, VerdictStatus.PARKED)
+REVIEWER_STATUSES = (VerdictStatus.PENDING, VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN, VerdictStatus.PARKED,
+                     VerdictStatus.NOT_ARIMA)
 """The states a reviewer may set (``pending`` reopens a decided series)."""

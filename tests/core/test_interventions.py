@@ -1,0 +1,162 @@
+"""Outliers and level shifts (app.core.interventions) against their definitions, statsmodels and
+a published example; the detection figures by kind and size on seeded simulations (slow)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from accuracy_batch import simulate
+from scipy.stats import norm
+from statsmodels.tsa.arima_process import arma2ar
+from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+from app.core.fitting import fit_candidate
+from app.core.identify import identify_series
+from app.core.interventions import (
+    _Terms,
+    detect_interventions,
+    detection_threshold,
+    effect_column,
+    effect_statistics,
+    estimate_jointly,
+    pi_weights,
+    residual_response,
+)
+from app.core.order import Order
+from app.core.vocabulary import Flag, InterventionKind
+
+
+def _ar1(rng: np.random.Generator, n: int, phi: float = 0.6) -> np.ndarray:
+    return simulate((1, 0, 0), [phi], [], n, rng)
+
+
+def test_effect_columns_follow_the_definitions():
+    # Chen & Liu (1993), §2: AO xi = 1, LS xi = 1/(1 - B), TC xi = 1/(1 - delta B), delta = 0.7.
+    assert effect_column(InterventionKind.ADDITIVE, 3, 6).tolist() == [0, 0, 0, 1, 0, 0]
+    assert effect_column(InterventionKind.LEVEL_SHIFT, 3, 6).tolist() == [0, 0, 0, 1, 1, 1]
+    np.testing.assert_allclose(effect_column(InterventionKind.TEMPORARY_CHANGE, 3, 6), [0, 0, 0, 1, 0.7, 0.49])
+
+
+def test_pi_weights_with_differencing_match_statsmodels():
+    # pi(B) = phi(B) (1 - B) / theta(B): statsmodels' arma2ar of the expanded AR polynomial.
+    rng = np.random.default_rng(3)
+    y = simulate((1, 1, 1), [0.5], [0.4], 300, rng)
+    model = Order.of((1, 1, 1))
+    estimate = fit_candidate(y, model).estimate
+    expected = arma2ar(np.convolve(estimate.ar_polynomial, [1.0, -1.0]), estimate.ma_polynomial, lags=40)
+    np.testing.assert_allclose(pi_weights(estimate, model, 40), expected, atol=1e-12)
+
+
+def test_statistics_are_least_squares_at_every_start():
+    # omega(k) regresses the residuals from k on the response (Chen & Liu 1993, eq. 2.x); with a
+    # deterministic column it is the coefficient of the multiple regression (Frisch-Waugh-Lovell).
+    rng = np.random.default_rng(5)
+    e = rng.standard_normal(60)
+    x = residual_response(InterventionKind.LEVEL_SHIFT, 0.6 ** np.arange(60))
+    plain = effect_statistics(e, x, scale=1.0)
+    for k in (0, 17, 59):
+        column = np.r_[np.zeros(k), x[:60 - k]]
+        assert plain.size[k] == pytest.approx(column @ e / (column @ column))
+        assert plain.tau[k] == pytest.approx(plain.size[k] * np.sqrt(column @ column))
+    z = np.full((60, 1), 0.4)
+    partialled = effect_statistics(e, x, 1.0, _Terms(z, np.linalg.pinv(z.T @ z)))
+    for k in (1, 30, 58):
+        column = np.r_[np.zeros(k), x[:60 - k]]
+        both = np.linalg.lstsq(np.column_stack([column, z[:, 0]]), e, rcond=None)[0]
+        assert partialled.size[k] == pytest.approx(both[0])
+
+
+def test_threshold_is_the_bonferroni_bound_over_three_kinds():
+    # Phi^-1(1 - 0.05 / (2 * 3n)) (Dunn 1961), in the 3.0-4.0 range Chen & Liu (1993, §4) studied.
+    for n in (60, 200, 1000):
+        assert detection_threshold(n) == pytest.approx(norm.isf(0.05 / (6 * n)))
+
+
+def test_joint_size_matches_statsmodels_with_the_same_regressor():
+    # Stage II is maximum likelihood with the intervention as a regression column: the same
+    # model in statsmodels' SARIMAX with the column as exog gives the same estimate.
+    rng = np.random.default_rng(11)
+    y = _ar1(rng, 160) + 10.0
+    y[90:] += 5.0
+    model = Order.of((1, 0, 0), None, "c")
+    index = pd.RangeIndex(160)
+    found = detect_interventions(y, model, fit_candidate(y, model).estimate, index)
+    assert [(i.kind, i.position) for i in found] == [(InterventionKind.LEVEL_SHIFT, 90)]
+    reference = SARIMAX(y, exog=effect_column(InterventionKind.LEVEL_SHIFT, 90, 160), order=(1, 0, 0), trend="c").fit(disp=False)
+    assert found[0].size == pytest.approx(reference.params[1], rel=0.02)
+    again = estimate_jointly(y, model, found, np.zeros(0), index)
+    assert again[0].size == pytest.approx(found[0].size, rel=1e-6)
+
+
+def test_a_spike_is_found_where_it_is_and_the_order_survives():
+    rng = np.random.default_rng(21)
+    y = _ar1(rng, 150)
+    y[70] += 6.0
+    found = identify_series(pd.Series(y, index=pd.date_range("2024-01-01", periods=150, freq="D")), "spike")
+    analysis = found.to_analysis()
+    assert [(i.kind, i.timestamp) for i in analysis.interventions] == [(InterventionKind.ADDITIVE, "2024-03-11")]
+    assert analysis.interventions[0].size == pytest.approx(6.0, abs=1.5)
+    assert analysis.suggested.order.order == (1, 0, 0)
+    assert Flag.OUTLIERS in analysis.flags and analysis.confidence != "firm"
+    assert any("additive outlier at 2024-03-11" in note for note in analysis.data_notes)
+
+
+def test_the_nile_level_shift_is_found():
+    # The Nile's annual flow at Aswan, 1871-1970, dropped around 1898-1899 (Cobb 1978; Balke 1993
+    # dates the shift in 1899). The tests disagree on d; the shift is found under the stationary
+    # alternative and the series identified again without it is white noise around two levels.
+    data = sm.datasets.nile.load_pandas().data
+    y = pd.Series(data["volume"].to_numpy(dtype=float), index=pd.date_range("1871", periods=len(data), freq="YS"))
+    analysis = identify_series(y, "nile").to_analysis()
+    shifts = [i for i in analysis.interventions if i.kind is InterventionKind.LEVEL_SHIFT]
+    assert [i.timestamp[:4] for i in shifts] == ["1899"]
+    assert shifts[0].size < -150  # a drop of about a quarter of the flow (Cobb 1978)
+    assert analysis.suggested.order.d == 0
+    assert Flag.LEVEL_SHIFT in analysis.flags
+
+
+def test_a_clean_series_has_none():
+    rng = np.random.default_rng(2)
+    y = _ar1(rng, 200)
+    model = Order.of((1, 0, 0), None, "c")
+    assert detect_interventions(y, model, fit_candidate(y, model).estimate, pd.RangeIndex(200)) == []
+
+
+@pytest.mark.slow
+def test_detection_rates_by_kind_and_size():
+    """Seeded AR(1) series (phi = 0.6, n = 200) through the whole engine. Bars: a 5 sigma AO found
+    at its exact time in >= 90%, a 4 sigma LS within one step in >= 80%, at most 10% of clean
+    series with any detection, and the order recovered on contaminated series at >= 0.8 times
+    the clean rate. Printed as the README quotes them."""
+    rng = np.random.default_rng(20270401)
+    runs, n = 40, 200
+    index = pd.date_range("2023-01-01", periods=n, freq="D")
+    cases = {"clean": 0.0, "AO 5 sigma": 5.0, "AO 3.5 sigma": 3.5, "LS 4 sigma": 4.0, "LS 3 sigma": 3.0, "TC 5 sigma": 5.0}
+    found_rate, order_rate = {}, {}
+    for case, size in cases.items():
+        hits = right = 0
+        for _ in range(runs):
+            y = _ar1(rng, n)
+            at = int(rng.integers(n // 5, 4 * n // 5))
+            kind = {"AO": InterventionKind.ADDITIVE, "LS": InterventionKind.LEVEL_SHIFT,
+                    "TC": InterventionKind.TEMPORARY_CHANGE}.get(case[:2])
+            if kind is not None:
+                y = y + size * effect_column(kind, at, n)
+            analysis = identify_series(pd.Series(y, index=index), case).to_analysis()
+            if kind is None:
+                hits += bool(analysis.interventions)
+            else:
+                reach = 0 if kind is InterventionKind.ADDITIVE else 1
+                hits += any(i.kind is kind and abs(i.position - at) <= reach for i in analysis.interventions)
+            right += analysis.suggested.order.order == (1, 0, 0) and analysis.suggested.order.seasonal_order[:3] == (0, 0, 0)
+        found_rate[case], order_rate[case] = hits / runs, right / runs
+    for case in cases:
+        label = "false detections" if case == "clean" else "found"
+        print(f"{case:14s} {label} {found_rate[case]:.2f}  order (1,0,0) {order_rate[case]:.2f}")
+    assert found_rate["clean"] <= 0.10
+    assert found_rate["AO 5 sigma"] >= 0.90
+    assert found_rate["LS 4 sigma"] >= 0.80
+    for case in ("AO 5 sigma", "LS 4 sigma"):
+        assert order_rate[case] >= 0.8 * order_rate["clean"]
