@@ -27,11 +27,12 @@ from __future__ import annotations
 import itertools
 import multiprocessing
 import os
+import queue
 import select
 import threading
 import time
 from collections.abc import Callable, Iterable, Iterator
-from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures import Future, ProcessPoolExecutor
 from typing import Any
 
 from threadpoolctl import threadpool_limits
@@ -128,18 +129,22 @@ def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], worker
         return
     batches = chunks(itertools.chain(head, iterator), chunk)
     with ProcessPoolExecutor(max_workers=workers, mp_context=pool_context(), initializer=start_worker, initargs=(os.getpid(),)) as pool:
-        pending: set[Future] = set()
+        # Futures arrive here in the order they finish (a callback run as each one completes);
+        # wait(FIRST_COMPLETED) would hand over a set when several finish together, in no order.
+        finished: queue.SimpleQueue[Future] = queue.SimpleQueue()
+        in_flight = 0
 
         def submit_next() -> None:
+            nonlocal in_flight
             batch = next(batches, None)
             if batch is not None:
-                pending.add(pool.submit(run_chunk, func, batch))
+                pool.submit(run_chunk, func, batch).add_done_callback(finished.put)
+                in_flight += 1
 
         for _ in range(2 * workers):
             submit_next()
-        while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for future in done:
-                pending.discard(future)
-                yield from future.result()
-                submit_next()
+        while in_flight:
+            future = finished.get()
+            in_flight -= 1
+            yield from future.result()
+            submit_next()
