@@ -13,21 +13,28 @@ layout (``series_id,timestamp,value``), and writes, for every exported order, ``
 It is not part of Lagdesk: it uses only the export's documented fields, pandas, scipy and
 statsmodels, to show that the hand-off works without a person in between.
 
+Series the reviewers marked "not an ARIMA series" (the export's ``not_arima`` list, schema
+version 2) get no forecast here: they are named on stderr as routed to another method (for
+intermittent demand, Croston's method, say), which a real job would call.
+
 For each order it
 
 1. takes the series' rows up to the export's ``last_timestamp`` (the data the parameters were
    fitted on), puts them on their regular time grid and fills inner gaps by linear
    interpolation, as Lagdesk does;
-2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``);
+2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``) and takes
+   the effects of the export's ``interventions`` out of the transformed series (version 3);
 3. builds the statsmodels ``ARIMA`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
    period`` (a regression with ARMA errors, the differencing inside the state, so forecasts
    come out in levels); the deterministic terms are read from the parameter names: ``const``
    is a constant in levels (``trend="c"``), ``drift`` the slope of a linear time trend in
-   levels (``trend="t"``; at d = 1 it is the mean step), both together ``trend="ct"``;
+   levels (``trend="t"``; at d = 1 it is the mean step), both together ``trend="ct"``; they
+   must agree with ``include_constant``;
 4. filters the data with the exported ``parameters`` (or, with ``--refit``, estimates them
    again by maximum likelihood) and forecasts;
-5. back-transforms the forecasts and the interval bounds (the point forecast becomes the
-   median on the original scale).
+5. adds the interventions' effects over the horizon back (a level shift stays, a temporary
+   change keeps decaying, an additive outlier is gone) and back-transforms the forecasts and
+   the interval bounds (the point forecast becomes the median on the original scale).
 """
 
 from __future__ import annotations
@@ -44,19 +51,25 @@ import pandas as pd
 from scipy.special import boxcox, inv_boxcox
 from statsmodels.tsa.arima.model import ARIMA
 
-EXPORT_SCHEMA = ("lagdesk-orders", 1)
+EXPORT_SCHEMA = "lagdesk-orders"
+EXPORT_VERSIONS = (1, 2, 3)  # version 2 added the not_arima list, version 3 interventions
+TEMPORARY_DECAY = 0.7  # the decay of a temporary_change, as the export's schema states
 LEVELS = (0.80, 0.95)
 OUTPUT_FIELDS = ("series_id", "step", "timestamp", "forecast", "lower_80", "upper_80", "lower_95", "upper_95")
 DEFAULT_HORIZON = 12
 
 
 def read_export(path: Path) -> list[dict]:
-    """The orders of a Lagdesk JSON export, after checking its schema name and version."""
+    """The orders of a Lagdesk JSON export, after checking its schema name and version; the
+    series marked not_arima are named as routed elsewhere."""
     document = json.loads(path.read_text(encoding="utf-8"))
-    if (document.get("schema"), document.get("version")) != EXPORT_SCHEMA:
-        raise SystemExit(f"{path}: not a Lagdesk orders export version 1")
+    if document.get("schema") != EXPORT_SCHEMA or document.get("version") not in EXPORT_VERSIONS:
+        raise SystemExit(f"{path}: not a Lagdesk orders export of version {' or '.join(map(str, EXPORT_VERSIONS))}")
     left_out = ", ".join(f"{n} {status}" for status, n in document["left_out"].items())
     print(f"{path}: {len(document['orders'])} orders; left out by the reviewers: {left_out}", file=sys.stderr)
+    for routed in document.get("not_arima", []):
+        print(f"series {routed['series_id']!r}: not an ARIMA series ({routed['reviewer']}: {routed['note'] or 'no note'}); "
+              "no forecast here, routed to another method", file=sys.stderr)
     return document["orders"]
 
 
@@ -118,6 +131,9 @@ def arima_for(order: dict, z: np.ndarray) -> tuple[ARIMA, dict]:
     """The ARIMA model of an exported order, and its parameters under statsmodels' names."""
     parameters = dict(order["parameters"])
     trend = "".join(t for name, t in (("const", "c"), ("drift", "t")) if name in parameters) or "n"
+    if (trend != "n") != order["include_constant"]:
+        raise SystemExit(f"series {order['series_id']!r}: include_constant is {order['include_constant']} "
+                         f"but the parameters are {sorted(parameters)}")
     named = {ARIMA_NAMES.get(name, name): value for name, value in parameters.items()}
     model = ARIMA(
         z,
@@ -128,9 +144,27 @@ def arima_for(order: dict, z: np.ndarray) -> tuple[ARIMA, dict]:
     return model, named
 
 
+def intervention_effects(order: dict, index: pd.Index, horizon: int) -> np.ndarray:
+    """The summed effects of the order's interventions over the data and the ``horizon`` after it."""
+    effects = np.zeros(len(index) + horizon)
+    steps = np.arange(effects.size)
+    for item in order.get("interventions", []):
+        stamp = item["timestamp"]
+        matches = np.flatnonzero(index == (pd.Timestamp(stamp) if isinstance(index, pd.DatetimeIndex) else int(stamp)))
+        if not matches.size:
+            raise SystemExit(f"series {order['series_id']!r}: intervention at {stamp} is not in the data")
+        at = int(matches[0])
+        shape = {"additive": steps == at, "level_shift": steps >= at,
+                 "temporary_change": np.where(steps >= at, TEMPORARY_DECAY ** np.clip(steps - at, 0, None), 0.0)}
+        effects += item["size"] * np.asarray(shape[item["kind"]], dtype=float)
+    return effects
+
+
 def forecast_order(order: dict, values: pd.Series, horizon: int, refit: bool) -> list[dict]:
     """Forecast rows of one exported order."""
-    z = transform_values(values.to_numpy(dtype=float), order["transform"])
+    effects = intervention_effects(order, values.index, horizon)
+    n = len(values)
+    z = transform_values(values.to_numpy(dtype=float), order["transform"]) - effects[:n]
     model, named = arima_for(order, z)
     if refit:
         with warnings.catch_warnings():
@@ -142,8 +176,9 @@ def forecast_order(order: dict, values: pd.Series, horizon: int, refit: bool) ->
             raise SystemExit(f"series {order['series_id']!r}: the export lacks parameters {missing}")
         result = model.filter(np.array([named[name] for name in model.param_names]))
     prediction = result.get_forecast(horizon)
-    mean = back_transform(np.asarray(prediction.predicted_mean), order["transform"])
-    bounds = {level: np.asarray(prediction.conf_int(alpha=1 - level)) for level in LEVELS}
+    ahead = effects[n:]
+    mean = back_transform(np.asarray(prediction.predicted_mean) + ahead, order["transform"])
+    bounds = {level: np.asarray(prediction.conf_int(alpha=1 - level)) + ahead[:, None] for level in LEVELS}
     stamps = _future(values.index, horizon)
     rows = []
     for step in range(horizon):

@@ -4,7 +4,9 @@ It runs as a separate process on a JSON export built here from demo series throu
 store, and reads nothing but the export and the portfolio file. Its forecasts from the exported
 parameters must be the forecasts of those fitted models: they are compared with Lagdesk's own
 forecasts of the same orders (:func:`app.core.backtest.forecast_order`, statsmodels' Kalman
-filter), so the hand-off loses nothing on the way.
+filter), so the hand-off loses nothing on the way. The overrides are saved through the review
+service with the reviewer's transform and constant, which the consumer must use; a series marked
+"not an ARIMA series" must be routed elsewhere, not forecast.
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
 
 import app
@@ -23,6 +26,7 @@ from app.core.backtest import forecast_order
 from app.core.portfolio_file import read_portfolio
 from app.jobs.order_fits import load_prepared
 from app.jobs.work import SeriesTask, identify_task
+from app.review.decisions import decide
 from app.review.export import write_export
 from app.store.analyses import save_analysis
 from app.store.database import open_database
@@ -34,18 +38,22 @@ from app.store.verdicts import set_verdict
 REPO = Path(app.__file__).resolve().parent.parent
 CONSUMER = REPO / "demo_data" / "forecast_from_export.py"
 HORIZON = 6
-APPROVED = ("hearthloaf/station-row/coffee-cake", "hearthloaf/station-row/monthly-sales")
-OVERRIDDEN = {"hearthloaf/chain/sugar-kg": ([0, 1, 1], "log"), "hearthloaf/chain/oven-gas-kwh": ([0, 0, 1], "none")}
+SHIFTED = "polarquay/chiller-4/humidity-pct"  # a level shift the engine estimates (demo_data/truth.csv)
+APPROVED = ("hearthloaf/station-row/coffee-cake", "hearthloaf/station-row/monthly-sales", SHIFTED)
+# order, transform and constant as the reviewer chose them
+OVERRIDDEN = {"hearthloaf/chain/sugar-kg": ([0, 1, 1], "log", True), "hearthloaf/chain/oven-gas-kwh": ([0, 0, 1], "none", False)}
 PENDING = "hearthloaf/chain/complaints"
+NOT_ARIMA = "hearthloaf/chain/staff-hours"
 
 
 @pytest.fixture(scope="module")
 def exported(tmp_path_factory):
-    """A store with two approved, two overridden and one pending demo series, and its JSON export."""
+    """A store with two approved, two overridden, one pending and one not-ARIMA demo series, and
+    its JSON export."""
     folder = tmp_path_factory.mktemp("consumer")
     demo = pd.read_csv(REPO / "demo_data" / "portfolio.csv", dtype=str)
     portfolio = folder / "portfolio.csv"
-    demo[demo["series_id"].isin([*APPROVED, *OVERRIDDEN, PENDING])].to_csv(portfolio, index=False)
+    demo[demo["series_id"].isin([*APPROVED, *OVERRIDDEN, PENDING, NOT_ARIMA])].to_csv(portfolio, index=False)
     db = open_database(folder / "lagdesk.db")
     import_portfolio(db, portfolio)
     with threadpool_limits(limits=1):
@@ -58,9 +66,12 @@ def exported(tmp_path_factory):
                             seasonal_order=list(suggested.seasonal_order), transform=result.transform.to_json(),
                             reviewer="ann", version=0)
             elif raw.series_id in OVERRIDDEN:
-                order, transform = OVERRIDDEN[raw.series_id]
-                set_verdict(db, raw.series_id, status="overridden", order=order, seasonal_order=[0, 0, 0, 0],
-                            transform=transform, reviewer="bob", version=0)
+                order, transform, constant = OVERRIDDEN[raw.series_id]
+                decide(db, raw.series_id, status="overridden", order=order, seasonal_order=None, transform=transform,
+                       include_constant=constant, note="", reviewer="bob", version=0, confirm=True)
+            elif raw.series_id == NOT_ARIMA:
+                decide(db, raw.series_id, status="not_arima", order=None, seasonal_order=None,
+                       note="shift rota, not a process", reviewer="bob", version=0)
         write_export(db, folder / "orders.json", "json")
     yield db, folder, portfolio
     db.close()
@@ -75,6 +86,7 @@ def run_consumer(folder: Path, portfolio: Path, *extra: str) -> pd.DataFrame:
     )
     assert done.returncode == 0, done.stderr
     assert "left out by the reviewers: 1 pending, 0 parked, 0 recheck" in done.stderr
+    assert f"series {NOT_ARIMA!r}: not an ARIMA series (bob: shift rota, not a process); no forecast here" in done.stderr
     return pd.read_csv(output)
 
 
@@ -84,11 +96,18 @@ def test_the_consumer_forecasts_every_exported_series_as_lagdesk_fitted_it(expor
     assert sorted(set(forecasts["series_id"])) == sorted([*APPROVED, *OVERRIDDEN])
     for order in decided_orders(db):
         sid = order.record["series_id"]
+        if sid in OVERRIDDEN:  # the reviewer's transform and constant, in the record and in the model
+            _, transform, constant = OVERRIDDEN[sid]
+            assert (order.record["transform"], order.record["include_constant"]) == (transform, constant)
+            assert ({"const", "drift"} & set(order.record["parameters"]) != set()) == constant
+            assert order.transform.to_json() == transform and (order.model.trend != "n") == constant
         rows = forecasts[forecasts["series_id"] == sid]
         assert rows["step"].tolist() == list(range(1, HORIZON + 1))
         prepared, _ = load_prepared(db, sid)
         expected_stamps = pd.date_range(prepared.index[-1], periods=HORIZON + 1, freq=prepared.freq)[1:]
         assert pd.to_datetime(rows["timestamp"]).tolist() == expected_stamps.tolist()
+        if order.record["interventions"]:
+            continue  # checked against a regression with ARIMA errors below
         reference = forecast_order(prepared.values, order.model, order.transform, HORIZON)
         np.testing.assert_allclose(rows["forecast"], reference.mean, rtol=1e-6, err_msg=sid)
         for level in (80, 95):
@@ -103,3 +122,30 @@ def test_the_consumer_can_refit_instead(exported):
     assert forecasts.groupby("series_id").size().to_dict() == {sid: HORIZON for sid in [*APPROVED, *OVERRIDDEN]}
     values = forecasts[["lower_95", "lower_80", "forecast", "upper_80", "upper_95"]].to_numpy()
     assert np.isfinite(values).all() and (np.diff(values, axis=1) >= 0).all()
+
+
+def test_the_consumer_carries_a_level_shift_into_the_forecasts(exported):
+    # The export's level shift with the order's parameters is a regression with ARIMA errors
+    # (Box & Tiao 1975): statsmodels' ARIMA with the shift's step as an exogenous column,
+    # filtered at the exported parameters and the shift's size as its coefficient, and the
+    # step kept at 1 over the horizon, gives the same forecasts and intervals.
+    db, folder, portfolio = exported
+    forecasts = run_consumer(folder, portfolio)
+    order = next(o for o in decided_orders(db) if o.record["series_id"] == SHIFTED)
+    shifts = order.record["interventions"]
+    assert [i["kind"] for i in shifts] == ["level_shift"] and order.record["transform"] == "none"
+    prepared, _ = load_prepared(db, SHIFTED)
+    at = list(prepared.index.strftime("%Y-%m-%d")).index(shifts[0]["timestamp"])
+    step = (np.arange(prepared.n) >= at).astype(float)
+    parameters = dict(order.record["parameters"])
+    assert set(parameters) <= {"const", "ar.L1", "ar.L2", "ma.L1", "ma.L2", "sigma2"}
+    model = ARIMA(prepared.values, exog=step, order=(order.model.p, order.model.d, order.model.q),
+                  trend="c" if "const" in parameters else "n", enforce_stationarity=False, enforce_invertibility=False)
+    values = {**parameters, "x1": shifts[0]["size"]}
+    result = model.filter(np.array([values[name] for name in model.param_names]))
+    reference = result.get_forecast(HORIZON, exog=np.ones(HORIZON))
+    rows = forecasts[forecasts["series_id"] == SHIFTED]
+    np.testing.assert_allclose(rows["forecast"], reference.predicted_mean, rtol=1e-6)
+    lower, upper = np.asarray(reference.conf_int(alpha=0.05)).T
+    np.testing.assert_allclose(rows["lower_95"], lower, rtol=1e-6)
+    np.testing.assert_allclose(rows["upper_95"], upper, rtol=1e-6)

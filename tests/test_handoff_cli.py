@@ -96,3 +96,38 @@ def test_backtest_of_an_unknown_series_is_one_line(run_cli, tmp_path):
     run_cli("import", write_series(tmp_path / "v1.csv", np.arange(40.0)), "--db", db_path)
     code, out, err = run_cli("backtest", "nope", "--db", db_path)
     assert code == 2 and out == "" and len(err.splitlines()) == 1 and "nope" in err
+
+
+def test_decide_takes_the_transform_constant_confirmation_and_not_arima(run_cli, tmp_path):
+    db_path = tmp_path / "lagdesk.db"
+    noise = 20.0 + np.random.default_rng(5).normal(size=N)
+    drifting = autocorrelated(N)
+    index = pd.date_range("2020-01-06", periods=N, freq="W-MON").strftime("%Y-%m-%d")
+    other = "depot-3/freezer/temp"
+    pd.concat([pd.DataFrame({"series_id": SID, "timestamp": index, "value": noise}),
+               pd.DataFrame({"series_id": other, "timestamp": index, "value": drifting})]).to_csv(tmp_path / "p.csv", index=False)
+    assert run_cli("import", tmp_path / "p.csv", "--db", db_path)[0] == 0
+    assert run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")[0] == 0
+
+    code, out, _ = run_cli("decide", SID, "override", "--order", "1,0,0", "--transform", "log", "--constant",
+                           "--reviewer", "ann", "--json", "--db", db_path)
+    assert code == 0
+    assert {k: json.loads(out)[k] for k in ("status", "order", "transform", "trend")} == {
+        "status": "overridden", "order": [1, 0, 0], "transform": "log", "trend": "c"}
+    # White noise around a mean for an AR(1) with phi = 0.95: statsmodels' Ljung-Box rejects.
+    assert acorr_ljungbox(drifting - drifting.mean(), lags=[10], return_df=True)["lb_pvalue"].iloc[0] < 0.01
+    code, out, err = run_cli("decide", other, "override", "--order", "0,0,0", "--reviewer", "ann", "--db", db_path)
+    assert (code, out) == (2, "") and len(err.splitlines()) == 1 and "confirm" in err
+    assert run_cli("decide", other, "override", "--order", "0,0,0", "--confirm", "--reviewer", "ann", "--db", db_path)[0] == 0
+    code, out, _ = run_cli("decide", other, "not-arima", "--note", "sensor swapped", "--reviewer", "ann", "--db", db_path)
+    assert code == 0 and out.startswith(f"{other}: not_arima (version 2")
+    code, _, err = run_cli("decide", SID, "pending", "--transform", "log", "--reviewer", "ann", "--db", db_path)
+    assert code == 2 and "--transform and --constant go with --order" in err
+
+    target = tmp_path / "orders.json"
+    code, out, _ = run_cli("export", "--db", db_path, "-o", target)
+    assert code == 0 and "1 series marked not_arima (listed apart in the JSON)" in out
+    document = json.loads(target.read_text())
+    jsonschema.validate(document, SCHEMA)
+    assert [(o["series_id"], o["transform"], o["include_constant"]) for o in document["orders"]] == [(SID, "log", True)]
+    assert [(r["series_id"], r["note"]) for r in document["not_arima"]] == [(other, "sensor swapped")]

@@ -1,6 +1,7 @@
 """Fitting a chosen order to a series' stored data.
 
-Callers: the export (the parameters of a custom order that no analysis fitted), the re-check
+Callers: the export (the parameters of a custom order that no analysis fitted), a decision on
+such an order (its fit is kept for the export), the re-check
 after new data (is the approved order still good?), and the review service's custom fits and
 forecast checks. Fits run with BLAS pinned to one thread: on these small matrices extra BLAS threads only compete (three times slower measured
 here on two cores).
@@ -8,13 +9,17 @@ here on two cores).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
 import sqlite_utils
 from threadpoolctl import threadpool_limits
 
+from app.core.analysis import Intervention
 from app.core.errors import OrderError
 from app.core.fitting import CandidateFit, fit_candidate
 from app.core.identify import ENGINE_VERSION
+from app.core.interventions import adjusted
 from app.core.order import Order
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.transform import TransformChoice, apply_transform
@@ -43,8 +48,12 @@ def load_prepared(db: sqlite_utils.Database, series_id: str) -> tuple[PreparedSe
     return prepare_series(values, series_id), fingerprint
 
 
-def fit_stored_order(prepared: PreparedSeries, model: Order, transform: TransformChoice) -> CandidateFit:
-    """Fit ``model`` to the series on the ``transform`` scale, naming the series on failure.
+def fit_stored_order(
+    prepared: PreparedSeries, model: Order, transform: TransformChoice, interventions: Sequence[Intervention] = ()
+) -> CandidateFit:
+    """Fit ``model`` to the series on the ``transform`` scale, with the effects of
+    ``interventions`` taken out as the engine took them out
+    (:meth:`app.core.analysis.Analysis.interventions_on`), naming the series on failure.
 
     Raises
     ------
@@ -54,7 +63,7 @@ def fit_stored_order(prepared: PreparedSeries, model: Order, transform: Transfor
     """
     try:
         with threadpool_limits(limits=1):
-            return fit_candidate(apply_transform(prepared.values, transform), model)
+            return fit_candidate(adjusted(apply_transform(prepared.values, transform), interventions), model)
     except OrderError as exc:
         raise OrderError(f"series {prepared.series_id!r}: {model.label()} cannot be fitted ({exc})") from None
     except NUMERICAL_FAILURES as exc:
@@ -63,11 +72,21 @@ def fit_stored_order(prepared: PreparedSeries, model: Order, transform: Transfor
         ) from None
 
 
+def fit_and_keep(
+    db: sqlite_utils.Database, prepared: PreparedSeries, fingerprint: str, model: Order, transform: TransformChoice,
+    interventions: Sequence[Intervention] = (),
+) -> CandidateFit:
+    """Fit a chosen model (:func:`fit_stored_order`) and keep its parameters for the export,
+    filed under the ``fingerprint`` of the data fitted."""
+    fit = fit_stored_order(prepared, model, transform, interventions)
+    parameters = fit.to_candidate(keep_residuals=False).parameter_values()
+    save_order_fit(db, prepared.series_id, fingerprint, model, transform, parameters, ENGINE_VERSION)
+    return fit
+
+
 def fill_parameters(db: sqlite_utils.Database, decided: DecidedOrder) -> None:
     """Refit a decided order whose record has no parameters yet, keep the refit, and fill them in."""
     prepared, fingerprint = load_prepared(db, decided.record["series_id"])
-    fit = fit_stored_order(prepared, decided.model, decided.transform)
-    parameters = fit.to_candidate().parameter_values()
-    save_order_fit(db, prepared.series_id, fingerprint, decided.model, decided.transform, parameters, ENGINE_VERSION)
-    decided.record["parameters"] = parameters
+    fit = fit_and_keep(db, prepared, fingerprint, decided.model, decided.transform, decided.interventions)
+    decided.record["parameters"] = fit.to_candidate(keep_residuals=False).parameter_values()
     decided.record["engine_version"] = ENGINE_VERSION

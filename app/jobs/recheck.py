@@ -49,7 +49,7 @@ from app.core.vocabulary import DECIDED
 from app.jobs.order_fits import fit_stored_order, load_prepared
 from app.store.analyses import analysis_record
 from app.store.database import write_transaction
-from app.store.orders import save_order_fit
+from app.store.orders import save_order_fit, verdict_model
 from app.store.verdicts import confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck
 
 AICC_MARGIN = 10.0
@@ -79,7 +79,7 @@ class OrderCheck:
 def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> OrderCheck:
     """Judge the verdict's order on ``prepared`` against the ``analysis`` of the same data."""
     transform = TransformChoice.from_json(verdict["transform"])
-    model, candidate = analysis.model_for(verdict["order"], verdict["seasonal_order"])
+    model, candidate = verdict_model(analysis, verdict["order"], verdict["seasonal_order"], verdict.get("trend"))
     check = OrderCheck(model, transform)
     label = model.label()
     if (analysis.d, analysis.D) != (model.d, model.D):
@@ -90,7 +90,7 @@ def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> 
         lb_p, lb_lags, aicc = candidate.ljung_box_p, candidate.ljung_box_lags, candidate.aicc
     else:
         try:
-            fit = fit_stored_order(prepared, model, transform).to_candidate(keep_residuals=False)
+            fit = fit_stored_order(prepared, model, transform, analysis.interventions_on(transform)).to_candidate(keep_residuals=False)
         except OrderError as exc:
             check.reasons.append(f"{label} can no longer be fitted: {exc}")
             return check

@@ -1,16 +1,20 @@
-"""Decisions on many series at once: the approval of every pending, firm suggestion in a filter,
-and parking a selection of series (or every waiting one in a filter) with one note."""
+"""Decisions on many series at once: the approval of every pending, firm suggestion in a filter
+(and its undo), and parking a selection of series (or every waiting one in a filter) with one note."""
 
 from __future__ import annotations
 
 from collections.abc import Iterable
+from dataclasses import dataclass
 
 import sqlite_utils
 
+from app.core.errors import LagdeskError
 from app.core.vocabulary import Confidence, VerdictStatus
-from app.review.decisions import DecisionError, checked_note, decide
+from app.review.decisions import DecisionError, approval_risks, checked_note, decide
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
+from app.store.bulk_approvals import get_bulk_approval, mark_undone, record_bulk_approval
+from app.store.database import write_transaction
 from app.store.series import list_series
 from app.store.verdicts import StaleVersion, get_verdict, set_verdict
 
@@ -81,10 +85,33 @@ def park(db: sqlite_utils.Database, series_ids: Iterable[str], reviewer: str, no
     return parked
 
 
-def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, note: str = "") -> list[str]:
-    """Approve the suggestion of every pending, firm series in ``flt``; returns the ids approved.
+@dataclass(frozen=True)
+class BulkApproval:
+    """What a bulk approval did: its id (None when it approved nothing, and nothing was
+    recorded) and the series it approved."""
 
-    Each series is re-read before it is approved: one decided or re-analysed meanwhile is left alone.
+    bulk_id: int | None
+    approved: list[str]
+
+
+class UndoRefused(LagdeskError):
+    """A bulk approval that can no longer be undone: undone already, or a series of it changed since."""
+
+    http_status = 409
+
+
+# How many changed series an undo refusal names before it says "and N more".
+NAMED_IN_REFUSAL = 10
+
+
+def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, note: str = "") -> BulkApproval:
+    """Approve the suggestion of every pending, firm series in ``flt`` and record the batch, so
+    that :func:`undo_bulk_approval` can reopen exactly these series.
+
+    Each series is re-read before it is approved: one decided or re-analysed meanwhile is left
+    alone, and so is a firm suggestion that a single approval would ask a note for
+    (:func:`app.review.decisions.approval_risks`: firm already rules out a fit that did not
+    converge or fails the Ljung-Box test, but not coefficients without a standard error).
 
     Raises
     ------
@@ -92,17 +119,54 @@ def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, no
         When the note is longer than :data:`app.review.decisions.MAX_NOTE_LENGTH`.
     """
     checked_note(note)
-    approved = []
+    approved: dict[str, int] = {}
     for series_id in firm_pending_ids(db, flt):
         verdict = get_verdict(db, series_id)
         analysis = load_analysis(db, series_id)
         if verdict["status"] != VerdictStatus.PENDING or analysis is None or analysis.confidence != Confidence.FIRM:
             continue
+        if approval_risks(analysis.suggested):
+            continue
         suggested = analysis.suggested.order
-        set_verdict(
+        saved = set_verdict(
             db, series_id, status=VerdictStatus.APPROVED, order=list(suggested.order),
             seasonal_order=list(suggested.seasonal_order), transform=analysis.transform.to_json(),
-            note=note, reviewer=reviewer, version=verdict["version"],
+            trend=suggested.trend, note=note, reviewer=reviewer, version=verdict["version"],
         )
-        approved.append(series_id)
-    return approved
+        approved[series_id] = saved["version"]
+    bulk_id = record_bulk_approval(db, reviewer, note, flt.params(), approved) if approved else None
+    return BulkApproval(bulk_id, list(approved))
+
+
+def undo_bulk_approval(db: sqlite_utils.Database, bulk_id: int, reviewer: str, note: str = "") -> list[str]:
+    """Reopen (``pending``) every series bulk approval ``bulk_id`` approved, all or none; returns their ids.
+
+    Allowed while the approval is not undone yet and each of its series is still at the
+    verdict version the approval gave it. The history keeps the approval and the reopening.
+
+    Raises
+    ------
+    UnknownBulkApproval
+        When there is no such bulk approval.
+    UndoRefused
+        When it was undone already, or series changed since (the message names them); nothing
+        is changed.
+    """
+    checked_note(note)
+    with write_transaction(db):
+        record = get_bulk_approval(db, bulk_id)
+        if record["undone_at"]:
+            raise UndoRefused(f"bulk approval {bulk_id} was undone already ({record['undone_at']} by {record['undone_by']})")
+        changed = record["changed"]
+        if changed:
+            named = ", ".join(repr(series_id) for series_id in changed[:NAMED_IN_REFUSAL])
+            more = f" and {len(changed) - NAMED_IN_REFUSAL} more" if len(changed) > NAMED_IN_REFUSAL else ""
+            raise UndoRefused(
+                f"bulk approval {bulk_id} cannot be undone: {len(changed)} of its {len(record['approved'])} series "
+                f"changed since ({named}{more}); reopen the others one by one"
+            )
+        for series_id, version in record["approved"].items():
+            set_verdict(db, series_id, status=VerdictStatus.PENDING, order=None, seasonal_order=None,
+                        note=note or f"undo of bulk approval {bulk_id}", reviewer=reviewer, version=version)
+        mark_undone(db, bulk_id, reviewer)
+    return list(record["approved"])

@@ -15,19 +15,28 @@ import sqlite_utils
 from app.core.analysis import Analysis, Candidate, delta_aicc_against
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import Order, validate_order
-from app.core.transform import TransformChoice
+from app.core.prepare import PreparedSeries
+from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import REVIEWER_STATUSES, VerdictStatus
-from app.jobs.order_fits import fit_stored_order, load_prepared
+from app.jobs.order_fits import fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
 from app.store.verdicts import get_verdict, set_verdict
 
 # A note is a reviewer's reason in a few sentences; the bound keeps a pasted file (or an
 # attacker's megabytes) out of the history, which keeps every version of it.
 MAX_NOTE_LENGTH = 5_000
+# Residuals this far from white noise make a one-step approval, or a saved order, risky: the
+# level the issue asks for (a failure at 5% already keeps a suggestion from firm).
+RISKY_LJUNG_BOX_LEVEL = 0.01
+INNOVATION_VARIANCE = "sigma2"
 
 
 class DecisionError(LagdeskError):
     """A decision that contradicts the analysis (e.g. 'approved' with an order that was not suggested)."""
+
+
+class ConfirmationNeeded(DecisionError):
+    """An order whose residuals fail the Ljung-Box test at 1%, saved without ``confirm``."""
 
 
 def checked_note(note: str) -> str:
@@ -41,6 +50,36 @@ def checked_note(note: str) -> str:
     if len(note) > MAX_NOTE_LENGTH:
         raise DecisionError(f"a note may hold at most {MAX_NOTE_LENGTH:,} characters; this one has {len(note):,}")
     return note
+
+
+def p_words(p: float) -> str:
+    """A Ljung-Box p-value in words: ``p < 0.001`` or ``p = 0.004``."""
+    return "p < 0.001" if p < 0.001 else f"p = {p:.3f}"
+
+
+def fails_ljung_box(candidate: Candidate) -> bool:
+    """Whether the candidate's residuals fail the Ljung-Box test at :data:`RISKY_LJUNG_BOX_LEVEL`."""
+    return candidate.ljung_box_p is not None and candidate.ljung_box_p < RISKY_LJUNG_BOX_LEVEL
+
+
+def approval_risks(candidate: Candidate) -> list[str]:
+    """Why approving ``candidate`` with one key or click is risky, in words; empty when it is not.
+
+    A fit that did not converge, residuals that fail the Ljung-Box test at 1%, or coefficients
+    without a standard error (the information matrix could not be inverted): each asks for a
+    note saying why the order is approved anyway.
+    """
+    risks = []
+    if not candidate.converged:
+        risks.append("the fit did not converge")
+    if fails_ljung_box(candidate):
+        assert candidate.ljung_box_p is not None
+        risks.append(f"its residuals fail the Ljung-Box test at 1% ({p_words(candidate.ljung_box_p)})")
+    # sigma2 is concentrated out of the likelihood (app.core.fitting): it never has a standard error.
+    missing = [p.name for p in candidate.params if p.se is None and p.name != INNOVATION_VARIANCE]
+    if missing:
+        risks.append(f"no standard error for {', '.join(missing)}")
+    return risks
 
 
 def checked_order(analysis: Analysis | None, n: int, order: Sequence[int], seasonal_order: Sequence[int] | None) -> Order:
@@ -57,22 +96,92 @@ def checked_order(analysis: Analysis | None, n: int, order: Sequence[int], seaso
     return analysis.model_for(model.order, model.seasonal_order)[0] if analysis else model
 
 
-def fit_custom_order(db: sqlite_utils.Database, series_id: str, order: Sequence[int], seasonal_order: Sequence[int] | None) -> Candidate:
-    """Fit ``order`` to the stored series on the scale the engine identified it on; nothing is saved.
+def with_constant(model: Order, include_constant: bool | None) -> Order:
+    """``model`` with or without its constant; None keeps the term it has.
 
-    The candidate's ``source`` is ``custom`` and its ``delta_aicc`` compares it with the stored
-    candidates of the same differencing (None when there is none).
+    A constant is a mean when nothing is differenced, a drift (a linear trend in levels) after
+    one difference, ordinary or seasonal; a model that already has one keeps its own (a mean
+    and a trend stays so).
 
     Raises
     ------
-    UnknownSeries, OrderError, SeriesProblem
+    OrderError
+        For a constant in a model differenced twice (it would be a quadratic trend).
+    """
+    if include_constant is None:
+        return model
+    if not include_constant:
+        return replace(model, trend="n")
+    if model.trend != "n":
+        return model
+    differences = model.d + model.D
+    if differences >= 2:
+        raise OrderError(
+            f"{model.label()} is differenced twice: a constant there is a quadratic trend, which Lagdesk does not fit"
+        )
+    return replace(model, trend="c" if differences == 0 else "t")
+
+
+def checked_transform(series_id: str, analysis: Analysis | None, transform: str | dict | None) -> TransformChoice:
+    """The transform a decision or fit asks for: ``"none"``, ``"log"`` or ``{"box_cox": lambda}``;
+    None takes the analysis' (none without an analysis).
+
+    Raises
+    ------
+    DecisionError
+        For anything else, naming the series.
+    """
+    if transform is None:
+        return analysis.transform if analysis else TransformChoice("none")
+    try:
+        return TransformChoice.from_json(transform)
+    except ValueError as exc:
+        raise DecisionError(f"series {series_id!r}: {exc}") from None
+
+
+def check_scale(prepared: PreparedSeries, choice: TransformChoice) -> None:
+    """Refuse a log or Box-Cox transform of a series with values at or below zero.
+
+    Raises
+    ------
+    OrderError
+        Naming the series and how many values are not positive.
+    """
+    try:
+        apply_transform(prepared.values, choice)
+    except OrderError as exc:
+        raise OrderError(f"series {prepared.series_id!r}: {exc}") from None
+
+
+def fit_custom_order(
+    db: sqlite_utils.Database, series_id: str, order: Sequence[int], seasonal_order: Sequence[int] | None,
+    transform: str | dict | None = None, include_constant: bool | None = None,
+) -> Candidate:
+    """Fit ``order`` to the stored series; nothing is saved.
+
+    ``transform`` and ``include_constant`` default to the analysis' transform and the term the
+    engine gives the order. The candidate's ``source`` is ``custom`` and its ``delta_aicc``
+    compares it with the stored candidates of the same differencing and transform (None when
+    there is none: criteria on another scale do not compare).
+
+    Raises
+    ------
+    UnknownSeries, OrderError, SeriesProblem, DecisionError
     """
     prepared, _ = load_prepared(db, series_id)
     analysis = load_analysis(db, series_id)
-    model = checked_order(analysis, prepared.n, order, seasonal_order)
-    transform = analysis.transform if analysis else TransformChoice("none")
-    fit = fit_stored_order(prepared, model, transform).to_candidate()
-    return replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if analysis else ()))
+    model = with_constant(checked_order(analysis, prepared.n, order, seasonal_order), include_constant)
+    choice = checked_transform(series_id, analysis, transform)
+    fit = fit_stored_order(prepared, model, choice, analysis.interventions_on(choice) if analysis else ()).to_candidate()
+    same_scale = analysis is not None and analysis.transform.to_json() == choice.to_json()
+    return replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if same_scale and analysis else ()))
+
+
+def _stored_candidate(analysis: Analysis | None, model: Order, choice: TransformChoice) -> Candidate | None:
+    """The analysis' candidate of exactly this model on this scale, if it fitted one."""
+    if analysis is None or analysis.transform.to_json() != choice.to_json():
+        return None
+    return next((c for c in analysis.candidates if c.order == model), None)
 
 
 def decide(
@@ -85,25 +194,37 @@ def decide(
     note: str,
     reviewer: str,
     version: int,
+    transform: str | dict | None = None,
+    include_constant: bool | None = None,
+    confirm: bool = False,
 ) -> dict:
     """Check and save a verdict; returns the new verdict.
 
-    ``approved`` takes the suggestion (an order, if given, must be the suggested one);
-    ``overridden`` needs an order, checked against the series length; ``parked`` keeps an
-    order if one is given; ``pending`` reopens a decided series (its order is cleared; the
-    history keeps every step).
+    ``approved`` takes the suggestion (an order, if given, must be the suggested one, with the
+    analysis' transform and term); ``overridden`` needs an order, checked against the series
+    length; ``parked`` keeps an order if one is given; ``pending`` reopens a decided series and
+    ``not_arima`` records that no ARIMA order should forecast it (both clear the order; the
+    history keeps every step). ``transform`` and ``include_constant`` override the analysis'
+    transform and the term the engine gives the order (None keeps them).
+
+    Two gates stop a risky decision taken in one step: approving a suggestion with
+    :func:`approval_risks` needs a note, and saving an order other than the suggestion whose
+    residuals fail the Ljung-Box test at 1% needs ``confirm``. An order the analysis did not
+    fit with this transform and term is fitted here (and the fit kept for the export), which
+    also checks that a log or Box-Cox transform meets positive data.
 
     Raises
     ------
-    UnknownSeries, StaleVersion, OrderError, DecisionError
+    UnknownSeries, StaleVersion, OrderError, DecisionError, ConfirmationNeeded
     """
     get_verdict(db, series_id)  # UnknownSeries before anything else
     checked_note(note)
     if status not in REVIEWER_STATUSES:
         raise DecisionError(f"status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}")
     analysis = load_analysis(db, series_id)
-    if status == VerdictStatus.PENDING:
-        order = seasonal_order = None
+    if status in (VerdictStatus.PENDING, VerdictStatus.NOT_ARIMA):
+        return set_verdict(db, series_id, status=status, order=None, seasonal_order=None, note=note,
+                           reviewer=reviewer, version=version)
     if status == VerdictStatus.APPROVED:
         if analysis is None:
             raise DecisionError(f"series {series_id!r} has no analysis, so no suggestion to approve; send 'overridden' with an order")
@@ -117,12 +238,41 @@ def decide(
             )
     if status == VerdictStatus.OVERRIDDEN and order is None:
         raise OrderError("an overridden verdict needs an order [p, d, q]")
-    if order is not None:
-        n = analysis.n if analysis else load_prepared(db, series_id)[0].n
-        model = checked_order(analysis, n, order, seasonal_order)
-        order, seasonal_order = list(model.order), list(model.seasonal_order)
+    if order is None:
+        if transform is not None or include_constant is not None:
+            raise DecisionError(f"series {series_id!r}: a transform or constant goes with an order")
+        return set_verdict(db, series_id, status=status, order=None, seasonal_order=None, note=note,
+                           reviewer=reviewer, version=version)
+    prepared, fingerprint = load_prepared(db, series_id)
+    model = with_constant(checked_order(analysis, prepared.n, order, seasonal_order), include_constant)
+    choice = checked_transform(series_id, analysis, transform)
+    if transform is not None:
+        check_scale(prepared, choice)
+    candidate = _stored_candidate(analysis, model, choice)
+    if status == VerdictStatus.APPROVED:
+        assert analysis is not None
+        if candidate is None or candidate.order != analysis.suggested.order:
+            raise DecisionError(
+                f"'approved' means the suggested {analysis.suggested.label} on the analysis' scale "
+                f"({analysis.transform.name()}) with its own constant; use 'overridden' to change them"
+            )
+        risks = approval_risks(candidate)
+        if risks and not note.strip():
+            raise DecisionError(
+                f"series {series_id!r}: approving {candidate.label} needs a note saying why, as {'; '.join(risks)}"
+            )
+    elif status == VerdictStatus.OVERRIDDEN:
+        if candidate is None:
+            candidate = fit_and_keep(
+                db, prepared, fingerprint, model, choice, analysis.interventions_on(choice) if analysis else ()
+            ).to_candidate(keep_residuals=False)
+        if fails_ljung_box(candidate) and not confirm:
+            assert candidate.ljung_box_p is not None
+            raise ConfirmationNeeded(
+                f"series {series_id!r}: the residuals of {model.label()} fail the Ljung-Box test at 1% "
+                f"({p_words(candidate.ljung_box_p)}); confirm to save it anyway"
+            )
     return set_verdict(
-        db, series_id, status=status, order=order, seasonal_order=seasonal_order,
-        transform=analysis.transform.to_json() if analysis and status != VerdictStatus.PENDING else "none",
-        note=note, reviewer=reviewer, version=version,
+        db, series_id, status=status, order=list(model.order), seasonal_order=list(model.seasonal_order),
+        transform=choice.to_json(), trend=model.trend, note=note, reviewer=reviewer, version=version,
     )

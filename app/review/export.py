@@ -2,13 +2,21 @@
 
 The JSON document (schema ``schemas/lagdesk-orders.schema.json``)::
 
-    {"schema": "lagdesk-orders", "version": 1, "generated_at": "...",
-     "orders": [{field: value, ...}, ...], "left_out": {"pending": n, "parked": n, "recheck": n}}
+    {"schema": "lagdesk-orders", "version": 3, "generated_at": "...",
+     "orders": [{field: value, ...}, ...], "left_out": {"pending": n, "parked": n, "recheck": n},
+     "not_arima": [{"series_id": ..., "reviewer": ..., "decided_at": ..., "note": ...}, ...]}
 
-with the record fields of :data:`app.store.orders.ORDER_FIELDS`. The CSV has one header row
-with the same field names and one row per order: ``period`` empty for a non-seasonal model,
-``include_constant`` ``true``/``false``, ``transform`` ``none``, ``log`` or the JSON object
-``{"box_cox": lambda}``, ``parameters`` as a JSON object. A text cell that a spreadsheet would
+with the record fields of :data:`app.store.orders.ORDER_FIELDS`; ``transform`` and
+``include_constant`` are the reviewer's. Version 2 added ``not_arima``: the series a reviewer
+decided no ARIMA order should forecast (intermittent or lumpy demand, say), for the forecasting
+job to route to another method; version 1 had no such list (and no such verdict). Version 3
+added ``interventions`` to each order: the outliers and level shifts to take out of the series
+before the ARIMA applies (:mod:`app.store.orders`).
+
+The CSV holds the orders only: one header row with the same field names and one row per order,
+``period`` empty for a non-seasonal model, ``include_constant`` ``true``/``false``,
+``transform`` ``none``, ``log`` or the JSON object ``{"box_cox": lambda}``, ``parameters`` as a
+JSON object, ``interventions`` as a JSON array. A text cell that a spreadsheet would
 read as a formula (one starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return)
 gets a leading single quote, as OWASP's guidance on CSV injection advises; numbers are left as
 they are, so a negative value stays a number.
@@ -41,13 +49,12 @@ from pathlib import Path
 import sqlite_utils
 
 from app.core.errors import LagdeskError
-from app.jobs.order_fits import fill_parameters
 from app.store.database import open_database, utc_now
-from app.store.orders import ORDER_FIELDS, export_snapshot
+from app.store.orders import ORDER_FIELDS, export_snapshot, not_arima_series, read_snapshot
 from app.store.verdicts import DECIDED
 
 SCHEMA_NAME = "lagdesk-orders"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 3
 FORMATS = ("json", "csv")
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 NEUTRALISING_PREFIX = "'"
@@ -66,9 +73,11 @@ def build_orders_document(db: sqlite_utils.Database, statuses: Sequence[str] = D
         When a status is not approved or overridden, or a decided order cannot be fitted to its
         series (the message names the series).
     """
-    decided, left_out = export_snapshot(db, statuses)
+    (decided, left_out), routed = read_snapshot(db, lambda: (export_snapshot(db, statuses), not_arima_series(db)))
     for order in decided:
         if order.record["parameters"] is None:
+            from app.jobs.order_fits import fill_parameters  # loads the engine: only for an order without a kept fit
+
             fill_parameters(db, order)
     return {
         "schema": SCHEMA_NAME,
@@ -76,6 +85,7 @@ def build_orders_document(db: sqlite_utils.Database, statuses: Sequence[str] = D
         "generated_at": utc_now(),
         "orders": [order.record for order in decided],
         "left_out": left_out,
+        "not_arima": routed,
     }
 
 
@@ -129,7 +139,7 @@ def _csv_cell(value) -> str:
         return "true" if value else "false"
     if isinstance(value, (int, float)):
         return repr(value)
-    if isinstance(value, dict):
+    if isinstance(value, (dict, list)):
         return json.dumps(value, ensure_ascii=False)
     return neutralise_formula(str(value))
 
@@ -182,14 +192,17 @@ def export_command(
 
 
 def export_summary(document: dict, target: Path, fmt: str) -> str:
-    """One line: what was written where, what was left out, and which orders await a re-check
-    (``data_changed``)."""
+    """One line: what was written where, what was left out, the series marked ``not_arima``, and
+    which orders await a re-check (``data_changed``)."""
     orders = document["orders"]
     moved = [o["series_id"] for o in orders if o["data_changed"]]
     by_decision = {d: sum(o["decision"] == d for o in orders) for d in DECIDED}
     decided = ", ".join(f"{n} {d}" for d, n in by_decision.items() if n)
     left = ", ".join(f"{n} {status}" for status, n in document["left_out"].items())
     line = f"{len(orders)} order{'' if len(orders) == 1 else 's'}{f' ({decided})' if decided else ''} written to {target} as {fmt}; left out: {left}"
+    routed = len(document["not_arima"])
+    if routed:
+        line += f"; {routed} series marked not_arima" + (" (listed apart in the JSON)" if fmt == "json" else " (in the JSON export only)")
     if moved:
         line += (
             f"; {len(moved)} of them were decided on data that has changed since "

@@ -39,6 +39,19 @@ analyses.main_reason  the first of the analysis' confidence reasons, in the engi
                       as ``flag: NAME``), for the queue row; filled for older files from the
                       results in ``analysis_results`` (one pass over them; NULL when a result
                       carries no reasons)
+
+Version 4
+---------
+verdicts          rebuilt (SQLite cannot change a CHECK constraint) so that ``status`` may also be
+                  ``not_arima``, with a new column ``trend``: the deterministic term of the decided
+                  model as :class:`app.core.order.Order` names it (``n``, ``c``, ``t``, ``ct``);
+                  NULL for a verdict without an order and for one saved before version 4, which
+                  takes the term the analysis gives its order
+verdict_history.trend  the same, for each step
+bulk_approvals        one row per bulk approval of firm suggestions: when, who, the note, the
+                      queue filter (JSON), and when and by whom it was undone (NULL while not)
+bulk_approved         the series a bulk approval approved, each with the verdict version the
+                      approval gave it (an undo is allowed while every one is still at it)
 """
 
 from __future__ import annotations
@@ -197,7 +210,63 @@ def analysis_main_reason(db: sqlite_utils.Database) -> None:
     )
 
 
-STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason)
+_VERDICTS_V4 = """
+    CREATE TABLE verdicts_v4 (
+        series_id TEXT PRIMARY KEY REFERENCES series (series_id),
+        status TEXT NOT NULL CHECK (status IN ('pending', 'approved', 'overridden', 'parked', 'recheck', 'not_arima')),
+        arima_order TEXT,
+        seasonal_order TEXT,
+        transform TEXT NOT NULL,
+        note TEXT NOT NULL,
+        reviewer TEXT NOT NULL,
+        version INTEGER NOT NULL,
+        decided_at TEXT,
+        recheck_reason TEXT,
+        data_sha256 TEXT,
+        trend TEXT CHECK (trend IN ('n', 'c', 't', 'ct'))
+    ) STRICT
+"""
+_VERDICT_COLUMNS_V3 = (
+    "series_id, status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, "
+    "recheck_reason, data_sha256"
+)
+
+
+def verdict_choices_and_bulk_undo(db: sqlite_utils.Database) -> None:
+    """Version 4: the ``not_arima`` state, the decided model's deterministic term, and the
+    record of bulk approvals that lets one be undone."""
+    db.execute(_VERDICTS_V4)
+    db.execute(f"INSERT INTO verdicts_v4 ({_VERDICT_COLUMNS_V3}) SELECT {_VERDICT_COLUMNS_V3} FROM verdicts")
+    db.execute("DROP TABLE verdicts")
+    db.execute("ALTER TABLE verdicts_v4 RENAME TO verdicts")
+    db.execute("CREATE INDEX verdicts_status ON verdicts (status)")
+    db.execute("ALTER TABLE verdict_history ADD COLUMN trend TEXT")
+    db.execute(
+        """
+        CREATE TABLE bulk_approvals (
+            bulk_id INTEGER PRIMARY KEY,
+            at TEXT NOT NULL,
+            reviewer TEXT NOT NULL,
+            note TEXT NOT NULL,
+            filter TEXT NOT NULL,
+            undone_at TEXT,
+            undone_by TEXT
+        ) STRICT
+        """
+    )
+    db.execute(
+        """
+        CREATE TABLE bulk_approved (
+            bulk_id INTEGER NOT NULL REFERENCES bulk_approvals (bulk_id),
+            series_id TEXT NOT NULL REFERENCES series (series_id),
+            version INTEGER NOT NULL,
+            PRIMARY KEY (bulk_id, series_id)
+        ) STRICT, WITHOUT ROWID
+        """
+    )
+
+
+STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason, verdict_choices_and_bulk_undo)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

@@ -1,13 +1,22 @@
 """The decided orders as the export hands them on, and the refits of chosen orders.
 
 One record per series whose verdict has one of the chosen statuses (approved, overridden), with
-the fields of :data:`ORDER_FIELDS`. Their names are fixed, so forecasting jobs can rely on
+the fields of :data:`ORDER_FIELDS`; the transform and the constant are the reviewer's (the
+verdict's ``transform`` and ``trend``; a verdict saved before they were stored takes the term
+the analysis gives its order). Series marked ``not_arima`` are listed apart
+(:func:`not_arima_series`). Their names are fixed, so forecasting jobs can rely on
 them; the seasonal fields are spelled out so that nobody confuses ``d`` with ``D``.
 
 ``data_changed`` is true when the series' data changed after the decision (an import since
 then, and no analysis yet to re-check the order on the new data): the order was chosen for
 data the forecasting job will no longer see, so the record says so until ``lagdesk analyze``
 confirms the order or sends the series back to the queue (``recheck``).
+
+``interventions`` are the outliers, level shifts and temporary changes the analysis estimated
+(``timestamp``, ``kind``, ``size`` on the transformed scale; :mod:`app.core.interventions`):
+the ARIMA order describes the series with their effects taken out, and ``parameters`` were
+fitted to it so. They are carried when the decision keeps the analysis' transform (their sizes
+are on that scale), and are empty otherwise.
 
 ``parameters`` are the fitted coefficients of the chosen model on the series' current data, by
 name (statsmodels' names, with ``const`` for a constant, ``drift`` for a drift or trend slope,
@@ -21,14 +30,16 @@ the caller refits (:func:`app.jobs.order_fits.fit_stored_order`) and saves the r
 from __future__ import annotations
 
 import json
-from collections.abc import Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, replace
+from typing import TypeVar
 
 import sqlite_utils
 
+from app.core.analysis import Analysis, Candidate, Intervention
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import Order, validate_order
-from app.core.transform import TransformChoice
+from app.core.transform_choice import TransformChoice
 from app.core.vocabulary import DECIDED, VerdictStatus
 from app.store.analyses import analysis_from_json
 from app.store.database import utc_now, write_transaction
@@ -37,9 +48,12 @@ from app.store.verdicts import verdict_counts
 ORDER_FIELDS = (
     "series_id", "p", "d", "q", "seasonal_p", "seasonal_d", "seasonal_q", "period", "transform",
     "include_constant", "decision", "reviewer", "decided_at", "note", "data_sha256", "data_changed",
-    "last_timestamp", "engine_version", "parameters",
+    "last_timestamp", "engine_version", "parameters", "interventions",
 )
 ALWAYS_COUNTED = (VerdictStatus.PENDING, VerdictStatus.PARKED, VerdictStatus.RECHECK)
+# Listed apart in the export, for the forecasting job to route; never counted as left out.
+ROUTED_FIELDS = ("series_id", "reviewer", "decided_at", "note")
+T = TypeVar("T")
 
 
 @dataclass
@@ -51,6 +65,7 @@ class DecidedOrder:
     model: Order
     transform: TransformChoice
     fingerprint: str
+    interventions: tuple[Intervention, ...] = ()
 
 
 def checked_statuses(statuses: Sequence[str]) -> list[str]:
@@ -75,7 +90,7 @@ def decided_orders(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED)
     """Every series whose verdict has one of ``statuses``, by series id (see the module notes)."""
     chosen = checked_statuses(statuses)
     rows = db.query(
-        "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.reviewer, v.decided_at, "
+        "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.trend, v.reviewer, v.decided_at, "
         "v.note, v.data_sha256, s.last_timestamp, s.fingerprint, "
         "a.state = 'complete' AND a.fingerprint = s.fingerprint AS analysis_current, a.engine_version, "
         "r.result AS analysis, "
@@ -96,11 +111,12 @@ def _decided(row: dict) -> DecidedOrder:
     transform = TransformChoice.from_json(json.loads(row["transform"]))
     analysis = analysis_from_json(row["series_id"], row["analysis"]) if row["analysis"] else None
     try:
-        model, candidate = analysis.model_for(order, seasonal) if analysis else (validate_order(order, seasonal), None)
+        model, candidate = verdict_model(analysis, order, seasonal, row["trend"])
     except OrderError as exc:
         raise OrderError(f"series {row['series_id']!r}: the {row['status']} order cannot be used ({exc})") from None
     parameters, engine_version = None, None
     same_transform = analysis is not None and analysis.transform.to_json() == transform.to_json()
+    interventions = analysis.interventions_on(transform) if analysis is not None else ()
     if row["analysis_current"] and same_transform and candidate is not None:
         parameters, engine_version = candidate.parameter_values(), row["engine_version"]
     elif row["fit_fingerprint"] == row["fingerprint"] and row["fit_model"] == model_key(model, transform):
@@ -113,8 +129,28 @@ def _decided(row: dict) -> DecidedOrder:
         "note": row["note"], "data_sha256": row["data_sha256"], "data_changed": row["data_sha256"] != row["fingerprint"],
         "last_timestamp": row["last_timestamp"],
         "engine_version": engine_version, "parameters": parameters,
+        "interventions": [{"timestamp": i.timestamp, "kind": str(i.kind), "size": i.size} for i in interventions],
     }
-    return DecidedOrder(record, model, transform, row["fingerprint"])
+    return DecidedOrder(record, model, transform, row["fingerprint"], interventions)
+
+
+def verdict_model(
+    analysis: Analysis | None, order: Sequence[int], seasonal_order: Sequence[int] | None, trend: str | None
+) -> tuple[Order, Candidate | None]:
+    """The model a verdict decided, and the analysis' candidate of exactly that model (None when
+    it fitted none): the order with the term the analysis gives it
+    (:meth:`app.core.analysis.Analysis.model_for`), or with the reviewer's own ``trend`` when the
+    verdict stores one.
+
+    Raises
+    ------
+    OrderError
+        When the order is not a valid one.
+    """
+    model, candidate = analysis.model_for(order, seasonal_order) if analysis else (validate_order(order, seasonal_order), None)
+    if trend is not None and trend != model.trend:
+        return replace(model, trend=trend), None
+    return model, candidate
 
 
 def model_key(model: Order, transform: TransformChoice) -> str:
@@ -137,21 +173,38 @@ def save_order_fit(
         }, replace=True)
 
 
-def export_snapshot(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> tuple[list[DecidedOrder], dict[str, int]]:
-    """:func:`decided_orders` and :func:`left_out_counts` read from one snapshot of the
-    database, so the orders and the counts of what is missing agree."""
+def read_snapshot(db: sqlite_utils.Database, read: Callable[[], T]) -> T:
+    """What ``read`` returns, every read in it seeing one snapshot of the database (inside an
+    open transaction, that transaction's)."""
     if db.conn.in_transaction:
-        return decided_orders(db, statuses), left_out_counts(db, statuses)
+        return read()
     db.conn.execute("BEGIN")  # a read transaction: every read below sees the same committed state
     try:
-        return decided_orders(db, statuses), left_out_counts(db, statuses)
+        return read()
     finally:
         db.conn.execute("ROLLBACK")
 
 
+def export_snapshot(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> tuple[list[DecidedOrder], dict[str, int]]:
+    """:func:`decided_orders` and :func:`left_out_counts` read from one snapshot of the
+    database, so the orders and the counts of what is missing agree."""
+    return read_snapshot(db, lambda: (decided_orders(db, statuses), left_out_counts(db, statuses)))
+
+
+def not_arima_series(db: sqlite_utils.Database) -> list[dict]:
+    """The series a reviewer marked ``not_arima``, by id, each with the :data:`ROUTED_FIELDS`."""
+    return list(db.query(
+        f"SELECT {', '.join(ROUTED_FIELDS)} FROM verdicts WHERE status = ? ORDER BY series_id", [VerdictStatus.NOT_ARIMA.value],
+    ))
+
+
 def left_out_counts(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> dict[str, int]:
     """How many series an export of ``statuses`` leaves out, by status: always pending, parked
-    and recheck, plus a decided status that was not chosen."""
+    and recheck, plus a decided status that was not chosen (``not_arima`` series are listed,
+    not left out)."""
     chosen = checked_statuses(statuses)
     counts = verdict_counts(db)
-    return {str(status): counts[status] for status in VerdictStatus if status in ALWAYS_COUNTED or status not in chosen}
+    return {
+        str(status): counts[status] for status in VerdictStatus
+        if status in ALWAYS_COUNTED or (status not in chosen and status != VerdictStatus.NOT_ARIMA)
+    }

@@ -21,6 +21,7 @@ from collections.abc import Iterable, Sequence
 import sqlite_utils
 
 from app.core.errors import LagdeskError, OrderError
+from app.core.order import TRENDS
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, VerdictStatus
 from app.store.database import require_series, utc_now, write_transaction
 
@@ -54,7 +55,7 @@ class InvalidVerdict(LagdeskError):
     """A verdict with a status, order or transform that cannot be stored."""
 
 
-_COLUMNS = "status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, recheck_reason"
+_COLUMNS = "status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, recheck_reason, trend"
 
 
 def add_pending(db: sqlite_utils.Database, series_ids: Iterable[str]) -> None:
@@ -81,12 +82,14 @@ def get_verdict(db: sqlite_utils.Database, series_id: str) -> dict:
 
 
 def _verdict_from_row(row: Sequence) -> dict:
-    status, order, seasonal, transform, note, reviewer, version, decided_at, reason = row
+    status, order, seasonal, transform, note, reviewer, version, decided_at, reason, trend = row
     return {
         "status": status,
         "order": _loads(order),
         "seasonal_order": _loads(seasonal),
         "transform": json.loads(transform),
+        "trend": trend,
+        "include_constant": None if trend is None else trend != "n",
         "note": note,
         "reviewer": reviewer,
         "version": version,
@@ -103,6 +106,7 @@ def set_verdict(
     order: Sequence[int] | None,
     seasonal_order: Sequence[int] | None,
     transform: str | dict = "none",
+    trend: str | None = None,
     note: str = "",
     reviewer: str = "",
     version: int,
@@ -110,7 +114,9 @@ def set_verdict(
     """Record a reviewer's decision, provided ``version`` is still the current one.
 
     ``approved`` and ``overridden`` need an order; ``pending`` and ``parked`` may leave it
-    empty. ``recheck`` is set by Lagdesk itself (:func:`mark_recheck`), not by a reviewer.
+    empty; ``not_arima`` has none. ``trend`` is the model's deterministic term (``n``, ``c``,
+    ``t``, ``ct``; None: the term the analysis gives the order), stored only with an order.
+    ``recheck`` is set by Lagdesk itself (:func:`mark_recheck`), not by a reviewer.
 
     Raises
     ------
@@ -127,6 +133,10 @@ def set_verdict(
         )
     if status in DECIDED and order is None:
         raise InvalidVerdict(f"series {series_id!r}: an {status} verdict needs an order (p, d, q)")
+    if status == VerdictStatus.NOT_ARIMA and order is not None:
+        raise InvalidVerdict(f"series {series_id!r}: a not_arima verdict carries no order")
+    if trend is not None and trend not in TRENDS:
+        raise InvalidVerdict(f"series {series_id!r}: trend must be one of {', '.join(TRENDS)}, not {trend!r}")
     new_order = _checked_order(order, 3, "order", series_id)
     new_seasonal = _checked_order(seasonal_order, 4, "seasonal order", series_id)
     new_transform = _checked_transform(transform, series_id)
@@ -138,10 +148,10 @@ def set_verdict(
         seen = _fingerprint_seen(db, series_id) if status != "pending" else None
         updated = db.execute(
             "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
-            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ? "
+            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ?, trend = ? "
             "WHERE series_id = ? AND version = ?",
             [status, _dumps(new_order), _dumps(new_seasonal), json.dumps(new_transform),
-             str(note), str(reviewer), decided_at, seen, series_id, version],
+             str(note), str(reviewer), decided_at, seen, trend if new_order is not None else None, series_id, version],
         )
         if updated.rowcount != 1:
             raise StaleVersion(series_id, version, current)
@@ -217,9 +227,9 @@ def _append_history(
     """Copy the verdict as it now stands into the history (optionally naming who and why)."""
     db.execute(
         "INSERT INTO verdict_history (series_id, version, at, from_status, status, arima_order, "
-        "seasonal_order, transform, note, reviewer) "
+        "seasonal_order, transform, note, reviewer, trend) "
         "SELECT series_id, version, ?, ?, status, arima_order, seasonal_order, transform, "
-        "coalesce(?, note), coalesce(?, reviewer) FROM verdicts WHERE series_id = ?",
+        "coalesce(?, note), coalesce(?, reviewer), trend FROM verdicts WHERE series_id = ?",
         [utc_now(), from_status, note, reviewer, series_id],
     )
 
@@ -227,7 +237,7 @@ def _append_history(
 def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
     """Every change of the series' verdict, oldest first."""
     rows = db.execute(
-        "SELECT version, at, from_status, status, arima_order, seasonal_order, transform, note, reviewer "
+        "SELECT version, at, from_status, status, arima_order, seasonal_order, transform, note, reviewer, trend "
         "FROM verdict_history WHERE series_id = ? ORDER BY version",
         [series_id],
     ).fetchall()
@@ -240,10 +250,11 @@ def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
             "order": _loads(order),
             "seasonal_order": _loads(seasonal),
             "transform": json.loads(transform),
+            "trend": trend,
             "note": note,
             "reviewer": reviewer,
         }
-        for version, at, from_status, status, order, seasonal, transform, note, reviewer in rows
+        for version, at, from_status, status, order, seasonal, transform, note, reviewer, trend in rows
     ]
 
 

@@ -8,21 +8,33 @@ from pydantic import BaseModel, Field
 
 from app.core.analysis import Analysis
 from app.core.errors import OrderError
+from app.core.vocabulary import VerdictStatus
+from app.review.decisions import DecisionError
 from app.web.deps import SQLITE_MAX_INTEGER
 from app.web.review import CUSTOM_FIELDS
 
 SUGGESTION_KEY = "1"
+# The form's constant choice: blank is the engine's term for the order.
+CONSTANT_CHOICES = {"": None, "yes": True, "no": False}
+# Actions that record a state without an order.
+STATE_ACTIONS = {"park": VerdictStatus.PARKED, "reopen": VerdictStatus.PENDING, "not_arima": VerdictStatus.NOT_ARIMA}
+# What form.decision returns: status, order, seasonal order, transform, include_constant.
+Decision = tuple[str, list[int] | None, list[int] | None, str | dict | None, bool | None]
 
 
 class DecisionForm(BaseModel):
     """The fields of the decision form.
 
     ``action``: ``approve`` (the suggestion), ``save`` (the chosen candidate or custom order),
-    ``park`` (decide later) or ``fit`` (fit the custom order and show it, saving nothing).
-    ``choice``: a candidate's rank (``"1"`` is the suggestion) or ``"custom"``.
+    ``park`` (decide later), ``reopen`` (back to pending), ``not_arima`` (no ARIMA order suits
+    the series) or ``fit`` (fit the custom order and show it, saving nothing).
+    ``choice``: a candidate's rank (``"1"`` is the suggestion) or ``"custom"``; ``transform``
+    (blank: the analysis', ``none``, ``log``, ``box_cox`` with ``lam``) and ``constant`` (blank:
+    the engine's term, ``yes``, ``no``) go with the custom order. ``confirm`` saves an order
+    whose residuals fail the Ljung-Box test at 1%.
     """
 
-    action: Literal["approve", "save", "park", "fit"] = "save"
+    action: Literal["approve", "save", "park", "reopen", "not_arima", "fit"] = "save"
     choice: str = SUGGESTION_KEY
     p: str = ""
     d: str = ""
@@ -31,13 +43,34 @@ class DecisionForm(BaseModel):
     D: str = "0"
     Q: str = "0"
     s: str = "0"
+    transform: Literal["", "none", "log", "box_cox"] = ""
+    lam: str = ""
+    constant: Literal["", "yes", "no"] = ""
+    confirm: bool = False
     note: str = ""
     reviewer: str = ""
     version: Annotated[int, Field(ge=0, le=SQLITE_MAX_INTEGER)] = 0
     fragment: bool = False
 
     def custom_fields(self) -> dict:
-        return {name: getattr(self, name) for name in CUSTOM_FIELDS}
+        """What was typed for the custom model: the order fields, the transform and the constant."""
+        return {name: getattr(self, name) for name in (*CUSTOM_FIELDS, "transform", "lam", "constant")}
+
+    def model_choice(self) -> tuple[str | dict | None, bool | None]:
+        """``(transform, include_constant)`` of the custom model; None for the analysis' choice.
+
+        Raises
+        ------
+        DecisionError
+            When Box-Cox is chosen without a lambda that is a number.
+        """
+        if self.transform != "box_cox":
+            return self.transform or None, CONSTANT_CHOICES[self.constant]
+        try:
+            lam = float(self.lam)
+        except ValueError:
+            raise DecisionError(f"Box-Cox needs a lambda (a number such as 0.5), not {self.lam!r}") from None
+        return {"box_cox": lam}, CONSTANT_CHOICES[self.constant]
 
     def custom_order(self) -> tuple[list[int], list[int]]:
         """The typed custom order; blank seasonal fields mean no season.
@@ -60,23 +93,34 @@ class DecisionForm(BaseModel):
                 raise OrderError(f"{name} must be a whole number, not {text!r}") from None
         return values[:3], values[3:]
 
-    def decision(self, analysis: Analysis | None) -> tuple[str, list[int] | None, list[int] | None]:
-        """``(status, order, seasonal_order)`` the form asks for.
+    def decision(self, analysis: Analysis | None) -> Decision:
+        """``(status, order, seasonal_order, transform, include_constant)`` the form asks for.
 
-        A chosen candidate or custom order equal to the suggestion is an approval; any other is
-        an override.
+        A chosen candidate, or a custom model equal to the suggestion (its order, and the
+        analysis' transform and term unless others are chosen), is an approval; any other is an
+        override.
         """
-        if self.action == "park":
-            return "parked", None, None
+        if self.action in STATE_ACTIONS:
+            return STATE_ACTIONS[self.action], None, None, None, None
         if self.action == "approve":
-            return "approved", None, None
+            return VerdictStatus.APPROVED, None, None, None, None
         candidates = analysis.candidates if analysis else ()
+        transform: str | dict | None = None
+        include_constant: bool | None = None
         if self.choice == "custom":
             order, seasonal = self.custom_order()
+            transform, include_constant = self.model_choice()
         elif self.choice.isdigit() and 1 <= int(self.choice) <= len(candidates):
             picked = candidates[int(self.choice) - 1].order
             order, seasonal = list(picked.order), list(picked.seasonal_order)
         else:
             raise OrderError(f"choice {self.choice!r} is neither a candidate (1..{len(candidates)}) nor 'custom'")
-        is_suggestion = analysis is not None and analysis.suggested.order.same_orders(order, seasonal)
-        return ("approved" if is_suggestion else "overridden"), order, seasonal
+        suggested = analysis.suggested.order if analysis else None
+        is_suggestion = (
+            analysis is not None and suggested is not None and suggested.same_orders(order, seasonal)
+            and transform in (None, analysis.transform.to_json())
+            and include_constant in (None, suggested.trend != "n")
+        )
+        if is_suggestion:
+            return VerdictStatus.APPROVED, order, seasonal, None, None
+        return VerdictStatus.OVERRIDDEN, order, seasonal, transform, include_constant

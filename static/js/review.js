@@ -1,4 +1,6 @@
-/* The review page: pick candidates (click or 1-9), fit a custom order in place, keyboard decisions. */
+/* The review page: pick candidates (click or 1-9), fit a custom model in place, keyboard decisions,
+   and inline prompts (a missing reviewer name, a note a risky approval needs) instead of the
+   browser's bare "Please fill out this field". */
 (function () {
   "use strict";
   var L = window.Lagdesk;
@@ -10,6 +12,13 @@
   var customBox = document.getElementById("custom-fit");
   var pickedLabel = form.querySelector("[data-picked-label]");
   var fitted = !!customBox.querySelector("[data-candidate-detail]");
+  var reviewerInput = form.querySelector("[data-reviewer]");
+  var reviewerPrompt = form.querySelector("[data-reviewer-prompt]");
+  var notePrompt = form.querySelector("[data-note-prompt]");
+  var transformSelect = form.querySelector("[data-transform]");
+  var lambdaField = form.querySelector("[data-lambda]");
+  // The checks below say what is missing next to the field; the browser's own bubble is not used.
+  form.noValidate = true;
 
   function radios() { return document.querySelectorAll('input[name="choice"]'); }
 
@@ -61,17 +70,52 @@
   });
   radios().forEach(function (radio) { radio.addEventListener("change", refreshSave); });
 
+  function customChanged() {
+    customChoice.checked = true;
+    fitted = false;
+    customBox.innerHTML = "";
+    refreshSave();
+  }
+
+  function refreshLambda() {
+    lambdaField.hidden = transformSelect.value !== "box_cox";
+  }
+
   form.querySelectorAll("[data-custom-fields] input").forEach(function (input) {
-    input.addEventListener("input", function () {
-      customChoice.checked = true;
-      fitted = false;
-      customBox.innerHTML = "";
-      refreshSave();
-    });
+    input.addEventListener("input", customChanged);
     input.addEventListener("keydown", function (event) {
       if (event.key === "Enter") { event.preventDefault(); fit(); }
     });
   });
+  form.querySelectorAll("[data-custom-fields] select").forEach(function (select) {
+    select.addEventListener("change", function () { customChanged(); refreshLambda(); });
+  });
+  refreshLambda();
+
+  // Every action but a fit saves a verdict, which records who decided it; approving a risky
+  // suggestion needs a note too. Say so next to the field, and keep the form from going.
+  function prompt(box, field) {
+    box.hidden = false;
+    field.focus();
+  }
+
+  form.addEventListener("submit", function (event) {
+    var action = event.submitter ? event.submitter.value : "save";
+    if (action === "fit") return;
+    if (reviewerInput && !reviewerInput.value.trim()) {
+      event.preventDefault();
+      prompt(reviewerPrompt, reviewerInput);
+      return;
+    }
+    if (action === "approve" && event.submitter.hasAttribute("data-needs-note") && !form.elements.note.value.trim()) {
+      event.preventDefault();
+      prompt(notePrompt, form.elements.note);
+    }
+  });
+  if (reviewerInput) {
+    reviewerInput.addEventListener("input", function () { reviewerPrompt.hidden = true; });
+  }
+  form.elements.note.addEventListener("input", function () { notePrompt.hidden = true; });
 
   function fit() {
     var data = new FormData(form);

@@ -98,6 +98,7 @@ def run_reviewer(
                 body = {
                     "status": "overridden" if i % 2 else "parked", "order": [1, 0, i % 3] if i % 2 else None,
                     "version": version - 1 if stale else version, "note": note, "reviewer": f"r{reviewer}",
+                    "confirm": True,  # saved even when the residuals fail Ljung-Box: the decision is what is tested
                 }
                 answer = _timed(client, log, "POST", _verdict_url(base, series_id), json=body)
                 if answer.status_code == 200:

@@ -427,7 +427,8 @@ def _exported(check_db: Path, tmp_path: Path, client: TestClient) -> dict[str, o
 
 def test_an_order_decided_before_new_data_is_marked_everywhere(check_db, tmp_path):
     with _client(check_db) as client:
-        decided = client.post(_verdict_url(CHECK_ID), json={"status": "overridden", "order": [1, 0, 0], "version": 0, "reviewer": "Ada"},
+        decided = client.post(_verdict_url(CHECK_ID), json={"status": "overridden", "order": [1, 0, 0], "version": 0, "reviewer": "Ada",
+                                                                "confirm": True},
                               headers=_csrf_headers(client))
         assert decided.status_code == 200
         fresh = _exported(check_db, tmp_path, client)

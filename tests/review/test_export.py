@@ -30,7 +30,15 @@ from app.core.portfolio_file import read_portfolio
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice, apply_transform
 from app.jobs.work import SeriesTask, identify_task
-from app.review.export import build_orders_document, export_command, neutralise_formula, orders_csv, write_export
+from app.review.export import (
+    SCHEMA_VERSION,
+    build_orders_document,
+    export_command,
+    export_summary,
+    neutralise_formula,
+    orders_csv,
+    write_export,
+)
 from app.store.analyses import load_analysis, save_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
@@ -136,10 +144,11 @@ def test_json_export_round_trips_against_the_store_and_validates(engine_results,
     read_back = json.loads(path.read_text(encoding="utf-8"))
     assert read_back == document
     jsonschema.Draft202012Validator(SCHEMA, format_checker=jsonschema.Draft202012Validator.FORMAT_CHECKER).validate(read_back)
-    assert (read_back["schema"], read_back["version"]) == ("lagdesk-orders", 1)
+    assert (read_back["schema"], read_back["version"]) == ("lagdesk-orders", SCHEMA_VERSION)
     assert [o["series_id"] for o in read_back["orders"]] == EXPORTED
-    # Pending and parked series are absent and counted.
+    # Pending and parked series are absent and counted; none is marked not_arima.
     assert read_back["left_out"] == {"pending": 1, "parked": 1, "recheck": 0}
+    assert read_back["not_arima"] == []
     for order in read_back["orders"]:
         assert tuple(order) == ORDER_FIELDS
         assert {k: order[k] for k in expected_record(db, order["series_id"])} == expected_record(db, order["series_id"])
@@ -219,6 +228,26 @@ def test_the_schema_refuses_a_document_that_breaks_the_contract(db):
     unknown = json.loads(json.dumps(document))
     unknown["left_out"]["waiting"] = 1
     assert not validator.is_valid(unknown)
+
+
+def test_not_arima_series_are_listed_apart_in_version_2_and_the_schema_holds_the_list_to_its_fields(db):
+    parked = get_verdict(db, "hearthloaf/chain/staff-hours")
+    set_verdict(db, "hearthloaf/chain/staff-hours", status="not_arima", order=None, seasonal_order=None,
+                reviewer="cy", note="rota-driven", version=parked["version"])
+    document = build_orders_document(db)
+    validator = jsonschema.Draft202012Validator(SCHEMA, format_checker=jsonschema.Draft202012Validator.FORMAT_CHECKER)
+    validator.validate(document)
+    decided_at = get_verdict(db, "hearthloaf/chain/staff-hours")["decided_at"]
+    assert document["not_arima"] == [
+        {"series_id": "hearthloaf/chain/staff-hours", "reviewer": "cy", "decided_at": decided_at, "note": "rota-driven"}]
+    # Listed, so not left out: the parked one it was is no longer counted.
+    assert document["left_out"] == {"pending": 1, "parked": 0, "recheck": 0}
+    assert [o["series_id"] for o in document["orders"]] == EXPORTED
+    for broken in ({**document, "version": 1}, {k: v for k, v in document.items() if k != "not_arima"},
+                   {**document, "not_arima": [{**document["not_arima"][0], "order": [1, 0, 0]}]},
+                   {**document, "left_out": {**document["left_out"], "not_arima": 1}}):
+        assert not validator.is_valid(broken)
+    assert "1 series marked not_arima (in the JSON export only)" in export_summary(document, Path("o.csv"), "csv")
 
 
 def test_a_failed_write_leaves_the_old_file_and_no_temporary_file(db, tmp_path, monkeypatch):

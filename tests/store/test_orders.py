@@ -54,6 +54,7 @@ def test_one_record_per_decided_series_with_every_field_from_the_store(decided_d
         "decided_at": a["decided_at"], "note": "as suggested", "data_sha256": decision_fingerprint(decided_db, "a"),
         "data_changed": False, "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result.engine_version,
         "parameters": candidate.parameter_values(),
+        "interventions": [{"timestamp": i.timestamp, "kind": str(i.kind), "size": i.size} for i in engine_result.interventions],
     }
     assert a["decided_at"] is not None and a["data_sha256"] == series_fingerprint(decided_db, "a")
     # A custom order (and another transform than the analysis') has no fitted parameters yet.

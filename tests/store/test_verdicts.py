@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sqlite3
 import threading
 
 import pytest
@@ -9,6 +10,7 @@ import sqlite_utils
 
 from app.core.errors import OrderError
 from app.store.analyses import save_analysis
+from app.store.bulk_approvals import UnknownBulkApproval, get_bulk_approval, latest_undoable, mark_undone, record_bulk_approval
 from app.store.database import UnknownSeries, open_database
 from app.store.imports import import_portfolio
 from app.store.migrations import MIGRATIONS
@@ -34,7 +36,8 @@ def portfolio_db(fresh_db, write_csv, monthly):
 def test_a_new_series_is_pending_at_version_zero_with_no_history(portfolio_db):
     assert get_verdict(portfolio_db, "a") == {
         "status": "pending", "order": None, "seasonal_order": None, "transform": "none", "note": "",
-        "reviewer": "", "version": 0, "decided_at": None, "recheck_reason": None,
+        "reviewer": "", "version": 0, "decided_at": None, "recheck_reason": None, "trend": None,
+        "include_constant": None,
     }
     assert verdict_history(portfolio_db, "a") == []
 
@@ -128,6 +131,8 @@ def test_mark_recheck_leaves_undecided_series_alone(portfolio_db):
     (dict(status="approved", order=[1, 0]), OrderError, "3 whole numbers"),
     (dict(status="approved", order=[1, 0, 0], seasonal_order=[1, 0, 0, 1]), OrderError, "period s >= 2"),
     (dict(status="approved", order=[1, 0, 0], transform="sqrt"), InvalidVerdict, "transform must be"),
+    (dict(status="approved", order=[1, 0, 0], trend="quadratic"), InvalidVerdict, "trend must be one of"),
+    (dict(status="not_arima", order=[1, 0, 0]), InvalidVerdict, "carries no order"),
 ])
 def test_a_verdict_that_cannot_be_stored_is_refused(portfolio_db, change, error, message):
     change.setdefault("seasonal_order", None)
@@ -192,3 +197,76 @@ def test_upgrading_an_older_file_fills_the_fingerprint_of_decided_verdicts(tmp_p
     assert decision_fingerprint(db, "a") == series_fingerprint(db, "a")
     assert (decision_fingerprint(db, "b"), decision_fingerprint(db, "c")) == (None, None)
     db.close()
+
+
+def test_the_trend_is_kept_with_an_order_and_in_the_history(portfolio_db):
+    kept = set_verdict(portfolio_db, "a", status="overridden", order=[1, 1, 0], seasonal_order=None, transform="log",
+                       trend="t", reviewer="ann", version=0)
+    assert (kept["trend"], kept["include_constant"], kept["transform"]) == ("t", True, "log")
+    dropped = set_verdict(portfolio_db, "a", status="overridden", order=[1, 0, 0], seasonal_order=None, trend="n",
+                          reviewer="ann", version=1)
+    assert (dropped["trend"], dropped["include_constant"]) == ("n", False)
+    # A verdict without an order keeps no term, whatever is sent.
+    reopened = set_verdict(portfolio_db, "a", status="pending", order=None, seasonal_order=None, trend="c", version=2)
+    assert (reopened["trend"], reopened["include_constant"]) == (None, None)
+    assert [h["trend"] for h in verdict_history(portfolio_db, "a")] == ["t", "n", None]
+
+
+def test_not_arima_is_a_decision_without_an_order(portfolio_db):
+    verdict = set_verdict(portfolio_db, "a", status="not_arima", order=None, seasonal_order=None,
+                          note="90% zeros", reviewer="ann", version=0)
+    assert (verdict["status"], verdict["order"], verdict["note"], verdict["version"]) == ("not_arima", None, "90% zeros", 1)
+    assert verdict["decided_at"] is not None
+    mark_recheck(portfolio_db, "a", "new data")  # only approved and overridden orders are re-checked
+    assert get_verdict(portfolio_db, "a")["status"] == "not_arima"
+
+
+def test_upgrading_a_version_3_file_keeps_every_verdict_and_allows_the_new_state(tmp_path, write_csv, monthly):
+    path = tmp_path / "v3.db"
+    old = sqlite_utils.Database(path)
+    old.execute("PRAGMA foreign_keys = ON")
+    MIGRATIONS.apply(old, stop_before="verdict_choices_and_bulk_undo")
+    import_portfolio(old, write_csv("p.csv", {"a": monthly(1), "b": monthly(2)}))
+    old.execute("UPDATE verdicts SET status = 'approved', arima_order = '[1, 0, 0]', seasonal_order = '[0, 0, 0, 0]', "
+                "transform = '\"log\"', version = 1, decided_at = 'then', data_sha256 = 'x' WHERE series_id = 'a'")
+    old.execute("INSERT INTO verdict_history (series_id, version, at, from_status, status, arima_order, seasonal_order, "
+                "transform, note, reviewer) VALUES ('a', 1, 'then', 'pending', 'approved', '[1, 0, 0]', '[0, 0, 0, 0]', "
+                "'\"log\"', 'ok', 'ann')")
+    with pytest.raises(sqlite3.IntegrityError):  # version 3's CHECK knows no not_arima
+        old.execute("UPDATE verdicts SET status = 'not_arima' WHERE series_id = 'b'")
+    before = old.execute("SELECT series_id, status, arima_order, transform, version, data_sha256 FROM verdicts "
+                         "ORDER BY series_id").fetchall()
+    old.conn.commit()
+    old.close()
+    db = open_database(path)
+    after = db.execute("SELECT series_id, status, arima_order, transform, version, data_sha256 FROM verdicts "
+                       "ORDER BY series_id").fetchall()
+    assert after == before
+    assert get_verdict(db, "a")["trend"] is None  # the engine's term, as before
+    assert verdict_history(db, "a")[0]["trend"] is None and verdict_history(db, "a")[0]["note"] == "ok"
+    set_verdict(db, "b", status="not_arima", order=None, seasonal_order=None, version=0)
+    assert get_verdict(db, "b")["status"] == "not_arima"
+    assert [row[0] for row in db.execute("SELECT name FROM sqlite_master WHERE tbl_name = 'verdicts' AND type = 'index'")
+            if not row[0].startswith("sqlite_")] == ["verdicts_status"]
+    db.close()
+
+
+def test_a_bulk_approval_is_undoable_while_none_of_its_series_changed(portfolio_db):
+    assert latest_undoable(portfolio_db) is None
+    versions = {}
+    for series_id in ("a", "b"):
+        versions[series_id] = set_verdict(portfolio_db, series_id, status="approved", order=[1, 0, 0],
+                                          seasonal_order=None, reviewer="ann", version=0)["version"]
+    bulk_id = record_bulk_approval(portfolio_db, "ann", "firm ones", {"prefix": "x/"}, versions)
+    record = get_bulk_approval(portfolio_db, bulk_id)
+    assert (record["approved"], record["changed"], record["undoable"], record["filter"]) == (
+        {"a": 1, "b": 1}, [], True, {"prefix": "x/"})
+    assert latest_undoable(portfolio_db) == record
+    set_verdict(portfolio_db, "b", status="parked", order=None, seasonal_order=None, reviewer="bob", version=1)
+    record = get_bulk_approval(portfolio_db, bulk_id)
+    assert (record["changed"], record["undoable"]) == (["b"], False)
+    assert latest_undoable(portfolio_db) is None
+    mark_undone(portfolio_db, bulk_id, "ann")
+    assert get_bulk_approval(portfolio_db, bulk_id)["undone_by"] == "ann"
+    with pytest.raises(UnknownBulkApproval):
+        get_bulk_approval(portfolio_db, bulk_id + 1)
