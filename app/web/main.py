@@ -9,7 +9,7 @@ from app import __version__
 from app.config import Settings
 from app.web.deps import SeriesSlots
 from app.web.errors import install_error_handlers
-from app.web.routes import access, api, pages
+from app.web.routes import access, api, compare, pages
 from app.web.security import AccessGuard
 from app.web.templating import STATIC_DIR
 
@@ -24,6 +24,8 @@ def create_app(settings: Settings) -> FastAPI:
     app.state.series_slots = SeriesSlots()
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(access.router)
+    # Before the pages and the API: their /series/{id} routes would take .../compare as an id.
+    app.include_router(compare.router)
     app.include_router(pages.router)
     app.include_router(api.router)
     install_error_handlers(app)

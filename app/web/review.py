@@ -15,22 +15,48 @@ import sqlite_utils
 
 from app.core.analysis import Analysis, Candidate, Correlation, UnitRootTest
 from app.core.errors import SeriesProblem
+from app.core.identify import TREND_TOGGLE
 from app.core.prepare import prepare_series
+from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
-from app.core.stationarity import TEST_LEVEL
 from app.review.filters import SeriesFilter
+from app.review.forecast_check import remembered_checks
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import UnknownSeries
 from app.store.series import load_series, series_neighbours
 from app.store.verdicts import get_verdict, verdict_history
-from app.web.charts import lag_bar_figure, line_figure
-from app.web.templating import number, p_value
+from app.web.charts import lag_bar_figure, line_figure, series_figure
+from app.web.templating import number
 
 # The series a test ran on (app.core.stationarity.LEVEL_NAMES) and its regression, in words.
 ON_WORDS = {"levels": "the series as observed", "first difference": "the first difference",
             "second difference": "the second difference"}
 REGRESSION_WORDS = {"c": "around a constant", "ct": "around a linear trend"}
 CUSTOM_FIELDS = ("p", "d", "q", "P", "D", "Q", "s")
+# What proposed a candidate (Candidate.source: the readings of app.core.patterns and the
+# search steps of app.core.identify), in words.
+SOURCE_WORDS = {
+    "white noise": "read as white noise: no ACF or PACF lag stands out",
+    "PACF cut-off": "read from the PACF cut-off",
+    "ACF cut-off": "read from the ACF cut-off",
+    "both tail off": "read from the ACF and PACF both tailing off",
+    "EACF vertex": "read from the vertex of the extended ACF",
+    "neighbour": "one step in p or q from a reading",
+    "no seasonal spike": "no spike at the seasonal lags: no seasonal term",
+    "seasonal ACF cut-off": "read from the ACF at the seasonal lags",
+    "seasonal PACF cut-off": "read from the PACF at the seasonal lags",
+    "seasonal both tail off": "both tail off at the seasonal lags",
+    "seasonal grid": "seasonal grid: every seasonal P, Q within the limits",
+    "local search": "stepwise search: one step from the leading order",
+    TREND_TOGGLE: "stepwise search: the leading order with the constant or drift toggled",
+    "alternative d": "the other differencing the tests left open",
+}
+FITTED_BY_HAND = "fitted by hand"
+
+
+def source_words(source: tuple[str, ...]) -> list[str]:
+    """The readings and search steps that proposed a candidate, in words, each once."""
+    return [SOURCE_WORDS.get(code, code) for code in dict.fromkeys(source)] or [FITTED_BY_HAND]
 
 
 @dataclass
@@ -68,6 +94,23 @@ def line_chart(chart_id: str, x: list, y: list, y_title: str, zero_line: bool = 
     }
 
 
+def intervention_chart(x: list, y: list[float], analysis: Analysis) -> dict:
+    """The series chart with the analysis' interventions marked, and a numbers table that lists
+    them beside the values."""
+    scale = analysis.transform.name() if analysis.transform.kind != "none" else ""
+    marks = {i.position: i for i in analysis.interventions}
+    return {
+        "id": "series",
+        "figure": series_figure(x, y, "value", analysis.interventions, scale),
+        "columns": ["time", "value", "intervention", "size" + (f" ({scale})" if scale else ""), "t"],
+        "rows": [
+            (t, number(v, 4), *((marks[k].kind.words(), number(marks[k].size, 4), f"{marks[k].t_stat:+.1f}")
+                                if k in marks else ("", "", "")))
+            for k, (t, v) in enumerate(zip(x, y))
+        ],
+    }
+
+
 def lag_chart(chart_id: str, correlation: Correlation, period: int | None, y_title: str) -> dict:
     lags = correlation.lags
     marked = seasonal_lags(period, len(lags))
@@ -84,8 +127,10 @@ def lag_chart(chart_id: str, correlation: Correlation, period: int | None, y_tit
     }
 
 
-def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: int | None) -> dict:
-    """One candidate as the table and its detail panel show it (stored or custom-fitted)."""
+def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: int | None,
+                   check: dict | None = None) -> dict:
+    """One candidate as the table and its detail panel show it (stored or custom-fitted), with
+    the MASE of its forecast check when one was run (``check``)."""
     key = str(rank)
     residuals = candidate.residuals
     return {
@@ -95,6 +140,8 @@ def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: 
         "rank": rank,
         "key": key,
         "label": candidate.label,
+        "source_words": source_words(candidate.source),
+        "mase": check["mase"] if check else None,
         "residual_acf_chart": lag_chart(f"resid-acf-{key}", candidate.residual_acf, period, "residual ACF"),
         "residuals_chart": (
             line_chart(f"resid-{key}", _last(labels, len(residuals)), list(residuals), "residual", zero_line=True)
@@ -110,8 +157,6 @@ def test_rows(tests: tuple[UnitRootTest, ...]) -> list[dict]:
             **vars(t),
             "on_words": ON_WORDS.get(t.on, t.on),
             "regression_words": REGRESSION_WORDS.get(t.regression, t.regression),
-            "sentence": f"{t.name} {'rejects' if t.rejects else 'does not reject'} {t.null} at {TEST_LEVEL:.0%} "
-                        f"(p = {p_value(t.p_value)}).",
         }
         for t in tests
     ]
@@ -178,9 +223,12 @@ def review_page(
     if analysis is None:
         page.update(candidates=[], selected=None, choice="custom", custom=form.custom or custom_defaults(verdict, None))
         return page
+    if analysis.interventions and preparation_problem is None:
+        page["series_chart"] = intervention_chart(labels, [float(v) for v in observed], analysis)
     period = analysis.marked_period
     identified = list(analysis.identified_on)
-    candidates = [candidate_view(c, i + 1, labels, period) for i, c in enumerate(analysis.candidates)]
+    checks = remembered_checks(db, series_id, analysis)
+    candidates = [candidate_view(c, i + 1, labels, period, checks.get(c.order)) for i, c in enumerate(analysis.candidates)]
     choice = form.choice or chosen_key(verdict, candidates)
     keys = [c["key"] for c in candidates]
     page.update(
@@ -196,6 +244,8 @@ def review_page(
         choice=choice,
         selected=selected if selected in keys else (choice if choice in keys else "1"),
         custom=form.custom or custom_defaults(verdict, analysis),
+        pattern_bonus=PATTERN_BONUS,
+        tie_margin=TIE_MARGIN,
     )
     return page
 

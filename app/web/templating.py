@@ -26,8 +26,8 @@ STATIC_DIR = PROJECT_DIR / "static"
 # Every flag the engine writes (app.core.vocabulary.Flag), in words.
 FLAG_WORDS: dict[str, str] = {
     Flag.TOO_SHORT: "short series: fewer points than Box-Jenkins identification asks for",
-    Flag.GAPS: "missing points were filled by interpolation",
-    Flag.LONG_GAP: "a long gap was filled: the correlograms lean on invented values",
+    Flag.GAPS: "missing points: the likelihood skips them, the correlograms use the pairs present",
+    Flag.LONG_GAP: "a long gap: the correlograms rest on fewer pairs and the tests of d on bridged values",
     Flag.NO_CONVERGENCE: "the optimiser did not converge",
     Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
     Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
@@ -39,6 +39,8 @@ FLAG_WORDS: dict[str, str] = {
     Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
     Flag.LARGE_RESIDUAL: "a residual beyond the outlier threshold: an outlier or a shift the model does not explain",
     Flag.INTERMITTENT_DEMAND: "intermittent or lumpy demand: a Gaussian ARIMA suits it poorly",
+    Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
+    Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
 }
 
 
@@ -66,9 +68,14 @@ def when(timestamp: str | None) -> str:
 
 
 def significant(value: float | None, digits: int = 4) -> str:
-    """A parameter estimate: ``digits`` significant digits (estimates range over many magnitudes)."""
+    """A parameter estimate: ``digits`` significant digits (estimates range over many magnitudes).
+
+    A value of ``10 ** digits`` or more is written whole with thousands separators (a variance
+    of 2,010 rather than "2.01e+03"); only tiny values keep an exponent."""
     if value is None or not isinstance(value, (int, float)) or not math.isfinite(value):
         return "—"
+    if abs(value) >= 10**digits:
+        return f"{value:,.0f}"
     return f"{value:.{digits}g}"
 
 
@@ -79,11 +86,22 @@ def number(value: float | None, digits: int = 2) -> str:
     return f"{value:.{digits}f}"
 
 
+P_FLOOR = 0.001
+
+
 def p_value(value: float | None) -> str:
-    """A p-value: three decimals, ``<0.001`` below that."""
+    """A p-value for a table cell: three decimals, ``< 0.001`` below that (never "0.000", which
+    reads as an impossible p of zero), an em dash for a missing one."""
     if value is None or not math.isfinite(value):
         return "—"
-    return "<0.001" if value < 0.001 else f"{value:.3f}"
+    return f"< {P_FLOOR}" if value < P_FLOOR else f"{value:.3f}"
+
+
+def percent(share: float | None) -> str:
+    """A share (0 to 1) as a whole percentage: ``0.8 -> "80%"``."""
+    if share is None or not math.isfinite(share):
+        return "—"
+    return f"{100 * share:.0f}%"
 
 
 def quote_path(series_id: str) -> str:
@@ -132,7 +150,7 @@ def csrf_field(context: dict) -> Markup:
 
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
-    env.filters.update(number=number, p_value=p_value, flag_words=flag_words, reason_words=reason_words, quote_path=quote_path,
+    env.filters.update(number=number, p_value=p_value, percent=percent, flag_words=flag_words, reason_words=reason_words, quote_path=quote_path,
                        freq_words=freq_words, when=when, significant=significant)
     env.globals.update(order_label=order_label, url_for=url_for,
                        csrf_field=csrf_field, severity_tiers=_severity_tiers())

@@ -20,6 +20,33 @@
     if (link && link.href) window.location.href = link.href;
   }
 
+  // The figures come with transparent backgrounds; their text and grid take the colours of
+  // the page's scheme (light or dark, --chart-ink and --chart-grid in lagdesk.css).
+  var darkScheme = window.matchMedia ? window.matchMedia("(prefers-color-scheme: dark)") : null;
+
+  function schemeColours(layout) {
+    var style = getComputedStyle(document.documentElement);
+    var ink = style.getPropertyValue("--chart-ink").trim();
+    var grid = style.getPropertyValue("--chart-grid").trim();
+    var update = { "font.color": ink, "legend.font.color": ink };
+    Object.keys(layout).forEach(function (key) {
+      if (/^[xy]axis\d*$/.test(key)) {
+        update[key + ".gridcolor"] = grid;
+        update[key + ".linecolor"] = grid;
+      }
+    });
+    return update;
+  }
+
+  function applyScheme(layout, update) {
+    Object.keys(update).forEach(function (path) {
+      var parts = path.split("."), target = layout;
+      parts.slice(0, -1).forEach(function (part) { target = target[part] = target[part] || {}; });
+      target[parts[parts.length - 1]] = update[path];
+    });
+    return layout;
+  }
+
   function drawCharts(root) {
     if (!window.Plotly) return;
     (root || document).querySelectorAll(".chart[data-figure]").forEach(function (el) {
@@ -27,7 +54,16 @@
       var figure = JSON.parse(el.dataset.figure);
       el.dataset.drawn = "1";
       el.innerHTML = "";
-      window.Plotly.newPlot(el, figure.data, figure.layout, { displayModeBar: false, responsive: true });
+      var layout = applyScheme(figure.layout, schemeColours(figure.layout));
+      window.Plotly.newPlot(el, figure.data, layout, { displayModeBar: false, responsive: true });
+    });
+  }
+
+  if (darkScheme && darkScheme.addEventListener) {
+    darkScheme.addEventListener("change", function () {
+      document.querySelectorAll('.chart[data-drawn="1"]').forEach(function (el) {
+        window.Plotly.relayout(el, schemeColours(el.layout));
+      });
     });
   }
 
