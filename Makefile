@@ -15,8 +15,11 @@ $(STAMP): pyproject.toml
 
 setup: $(STAMP)
 
+# Ctrl-C stops the demo's server and make exits 0. On a terminal the server runs as a job of its
+# own (set -m, then fg): the terminal's interrupt then reaches the server alone, where make itself
+# would otherwise die of it and report an error. DEMO_ARGS passes options (--port 8001, --no-browser).
 demo: $(STAMP)
-	$(BIN)/lagdesk demo
+	@if [ -t 0 ]; then set -m; $(BIN)/lagdesk demo $(DEMO_ARGS) & fg >/dev/null; else $(BIN)/lagdesk demo $(DEMO_ARGS); fi
 
 lint: $(STAMP)
 	$(BIN)/ruff check .

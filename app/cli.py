@@ -12,6 +12,8 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import shlex
+import shutil
 import sqlite3
 import sys
 import threading
@@ -37,10 +39,13 @@ if TYPE_CHECKING:
 # What ``lagdesk decide`` calls each verdict state a reviewer can set.
 DECIDE_ACTIONS = {
     "approve": VerdictStatus.APPROVED, "override": VerdictStatus.OVERRIDDEN,
-    "park": VerdictStatus.PARKED, "pending": VerdictStatus.PENDING,
+    "park": VerdictStatus.PARKED, "pending": VerdictStatus.PENDING, "not-arima": VerdictStatus.NOT_ARIMA,
 }
 EXIT_INPUT_ERROR = 2
 EXIT_STORAGE_ERROR = 3
+PROG = "lagdesk"
+# How many series without an analysis ``status`` and ``demo`` name, with their reasons.
+NOT_ANALYSED_SHOWN = 10
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
 BROWSER_DELAY_SECONDS = 1.5
@@ -55,6 +60,43 @@ def open_browser_later(url: str) -> None:
     desktop = sys.platform in ("darwin", "win32") or os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")
     if desktop:
         threading.Timer(BROWSER_DELAY_SECONDS, webbrowser.open, args=(url,)).start()
+
+
+def lagdesk_script(
+    argv0: str | None = None, executable: str | None = None, which: Callable[[str], str | None] = shutil.which,
+) -> Path | None:
+    """The script that runs this command line, when typing ``lagdesk`` would not run it (no
+    activated virtual environment: ``.venv/bin/lagdesk`` in a fresh clone after ``make``); None
+    when ``lagdesk`` on the ``PATH`` is this installation, or no script is installed.
+
+    ``argv0`` and ``executable`` default to :data:`sys.argv` [0] and :data:`sys.executable`; run
+    as ``python -m app.cli`` (or inside another program) the script is the one installed beside
+    that Python.
+    """
+    script = Path(argv0 if argv0 is not None else sys.argv[0])
+    if script.stem != PROG:
+        script = Path(executable or sys.executable).parent / PROG
+    found = which(PROG)
+    if not script.is_file() or (found and Path(found).resolve() == script.resolve()):
+        return None
+    return script.absolute()
+
+
+def path_as_typed(path: Path, cwd: Path | None = None) -> str:
+    """A path for a command to type here: relative to the working folder when under it (with a
+    directory part, so a shell runs it rather than searching the ``PATH``), quoted for a shell."""
+    try:
+        relative = path.relative_to(cwd or Path.cwd())
+    except ValueError:
+        return shlex.quote(str(path))
+    return shlex.quote(str(relative) if len(relative.parts) > 1 else f"./{relative}")
+
+
+def typed_command(command: str) -> str:
+    """``command`` (``"analyze --db x.db"``) as a user types it here: after ``lagdesk``, or
+    after the path of its script (:func:`lagdesk_script`)."""
+    script = lagdesk_script()
+    return f"{PROG if script is None else path_as_typed(script)} {command}"
 
 
 def terminal_text(text: str) -> str:
@@ -141,7 +183,7 @@ def _add_db(parser: argparse.ArgumentParser) -> None:
 
 def period_option(text: str) -> int | str | None:
     """``--period``: ``auto`` (from the sampling frequency), ``none`` (non-seasonal) or a whole number >= 2."""
-    from app.core.identify import AUTO_PERIOD
+    from app.core.defaults import AUTO_PERIOD
 
     word = text.strip().lower()
     if word == AUTO_PERIOD:
@@ -152,7 +194,7 @@ def period_option(text: str) -> int | str | None:
 
 
 def _add_period(parser: argparse.ArgumentParser) -> None:
-    from app.core.identify import AUTO_PERIOD
+    from app.core.defaults import AUTO_PERIOD
 
     parser.add_argument(
         "--period", type=period_option, default=AUTO_PERIOD, metavar="N|none|auto",
@@ -196,15 +238,20 @@ def build_parser() -> argparse.ArgumentParser:
         "decide", help="record a verdict on one series, or approve every pending firm suggestion (--all-firm)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
         usage="lagdesk decide SERIES_ID ACTION --reviewer NAME [--note TEXT] [--order p,d,q [--seasonal P,D,Q,s]]\n"
+        "                      [--transform none|log|box_cox:LAMBDA] [--constant | --no-constant] [--confirm]\n"
         "                      [--version N] [--json] [--db DB]\n"
         "       lagdesk decide --all-firm [--prefix ID_PREFIX] --reviewer NAME [--note TEXT] [--json] [--db DB]",
         description="Record a verdict on one series, as the review page does: approve the suggestion, override\n"
-        "it with another order, park the series for later, or reopen it (pending). With --all-firm,\n"
-        "approve every pending series whose current analysis is firm (only those under --prefix).",
+        "it with another order (and, if you like, another transform or constant), park the series for\n"
+        "later, reopen it (pending), or mark it not an ARIMA series (not-arima: intermittent or lumpy\n"
+        "demand, say; the export lists it apart). With --all-firm, approve every pending series whose\n"
+        "current analysis is firm (only those under --prefix).",
         epilog="examples:\n"
         "  lagdesk decide shop/sales approve --reviewer ann\n"
         "  lagdesk decide shop/sales override --order 0,1,1 --seasonal 0,1,1,12 --reviewer ann --note \"MA fits better\"\n"
+        "  lagdesk decide shop/sales override --order 1,1,0 --transform log --no-constant --reviewer ann\n"
         "  lagdesk decide shop/sales pending --reviewer ann --version 3\n"
+        "  lagdesk decide shop/spares not-arima --reviewer ann --note \"90% zeros: Croston\"\n"
         "  lagdesk decide --all-firm --prefix shop/ --reviewer ann",
         add_options=_decide_options,
     )
@@ -262,13 +309,14 @@ def _export_options(export: argparse.ArgumentParser) -> None:
     export.add_argument("-o", "--output", help="file to write (default ./lagdesk-orders.FORMAT); written atomically")
     export.add_argument(
         "--status", default=",".join(DECIDED), metavar="LIST",
-        help=f"decisions to include, comma-separated (default {','.join(DECIDED)})",
+        help=f"decisions to include, comma-separated: {' or '.join(DECIDED)} or both (default {','.join(DECIDED)}); "
+        "series of the other states are never exported, only counted as left out",
     )
     export.set_defaults(handler=run_export)
 
 
 def _backtest_options(backtest: argparse.ArgumentParser) -> None:
-    from app.core.backtest import DEFAULT_ORIGINS
+    from app.core.defaults import DEFAULT_ORIGINS
 
     backtest.add_argument("series_id", help="the series to check")
     _add_db(backtest)
@@ -287,8 +335,8 @@ def _decide_options(decide: argparse.ArgumentParser) -> None:
     decide.add_argument("series_id", nargs="?", metavar="SERIES_ID", help="the series to decide (not with --all-firm)")
     decide.add_argument(
         "action", nargs="?", choices=DECIDE_ACTIONS, metavar="ACTION",
-        help="approve (the suggested order), override (with --order), park (set aside, optionally with --order) "
-        "or pending (reopen: clears the order; the history keeps every step)",
+        help="approve (the suggested order), override (with --order), park (set aside, optionally with --order), "
+        "pending (reopen: clears the order; the history keeps every step) or not-arima (no ARIMA order suits it)",
     )
     decide.add_argument("--all-firm", action="store_true", help="approve every pending series with a firm, current analysis")
     decide.add_argument("--prefix", metavar="ID_PREFIX", help="with --all-firm: only series whose id starts with this text")
@@ -298,6 +346,18 @@ def _decide_options(decide: argparse.ArgumentParser) -> None:
     decide.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="the order, for override (or park)")
     decide.add_argument(
         "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="with --order: its seasonal part (default none)",
+    )
+    decide.add_argument(
+        "--transform", type=transform_option, metavar="none|log|box_cox:LAMBDA",
+        help="with --order: the scale to fit on (default: the analysis' transform; log and Box-Cox need positive data)",
+    )
+    decide.add_argument(
+        "--constant", dest="include_constant", action=argparse.BooleanOptionalAction, default=None,
+        help="with --order: a constant (a mean undifferenced, a drift after one difference) or none "
+        "(default: the engine's term for the order)",
+    )
+    decide.add_argument(
+        "--confirm", action="store_true", help="save an order whose residuals fail the Ljung-Box test at 1% anyway",
     )
     decide.add_argument(
         "--version", type=int, metavar="N",
@@ -412,7 +472,7 @@ def import_report_text(report: ImportReport, db_path: Path) -> str:
     lines = [report.summary()]
     lines += [f"  rejected: {r['message']}" for r in report.rejected]
     if report.added or report.updated:
-        lines.append(f"Next: lagdesk analyze --db {db_path}")
+        lines.append(f"Next: {typed_command(f'analyze --db {shlex.quote(str(db_path))}')}")
     return "\n".join(map(terminal_text, lines))
 
 
@@ -467,7 +527,7 @@ class RunProgressLine:
         self.problems = progress.problems
 
     def close(self) -> None:
-        if self.line is not None and self.line.done:
+        if self.line is not None and self.line.total:
             self.line.close()
 
 
@@ -504,15 +564,36 @@ def run_status(args: argparse.Namespace) -> int:
     return 0
 
 
+def counts_text(counts: dict[str, int]) -> str:
+    """``{"weak": 3, "firm": 1}`` as ``3 weak, 1 firm``."""
+    return ", ".join(f"{n} {name}" for name, n in counts.items())
+
+
+def not_analysed_lines(status: dict) -> list[str]:
+    """The series without an analysis and why (at most :data:`NOT_ANALYSED_SHOWN` of them),
+    one indented line each, safe for a terminal."""
+    from app.store.status import ANALYSIS_STAGE, IMPORT_STAGE
+
+    missing = status["not_analysed"]
+    stage_words = {IMPORT_STAGE: "rejected at import", ANALYSIS_STAGE: "analysis failed"}
+    lines = [f"  {m['series_id']}: {stage_words[m['stage']]}: {m['reason']}" for m in missing[:NOT_ANALYSED_SHOWN]]
+    if len(missing) > NOT_ANALYSED_SHOWN:
+        lines.append(f"  ... and {len(missing) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
+    return list(map(terminal_text, lines))
+
+
 def status_text(status: dict, last: dict | None, db_path: Path) -> str:
-    verdicts = ", ".join(f"{n} {name}" for name, n in status["verdicts"].items())
     lines = [
         f"{db_path}: {status['series']} series",
         f"  analysed  {status['analysed']:>6}  current analysis",
         f"  stale     {status['stale']:>6}  analysis missing or out of date",
         f"  failed    {status['failed']:>6}  analysis failed on the current data",
-        f"verdicts: {verdicts}",
+        f"  rejected  {status['rejected']:>6}  refused by the import (too short, constant ...), so not stored",
+        f"by confidence: {counts_text(status['confidence'])}",
+        f"by status: {counts_text(status['verdicts'])}",
     ]
+    if status["not_analysed"]:
+        lines += [f"not analysed ({len(status['not_analysed'])}):", *not_analysed_lines(status)]
     if last is not None:
         lines.append(
             f"last run: {last['run_id']}, {last['state']}, started {last['started_at']}, "
@@ -562,26 +643,30 @@ def run_decide(args: argparse.Namespace) -> int:
         raise LagdeskError("--reviewer NAME is required: every verdict records who decided it")
     if args.seasonal is not None and args.order is None:
         raise LagdeskError("--seasonal goes with --order (the seasonal part of that order)")
+    if (args.transform is not None or args.include_constant is not None) and args.order is None and args.action != "approve":
+        raise LagdeskError("--transform and --constant go with --order (the model they belong to)")
     with closing(open_database(_existing_db(args.db))) as db:
         if args.all_firm:
             if args.series_id or args.action:
                 raise LagdeskError("--all-firm decides every pending firm series: give no series id or action")
             if args.order is not None or args.version is not None:
                 raise LagdeskError("--all-firm approves each suggestion at its current version: give no --order, --seasonal or --version")
-            approved = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
-            _print(approved if args.json else terminal_text(f"{len(approved)} firm suggestion(s) approved" + (
-                f" under {args.prefix!r}" if args.prefix else "")), args.json)
+            done = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
+            undo = f" (bulk approval {done.bulk_id}: the queue can undo it while none of them changes)" if done.bulk_id else ""
+            _print(done.approved if args.json else terminal_text(f"{len(done.approved)} firm suggestion(s) approved" + (
+                f" under {args.prefix!r}" if args.prefix else "") + undo), args.json)
             return 0
         if not (args.series_id and args.action):
-            raise LagdeskError("give a series id and an action (approve, override, park, pending), or --all-firm")
+            raise LagdeskError("give a series id and an action (approve, override, park, pending, not-arima), or --all-firm")
         if args.prefix:
             raise LagdeskError("--prefix goes with --all-firm")
-        if args.action == "pending" and args.order is not None:
-            raise LagdeskError("pending reopens the series and clears its order: give no --order")
+        if args.action in ("pending", "not-arima") and args.order is not None:
+            raise LagdeskError(f"{args.action} clears the series' order: give no --order")
         version = args.version if args.version is not None else get_verdict(db, args.series_id)["version"]
         verdict = decide(
             db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,
-            note=args.note, reviewer=reviewer, version=version,
+            note=args.note, reviewer=reviewer, version=version, transform=args.transform,
+            include_constant=args.include_constant, confirm=args.confirm,
         )
     _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
     return 0
@@ -649,7 +734,10 @@ def run_demo(args: argparse.Namespace) -> int:
     from app.store.status import portfolio_status
 
     shown = RunProgressLine("demo")
-    path = build_demo_database(resolve_db_path(args.db), args.workers, on_progress=shown)
+    path = build_demo_database(
+        resolve_db_path(args.db), args.workers, on_progress=shown,
+        on_import=lambda report: print(terminal_text(report.summary()), flush=True),
+    )
     shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
@@ -658,17 +746,28 @@ def run_demo(args: argparse.Namespace) -> int:
 
 
 def demo_next_steps(db_path: Path, status: dict) -> str:
+    """What the demo holds (by confidence), the series it could not analyse and why, and the
+    commands to go on with, as typed here (:func:`typed_command`)."""
+    db = shlex.quote(str(db_path))
     steps = [
-        (f"lagdesk serve --db {db_path}", "review it in the browser (the demo does this now)"),
-        (f"lagdesk status --db {db_path}", "what the portfolio holds"),
-        ("lagdesk import YOUR.csv --db my.db", "bring in your own series (series_id,timestamp,value)"),
-        ("lagdesk analyze --db my.db", "and analyse them"),
+        (typed_command(f"serve --db {db}"), "review it in the browser (the demo does this now)"),
+        (typed_command(f"status --db {db}"), "what the portfolio holds"),
+        (typed_command("import YOUR.csv --db my.db"), "bring in your own series (series_id,timestamp,value)"),
+        (typed_command("analyze --db my.db"), "and analyse them"),
     ]
     width = max(len(command) for command, _ in steps)
-    return "\n".join(
-        [f"Demo portfolio ready in {db_path}: {status['series']} series, {status['analysed']} analysed.", "Next:"]
-        + [f"  {command.ljust(width)}  {what}" for command, what in steps]
-    )
+    lines = [terminal_text(
+        f"Demo portfolio ready in {db_path}: {status['series']} series, {status['analysed']} analysed "
+        f"({counts_text(status['confidence'])})."
+    )]
+    missing = status["not_analysed"]
+    if missing:
+        lines += [f"{len(missing)} could not be analysed; the queue lists them as not analysed, with the reason:",
+                  *not_analysed_lines(status)]
+    script = lagdesk_script()
+    if script is not None and (script.parent / "activate").is_file():
+        lines.append(f"(Or run 'source {path_as_typed(script.parent / 'activate')}' once and type just {PROG}.)")
+    return "\n".join(lines + ["Next:"] + [terminal_text(f"  {command.ljust(width)}  {what}") for command, what in steps])
 
 
 def _existing_db(explicit: str | None) -> Path:
@@ -677,7 +776,7 @@ def _existing_db(explicit: str | None) -> Path:
 
     path = resolve_db_path(explicit)
     if not path.is_file():
-        raise LagdeskError(f"{path}: no such database; create it with lagdesk import PATH --db {path}")
+        raise LagdeskError(f"{path}: no such database; create it with {typed_command(f'import PATH --db {shlex.quote(str(path))}')}")
     return path
 
 
@@ -686,10 +785,21 @@ def _json_default(value):
 
 
 def identify_table(results: list[Analysis], problems: list[dict]) -> str:
-    """The readable summary: one line per series, then the problems."""
-    rows = [("series", "n", "d", "suggested", "confidence", "flags")]
+    """The readable summary: one line per series (with the main reason for its confidence, in
+    the queue's words, when it is not firm), then the problems."""
+    from app.store.analyses import main_reason
+    from app.web.templating import reason_words
+
+    def why(analysis: Analysis) -> str:
+        reason = main_reason(analysis)
+        return "-" if analysis.confidence == Confidence.FIRM or reason is None else reason_words(reason)
+
+    rows = [("series", "n", "d", "suggested", "confidence", "flags", "main reason")]
     for r in results:
-        rows.append((terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.label, str(r.confidence), ", ".join(r.flags) or "-"))
+        rows.append((
+            terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.label, str(r.confidence),
+            ", ".join(r.flags) or "-", terminal_text(why(r)),
+        ))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]
     lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows]
     counts = ", ".join(f"{sum(r.confidence == level for r in results)} {level}" for level in Confidence)

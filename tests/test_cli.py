@@ -11,10 +11,13 @@ nothing.
 from __future__ import annotations
 
 import json
+import os
+import shlex
 import sqlite3
 import subprocess
 import sys
 from contextlib import closing
+from dataclasses import replace
 from pathlib import Path
 
 import jsonschema
@@ -24,20 +27,32 @@ import pytest
 from jobs.simulated_portfolio import SHORT_SERIES_ID, simulated_series, write_portfolio_csv
 from threadpoolctl import threadpool_limits
 
-from app.cli import DECIDE_ACTIONS, build_parser, main, server_settings, terminal_text
+from app.cli import (
+    DECIDE_ACTIONS,
+    build_parser,
+    identify_table,
+    lagdesk_script,
+    main,
+    path_as_typed,
+    server_settings,
+    terminal_text,
+    typed_command,
+)
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
 from app.core.prepare import prepare_series
+from app.core.vocabulary import DECIDED, Confidence
 from app.jobs.analyze import run_analysis
 from app.jobs.demo import DEMO_PORTFOLIO, build_demo_database
 from app.jobs.work import SeriesTask, identify_task
-from app.store.analyses import analysis_record, load_analysis
+from app.store.analyses import analysis_record, load_analysis, main_reason
 from app.store.database import DB_ENV_VAR, open_database
 from app.store.imports import import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
-from app.store.verdicts import get_verdict, verdict_history
+from app.store.verdicts import STATUSES, get_verdict, verdict_history
+from app.web.templating import reason_words
 
 REPO = Path(__file__).resolve().parents[1]
 SERIES = 3
@@ -90,8 +105,7 @@ STATUS_SCHEMA = {  # issue 4, "lagdesk status --json": at least these keys
     "properties": {
         "series": COUNT, "analysed": COUNT, "stale": COUNT, "failed": COUNT,
         "verdicts": {"type": "object", "required": ["pending", "approved", "overridden", "parked", "recheck"],
-                     "additionalProperties": False,
-                     "properties": {k: COUNT for k in ("pending", "approved", "overridden", "parked", "recheck")}},
+                     "additionalProperties": False, "properties": {k: COUNT for k in STATUSES}},
     },
 }
 
@@ -132,12 +146,29 @@ def test_identify_prints_one_line_per_series_and_the_problems(run_cli, small_csv
 
     lines = out.splitlines()
     assert code == 0
-    assert lines[0].split() == ["series", "n", "d", "suggested", "confidence", "flags"]
+    assert lines[0].split() == ["series", "n", "d", "suggested", "confidence", "flags", "main", "reason"]
     ids = [s.series_id for s in read_portfolio(small_csv).series if s.series_id != SHORT_SERIES_ID]
     assert [line.split()[0] for line in lines[1 : 1 + SERIES]] == ids
     assert all("ARIMA(" in line for line in lines[1 : 1 + SERIES])
     assert f"{SERIES} series identified" in out and "1 could not be analysed" in out
     assert f"problem: series '{SHORT_SERIES_ID}'" in out
+
+
+def test_identify_table_gives_the_main_reason_in_words_when_not_firm(small_csv):
+    with threadpool_limits(limits=1):
+        engine = [identify_task(SeriesTask(s.series_id, s.values, s.lines)).result for s in read_portfolio(small_csv).series]
+    found = [r for r in engine if r is not None]
+    # The same results once firm and once tentative for a flag, so both cases are shown whatever
+    # the engine made of the simulated series.
+    results = [replace(r, confidence=Confidence.FIRM) for r in found] + [
+        replace(r, confidence=Confidence.TENTATIVE, confidence_reasons=("flag: too_short", "something else")) for r in found]
+    lines = identify_table(results, []).splitlines()[1 : 1 + len(results)]
+    assert all(line.endswith("  -") for line in lines[: len(found)])
+    words = reason_words("flag: too_short")
+    assert words != "flag: too_short" and all(line.endswith(words) for line in lines[len(found):])
+    for result, line in zip(found, identify_table(found, []).splitlines()[1:]):
+        shown = "-" if result.confidence == Confidence.FIRM or main_reason(result) is None else reason_words(main_reason(result))
+        assert line.endswith(shown)
 
 
 def test_identify_json_has_the_documented_shape(run_cli, small_csv):
@@ -256,7 +287,92 @@ def test_import_analyze_status_end_to_end(run_cli, small_csv, tmp_path):
     code, out, _ = run_cli("status", "--db", db)
     assert code == 0
     assert out.splitlines()[0] == f"{db}: {SERIES} series"
-    assert f"verdicts: {SERIES} pending, 0 approved" in out
+    assert f"by status: {SERIES} pending, 0 approved" in out
+
+
+def test_status_counts_by_confidence_and_status_and_names_the_series_not_analysed(run_cli, small_csv, tmp_path):
+    db = tmp_path / "portfolio.db"
+    with closing(open_database(db)) as handle:
+        report = import_portfolio(handle, small_csv)
+    run_analysis(db, workers=1)
+    with closing(open_database(db)) as handle:
+        levels = [load_analysis(handle, sid).confidence for sid in report.added]
+    [rejection] = report.rejected
+
+    code, out, _ = run_cli("status", "--db", db)
+    lines = out.splitlines()
+    assert code == 0
+    assert "  rejected       1  refused by the import (too short, constant ...), so not stored" in lines
+    assert f"by confidence: {', '.join(f'{levels.count(c)} {c}' for c in reversed(Confidence))}" in lines
+    pending = {status: SERIES if status == "pending" else 0 for status in STATUSES}
+    assert f"by status: {', '.join(f'{n} {s}' for s, n in pending.items())}" in lines
+    shown = lines.index("not analysed (1):")
+    reason = rejection["message"].removeprefix(f"series {SHORT_SERIES_ID!r}: ")
+    assert lines[shown + 1] == f"  {SHORT_SERIES_ID}: rejected at import: {reason}"
+
+    code, out, _ = run_cli("status", "--db", db, "--json")
+    status = json.loads(out)
+    assert (status["rejected"], status["confidence"]) == (1, {str(c): levels.count(c) for c in reversed(Confidence)})
+    assert status["not_analysed"] == [{"series_id": SHORT_SERIES_ID, "stage": "import", "reason": reason}]
+
+
+def test_export_names_the_states_it_accepts_in_its_help_and_its_error(run_cli, small_csv, tmp_path, capsys):
+    with pytest.raises(SystemExit):
+        main(["export", "--help"])
+    help_text = " ".join(capsys.readouterr().out.split())
+    assert f"comma-separated: {' or '.join(DECIDED)} or both" in help_text
+    db, target = tmp_path / "portfolio.db", tmp_path / "orders.json"
+    run_cli("import", small_csv, "--db", db)
+
+    code, out, err = run_cli("export", "--db", db, "--status", "approved,pending", "-o", target)
+
+    assert (code, out) == (2, "")
+    assert err.strip() == f"lagdesk export: the export takes statuses {' and '.join(DECIDED)}, not 'pending'"
+    assert not target.exists()
+
+
+def test_lagdesk_script_is_the_installed_script_unless_the_name_on_the_path_runs_it(tmp_path):
+    script = tmp_path / ".venv" / "bin" / "lagdesk"
+    script.parent.mkdir(parents=True)
+    script.write_text("")
+    nowhere = lambda name: None  # noqa: E731 - no lagdesk on the PATH
+    assert lagdesk_script(str(script), which=nowhere) == script
+    assert lagdesk_script(str(script), which=lambda name: str(script)) is None  # an activated environment
+    # Run as python -m app.cli: the script installed beside that Python.
+    assert lagdesk_script(str(tmp_path / "app" / "cli.py"), executable=str(script.parent / "python"), which=nowhere) == script
+    assert lagdesk_script(str(tmp_path / "lagdesk"), which=nowhere) is None  # no script installed: plain lagdesk
+    assert path_as_typed(script, cwd=tmp_path) == ".venv/bin/lagdesk"
+    assert path_as_typed(script, cwd=tmp_path / "elsewhere") == shlex.quote(str(script))
+    assert path_as_typed(tmp_path / "my data.db", cwd=tmp_path) == "'./my data.db'"
+
+
+@pytest.mark.parametrize("activated", [False, True], ids=["fresh-clone", "activated-venv"])
+def test_the_next_hint_runs_as_typed(small_csv, tmp_path, activated):
+    """As typed in the repository after make: .venv/bin/lagdesk, or lagdesk once the venv is activated."""
+    venv_bin = Path(sys.executable).parent
+    others = [p for p in os.environ.get("PATH", "").split(os.pathsep) if p and Path(p).absolute() != venv_bin.absolute()]
+    env = {**os.environ, "PATH": os.pathsep.join([str(venv_bin)] * activated + others)}
+    db = tmp_path / "portfolio.db"
+    typed = "lagdesk" if activated else str(Path(os.path.relpath(venv_bin, REPO)) / "lagdesk")
+
+    done = subprocess.run([typed, "import", str(small_csv), "--db", str(db)], cwd=REPO, env=env,
+                          capture_output=True, text=True, timeout=120)
+
+    assert done.returncode == 0, done.stderr
+    hint = done.stdout.splitlines()[-1]
+    assert hint == f"Next: {typed} analyze --db {shlex.quote(str(db))}"
+    program = shlex.split(hint.removeprefix("Next: "))[0]
+    again = subprocess.run([program, "status", "--db", str(db)], cwd=REPO, env=env, capture_output=True, text=True, timeout=120)
+    assert again.returncode == 0 and again.stdout.startswith(f"{db}: {SERIES} series"), again.stderr
+
+
+def test_run_files_are_ignored_by_git():
+    if not (REPO / ".git").exists():
+        pytest.skip("not a git checkout")
+    names = ["lagdesk.db", "lagdesk.db-wal", "lagdesk.db-shm", "lagdesk.db-journal", "lagdesk.db-analysis.lock",
+             "sales.db-analysis.lock", "lagdesk-orders.json", "lagdesk-orders.csv", ".lagdesk-orders.json.0123abcd.tmp"]
+    done = subprocess.run(["git", "check-ignore", "--no-index", *names], cwd=REPO, capture_output=True, text=True)
+    assert done.stdout.splitlines() == names
 
 
 def test_import_of_an_unusable_file_stores_nothing(run_cli, small_csv, tmp_path):
@@ -320,7 +436,7 @@ def test_commands_that_read_a_database_do_not_create_one(run_cli, tmp_path, comm
     code, out, err = run_cli(command, "--db", db)
 
     assert code == 2 and out == ""
-    assert err.splitlines() == [f"lagdesk {command}: {db}: no such database; create it with lagdesk import PATH --db {db}"]
+    assert err.splitlines() == [f"lagdesk {command}: {db}: no such database; create it with {typed_command(f'import PATH --db {db}')}"]
     assert not db.exists()
 
 
@@ -606,7 +722,7 @@ def test_decide_does_not_create_a_database(run_cli, tmp_path):
     code, out, err = run_cli("decide", "north/a", "approve", "--reviewer", "ann", "--db", db)
 
     assert (code, out) == (2, "")
-    assert err.splitlines() == [f"lagdesk decide: {db}: no such database; create it with lagdesk import PATH --db {db}"]
+    assert err.splitlines() == [f"lagdesk decide: {db}: no such database; create it with {typed_command(f'import PATH --db {db}')}"]
     assert not db.exists()
 
 

@@ -21,9 +21,6 @@ from app.jobs.analyze import RunProgress
 REPO = Path(__file__).resolve().parents[1]
 ENGINE_LIBRARIES = ("numba", "statsmodels", "scipy", "plotly")
 COMMANDS = ("identify", "import", "analyze", "status", "demo", "export", "backtest", "decide", "serve")
-# Their options name constants of modules that load the engine (app.core.identify's AUTO_PERIOD,
-# app.core.backtest's DEFAULT_ORIGINS, app.review.export's FORMATS): remaining work of issue 17.
-HELP_LOADS_ENGINE = ("identify", "analyze", "backtest", "export")
 
 
 def imported_modules(*code_or_args: str) -> set[str]:
@@ -53,11 +50,7 @@ def test_help_loads_neither_the_engine_nor_pandas():
     assert "pandas" not in modules
 
 
-@pytest.mark.parametrize(
-    "command",
-    [pytest.param(c, marks=pytest.mark.xfail(strict=True, reason="options need an engine module")) if c in HELP_LOADS_ENGINE else c
-     for c in COMMANDS],
-)
+@pytest.mark.parametrize("command", COMMANDS)
 def test_command_help_loads_no_engine_library(command):
     assert engine_libraries(imported_modules("-m", "app.cli", command, "--help")) == []
 
@@ -76,7 +69,6 @@ def test_status_loads_no_engine_library(portfolio_db, output):
     assert engine_libraries(imported_modules("-m", "app.cli", "status", "--db", portfolio_db, *output)) == []
 
 
-@pytest.mark.xfail(strict=True, reason="app.review.export imports app.jobs.order_fits, which loads the engine")
 def test_export_loads_no_engine_library(portfolio_db, tmp_path):
     modules = imported_modules("-m", "app.cli", "export", "--db", portfolio_db, "-o", str(tmp_path / "orders.json"))
     assert engine_libraries(modules) == []

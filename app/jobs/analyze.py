@@ -30,7 +30,6 @@ from app.jobs.executors import LOCAL, ExecutorChoice, default_workers, map_unord
 from app.jobs.recheck import recheck_after_analysis
 from app.jobs.run_lock import LOCK_SUFFIX as LOCK_SUFFIX  # re-exported: app.web's tests import it from here
 from app.jobs.run_lock import acquire_run_lock, held_runs, release_lock_fd, release_run, start_guard
-from app.jobs.run_lock import close_abandoned_runs as close_abandoned_runs  # re-exported: app.web imports it from here
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database, write_transaction

@@ -7,6 +7,7 @@ finds nothing left to analyse, so a second ``lagdesk demo`` takes seconds.
 from __future__ import annotations
 
 import csv
+from collections.abc import Callable
 from pathlib import Path
 
 import app
@@ -14,17 +15,21 @@ from app.core.errors import LagdeskError
 from app.core.portfolio_file import DEFAULT_ID_COL
 from app.jobs.analyze import ProgressCallback, run_analysis
 from app.store.database import open_database
-from app.store.imports import import_portfolio
+from app.store.imports import ImportReport, import_portfolio
 from app.store.series import series_ids_to_analyse
 
 DEMO_PORTFOLIO = Path(app.__file__).resolve().parent.parent / "demo_data" / "portfolio.csv"
 
 
-def build_demo_database(db_path: str | Path, workers: int, on_progress: ProgressCallback | None = None) -> Path:
+def build_demo_database(
+    db_path: str | Path, workers: int, on_progress: ProgressCallback | None = None,
+    on_import: Callable[[ImportReport], None] | None = None,
+) -> Path:
     """Import the demo portfolio into ``db_path`` (created if needed) and analyse it.
 
     Returns the database's path. The import is the store's usual merge, so a database that
-    already holds the demo is left as it is.
+    already holds the demo is left as it is. ``on_import`` is given the import's report before
+    the analysis starts; ``on_progress`` follows the analysis (:func:`run_analysis`).
 
     Raises
     ------
@@ -45,9 +50,11 @@ def build_demo_database(db_path: str | Path, workers: int, on_progress: Progress
                 f"{path}: holds {len(foreign)} series that are not demo series (e.g. {foreign[0]!r}); "
                 "choose another file for the demo with --db"
             )
-        import_portfolio(db, DEMO_PORTFOLIO, display_name="demo_data/portfolio.csv")
+        report = import_portfolio(db, DEMO_PORTFOLIO, display_name="demo_data/portfolio.csv")
     finally:
         db.close()
+    if on_import is not None:
+        on_import(report)
     run_analysis(path, workers=workers, on_progress=on_progress)
     return path
 

@@ -12,6 +12,11 @@ REFRESH_SECONDS = 0.25
 class ProgressLine:
     """Redraws ``label: 37/91 series  4.1/s  ~13 s left`` on ``stream`` (stderr by default).
 
+    The line is drawn as soon as it is made (``label: 0/91 series``), so a run shows its size
+    before the first series is done. The rate and the time left are measured from the first
+    finished series on: what comes before it (starting the workers, compiling the likelihood
+    once) is paid once per run, and counted in would promise hours at the start of a minute's run.
+
     On a terminal the line is redrawn in place; otherwise (a log file, CI) one line is written
     every tenth of the work so logs stay short.
     """
@@ -22,24 +27,37 @@ class ProgressLine:
         self.done = 0
         self.failed = 0
         self.started = time.monotonic()
+        self.first_done: float | None = None
         self._last_draw = 0.0
         self._last_decile = -1
         self._tty = bool(getattr(self.stream, "isatty", lambda: False)())
+        if total:
+            self._draw(self.started, force=True)
 
     def text(self) -> str:
-        elapsed = max(time.monotonic() - self.started, 1e-9)
-        rate = self.done / elapsed
-        left = (self.total - self.done) / rate if rate > 0 else float("nan")
+        now = time.monotonic()
+        elapsed = now - self.started
         failed = f", {self.failed} failed" if self.failed else ""
-        eta = f"  ~{left:.0f} s left" if self.done < self.total and rate > 0 else f"  {elapsed:.1f} s"
-        return f"{self.label}: {self.done}/{self.total} series{failed}  {rate:.1f}/s{eta}"
+        if self.done >= self.total:
+            tail = f"  {self.done / max(elapsed, 1e-9):.1f}/s  {elapsed:.1f} s"
+        elif self.first_done is not None and self.done > 1:
+            rate = (self.done - 1) / max(now - self.first_done, 1e-9)
+            tail = f"  {rate:.1f}/s  ~{(self.total - self.done) / rate:.0f} s left"
+        else:
+            tail = f"  {elapsed:.0f} s"
+        return f"{self.label}: {self.done}/{self.total} series{failed}{tail}"
 
     def advance(self, failed: bool = False) -> None:
         self.done += 1
         self.failed += int(failed)
         now = time.monotonic()
+        if self.first_done is None:
+            self.first_done = now
+        self._draw(now, force=self.done == self.total)
+
+    def _draw(self, now: float, force: bool) -> None:
         if self._tty:
-            if now - self._last_draw >= REFRESH_SECONDS or self.done == self.total:
+            if force or now - self._last_draw >= REFRESH_SECONDS:
                 self.stream.write("\r" + self.text().ljust(72))
                 self.stream.flush()
                 self._last_draw = now

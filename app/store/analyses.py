@@ -49,7 +49,7 @@ def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, a
     suggested = analysis.suggested.order
     summary = {
         "confidence": str(analysis.confidence),
-        "main_reason": analysis.confidence_reasons[0] if analysis.confidence_reasons else None,
+        "main_reason": main_reason(analysis),
         "flags": json.dumps([str(f) for f in analysis.flags]),
         "suggested_order": json.dumps(list(suggested.order)),
         "suggested_seasonal_order": json.dumps(list(suggested.seasonal_order)),
@@ -60,6 +60,12 @@ def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, a
     with write_transaction(db):
         _store(db, series_id, fingerprint, run_id, state="complete", **summary)
         db.table("analysis_results").insert({"series_id": series_id, "result": text}, replace=True)
+
+
+def main_reason(analysis: Analysis) -> str | None:
+    """The first of the analysis' confidence reasons, in the engine's words (a flag as ``flag:
+    NAME``), or None when it gives none: what the queue row and ``lagdesk identify`` show."""
+    return analysis.confidence_reasons[0] if analysis.confidence_reasons else None
 
 
 def save_failure(db: sqlite_utils.Database, series_id: str, fingerprint: str, message: str, run_id: int | None) -> None:
@@ -113,6 +119,14 @@ def analysis_from_json(series_id: str, text: str) -> Analysis:
         return Analysis.from_dict(json.loads(text))
     except (KeyError, TypeError, ValueError) as exc:
         raise LagdeskError(f"series {series_id!r}: the stored analysis cannot be read ({type(exc).__name__}: {exc})") from None
+
+
+def failed_analyses(db: sqlite_utils.Database) -> list[dict]:
+    """The series whose analysis failed on their current data, by id: ``[{"series_id", "message"}]``."""
+    return list(db.query(
+        f"SELECT s.series_id, a.message FROM series s JOIN analyses a ON a.series_id = s.series_id "
+        f"WHERE {ANALYSIS_STATE_SQL} = 'failed' ORDER BY s.series_id"
+    ))
 
 
 def analysis_record(db: sqlite_utils.Database, series_id: str) -> dict:

@@ -3,7 +3,7 @@
 ``done`` counts the series finished so far (analysed or failed) and ``failed`` those of them
 that failed, so ``done / total`` is the progress. A run whose process died is left ``running``
 until someone who can tell that it died (the run lock is free:
-:func:`app.jobs.analyze.close_abandoned_runs`) closes it with :func:`interrupt_running_runs`.
+:func:`app.jobs.run_lock.close_abandoned_runs`) closes it with :func:`interrupt_running_runs`.
 """
 
 from __future__ import annotations

@@ -12,7 +12,7 @@ from collections.abc import Iterable
 import pandas as pd
 import sqlite_utils
 
-from app.core.errors import LagdeskError
+from app.core.errors import LagdeskError, SeriesProblem
 from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL
 from app.store.timestamps import index_from_keys
@@ -226,9 +226,12 @@ def list_series(
     items : list of dict
         ``{"series_id", "n", "freq", "status", "confidence", "main_reason", "suggested":
         {"order", "seasonal_order"}, "chosen": {"order", "seasonal_order"}, "flags", "reviewer",
-        "analysis_state", "attention", "recheck_reason"}``; ``main_reason`` is the first
-        confidence reason in the engine's words (None for a series not analysed, or analysed by
-        a version that gave no reasons).
+        "analysis_state", "analysis_message", "attention", "recheck_reason"}``; ``main_reason`` is
+        the first confidence reason in the engine's words (None for a series not analysed, or
+        analysed by a version that gave no reasons); ``analysis_message`` why the analysis of the
+        current data failed (:func:`problem_reason`; None unless ``analysis_state`` is
+        ``failed``). Series an import
+        rejected are not stored, so not listed: :func:`rejected_series` lists them.
     """
     if limit < 0 or offset < 0:
         raise LagdeskError(f"limit ({limit}) and offset ({offset}) must be >= 0")
@@ -237,7 +240,8 @@ def list_series(
     rows = db.query(
         f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.main_reason, a.suggested_order, "
         f"a.suggested_seasonal_order, v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
-        f"{ANALYSIS_STATE_SQL} AS analysis_state, {ATTENTION_SQL} AS attention, v.recheck_reason "
+        f"{ANALYSIS_STATE_SQL} AS analysis_state, CASE WHEN {ANALYSIS_STATE_SQL} = 'failed' THEN a.message END AS analysis_message, "
+        f"{ATTENTION_SQL} AS attention, v.recheck_reason "
         f"{_FROM} {where} {_order_by(sort, descending)} LIMIT ? OFFSET ?",
         params + [limit, offset],
     )
@@ -260,8 +264,58 @@ def _item(row: dict) -> dict:
         "flags": json.loads(row["flags"]),
         "reviewer": row["reviewer"],
         "analysis_state": row["analysis_state"],
+        "analysis_message": problem_reason(row["series_id"], row["analysis_message"]) if row["analysis_message"] else None,
         "attention": float(row["attention"]),
         "recheck_reason": row["recheck_reason"],
+    }
+
+
+def rejected_series(db: sqlite_utils.Database, *, q: str | None = None, prefix: str | None = None) -> list[dict]:
+    """The series an import rejected (too short, constant, unreadable ...) that no import stored
+    since, by id: each with the reason its latest rejection gave.
+
+    ``q`` and ``prefix`` keep ids as in :func:`list_series`. Such a series has no observations,
+    analysis or verdict in the database; an import that stores it takes it off this list.
+
+    Returns
+    -------
+    list of dict
+        ``{"series_id", "reason", "flag", "line", "file", "imported_at"}``: ``reason`` in words
+        without the series id, ``flag`` the machine-readable reason (``too_short``,
+        ``constant`` ...), ``line`` the file line named (or None), ``file`` and ``imported_at``
+        those of the import that rejected it.
+    """
+    where, params = _where(None, None, None, q, prefix)
+    rows = db.execute(
+        "WITH rejections AS (SELECT json_extract(j.value, '$.series_id') AS series_id, j.value AS rejection, i.file, "
+        "i.imported_at, row_number() OVER (PARTITION BY json_extract(j.value, '$.series_id') ORDER BY i.import_id DESC) "
+        "AS newest FROM imports i, json_each(i.rejected) j), "
+        "latest AS (SELECT * FROM rejections r WHERE r.newest = 1 "
+        "AND NOT EXISTS (SELECT 1 FROM series stored WHERE stored.series_id = r.series_id)) "
+        f"SELECT s.rejection, s.file, s.imported_at FROM latest s {where} ORDER BY s.series_id",
+        params,
+    ).fetchall()
+    return [_rejected_item(json.loads(rejection), file, imported_at) for rejection, file, imported_at in rows]
+
+
+def problem_reason(series_id: str, message: str, line: int | None = None) -> str:
+    """A stored problem's message (an import's rejection, a failed analysis) without the series
+    id and line it starts with, as every :class:`~app.core.errors.SeriesProblem`'s does (twice
+    when the engine's own message named the series too): for a row that names the series."""
+    head = str(SeriesProblem(series_id, "", line))
+    while message.startswith(head):
+        message = message.removeprefix(head)
+    return message
+
+
+def _rejected_item(rejection: dict, file: str, imported_at: str) -> dict:
+    return {
+        "series_id": rejection["series_id"],
+        "reason": problem_reason(rejection["series_id"], rejection["message"], rejection.get("row")),
+        "flag": rejection.get("flag"),
+        "line": rejection.get("row"),
+        "file": file,
+        "imported_at": imported_at,
     }
 
 
@@ -308,7 +362,7 @@ def group_counts(db: sqlite_utils.Database, depth: int, prefix: str | None = Non
 
     Returns ``[{"prefix", "total", "pending", "weak", "tentative", "firm", "decided", "parked",
     "recheck"}]`` by prefix: ``weak``, ``tentative`` and ``firm`` count the pending series of
-    that confidence (what is left to review), ``decided`` the approved and overridden ones.
+    that confidence (what is left to review), ``decided`` the approved, overridden and not_arima ones.
 
     Raises
     ------
@@ -333,7 +387,7 @@ def group_counts(db: sqlite_utils.Database, depth: int, prefix: str | None = Non
             counts["pending"] += 1
             if confidence in counts:
                 counts[confidence] += 1
-        elif status in ("approved", "overridden"):
+        elif status in ("approved", "overridden", "not_arima"):
             counts["decided"] += 1
         else:
             counts[status] += 1
@@ -348,23 +402,27 @@ def flags_present(db: sqlite_utils.Database) -> dict[str, int]:
     ).fetchall())
 
 
+def confidence_counts(db: sqlite_utils.Database) -> dict[str, int]:
+    """How many stored analyses (current or stale) hold each confidence level, weakest first, as
+    the confidence filter sees them."""
+    counts = dict.fromkeys(CONFIDENCE_LEVELS, 0)
+    counts.update(
+        db.execute("SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL GROUP BY confidence").fetchall()
+    )
+    return counts
+
+
 def count_by(db: sqlite_utils.Database) -> dict:
     """Counts for the dashboard's filters.
 
     ``{"confidence": {level: n}, "status": {status: n}, "total": n, "reviewed": n}``: the
     confidence of each series' stored analysis (as the confidence filter sees it), every
-    verdict status, and ``reviewed`` = approved + overridden.
+    verdict status, and ``reviewed`` = approved + overridden + not_arima.
     """
-    confidence = dict.fromkeys(CONFIDENCE_LEVELS, 0)
-    confidence.update(
-        db.execute(
-            "SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL GROUP BY confidence"
-        ).fetchall()
-    )
     status = verdict_counts(db)
     return {
-        "confidence": confidence,
+        "confidence": confidence_counts(db),
         "status": status,
         "total": sum(status.values()),
-        "reviewed": status["approved"] + status["overridden"],
+        "reviewed": status["approved"] + status["overridden"] + status["not_arima"],
     }

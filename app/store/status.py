@@ -1,22 +1,50 @@
-"""What the portfolio holds, in numbers (``lagdesk status`` and the dashboard header)."""
+"""What the portfolio holds, in numbers (``lagdesk status``, the demo's summary and
+``GET /api/portfolio``), and which series could not be analysed and why."""
 
 from __future__ import annotations
 
 import sqlite_utils
 
-from app.store.analyses import ANALYSIS_STATE_SQL
+from app.store.analyses import ANALYSIS_STATE_SQL, failed_analyses
+from app.store.series import confidence_counts, problem_reason, rejected_series
 from app.store.verdicts import verdict_counts
+
+# Where a series stopped short of an analysis: refused by the import, or failed in the engine.
+IMPORT_STAGE = "import"
+ANALYSIS_STAGE = "analysis"
 
 
 def portfolio_status(db: sqlite_utils.Database) -> dict:
-    """``{"series", "analysed", "stale", "failed", "verdicts": {status: n}}``.
+    """``{"series", "analysed", "stale", "failed", "rejected", "confidence": {level: n},
+    "verdicts": {status: n}, "not_analysed": [...]}``.
 
     ``analysed`` counts series with a complete analysis of their current data, ``stale`` those
-    whose analysis is missing or out of date, ``failed`` those whose current data failed.
+    whose analysis is missing or out of date, ``failed`` those whose current data failed;
+    ``rejected`` the series an import refused (not stored, so not in ``series``);
+    ``confidence`` the stored analyses by level, weakest first. ``not_analysed`` is
+    :func:`not_analysed`.
     """
     series, analysed, stale, failed = db.execute(
         "SELECT count(*), coalesce(sum(state = 'current'), 0), coalesce(sum(state IN ('missing', 'stale')), 0), "
         "coalesce(sum(state = 'failed'), 0) "
         f"FROM (SELECT {ANALYSIS_STATE_SQL} AS state FROM series s LEFT JOIN analyses a ON a.series_id = s.series_id)"
     ).fetchone()
-    return {"series": series, "analysed": analysed, "stale": stale, "failed": failed, "verdicts": verdict_counts(db)}
+    missing = not_analysed(db)
+    return {
+        "series": series, "analysed": analysed, "stale": stale, "failed": failed,
+        "rejected": sum(m["stage"] == IMPORT_STAGE for m in missing),
+        "confidence": confidence_counts(db), "verdicts": verdict_counts(db), "not_analysed": missing,
+    }
+
+
+def not_analysed(db: sqlite_utils.Database) -> list[dict]:
+    """Every series that has no analysis to review and why: ``{"series_id", "stage", "reason"}``,
+    first those the import rejected (``stage`` ``import``: too short, constant ...), then those
+    whose analysis failed on their current data (``analysis``), each by id; ``reason`` without
+    the series id the stored message starts with (:func:`~app.store.series.problem_reason`)."""
+    return [
+        {"series_id": r["series_id"], "stage": IMPORT_STAGE, "reason": r["reason"]} for r in rejected_series(db)
+    ] + [
+        {"series_id": f["series_id"], "stage": ANALYSIS_STAGE, "reason": problem_reason(f["series_id"], f["message"])}
+        for f in failed_analyses(db)
+    ]

@@ -12,7 +12,7 @@ from fastapi import Depends, Request
 
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
-from app.jobs.analyze import close_abandoned_runs
+from app.jobs.run_lock import close_abandoned_runs
 from app.store.database import open_database
 
 REVIEWER_COOKIE = "lagdesk_reviewer"

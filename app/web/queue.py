@@ -1,4 +1,5 @@
-"""The queue page's view model: counts, one page of the filtered series with sparklines, the pager."""
+"""The queue page's view model: counts, one page of the filtered series with sparklines, the pager,
+and the series the import rejected (not analysed)."""
 
 from __future__ import annotations
 
@@ -7,12 +8,23 @@ import sqlite_utils
 from app.review.bulk import count_waiting
 from app.review.filters import SeriesFilter
 from app.store.runs import latest_run
-from app.store.series import CONFIDENCE_LEVELS, ID_SEPARATOR, count_by, flags_present, group_counts, list_series, series_values
+from app.store.series import (
+    CONFIDENCE_LEVELS,
+    ID_SEPARATOR,
+    count_by,
+    flags_present,
+    group_counts,
+    list_series,
+    rejected_series,
+    series_values,
+)
 from app.store.verdicts import STATUSES
 from app.web.sparkline import sparkline_svg
 
 # The page sizes the queue offers (Settings.max_page_size bounds what a request may ask for).
 PAGE_SIZES = (50, 200, 1000)
+# Rejected series the queue page shows at most (all of them: GET /api/series).
+REJECTED_SHOWN = PAGE_SIZES[0]
 
 
 def prefix_crumbs(prefix: str | None) -> list[tuple[str, str]]:
@@ -34,9 +46,19 @@ def subgroups(db: sqlite_utils.Database, prefix: str | None) -> list[dict]:
     return [g for g in group_counts(db, depth, prefix) if g["prefix"].endswith(ID_SEPARATOR)]
 
 
+def rejected_in_filter(db: sqlite_utils.Database, flt: SeriesFilter) -> list[dict]:
+    """The series an import rejected that the filter keeps (:func:`rejected_series`): those whose
+    id matches its ``q`` and ``prefix``, none when it asks for a status, confidence or flag, which
+    a series without an analysis or verdict does not have. The queue page and ``GET /api/series``
+    show them."""
+    if flt.status or flt.confidence or flt.flag:
+        return []
+    return rejected_series(db, q=flt.q, prefix=flt.prefix)
+
+
 def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit: int, default_limit: int) -> dict:
     """Everything the queue page shows: counts, groups, one page of series with sparklines, the
-    pager, and how many series the bulk actions would take.
+    pager, how many series the bulk actions would take, and the rejected series of the filter.
 
     An ``offset`` past the end shows the last page; ``limit`` other than ``default_limit`` is
     kept in the page's links (``keep``).
@@ -54,6 +76,8 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
         "filter": flt,
         "total": total,
         "items": items,
+        "rejected": rejected_in_filter(db, flt),
+        "rejected_shown": REJECTED_SHOWN,
         "offset": offset,
         "limit": limit,
         "page": offset // limit + 1,

@@ -19,7 +19,7 @@ from uvicorn.protocols.http.h11_impl import H11Protocol
 
 from app.config import REQUEST_TIMEOUT_S, Settings
 from app.core.errors import LagdeskError
-from app.jobs.analyze import close_abandoned_runs
+from app.jobs.run_lock import close_abandoned_runs
 from app.store.database import open_database
 from app.web.main import create_app
 from app.web.security import require_token_off_loopback

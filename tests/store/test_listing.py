@@ -1,4 +1,5 @@
-"""The dashboard list: filters, sort keys, paging with the total, neighbours, counts, status."""
+"""The dashboard list: filters, sort keys, paging with the total, neighbours, counts, status, and
+the series an import rejected (listed apart as not analysed)."""
 
 from __future__ import annotations
 
@@ -18,12 +19,14 @@ from app.store.series import (
     id_group,
     list_series,
     load_series,
+    problem_reason,
+    rejected_series,
     series_fingerprint,
     series_neighbours,
     series_values,
 )
-from app.store.status import portfolio_status
-from app.store.verdicts import mark_recheck, set_verdict
+from app.store.status import not_analysed, portfolio_status
+from app.store.verdicts import STATUSES, mark_recheck, set_verdict
 
 # series id: (verdict, analysis confidence or "failed"/None, flags, suggested order, reviewer)
 PORTFOLIO = {
@@ -85,6 +88,8 @@ def test_items_carry_the_summary_of_analysis_and_verdict(listed_db):
     assert items["a-recheck"]["recheck_reason"] == "the data changed"
     assert items["a-recheck"]["chosen"]["order"] == [1, 0, 0]
     assert [items[s]["analysis_state"] for s in ("e-firm", "f-failed", "g-missing")] == ["current", "failed", "missing"]
+    assert {s: item["analysis_message"] for s, item in items.items() if item["analysis_message"]} == {
+        "f-failed": "every candidate failed"}
     assert items["g-missing"]["suggested"] == {"order": None, "seasonal_order": None}
 
 
@@ -147,25 +152,80 @@ def test_neighbours_are_the_adjacent_items_of_the_same_list(listed_db, options):
     assert series_neighbours(listed_db, "not-listed", **options) == (None, None)
 
 
+NO_VERDICTS = dict.fromkeys(STATUSES, 0)
+
+
 def test_count_by_and_portfolio_status(listed_db):
+    verdicts = {**NO_VERDICTS, "pending": 6, "approved": 1, "overridden": 1, "parked": 1, "recheck": 1}
     assert count_by(listed_db) == {
         "confidence": {"weak": 3, "tentative": 2, "firm": 3},
-        "status": {"pending": 6, "approved": 1, "overridden": 1, "parked": 1, "recheck": 1},
+        "status": verdicts,
         "total": 10,
         "reviewed": 2,
     }
     assert portfolio_status(listed_db) == {
-        "series": 10, "analysed": 8, "stale": 1, "failed": 1,
-        "verdicts": {"pending": 6, "approved": 1, "overridden": 1, "parked": 1, "recheck": 1},
+        "series": 10, "analysed": 8, "stale": 1, "failed": 1, "rejected": 0,
+        "confidence": {"weak": 3, "tentative": 2, "firm": 3}, "verdicts": verdicts,
+        "not_analysed": [{"series_id": "f-failed", "stage": "analysis", "reason": "every candidate failed"}],
     }
 
 
 def test_status_of_an_empty_database(fresh_db):
     assert portfolio_status(fresh_db) == {
-        "series": 0, "analysed": 0, "stale": 0, "failed": 0,
-        "verdicts": {"pending": 0, "approved": 0, "overridden": 0, "parked": 0, "recheck": 0},
+        "series": 0, "analysed": 0, "stale": 0, "failed": 0, "rejected": 0,
+        "confidence": {"weak": 0, "tentative": 0, "firm": 0}, "verdicts": NO_VERDICTS, "not_analysed": [],
     }
     assert list_series(fresh_db) == (0, [])
+
+
+def _csv_rows(path, rows: dict[str, list[float]]):
+    """A long CSV of integer-step series: ``{series_id: values}``."""
+    path.write_text("series_id,timestamp,value\n" + "".join(
+        f"{sid},{t},{v!r}\n" for sid, values in rows.items() for t, v in enumerate(values)))
+    return path
+
+
+@pytest.mark.parametrize("message, line, reason", [
+    ("series 's' (line 3): has no values", 3, "has no values"),
+    # The job's failure of a problem whose engine message named the series already.
+    ("series 's': series 's': seasonal period 24 is too long", None, "seasonal period 24 is too long"),
+    ("every candidate failed", None, "every candidate failed"),
+])
+def test_problem_reason_drops_the_series_id_the_message_starts_with(message, line, reason):
+    assert problem_reason("s", message, line) == reason
+
+
+def test_rejected_series_are_the_import_rejections_not_stored_since(fresh_db, write_csv, monthly, tmp_path):
+    # Two series the import refuses (prepare.py: constant values; fewer than MIN_POINTS) beside a
+    # good one: each listed once, with the reason the import gave, without the id it starts with.
+    first = import_portfolio(fresh_db, write_csv("good.csv", {"shop/good": monthly(1)}))
+    report = import_portfolio(fresh_db, _csv_rows(tmp_path / "bad.csv", {
+        "shop/flat": [4.0] * 40, "other/short": [1.0, 3.0, 2.0, 5.0, 4.0]}))
+    assert first.rejected == [] and {r["series_id"] for r in report.rejected} == {"shop/flat", "other/short"}
+
+    listed = rejected_series(fresh_db)
+    assert [r["series_id"] for r in listed] == ["other/short", "shop/flat"]
+    by_id = {r["series_id"]: r for r in report.rejected}
+    for item in listed:
+        assert f"series {item['series_id']!r}: {item['reason']}" == by_id[item["series_id"]]["message"]
+        assert (item["flag"], item["line"], item["file"]) == (by_id[item["series_id"]]["flag"], None, report.file)
+        assert item["imported_at"] == report.imported_at
+    assert [r["flag"] for r in listed] == ["too_short", "constant"]
+    assert list_series(fresh_db)[0] == 1  # only the stored series is listed
+    assert [r["series_id"] for r in rejected_series(fresh_db, prefix="shop/")] == ["shop/flat"]
+    assert [r["series_id"] for r in rejected_series(fresh_db, q="SHORT")] == ["other/short"]
+    assert not_analysed(fresh_db) == [{"series_id": r["series_id"], "stage": "import", "reason": r["reason"]} for r in listed]
+    assert portfolio_status(fresh_db)["rejected"] == 2
+
+
+def test_a_rejected_series_shows_its_latest_reason_and_leaves_the_list_once_stored(fresh_db, tmp_path):
+    import_portfolio(fresh_db, _csv_rows(tmp_path / "a.csv", {"s": [2.0] * 30}))
+    assert [r["flag"] for r in rejected_series(fresh_db)] == ["constant"]
+    import_portfolio(fresh_db, _csv_rows(tmp_path / "b.csv", {"s": [2.0, 1.0, 3.0]}))  # still refused, now too short
+    assert [r["flag"] for r in rejected_series(fresh_db)] == ["too_short"]
+    import_portfolio(fresh_db, _csv_rows(tmp_path / "c.csv", {"s": [float((t * 7) % 11) for t in range(30)]}))
+    assert rejected_series(fresh_db) == []
+    assert list_series(fresh_db)[0] == 1
 
 
 def test_loading_a_series_and_its_analysis_uses_indexes_not_scans(listed_db):

@@ -335,7 +335,7 @@ def test_bulk_approval_keeps_to_the_id_prefix(client, db, results):
         assert verdict["status"] == "approved" and verdict["order"] == list(results[sid].suggested.order.order)
     assert all(get_verdict(db, sid)["status"] == "pending" for sid in outside)
     # a prefix the ids only contain, not start with, approves nothing
-    assert client.post("/api/approve-firm", params={"prefix": "line"}, json={"reviewer": "Ada"}).json() == {"count": 0, "approved": []}
+    assert client.post("/api/approve-firm", params={"prefix": "line"}, json={"reviewer": "Ada"}).json() == {"bulk_id": None, "count": 0, "approved": []}
     assert all(get_verdict(db, sid)["status"] == "pending" for sid in outside)
 
 

@@ -4,9 +4,10 @@ Every state-changing call (POST) carries the ``X-CSRF-Token`` header equal to th
 ``lagdesk_csrf`` cookie: ``GET /api/csrf`` gives a client that keeps cookies both (a call that
 sends the access token in ``X-Lagdesk-Token`` needs neither; see :mod:`app.web.security`).
 
-Errors come back as ``{"detail": message}``: 404 for an unknown series or run, 409 (with the
-current ``verdict``) when a verdict names a version that is no longer current, 422 for an
-impossible order or a bad value, 429 while the series is busy with another forecast check or
+Errors come back as ``{"detail": message}``: 404 for an unknown series, run or bulk approval,
+409 (with the current ``verdict``) when a verdict names a version that is no longer current, or
+when a bulk approval can no longer be undone, 422 for an impossible order or a bad value (and for
+a risky approval without a note, or an order failing Ljung-Box at 1% without ``confirm``), 429 while the series is busy with another forecast check or
 fit, 400 for an unusable file or a malformed request, 403 without the CSRF header or from
 another site, 413 for a body over the limit.
 """
@@ -24,17 +25,19 @@ from app.config import Settings
 from app.core.backtest import DEFAULT_ORIGINS
 from app.core.series_ids import MAX_ID_LENGTH
 from app.jobs.analyze import start_background_analysis
-from app.review.bulk import approve_firm, park, waiting_ids
+from app.review.bulk import approve_firm, park, undo_bulk_approval, waiting_ids
 from app.review.decisions import MAX_NOTE_LENGTH, decide, fit_custom_order
 from app.review.export import build_orders_document, parse_statuses
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import MAX_ORIGINS, MIN_HORIZON_CAP, backtest_series
 from app.store.analyses import analysis_record, load_analysis
+from app.store.bulk_approvals import get_bulk_approval
 from app.store.runs import get_run, latest_run, list_runs
 from app.store.series import count_by, group_counts, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, computation_slot, get_db, get_runs_db, get_settings, whole_numbers
+from app.web.queue import rejected_in_filter
 from app.web.security import CSRF_HEADER, CSRF_PATH, csrf_token
 from app.web.uploads import UploadOptions, import_upload
 
@@ -58,6 +61,14 @@ Config = Annotated[Settings, Depends(get_settings)]
 Note = Annotated[str, Field(description=f"at most {MAX_NOTE_LENGTH:,} characters")]
 Order = Annotated[list[int], Field(min_length=3, max_length=3, description="[p, d, q]")]
 SeasonalOrder = Annotated[list[int], Field(min_length=4, max_length=4, description="[P, D, Q, s]; s = 0 for no season")]
+Transform = Annotated[str | dict[str, float] | None, Field(
+    description='"none", "log" or {"box_cox": lambda}; default: the analysis\' transform (log and Box-Cox need positive data)',
+    examples=["log", {"box_cox": 0.5}],
+)]
+IncludeConstant = Annotated[bool | None, Field(
+    description="a constant (a mean undifferenced, a drift after one difference) or none; default: the engine's term for the order",
+)]
+BulkId = Annotated[int, Path(ge=1, le=SQLITE_MAX_INTEGER)]
 
 
 def finite(value):
@@ -88,6 +99,7 @@ class SeriesItem(BaseModel):
     flags: list[str]
     reviewer: str
     analysis_state: str
+    analysis_message: str | None = Field(None, description="why the analysis of the current data failed (analysis_state 'failed')")
     attention: float
     recheck_reason: str | None
 
@@ -99,9 +111,18 @@ class GroupCounts(BaseModel):
     weak: int = Field(description="pending series with a weak suggestion (tentative and firm likewise)")
     tentative: int
     firm: int
-    decided: int = Field(description="approved or overridden")
+    decided: int = Field(description="approved, overridden or not_arima")
     parked: int
     recheck: int
+
+
+class RejectedSeries(BaseModel):
+    series_id: str
+    reason: str = Field(description="why the import refused it, in words")
+    flag: str | None = Field(description="the reason's code: too_short, constant, ...")
+    line: int | None = Field(description="the file line the reason names")
+    file: str
+    imported_at: str
 
 
 class SeriesList(BaseModel):
@@ -109,6 +130,9 @@ class SeriesList(BaseModel):
     limit: int
     offset: int
     items: list[SeriesItem]
+    rejected: list[RejectedSeries] = Field(description=(
+        "not analysed: the series of the filter's q and prefix that an import refused (too short, constant ...), "
+        "so never stored; empty when the filter asks for a status, confidence or flag"))
 
 
 class Verdict(BaseModel):
@@ -116,6 +140,8 @@ class Verdict(BaseModel):
     order: list[int] | None
     seasonal_order: list[int] | None
     transform: str | dict
+    trend: str | None = Field(description="the model's deterministic term: n, c (a mean), t (a drift), ct; null without an order")
+    include_constant: bool | None
     note: str
     reviewer: str
     version: int
@@ -124,10 +150,15 @@ class Verdict(BaseModel):
 
 
 class VerdictIn(BaseModel):
-    status: Literal["approved", "overridden", "parked", "pending"] = Field(description="'pending' reopens a decided series")
+    status: Literal["approved", "overridden", "parked", "pending", "not_arima"] = Field(
+        description="'pending' reopens a decided series; 'not_arima': no ARIMA order should forecast it (listed apart in the export)")
     order: Order | None = Field(None, description="needed for 'overridden'; 'approved' takes the suggestion")
     seasonal_order: SeasonalOrder | None = None
-    note: Note = ""
+    transform: Transform = None
+    include_constant: IncludeConstant = None
+    confirm: bool = Field(False, description="save an order whose residuals fail the Ljung-Box test at 1% anyway")
+    note: Note = Field("", description=f"at most {MAX_NOTE_LENGTH:,} characters; needed to approve a suggestion "
+                       "that did not converge, fails Ljung-Box at 1% or lacks standard errors")
     reviewer: str = ""
     version: int = Field(ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
 
@@ -135,11 +166,36 @@ class VerdictIn(BaseModel):
 class FitIn(BaseModel):
     order: Order
     seasonal_order: SeasonalOrder = [0, 0, 0, 0]
+    transform: Transform = None
+    include_constant: IncludeConstant = None
 
 
 class BulkApprovalIn(BaseModel):
     reviewer: str
     note: Note = ""
+
+
+class UndoIn(BaseModel):
+    reviewer: str
+    note: Note = Field("", description="stored on each reopened verdict (default: 'undo of bulk approval N')")
+
+
+class BulkApprovalRecord(BaseModel):
+    bulk_id: int
+    at: str
+    reviewer: str
+    note: str
+    filter: dict = Field(description="the queue filter it applied to, as query parameters")
+    undone_at: str | None
+    undone_by: str | None
+    approved: dict[str, int] = Field(description="each series approved, with the verdict version the approval gave it")
+    changed: list[str] = Field(description="series whose verdict changed since: while any, the approval cannot be undone")
+    undoable: bool
+
+
+class Reopened(BaseModel):
+    count: int
+    reopened: list[str]
 
 
 class ParkIn(BaseModel):
@@ -154,6 +210,7 @@ class Parked(BaseModel):
 
 
 class BulkApproval(BaseModel):
+    bulk_id: int | None = Field(description="undo it with POST /api/bulk/{bulk_id}/undo; null when nothing was approved")
     count: int
     approved: list[str]
 
@@ -207,7 +264,7 @@ def series_list(db: Db, settings: Config, flt: Filter, limit: Annotated[int | No
     """One page of the portfolio, filtered and sorted as the queue shows it."""
     limit = settings.page_size if limit is None else min(limit, settings.max_page_size)
     total, items = list_series(db, limit=limit, offset=offset, **flt.store_kwargs())
-    return {"total": total, "limit": limit, "offset": offset, "items": items}
+    return {"total": total, "limit": limit, "offset": offset, "items": items, "rejected": rejected_in_filter(db, flt)}
 
 
 @router.get("/groups", response_model=list[GroupCounts])
@@ -223,17 +280,19 @@ def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
     return decide(
         db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
         note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
+        transform=body.transform, include_constant=body.include_constant, confirm=body.confirm,
     )
 
 
 @router.post("/series/{series_id:path}/fit")
 def series_fit(request: Request, db: Db, series_id: str, body: FitIn) -> dict:
-    """Fit an order to the stored series now (nothing is saved): the candidate statistics, its
-    residuals and residual ACF, and ``delta_aicc`` against the stored candidates of the same
-    differencing (d, D and s; null when there is none). 429 while another fit or forecast check
-    of the series runs."""
+    """Fit an order to the stored series now (nothing is saved), with the transform and constant
+    asked for: the candidate statistics, its residuals and residual ACF, and ``delta_aicc``
+    against the stored candidates of the same differencing (d, D and s) and transform (null when
+    there is none). 429 while another fit or forecast check of the series runs."""
     with computation_slot(request, series_id):
-        return finite(fit_custom_order(db, series_id, body.order, body.seasonal_order).to_dict())
+        fit = fit_custom_order(db, series_id, body.order, body.seasonal_order, body.transform, body.include_constant)
+        return finite(fit.to_dict())
 
 
 @router.get("/series/{series_id:path}/backtest")
@@ -281,7 +340,8 @@ def series_detail(db: Db, series_id: str) -> dict:
 
 @router.get("/portfolio")
 def portfolio(db: Db) -> dict:
-    """Counts by confidence and status, and how many series are analysed, stale or failed."""
+    """Counts by confidence and status, how many series are analysed, stale, failed or rejected by
+    the import, and each series not analysed with the reason (``not_analysed``)."""
     return {"counts": count_by(db), **portfolio_status(db)}
 
 
@@ -291,8 +351,25 @@ def bulk_approve(db: Db, flt: Filter, body: BulkApprovalIn) -> dict:
     reviewer = clean_reviewer(body.reviewer)
     if not reviewer:
         raise HTTPException(status_code=422, detail="reviewer must not be empty")
-    approved = approve_firm(db, flt, reviewer, body.note)
-    return {"count": len(approved), "approved": approved}
+    done = approve_firm(db, flt, reviewer, body.note)
+    return {"bulk_id": done.bulk_id, "count": len(done.approved), "approved": done.approved}
+
+
+@router.get("/bulk/{bulk_id}", response_model=BulkApprovalRecord)
+def bulk_approval(db: Db, bulk_id: BulkId) -> dict:
+    """A bulk approval: what it approved, and whether it can still be undone."""
+    return get_bulk_approval(db, bulk_id)
+
+
+@router.post("/bulk/{bulk_id}/undo", response_model=Reopened)
+def bulk_undo(db: Db, bulk_id: BulkId, body: UndoIn) -> dict:
+    """Reopen (pending) every series the bulk approval approved, all or none: refused with 409,
+    naming the series, when any of them changed since (or it was undone already)."""
+    reviewer = clean_reviewer(body.reviewer)
+    if not reviewer:
+        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    reopened = undo_bulk_approval(db, bulk_id, reviewer, body.note)
+    return {"count": len(reopened), "reopened": reopened}
 
 
 @router.post("/park", response_model=Parked)

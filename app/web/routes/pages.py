@@ -18,12 +18,14 @@ from fastapi.responses import FileResponse, RedirectResponse, Response
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
-from app.review.bulk import approve_firm, firm_pending_ids, park, waiting_ids
-from app.review.decisions import DecisionError, decide, fit_custom_order
+from app.review.bulk import approve_firm, firm_pending_ids, park, undo_bulk_approval, waiting_ids
+from app.review.decisions import ConfirmationNeeded, DecisionError, approval_risks, decide, fit_custom_order
 from app.review.export import build_orders_document, orders_text
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
+from app.store.bulk_approvals import get_bulk_approval, latest_undoable
 from app.store.database import UnknownSeries
+from app.store.orders import verdict_model
 from app.store.runs import get_run, list_runs
 from app.store.series import series_neighbours
 from app.store.verdicts import get_verdict
@@ -80,19 +82,60 @@ def with_query(url: str, query: str) -> str:
     return f"{url}?{query}" if query else url
 
 
+def model_fields(verdict: dict) -> dict:
+    """The custom model's transform and constant fields as the verdict left them (blank: the
+    analysis' choice, for a verdict without an order or saved before they were stored)."""
+    fields = {"transform": "", "lam": "", "constant": ""}
+    if verdict["order"] is None:
+        return fields
+    transform = verdict["transform"]
+    if isinstance(transform, dict):
+        fields.update(transform="box_cox", lam=f"{transform['box_cox']:g}")
+    else:
+        fields["transform"] = transform
+    if verdict["include_constant"] is not None:
+        fields["constant"] = "yes" if verdict["include_constant"] else "no"
+    return fields
+
+
+def verdict_is_custom(page: dict) -> bool:
+    """Whether the verdict's model is none of the analysis' candidates as they stand (another
+    order, or a candidate's order on another scale or with another constant): the form then
+    starts on it as a custom model."""
+    verdict, analysis = page["verdict"], page["analysis"]
+    if verdict["order"] is None or analysis is None:
+        return page["choice"] == "custom"
+    candidate = verdict_model(analysis, verdict["order"], verdict["seasonal_order"], verdict["trend"])[1]
+    return candidate is None or analysis.transform.to_json() != verdict["transform"]
+
+
+def decision_context(page: dict) -> dict:
+    """What the decision panel needs besides the review page's view model: why approving the
+    suggestion in one step is risky (it then needs a note), and the custom model's fields (the
+    verdict's when the form starts on its order as a custom one; a candidate brings its own)."""
+    analysis = page["analysis"]
+    verdict = page["verdict"]
+    return {
+        "approval_risks": approval_risks(analysis.suggested) if analysis else [],
+        "model_fields": model_fields(verdict if page["choice"] == "custom" else {**verdict, "order": None}),
+        "confirm_needed": False,
+    }
+
+
 @router.get("/", name="queue")
 def queue(request: Request, db: RunsDb, settings: Config, flt: Filter,
           offset: Annotated[int, Query(ge=0, le=SQLITE_MAX_INTEGER)] = 0,
           limit: Annotated[int | None, Query(ge=1, le=SQLITE_MAX_INTEGER)] = None,
           page: Annotated[int | None, Query(ge=1, le=SQLITE_MAX_INTEGER)] = None, approved: int | None = None,
-          parked: int | None = None) -> Response:
+          parked: int | None = None, reopened: int | None = None) -> Response:
     """The queue: ``limit`` rows a page (at most ``max_page_size``), from ``offset`` or from
     ``page`` (1 is the first; a page past the end shows the last)."""
     size = settings.page_size if limit is None else min(limit, settings.max_page_size)
     if page is not None:
         offset = min((page - 1) * size, SQLITE_MAX_INTEGER)
     view = queue_page(db, flt, offset, size, settings.page_size)
-    return render(request, "queue.html", {**view, "approved_count": approved, "parked_count": parked})
+    return render(request, "queue.html", {**view, "approved_count": approved, "parked_count": parked,
+                                          "undoable_bulk": latest_undoable(db), "reopened_count": reopened})
 
 
 @router.get("/series/{series_id:path}/forecast-check", name="forecast_check")
@@ -118,19 +161,27 @@ def forecast_check(request: Request, db: Db, flt: Filter, series_id: str, order:
 def review(request: Request, db: Db, flt: Filter, series_id: str,
            candidate: str | None = None, saved: str | None = None) -> Response:
     page = review_page(db, series_id, flt, selected=candidate)
-    return render(request, "review.html", {**page, "saved": saved})
+    if verdict_is_custom(page):
+        page["choice"] = "custom"
+    return render(request, "review.html", {**page, **decision_context(page), "saved": saved})
 
 
 def _redraw(request: Request, db: sqlite_utils.Database, series_id: str, flt: SeriesFilter, data: DecisionForm,
-            status: int, error: str | None = None, custom_fit: dict | None = None) -> Response:
-    """The review page again, keeping what the reviewer typed, with an error or a custom fit."""
+            status: int, error: LagdeskError | None = None, custom_fit: dict | None = None) -> Response:
+    """The review page again, keeping what the reviewer typed, with an error (and the
+    confirmation box when the error asks for one) or a custom fit."""
+    custom = data.custom_fields()
     form = FormState(
         choice="custom" if custom_fit or data.action == "fit" else data.choice,
-        custom=data.custom_fields(), note=data.note, reviewer=clean_reviewer(data.reviewer), error=error,
-        custom_fit=custom_fit,
+        custom=custom, note=data.note, reviewer=clean_reviewer(data.reviewer),
+        error=str(error) if error else None, custom_fit=custom_fit,
     )
     page = review_page(db, series_id, flt, selected="custom" if custom_fit else None, form=form)
-    return render(request, "review.html", {**page, "saved": None}, status_code=status)
+    context = {
+        **page, **decision_context(page), "saved": None, "confirm_needed": isinstance(error, ConfirmationNeeded),
+        "model_fields": {name: custom[name] for name in ("transform", "lam", "constant")},
+    }
+    return render(request, "review.html", context, status_code=status)
 
 
 @router.post("/series/{series_id:path}/verdict", name="save_verdict")
@@ -139,15 +190,16 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
     get_verdict(db, series_id)  # an unknown series is a 404 page, not a form error
     reviewer = clean_reviewer(data.reviewer)
     if not reviewer:
-        return _redraw(request, db, series_id, flt, data, 422, NAME_NEEDED)
+        return _redraw(request, db, series_id, flt, data, 422, DecisionError(NAME_NEEDED))
     # The next series is found before saving: the saved one may leave the filter.
     next_id = series_neighbours(db, series_id, **flt.store_kwargs())[1]
     try:
-        status, order, seasonal = data.decision(load_analysis(db, series_id))
+        status, order, seasonal, transform, include_constant = data.decision(load_analysis(db, series_id))
         decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
-               reviewer=reviewer, version=data.version)
+               reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
+               confirm=data.confirm)
     except LagdeskError as exc:
-        return _redraw(request, db, series_id, flt, data, status_of(exc), str(exc))
+        return _redraw(request, db, series_id, flt, data, status_of(exc), exc)
     url = with_query(request.app.url_path_for("review", series_id=quote_path(next_id or series_id)), flt.query(saved=series_id))
     return remember_reviewer(RedirectResponse(url, status_code=303), reviewer)
 
@@ -158,14 +210,15 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
     """Fit the typed custom order and show it (in place with JavaScript, as a page without)."""
     try:
         order, seasonal = data.custom_order()
+        transform, include_constant = data.model_choice()
         with computation_slot(request, series_id):
-            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal))
+            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal, transform, include_constant))
     except UnknownSeries:
         raise
     except LagdeskError as exc:
         if data.fragment:
             return render(request, "_fit_error.html", {"message": str(exc)}, status_code=status_of(exc))
-        return _redraw(request, db, series_id, flt, data, status_of(exc), str(exc))
+        return _redraw(request, db, series_id, flt, data, status_of(exc), exc)
     if data.fragment:
         return render(request, "_candidate_detail.html", {"candidate": fit, "hidden": False, "series_id": series_id})
     return _redraw(request, db, series_id, flt, data, 200, custom_fit=fit)
@@ -197,8 +250,35 @@ def approve_firm_save(request: Request, db: Db, flt: Filter, expected: Annotated
         )
         context = {"filter": flt, "count": len(ids), "preview": ids[:BULK_PREVIEW], "error": message}
         return render(request, "approve_firm.html", context, status_code=422 if not name else 409)
-    approved = approve_firm(db, flt, name, note)
-    url = with_query(request.app.url_path_for("queue"), flt.query(approved=len(approved)))
+    done = approve_firm(db, flt, name, note)
+    if done.bulk_id is None:
+        url = with_query(request.app.url_path_for("queue"), flt.query(approved=0))
+    else:
+        url = with_query(request.app.url_path_for("bulk_approval", bulk_id=done.bulk_id), flt.query())
+    return remember_reviewer(RedirectResponse(url, status_code=303), name)
+
+
+@router.get("/bulk/{bulk_id}", name="bulk_approval")
+def bulk_approval(request: Request, db: Db, flt: Filter,
+                  bulk_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
+    """What a bulk approval approved, with its undo while nothing of it changed since."""
+    record = get_bulk_approval(db, bulk_id)
+    return render(request, "bulk_approval.html", {"bulk": record, "filter": flt, "error": None})
+
+
+@router.post("/bulk/{bulk_id}/undo", name="bulk_undo")
+def bulk_undo(request: Request, db: Db, flt: Filter, bulk_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)],
+              reviewer: Annotated[str, Form()] = "", note: Annotated[str, Form()] = "") -> Response:
+    """Undo a bulk approval (every series it approved back to pending), or say why not."""
+    name = clean_reviewer(reviewer)
+    try:
+        if not name:
+            raise DecisionError(NAME_NEEDED)
+        reopened = undo_bulk_approval(db, bulk_id, name, note)
+    except LagdeskError as exc:
+        context = {"bulk": get_bulk_approval(db, bulk_id), "filter": flt, "error": str(exc)}
+        return render(request, "bulk_approval.html", context, status_code=status_of(exc))
+    url = with_query(request.app.url_path_for("queue"), flt.query(reopened=len(reopened)))
     return remember_reviewer(RedirectResponse(url, status_code=303), name)
 
 
