@@ -325,7 +325,9 @@ class Analysis:
 
     @property
     def is_transformed_or_differenced(self) -> bool:
-        return bool(self.d or self.D or self.transform.kind != "none")
+        """Whether the series the model was identified on differs from the series as observed
+        (transformed, differenced or with interventions taken out)."""
+        return bool(self.d or self.D or self.transform.kind != "none" or self.interventions)
 
     def interventions_on(self, transform: TransformChoice) -> tuple[Intervention, ...]:
         """The interventions a fit on the ``transform`` scale takes out of the series: the

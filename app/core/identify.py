@@ -609,7 +609,8 @@ def _finished(
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,
-        identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d),
+        identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d)
+        + (", interventions taken out" if interventions else ""),
         pattern_words=seasonal.words + shown.words, candidates=ranked, data_notes=data_notes,
         confidence=score_confidence(ranked, flags, options.criterion, doubts), criterion=options.criterion, flags=flags,
         screened_out=[m for found in search.searches.values() for m in found.screened_out], interventions=interventions,

@@ -98,7 +98,8 @@ def test_pattern_words_describe_the_correlogram_shown(name, request):
     np.testing.assert_allclose(result.identified_on, np.diff(adjusted(result.prepared.values, result.interventions), n=d))
     vertex = eacf_vertex(eacf_table(result.identified_on, 5, 5)[1])
     assert read_patterns(result.correlogram, 5, 5, vertex).words == result.pattern_words
-    assert result.identified_label == {0: "series as observed", 1: "first difference"}[d]
+    taken_out = ", interventions taken out" if result.interventions else ""
+    assert result.identified_label == {0: "series as observed", 1: "first difference"}[d] + taken_out
 
 
 # --- lynx -----------------------------------------------------------------------------------
