@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import os
 from pathlib import Path
-from urllib.parse import quote
+from urllib.parse import quote, urlsplit
 
 import httpx
 import pytest
@@ -60,3 +60,11 @@ def set_reviewer(page, live_server: str, name: str = "Browser Test") -> None:
     page.fill("#reviewer-name", name)
     page.click(".whoami button")
     page.wait_for_load_state()
+
+
+def assert_served_locally(page, live_server: str) -> None:
+    """Every request the page made went to the dashboard itself (it works offline), and no
+    script failed."""
+    host = urlsplit(live_server).netloc
+    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
+    assert not page.errors

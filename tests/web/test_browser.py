@@ -14,7 +14,7 @@ from pathlib import Path
 from urllib.parse import quote, urlsplit
 
 import pytest
-from browser_kit import ARTIFACTS, DEMO_IDS, api, series_url, set_reviewer
+from browser_kit import ARTIFACTS, DEMO_IDS, api, assert_served_locally, series_url, set_reviewer
 
 pytestmark = pytest.mark.browser
 
@@ -96,9 +96,7 @@ def test_custom_order_is_fitted_then_saved(page, live_server):
         save.click()
     verdict = api(live_server, f"/api/series/{quote(target, safe='/')}")["verdict"]
     assert (verdict["status"], verdict["order"], verdict["note"]) == ("overridden", [2, 0, 1], "two AR terms read better")
-    host = urlsplit(live_server).netloc
-    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
-    assert not page.errors
+    assert_served_locally(page, live_server)
 
 
 def test_forecast_check_is_drawn_in_place_and_the_orders_download(page, live_server):
@@ -122,9 +120,7 @@ def test_forecast_check_is_drawn_in_place_and_the_orders_download(page, live_ser
         page.click('a[href="/export/lagdesk-orders.json"]')
     document = json.loads(Path(download.value.path()).read_text())
     assert REVIEWED in [o["series_id"] for o in document["orders"]]
-    host = urlsplit(live_server).netloc
-    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
-    assert not page.errors
+    assert_served_locally(page, live_server)
 
 
 def test_group_picker_page_size_and_parking_ticked_rows(page, live_server):

@@ -8,10 +8,10 @@ test-artifacts/ (compare-*.png, wide-*.png, dark-*.png).
 
 from __future__ import annotations
 
-from urllib.parse import quote, urlencode, urlsplit
+from urllib.parse import quote, urlencode
 
 import pytest
-from browser_kit import ARTIFACTS, api, series_url
+from browser_kit import ARTIFACTS, api, assert_served_locally, series_url
 
 pytestmark = pytest.mark.browser
 
@@ -69,9 +69,7 @@ def test_two_candidates_compared_on_one_chart_with_shared_axes(page, live_server
     ARTIFACTS.mkdir(exist_ok=True)
     page.locator("#comparison").screenshot(path=str(ARTIFACTS / "compare-sugar-kg.png"))
     page.locator("#candidates").screenshot(path=str(ARTIFACTS / "compare-candidates.png"))
-    host = urlsplit(live_server).netloc
-    assert all(urlsplit(u).netloc == host for u in page.requests), page.requests
-    assert not page.errors
+    assert_served_locally(page, live_server)
 
 
 def test_at_most_three_candidates_can_be_ticked(page, live_server):
