@@ -238,7 +238,8 @@ def build_parser() -> argparse.ArgumentParser:
         "decide", help="record a verdict on one series, or approve every pending firm suggestion (--all-firm)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
         usage="lagdesk decide SERIES_ID ACTION --reviewer NAME [--note TEXT] [--order p,d,q [--seasonal P,D,Q,s]]\n"
-        "                      [--transform none|log|box_cox:LAMBDA] [--constant | --no-constant] [--confirm]\n"
+        "                      [--transform none|log|box_cox:LAMBDA] [--constant | --no-constant]\n"
+        "                      [--intervention TIME=KIND ... | --no-interventions] [--confirm]\n"
         "                      [--version N] [--json] [--db DB]\n"
         "       lagdesk decide --all-firm [--prefix ID_PREFIX] --reviewer NAME [--note TEXT] [--json] [--db DB]",
         description="Record a verdict on one series, as the review page does: approve the suggestion, override\n"
@@ -250,6 +251,7 @@ def build_parser() -> argparse.ArgumentParser:
         "  lagdesk decide shop/sales approve --reviewer ann\n"
         "  lagdesk decide shop/sales override --order 0,1,1 --seasonal 0,1,1,12 --reviewer ann --note \"MA fits better\"\n"
         "  lagdesk decide shop/sales override --order 1,1,0 --transform log --no-constant --reviewer ann\n"
+        "  lagdesk decide shop/sales override --order 1,0,0 --intervention 2024-03-04=level_shift --reviewer ann\n"
         "  lagdesk decide shop/sales pending --reviewer ann --version 3\n"
         "  lagdesk decide shop/spares not-arima --reviewer ann --note \"90% zeros: Croston\"\n"
         "  lagdesk decide --all-firm --prefix shop/ --reviewer ann",
@@ -355,6 +357,14 @@ def _decide_options(decide: argparse.ArgumentParser) -> None:
         "--constant", dest="include_constant", action=argparse.BooleanOptionalAction, default=None,
         help="with --order: a constant (a mean undifferenced, a drift after one difference) or none "
         "(default: the engine's term for the order)",
+    )
+    decide.add_argument(
+        "--intervention", dest="interventions", action="append", type=intervention_option, metavar="TIME=KIND",
+        help="with --order: an intervention to take out, sized with the order (KIND: additive, level_shift, "
+        "temporary_change); repeat for several; replaces the analysis' own (default: the analysis' own)",
+    )
+    decide.add_argument(
+        "--no-interventions", action="store_true", help="with --order: take none of the analysis' interventions out",
     )
     decide.add_argument(
         "--confirm", action="store_true", help="save an order whose residuals fail the Ljung-Box test at 1% anyway",
@@ -630,6 +640,14 @@ def transform_option(text: str) -> str | dict:
     raise argparse.ArgumentTypeError(f"expected none, log or box_cox:LAMBDA, got {text!r}")
 
 
+def intervention_option(text: str) -> dict[str, str]:
+    """``TIME=KIND`` (e.g. ``2024-03-04=level_shift``) as the decision service takes it."""
+    timestamp, sep, kind = text.rpartition("=")
+    if not sep or not timestamp.strip() or not kind.strip():
+        raise argparse.ArgumentTypeError(f"expected TIME=KIND, e.g. 2024-03-04=level_shift, got {text!r}")
+    return {"timestamp": timestamp.strip(), "kind": kind.strip()}
+
+
 def run_decide(args: argparse.Namespace) -> int:
     from app.review.bulk import approve_firm
     from app.review.decisions import decide
@@ -645,6 +663,11 @@ def run_decide(args: argparse.Namespace) -> int:
         raise LagdeskError("--seasonal goes with --order (the seasonal part of that order)")
     if (args.transform is not None or args.include_constant is not None) and args.order is None and args.action != "approve":
         raise LagdeskError("--transform and --constant go with --order (the model they belong to)")
+    if (args.interventions or args.no_interventions) and args.order is None:
+        raise LagdeskError("--intervention and --no-interventions go with --order (the model they belong to)")
+    if args.interventions and args.no_interventions:
+        raise LagdeskError("give --intervention or --no-interventions, not both")
+    interventions = [] if args.no_interventions else args.interventions
     with closing(open_database(_existing_db(args.db))) as db:
         if args.all_firm:
             if args.series_id or args.action:
@@ -666,7 +689,7 @@ def run_decide(args: argparse.Namespace) -> int:
         verdict = decide(
             db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,
             note=args.note, reviewer=reviewer, version=version, transform=args.transform,
-            include_constant=args.include_constant, confirm=args.confirm,
+            include_constant=args.include_constant, interventions=interventions, confirm=args.confirm,
         )
     _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
     return 0

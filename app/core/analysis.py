@@ -77,12 +77,13 @@ class Intervention:
 
     def to_dict(self) -> dict[str, Any]:
         return {"position": self.position, "timestamp": self.timestamp, "kind": str(self.kind),
-                "size": self.size, "t_stat": self.t_stat}
+                "size": self.size, "t_stat": _finite_or_none(self.t_stat)}
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> Intervention:
+        t_stat = data.get("t_stat")
         return cls(int(data["position"]), str(data["timestamp"]), InterventionKind(data["kind"]),
-                   float(data["size"]), float(data["t_stat"]))
+                   float(data["size"]), float("nan") if t_stat is None else float(t_stat))
 
 
 @dataclass(frozen=True)

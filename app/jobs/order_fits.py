@@ -16,6 +16,7 @@ import sqlite_utils
 from threadpoolctl import threadpool_limits
 
 from app.core.analysis import Intervention
+from app.core.chosen_interventions import relocated
 from app.core.errors import OrderError
 from app.core.fitting import CandidateFit, fit_candidate
 from app.core.identify import ENGINE_VERSION
@@ -52,18 +53,20 @@ def fit_stored_order(
     prepared: PreparedSeries, model: Order, transform: TransformChoice, interventions: Sequence[Intervention] = ()
 ) -> CandidateFit:
     """Fit ``model`` to the series on the ``transform`` scale, with the effects of
-    ``interventions`` taken out as the engine took them out
-    (:meth:`app.core.analysis.Analysis.interventions_on`), naming the series on failure.
+    ``interventions`` (the analysis' own, :meth:`app.core.analysis.Analysis.interventions_on`,
+    or a reviewer's) taken out at their sizes, naming the series on failure.
 
     Raises
     ------
     OrderError
         When the order cannot be fitted to this series (too few points, a transform that needs
-        positive values, a numerical failure of the fit).
+        positive values, a numerical failure of the fit, an intervention at a time the series
+        no longer has).
     """
+    placed = relocated(prepared.series_id, prepared.index, interventions)
     try:
         with threadpool_limits(limits=1):
-            return fit_candidate(adjusted(apply_transform(prepared.values, transform), interventions), model)
+            return fit_candidate(adjusted(apply_transform(prepared.values, transform), placed), model)
     except OrderError as exc:
         raise OrderError(f"series {prepared.series_id!r}: {model.label()} cannot be fitted ({exc})") from None
     except NUMERICAL_FAILURES as exc:
@@ -80,7 +83,7 @@ def fit_and_keep(
     filed under the ``fingerprint`` of the data fitted."""
     fit = fit_stored_order(prepared, model, transform, interventions)
     parameters = fit.to_candidate(keep_residuals=False).parameter_values()
-    save_order_fit(db, prepared.series_id, fingerprint, model, transform, parameters, ENGINE_VERSION)
+    save_order_fit(db, prepared.series_id, fingerprint, model, transform, parameters, ENGINE_VERSION, interventions)
     return fit
 
 

@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 import pandas as pd
 import sqlite_utils
 
-from app.core.analysis import Analysis
+from app.core.analysis import Analysis, Intervention
 from app.core.errors import OrderError
 from app.core.fitting import LJUNG_BOX_LEVEL
 from app.core.identify import ENGINE_VERSION
@@ -49,7 +49,7 @@ from app.core.vocabulary import DECIDED
 from app.jobs.order_fits import fit_stored_order, load_prepared
 from app.store.analyses import analysis_record
 from app.store.database import write_transaction
-from app.store.orders import save_order_fit, verdict_model
+from app.store.orders import decided_interventions, save_order_fit, verdict_model
 from app.store.verdicts import confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck
 
 AICC_MARGIN = 10.0
@@ -71,6 +71,7 @@ class OrderCheck:
 
     model: Order
     transform: TransformChoice
+    interventions: tuple[Intervention, ...] = ()
     reasons: list[str] = field(default_factory=list)
     checked: list[str] = field(default_factory=list)
     parameters: dict[str, float] | None = None
@@ -80,17 +81,19 @@ def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> 
     """Judge the verdict's order on ``prepared`` against the ``analysis`` of the same data."""
     transform = TransformChoice.from_json(verdict["transform"])
     model, candidate = verdict_model(analysis, verdict["order"], verdict["seasonal_order"], verdict.get("trend"))
-    check = OrderCheck(model, transform)
+    chosen = verdict.get("interventions")
+    interventions = decided_interventions(analysis, transform, chosen)
+    check = OrderCheck(model, transform, interventions)
     label = model.label()
     if (analysis.d, analysis.D) != (model.d, model.D):
         check.reasons.append(
             f"the analysis now differences d = {analysis.d}, D = {analysis.D}; {label} has d = {model.d}, D = {model.D}"
         )
-    if candidate is not None and analysis.transform.to_json() == transform.to_json():
+    if candidate is not None and analysis.transform.to_json() == transform.to_json() and chosen is None:
         lb_p, lb_lags, aicc = candidate.ljung_box_p, candidate.ljung_box_lags, candidate.aicc
     else:
         try:
-            fit = fit_stored_order(prepared, model, transform, analysis.interventions_on(transform)).to_candidate(keep_residuals=False)
+            fit = fit_stored_order(prepared, model, transform, interventions).to_candidate(keep_residuals=False)
         except OrderError as exc:
             check.reasons.append(f"{label} can no longer be fitted: {exc}")
             return check
@@ -156,7 +159,8 @@ def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: An
             verdict["version"],
         )
         if confirmed and check.parameters is not None:
-            save_order_fit(db, series_id, fingerprint, check.model, check.transform, check.parameters, ENGINE_VERSION)
+            save_order_fit(db, series_id, fingerprint, check.model, check.transform, check.parameters, ENGINE_VERSION,
+                           check.interventions)
     return None
 
 

@@ -7,18 +7,19 @@ saved from a form, sent by a script or typed in a terminal is checked the same w
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from dataclasses import replace
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, replace
 
 import sqlite_utils
 
-from app.core.analysis import Analysis, Candidate, delta_aicc_against
+from app.core.analysis import Analysis, Candidate, Intervention, delta_aicc_against
+from app.core.chosen_interventions import place_interventions, sized_interventions
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import Order, validate_order
 from app.core.prepare import PreparedSeries
 from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import REVIEWER_STATUSES, VerdictStatus
-from app.jobs.order_fits import fit_and_keep, fit_stored_order, load_prepared
+from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
 from app.store.verdicts import get_verdict, set_verdict
 
@@ -37,6 +38,24 @@ class DecisionError(LagdeskError):
 
 class ConfirmationNeeded(DecisionError):
     """An order whose residuals fail the Ljung-Box test at 1%, saved without ``confirm``."""
+
+
+# Interventions as a reviewer names them: {"timestamp": ..., "kind": ...} each.
+ChosenInterventions = Sequence[Mapping[str, object]]
+
+
+@dataclass(frozen=True)
+class CustomFit:
+    """A model fitted on request: its candidate statistics and the interventions taken out of
+    the series for it (with their sizes in this fit), ``chosen`` when the reviewer named them."""
+
+    candidate: Candidate
+    interventions: tuple[Intervention, ...]
+    chosen: bool
+
+    def to_dict(self) -> dict:
+        return {**self.candidate.to_dict(), "interventions": [i.to_dict() for i in self.interventions],
+                "interventions_chosen": self.chosen}
 
 
 def checked_note(note: str) -> str:
@@ -156,13 +175,17 @@ def check_scale(prepared: PreparedSeries, choice: TransformChoice) -> None:
 def fit_custom_order(
     db: sqlite_utils.Database, series_id: str, order: Sequence[int], seasonal_order: Sequence[int] | None,
     transform: str | dict | None = None, include_constant: bool | None = None,
-) -> Candidate:
+    interventions: ChosenInterventions | None = None,
+) -> CustomFit:
     """Fit ``order`` to the stored series; nothing is saved.
 
     ``transform`` and ``include_constant`` default to the analysis' transform and the term the
-    engine gives the order. The candidate's ``source`` is ``custom`` and its ``delta_aicc``
-    compares it with the stored candidates of the same differencing and transform (None when
-    there is none: criteria on another scale do not compare).
+    engine gives the order; ``interventions`` (time stamp and kind of each) to the analysis' own
+    on its scale. Interventions the reviewer names are sized jointly with the order
+    (:func:`app.core.chosen_interventions.sized_interventions`), then taken out as the engine's
+    are. The candidate's ``source`` is ``custom`` and its ``delta_aicc`` compares it with the
+    stored candidates of the same differencing and transform (None when there is none, or when
+    other interventions make the series another one: criteria on other data do not compare).
 
     Raises
     ------
@@ -172,9 +195,44 @@ def fit_custom_order(
     analysis = load_analysis(db, series_id)
     model = with_constant(checked_order(analysis, prepared.n, order, seasonal_order), include_constant)
     choice = checked_transform(series_id, analysis, transform)
-    fit = fit_stored_order(prepared, model, choice, analysis.interventions_on(choice) if analysis else ()).to_candidate()
-    same_scale = analysis is not None and analysis.transform.to_json() == choice.to_json()
-    return replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if same_scale and analysis else ()))
+    taken_out = reviewer_interventions(prepared, model, choice, analysis, interventions)
+    chosen = taken_out is not None
+    if taken_out is None:
+        taken_out = analysis.interventions_on(choice) if analysis else ()
+    fit = fit_stored_order(prepared, model, choice, taken_out).to_candidate()
+    comparable = analysis is not None and analysis.transform.to_json() == choice.to_json() and not chosen
+    return CustomFit(
+        replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if comparable and analysis else ())),
+        tuple(taken_out), chosen,
+    )
+
+
+def reviewer_interventions(
+    prepared: PreparedSeries, model: Order, choice: TransformChoice, analysis: Analysis | None,
+    interventions: ChosenInterventions | None,
+) -> tuple[Intervention, ...] | None:
+    """The interventions a reviewer named, placed and sized with ``model`` on the ``choice``
+    scale; None when none were named or they are the analysis' own on its scale (the same time
+    and kind each), which keeps the analysis' sizes.
+
+    Raises
+    ------
+    OrderError
+        Naming the series and the item that does not fit it.
+    """
+    if interventions is None:
+        return None
+    placed = place_interventions(prepared.series_id, prepared.index, prepared.values, interventions)
+    own = analysis.interventions_on(choice) if analysis is not None else ()
+    if analysis is not None and analysis.transform.to_json() == choice.to_json() and (
+        set(placed) == {(i.position, i.kind) for i in own}
+    ):
+        return None
+    try:
+        return tuple(sized_interventions(apply_transform(prepared.values, choice), model, placed, prepared.index))
+    except NUMERICAL_FAILURES as exc:
+        raise OrderError(f"series {prepared.series_id!r}: the interventions could not be sized with {model.label()} "
+                         f"({type(exc).__name__}: {exc})") from None
 
 
 def _stored_candidate(analysis: Analysis | None, model: Order, choice: TransformChoice) -> Candidate | None:
@@ -196,6 +254,7 @@ def decide(
     version: int,
     transform: str | dict | None = None,
     include_constant: bool | None = None,
+    interventions: ChosenInterventions | None = None,
     confirm: bool = False,
 ) -> dict:
     """Check and save a verdict; returns the new verdict.
@@ -205,7 +264,9 @@ def decide(
     length; ``parked`` keeps an order if one is given; ``pending`` reopens a decided series and
     ``not_arima`` records that no ARIMA order should forecast it (both clear the order; the
     history keeps every step). ``transform`` and ``include_constant`` override the analysis'
-    transform and the term the engine gives the order (None keeps them).
+    transform and the term the engine gives the order, and ``interventions`` (time stamp and kind
+    of each) the analysis' outliers and level shifts (None keeps them); the reviewer's
+    interventions are sized with the order and stored with the verdict.
 
     Two gates stop a risky decision taken in one step: approving a suggestion with
     :func:`approval_risks` needs a note, and saving an order other than the suggestion whose
@@ -239,8 +300,8 @@ def decide(
     if status == VerdictStatus.OVERRIDDEN and order is None:
         raise OrderError("an overridden verdict needs an order [p, d, q]")
     if order is None:
-        if transform is not None or include_constant is not None:
-            raise DecisionError(f"series {series_id!r}: a transform or constant goes with an order")
+        if transform is not None or include_constant is not None or interventions is not None:
+            raise DecisionError(f"series {series_id!r}: a transform, constant or interventions go with an order")
         return set_verdict(db, series_id, status=status, order=None, seasonal_order=None, note=note,
                            reviewer=reviewer, version=version)
     prepared, fingerprint = load_prepared(db, series_id)
@@ -248,9 +309,15 @@ def decide(
     choice = checked_transform(series_id, analysis, transform)
     if transform is not None:
         check_scale(prepared, choice)
-    candidate = _stored_candidate(analysis, model, choice)
+    chosen = reviewer_interventions(prepared, model, choice, analysis, interventions)
+    candidate = _stored_candidate(analysis, model, choice) if chosen is None else None
     if status == VerdictStatus.APPROVED:
         assert analysis is not None
+        if chosen is not None:
+            raise DecisionError(
+                f"'approved' means the suggested {analysis.suggested.label} with the analysis' interventions; "
+                "use 'overridden' to change them"
+            )
         if candidate is None or candidate.order != analysis.suggested.order:
             raise DecisionError(
                 f"'approved' means the suggested {analysis.suggested.label} on the analysis' scale "
@@ -263,9 +330,8 @@ def decide(
             )
     elif status == VerdictStatus.OVERRIDDEN:
         if candidate is None:
-            candidate = fit_and_keep(
-                db, prepared, fingerprint, model, choice, analysis.interventions_on(choice) if analysis else ()
-            ).to_candidate(keep_residuals=False)
+            taken_out = chosen if chosen is not None else (analysis.interventions_on(choice) if analysis else ())
+            candidate = fit_and_keep(db, prepared, fingerprint, model, choice, taken_out).to_candidate(keep_residuals=False)
         if fails_ljung_box(candidate) and not confirm:
             assert candidate.ljung_box_p is not None
             raise ConfirmationNeeded(
@@ -274,5 +340,6 @@ def decide(
             )
     return set_verdict(
         db, series_id, status=status, order=list(model.order), seasonal_order=list(model.seasonal_order),
-        transform=choice.to_json(), trend=model.trend, note=note, reviewer=reviewer, version=version,
+        transform=choice.to_json(), trend=model.trend, interventions=chosen, note=note, reviewer=reviewer,
+        version=version,
     )

@@ -266,7 +266,15 @@ def verdict_choices_and_bulk_undo(db: sqlite_utils.Database) -> None:
     )
 
 
-STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason, verdict_choices_and_bulk_undo)
+def verdict_interventions(db: sqlite_utils.Database) -> None:
+    """Version 5: the interventions a reviewer chose with an order (JSON; NULL keeps the
+    analysis' own), in the verdict and its history."""
+    db.execute("ALTER TABLE verdicts ADD COLUMN interventions TEXT")
+    db.execute("ALTER TABLE verdict_history ADD COLUMN interventions TEXT")
+
+
+STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason, verdict_choices_and_bulk_undo,
+         verdict_interventions)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

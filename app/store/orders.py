@@ -15,8 +15,10 @@ confirms the order or sends the series back to the queue (``recheck``).
 ``interventions`` are the outliers, level shifts and temporary changes the analysis estimated
 (``timestamp``, ``kind``, ``size`` on the transformed scale; :mod:`app.core.interventions`):
 the ARIMA order describes the series with their effects taken out, and ``parameters`` were
-fitted to it so. They are carried when the decision keeps the analysis' transform (their sizes
-are on that scale), and are empty otherwise.
+fitted to it so. A reviewer who dropped or added one saved their own set with the verdict
+(sizes estimated jointly with the decided order on the decided scale), and that set is carried;
+otherwise the analysis' own are carried when the decision keeps the analysis' transform (their
+sizes are on that scale), and none otherwise.
 
 ``parameters`` are the fitted coefficients of the chosen model on the series' current data, by
 name (statsmodels' names, with ``const`` for a constant, ``drift`` for a drift or trend slope,
@@ -90,7 +92,8 @@ def decided_orders(db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED)
     """Every series whose verdict has one of ``statuses``, by series id (see the module notes)."""
     chosen = checked_statuses(statuses)
     rows = db.query(
-        "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.trend, v.reviewer, v.decided_at, "
+        "SELECT v.series_id, v.status, v.arima_order, v.seasonal_order, v.transform, v.trend, v.interventions, "
+        "v.reviewer, v.decided_at, "
         "v.note, v.data_sha256, s.last_timestamp, s.fingerprint, "
         "a.state = 'complete' AND a.fingerprint = s.fingerprint AS analysis_current, a.engine_version, "
         "r.result AS analysis, "
@@ -116,10 +119,11 @@ def _decided(row: dict) -> DecidedOrder:
         raise OrderError(f"series {row['series_id']!r}: the {row['status']} order cannot be used ({exc})") from None
     parameters, engine_version = None, None
     same_transform = analysis is not None and analysis.transform.to_json() == transform.to_json()
-    interventions = analysis.interventions_on(transform) if analysis is not None else ()
-    if row["analysis_current"] and same_transform and candidate is not None:
+    chosen = json.loads(row["interventions"]) if row["interventions"] else None
+    interventions = decided_interventions(analysis, transform, chosen)
+    if row["analysis_current"] and same_transform and candidate is not None and chosen is None:
         parameters, engine_version = candidate.parameter_values(), row["engine_version"]
-    elif row["fit_fingerprint"] == row["fingerprint"] and row["fit_model"] == model_key(model, transform):
+    elif row["fit_fingerprint"] == row["fingerprint"] and row["fit_model"] == model_key(model, transform, interventions):
         parameters, engine_version = json.loads(row["fit_parameters"]), row["fit_engine_version"]
     record = {
         "series_id": row["series_id"], "p": model.p, "d": model.d, "q": model.q,
@@ -153,22 +157,34 @@ def verdict_model(
     return model, candidate
 
 
-def model_key(model: Order, transform: TransformChoice) -> str:
-    """The model a refit was for, as stored in ``order_fits.model``."""
+def decided_interventions(
+    analysis: Analysis | None, transform: TransformChoice, chosen: Sequence[dict] | None
+) -> tuple[Intervention, ...]:
+    """The interventions a decided order takes out of the series: the reviewer's (``chosen``,
+    the verdict's stored list) when there are such, else the analysis' own on its scale."""
+    if chosen is not None:
+        return tuple(Intervention.from_dict(item) for item in chosen)
+    return analysis.interventions_on(transform) if analysis is not None else ()
+
+
+def model_key(model: Order, transform: TransformChoice, interventions: Sequence[Intervention] = ()) -> str:
+    """The model a refit was for, as stored in ``order_fits.model``: the order, term, transform
+    and the interventions taken out (time, kind and size)."""
     return json.dumps({
         "order": list(model.order), "seasonal_order": list(model.seasonal_order), "trend": model.trend,
         "transform": transform.to_json(),
+        "interventions": [[i.timestamp, str(i.kind), i.size] for i in interventions],
     }, sort_keys=True)
 
 
 def save_order_fit(
     db: sqlite_utils.Database, series_id: str, fingerprint: str, model: Order, transform: TransformChoice,
-    parameters: dict[str, float], engine_version: str,
+    parameters: dict[str, float], engine_version: str, interventions: Sequence[Intervention] = (),
 ) -> None:
     """Keep the parameters of a refit of a chosen order, replacing the series' earlier refit."""
     with write_transaction(db):
         db.table("order_fits").insert({
-            "series_id": series_id, "fingerprint": fingerprint, "model": model_key(model, transform),
+            "series_id": series_id, "fingerprint": fingerprint, "model": model_key(model, transform, interventions),
             "parameters": json.dumps(parameters), "engine_version": engine_version, "fitted_at": utc_now(),
         }, replace=True)
 

@@ -20,6 +20,7 @@ from collections.abc import Iterable, Sequence
 
 import sqlite_utils
 
+from app.core.analysis import Intervention
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import TRENDS
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, VerdictStatus
@@ -55,7 +56,8 @@ class InvalidVerdict(LagdeskError):
     """A verdict with a status, order or transform that cannot be stored."""
 
 
-_COLUMNS = "status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, recheck_reason, trend"
+_COLUMNS = ("status, arima_order, seasonal_order, transform, note, reviewer, version, decided_at, recheck_reason, trend, "
+            "interventions")
 
 
 def add_pending(db: sqlite_utils.Database, series_ids: Iterable[str]) -> None:
@@ -82,7 +84,7 @@ def get_verdict(db: sqlite_utils.Database, series_id: str) -> dict:
 
 
 def _verdict_from_row(row: Sequence) -> dict:
-    status, order, seasonal, transform, note, reviewer, version, decided_at, reason, trend = row
+    status, order, seasonal, transform, note, reviewer, version, decided_at, reason, trend, interventions = row
     return {
         "status": status,
         "order": _loads(order),
@@ -90,6 +92,7 @@ def _verdict_from_row(row: Sequence) -> dict:
         "transform": json.loads(transform),
         "trend": trend,
         "include_constant": None if trend is None else trend != "n",
+        "interventions": _loads(interventions),
         "note": note,
         "reviewer": reviewer,
         "version": version,
@@ -107,6 +110,7 @@ def set_verdict(
     seasonal_order: Sequence[int] | None,
     transform: str | dict = "none",
     trend: str | None = None,
+    interventions: Sequence[Intervention] | None = None,
     note: str = "",
     reviewer: str = "",
     version: int,
@@ -115,7 +119,8 @@ def set_verdict(
 
     ``approved`` and ``overridden`` need an order; ``pending`` and ``parked`` may leave it
     empty; ``not_arima`` has none. ``trend`` is the model's deterministic term (``n``, ``c``,
-    ``t``, ``ct``; None: the term the analysis gives the order), stored only with an order.
+    ``t``, ``ct``; None: the term the analysis gives the order) and ``interventions`` (the
+    reviewer's, sized with the order; None: the analysis' own) are stored only with an order.
     ``recheck`` is set by Lagdesk itself (:func:`mark_recheck`), not by a reviewer.
 
     Raises
@@ -148,10 +153,12 @@ def set_verdict(
         seen = _fingerprint_seen(db, series_id) if status != "pending" else None
         updated = db.execute(
             "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
-            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ?, trend = ? "
-            "WHERE series_id = ? AND version = ?",
+            "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ?, trend = ?, "
+            "interventions = ? WHERE series_id = ? AND version = ?",
             [status, _dumps(new_order), _dumps(new_seasonal), json.dumps(new_transform),
-             str(note), str(reviewer), decided_at, seen, trend if new_order is not None else None, series_id, version],
+             str(note), str(reviewer), decided_at, seen, trend if new_order is not None else None,
+             _dumps([i.to_dict() for i in interventions]) if interventions is not None and new_order is not None else None,
+             series_id, version],
         )
         if updated.rowcount != 1:
             raise StaleVersion(series_id, version, current)
@@ -227,9 +234,9 @@ def _append_history(
     """Copy the verdict as it now stands into the history (optionally naming who and why)."""
     db.execute(
         "INSERT INTO verdict_history (series_id, version, at, from_status, status, arima_order, "
-        "seasonal_order, transform, note, reviewer, trend) "
+        "seasonal_order, transform, note, reviewer, trend, interventions) "
         "SELECT series_id, version, ?, ?, status, arima_order, seasonal_order, transform, "
-        "coalesce(?, note), coalesce(?, reviewer), trend FROM verdicts WHERE series_id = ?",
+        "coalesce(?, note), coalesce(?, reviewer), trend, interventions FROM verdicts WHERE series_id = ?",
         [utc_now(), from_status, note, reviewer, series_id],
     )
 
@@ -237,8 +244,8 @@ def _append_history(
 def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
     """Every change of the series' verdict, oldest first."""
     rows = db.execute(
-        "SELECT version, at, from_status, status, arima_order, seasonal_order, transform, note, reviewer, trend "
-        "FROM verdict_history WHERE series_id = ? ORDER BY version",
+        "SELECT version, at, from_status, status, arima_order, seasonal_order, transform, note, reviewer, trend, "
+        "interventions FROM verdict_history WHERE series_id = ? ORDER BY version",
         [series_id],
     ).fetchall()
     return [
@@ -251,10 +258,11 @@ def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
             "seasonal_order": _loads(seasonal),
             "transform": json.loads(transform),
             "trend": trend,
+            "interventions": _loads(interventions),
             "note": note,
             "reviewer": reviewer,
         }
-        for version, at, from_status, status, order, seasonal, transform, note, reviewer, trend in rows
+        for version, at, from_status, status, order, seasonal, transform, note, reviewer, trend, interventions in rows
     ]
 
 

@@ -11,15 +11,16 @@ from app.core.errors import OrderError
 from app.core.vocabulary import VerdictStatus
 from app.review.decisions import DecisionError
 from app.web.deps import SQLITE_MAX_INTEGER
-from app.web.review import CUSTOM_FIELDS
+from app.web.review import CUSTOM_FIELDS, INTERVENTION_SEPARATOR
 
 SUGGESTION_KEY = "1"
 # The form's constant choice: blank is the engine's term for the order.
 CONSTANT_CHOICES = {"": None, "yes": True, "no": False}
 # Actions that record a state without an order.
 STATE_ACTIONS = {"park": VerdictStatus.PARKED, "reopen": VerdictStatus.PENDING, "not_arima": VerdictStatus.NOT_ARIMA}
-# What form.decision returns: status, order, seasonal order, transform, include_constant.
-Decision = tuple[str, list[int] | None, list[int] | None, str | dict | None, bool | None]
+# What form.decision returns: status, order, seasonal order, transform, include_constant, interventions.
+Decision = tuple[str, list[int] | None, list[int] | None, str | dict | None, bool | None, list[dict] | None]
+InterventionKindField = Literal["additive", "level_shift", "temporary_change"]
 
 
 class DecisionForm(BaseModel):
@@ -30,8 +31,10 @@ class DecisionForm(BaseModel):
     the series) or ``fit`` (fit the custom order and show it, saving nothing).
     ``choice``: a candidate's rank (``"1"`` is the suggestion) or ``"custom"``; ``transform``
     (blank: the analysis', ``none``, ``log``, ``box_cox`` with ``lam``) and ``constant`` (blank:
-    the engine's term, ``yes``, ``no``) go with the custom order. ``confirm`` saves an order
-    whose residuals fail the Ljung-Box test at 1%.
+    the engine's term, ``yes``, ``no``) go with the custom order, and so do the interventions:
+    ``interventions`` are the ticked ones (``TIMESTAMP|KIND``), ``add_at`` and ``add_kind`` one
+    more, and ``interventions_shown`` says the form offered them (without it the analysis' own
+    are kept). ``confirm`` saves an order whose residuals fail the Ljung-Box test at 1%.
     """
 
     action: Literal["approve", "save", "park", "reopen", "not_arima", "fit"] = "save"
@@ -46,6 +49,10 @@ class DecisionForm(BaseModel):
     transform: Literal["", "none", "log", "box_cox"] = ""
     lam: str = ""
     constant: Literal["", "yes", "no"] = ""
+    interventions: list[str] = Field(default_factory=list, max_length=1000)
+    interventions_shown: bool = False
+    add_at: str = Field("", max_length=64)
+    add_kind: InterventionKindField = "additive"
     confirm: bool = False
     note: str = ""
     reviewer: str = ""
@@ -53,8 +60,23 @@ class DecisionForm(BaseModel):
     fragment: bool = False
 
     def custom_fields(self) -> dict:
-        """What was typed for the custom model: the order fields, the transform and the constant."""
-        return {name: getattr(self, name) for name in (*CUSTOM_FIELDS, "transform", "lam", "constant")}
+        """What was typed for the custom model: the order fields, the transform, the constant and
+        the interventions."""
+        return {name: getattr(self, name) for name in (*CUSTOM_FIELDS, "transform", "lam", "constant",
+                                                        "interventions", "interventions_shown", "add_at", "add_kind")}
+
+    def chosen_interventions(self) -> list[dict] | None:
+        """The interventions to take out with the custom model (time stamp and kind each), or
+        None for the analysis' own (the form did not offer them)."""
+        if not self.interventions_shown:
+            return None
+        chosen = []
+        for value in self.interventions:
+            timestamp, _, kind = value.rpartition(INTERVENTION_SEPARATOR)
+            chosen.append({"timestamp": timestamp, "kind": kind})
+        if self.add_at.strip():
+            chosen.append({"timestamp": self.add_at.strip(), "kind": self.add_kind})
+        return chosen
 
     def model_choice(self) -> tuple[str | dict | None, bool | None]:
         """``(transform, include_constant)`` of the custom model; None for the analysis' choice.
@@ -94,22 +116,25 @@ class DecisionForm(BaseModel):
         return values[:3], values[3:]
 
     def decision(self, analysis: Analysis | None) -> Decision:
-        """``(status, order, seasonal_order, transform, include_constant)`` the form asks for.
+        """``(status, order, seasonal_order, transform, include_constant, interventions)`` the
+        form asks for.
 
         A chosen candidate, or a custom model equal to the suggestion (its order, and the
-        analysis' transform and term unless others are chosen), is an approval; any other is an
-        override.
+        analysis' transform, term and interventions unless others are chosen), is an approval;
+        any other is an override.
         """
         if self.action in STATE_ACTIONS:
-            return STATE_ACTIONS[self.action], None, None, None, None
+            return STATE_ACTIONS[self.action], None, None, None, None, None
         if self.action == "approve":
-            return VerdictStatus.APPROVED, None, None, None, None
+            return VerdictStatus.APPROVED, None, None, None, None, None
         candidates = analysis.candidates if analysis else ()
         transform: str | dict | None = None
         include_constant: bool | None = None
+        interventions: list[dict] | None = None
         if self.choice == "custom":
             order, seasonal = self.custom_order()
             transform, include_constant = self.model_choice()
+            interventions = self.chosen_interventions()
         elif self.choice.isdigit() and 1 <= int(self.choice) <= len(candidates):
             picked = candidates[int(self.choice) - 1].order
             order, seasonal = list(picked.order), list(picked.seasonal_order)
@@ -120,7 +145,13 @@ class DecisionForm(BaseModel):
             analysis is not None and suggested is not None and suggested.same_orders(order, seasonal)
             and transform in (None, analysis.transform.to_json())
             and include_constant in (None, suggested.trend != "n")
+            and (interventions is None or _same_interventions(interventions, analysis))
         )
         if is_suggestion:
-            return VerdictStatus.APPROVED, order, seasonal, None, None
-        return VerdictStatus.OVERRIDDEN, order, seasonal, transform, include_constant
+            return VerdictStatus.APPROVED, order, seasonal, None, None, None
+        return VerdictStatus.OVERRIDDEN, order, seasonal, transform, include_constant, interventions
+
+
+def _same_interventions(chosen: list[dict], analysis: Analysis) -> bool:
+    """Whether the chosen interventions are the analysis' own (the same time and kind each)."""
+    return sorted((c["timestamp"], c["kind"]) for c in chosen) == sorted((i.timestamp, str(i.kind)) for i in analysis.interventions)

@@ -13,12 +13,17 @@ from dataclasses import dataclass, field
 import pandas as pd
 import sqlite_utils
 
-from app.core.analysis import Analysis, Candidate, Correlation, UnitRootTest
+from app.core.analysis import Analysis, Candidate, Correlation, Intervention, UnitRootTest
+from app.core.correlogram import correlogram
 from app.core.errors import SeriesProblem
+from app.core.fitting import difference
 from app.core.identify import TREND_TOGGLE
-from app.core.prepare import prepare_series
+from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
+from app.core.transform import apply_transform
+from app.core.vocabulary import InterventionKind
+from app.review.decisions import CustomFit
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import remembered_checks
 from app.store.analyses import analysis_record, load_analysis
@@ -52,6 +57,13 @@ SOURCE_WORDS = {
     "alternative d": "the other differencing the tests left open",
 }
 FITTED_BY_HAND = "fitted by hand"
+# A ticked intervention travels in the decision form as "TIMESTAMP|KIND".
+INTERVENTION_SEPARATOR = "|"
+
+
+def intervention_value(timestamp: str, kind: str) -> str:
+    """The decision form's value of one intervention's checkbox."""
+    return f"{timestamp}{INTERVENTION_SEPARATOR}{kind}"
 
 
 def source_words(source: tuple[str, ...]) -> list[str]:
@@ -125,6 +137,18 @@ def lag_chart(chart_id: str, correlation: Correlation, period: int | None, y_tit
         "seasonal_lags": marked,
         "n_lags": len(lags),
     }
+
+
+def observed_correlograms(prepared: PreparedSeries, analysis: Analysis) -> tuple[Correlation, Correlation]:
+    """The ACF and PACF of the series as observed, on the analysis' scale and differencing: what
+    the correlograms would show had the interventions been left in (the analysis keeps those of
+    the series with them taken out). Same lags and band rule as the analysis' own."""
+    model = analysis.suggested.order
+    w = difference(apply_transform(prepared.values, analysis.transform), model)
+    cg = correlogram(w, len(analysis.acf.lags))
+    lags = tuple(int(k) for k in cg.lags)
+    return (Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
+            Correlation(lags, tuple(cg.pacf.tolist()), tuple(cg.pacf_band.tolist())))
 
 
 def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: int | None,
@@ -221,10 +245,13 @@ def review_page(
         "form": form,
     }
     if analysis is None:
-        page.update(candidates=[], selected=None, choice="custom", custom=form.custom or custom_defaults(verdict, None))
+        page.update(candidates=[], selected=None, choice="custom", custom=form.custom or custom_defaults(verdict, None),
+                    intervention_choices=intervention_choices(None, verdict, form))
         return page
+    observed_acf = observed_pacf = None
     if analysis.interventions and preparation_problem is None:
         page["series_chart"] = intervention_chart(labels, [float(v) for v in observed], analysis)
+        observed_acf, observed_pacf = observed_correlograms(prepared, analysis)
     period = analysis.marked_period
     identified = list(analysis.identified_on)
     checks = remembered_checks(db, series_id, analysis)
@@ -239,6 +266,9 @@ def review_page(
         ),
         acf_chart=lag_chart("acf", analysis.acf, period, "ACF"),
         pacf_chart=lag_chart("pacf", analysis.pacf, period, "PACF"),
+        observed_acf_chart=lag_chart("acf-observed", observed_acf, period, "ACF") if observed_acf else None,
+        observed_pacf_chart=lag_chart("pacf-observed", observed_pacf, period, "PACF") if observed_pacf else None,
+        intervention_choices=intervention_choices(analysis, verdict, form),
         tests=test_rows(analysis.differencing.tests),
         candidates=candidates,
         choice=choice,
@@ -250,9 +280,47 @@ def review_page(
     return page
 
 
-def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: Candidate) -> dict:
-    """A custom-fitted order as a candidate view, on the same time axis as the stored ones."""
+def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit) -> dict:
+    """A custom-fitted order as a candidate view, on the same time axis as the stored ones, with
+    the interventions taken out for it."""
     raw = load_series(db, series_id)
     labels = time_labels(prepare_series(raw, series_id).index)
     analysis = load_analysis(db, series_id)
-    return candidate_view(fit, "custom", labels, analysis.marked_period if analysis else None)
+    return {
+        **candidate_view(fit.candidate, "custom", labels, analysis.marked_period if analysis else None),
+        "interventions": list(fit.interventions),
+        "interventions_chosen": fit.chosen,
+    }
+
+
+def intervention_choices(analysis: Analysis | None, verdict: dict, form: FormState) -> list[dict]:
+    """The interventions the decision form offers to keep or drop, each ``{value, words,
+    checked}``: the analysis' own, the verdict's, and those of the form being redrawn.
+
+    Ticked are those of the custom fit just made, else those the form sent, else the
+    verdict's own choice, else the analysis' own.
+    """
+    known: dict[str, str] = {}
+
+    def add(found: Intervention) -> str:
+        value = intervention_value(found.timestamp, str(found.kind))
+        known.setdefault(value, found.words())
+        return value
+
+    own = {add(i) for i in analysis.interventions} if analysis else set()
+    decided = {add(Intervention.from_dict(i)) for i in verdict["interventions"]} if verdict.get("interventions") is not None else None
+    fitted = form.custom_fit.get("interventions") if form.custom_fit else None
+    from_fit = {add(i) for i in fitted} if fitted is not None else None
+    sent = set(form.custom.get("interventions", ())) if form.custom.get("interventions_shown") else None
+    for value in sorted(sent or ()):
+        timestamp, _, kind = value.rpartition(INTERVENTION_SEPARATOR)
+        known.setdefault(value, f"{_kind_words(kind)} at {timestamp}")
+    ticked = next(chosen for chosen in (from_fit, sent, decided, own) if chosen is not None)
+    return [{"value": value, "words": words, "checked": value in ticked} for value, words in known.items()]
+
+
+def _kind_words(kind: str) -> str:
+    try:
+        return InterventionKind(kind).words()
+    except ValueError:
+        return kind

@@ -186,5 +186,15 @@
   for (var i = 1; i <= 9; i++) {
     (function (key) { L.keys[key] = function () { pick(key); }; })(String(i));
   }
+  // The correlograms of the series with the interventions taken out (as identified) or left in.
+  document.querySelectorAll("[data-correlogram-switch] input").forEach(function (radio) {
+    radio.addEventListener("change", function () {
+      var panel = radio.closest("[data-correlograms]");
+      panel.querySelectorAll("[data-correlogram-view]").forEach(function (view) {
+        view.hidden = view.dataset.correlogramView !== radio.value;
+      });
+      L.drawCharts(panel);
+    });
+  });
   refreshSave();
 })();

@@ -152,7 +152,7 @@ def test_the_reviewers_transform_and_constant_are_stored_fitted_and_exported(db)
 
 
 def test_a_constant_is_a_drift_after_one_difference_and_refused_after_two(db):
-    fit = fit_custom_order(db, AIR, [1, 1, 0], None, transform={"box_cox": 0.25}, include_constant=True)
+    fit = fit_custom_order(db, AIR, [1, 1, 0], None, transform={"box_cox": 0.25}, include_constant=True).candidate
     assert fit.order.trend == "t" and "drift" in [p.name for p in fit.params]
     assert fit.delta_aicc is None  # another scale than the analysis': criteria do not compare
     reference = ARIMA(pd.Series(air_values()).pipe(lambda s: (s ** 0.25 - 1) / 0.25).to_numpy(), order=(1, 1, 0), trend="t").fit()

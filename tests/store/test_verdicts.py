@@ -37,7 +37,7 @@ def test_a_new_series_is_pending_at_version_zero_with_no_history(portfolio_db):
     assert get_verdict(portfolio_db, "a") == {
         "status": "pending", "order": None, "seasonal_order": None, "transform": "none", "note": "",
         "reviewer": "", "version": 0, "decided_at": None, "recheck_reason": None, "trend": None,
-        "include_constant": None,
+        "include_constant": None, "interventions": None,
     }
     assert verdict_history(portfolio_db, "a") == []
 

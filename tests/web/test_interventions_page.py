@@ -55,3 +55,92 @@ def test_the_series_chart_marks_each_intervention_and_lists_it_in_its_numbers(cl
     assert "level shift" in marks["text"][0]
     assert [shape["x0"] for shape in figure["layout"]["shapes"]] == [when]  # where the shift starts
     assert re.search(rf"<td>{when}</td><td>[^<]+</td><td>level shift</td>", html)
+
+
+def _detail(client, series_id: str) -> dict:
+    return client.get(f"/api/series/{quote(series_id, safe='/')}").json()
+
+
+def _suggested(body: dict) -> tuple[list[int], list[int]]:
+    leader = body["candidates"][0]
+    return leader["order"], leader["seasonal_order"]
+
+
+def test_a_fit_without_the_level_shift_shows_what_it_did(client):
+    body = _detail(client, SHIFTED)
+    order, seasonal = _suggested(body)
+    url = f"/api/series/{quote(SHIFTED, safe='/')}/fit"
+    kept = client.post(url, json={"order": order, "seasonal_order": seasonal, "interventions": [
+        {"timestamp": i["timestamp"], "kind": i["kind"]} for i in body["interventions"]]}).json()
+    assert kept["interventions_chosen"] is False  # the analysis' own: its sizes, its criteria
+    assert kept["loglik"] == pytest.approx(body["candidates"][0]["loglik"], abs=1e-6)
+    dropped = client.post(url, json={"order": order, "seasonal_order": seasonal, "interventions": []}).json()
+    assert dropped["interventions_chosen"] is True and dropped["interventions"] == []
+    assert dropped["delta_aicc"] is None  # another series than the candidates': criteria do not compare
+    # The shift left in: the stationary model's residuals carry it, so they are wider (1.3 times the variance here).
+    sigma2 = {name: {p["name"]: p["value"] for p in fit["params"]}["sigma2"] for name, fit in (("kept", kept), ("dropped", dropped))}
+    assert sigma2["dropped"] > 1.2 * sigma2["kept"]
+
+
+def test_an_added_intervention_is_sized_with_the_order_and_a_wrong_time_is_named(client):
+    body = _detail(client, SPIKED)
+    order, seasonal = _suggested(body)
+    url = f"/api/series/{quote(SPIKED, safe='/')}/fit"
+    spike = _defect_date(SPIKED)
+    added = client.post(url, json={"order": order, "seasonal_order": seasonal, "interventions": [
+        {"timestamp": spike, "kind": "additive"}, {"timestamp": "2024-06-03", "kind": "level_shift"}]}).json()
+    by_time = {i["timestamp"]: i for i in added["interventions"]}
+    assert set(by_time) == {spike, "2024-06-03"}
+    assert by_time[spike]["t_stat"] > 5  # the dock-door spike is clear
+    assert abs(by_time["2024-06-03"]["t_stat"]) < 3  # no shift there in the data
+    wrong = client.post(url, json={"order": order, "seasonal_order": seasonal,
+                                   "interventions": [{"timestamp": "1999-01-01", "kind": "additive"}]})
+    assert wrong.status_code == 422
+    assert SPIKED in wrong.json()["detail"] and "'1999-01-01' is not a time of this series" in wrong.json()["detail"]
+
+
+def test_a_verdict_keeps_the_reviewers_interventions_and_the_export_hands_them_on(client):
+    body = _detail(client, SHIFTED)
+    order, seasonal = _suggested(body)
+    url = f"/api/series/{quote(SHIFTED, safe='/')}/verdict"
+    own = [{"timestamp": i["timestamp"], "kind": i["kind"]} for i in body["interventions"]]
+    changed = [*own, {"timestamp": "2024-12-20", "kind": "additive"}]
+    approving = client.post(url, json={"status": "approved", "order": order, "seasonal_order": seasonal,
+                                       "interventions": changed, "reviewer": "ann", "version": body["verdict"]["version"]})
+    assert approving.status_code == 422 and "use 'overridden' to change them" in approving.json()["detail"]
+    saved = client.post(url, json={"status": "overridden", "order": order, "seasonal_order": seasonal, "confirm": True,
+                                   "interventions": changed, "reviewer": "ann", "version": body["verdict"]["version"]})
+    assert saved.status_code == 200, saved.text
+    stored = saved.json()["interventions"]
+    assert [(i["timestamp"], i["kind"]) for i in stored] == [(c["timestamp"], c["kind"]) for c in changed]
+    record = next(o for o in client.get("/api/orders").json()["orders"] if o["series_id"] == SHIFTED)
+    assert [(i["timestamp"], i["kind"]) for i in record["interventions"]] == [(c["timestamp"], c["kind"]) for c in changed]
+    assert [i["size"] for i in record["interventions"]] == pytest.approx([i["size"] for i in stored])
+    assert record["parameters"] is not None
+    history = _detail(client, SHIFTED)["history"]
+    assert history[-1]["interventions"] == stored
+
+
+def test_the_review_page_offers_the_interventions_and_both_correlograms(client):
+    html = client.get(f"/series/{quote(SHIFTED, safe='/')}").text
+    when = _defect_date(SHIFTED)
+    assert re.search(rf'name="interventions" value="{when}\|level_shift" checked', html)
+    assert 'name="add_at"' in html and 'name="interventions_shown" value="true"' in html
+    assert 'id="chart-acf-observed"' in html and 'data-correlogram-view="observed" hidden' in html
+    assert "As observed" in html
+
+
+def test_the_form_fits_a_custom_model_without_the_interventions_in_place(client):
+    body = _detail(client, SHIFTED)
+    order, seasonal = _suggested(body)
+    form = {"action": "fit", "choice": "custom", "p": order[0], "d": order[1], "q": order[2], "P": seasonal[0],
+            "D": seasonal[1], "Q": seasonal[2], "s": seasonal[3], "interventions_shown": "true", "fragment": "true"}
+    html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
+    assert "No interventions taken out." in html
+    # Adding back exactly the analysis' own shift is the analysis' model again, with its sizes.
+    form["add_at"], form["add_kind"] = _defect_date(SHIFTED), "level_shift"
+    html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
+    assert "(the analysis' own)" in html and f"<td>{_defect_date(SHIFTED)}</td>" in html
+    form["add_kind"] = "temporary_change"
+    html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
+    assert "your choice, sized with this order" in html and "<td>temporary change</td>" in html

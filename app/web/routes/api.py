@@ -65,6 +65,18 @@ Transform = Annotated[str | dict[str, float] | None, Field(
     description='"none", "log" or {"box_cox": lambda}; default: the analysis\' transform (log and Box-Cox need positive data)',
     examples=["log", {"box_cox": 0.5}],
 )]
+
+
+class InterventionIn(BaseModel):
+    timestamp: str = Field(max_length=64, description="a time of the series, as it writes them", examples=["2024-03-01"])
+    kind: Literal["additive", "level_shift", "temporary_change"]
+
+
+Interventions = Annotated[list[InterventionIn] | None, Field(
+    max_length=1000,
+    description=("the outliers and level shifts to take out of the series, sized jointly with the order; "
+                 "default: the analysis' own; [] takes none out"),
+)]
 IncludeConstant = Annotated[bool | None, Field(
     description="a constant (a mean undifferenced, a drift after one difference) or none; default: the engine's term for the order",
 )]
@@ -142,6 +154,8 @@ class Verdict(BaseModel):
     transform: str | dict
     trend: str | None = Field(description="the model's deterministic term: n, c (a mean), t (a drift), ct; null without an order")
     include_constant: bool | None
+    interventions: list[dict] | None = Field(description=(
+        "the reviewer's interventions (timestamp, kind, size, t_stat), sized with the order; null: the analysis' own"))
     note: str
     reviewer: str
     version: int
@@ -156,6 +170,7 @@ class VerdictIn(BaseModel):
     seasonal_order: SeasonalOrder | None = None
     transform: Transform = None
     include_constant: IncludeConstant = None
+    interventions: Interventions = None
     confirm: bool = Field(False, description="save an order whose residuals fail the Ljung-Box test at 1% anyway")
     note: Note = Field("", description=f"at most {MAX_NOTE_LENGTH:,} characters; needed to approve a suggestion "
                        "that did not converge, fails Ljung-Box at 1% or lacks standard errors")
@@ -168,6 +183,11 @@ class FitIn(BaseModel):
     seasonal_order: SeasonalOrder = [0, 0, 0, 0]
     transform: Transform = None
     include_constant: IncludeConstant = None
+    interventions: Interventions = None
+
+
+def chosen(items: list[InterventionIn] | None) -> list[dict] | None:
+    return None if items is None else [item.model_dump() for item in items]
 
 
 class BulkApprovalIn(BaseModel):
@@ -280,18 +300,22 @@ def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
     return decide(
         db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
         note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
-        transform=body.transform, include_constant=body.include_constant, confirm=body.confirm,
+        transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
+        confirm=body.confirm,
     )
 
 
 @router.post("/series/{series_id:path}/fit")
 def series_fit(request: Request, db: Db, series_id: str, body: FitIn) -> dict:
-    """Fit an order to the stored series now (nothing is saved), with the transform and constant
-    asked for: the candidate statistics, its residuals and residual ACF, and ``delta_aicc``
-    against the stored candidates of the same differencing (d, D and s) and transform (null when
-    there is none). 429 while another fit or forecast check of the series runs."""
+    """Fit an order to the stored series now (nothing is saved), with the transform, constant and
+    interventions asked for: the candidate statistics, its residuals and residual ACF,
+    ``delta_aicc`` against the stored candidates of the same differencing (d, D and s) and
+    transform (null when there is none, or when the reviewer's interventions make the data
+    another), and the ``interventions`` taken out with their sizes in this fit. 429 while another
+    fit or forecast check of the series runs."""
     with computation_slot(request, series_id):
-        fit = fit_custom_order(db, series_id, body.order, body.seasonal_order, body.transform, body.include_constant)
+        fit = fit_custom_order(db, series_id, body.order, body.seasonal_order, body.transform, body.include_constant,
+                               chosen(body.interventions))
         return finite(fit.to_dict())
 
 

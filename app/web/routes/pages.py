@@ -194,10 +194,10 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
     # The next series is found before saving: the saved one may leave the filter.
     next_id = series_neighbours(db, series_id, **flt.store_kwargs())[1]
     try:
-        status, order, seasonal, transform, include_constant = data.decision(load_analysis(db, series_id))
+        status, order, seasonal, transform, include_constant, interventions = data.decision(load_analysis(db, series_id))
         decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
                reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
-               confirm=data.confirm)
+               interventions=interventions, confirm=data.confirm)
     except LagdeskError as exc:
         return _redraw(request, db, series_id, flt, data, status_of(exc), exc)
     url = with_query(request.app.url_path_for("review", series_id=quote_path(next_id or series_id)), flt.query(saved=series_id))
@@ -212,7 +212,8 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
         order, seasonal = data.custom_order()
         transform, include_constant = data.model_choice()
         with computation_slot(request, series_id):
-            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal, transform, include_constant))
+            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal, transform, include_constant,
+                                                                  data.chosen_interventions()))
     except UnknownSeries:
         raise
     except LagdeskError as exc:
