@@ -60,6 +60,8 @@ from functools import lru_cache
 import numpy as np
 from scipy.optimize import brentq
 
+from app.core.p_values import p_words
+
 STABILITY_LEVEL = 0.05
 _SERIES_TERMS = 600  # terms of the product form; the rest enter through their first-order term
 _GRID_POINTS = 6000
@@ -85,7 +87,7 @@ class SeasonalStability:
                    else "rejects a fixed seasonal pattern: the seasonal pattern wanders")
         sign = "<" if self.statistic < self.critical_value else ">="
         return (f"Canova-Hansen test of seasonal stability: L = {self.statistic:.2f} {sign} {self.critical_value:.2f} "
-                f"(5% point, {self.df} seasonal frequencies), p = {self.p_value:.3f}; it {verdict}.")
+                f"(5% point, {self.df} seasonal frequencies), {p_words(self.p_value)}; it {verdict}.")
 
 
 @lru_cache(maxsize=32)

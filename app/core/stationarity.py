@@ -56,6 +56,7 @@ from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
 
 from app.core.analysis import UnitRootTest
+from app.core.p_values import p_words
 from app.core.prepare import interpolate_gaps
 
 TEST_LEVEL = 0.05
@@ -134,7 +135,7 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
                     )
                     return DifferencingDecision(0, False, None, True, tests, words)
                 if ad_ct.rejects or ad.p_value < ADF_UNCERTAIN_P:
-                    reason = "ADF with a trend term rejects a unit root" if ad_ct.rejects else f"ADF's p-value {ad.p_value:.3f} is below {ADF_UNCERTAIN_P}"
+                    reason = "ADF with a trend term rejects a unit root" if ad_ct.rejects else f"ADF's {p_words(ad.p_value)} is below {ADF_UNCERTAIN_P}"
                     return _uncertain(tests, words, on, f"KPSS rejects stationarity, but {reason}")
             words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: differenced once more.")
             values = np.diff(values)
@@ -143,7 +144,7 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
             words.append(f"On the {on} the tests disagree; a further difference needs both to agree, so d = {d}.")
             return DifferencingDecision(d, False, None, False, tests, words)
         verdict = "neither rejects its null" if not kp.rejects else "both reject their nulls"
-        return _uncertain(tests, words, on, f"the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF p = {ad.p_value:.3f})")
+        return _uncertain(tests, words, on, f"the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF {p_words(ad.p_value)})")
     raise AssertionError("unreachable")
 
 

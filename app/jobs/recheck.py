@@ -43,6 +43,7 @@ from app.core.errors import OrderError
 from app.core.fitting import LJUNG_BOX_LEVEL
 from app.core.identify import ENGINE_VERSION
 from app.core.order import Order
+from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
 from app.core.transform import TransformChoice, log_jacobian
 from app.core.vocabulary import DECIDED
@@ -100,9 +101,9 @@ def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> 
         lb_p, lb_lags, aicc = fit.ljung_box_p, fit.ljung_box_lags, fit.aicc
         check.parameters = fit.parameter_values()
     if lb_p is not None and lb_p < LJUNG_BOX_LEVEL:
-        check.reasons.append(f"the residuals of {label} fail the Ljung-Box test (p = {lb_p:.3g} at {lb_lags} lags)")
+        check.reasons.append(f"the residuals of {label} fail the Ljung-Box test ({p_words(lb_p)} at {lb_lags} lags)")
     else:
-        check.checked.append("Ljung-Box " + (f"p = {lb_p:.3g}" if lb_p is not None else "not computable"))
+        check.checked.append("Ljung-Box " + (p_words(lb_p) if lb_p is not None else "not computable"))
     _compare_aicc(check, prepared, analysis, aicc)
     return check
 

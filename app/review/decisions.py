@@ -16,6 +16,7 @@ from app.core.analysis import Analysis, Candidate, Intervention, delta_aicc_agai
 from app.core.chosen_interventions import place_interventions, sized_interventions
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import Order, validate_order
+from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
 from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import REVIEWER_STATUSES, VerdictStatus
@@ -69,11 +70,6 @@ def checked_note(note: str) -> str:
     if len(note) > MAX_NOTE_LENGTH:
         raise DecisionError(f"a note may hold at most {MAX_NOTE_LENGTH:,} characters; this one has {len(note):,}")
     return note
-
-
-def p_words(p: float) -> str:
-    """A Ljung-Box p-value in words: ``p < 0.001`` or ``p = 0.004``."""
-    return "p < 0.001" if p < 0.001 else f"p = {p:.3f}"
 
 
 def fails_ljung_box(candidate: Candidate) -> bool:

@@ -13,6 +13,7 @@ from markupsafe import Markup
 
 import app
 from app.core.order import order_label
+from app.core.p_values import p_text
 from app.core.vocabulary import Flag
 from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
@@ -86,15 +87,12 @@ def number(value: float | None, digits: int = 2) -> str:
     return f"{value:.{digits}f}"
 
 
-P_FLOOR = 0.001
-
-
 def p_value(value: float | None) -> str:
     """A p-value for a table cell: three decimals, ``< 0.001`` below that (never "0.000", which
     reads as an impossible p of zero), an em dash for a missing one."""
     if value is None or not math.isfinite(value):
         return "—"
-    return f"< {P_FLOOR}" if value < P_FLOOR else f"{value:.3f}"
+    return p_text(value)
 
 
 def percent(share: float | None) -> str:
