@@ -7,8 +7,9 @@ Usage::
 writes ``portfolio.csv`` (long layout: ``series_id,timestamp,value``) and ``truth.csv`` (one
 row per series: the process it was simulated from) into ``OUTPUT_DIR``, by default the folder
 this file sits in. The output is the same byte for byte on every run: each series draws its
-innovations from ``numpy.random.default_rng([SEED, crc32(series_id)])``, so a series does not
-change when others are added or reordered.
+random numbers (innovations first, then any random defect) from
+``numpy.random.default_rng([SEED, crc32(series_id)])``, so a series does not change when others
+are added or reordered.
 
 Every company, shop, room and product name here is invented.
 
@@ -26,11 +27,20 @@ removes it exactly, so it changes the look of the series but not its model. Stat
 are simulated with a long burn-in, so they start in their stationary distribution; integrated
 ones start at rest.
 
+One series is not ARIMA at all: intermittent demand, simulated as is common practice for it by
+a Bernoulli occurrence times a positive size, ``y_t = B_t (1 + N_t)`` with ``B_t ~ Bernoulli(p)``
+and ``N_t ~ Poisson(lambda)`` independent. Its average inter-demand interval ``1/p`` is well
+above the cut-off 1.32 of Syntetos, Boylan & Croston [2]_, and the squared coefficient of
+variation of its sizes, ``lambda / (1 + lambda)^2``, below their 0.49, so it is "intermittent"
+in their classification.
+
 References
 ----------
 .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series Analysis:
    Forecasting and Control*, 5th ed., Wiley, ch. 3-4 (ARMA and ARIMA processes) and ch. 9
    (multiplicative seasonal models).
+.. [2] Syntetos, A.A., Boylan, J.E. & Croston, J.D. (2005). On the categorization of demand
+   patterns. *Journal of the Operational Research Society* 56, 495-503.
 """
 
 from __future__ import annotations
@@ -65,7 +75,12 @@ HOURLY_PROFILE = np.cos(2 * np.pi * (np.arange(24) - 15) / 24)  # warmest / busi
 LEVEL_SHIFT_SIZE = 5.0
 OUTLIER_SIZE = 8.0
 GAP_RUN = 6  # timestamps dropped from the file in a row
-AWKWARDNESS = ("", "gap", "level_shift", "outlier", "very_short", "constant")
+# A wireless logger's dropouts: runs of 1 to DROPOUT_MAX_RUN missing days, separated by
+# Geometric(1 / DROPOUT_MEAN_SPACING) observed days, so about 2.5 / (2.5 + 16) = 14% of
+# the days are missing; each run is either rows absent from the file or empty value cells.
+DROPOUT_MAX_RUN = 4
+DROPOUT_MEAN_SPACING = 16.0
+AWKWARDNESS = ("", "gap", "level_shift", "outlier", "very_short", "constant", "dropouts", "intermittent")
 
 TRUTH_COLUMNS = [
     "series_id", "group", "frequency", "n", "process", "order_p", "order_d", "order_q",
@@ -79,7 +94,10 @@ class Spec:
     """One demo series: where it belongs, its process, its level and scale, its defect.
 
     ``level``, ``scale``, ``drift`` and ``season_amplitude`` are in data units, or in log
-    units when ``transform == "log"``. ``scale == 0`` makes a constant series.
+    units when ``transform == "log"``. ``scale == 0`` makes a constant series, unless
+    ``demand_probability`` is set: then the series is intermittent demand, ``B_t (1 + N_t)`` with
+    ``B_t ~ Bernoulli(demand_probability)`` and ``N_t ~ Poisson(extra_size_mean)``, and has no
+    ARIMA part.
     """
 
     series_id: str
@@ -100,6 +118,8 @@ class Spec:
     decimals: int = 3
     awkwardness: str = ""
     description: str = ""
+    demand_probability: float = 0.0
+    extra_size_mean: float = 0.0
 
     def __post_init__(self) -> None:
         if self.frequency not in PERIOD:
@@ -112,6 +132,11 @@ class Spec:
             raise ValueError(f"{self.series_id}: a calendar profile needs seasonal differencing to leave the model unchanged")
         if self.drift and not (self.d or self.seasonal_d):
             raise ValueError(f"{self.series_id}: drift needs differencing (a stationary series has a level, not a drift)")
+        if self.demand_probability:
+            arima_terms = (self.ar, self.ma, self.d, self.seasonal_ar, self.seasonal_ma, self.seasonal_d, self.drift)
+            if not 0 < self.demand_probability < 1 or self.extra_size_mean < 0 or any(arima_terms) or self.scale:
+                raise ValueError(f"{self.series_id}: intermittent demand needs 0 < demand_probability < 1, "
+                                 "extra_size_mean >= 0 and no ARIMA part")
         process = self.arma_process()
         if not (process.isstationary and process.isinvertible):
             raise ValueError(f"{self.series_id}: the ARMA part must be stationary and invertible")
@@ -124,6 +149,8 @@ class Spec:
     @property
     def process_name(self) -> str:
         p, q = len(self.ar), len(self.ma)
+        if self.demand_probability:
+            return "intermittent demand"
         if self.scale == 0:
             return "constant"
         if self.period is None:
@@ -152,11 +179,28 @@ DAILY_SALES, MONTHLY = "hearthloaf-daily-sales", "hearthloaf-monthly"
 SHOP_NAMES = {"riverside": "Riverside", "millgate": "Millgate", "old-tannery": "Old Tannery", "station-row": "Station Row"}
 
 
+def sold_per_day(shop: str, product: str) -> str:
+    """The opening sentence of a daily sales series' description."""
+    return f"{product.replace('-', ' ').capitalize()} sold per day at the {SHOP_NAMES[shop]} shop (items)."
+
+
 def sales(shop: str, product: str, n: int, level: float, scale: float, note: str = "", **process) -> Spec:
     """A daily product-by-shop sales series of Hearthloaf Bakeries (whole items)."""
-    text = f"{product.replace('-', ' ').capitalize()} sold per day at the {SHOP_NAMES[shop]} shop (items)."
     return Spec(f"hearthloaf/{shop}/{product}", DAILY_SALES, "daily", n, level, scale, decimals=0,
-                description=" ".join(filter(None, [text, note])), **process)
+                description=" ".join(filter(None, [sold_per_day(shop, product), note])), **process)
+
+
+def intermittent_sales(shop: str, product: str, n: int, demand_probability: float, extra_size_mean: float,
+                       note: str) -> Spec:
+    """A daily sales series of Hearthloaf Bakeries that is intermittent demand, not ARIMA."""
+    mean_size = 1 + extra_size_mean
+    cv2 = extra_size_mean / mean_size**2
+    process = (f"Not an ARIMA process: intermittent demand, a sale on a day with probability {demand_probability:g} "
+               f"(average inter-demand interval {1 / demand_probability:.2f} days), of 1 + Poisson({extra_size_mean:g}) "
+               f"items (mean {mean_size:g}, CV² {cv2:.2f}): 'intermittent' for Syntetos, Boylan & Croston (2005).")
+    return Spec(f"hearthloaf/{shop}/{product}", DAILY_SALES, "daily", n, 0.0, 0.0, decimals=0,
+                awkwardness="intermittent", demand_probability=demand_probability, extra_size_mean=extra_size_mean,
+                description=" ".join([sold_per_day(shop, product), note, process]))
 
 
 COLD_STORE = [
@@ -186,6 +230,9 @@ COLD_STORE = [
          description="Chiller room 5, daily mean air temperature (deg C); the sensor froze at 4.0 after a firmware fault."),
     Spec("polarquay/anteroom/temp-c", ROOMS, "daily", 260, 8.0, 0.70, ar=(0.65,), awkwardness="outlier",
          description="Loading anteroom, daily mean air temperature (deg C); one day the dock door was wedged open."),
+    Spec("polarquay/tempering-room/temp-c", ROOMS, "daily", 480, -4.0, 0.35, ar=(0.6,), awkwardness="dropouts",
+         description="Tempering room, daily mean air temperature (deg C) from a battery-powered wireless logger "
+                     "whose radio link to the gateway often drops out."),
     Spec("polarquay/chiller-1/humidity-pct", HUMIDITY, "daily", 500, 88.0, 1.5,
          description="Chiller room 1, daily mean relative humidity (%)."),
     Spec("polarquay/chiller-2/humidity-pct", HUMIDITY, "daily", 450, 86.0, 1.2, ar=(0.6,),
@@ -293,6 +340,8 @@ BAKERY_DAILY = [
     sales("station-row", "coffee-cake", 60, 40.0, 4.0, ar=(0.6,), note="On sale for two months only."),
     sales("station-row", "sandwich-loaf", 8, 35.0, 4.0, awkwardness="very_short",
           note="Added to the range eight days ago."),
+    intermittent_sales("old-tannery", "celebration-cake", 540, 0.2, 0.8,
+                       note="Special-order cakes, collected in the shop; most days none."),
 ]
 
 BAKERY_MONTHLY = [
@@ -357,7 +406,12 @@ def integrate(w: np.ndarray, d: int, seasonal_d: int, s: int) -> np.ndarray:
     return x
 
 
-def simulate(spec: Spec, index: pd.DatetimeIndex) -> np.ndarray:
+def series_rng(spec: Spec) -> np.random.Generator:
+    """The random numbers of one series, independent of every other series."""
+    return np.random.default_rng([SEED, zlib.crc32(spec.series_id.encode())])
+
+
+def simulate(spec: Spec, index: pd.DatetimeIndex, rng: np.random.Generator) -> np.ndarray:
     """Simulate one series on its grid (before the deliberate defects and rounding).
 
     A stationary series is drawn with :data:`BURN_IN` discarded steps, so it starts in its
@@ -365,11 +419,14 @@ def simulate(spec: Spec, index: pd.DatetimeIndex) -> np.ndarray:
     (no innovations before the first point), because innovations from a burn-in would enter
     the first season of its moving-average part and, once integrated, become a spurious
     trend. Then the drift is added, the differencing is undone, and the level and calendar
-    profile are added; ``exp`` is taken last for log-transformed series.
+    profile are added; ``exp`` is taken last for log-transformed series. Intermittent demand is
+    drawn as occurrences times sizes instead.
     """
+    if spec.demand_probability:
+        occurs = rng.random(spec.n) < spec.demand_probability
+        return np.where(occurs, 1 + rng.poisson(spec.extra_size_mean, spec.n), 0).astype(float)
     if spec.scale == 0:
         return np.full(spec.n, spec.level)
-    rng = np.random.default_rng([SEED, zlib.crc32(spec.series_id.encode())])
     burn_in = 0 if spec.d or spec.seasonal_d else BURN_IN
     w = spec.arma_process().generate_sample(spec.n, scale=spec.scale, distrvs=rng.standard_normal, burnin=burn_in)
     x = integrate(w + spec.drift, spec.d, spec.seasonal_d, PERIOD[spec.frequency])
@@ -377,11 +434,29 @@ def simulate(spec: Spec, index: pd.DatetimeIndex) -> np.ndarray:
     return np.exp(y) if spec.transform == "log" else y
 
 
-def add_defect(spec: Spec, values: np.ndarray, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, str]:
+def dropout_runs(n: int, rng: np.random.Generator) -> list[tuple[int, int]]:
+    """(start, length) of the missing runs of a dropout-heavy channel of ``n`` points.
+
+    Each run is 1 to :data:`DROPOUT_MAX_RUN` long and follows at least one observed point; the
+    last point is always observed, so the series keeps its first and last day.
+    """
+    runs: list[tuple[int, int]] = []
+    t = 0
+    while True:
+        t += int(rng.geometric(1 / DROPOUT_MEAN_SPACING))
+        length = int(rng.integers(1, DROPOUT_MAX_RUN + 1))
+        if t + length >= n:
+            return runs
+        runs.append((t, length))
+        t += length
+
+
+def add_defect(spec: Spec, values: np.ndarray, index: pd.DatetimeIndex,
+               rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, str]:
     """Apply the series' deliberate defect.
 
     Returns the values (NaN for an empty cell), a mask of the rows kept in the file, and a
-    sentence for the description.
+    sentence for the description. ``rng`` is the series' own, already used for its values.
     """
     values, keep = values.copy(), np.ones(spec.n, dtype=bool)
     fmt = TIME_FORMAT[spec.frequency]
@@ -401,6 +476,23 @@ def add_defect(spec: Spec, values: np.ndarray, index: pd.DatetimeIndex) -> tuple
         at = int(0.65 * spec.n)
         values[at] += OUTLIER_SIZE * spec.scale
         return values, keep, f"One outlier (+{OUTLIER_SIZE * spec.scale:g}) on {index[at]:{fmt}}."
+    if spec.awkwardness == "dropouts":
+        runs = dropout_runs(spec.n, rng)
+        as_empty_cells = rng.random(len(runs)) < 0.5
+        for (start, length), empty in zip(runs, as_empty_cells):
+            if empty:
+                values[start: start + length] = np.nan
+            else:
+                keep[start: start + length] = False
+        missing = sum(length for _, length in runs)
+        absent = sum(length for (_, length), empty in zip(runs, as_empty_cells) if not empty)
+        lengths = ", ".join(f"{k} x {m} days" for m in range(1, DROPOUT_MAX_RUN + 1)
+                            if (k := sum(length == m for _, length in runs)))
+        return values, keep, (
+            f"{missing} of {spec.n} days ({missing / spec.n:.0%}) missing in {len(runs)} dropouts ({lengths}) "
+            f"between {index[runs[0][0]]:{fmt}} and {index[runs[-1][0] + runs[-1][1] - 1]:{fmt}}: "
+            f"{absent} days have no row, {missing - absent} an empty value cell."
+        )
     return values, keep, ""
 
 
@@ -413,11 +505,14 @@ def format_value(value: float, decimals: int) -> str:
 
 def truth_row(spec: Spec, defect_note: str) -> list:
     """The truth.csv row of one series."""
-    coefficients = {
+    coefficients: dict[str, object] = {
         "ar": list(spec.ar), "ma": list(spec.ma),
         "seasonal_ar": list(spec.seasonal_ar), "seasonal_ma": list(spec.seasonal_ma),
-        "drift": spec.drift, "sigma": spec.scale, "level": spec.level,
     }
+    if spec.demand_probability:
+        coefficients |= {"demand_probability": spec.demand_probability, "extra_size_mean": spec.extra_size_mean}
+    else:
+        coefficients |= {"drift": spec.drift, "sigma": spec.scale, "level": spec.level}
     return [
         spec.series_id, spec.group, spec.frequency, spec.n, spec.process_name,
         len(spec.ar), spec.d, len(spec.ma),
@@ -439,8 +534,8 @@ def build(specs: list[Spec]) -> tuple[str, str]:
     portfolio_writer.writerow(["series_id", "timestamp", "value"])
     truth_writer.writerow(TRUTH_COLUMNS)
     for spec in specs:
-        index = timestamps(spec)
-        values, keep, note = add_defect(spec, simulate(spec, index), index)
+        index, rng = timestamps(spec), series_rng(spec)
+        values, keep, note = add_defect(spec, simulate(spec, index, rng), index, rng)
         stamps = index.strftime(TIME_FORMAT[spec.frequency])
         portfolio_writer.writerows(
             (spec.series_id, stamp, format_value(value, spec.decimals))

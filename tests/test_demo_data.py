@@ -2,7 +2,10 @@
 
 The process checks compare sample autocorrelations with the theoretical ones of the recorded
 coefficients, computed by statsmodels ``ArmaProcess.acf``, allowing three standard errors from
-Bartlett's formula.
+Bartlett's formula. The dropout-heavy channel is checked for its share and runs of missing days,
+the intermittent sales series for its share of zeros and its demand class, computed here from
+the definitions of Syntetos, Boylan & Croston [3]_ rather than by the engine's classifier. A slow
+test checks that the engine flags every awkward series it analyses and says why.
 
 References
 ----------
@@ -12,11 +15,15 @@ References
    its AR(1) and MA(1) special cases; section number from memory).
 .. [2] Brockwell, P.J. & Davis, R.A. (1991). *Time Series: Theory and Methods*, 2nd ed.,
    Springer, Theorem 7.2.1 (Bartlett's formula in the form used here; from memory).
+.. [3] Syntetos, A.A., Boylan, J.E. & Croston, J.D. (2005). On the categorization of demand
+   patterns. *Journal of the Operational Research Society* 56, 495-503 (ADI and CV² cut-offs
+   1.32 and 0.49).
 """
 
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -28,13 +35,20 @@ from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.stattools import acf
 
 from app.core.errors import SeriesProblem
+from app.core.identify import identify_series
 from app.core.portfolio_file import read_portfolio
-from app.core.prepare import prepare_series
+from app.core.prepare import SHORT_GAP_MAX, prepare_series
+from app.core.vocabulary import Confidence, Flag, InterventionKind
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 PORTFOLIO = DEMO_DIR / "portfolio.csv"
 TRUTH = DEMO_DIR / "truth.csv"
 GAP_RUN = 6  # timestamps the "gap" series lacks in the file, besides one empty value cell
+DROPOUT_SHARE = (0.10, 0.20)  # days missing from the dropout-heavy channel (demo_data/README.md)
+DROPOUT_RUN = (1, 4)  # days in one dropout
+ZERO_SHARE = (0.70, 0.85)  # days without a sale in the intermittent series
+ADI_CUTOFF, CV2_CUTOFF = 1.32, 0.49  # Syntetos, Boylan & Croston (2005)
+END = {"daily": "2024-12-31", "hourly": "2024-12-31 23:00", "monthly": "2024-12-01"}
 THEORY_LAGS = 600  # terms of the Bartlett sum; every recorded process has decayed long before
 PANDAS_FREQ = {"daily": "D", "hourly": "h", "monthly": "MS"}
 
@@ -49,6 +63,47 @@ def read_truth() -> pd.DataFrame:
 def read_values() -> dict[str, np.ndarray]:
     table = pd.read_csv(PORTFOLIO, dtype={"series_id": str, "timestamp": str})
     return {sid: group["value"].to_numpy() for sid, group in table.groupby("series_id", sort=False)}
+
+
+def series_of(awkwardness: str) -> str:
+    """The one series with this deliberate defect."""
+    truth = read_truth()
+    (series_id,) = truth.index[truth["awkwardness"] == awkwardness]
+    return series_id
+
+
+def on_grid(series_id: str) -> pd.Series:
+    """A series' values on its recorded grid (``n`` steps to the shared last date): NaN where the
+    file has no row or an empty cell."""
+    row = read_truth().loc[series_id]
+    table = pd.read_csv(PORTFOLIO, dtype={"series_id": str, "timestamp": str})
+    rows = table[table["series_id"] == series_id]
+    grid = pd.date_range(end=END[row["frequency"]], periods=row["n"], freq=PANDAS_FREQ[row["frequency"]])
+    values = pd.Series(rows["value"].to_numpy(), index=pd.DatetimeIndex(rows["timestamp"]))
+    assert values.index.isin(grid).all(), series_id
+    return values.reindex(grid)
+
+
+def missing_runs(missing: np.ndarray) -> list[tuple[int, int]]:
+    """(start, length) of each run of True in ``missing``."""
+    edges = np.diff(np.r_[0, missing.astype(int), 0])
+    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+    return [(int(a), int(b - a)) for a, b in zip(starts, ends)]
+
+
+def demand_class(values: np.ndarray) -> tuple[float, float, str]:
+    """ADI, CV² and class of a demand series (Syntetos, Boylan & Croston 2005).
+
+    ADI is the mean interval between successive non-zero demands; CV² the squared coefficient
+    of variation of the non-zero sizes (population variance over squared mean).
+    """
+    demand_at = np.flatnonzero(values > 0)
+    sizes = values[demand_at]
+    adi = float(np.mean(np.diff(demand_at)))
+    cv2 = float(np.var(sizes) / np.mean(sizes) ** 2)
+    rare, varied = adi > ADI_CUTOFF, cv2 > CV2_CUTOFF
+    label = {(False, False): "smooth", (False, True): "erratic", (True, False): "intermittent", (True, True): "lumpy"}
+    return adi, cv2, label[rare, varied]
 
 
 def arma_of(row: pd.Series) -> ArmaProcess:
@@ -121,7 +176,10 @@ def test_truth_and_portfolio_name_the_same_series():
 def test_truth_rows_agree_with_the_portfolio_and_themselves():
     truth, values = read_truth(), read_values()
     for sid, row in truth.iterrows():
-        missing_rows = GAP_RUN if row["awkwardness"] == "gap" else 0
+        if row["awkwardness"] == "dropouts":
+            missing_rows = int(on_grid(sid).index.size - values[sid].size)  # checked in its own test
+        else:
+            missing_rows = GAP_RUN if row["awkwardness"] == "gap" else 0
         assert values[sid].size == row["n"] - missing_rows, sid
         coefficients = json.loads(row["coefficients"])
         orders = [len(coefficients[key]) for key in ("ar", "ma", "seasonal_ar", "seasonal_ma")]
@@ -175,8 +233,94 @@ def test_prepare_series_accepts_all_but_the_deliberately_bad_ones():
         if row["awkwardness"] == "gap":
             assert prepared.flags == ["gaps", "long_gap"]
             assert (prepared.gaps_filled, prepared.long_gaps) == (GAP_RUN + 1, 1)
+        elif row["awkwardness"] == "dropouts":
+            runs = missing_runs(on_grid(raw.series_id).isna().to_numpy())
+            long_runs = sum(1 for _, length in runs if length > SHORT_GAP_MAX)
+            assert prepared.flags == ["gaps", "long_gap"] if long_runs else ["gaps"]
+            assert (prepared.gaps_filled, prepared.long_gaps) == (sum(length for _, length in runs), long_runs)
         else:
             assert prepared.flags == [], raw.series_id
+
+
+def test_dropout_channel_misses_days_in_short_scattered_runs_of_both_kinds():
+    series_id = series_of("dropouts")
+    values = on_grid(series_id)
+    missing = values.isna().to_numpy()
+    runs = missing_runs(missing)
+    present_rows = set(pd.read_csv(PORTFOLIO, dtype=str).query("series_id == @series_id")["timestamp"])
+    absent = {stamp.strftime("%Y-%m-%d") not in present_rows for stamp in values.index[missing]}
+
+    assert DROPOUT_SHARE[0] <= missing.mean() <= DROPOUT_SHARE[1]
+    assert all(DROPOUT_RUN[0] <= length <= DROPOUT_RUN[1] for _, length in runs)
+    assert not missing[0] and not missing[-1]  # a missing end would shorten the series, not leave a gap
+    assert absent == {True, False}  # some days have no row, others an empty value cell
+    # Scattered: missing days in every quarter of the series, not bunched in one stretch.
+    assert all(quarter.any() for quarter in np.array_split(missing, 4))
+
+
+def test_dropout_channel_keeps_its_recorded_autocorrelation():
+    """Lag-1 autocorrelation from the pairs of days both observed, against the recorded AR(1)."""
+    series_id = series_of("dropouts")
+    row = read_truth().loc[series_id]
+    x = on_grid(series_id).to_numpy()
+    centred = x - np.nanmean(x)
+    products = centred[1:] * centred[:-1]
+    pairs = int(np.count_nonzero(~np.isnan(products)))
+    r1 = np.nansum(products) / pairs / np.nanmean(centred**2)
+    rho = arma_of(row).acf(lags=THEORY_LAGS)
+    assert abs(r1 - rho[1]) < 3 * np.sqrt(bartlett_variance(rho, 1, pairs)), (r1, rho[1])
+
+
+def test_intermittent_series_is_mostly_zeros_and_intermittent_in_the_sbc_classification():
+    series_id = series_of("intermittent")
+    row = read_truth().loc[series_id]
+    y = on_grid(series_id).to_numpy()
+    coefficients = json.loads(row["coefficients"])
+
+    assert not np.isnan(y).any()
+    assert (y >= 0).all() and (y == np.round(y)).all()
+    assert ZERO_SHARE[0] <= (y == 0).mean() <= ZERO_SHARE[1]
+    assert row["process"] == "intermittent demand"
+    assert [row[c] for c in ("order_p", "order_d", "order_q", "seasonal_P", "seasonal_D", "seasonal_Q")] == [0] * 6
+    # Sizes are 1 + Poisson(extra_size_mean); the share of demand days is Bernoulli(demand_probability).
+    p, size_mean = coefficients["demand_probability"], 1 + coefficients["extra_size_mean"]
+    demand = y[y > 0]
+    assert abs(demand.size / y.size - p) < 3 * np.sqrt(p * (1 - p) / y.size)
+    assert abs(demand.mean() - size_mean) < 3 * np.sqrt(coefficients["extra_size_mean"] / demand.size)
+    adi, cv2, label = demand_class(y)
+    assert (label, adi > ADI_CUTOFF) == ("intermittent", True), (adi, cv2)
+
+
+@pytest.mark.parametrize(("values", "expected"), [
+    ([3, 4, 3, 5, 4, 0, 3, 4], "smooth"),
+    ([1, 9, 1, 12, 0, 1, 10, 1], "erratic"),
+    ([2, 0, 0, 2, 0, 0, 3, 0, 0, 2], "intermittent"),
+    ([1, 0, 0, 9, 0, 0, 1, 0, 0, 12], "lumpy"),
+])
+def test_demand_class_of_hand_made_series(values, expected):
+    assert demand_class(np.asarray(values, dtype=float))[2] == expected
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("awkwardness", ["gap", "dropouts", "outlier", "level_shift", "intermittent"])
+def test_the_engine_flags_each_awkward_series_it_analyses_and_says_why(awkwardness):
+    series_id = series_of(awkwardness)
+    raw = next(s for s in read_portfolio(PORTFOLIO).series if s.series_id == series_id)
+    analysis = identify_series(raw.values, raw.series_id, lines=raw.lines).to_analysis()
+    expected_flag = {"gap": Flag.LONG_GAP, "dropouts": Flag.GAPS, "outlier": Flag.OUTLIERS,
+                     "level_shift": Flag.LEVEL_SHIFT, "intermittent": Flag.INTERMITTENT_DEMAND}[awkwardness]
+
+    assert analysis.confidence != Confidence.FIRM
+    assert expected_flag in analysis.flags
+    assert analysis.confidence_reasons
+    if awkwardness in ("outlier", "level_shift"):
+        kind = InterventionKind.ADDITIVE if awkwardness == "outlier" else InterventionKind.LEVEL_SHIFT
+        defect_date = re.search(r"\d{4}-\d{2}-\d{2}", read_truth().loc[series_id, "description"]).group(0)
+        assert (kind, defect_date) in [(i.kind, i.timestamp) for i in analysis.interventions]
+    if awkwardness in ("gap", "dropouts"):
+        assert analysis.gaps_filled == int(on_grid(series_id).isna().sum())
+    if awkwardness == "intermittent":
+        assert any("intermittent" in note for note in analysis.data_notes)
 
 
 def readme_summary_rows() -> list[list[str]]:

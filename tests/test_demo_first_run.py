@@ -2,7 +2,7 @@
 hints run as typed, and Ctrl-C stops its server with exit status 0, from ``lagdesk demo`` and
 from ``make demo`` at a terminal.
 
-Slow: the demo portfolio (91 series) is analysed once for the module.
+Slow: the demo portfolio (93 series) is analysed once for the module.
 """
 
 from __future__ import annotations
@@ -84,7 +84,7 @@ def test_the_demo_names_the_series_it_could_not_analyse_and_its_hints_run_as_typ
 
     assert done.returncode == 0, done.stderr
     lines = done.stdout.splitlines()
-    assert lines[0] == "demo_data/portfolio.csv: 0 added, 0 updated, 89 unchanged, 2 rejected"
+    assert lines[0] == "demo_data/portfolio.csv: 0 added, 0 updated, 91 unchanged, 2 rejected"
     for series_id, message in sorted(refused.items()):
         assert f"  {series_id}: rejected at import: {message}" in lines
     hints = lines[lines.index("Next:") + 1:]
