@@ -88,3 +88,41 @@ def test_engine_flags_intermittent_demand_and_never_calls_it_firm():
     assert found.confidence.level != Confidence.FIRM
     assert any("Croston" in words for words in found.data_notes)
     assert found.to_analysis().data_notes == tuple(found.data_notes)
+
+
+@pytest.mark.parametrize(("demand_days", "label"), [(25, "intermittent"), (26, "smooth")])
+def test_the_interval_cut_off_is_1_32_inclusive(demand_days, label):
+    # 33 periods with 25 demands: ADI = 33 / 25 = 1.32 exactly, the cut-off of Syntetos, Boylan
+    # & Croston (2005), which counts as infrequent; with 26 demands ADI = 1.27. Equal sizes: CV² 0.
+    y = np.zeros(33)
+    y[:demand_days] = 4.0
+    found = classify_demand(y)
+    assert found is not None and found.label == label
+
+
+@pytest.mark.parametrize(("sizes", "label"), [
+    # sizes 1 and b alternate: CV² = ((b - 1) / (b + 1))^2, which crosses 0.49 (the cut-off of
+    # Syntetos, Boylan & Croston 2005) at b = 17 / 3; b = 5.5 gives 0.479, b = 6 gives 0.510.
+    ((1.0, 5.5), "intermittent"), ((1.0, 6.0), "lumpy"),
+])
+def test_the_size_variation_cut_off_is_0_49(sizes, label):
+    y = np.zeros(40)
+    y[::4] = np.tile(sizes, 5)  # ADI 4: infrequent
+    found = classify_demand(y)
+    assert found is not None
+    assert found.cv2 == pytest.approx(((sizes[1] - sizes[0]) / (sizes[1] + sizes[0])) ** 2)
+    assert found.label == label
+
+
+def test_mostly_zero_series_are_always_flagged_and_smooth_demand_never_is():
+    rng = np.random.default_rng(20)
+    index = pd.date_range("2023-01-02", periods=240, freq="D")
+    for k in range(6):
+        # 70% zeros: a demand on a day with probability 0.3, of 1 + Poisson(2) items.
+        sparse = np.where(rng.random(240) < 0.3, rng.poisson(2.0, 240) + 1, 0).astype(float)
+        found = identify_series(pd.Series(sparse, index), f"sparse/{k}")
+        assert Flag.INTERMITTENT_DEMAND in found.flags and found.confidence.level != Confidence.FIRM
+        # Smooth demand with the odd empty day: a demand on 95% of days, 20 + Poisson(5) items.
+        smooth = np.where(rng.random(240) < 0.95, rng.poisson(5.0, 240) + 20, 0).astype(float)
+        assert classify_demand(smooth).label == "smooth"
+        assert Flag.INTERMITTENT_DEMAND not in identify_series(pd.Series(smooth, index), f"smooth/{k}").flags
