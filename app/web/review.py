@@ -237,7 +237,8 @@ def review_page(
         "previous_id": previous_id,
         "next_id": next_id,
         "verdict": verdict,
-        "history": list(reversed(verdict_history(db, series_id))),
+        "verdict_words": model_words(verdict),
+        "history": [{**h, "model_words": model_words(h)} for h in reversed(verdict_history(db, series_id))],
         "record": record,
         "analysis": analysis,
         "preparation_problem": preparation_problem,
@@ -291,6 +292,24 @@ def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit) -
         "interventions": list(fit.interventions),
         "interventions_chosen": fit.chosen,
     }
+
+
+def model_words(decided: dict) -> str:
+    """What a decision chose besides its order, in words: the scale, the constant and the
+    interventions when the reviewer set them (empty for the analysis' own choices)."""
+    if decided["order"] is None:
+        return ""
+    transform = decided["transform"]
+    parts = []
+    if transform != "none":
+        parts.append("on log" if transform == "log" else f"on Box-Cox λ={transform['box_cox']:g}")
+    if decided["trend"] is not None:
+        parts.append("with constant" if decided["trend"] != "n" else "without constant")
+    chosen = decided.get("interventions")
+    if chosen is not None:
+        taken = [Intervention.from_dict(i) for i in chosen]
+        parts.append("interventions: " + ("; ".join(f"{i.kind.words()} at {i.timestamp}" for i in taken) if taken else "none"))
+    return ", ".join(parts)
 
 
 def intervention_choices(analysis: Analysis | None, verdict: dict, form: FormState) -> list[dict]:

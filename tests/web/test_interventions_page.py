@@ -119,6 +119,9 @@ def test_a_verdict_keeps_the_reviewers_interventions_and_the_export_hands_them_o
     assert record["parameters"] is not None
     history = _detail(client, SHIFTED)["history"]
     assert history[-1]["interventions"] == stored
+    page = client.get(f"/series/{quote(SHIFTED, safe='/')}").text
+    chosen_words = f"interventions: level shift at {_defect_date(SHIFTED)}; additive outlier at 2024-12-20"
+    assert page.count(chosen_words) == 2  # the current verdict and its history entry
 
 
 def test_the_review_page_offers_the_interventions_and_both_correlograms(client):
