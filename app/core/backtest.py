@@ -25,6 +25,13 @@ The check answers "does this order forecast well?" before a reviewer approves it
   against the simplest benchmark on the same origins.
 * **Coverage**: the share of the evaluated observations that fall inside the 80% and 95%
   intervals; a well-specified model comes close to the nominal levels.
+* **Interventions** (outliers, level shifts, temporary changes the analysis or the reviewer
+  took out; :mod:`app.core.interventions`): at each origin those before it are taken out of the
+  training window at their estimated sizes and their effects carried into the forecasts (a
+  level shift persists, a temporary change dies away), as the forecasting job of the hand-off
+  does with the exported ones; one after the origin is not yet known there and is left in the
+  actual values. The sizes were estimated on the whole series, a small look-ahead the check
+  accepts so that it checks the model the export hands on.
 * **Missing points** (NaN) stay missing: a training window with gaps is fitted by the exact
   likelihood, which skips them, and the Kalman filter forecasts from the observed points; a
   missing actual value is not scored (errors, MASE and coverage average over the points
@@ -46,6 +53,7 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -53,9 +61,11 @@ import pandas as pd
 from scipy.stats import norm
 from statsmodels.tsa.arima.model import ARIMA
 
+from app.core.analysis import Intervention
 from app.core.defaults import DEFAULT_ORIGINS
 from app.core.errors import OrderError
 from app.core.fitting import fit_candidate
+from app.core.interventions import effect_column
 from app.core.order import Order, validate_order
 from app.core.prepare import RECOMMENDED_POINTS, PreparedSeries
 from app.core.transform import TransformChoice, apply_transform, invert_transform
@@ -138,17 +148,28 @@ class IntervalForecast:
         return out
 
 
+def intervention_effects(interventions: Sequence[Intervention], length: int) -> np.ndarray:
+    """The summed effects of ``interventions`` over ``length`` steps (on the transformed scale)."""
+    effects = np.zeros(length)
+    for found in interventions:
+        effects += found.size * effect_column(found.kind, found.position, length)
+    return effects
+
+
 def forecast_order(
-    y: np.ndarray, model: Order, transform: TransformChoice, steps: int, levels: tuple[float, ...] = INTERVAL_LEVELS
+    y: np.ndarray, model: Order, transform: TransformChoice, steps: int, levels: tuple[float, ...] = INTERVAL_LEVELS,
+    interventions: Sequence[Intervention] = (),
 ) -> IntervalForecast:
     """Fit ``model`` to ``y`` (original scale) and forecast ``steps`` ahead with intervals.
 
     The fit is :func:`~app.core.fitting.fit_candidate` on the transformed series (exact ML on
-    the differenced data). The forecasts come from the same parameters put into the model of
-    the undifferenced series, whose state holds the differencing, so the Kalman filter
-    integrates the forecasts and their variances exactly.
+    the differenced data) with the effects of ``interventions`` (those within ``y``) taken out;
+    the effects are added back to the forecasts and their bounds. The forecasts come from the
+    same parameters put into the model of the undifferenced series, whose state holds the
+    differencing, so the Kalman filter integrates the forecasts and their variances exactly.
     """
-    z = apply_transform(y, transform)
+    effects = intervention_effects([i for i in interventions if i.position < y.size], y.size + steps)
+    z = apply_transform(y, transform) - effects[:y.size]
     fit = fit_candidate(z, model)
     params = np.array([p.value for p in fit.params])
     # fit.params are in statsmodels ARIMA's order (deterministic terms, AR, MA, seasonal AR,
@@ -158,7 +179,7 @@ def forecast_order(
         enforce_stationarity=False, enforce_invertibility=False,
     )
     prediction = levels_model.filter(params).get_forecast(steps)
-    mean = np.asarray(prediction.predicted_mean, dtype=float)
+    mean = np.asarray(prediction.predicted_mean, dtype=float) + effects[y.size:]
     se = np.asarray(prediction.se_mean, dtype=float)
     intervals = {}
     for level in levels:
@@ -300,6 +321,7 @@ def backtest_order(
     period: int | None,
     horizon: int | None = None,
     origins: int | None = None,
+    interventions: Sequence[Intervention] = (),
 ) -> Backtest:
     """Rolling-origin evaluation of ``model`` on the last part of ``prepared``.
 
@@ -317,6 +339,8 @@ def backtest_order(
     horizon, origins : int, optional
         Steps ahead and number of origins; defaults :func:`default_horizon` and
         :data:`DEFAULT_ORIGINS`.
+    interventions : sequence of Intervention, optional
+        Taken out at their sizes where they precede an origin (see the module notes).
 
     Raises
     ------
@@ -342,6 +366,9 @@ def backtest_order(
             f"{model.label()} {h} steps ahead (needs at least {shortest + h})"
         )
     notes = []
+    if interventions:
+        notes.append("Taken out at their estimated sizes before each origin they precede, and carried into its forecasts: "
+                     + "; ".join(f"{i.kind.words()} at {i.timestamp}" for i in interventions) + ".")
     if count < wanted:
         notes.append(f"Only {count} of {wanted} origins fit: each training window needs at least {shortest} points.")
     runs = []
@@ -351,7 +378,7 @@ def backtest_order(
         runs.append(OriginForecast(
             origin=origin,
             actual=y[origin:origin + h],
-            forecast=forecast_order(training, model, transform, h),
+            forecast=forecast_order(training, model, transform, h, interventions=interventions),
             naive=seasonal_naive_forecast(training, h, m),
             scale=_nonzero_scale(training, m, prepared.series_id),
         ))
@@ -359,7 +386,8 @@ def backtest_order(
     return Backtest(
         series_id=prepared.series_id, model=model, transform=transform, m=m, horizon=h, origins=runs,
         history=prepared.to_series().iloc[y.size - shown:],
-        ahead=forecast_order(y, model, transform, h), ahead_index=future_index(prepared, h), notes=notes,
+        ahead=forecast_order(y, model, transform, h, interventions=interventions), ahead_index=future_index(prepared, h),
+        notes=notes,
     )
 
 

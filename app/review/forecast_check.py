@@ -129,8 +129,10 @@ def backtest_series(
 
     The deterministic term is the one the engine gives the order
     (:meth:`app.core.analysis.Analysis.model_for`); the transform defaults to the stored
-    analysis' (none without an analysis). The naive benchmark and the MASE scale use the
-    model's seasonal period, else the period the analysis examined.
+    analysis' (none without an analysis), and on the analysis' scale its interventions are taken
+    out as the hand-off takes them out (:func:`app.core.backtest.backtest_order`). The naive
+    benchmark and the MASE scale use the model's seasonal period, else the period the analysis
+    examined.
 
     Returns
     -------
@@ -170,7 +172,8 @@ def backtest_series(
         return remembered
     try:
         with threadpool_limits(limits=1):
-            check = backtest_order(prepared, model, choice, period, horizon=horizon, origins=origins)
+            check = backtest_order(prepared, model, choice, period, horizon=horizon, origins=origins,
+                                   interventions=analysis.interventions_on(choice) if analysis else ())
     except NUMERICAL_FAILURES as exc:
         raise LagdeskError(
             f"series {series_id!r}: the forecast check of {model.label()} failed ({type(exc).__name__}: {exc})"

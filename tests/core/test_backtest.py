@@ -18,6 +18,7 @@ import pytest
 from scipy.stats import binom, norm
 from threadpoolctl import threadpool_limits
 
+from app.core.analysis import Intervention
 from app.core.backtest import (
     DEFAULT_ORIGINS,
     NONSEASONAL_HORIZON,
@@ -32,6 +33,7 @@ from app.core.errors import OrderError
 from app.core.order import validate_order
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice
+from app.core.vocabulary import InterventionKind
 
 
 def _ar1(n: int, phi: float, seed: int, level: float = 0.0) -> np.ndarray:
@@ -163,3 +165,36 @@ def test_a_short_series_gets_fewer_origins_and_a_too_short_one_an_error():
     assert len(short.origins) == 2 and "Only 2 of 5 origins" in short.notes[0]
     with pytest.raises(OrderError, match="too few for a forecast check"):
         backtest_order(_prepared(_ar1(35, 0.5, seed=1)), model, NONE, period=None)
+
+
+def test_a_level_shift_before_the_origin_is_taken_out_and_carried_into_the_forecast():
+    # The intervention model y_t = z_t + ω S_t(T) (Box & Tiao 1975): forecasting y is forecasting
+    # z from the adjusted data and adding ω back, since the step stays on beyond T.
+    y = _ar1(200, 0.6, seed=5, level=10.0)
+    y[150:] += 5.0
+    shift = Intervention(150, "t150", InterventionKind.LEVEL_SHIFT, 5.0, 9.0)
+    model = validate_order([1, 0, 0], None)
+    with threadpool_limits(limits=1):
+        taken = forecast_order(y, model, TransformChoice("none"), 8, interventions=[shift])
+        adjusted = forecast_order(np.r_[y[:150], y[150:] - 5.0], model, TransformChoice("none"), 8)
+        before = forecast_order(y[:150], model, TransformChoice("none"), 8, interventions=[shift])
+        plain = forecast_order(y[:150], model, TransformChoice("none"), 8)
+    np.testing.assert_allclose(taken.mean, adjusted.mean + 5.0, rtol=1e-10)
+    for level in (0.8, 0.95):
+        np.testing.assert_allclose(np.asarray(taken.intervals[level]), np.asarray(adjusted.intervals[level]) + 5.0, rtol=1e-10)
+    np.testing.assert_array_equal(before.mean, plain.mean)  # a shift after the data is not yet known
+
+
+def test_the_check_of_a_shifted_series_scores_the_model_the_hand_off_uses():
+    y = _ar1(240, 0.5, seed=9, level=20.0)
+    y[120:] += 6.0
+    prepared = _prepared(y, freq="D")
+    shift = Intervention(120, str(prepared.index[120].date()), InterventionKind.LEVEL_SHIFT, 6.0, 20.0)
+    model = validate_order([1, 0, 0], None)
+    with threadpool_limits(limits=1):
+        modelled = backtest_order(prepared, model, TransformChoice("none"), None, interventions=[shift])
+        ignored = backtest_order(prepared, model, TransformChoice("none"), None)
+    # Left in, the mean of the stationary model sits between the two levels and every forecast
+    # after the shift is biased; taken out, the forecasts follow the new level.
+    assert modelled.mase < ignored.mase
+    assert any("level shift at" in note for note in modelled.notes)

@@ -147,3 +147,8 @@ def test_the_form_fits_a_custom_model_without_the_interventions_in_place(client)
     form["add_kind"] = "temporary_change"
     html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
     assert "your choice, sized with this order" in html and "<td>temporary change</td>" in html
+
+
+def test_the_forecast_check_takes_the_interventions_out_as_the_hand_off_does(client):
+    check = client.get(f"/api/series/{quote(SHIFTED, safe='/')}/backtest").json()
+    assert any(f"level shift at {_defect_date(SHIFTED)}" in note for note in check["notes"])
