@@ -131,3 +131,41 @@ def test_decide_takes_the_transform_constant_confirmation_and_not_arima(run_cli,
     jsonschema.validate(document, SCHEMA)
     assert [(o["series_id"], o["transform"], o["include_constant"]) for o in document["orders"]] == [(SID, "log", True)]
     assert [(r["series_id"], r["note"]) for r in document["not_arima"]] == [(other, "sensor swapped")]
+
+
+def test_decide_takes_the_reviewers_interventions_and_the_export_carries_them(run_cli, tmp_path):
+    db_path = tmp_path / "lagdesk.db"
+    values = 20.0 + np.random.default_rng(8).normal(size=N)
+    values[40:] += 6.0  # a level shift at the 41st week
+    run_cli("import", write_series(tmp_path / "v1.csv", values), "--db", db_path)
+    assert run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")[0] == 0
+    weeks = pd.date_range("2020-01-06", periods=N, freq="W-MON").strftime("%Y-%m-%d")
+    shift, odd = weeks[40], weeks[10]
+    # The engine's own shift, named again: the analysis' model, nothing of the reviewer's stored.
+    code, out, _ = run_cli("decide", SID, "override", "--order", "0,0,0", "--intervention", f"{shift}=level_shift",
+                           "--reviewer", "ann", "--json", "--db", db_path)
+    assert code == 0 and json.loads(out)["interventions"] is None
+    # With an outlier of the reviewer's as well, the set is the reviewer's, sized with the order:
+    # under white noise with a mean the sizes are least squares, so the shift is the difference
+    # of the means with the outlier's week left out.
+    code, out, _ = run_cli("decide", SID, "override", "--order", "0,0,0", "--intervention", f"{shift}=level_shift",
+                           "--intervention", f"{odd}=additive", "--reviewer", "ann", "--json", "--db", db_path)
+    assert code == 0
+    chosen = json.loads(out)["interventions"]
+    assert [(i["timestamp"], i["kind"]) for i in chosen] == [(odd, "additive"), (shift, "level_shift")]
+    before = np.r_[values[:10], values[11:40]]
+    assert chosen[1]["size"] == pytest.approx(values[40:].mean() - before.mean(), rel=1e-6)
+    target = tmp_path / "orders.json"
+    assert run_cli("export", "--db", db_path, "-o", target)[0] == 0
+    document = json.loads(target.read_text())
+    jsonschema.validate(document, SCHEMA)
+    assert [(i["timestamp"], i["kind"]) for i in document["orders"][0]["interventions"]] == [(odd, "additive"), (shift, "level_shift")]
+    with pytest.raises(SystemExit) as refused:  # argparse's own refusal of a malformed value
+        run_cli("decide", SID, "override", "--order", "0,0,0", "--intervention", "2020-01-06", "--reviewer", "ann")
+    assert refused.value.code == 2
+    for wrong, words in ((["--intervention", "1999-01-04=additive"], "is not a time of this series"),
+                         (["--no-interventions", "--intervention", f"{shift}=additive"], "not both")):
+        code, _, err = run_cli("decide", SID, "override", "--order", "0,0,0", *wrong, "--reviewer", "ann", "--db", db_path)
+        assert code == 2 and words in err, err
+    code, _, err = run_cli("decide", SID, "pending", "--no-interventions", "--reviewer", "ann", "--db", db_path)
+    assert code == 2 and "go with --order" in err
