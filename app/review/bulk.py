@@ -125,7 +125,7 @@ def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, no
         analysis = load_analysis(db, series_id)
         if verdict["status"] != VerdictStatus.PENDING or analysis is None or analysis.confidence != Confidence.FIRM:
             continue
-        if approval_risks(analysis.suggested):
+        if approval_risks(analysis.suggested, analysis.flags):
             continue
         suggested = analysis.suggested.order
         saved = set_verdict(

@@ -19,7 +19,7 @@ from app.core.order import Order, validate_order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
 from app.core.transform import TransformChoice, apply_transform
-from app.core.vocabulary import REVIEWER_STATUSES, VerdictStatus
+from app.core.vocabulary import REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
 from app.store.verdicts import get_verdict, set_verdict
@@ -77,14 +77,17 @@ def fails_ljung_box(candidate: Candidate) -> bool:
     return candidate.ljung_box_p is not None and candidate.ljung_box_p < RISKY_LJUNG_BOX_LEVEL
 
 
-def approval_risks(candidate: Candidate) -> list[str]:
+def approval_risks(candidate: Candidate, flags: Sequence[str] = ()) -> list[str]:
     """Why approving ``candidate`` with one key or click is risky, in words; empty when it is not.
 
-    A fit that did not converge, residuals that fail the Ljung-Box test at 1%, or coefficients
-    without a standard error (the information matrix could not be inverted): each asks for a
-    note saying why the order is approved anyway.
+    A fit that did not converge, residuals that fail the Ljung-Box test at 1%, coefficients
+    without a standard error (the information matrix could not be inverted), or a series the
+    analysis ``flags`` as intermittent or lumpy demand (Syntetos, Boylan & Croston 2005; a
+    Gaussian ARIMA suits it poorly): each asks for a note saying why the order is approved anyway.
     """
     risks = []
+    if Flag.INTERMITTENT_DEMAND in flags:
+        risks.append("the series is intermittent demand, which a Gaussian ARIMA suits poorly (or record it as not an ARIMA series)")
     if not candidate.converged:
         risks.append("the fit did not converge")
     if fails_ljung_box(candidate):
@@ -319,7 +322,7 @@ def decide(
                 f"'approved' means the suggested {analysis.suggested.label} on the analysis' scale "
                 f"({analysis.transform.name()}) with its own constant; use 'overridden' to change them"
             )
-        risks = approval_risks(candidate)
+        risks = approval_risks(candidate, analysis.flags)
         if risks and not note.strip():
             raise DecisionError(
                 f"series {series_id!r}: approving {candidate.label} needs a note saying why, as {'; '.join(risks)}"

@@ -113,6 +113,13 @@ def test_approving_a_risky_suggestion_needs_a_note_saying_why(db, changes, reaso
     assert (saved["status"], saved["note"]) == ("approved", "seasonal pattern is real")
 
 
+def test_approving_an_arima_for_intermittent_demand_needs_a_note(db):
+    suggested = load_analysis(db, AIR).suggested
+    risks = approval_risks(suggested, ("intermittent_demand",))
+    assert any("intermittent demand" in risk and "not an ARIMA series" in risk for risk in risks)
+    assert approval_risks(suggested, ("gaps",)) == approval_risks(suggested)
+
+
 def test_a_clean_suggestion_is_approved_without_a_note(db):
     analysis = load_analysis(db, AIR)
     suggested = analysis.suggested

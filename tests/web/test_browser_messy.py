@@ -61,6 +61,8 @@ def test_each_messy_case_is_caught_and_explained_on_its_review_page(page, live_s
         assert words in text, (series_id, words)
     detail = api(live_server, f"/api/series/{series_id}")
     assert detail["confidence"] != "firm", (series_id, detail["confidence_reasons"])
+    if defect == "intermittent":  # one-click approval of an ARIMA for it asks for a note
+        assert "needs a note" in page.inner_text("[data-key-approve]")
     page.screenshot(path=str(ARTIFACTS / f"messy-{defect.replace('_', '-')}.png"), full_page=True)
     assert_served_locally(page, live_server)
 

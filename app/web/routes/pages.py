@@ -116,7 +116,7 @@ def decision_context(page: dict) -> dict:
     analysis = page["analysis"]
     verdict = page["verdict"]
     return {
-        "approval_risks": approval_risks(analysis.suggested) if analysis else [],
+        "approval_risks": approval_risks(analysis.suggested, analysis.flags) if analysis else [],
         "model_fields": model_fields(verdict if page["choice"] == "custom" else {**verdict, "order": None}),
         "confirm_needed": False,
     }
