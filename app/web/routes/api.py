@@ -173,7 +173,7 @@ class VerdictIn(BaseModel):
     interventions: Interventions = None
     confirm: bool = Field(False, description="save an order whose residuals fail the Ljung-Box test at 1% anyway")
     note: Note = Field("", description=f"at most {MAX_NOTE_LENGTH:,} characters; needed to approve a suggestion "
-                       "that did not converge, fails Ljung-Box at 1% or lacks standard errors")
+                       "that did not converge, fails Ljung-Box at 1%, lacks standard errors or is for intermittent demand")
     reviewer: str = ""
     version: int = Field(ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
 
