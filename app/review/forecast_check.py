@@ -31,6 +31,7 @@ from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order, validate_order
 from app.core.transform import TransformChoice, apply_transform
 from app.jobs.order_fits import NUMERICAL_FAILURES, load_prepared
+from app.review.decisions import ChosenInterventions, reviewer_interventions, with_constant
 from app.store.analyses import load_analysis
 from app.store.series import series_fingerprint
 
@@ -42,7 +43,7 @@ MAX_COMPARED = 3
 # About 10 kB each (the plotted stretch and the forecasts): a megabyte or two at most.
 REMEMBERED_CHECKS = 128
 
-CheckKey = tuple[str, str, Order, str, int | None, int | None]
+CheckKey = tuple[str, str, Order, str, int | None, int | None, str]
 
 
 class RecentChecks:
@@ -77,9 +78,10 @@ RECENT_CHECKS = RecentChecks(REMEMBERED_CHECKS)
 
 
 def check_key(series_id: str, fingerprint: str, model: Order, choice: TransformChoice,
-              horizon: int | None = None, origins: int | None = None) -> CheckKey:
-    """What a check is filed under in :data:`RECENT_CHECKS` (``None``: the default horizon or origins)."""
-    return series_id, fingerprint, model, json.dumps(choice.to_json(), sort_keys=True), horizon, origins
+              horizon: int | None = None, origins: int | None = None, interventions: str = "") -> CheckKey:
+    """What a check is filed under in :data:`RECENT_CHECKS` (``None``: the default horizon or
+    origins; ``interventions``: a reviewer's set as text, empty for the analysis' own)."""
+    return series_id, fingerprint, model, json.dumps(choice.to_json(), sort_keys=True), horizon, origins, interventions
 
 
 class ForecastCheckTooLarge(LagdeskError):
@@ -121,6 +123,8 @@ def backtest_series(
     transform: str | dict | None = None,
     horizon: int | None = None,
     origins: int | None = None,
+    include_constant: bool | None = None,
+    interventions: ChosenInterventions | None = None,
 ) -> dict[str, Any]:
     """The forecast check of one order on a stored series.
 
@@ -128,9 +132,11 @@ def backtest_series(
     given); a seasonal order left out is none.
 
     The deterministic term is the one the engine gives the order
-    (:meth:`app.core.analysis.Analysis.model_for`); the transform defaults to the stored
-    analysis' (none without an analysis), and on the analysis' scale its interventions are taken
-    out as the hand-off takes them out (:func:`app.core.backtest.backtest_order`). The naive
+    (:meth:`app.core.analysis.Analysis.model_for`) unless ``include_constant`` says otherwise;
+    the transform defaults to the stored analysis' (none without an analysis); the
+    interventions are the reviewer's when given (time stamp and kind each, sized with the order
+    as :func:`app.review.decisions.fit_custom_order` sizes them), else the analysis' own on its
+    scale, taken out as the hand-off takes them out (:func:`app.core.backtest.backtest_order`). The naive
     benchmark and the MASE scale use the model's seasonal period, else the period the analysis
     examined.
 
@@ -164,16 +170,20 @@ def backtest_series(
     except (ValueError, OrderError) as exc:
         raise LagdeskError(f"series {series_id!r}: {exc}") from None
     model = analysis.model_for(order, seasonal_order)[0] if analysis else validate_order(order, seasonal_order)
+    model = with_constant(model, include_constant)
     period = model.period or (analysis.seasonal.examined_period if analysis else None)
     check_bounds(model, period, horizon, origins)
-    key = check_key(series_id, fingerprint, model, choice, horizon, origins)
+    chosen = reviewer_interventions(prepared, model, choice, analysis, interventions)
+    taken_out = chosen if chosen is not None else (analysis.interventions_on(choice) if analysis else ())
+    key = check_key(series_id, fingerprint, model, choice, horizon, origins,
+                    json.dumps([i.to_dict() for i in chosen]) if chosen is not None else "")
     remembered = RECENT_CHECKS.get(key)
     if remembered is not None:
         return remembered
     try:
         with threadpool_limits(limits=1):
             check = backtest_order(prepared, model, choice, period, horizon=horizon, origins=origins,
-                                   interventions=analysis.interventions_on(choice) if analysis else ())
+                                   interventions=taken_out)
     except NUMERICAL_FAILURES as exc:
         raise LagdeskError(
             f"series {series_id!r}: the forecast check of {model.label()} failed ({type(exc).__name__}: {exc})"

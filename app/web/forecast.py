@@ -13,6 +13,7 @@ from collections.abc import Sequence
 import sqlite_utils
 
 from app.core.analysis import Analysis
+from app.review.decisions import ChosenInterventions
 from app.review.forecast_check import backtest_series, compare_orders
 from app.web.charts import COMPARED_COLOURS, comparison_figure, forecast_figure
 from app.web.templating import number, percent
@@ -32,11 +33,15 @@ def beats_naive(check: dict) -> bool:
 
 
 def forecast_check_view(
-    db: sqlite_utils.Database, series_id: str, order: Sequence[int], seasonal_order: Sequence[int]
+    db: sqlite_utils.Database, series_id: str, order: Sequence[int], seasonal_order: Sequence[int],
+    transform: str | dict | None = None, include_constant: bool | None = None,
+    interventions: ChosenInterventions | None = None,
 ) -> dict:
-    """The forecast check of ``order`` x ``seasonal_order`` on the stored series, for the page:
-    the chart shows the last :func:`shown_points` observations, then the forecast beyond the data."""
-    check = backtest_series(db, series_id, order, seasonal_order)
+    """The forecast check of ``order`` x ``seasonal_order`` on the stored series (with a custom
+    model's transform, constant and interventions when given), for the page: the chart shows the
+    last :func:`shown_points` observations, then the forecast beyond the data."""
+    check = backtest_series(db, series_id, order, seasonal_order, transform,
+                            include_constant=include_constant, interventions=interventions)
     return {
         **check,
         "beats_naive": beats_naive(check),

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from typing import Annotated, Literal
+from urllib.parse import urlencode
 
 from pydantic import BaseModel, Field
 
@@ -23,29 +24,15 @@ Decision = tuple[str, list[int] | None, list[int] | None, str | dict | None, boo
 InterventionKindField = Literal["additive", "level_shift", "temporary_change"]
 
 
-class DecisionForm(BaseModel):
-    """The fields of the decision form.
-
-    ``action``: ``approve`` (the suggestion), ``save`` (the chosen candidate or custom order),
-    ``park`` (decide later), ``reopen`` (back to pending), ``not_arima`` (no ARIMA order suits
-    the series) or ``fit`` (fit the custom order and show it, saving nothing).
-    ``choice``: a candidate's rank (``"1"`` is the suggestion) or ``"custom"``; ``transform``
-    (blank: the analysis', ``none``, ``log``, ``box_cox`` with ``lam``) and ``constant`` (blank:
-    the engine's term, ``yes``, ``no``) go with the custom order, and so do the interventions:
-    ``interventions`` are the ticked ones (``TIMESTAMP|KIND``), ``add_at`` and ``add_kind`` one
-    more, and ``interventions_shown`` says the form offered them (without it the analysis' own
-    are kept). ``confirm`` saves an order whose residuals fail the Ljung-Box test at 1%.
+class CustomModel(BaseModel):
+    """What goes with a custom order besides the order itself: ``transform`` (blank: the
+    analysis', ``none``, ``log``, ``box_cox`` with ``lam``), ``constant`` (blank: the engine's
+    term, ``yes``, ``no``) and the interventions: ``interventions`` are the ticked ones
+    (``TIMESTAMP|KIND``), ``add_at`` and ``add_kind`` one more, and ``interventions_shown`` says
+    the form offered them (without it the analysis' own are kept). The decision form sends them,
+    and the forecast check of a custom fit takes them as query parameters.
     """
 
-    action: Literal["approve", "save", "park", "reopen", "not_arima", "fit"] = "save"
-    choice: str = SUGGESTION_KEY
-    p: str = ""
-    d: str = ""
-    q: str = ""
-    P: str = "0"
-    D: str = "0"
-    Q: str = "0"
-    s: str = "0"
     transform: Literal["", "none", "log", "box_cox"] = ""
     lam: str = ""
     constant: Literal["", "yes", "no"] = ""
@@ -53,17 +40,6 @@ class DecisionForm(BaseModel):
     interventions_shown: bool = False
     add_at: str = Field("", max_length=64)
     add_kind: InterventionKindField = "additive"
-    confirm: bool = False
-    note: str = ""
-    reviewer: str = ""
-    version: Annotated[int, Field(ge=0, le=SQLITE_MAX_INTEGER)] = 0
-    fragment: bool = False
-
-    def custom_fields(self) -> dict:
-        """What was typed for the custom model: the order fields, the transform, the constant and
-        the interventions."""
-        return {name: getattr(self, name) for name in (*CUSTOM_FIELDS, "transform", "lam", "constant",
-                                                        "interventions", "interventions_shown", "add_at", "add_kind")}
 
     def chosen_interventions(self) -> list[dict] | None:
         """The interventions to take out with the custom model (time stamp and kind each), or
@@ -93,6 +69,44 @@ class DecisionForm(BaseModel):
         except ValueError:
             raise DecisionError(f"Box-Cox needs a lambda (a number such as 0.5), not {self.lam!r}") from None
         return {"box_cox": lam}, CONSTANT_CHOICES[self.constant]
+
+    def query(self) -> str:
+        """These fields as a query string (those left at their defaults left out)."""
+        fields = self.model_dump(include=set(CustomModel.model_fields), exclude_defaults=True)
+        return urlencode({name: "true" if value is True else value for name, value in fields.items()}, doseq=True)
+
+
+class DecisionForm(CustomModel):
+    """The fields of the decision form.
+
+    ``action``: ``approve`` (the suggestion), ``save`` (the chosen candidate or custom order),
+    ``park`` (decide later), ``reopen`` (back to pending), ``not_arima`` (no ARIMA order suits
+    the series) or ``fit`` (fit the custom order and show it, saving nothing).
+    ``choice``: a candidate's rank (``"1"`` is the suggestion) or ``"custom"``; ``transform``
+    and the fields of :class:`CustomModel` go with the custom order. ``confirm`` saves an order
+    whose residuals fail the Ljung-Box test at 1%.
+    """
+
+    action: Literal["approve", "save", "park", "reopen", "not_arima", "fit"] = "save"
+    choice: str = SUGGESTION_KEY
+    p: str = ""
+    d: str = ""
+    q: str = ""
+    P: str = "0"
+    D: str = "0"
+    Q: str = "0"
+    s: str = "0"
+    confirm: bool = False
+    note: str = ""
+    reviewer: str = ""
+    version: Annotated[int, Field(ge=0, le=SQLITE_MAX_INTEGER)] = 0
+    fragment: bool = False
+
+    def custom_fields(self) -> dict:
+        """What was typed for the custom model: the order fields, the transform, the constant and
+        the interventions."""
+        return {name: getattr(self, name) for name in (*CUSTOM_FIELDS, "transform", "lam", "constant",
+                                                        "interventions", "interventions_shown", "add_at", "add_kind")}
 
     def custom_order(self) -> tuple[list[int], list[int]]:
         """The typed custom order; blank seasonal fields mean no season.

@@ -281,9 +281,10 @@ def review_page(
     return page
 
 
-def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit) -> dict:
+def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit, model_query: str = "") -> dict:
     """A custom-fitted order as a candidate view, on the same time axis as the stored ones, with
-    the interventions taken out for it."""
+    the interventions taken out for it; ``model_query`` carries its transform, constant and
+    interventions to its forecast check."""
     raw = load_series(db, series_id)
     labels = time_labels(prepare_series(raw, series_id).index)
     analysis = load_analysis(db, series_id)
@@ -291,6 +292,7 @@ def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit) -
         **candidate_view(fit.candidate, "custom", labels, analysis.marked_period if analysis else None),
         "interventions": list(fit.interventions),
         "interventions_chosen": fit.chosen,
+        "model_query": model_query,
     }
 
 

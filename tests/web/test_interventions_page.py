@@ -133,11 +133,16 @@ def test_the_review_page_offers_the_interventions_and_both_correlograms(client):
     assert "As observed" in html
 
 
-def test_the_form_fits_a_custom_model_without_the_interventions_in_place(client):
-    body = _detail(client, SHIFTED)
-    order, seasonal = _suggested(body)
-    form = {"action": "fit", "choice": "custom", "p": order[0], "d": order[1], "q": order[2], "P": seasonal[0],
+def _suggestion_without_interventions(client) -> dict:
+    """The decision form fitting the suggested order of the shifted channel as a custom model,
+    with every intervention unticked."""
+    order, seasonal = _suggested(_detail(client, SHIFTED))
+    return {"action": "fit", "choice": "custom", "p": order[0], "d": order[1], "q": order[2], "P": seasonal[0],
             "D": seasonal[1], "Q": seasonal[2], "s": seasonal[3], "interventions_shown": "true", "fragment": "true"}
+
+
+def test_the_form_fits_a_custom_model_without_the_interventions_in_place(client):
+    form = _suggestion_without_interventions(client)
     html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
     assert "No interventions taken out." in html
     # Adding back exactly the analysis' own shift is the analysis' model again, with its sizes.
@@ -152,3 +157,14 @@ def test_the_form_fits_a_custom_model_without_the_interventions_in_place(client)
 def test_the_forecast_check_takes_the_interventions_out_as_the_hand_off_does(client):
     check = client.get(f"/api/series/{quote(SHIFTED, safe='/')}/backtest").json()
     assert any(f"level shift at {_defect_date(SHIFTED)}" in note for note in check["notes"])
+
+
+def test_the_forecast_check_of_a_custom_fit_uses_its_interventions(client):
+    form = _suggestion_without_interventions(client)
+    html = client.post(f"/series/{quote(SHIFTED, safe='/')}/fit", data=form).text
+    link = re.search(r'href="([^"]*forecast-check[^"]*)" data-forecast-check', html).group(1).replace("&amp;", "&")
+    assert "interventions_shown=true" in link
+    dropped = client.get(link + "&fragment=true").text
+    kept = client.get(link.replace("&interventions_shown=true", "") + "&fragment=true").text
+    when = _defect_date(SHIFTED)
+    assert f"level shift at {when}" not in dropped and f"level shift at {when}" in kept

@@ -42,7 +42,7 @@ from app.web.deps import (
 )
 from app.web.errors import status_of
 from app.web.forecast import forecast_check_view
-from app.web.forms import DecisionForm
+from app.web.forms import CustomModel, DecisionForm
 from app.web.queue import queue_page
 from app.web.review import FormState, custom_fit_view, review_page
 from app.web.security import check_csrf
@@ -140,12 +140,15 @@ def queue(request: Request, db: RunsDb, settings: Config, flt: Filter,
 
 @router.get("/series/{series_id:path}/forecast-check", name="forecast_check")
 def forecast_check(request: Request, db: Db, flt: Filter, series_id: str, order: str,
-                   seasonal: str = "0,0,0,0", fragment: bool = False) -> Response:
-    """The forecast check of an order (in place on the review page with JavaScript, as a page without)."""
+                   custom: Annotated[CustomModel, Query()], seasonal: str = "0,0,0,0", fragment: bool = False) -> Response:
+    """The forecast check of an order (in place on the review page with JavaScript, as a page
+    without), with a custom model's transform, constant and interventions when they are given."""
     try:
+        transform, include_constant = custom.model_choice()
         with computation_slot(request, series_id):
             check = forecast_check_view(
-                db, series_id, whole_numbers(order, 3, "order"), whole_numbers(seasonal, 4, "seasonal order")
+                db, series_id, whole_numbers(order, 3, "order"), whole_numbers(seasonal, 4, "seasonal order"),
+                transform, include_constant, custom.chosen_interventions(),
             )
     except UnknownSeries:
         raise
@@ -213,7 +216,7 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
         transform, include_constant = data.model_choice()
         with computation_slot(request, series_id):
             fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal, transform, include_constant,
-                                                                  data.chosen_interventions()))
+                                                                  data.chosen_interventions()), data.query())
     except UnknownSeries:
         raise
     except LagdeskError as exc:
