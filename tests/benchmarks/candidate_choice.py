@@ -6,10 +6,10 @@ two cores):
     .venv/bin/python tests/benchmarks/candidate_choice.py [--jobs 2] [--only NAME ...]
         [--out test-artifacts/candidate_choice.json]
 
-For each series of :mod:`real_series`, with the same holdout as ``real_forecasts.py``, Lagdesk
-identifies the training part and this script takes its first :data:`TOP` distinct candidates
-plus the leader's order with ``d`` one lower and one higher (each deterministic term the
-differencing allows). Every one of them is scored twice:
+For each series of :mod:`real_series` but the hourly ones, with the same holdout as
+``real_forecasts.py``, Lagdesk identifies the training part and this script takes its first
+:data:`TOP` distinct candidates plus the leader's order with ``d`` one lower and one higher
+(each deterministic term the differencing allows). Every one of them is scored twice:
 
 * **holdout**: fitted by statsmodels on the training part and scored on the held-out season,
   exactly as ``real_forecasts.py`` scores a method (``run_lagdesk``'s fit and forecast);
@@ -47,7 +47,7 @@ from pathlib import Path
 
 import numpy as np
 from real_forecasts import REPO, fit_order, forecast_fit, inverse_box_cox, split
-from real_series import RealSeries, real_series
+from real_series import GROUPS_WITHOUT_HOURLY, RealSeries, real_series
 from scipy.special import boxcox
 from threadpoolctl import threadpool_limits
 
@@ -162,7 +162,7 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--jobs", type=int, default=2)
     parser.add_argument("--out", type=Path, default=REPO / "test-artifacts" / "candidate_choice.json")
     args = parser.parse_args(argv)
-    entries = [e for e in real_series() if not args.only or e.name in args.only]
+    entries = [e for e in real_series(GROUPS_WITHOUT_HOURLY) if not args.only or e.name in args.only]
     started = time.perf_counter()
     rows = []
     for i, row in enumerate(evaluate_all(entries, args.jobs), 1):

@@ -2,7 +2,8 @@
 
 Run from the repository root (not collected by pytest; asserts nothing about time):
 
-    .venv/bin/python tests/benchmarks/portfolio.py [--quick]
+    .venv/bin/python tests/benchmarks/portfolio.py [--quick] [--skip SECTION ...]
+        [--out test-artifacts/portfolio.json]
 
 Every figure is measured in this one run, on seeded synthetic series, and printed beside the
 target it answers to:
@@ -27,9 +28,26 @@ target it answers to:
    (a full analysis of 10,000 series of 1,000 points takes hours on 2 cores; the sample's
    rate gives the estimate printed). Peak RSS of the parent and of each worker.
 4. The queue and review pages with 10,000 series in the store, by tests/web/bench_pages.py.
+5. End to end with process start-up (issue 17): 30 simulated non-seasonal series of 200 points
+   (tests/jobs/simulated_portfolio.py, 7 simple processes) written to a CSV file; ``lagdesk
+   identify FILE --workers 1 --json`` in a fresh process against the plain approach over the same
+   file in a fresh process (tests/benchmarks/plain_grid_probe.py: pandas reads the file,
+   statsmodels fits the grid, nothing of Lagdesk is imported). CPU seconds of each child process (``getrusage`` of the
+   children: with one worker Lagdesk runs in its own process, so nothing escapes the count),
+   wall seconds beside them, and the share of series whose suggestion is the simulated order.
+   Lagdesk runs :data:`END_TO_END_RUNS` times and the cheapest counts (the first run of a
+   fresh checkout compiles the likelihood, which an installed Lagdesk does once); the same
+   command on the first series alone shows how much of it is start-up.
+6. Start-up of the command line (issue 17): wall time of ``lagdesk --help`` and of ``lagdesk
+   status`` on a database holding the 30 series of 5, against a bare ``python -c pass`` of the
+   same interpreter; the median of :data:`STARTUP_RUNS` runs of each, interleaved.
 
-``--quick`` uses 1 replication instead of 3, a smaller identification sample in the memory
-probe and 50 points per series in the page benchmark's store.
+Every target is printed beside its figure and, with all the figures, written as JSON to
+``--out``. ``--quick`` uses 1 replication instead of 3 (so the comparison of 2 workers with 1
+sees 42 series, fewer than the 60 of its target), a smaller identification sample in the
+memory probe and 50 points per series in the page benchmark's store; sections 5 and 6 are the
+same in both (about a minute together on a quiet machine, 3 under a load of 5 on 2 cores; the
+plain approach takes most of it).
 """
 
 from __future__ import annotations
@@ -38,24 +56,29 @@ import argparse
 import json
 import os
 import resource
+import statistics
 import subprocess
 import sys
+import tempfile
 import time
 import warnings
+from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
 REPO = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(REPO / "tests" / "core"))
+sys.path[:0] = [str(REPO / "tests" / "core"), str(REPO / "tests" / "jobs")]
 
 from accuracy_batch import accuracy_batch, plain_bic_grid, score  # noqa: E402
+from simulated_portfolio import PROCESSES, write_portfolio_csv  # noqa: E402
 
 from app.core.correlogram import correlograms_by_length, lag_count, portfolio_correlograms  # noqa: E402
 from app.core.identify import EngineOptions  # noqa: E402
-from app.core.transform import TransformChoice, apply_transform  # noqa: E402
+from app.core.transform import apply_transform  # noqa: E402
 from app.jobs.executors import map_unordered  # noqa: E402
 from app.jobs.work import SeriesOutcome, SeriesTask, identify_task  # noqa: E402
 
@@ -72,6 +95,28 @@ LAGDESK_RUNS = 2
 LEADING_CANDIDATES = 2
 PAGE_SERIES = 10_000
 MB = 1024 * 1024
+END_TO_END_SERIES = 30
+END_TO_END_POINTS = 200
+END_TO_END_RUNS = 3
+STARTUP_RUNS = 7
+LAGDESK = Path(sys.executable).parent / "lagdesk"
+END_TO_END_TARGET = 10.0
+STARTUP_TARGET = 3.0
+WORKERS_TARGET = 1.7
+WORKERS_TARGET_SERIES = 60
+
+
+@dataclass
+class Report:
+    """The run's figures by section and every target beside its figure: the JSON of ``--out``."""
+
+    sections: dict[str, dict[str, Any]] = field(default_factory=dict)
+    targets: list[dict[str, Any]] = field(default_factory=list)
+
+    def target(self, what: str, measured: float, target: str, met: bool) -> str:
+        """Record a figure against its target and return the line that prints it."""
+        self.targets.append({"what": what, "measured": measured, "target": target, "met": met})
+        return f"   {what}: {measured:.2f}  (target {target}: {'met' if met else 'not met'})"
 
 
 def ar1_rows(rng: np.random.Generator, rows: int, n: int, integrate_every: int = 0) -> np.ndarray:
@@ -112,7 +157,7 @@ def statsmodels_loop(rows: np.ndarray, nlags: int) -> None:
         pacf(x, nlags=nlags, alpha=0.05, result_object=True)
 
 
-def bench_correlograms(rng: np.random.Generator) -> dict[int, float]:
+def bench_correlograms(rng: np.random.Generator, report: Report) -> None:
     heading(f"1. correlograms, {CORRELOGRAM_SERIES:,} series, ACF + PACF + 95% bands at lags 1..10 log10(n)")
     print("   target: vectorised >= 200x the statsmodels loop at n = 200, >= 100x at n = 1,000")
     ratios = {}
@@ -130,7 +175,9 @@ def bench_correlograms(rng: np.random.Generator) -> dict[int, float]:
             f"  (best of {VECTORISED_REPEATS})   statsmodels loop {CORRELOGRAM_SERIES / looped:>8,.0f} series/s (best of {LOOP_REPEATS})"
             f"   ratio x{ratios[n]:.0f}"
         )
-    return ratios
+        goal = 200 if n == CORRELOGRAM_LENGTHS[0] else 100
+        report.target(f"correlograms at n = {n}: vectorised / statsmodels loop", ratios[n], f">= {goal}", ratios[n] >= goal)
+    report.sections["correlograms"] = {"series": CORRELOGRAM_SERIES, "ratio_by_length": ratios}
 
 
 # --- 2. identification -----------------------------------------------------------------------
@@ -138,8 +185,8 @@ def bench_correlograms(rng: np.random.Generator) -> dict[int, float]:
 def engine_ranking(outcome: SeriesOutcome) -> tuple[list[tuple[int, int, int]], str, int]:
     if outcome.result is None:
         return [(-1, -1, -1)], "failed", 0
-    candidates = outcome.result["candidates"]
-    return [tuple(c["order"]) for c in candidates], outcome.result["confidence"], len(candidates)
+    candidates = outcome.result.candidates
+    return [c.order.order for c in candidates], str(outcome.result.confidence), len(candidates)
 
 
 def engine_score(truth, outcomes: list[SeriesOutcome]):
@@ -202,23 +249,24 @@ def loglik_shortfalls(batch, outcomes: list[SeriesOutcome]) -> list[tuple[float,
         for simulated, outcome in zip(batch, outcomes):
             if outcome.result is None:
                 continue
-            y = apply_transform(simulated.values, TransformChoice.from_json(outcome.result["transform"]))
-            for candidate in outcome.result["candidates"][:LEADING_CANDIDATES]:
+            y = apply_transform(simulated.values, outcome.result.transform)
+            for candidate in outcome.result.candidates[:LEADING_CANDIDATES]:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
-                    reference = ARIMA(y, order=tuple(candidate["order"]), trend=candidate["trend"]).fit()
-                label = f"{candidate['label']} trend {candidate['trend']} on {simulated.name}"
-                gaps.append((float(reference.llf) - candidate["loglik"], label))
+                    reference = ARIMA(y, order=candidate.order.order, trend=candidate.order.trend).fit()
+                label = f"{candidate.label} trend {candidate.order.trend} on {simulated.name}"
+                gaps.append((float(reference.llf) - candidate.loglik, label))
     return gaps
 
 
-def bench_identification(reps: int) -> None:
+def bench_identification(reps: int, report: Report) -> None:
     processes = len(accuracy_batch(ACCURACY_LENGTHS[0], 1))
     heading(f"2. full identification, accuracy batch: {processes} processes x {reps} at n = {' and '.join(map(str, ACCURACY_LENGTHS))}")
     print("   targets: Lagdesk 1 worker >= 8x the plain approach, 2 workers >= 14x, 2 workers >= 1.7x 1 worker;")
     print("            exact-order hit rate at least the plain approach's, exact and top-3 at least those without screening;")
     print("            deciding fits within 0.01 of statsmodels' log-likelihood")
     walls = np.zeros(3)
+    figures: dict[str, Any] = {"replications": reps}
     for n in ACCURACY_LENGTHS:
         batch = accuracy_batch(n, reps)
         truth = [s.order for s in batch]
@@ -249,10 +297,25 @@ def bench_identification(reps: int) -> None:
         print(f"     log-likelihood of the {LEADING_CANDIDATES} leading fits ({len(gaps)}) vs statsmodels ARIMA.fit(): "
               f"{sum(g > LOGLIK_TOLERANCE for g, _ in gaps)} short by more than {LOGLIK_TOLERANCE}; "
               f"largest shortfall {worst[0]:+.4f} ({worst[1]}), largest lead {-best[0]:+.4f}")
-    plain_wall, one_wall, two_wall = walls
+        figures[f"n={n}"] = {
+            "series": len(batch), "plain_wall_s": plain_wall, "one_worker_wall_s": one_wall, "two_workers_wall_s": two_wall,
+            "unscreened_wall_s": unscreened_wall, "one_worker_cpu_s": one_cpu, "two_workers_cpu_s": two_cpu,
+            "exact": {"plain": plain_score.exact, "lagdesk": one_score.exact, "unscreened": unscreened_score.exact},
+            "top3": {"plain": plain_score.top3, "lagdesk": one_score.top3, "unscreened": unscreened_score.top3},
+            "loglik_short": sum(g > LOGLIK_TOLERANCE for g, _ in gaps), "loglik_largest_shortfall": worst[0],
+        }
+    plain_wall, one_wall, two_wall = (float(w) for w in walls)
+    series = len(ACCURACY_LENGTHS) * processes * reps
     print(f"   * the faster of {LAGDESK_RUNS} alternating runs")
     print(f"   both lengths: plain {plain_wall:.1f} s; Lagdesk 1 worker {one_wall:.1f} s (x{plain_wall / one_wall:.1f}); "
           f"2 workers {two_wall:.1f} s (x{plain_wall / two_wall:.1f}, x{one_wall / two_wall:.2f} vs 1 worker)")
+    print(report.target(f"both lengths ({series} series): Lagdesk 1 worker / plain approach, wall", plain_wall / one_wall, ">= 8", plain_wall / one_wall >= 8))
+    print(report.target(f"both lengths ({series} series): Lagdesk 2 workers / plain approach, wall", plain_wall / two_wall, ">= 14", plain_wall / two_wall >= 14))
+    few = f", fewer than the target's {WORKERS_TARGET_SERIES}" if series < WORKERS_TARGET_SERIES else ""
+    print(report.target(f"both lengths ({series} series{few}): 2 workers against 1, wall", one_wall / two_wall, f">= {WORKERS_TARGET}",
+                        one_wall / two_wall >= WORKERS_TARGET))
+    figures["both"] = {"series": series, "plain_wall_s": plain_wall, "one_worker_wall_s": one_wall, "two_workers_wall_s": two_wall}
+    report.sections["identification"] = figures
 
 
 # --- 3. memory -------------------------------------------------------------------------------
@@ -264,7 +327,7 @@ def peak_rss_mb() -> float:
 def identify_with_peak(task: SeriesTask) -> tuple[int, float, bool]:
     """In a worker: identify, and report the result's JSON size and the worker's peak RSS."""
     outcome = identify_task(task)
-    size = len(json.dumps(outcome.result)) if outcome.result is not None else 0
+    size = len(json.dumps(outcome.result.to_dict())) if outcome.result is not None else 0
     return size, peak_rss_mb(), outcome.result is not None
 
 
@@ -297,7 +360,7 @@ def memory_probe(sample: int) -> dict:
     return figures
 
 
-def bench_memory(sample: int) -> None:
+def bench_memory(sample: int, report: Report) -> None:
     rows, n = MEMORY_SHAPE
     heading(f"3. memory, {rows:,} series x {n:,} points (fresh process)")
     print("   target: peak RSS under 1 GB during analysis (the data alone is ~80 MB)")
@@ -317,11 +380,14 @@ def bench_memory(sample: int) -> None:
           f"total at most {f['parent_peak_mb'] + 2 * f['worker_peak_mb']:.0f} MB")
     print(f"   a result is {f['result_kb']:.0f} kB of JSON, committed to the store as it lands, never held; "
           f"at the sample's rate ({rate:.2f} series/s) all {rows:,} series would take ~{rows / rate / 3600:.1f} h on 2 workers")
+    total = f["parent_peak_mb"] + 2 * f["worker_peak_mb"]
+    report.target("peak RSS, parent and 2 workers (MB)", total, "< 1024", total < 1024)
+    report.sections["memory"] = f
 
 
 # --- 4. pages --------------------------------------------------------------------------------
 
-def bench_pages(points: int) -> None:
+def bench_pages(points: int, report: Report) -> None:
     heading(f"4. queue and review pages, {PAGE_SERIES:,} series in the store (tests/web/bench_pages.py, {points} points each)")
     print("   target: the queue page answers in well under a second")
     script = REPO / "tests" / "web" / "bench_pages.py"
@@ -337,16 +403,110 @@ def bench_pages(points: int) -> None:
         return
     for line in run.stdout.strip().splitlines():
         print(f"   {line}")
+    report.sections["pages"] = {"points": points, "lines": run.stdout.strip().splitlines()}
+
+
+# --- 5. end to end with process start-up ------------------------------------------------------
+
+def children_cpu() -> float:
+    """CPU seconds of this process' finished children (and of theirs that they waited for)."""
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
+def run_child(command: list[str]) -> tuple[float, float, str]:
+    """Run ``command`` to its end: its CPU seconds, its wall seconds and its standard output.
+
+    Raises
+    ------
+    RuntimeError
+        When the command fails (with the last line it wrote to standard error).
+    """
+    cpu, start = children_cpu(), time.perf_counter()
+    done = subprocess.run(command, cwd=REPO, capture_output=True, text=True, check=False)
+    wall = time.perf_counter() - start
+    if done.returncode != 0:
+        last = done.stderr.strip().splitlines()[-1] if done.stderr.strip() else f"exit code {done.returncode}"
+        raise RuntimeError(f"{' '.join(command[:3])} ...: {last}")
+    return children_cpu() - cpu, wall, done.stdout
+
+
+def simulated_order(series_id: str) -> tuple[int, int, int]:
+    """The order that simulated a series of tests/jobs/simulated_portfolio.py (``sim/<i>/<process>``)."""
+    ar, ma, integrated = PROCESSES[series_id.rsplit("/", 1)[1]]
+    return (len(ar), integrated, len(ma))
+
+
+def exact_share(picks: dict[str, tuple[int, ...]]) -> float:
+    return float(np.mean([pick == simulated_order(series_id) for series_id, pick in picks.items()]))
+
+
+def identify_command(csv: Path) -> list[str]:
+    return [str(LAGDESK), "identify", str(csv), "--workers", "1", "--json"]
+
+
+def bench_end_to_end(csv: Path, report: Report) -> None:
+    heading(f"5. end to end with process start-up: {END_TO_END_SERIES} simulated non-seasonal series x {END_TO_END_POINTS} points, "
+            "each side a fresh process")
+    print(f"   target: Lagdesk (lagdesk identify --workers 1) >= {END_TO_END_TARGET:g}x less CPU than the plain approach")
+    plain_cpu, plain_wall, out = run_child([sys.executable, str(REPO / "tests" / "benchmarks" / "plain_grid_probe.py"), str(csv)])
+    plain = {series_id: tuple(order) for series_id, order in json.loads(out).items()}
+    runs = [run_child(identify_command(csv)) for _ in range(END_TO_END_RUNS)]
+    lagdesk_cpu, lagdesk_wall, out = min(runs)
+    lagdesk = {r["series_id"]: tuple(r["suggested"]["order"]) for r in json.loads(out)["series"]}
+    # Where Lagdesk's time goes: the same command on the first series alone is start-up plus one series.
+    frame = pd.read_csv(csv)
+    one = csv.with_name("one_series.csv")
+    frame[frame["series_id"] == frame["series_id"].iloc[0]].to_csv(one, index=False)
+    one_cpu = min(run_child(identify_command(one))[0] for _ in range(END_TO_END_RUNS))
+    print(f"     plain approach   CPU {plain_cpu:6.1f} s  wall {plain_wall:6.1f} s   exact order {exact_share(plain):.3f}")
+    print(f"     Lagdesk          CPU {lagdesk_cpu:6.1f} s  wall {lagdesk_wall:6.1f} s   exact order {exact_share(lagdesk):.3f}   "
+          f"(cheapest of {END_TO_END_RUNS} runs; CPU of all: {', '.join(f'{r[0]:.1f}' for r in runs)} s)")
+    print(f"       of which start-up and the first series {one_cpu:.1f} s (the same command on that series alone, cheapest of "
+          f"{END_TO_END_RUNS}), then {(lagdesk_cpu - one_cpu) / (END_TO_END_SERIES - 1):.2f} s per further series")
+    ratio = plain_cpu / lagdesk_cpu
+    print(report.target(f"{END_TO_END_SERIES} series end to end: plain CPU / Lagdesk CPU (wall x{plain_wall / lagdesk_wall:.1f})",
+                        ratio, f">= {END_TO_END_TARGET:g}", ratio >= END_TO_END_TARGET))
+    report.sections["end_to_end"] = {
+        "series": END_TO_END_SERIES, "points": END_TO_END_POINTS, "plain_cpu_s": plain_cpu, "plain_wall_s": plain_wall,
+        "lagdesk_cpu_s": lagdesk_cpu, "lagdesk_wall_s": lagdesk_wall, "lagdesk_cpu_s_runs": [r[0] for r in runs],
+        "lagdesk_one_series_cpu_s": one_cpu,
+        "exact": {"plain": exact_share(plain), "lagdesk": exact_share(lagdesk)},
+    }
+
+
+# --- 6. start-up of the command line ---------------------------------------------------------
+
+def bench_startup(csv: Path, folder: Path, report: Report) -> None:
+    heading(f"6. start-up of the command line: wall time, median of {STARTUP_RUNS} runs each, interleaved")
+    print(f"   target: lagdesk --help and lagdesk status within {STARTUP_TARGET:g}x a bare interpreter start")
+    db = folder / "startup.db"
+    for command in (["import", str(csv)], ["analyze", "--workers", "1"]):
+        run_child([str(LAGDESK), *command, "--db", str(db)])
+    commands = {"python -c pass": [sys.executable, "-c", "pass"], "lagdesk --help": [str(LAGDESK), "--help"],
+                "lagdesk status": [str(LAGDESK), "status", "--db", str(db)]}
+    walls: dict[str, list[float]] = {name: [] for name in commands}
+    for _ in range(STARTUP_RUNS):
+        for name, command in commands.items():
+            walls[name].append(run_child(command)[1])
+    medians = {name: statistics.median(times) for name, times in walls.items()}
+    bare = medians["python -c pass"]
+    for name, median in medians.items():
+        print(f"     {name:16s} {median:6.3f} s  (runs from {min(walls[name]):.3f} to {max(walls[name]):.3f} s)")
+    for name in ("lagdesk --help", "lagdesk status"):
+        print(report.target(f"{name} / python -c pass", medians[name] / bare, f"<= {STARTUP_TARGET:g}", medians[name] / bare <= STARTUP_TARGET))
+    report.sections["startup"] = {"runs": STARTUP_RUNS, "median_wall_s": medians, "status_db": f"{END_TO_END_SERIES} series, analysed"}
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="1 replication, smaller samples (a few minutes)")
     parser.add_argument("--reps", type=int, help="replications of every process in the accuracy batch (default 3, quick 1)")
-    parser.add_argument("--skip", nargs="*", default=[], choices=["correlograms", "identification", "memory", "pages"])
+    parser.add_argument("--skip", nargs="*", default=[], choices=["correlograms", "identification", "memory", "pages", "end-to-end", "startup"])
     parser.add_argument("--memory-sample", type=int, metavar="N",
                         help="series of the 10,000 x 1,000 portfolio identified in the memory probe (default 200, quick 20; 10000 for all)")
     parser.add_argument("--memory-probe", type=int, metavar="SAMPLE", help=argparse.SUPPRESS)
+    parser.add_argument("--out", type=Path, default=REPO / "test-artifacts" / "portfolio.json", help="where the figures go as JSON")
     args = parser.parse_args()
     if args.memory_probe:
         print(json.dumps(memory_probe(args.memory_probe)))
@@ -355,15 +515,33 @@ def main() -> None:
     started = time.perf_counter()
     print(f"Lagdesk portfolio benchmark{' (quick)' if args.quick else ''}: {os.cpu_count()} CPUs, {load_text()}, seed {SEED}")
     print("Ratios compare figures measured in this run; on a machine shared with other work they move with the load.")
+    report = Report()
     if "correlograms" not in args.skip:
-        bench_correlograms(np.random.default_rng(SEED))
+        bench_correlograms(np.random.default_rng(SEED), report)
     if "identification" not in args.skip:
-        bench_identification(reps)
+        bench_identification(reps, report)
     if "memory" not in args.skip:
-        bench_memory(args.memory_sample or (20 if args.quick else 200))
+        bench_memory(args.memory_sample or (20 if args.quick else 200), report)
     if "pages" not in args.skip:
-        bench_pages(50 if args.quick else 200)
-    print(f"\ndone in {time.perf_counter() - started:.0f} s ({load_text()})")
+        bench_pages(50 if args.quick else 200, report)
+    with tempfile.TemporaryDirectory(prefix="lagdesk-bench-") as folder:
+        csv = write_portfolio_csv(Path(folder) / "portfolio.csv", END_TO_END_SERIES, (END_TO_END_POINTS, END_TO_END_POINTS), SEED,
+                                  short_series=False)
+        if "end-to-end" not in args.skip:
+            bench_end_to_end(csv, report)
+        if "startup" not in args.skip:
+            bench_startup(csv, Path(folder), report)
+    wall = time.perf_counter() - started
+    print("\nTargets, measured in this run:")
+    for t in report.targets:
+        print(f"   {t['what']}: {t['measured']:.2f}  (target {t['target']}: {'met' if t['met'] else 'not met'})")
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.write_text(json.dumps({
+        "command": " ".join([".venv/bin/python", "tests/benchmarks/portfolio.py", *sys.argv[1:]]), "quick": args.quick,
+        "cpus": os.cpu_count(), "load_average_at_end": os.getloadavg(), "wall_seconds": round(wall, 1),
+        "sections": report.sections, "targets": report.targets,
+    }, indent=1, default=float))
+    print(f"\ndone in {wall:.0f} s ({load_text()}); JSON in {args.out}")
 
 
 if __name__ == "__main__":

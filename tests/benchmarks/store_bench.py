@@ -11,17 +11,20 @@ Prints the figures; asserts nothing about time.
 from __future__ import annotations
 
 import argparse
-import copy
+import dataclasses
 import json
 import statistics
 import tempfile
 import time
+from collections.abc import Callable
 from pathlib import Path
+from typing import TypeVar
 
 import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
+from app.core.analysis import Analysis
 from app.core.identify import identify_series
 from app.store.analyses import load_analysis, save_analysis
 from app.store.database import open_database, write_transaction
@@ -30,6 +33,7 @@ from app.store.series import list_series, load_series, series_fingerprint
 
 LOOKUPS = 500
 PAGES = 50
+T = TypeVar("T")
 
 
 def write_portfolio(path: Path, n_series: int, n_points: int, seed: int = 0) -> None:
@@ -48,13 +52,13 @@ def write_portfolio(path: Path, n_series: int, n_points: int, seed: int = 0) -> 
     }).to_csv(path, index=False)
 
 
-def timed(action) -> tuple[float, object]:
+def timed(action: Callable[[], T]) -> tuple[float, T]:
     start = time.perf_counter()
     outcome = action()
     return time.perf_counter() - start, outcome
 
 
-def median_ms(action, repeats: int) -> float:
+def median_ms(action: Callable[[], object], repeats: int) -> float:
     return 1000 * statistics.median(timed(action)[0] for _ in range(repeats))
 
 
@@ -87,9 +91,9 @@ def run(folder: Path, n_series: int, n_points: int) -> None:
 
     ids = [row[0] for row in db.execute("SELECT series_id FROM series ORDER BY series_id").fetchall()]
     with threadpool_limits(1):
-        template = identify_series(load_series(db, ids[0]), ids[0]).to_dict()
+        template = identify_series(load_series(db, ids[0]), ids[0]).to_analysis()
     seconds, _ = timed(lambda: save_all(db, ids, template))
-    print(f"save {len(ids)} analyses: {seconds:6.2f} s   ({len(json.dumps(template)) / 1e3:.0f} kB of JSON each)")
+    print(f"save {len(ids)} analyses: {seconds:6.2f} s   ({len(json.dumps(template.to_dict())) / 1e3:.0f} kB of JSON each)")
 
     picks = iter(np.random.default_rng(1).choice(ids, size=LOOKUPS * 2).tolist())
 
@@ -106,12 +110,10 @@ def run(folder: Path, n_series: int, n_points: int) -> None:
     db.close()
 
 
-def save_all(db, ids: list[str], template: dict) -> None:
+def save_all(db, ids: list[str], template: Analysis) -> None:
     with write_transaction(db):
         for sid in ids:
-            result = copy.deepcopy(template)
-            result["series_id"] = sid
-            save_analysis(db, sid, series_fingerprint(db, sid), result, None)
+            save_analysis(db, sid, series_fingerprint(db, sid) or "", dataclasses.replace(template, series_id=sid), None)
 
 
 if __name__ == "__main__":
