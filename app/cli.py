@@ -367,7 +367,7 @@ def _decide_options(decide: argparse.ArgumentParser) -> None:
         "--no-interventions", action="store_true", help="with --order: take none of the analysis' interventions out",
     )
     decide.add_argument(
-        "--confirm", action="store_true", help="save an order whose residuals fail the Ljung-Box test at 1% anyway",
+        "--confirm", action="store_true", help="save an order whose residuals fail the Ljung-Box test at 1%% anyway",
     )
     decide.add_argument(
         "--version", type=int, metavar="N",
@@ -650,7 +650,7 @@ def intervention_option(text: str) -> dict[str, str]:
 
 def run_decide(args: argparse.Namespace) -> int:
     from app.review.bulk import approve_firm
-    from app.review.decisions import decide
+    from app.review.decisions import ConfirmationNeeded, decide
     from app.review.filters import SeriesFilter
     from app.store.database import open_database
     from app.store.verdicts import get_verdict
@@ -685,12 +685,17 @@ def run_decide(args: argparse.Namespace) -> int:
             raise LagdeskError("--prefix goes with --all-firm")
         if args.action in ("pending", "not-arima") and args.order is not None:
             raise LagdeskError(f"{args.action} clears the series' order: give no --order")
+        if args.action == "override" and args.order is None:
+            raise LagdeskError("override needs the order: --order p,d,q (and --seasonal P,D,Q,s for a seasonal part)")
         version = args.version if args.version is not None else get_verdict(db, args.series_id)["version"]
-        verdict = decide(
-            db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,
-            note=args.note, reviewer=reviewer, version=version, transform=args.transform,
-            include_constant=args.include_constant, interventions=interventions, confirm=args.confirm,
-        )
+        try:
+            verdict = decide(
+                db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,
+                note=args.note, reviewer=reviewer, version=version, transform=args.transform,
+                include_constant=args.include_constant, interventions=interventions, confirm=args.confirm,
+            )
+        except ConfirmationNeeded as exc:
+            raise LagdeskError(f"{exc} with --confirm") from None
     _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
     return 0
 
@@ -787,10 +792,14 @@ def demo_next_steps(db_path: Path, status: dict) -> str:
     if missing:
         lines += [f"{len(missing)} could not be analysed; the queue lists them as not analysed, with the reason:",
                   *not_analysed_lines(status)]
+    kept = sum(n for state, n in status["verdicts"].items() if state != VerdictStatus.PENDING)
+    if kept:
+        lines.append(f"{kept} decision{'s' if kept > 1 else ''} from earlier runs kept; delete {db} to start afresh.")
+    lines += ["Next:", *(terminal_text(f"  {command.ljust(width)}  {what}") for command, what in steps)]
     script = lagdesk_script()
     if script is not None and (script.parent / "activate").is_file():
         lines.append(f"(Or run 'source {path_as_typed(script.parent / 'activate')}' once and type just {PROG}.)")
-    return "\n".join(lines + ["Next:"] + [terminal_text(f"  {command.ljust(width)}  {what}") for command, what in steps])
+    return "\n".join(lines)
 
 
 def _existing_db(explicit: str | None) -> Path:

@@ -30,6 +30,7 @@ from threadpoolctl import threadpool_limits
 from app.cli import (
     DECIDE_ACTIONS,
     build_parser,
+    demo_next_steps,
     identify_table,
     lagdesk_script,
     main,
@@ -726,6 +727,14 @@ def test_decide_does_not_create_a_database(run_cli, tmp_path):
     assert not db.exists()
 
 
+def test_the_demo_says_when_it_keeps_decisions_from_an_earlier_run(tmp_path):
+    status = {"series": 3, "analysed": 3, "confidence": {"firm": 3}, "not_analysed": [],
+              "verdicts": {"pending": 1, "approved": 1, "not_arima": 1}}
+    assert f"2 decisions from earlier runs kept; delete {tmp_path / 'x.db'} to start afresh." in demo_next_steps(tmp_path / "x.db", status)
+    fresh = demo_next_steps(tmp_path / "x.db", {**status, "verdicts": {"pending": 3, "approved": 0}})
+    assert "kept" not in fresh
+
+
 def test_decide_help_shows_both_forms_and_the_actions(capsys):
     with pytest.raises(SystemExit) as shown:
         main(["decide", "--help"])
@@ -734,6 +743,9 @@ def test_decide_help_shows_both_forms_and_the_actions(capsys):
     assert shown.value.code == 0
     assert "lagdesk decide SERIES_ID ACTION --reviewer NAME" in text and "lagdesk decide --all-firm [--prefix ID_PREFIX]" in text
     assert all(action in text for action in DECIDE_ACTIONS)
+    # A bare "%" in a help text makes argparse print its internals instead of the text.
+    assert "save an order whose residuals fail the Ljung-Box test at 1% anyway" in " ".join(text.split())
+    assert "option_strings" not in text
 
 
 def test_serve_takes_extra_host_names_for_the_host_check(tmp_path):

@@ -87,8 +87,10 @@ def test_the_demo_names_the_series_it_could_not_analyse_and_its_hints_run_as_typ
     assert lines[0] == "demo_data/portfolio.csv: 0 added, 0 updated, 91 unchanged, 2 rejected"
     for series_id, message in sorted(refused.items()):
         assert f"  {series_id}: rejected at import: {message}" in lines
-    hints = lines[lines.index("Next:") + 1:]
-    assert all(line.startswith(f"  {TYPED} ") for line in hints)
+    after = lines[lines.index("Next:") + 1:]
+    hints = [line for line in after if line.startswith("  ")]
+    assert hints and all(line.startswith(f"  {TYPED} ") for line in hints)
+    assert after[len(hints):] == [line for line in after if line.startswith("(Or run 'source ")]  # last, after the commands it shortens
     status_hint = next(line for line in hints if " status " in line)
     command = shlex.split(status_hint)[:4]  # the command, without the words that follow it
     assert command == [TYPED, "status", "--db", str(demo_db)]

@@ -117,7 +117,7 @@ def test_decide_takes_the_transform_constant_confirmation_and_not_arima(run_cli,
     # White noise around a mean for an AR(1) with phi = 0.95: statsmodels' Ljung-Box rejects.
     assert acorr_ljungbox(drifting - drifting.mean(), lags=[10], return_df=True)["lb_pvalue"].iloc[0] < 0.01
     code, out, err = run_cli("decide", other, "override", "--order", "0,0,0", "--reviewer", "ann", "--db", db_path)
-    assert (code, out) == (2, "") and len(err.splitlines()) == 1 and "confirm" in err
+    assert (code, out) == (2, "") and len(err.splitlines()) == 1 and "confirm to save it anyway with --confirm" in err
     assert run_cli("decide", other, "override", "--order", "0,0,0", "--confirm", "--reviewer", "ann", "--db", db_path)[0] == 0
     code, out, _ = run_cli("decide", other, "not-arima", "--note", "sensor swapped", "--reviewer", "ann", "--db", db_path)
     assert code == 0 and out.startswith(f"{other}: not_arima (version 2")

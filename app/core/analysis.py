@@ -272,7 +272,9 @@ class Analysis:
     ``candidates`` are ranked, the suggestion first; ``identified_on`` is the transformed,
     differenced series whose correlograms (``acf``, ``pacf``) were read, described by
     ``identified_label``; ``screened_out`` are the orders a cheap look put too far behind to fit
-    (``screen_margin``).
+    (``screen_margin``); ``demand_class`` is the Syntetos-Boylan-Croston class (smooth, erratic,
+    intermittent, lumpy) of a non-negative series with zeros (:mod:`app.core.demand`), None for
+    any other.
     """
 
     series_id: str
@@ -300,6 +302,7 @@ class Analysis:
     engine_version: str
     data_notes: tuple[str, ...] = ()
     interventions: tuple[Intervention, ...] = ()
+    demand_class: str | None = None
 
     @property
     def suggested(self) -> Candidate:
@@ -393,6 +396,7 @@ class Analysis:
             "engine_version": self.engine_version,
             "data_notes": list(self.data_notes),
             "interventions": [i.to_dict() for i in self.interventions],
+            "demand_class": self.demand_class,
         }
 
     @classmethod
@@ -431,6 +435,7 @@ class Analysis:
             screened_out=screened, screen_margin=float(data.get("screen_margin", 0.0)),
             engine_version=str(data.get("engine_version", "")), data_notes=tuple(data.get("data_notes", ())),
             interventions=tuple(Intervention.from_dict(i) for i in data.get("interventions", ())),
+            demand_class=data.get("demand_class"),
         )
 
 

@@ -87,7 +87,6 @@ DICKEY_FULLER_BIAS = 14.1
 # The near unit root; with DICKEY_FULLER_BIAS it sets MIN_DIFFERENCED_LENGTH = 282; not tuned.
 STATIONARY_ALTERNATIVE = 0.95
 MIN_DIFFERENCED_LENGTH = math.ceil(DICKEY_FULLER_BIAS / (1.0 - STATIONARY_ALTERNATIVE))
-_TREND_WORDS = {"n": "", "c": " with a mean", "t": " with a drift", "ct": " with a mean and a linear trend"}
 
 
 @dataclass
@@ -218,7 +217,7 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
     nesting = strongest_nesting_rival(ranked)
     if nesting is not None and nesting[1] < nested_level(best.nobs + best.model.lost_to_differencing):
         rival, p = nesting
-        words = _TREND_WORDS[rival.model.trend] if rival.model.trend != best.model.trend else ""
+        words = rival.model.term_words() if rival.model.trend != best.model.trend else ""
         reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test (p {_p_words(p)})")
     doubt = unit_root_doubt(best)
     if doubt is not None:

@@ -22,6 +22,7 @@ if TYPE_CHECKING:
 MAX_ORDER = 5
 MAX_SEASONAL_ORDER = 2
 TRENDS = ("n", "c", "t", "ct")
+TERM_WORDS = {"n": "", "c": " with a mean", "t": " with a drift", "ct": " with a mean and a linear trend"}
 # What validate_order accepts from a person or a program (the engine searches up to MAX_ORDER).
 TYPED_LIMITS = (("p", 10), ("d", 2), ("q", 10), ("P", 3), ("D", 1), ("Q", 3))
 _LABEL = re.compile(r"ARIMA\((\d+),(\d+),(\d+)\)(?:\((\d+),(\d+),(\d+)\)(\d+))?")
@@ -107,6 +108,11 @@ class Order:
         """``ARIMA(p,d,q)``, followed by ``(P,D,Q)s`` when the order has seasonal terms."""
         text = f"ARIMA({self.p},{self.d},{self.q})"
         return text + f"({self.P},{self.D},{self.Q}){self.s}" if self.s else text
+
+    def term_words(self) -> str:
+        """The deterministic term in words, with a leading space (empty for none): what tells
+        two models of the same orders apart."""
+        return TERM_WORDS[self.trend]
 
     def to_json(self) -> dict[str, Any]:
         return {"order": list(self.order), "seasonal_order": list(self.seasonal_order), "trend": self.trend}

@@ -48,7 +48,9 @@ ChosenInterventions = Sequence[Mapping[str, object]]
 @dataclass(frozen=True)
 class CustomFit:
     """A model fitted on request: its candidate statistics and the interventions taken out of
-    the series for it (with their sizes in this fit), ``chosen`` when the reviewer named them."""
+    the series for it, ``chosen`` when they were sized with this model (a set the reviewer named,
+    or the analysis' own under a model the analysis did not fit) rather than kept at the
+    analysis' sizes."""
 
     candidate: Candidate
     interventions: tuple[Intervention, ...]
@@ -210,22 +212,26 @@ def reviewer_interventions(
     prepared: PreparedSeries, model: Order, choice: TransformChoice, analysis: Analysis | None,
     interventions: ChosenInterventions | None,
 ) -> tuple[Intervention, ...] | None:
-    """The interventions a reviewer named, placed and sized with ``model`` on the ``choice``
-    scale; None when none were named or they are the analysis' own on its scale (the same time
-    and kind each), which keeps the analysis' sizes.
+    """The interventions to take out with ``model`` on the ``choice`` scale, sized jointly with it.
+
+    ``interventions`` names them (time stamp and kind each); None means the analysis' own. The
+    analysis sized its own under its leading order, so their sizes belong to the candidates it
+    fitted on its scale: for exactly such a model and exactly that set the answer is None (keep
+    the analysis' sizes and candidate). Any other model or set is sized anew
+    (:func:`app.core.chosen_interventions.sized_interventions`); a series without interventions
+    and none named is None as well.
 
     Raises
     ------
     OrderError
-        Naming the series and the item that does not fit it.
+        Naming the series and the item that does not fit it, or a fit that fails.
     """
+    own = {(i.position, i.kind) for i in analysis.interventions} if analysis is not None else set()
     if interventions is None:
-        return None
-    placed = place_interventions(prepared.series_id, prepared.index, prepared.values, interventions)
-    own = analysis.interventions_on(choice) if analysis is not None else ()
-    if analysis is not None and analysis.transform.to_json() == choice.to_json() and (
-        set(placed) == {(i.position, i.kind) for i in own}
-    ):
+        placed = sorted(own, key=lambda pk: pk[0])
+    else:
+        placed = place_interventions(prepared.series_id, prepared.index, prepared.values, interventions)
+    if set(placed) == own and (not own or _stored_candidate(analysis, model, choice) is not None):
         return None
     try:
         return tuple(sized_interventions(apply_transform(prepared.values, choice), model, placed, prepared.index))

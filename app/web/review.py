@@ -23,7 +23,7 @@ from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
 from app.core.transform import apply_transform
 from app.core.vocabulary import InterventionKind
-from app.review.decisions import CustomFit
+from app.review.decisions import CustomFit, fails_ljung_box
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import remembered_checks
 from app.store.analyses import analysis_record, load_analysis
@@ -166,6 +166,7 @@ def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: 
         "label": candidate.label,
         "source_words": source_words(candidate.source),
         "mase": check["mase"] if check else None,
+        "fails_ljung_box": fails_ljung_box(candidate),
         "residual_acf_chart": lag_chart(f"resid-acf-{key}", candidate.residual_acf, period, "residual ACF"),
         "residuals_chart": (
             line_chart(f"resid-{key}", _last(labels, len(residuals)), list(residuals), "residual", zero_line=True)

@@ -66,9 +66,18 @@ def test_saving_a_custom_order_that_fails_ljung_box_asks_for_confirmation(client
     refused = client.post(page(WALK, "/verdict"), data=custom)
     assert refused.status_code == 422
     assert "confirm to save it anyway" in refused.text and 'name="confirm"' in refused.text
+    assert "data-candidate-detail=\"custom\"" in refused.text  # the fit is shown again beside the tick
     assert get_verdict(db, WALK)["status"] == "pending"
     done = client.post(page(WALK, "/verdict"), data={**custom, "confirm": "true"}, follow_redirects=False)
     assert done.status_code == 303 and get_verdict(db, WALK)["order"] == [0, 0, 0]
+
+
+def test_the_fit_of_a_custom_order_that_fails_ljung_box_offers_the_confirmation_with_it(client):
+    fit = decision(action="fit", choice="custom", p="0", d="0", q="0", fragment="true")
+    shown = client.post(page(WALK, "/fit"), data=fit).text
+    assert 'data-confirm' in shown and 'name="confirm" value="true" form="decision"' in shown
+    passing = client.post(page(WALK, "/fit"), data={**fit, "d": "1"}).text  # the random walk's own order
+    assert "data-confirm" not in passing
 
 
 def test_the_custom_model_takes_a_transform_and_constant_and_keeps_them_on_the_page(client, db):

@@ -285,7 +285,7 @@ def test_review_page_shows_each_candidates_delta_aicc_within_its_differencing(cl
 
 
 def test_review_page_names_the_orders_screening_left_out(client, results):
-    screened = {series_id: [o.label() for o in r.screened_out] for series_id, r in results.items() if r.screened_out}
+    screened = {series_id: [o.label() + o.term_words() for o in r.screened_out] for series_id, r in results.items() if r.screened_out}
     assert screened, "the synthetic portfolio should have at least one series with a screened-out order"
     for series_id, labels in screened.items():
         text = html.unescape(client.get(page(series_id)).text)

@@ -201,10 +201,25 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
         decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
                reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
                interventions=interventions, confirm=data.confirm)
+    except ConfirmationNeeded as exc:
+        # The page comes back with the custom fit shown (and its tick beside it), as after Fit.
+        with computation_slot(request, series_id):
+            shown = _refit(db, series_id, data)
+        return _redraw(request, db, series_id, flt, data, status_of(exc), exc, shown)
     except LagdeskError as exc:
         return _redraw(request, db, series_id, flt, data, status_of(exc), exc)
     url = with_query(request.app.url_path_for("review", series_id=quote_path(next_id or series_id)), flt.query(saved=series_id))
     return remember_reviewer(RedirectResponse(url, status_code=303), reviewer)
+
+
+def _refit(db: sqlite_utils.Database, series_id: str, data: DecisionForm) -> dict | None:
+    """The custom model of the form fitted again for the page (None when the choice is a candidate)."""
+    if data.choice != "custom":
+        return None
+    order, seasonal = data.custom_order()
+    transform, include_constant = data.model_choice()
+    fit = fit_custom_order(db, series_id, order, seasonal, transform, include_constant, data.chosen_interventions())
+    return custom_fit_view(db, series_id, fit, data.query())
 
 
 @router.post("/series/{series_id:path}/fit", name="fit_custom")
@@ -212,11 +227,8 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
                data: Annotated[DecisionForm, Form()]) -> Response:
     """Fit the typed custom order and show it (in place with JavaScript, as a page without)."""
     try:
-        order, seasonal = data.custom_order()
-        transform, include_constant = data.model_choice()
         with computation_slot(request, series_id):
-            fit = custom_fit_view(db, series_id, fit_custom_order(db, series_id, order, seasonal, transform, include_constant,
-                                                                  data.chosen_interventions()), data.query())
+            fit = _refit(db, series_id, data.model_copy(update={"choice": "custom"}))
     except UnknownSeries:
         raise
     except LagdeskError as exc:
