@@ -38,8 +38,9 @@ from app.core.portfolio_file import (
 )
 from app.core.prepare import PreparedSeries, prepare_series
 from app.store.database import insert_row, utc_now, write_transaction
+from app.store.series import problem_reason
 from app.store.timestamps import DATETIME, index_from_keys, time_kind, timestamp_keys
-from app.store.verdicts import add_pending
+from app.store.verdicts import add_pending, mark_recheck
 
 _NOT_IN_FILE = -1  # the "line" of an observation that comes from the database, not the file
 
@@ -261,7 +262,24 @@ def _write(
         "fingerprint = :fingerprint, updated_import_id = :import_id WHERE series_id = :series_id",
         [_series_columns(p, report.import_id) for p in written if not p.is_new],
     )
+    _recheck_refused(db, report)
     return report
+
+
+def _recheck_refused(db: sqlite_utils.Database, report: ImportReport) -> None:
+    """Send a decided series whose new data this import refused back for a look: its order was
+    decided on the data still stored, which the file no longer agrees with, and nothing else
+    would say so once the import report is gone (:func:`app.store.verdicts.mark_recheck` leaves
+    undecided series alone)."""
+    ids = [r["series_id"] for r in report.rejected]
+    stored = {row[0] for row in db.execute(
+        f"SELECT series_id FROM series WHERE series_id IN ({', '.join('?' for _ in ids)})", ids)} if ids else set()
+    for problem in report.rejected:
+        if problem["series_id"] in stored:
+            reason = problem_reason(problem["series_id"], problem["message"], problem.get("row"))
+            line = f" (line {problem['row']})" if problem.get("row") else ""
+            mark_recheck(db, problem["series_id"],
+                         f"the import of {report.file} refused its new data{line}: {reason}; the stored data are older")
 
 
 def _series_columns(plan: _SeriesPlan, import_id: int) -> dict:

@@ -282,3 +282,18 @@ def test_an_import_landing_while_another_plans_is_merged_not_lost(fresh_db, writ
     import_portfolio(reference, write_csv("full.csv", {"a": full}))
     assert series_fingerprint(fresh_db, "a") == series_fingerprint(reference, "a")
     reference.close()
+
+
+def test_a_decided_series_whose_new_data_are_refused_comes_back_for_a_look(fresh_db, write_csv, monthly):
+    a, b = monthly(40), monthly(40)
+    import_portfolio(fresh_db, write_csv("first.csv", {"a": a, "b": b}))
+    approve(fresh_db, "a")
+    steps = pd.Series(a.to_numpy(), index=pd.Index(np.arange(1, 41)))  # the same values on a step axis: refused
+    report = import_portfolio(fresh_db, write_csv("second.csv", {"a": steps, "b": steps}))
+    assert {r["series_id"] for r in report.rejected} == {"a", "b"}
+    verdict = get_verdict(fresh_db, "a")
+    assert verdict["status"] == "recheck" and verdict["order"] == [1, 0, 0]
+    assert "the import of" in verdict["recheck_reason"] and "second.csv" in verdict["recheck_reason"]
+    assert "refused its new data (line 2)" in verdict["recheck_reason"]
+    assert verdict["recheck_reason"].count("'a'") == 0  # the series is not named twice in its own reason
+    assert get_verdict(fresh_db, "b")["status"] == "pending"  # undecided: still to be decided anyway
