@@ -7,6 +7,8 @@ import time
 from typing import TextIO
 
 REFRESH_SECONDS = 0.25
+# A rate measured over less than this says nothing (two series finishing together gave "22126.8/s").
+RATE_AFTER_SECONDS = 1.0
 
 
 class ProgressLine:
@@ -40,7 +42,7 @@ class ProgressLine:
         failed = f", {self.failed} failed" if self.failed else ""
         if self.done >= self.total:
             tail = f"  {self.done / max(elapsed, 1e-9):.1f}/s  {elapsed:.1f} s"
-        elif self.first_done is not None and self.done > 1:
+        elif self.first_done is not None and self.done > 1 and now - self.first_done >= RATE_AFTER_SECONDS:
             rate = (self.done - 1) / max(now - self.first_done, 1e-9)
             tail = f"  {rate:.1f}/s  ~{(self.total - self.done) / rate:.0f} s left"
         else:

@@ -51,3 +51,12 @@ def test_rate_and_time_left_leave_out_the_start_up_before_the_first_series(clock
     for _ in range(7):
         line.advance()
     assert line.text() == "demo: 10/10 series  0.3/s  32.0 s"  # the whole run, start-up included
+
+
+def test_no_rate_is_shown_before_a_second_has_passed_since_the_first_series(clock):
+    line = ProgressLine(3, "identify", io.StringIO())
+    clock.now = 2.0
+    line.advance()
+    clock.now = 2.0001  # a second series finishes at once (a rejected one, say)
+    line.advance()
+    assert line.text() == "identify: 2/3 series  2 s"
