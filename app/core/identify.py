@@ -158,6 +158,7 @@ class Identification:
     screened_out: list[Order] = field(default_factory=list)
     data_notes: list[str] = field(default_factory=list)
     interventions: list[Intervention] = field(default_factory=list)
+    demand_class: str | None = None
 
     @property
     def suggested(self) -> CandidateFit:
@@ -205,6 +206,7 @@ class Identification:
             identified_label=self.identified_label, gaps_filled=self.prepared.gaps_filled, criterion=self.criterion,
             candidates=with_deltas(candidates), screened_out=tuple(self.screened_out), screen_margin=SCREEN_MARGIN,
             engine_version=ENGINE_VERSION, data_notes=tuple(self.data_notes), interventions=tuple(self.interventions),
+            demand_class=self.demand_class,
         )
 
 
@@ -225,7 +227,8 @@ def resolve_period(prepared: PreparedSeries, option: int | str | None) -> tuple[
     if isinstance(option, str):
         raise SeriesProblem(prepared.series_id, f"period {option!r} is not auto, none or a whole number", flag="bad_period")
     try:
-        return validate_period(option, prepared.n, prepared.series_id), ([f"Seasonal period {option} as requested."] if option else [])
+        # The problem names the series; the period's own message need not name it again.
+        return validate_period(option, prepared.n), ([f"Seasonal period {option} as requested."] if option else [])
     except OrderError as exc:
         raise SeriesProblem(prepared.series_id, str(exc), flag="bad_period") from None
 
@@ -614,6 +617,7 @@ def _finished(
         pattern_words=seasonal.words + shown.words, candidates=ranked, data_notes=data_notes,
         confidence=score_confidence(ranked, flags, options.criterion, doubts), criterion=options.criterion, flags=flags,
         screened_out=[m for found in search.searches.values() for m in found.screened_out], interventions=interventions,
+        demand_class=demand.label if demand else None,
     )
 
 

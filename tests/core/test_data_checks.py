@@ -11,7 +11,8 @@ from accuracy_batch import simulate
 from scipy.stats import median_abs_deviation, norm
 
 from app.core.demand import classify_demand
-from app.core.identify import identify_series
+from app.core.errors import SeriesProblem
+from app.core.identify import EngineOptions, identify_series
 from app.core.residual_outliers import largest_residual, outlier_threshold, robust_scale
 from app.core.vocabulary import Confidence, Flag
 
@@ -88,6 +89,9 @@ def test_engine_flags_intermittent_demand_and_never_calls_it_firm():
     assert found.confidence.level != Confidence.FIRM
     assert any("Croston" in words for words in found.data_notes)
     assert found.to_analysis().data_notes == tuple(found.data_notes)
+    # The class travels with the result (the API and identify --json carry it as demand_class).
+    assert found.to_analysis().demand_class == "intermittent"
+    assert found.to_analysis().to_dict()["demand_class"] == "intermittent"
 
 
 @pytest.mark.parametrize(("demand_days", "label"), [(25, "intermittent"), (26, "smooth")])
@@ -126,3 +130,10 @@ def test_mostly_zero_series_are_always_flagged_and_smooth_demand_never_is():
         smooth = np.where(rng.random(240) < 0.95, rng.poisson(5.0, 240) + 20, 0).astype(float)
         assert classify_demand(smooth).label == "smooth"
         assert Flag.INTERMITTENT_DEMAND not in identify_series(pd.Series(smooth, index), f"smooth/{k}").flags
+
+
+def test_a_period_longer_than_the_series_is_refused_naming_the_series_once():
+    y = pd.Series(np.random.default_rng(2).normal(size=30), pd.date_range("2022-01-01", periods=30, freq="D"))
+    with pytest.raises(SeriesProblem) as refused:
+        identify_series(y, "plant/x", EngineOptions(period=40))
+    assert str(refused.value).count("plant/x") == 1 and "seasonal period 40 is not shorter than the series" in str(refused.value)
