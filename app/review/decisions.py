@@ -196,16 +196,23 @@ def fit_custom_order(
     analysis = load_analysis(db, series_id)
     model = with_constant(checked_order(analysis, prepared.n, order, seasonal_order), include_constant)
     choice = checked_transform(series_id, analysis, transform)
-    taken_out = reviewer_interventions(prepared, model, choice, analysis, interventions)
-    chosen = taken_out is not None
-    if taken_out is None:
-        taken_out = analysis.interventions_on(choice) if analysis else ()
+    sized = reviewer_interventions(prepared, model, choice, analysis, interventions)
+    taken_out = taken_out_with(analysis, choice, sized)
     fit = fit_stored_order(prepared, model, choice, taken_out).to_candidate()
-    comparable = analysis is not None and analysis.transform.to_json() == choice.to_json() and not chosen
+    comparable = analysis is not None and analysis.transform.to_json() == choice.to_json() and sized is None
     return CustomFit(
         replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if comparable and analysis else ())),
-        tuple(taken_out), chosen,
+        taken_out, sized is not None,
     )
+
+
+def taken_out_with(analysis: Analysis | None, choice: TransformChoice,
+                   sized: tuple[Intervention, ...] | None) -> tuple[Intervention, ...]:
+    """What a fit takes out of the series: the interventions :func:`reviewer_interventions`
+    sized, else the analysis' own on its scale."""
+    if sized is not None:
+        return sized
+    return analysis.interventions_on(choice) if analysis else ()
 
 
 def reviewer_interventions(
@@ -335,7 +342,7 @@ def decide(
             )
     elif status == VerdictStatus.OVERRIDDEN:
         if candidate is None:
-            taken_out = chosen if chosen is not None else (analysis.interventions_on(choice) if analysis else ())
+            taken_out = taken_out_with(analysis, choice, chosen)
             candidate = fit_and_keep(db, prepared, fingerprint, model, choice, taken_out).to_candidate(keep_residuals=False)
         if fails_ljung_box(candidate) and not confirm:
             assert candidate.ljung_box_p is not None

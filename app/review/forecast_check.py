@@ -31,7 +31,7 @@ from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order, validate_order
 from app.core.transform import TransformChoice, apply_transform
 from app.jobs.order_fits import NUMERICAL_FAILURES, load_prepared
-from app.review.decisions import ChosenInterventions, reviewer_interventions, with_constant
+from app.review.decisions import ChosenInterventions, reviewer_interventions, taken_out_with, with_constant
 from app.store.analyses import load_analysis
 from app.store.series import series_fingerprint
 
@@ -174,7 +174,7 @@ def backtest_series(
     period = model.period or (analysis.seasonal.examined_period if analysis else None)
     check_bounds(model, period, horizon, origins)
     chosen = reviewer_interventions(prepared, model, choice, analysis, interventions)
-    taken_out = chosen if chosen is not None else (analysis.interventions_on(choice) if analysis else ())
+    taken_out = taken_out_with(analysis, choice, chosen)
     key = check_key(series_id, fingerprint, model, choice, horizon, origins,
                     json.dumps([i.to_dict() for i in chosen]) if chosen is not None else "")
     remembered = RECENT_CHECKS.get(key)
