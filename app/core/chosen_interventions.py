@@ -1,9 +1,10 @@
-"""Interventions a reviewer chose: placed by time stamp and sized jointly with a chosen order.
+"""Interventions a reviewer chose: placed by time stamp, and kept at their time stamps.
 
 The engine finds outliers and level shifts itself (:mod:`app.core.interventions`); a reviewer
 may know better: a spike that was a real sale, a promotion the statistics missed, a
 recalibration logged on a known day. The reviewer names each intervention by its time stamp and
-kind; this module checks them against the series and estimates their sizes the way the engine
+kind; this module checks them against the series, and
+:func:`app.core.interventions.sized_interventions` estimates their sizes the way the engine
 estimates its own in stage II of Chen & Liu (1993): one regression column per intervention,
 passed through the Kalman filter of the exact likelihood together with the chosen order, so that
 the sizes are generalised least squares within the maximum-likelihood fit. Nothing is dropped
@@ -27,10 +28,7 @@ import pandas as pd
 
 from app.core.analysis import Intervention
 from app.core.errors import OrderError
-from app.core.fitting import difference, trend_design
-from app.core.interventions import MAX_SHARE, effect_column
-from app.core.likelihood import fit_arma
-from app.core.order import Order
+from app.core.interventions import MAX_SHARE
 from app.core.residual_outliers import moment
 from app.core.vocabulary import InterventionKind
 
@@ -87,48 +85,6 @@ def _position(series_id: str, index: pd.Index, stamp: str) -> int:
     if not isinstance(found, (int, np.integer)):
         raise OrderError(f"series {series_id!r}: {stamp!r} names more than one point; give the full time")
     return int(found)
-
-
-def sized_interventions(
-    y: np.ndarray, model: Order, placed: Sequence[tuple[int, InterventionKind]], index: pd.Index
-) -> list[Intervention]:
-    """The placed interventions with their sizes and ``t`` from a joint fit with ``model``.
-
-    Parameters
-    ----------
-    y : ndarray
-        The (transformed) series in levels, NaN where a value is missing.
-    model : Order
-        The chosen order with its deterministic term.
-    placed : sequence of (int, InterventionKind)
-        From :func:`place_interventions`.
-    index : pandas.Index
-        The series' time index.
-
-    Returns
-    -------
-    list of Intervention
-        In the order given; ``t`` is the size over its Hessian standard error (NaN where the
-        Hessian gives none).
-
-    References
-    ----------
-    .. [1] Chen, C. & Liu, L.-M. (1993), §3 (stage II: joint estimation).
-    """
-    if not placed:
-        return []
-    y = np.asarray(y, dtype=float)
-    names, trend = trend_design(y.size, model)
-    columns = difference(np.column_stack([effect_column(kind, position, y.size) for position, kind in placed]), model)
-    design = columns if trend is None else np.column_stack([trend, columns])
-    fit = fit_arma(difference(y, model), model.arma_spec(), design)
-    sizes = fit.beta[len(names):]
-    errors = fit.standard_errors[model.arma_spec().n_coefficients + len(names):]
-    return [
-        Intervention(position, moment(index[position]), kind, float(size),
-                     float(size / error) if np.isfinite(error) and error > 0 else float("nan"))
-        for (position, kind), size, error in zip(placed, sizes, errors)
-    ]
 
 
 def relocated(series_id: str, index: pd.Index, interventions: Sequence[Intervention]) -> list[Intervention]:

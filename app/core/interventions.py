@@ -48,7 +48,7 @@ References
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -295,6 +295,32 @@ def detect_interventions(y: np.ndarray, model: Order, estimate: ArmaFit, index: 
     return estimate_jointly(y, model, found, fit.unconstrained, index) if found else []
 
 
+def sized_interventions(
+    y: np.ndarray, model: Order, placed: Sequence[tuple[int, InterventionKind]], index: pd.Index,
+    start: np.ndarray | None = None,
+) -> list[Intervention]:
+    """The ``placed`` interventions (position, kind) with their sizes and ``t`` from one joint
+    fit with ``model`` (stage II of Chen & Liu 1993, §3, without dropping any).
+
+    ``y`` is the (transformed) series in levels, NaN where a value is missing; ``start`` an
+    optional start for the optimiser. ``t`` is the size over its Hessian standard error, NaN
+    where the Hessian gives none. In the order given.
+    """
+    if not placed:
+        return []
+    y = np.asarray(y, dtype=float)
+    fit = _fit(y, model, [effect_column(kind, position, y.size) for position, kind in placed],
+               np.zeros(0) if start is None else start)
+    n_trend = len(trend_design(y.size, model)[0])
+    sizes = fit.beta[n_trend:]
+    errors = fit.standard_errors[model.arma_spec().n_coefficients + n_trend:]
+    return [
+        Intervention(position, moment(index[position]), kind, float(size),
+                     float(size / error) if np.isfinite(error) and error > 0 else float("nan"))
+        for (position, kind), size, error in zip(placed, sizes, errors)
+    ]
+
+
 def estimate_jointly(
     y: np.ndarray, model: Order, found: Sequence[Intervention | _Found], start: np.ndarray, index: pd.Index
 ) -> list[Intervention]:
@@ -308,16 +334,11 @@ def estimate_jointly(
     y = np.asarray(y, dtype=float)
     threshold = detection_threshold(y.size)
     kept = sorted(found, key=lambda f: f.position)
-    n_trend = len(trend_design(y.size, model)[0])
-    k = model.arma_spec().n_coefficients
     while kept:
-        fit = _fit(y, model, [effect_column(f.kind, f.position, y.size) for f in kept], start)
-        sizes = fit.beta[n_trend:]
-        errors = fit.standard_errors[k + n_trend:]
-        t = np.array([s / e if np.isfinite(e) and e > 0 else f.t_stat for s, e, f in zip(sizes, errors, kept)])
+        sized = sized_interventions(y, model, [(f.position, f.kind) for f in kept], index, start)
+        t = np.array([s.t_stat if np.isfinite(s.t_stat) else f.t_stat for s, f in zip(sized, kept)])
         weakest = int(np.argmin(np.abs(t)))
         if abs(t[weakest]) > threshold:
-            return [Intervention(f.position, moment(index[f.position]), f.kind, float(s), float(ti))
-                    for f, s, ti in zip(kept, sizes, t)]
+            return [replace(s, t_stat=float(ti)) for s, ti in zip(sized, t)]
         kept.pop(weakest)
     return []

@@ -13,8 +13,9 @@ from dataclasses import dataclass, replace
 import sqlite_utils
 
 from app.core.analysis import Analysis, Candidate, Intervention, delta_aicc_against
-from app.core.chosen_interventions import place_interventions, sized_interventions
+from app.core.chosen_interventions import place_interventions
 from app.core.errors import LagdeskError, OrderError
+from app.core.interventions import sized_interventions
 from app.core.order import Order, validate_order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
@@ -183,7 +184,7 @@ def fit_custom_order(
     ``transform`` and ``include_constant`` default to the analysis' transform and the term the
     engine gives the order; ``interventions`` (time stamp and kind of each) to the analysis' own
     on its scale. Interventions the reviewer names are sized jointly with the order
-    (:func:`app.core.chosen_interventions.sized_interventions`), then taken out as the engine's
+    (:func:`app.core.interventions.sized_interventions`), then taken out as the engine's
     are. The candidate's ``source`` is ``custom`` and its ``delta_aicc`` compares it with the
     stored candidates of the same differencing and transform (None when there is none, or when
     other interventions make the series another one: criteria on other data do not compare).
@@ -225,7 +226,7 @@ def reviewer_interventions(
     analysis sized its own under its leading order, so their sizes belong to the candidates it
     fitted on its scale: for exactly such a model and exactly that set the answer is None (keep
     the analysis' sizes and candidate). Any other model or set is sized anew
-    (:func:`app.core.chosen_interventions.sized_interventions`); a series without interventions
+    (:func:`app.core.interventions.sized_interventions`); a series without interventions
     and none named is None as well.
 
     Raises

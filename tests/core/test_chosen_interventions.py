@@ -15,9 +15,9 @@ from statsmodels.datasets import nile
 from statsmodels.tsa.arima.model import ARIMA
 
 from app.core.analysis import Intervention
-from app.core.chosen_interventions import place_interventions, relocated, sized_interventions
+from app.core.chosen_interventions import place_interventions, relocated
 from app.core.errors import OrderError
-from app.core.interventions import effect_column
+from app.core.interventions import effect_column, sized_interventions
 from app.core.order import validate_order
 from app.core.vocabulary import InterventionKind
 
