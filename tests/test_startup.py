@@ -65,8 +65,11 @@ def portfolio_db(tmp_path) -> str:
 
 
 @pytest.mark.parametrize("output", [[], ["--json"]])
-def test_status_loads_no_engine_library(portfolio_db, output):
-    assert engine_libraries(imported_modules("-m", "app.cli", "status", "--db", portfolio_db, *output)) == []
+def test_status_loads_neither_the_engine_nor_pandas_nor_numpy(portfolio_db, output):
+    # sqlite-utils would import pandas and numpy itself; app.store hides them from that import.
+    modules = imported_modules("-m", "app.cli", "status", "--db", portfolio_db, *output)
+    assert engine_libraries(modules) == []
+    assert {"pandas", "numpy"} & modules == set()
 
 
 def test_export_loads_no_engine_library(portfolio_db, tmp_path):

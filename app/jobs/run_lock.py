@@ -13,10 +13,12 @@ import fcntl
 import os
 import threading
 from pathlib import Path
-
-import sqlite_utils
+from typing import TYPE_CHECKING
 
 from app.store.runs import interrupt_running_runs, running_run_ids
+
+if TYPE_CHECKING:
+    import sqlite_utils
 
 LOCK_SUFFIX = "-analysis.lock"
 

@@ -97,7 +97,9 @@ def open_database(path: str | Path) -> sqlite_utils.Database:
         conn = sqlite3.connect(path, timeout=BUSY_TIMEOUT_S, check_same_thread=False)
     except sqlite3.Error as exc:
         raise LagdeskError(f"{path}: cannot be opened ({exc})") from None
-    db = sqlite_utils.Database(conn)
+    # No sqlite-utils plugins: whatever happens to be installed beside Lagdesk must not change
+    # its connection (their discovery also costs a scan of every installed package).
+    db = sqlite_utils.Database(conn, execute_plugins=False)
     try:
         db.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_S * 1000}")
         db.execute("PRAGMA foreign_keys = ON")

@@ -8,15 +8,17 @@ from __future__ import annotations
 
 import json
 from collections.abc import Iterable
+from typing import TYPE_CHECKING
 
-import pandas as pd
 import sqlite_utils
 
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL
-from app.store.timestamps import index_from_keys
 from app.store.verdicts import STATUSES, verdict_counts
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 # Weakest first: the order the queue sorts and counts confidence levels in.
 CONFIDENCE_LEVELS = tuple(str(c) for c in reversed(Confidence))
@@ -87,6 +89,10 @@ SORT_KEYS: dict[str, list[tuple[str, bool]]] = {
 
 def load_series(db: sqlite_utils.Database, series_id: str) -> pd.Series | None:
     """The merged raw observations of a series in time order, or None if there is no such series."""
+    import pandas as pd  # here, not above: reading counts (``lagdesk status``) needs no pandas
+
+    from app.store.timestamps import index_from_keys
+
     kind = db.execute("SELECT time_kind FROM series WHERE series_id = ?", [series_id]).fetchone()
     if kind is None:
         return None

@@ -4,7 +4,8 @@ This module is the interface the rest of Lagdesk uses: the choice of executor an
 :func:`map_unordered` that sends the work to it. The backends are :mod:`.local` (a forkserver
 process pool) and :mod:`.dask` (the optional extra 'dask'); what both need lives in
 :mod:`.blas` (one BLAS thread per worker) and :mod:`.chunks`. Imports point one way: this module
-imports the backends, and neither backend imports this module or the other one.
+imports the backends (when first used, so that a command which runs
+nothing does not pay for them), and neither backend imports this module or the other one.
 """
 
 from __future__ import annotations
@@ -15,7 +16,6 @@ from dataclasses import dataclass
 from typing import Any
 
 from app.core.errors import LagdeskError
-from app.jobs.executors.local import map_unordered_local
 
 DEFAULT_CHUNK = 4
 EXECUTORS = ("local", "dask")
@@ -78,4 +78,7 @@ def map_unordered(
 
         yield from map_unordered_dask(func, items, workers, chunk, executor.scheduler)
         return
+    # Imported here too: the process pool's modules cost a command that runs nothing (``--help``).
+    from app.jobs.executors.local import map_unordered_local
+
     yield from map_unordered_local(func, items, workers, chunk)
