@@ -26,6 +26,7 @@ import sqlite_utils
 
 from app.core.errors import LagdeskError
 from app.core.identify import ENGINE_VERSION, EngineOptions
+from app.core.seasonality import default_period
 from app.jobs.executors import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.recheck import recheck_after_analysis
 from app.jobs.run_lock import LOCK_SUFFIX as LOCK_SUFFIX  # re-exported: app.web's tests import it from here
@@ -34,7 +35,7 @@ from app.jobs.work import SeriesOutcome, SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database, write_transaction
 from app.store.runs import finish_run, get_run, interrupt_running_runs, list_runs, record_progress, start_run
-from app.store.series import load_series, series_fingerprint, series_ids_to_analyse
+from app.store.series import load_series, series_fingerprint, series_ids_to_analyse, series_sizes
 
 # How long a caller waits for the run record of a run that holds the lock but is still starting.
 STARTING_RUN_WAIT_S = 5.0
@@ -172,7 +173,7 @@ def begin_analysis(
                 raise AnalysisInProgress(path, _running_run_id(db))
             try:
                 interrupt_running_runs(db)
-                series_ids = series_ids_to_analyse(db, everything)
+                series_ids = heaviest_first(series_ids_to_analyse(db, everything), series_sizes(db), options.period)
                 settings = {"workers": workers, "everything": everything, "options": asdict(options), "executor": asdict(executor)}
                 run_id = start_run(db, settings, len(series_ids), ENGINE_VERSION)
             except BaseException:
@@ -183,6 +184,35 @@ def begin_analysis(
             raise
         held_runs[path] = run_id
     return AnalysisRun(db, path, lock_fd, run_id, series_ids, workers, options, executor)
+
+
+def expected_cost(n: int, freq: str, period_option: int | str | None) -> int:
+    """A series' expected share of a run's CPU, for :func:`heaviest_first`: ``n * s**2``.
+
+    One likelihood evaluation costs O(n r^2) by the Chandrasekhar recursions
+    (:mod:`app.core.likelihood`), and the state dimension r of a seasonal order grows with the
+    period s (s + 1 for a seasonal AR or MA term of order one). Only the order of these numbers
+    is used; the search's own choices (how many candidates, interventions) are not known before.
+    """
+    period = period_option if isinstance(period_option, int) else default_period(freq) if period_option is not None else None
+    return n * max(period or 1, 1) ** 2
+
+
+def heaviest_first(series_ids: list[str], sizes: dict[str, tuple[int, str]], period_option: int | str | None) -> list[str]:
+    """The series in the order the workers should take them: the most expensive first.
+
+    Longest processing time first (Graham 1969): with the costly seasonal series at the start,
+    the cheap ones fill the workers' remaining time at the end, instead of one worker finishing
+    a long hourly series while the others wait. On the demo portfolio (91 series, one hourly
+    series taking a quarter of the CPU) two workers went from 1.33x to 1.8x one (README).
+    Ties keep the id order.
+
+    References
+    ----------
+    .. [1] Graham, R.L. (1969). Bounds on multiprocessing timing anomalies. *SIAM J. Appl.
+       Math.* 17, 416-429.
+    """
+    return sorted(series_ids, key=lambda series_id: -expected_cost(*sizes[series_id], period_option))
 
 
 def run_analysis(

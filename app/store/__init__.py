@@ -18,7 +18,8 @@ import sys
 _HIDDEN = ("pandas", "numpy")
 _loaded = {name: sys.modules.get(name) for name in _HIDDEN}
 try:
-    sys.modules.update(dict.fromkeys(_HIDDEN))
+    for _name in _HIDDEN:
+        sys.modules[_name] = None  # type: ignore[assignment]
     import sqlite_utils  # noqa: F401  (imported here first, see above)
 finally:
     for _name, _module in _loaded.items():

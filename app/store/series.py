@@ -138,6 +138,11 @@ def series_fingerprint(db: sqlite_utils.Database, series_id: str) -> str | None:
     return None if row is None else row[0]
 
 
+def series_sizes(db: sqlite_utils.Database) -> dict[str, tuple[int, str]]:
+    """Every stored series' length (time points, gaps included) and sampling frequency, by id."""
+    return {series_id: (n, freq) for series_id, n, freq in db.execute("SELECT series_id, n, freq FROM series")}
+
+
 def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -> list[str]:
     """Series whose analysis is missing or stale (or every series), by id.
 

@@ -21,13 +21,13 @@ from threadpoolctl import threadpool_limits
 from app.core.analysis import Analysis
 from app.core.identify import EngineOptions
 from app.core.portfolio_file import read_portfolio
-from app.jobs.analyze import AnalysisInProgress, begin_analysis, run_analysis, start_background_analysis
+from app.jobs.analyze import AnalysisInProgress, begin_analysis, heaviest_first, run_analysis, start_background_analysis
 from app.jobs.work import SeriesTask, identify_task
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
 from app.store.runs import get_run, list_runs, start_run
-from app.store.series import series_ids_to_analyse
+from app.store.series import series_ids_to_analyse, series_sizes
 from app.store.status import portfolio_status
 
 REPO = Path(__file__).resolve().parents[2]
@@ -94,6 +94,21 @@ def test_run_analysis_stores_the_engine_result_of_every_series(db_path, read_db,
         record = read_db(analysis_record, series_id)
         assert (record["state"], record["run_id"]) == ("current", run["run_id"])
     assert read_db(series_ids_to_analyse, everything=True) == sorted(engine_results)
+
+
+def test_runs_take_the_most_expensive_series_first():
+    # n * s**2 (s from the frequency, or the period asked for): 600 * 24**2 > 180 * 12**2 >
+    # 400 * 7**2 > 5000 (yearly: no season); ties keep the id order.
+    sizes = {"m": (180, "MS"), "h": (600, "h"), "d1": (400, "D"), "d2": (400, "D"), "y": (5000, "YS")}
+    assert heaviest_first(sorted(sizes), sizes, "auto") == ["h", "m", "d1", "d2", "y"]
+    assert heaviest_first(sorted(sizes), sizes, None) == ["y", "h", "d1", "d2", "m"]
+    assert heaviest_first(sorted(sizes), sizes, 4) == ["y", "h", "d1", "d2", "m"]
+
+
+def test_series_sizes_are_the_stored_length_and_frequency(db_path, read_db):
+    sizes = read_db(series_sizes)
+    assert sorted(sizes) == read_db(series_ids_to_analyse, everything=True)
+    assert all(n >= 12 and isinstance(freq, str) for n, freq in sizes.values())
 
 
 def test_a_second_run_finds_nothing_to_analyse(db_path, read_db):

@@ -36,12 +36,13 @@ ORDER_ITEMS = 6
 POOLED_ITEMS = IN_PROCESS_MAX_ITEMS + 1  # the smallest job that starts a pool
 
 
-def blocks_until_last_item_ran(job: tuple[int, str]) -> int:
-    """Item 0 waits until the last item has left its mark, so it cannot complete first."""
+def blocks_until_the_others_ran(job: tuple[int, str]) -> int:
+    """Item 0 waits until every other item has left its mark, so it cannot complete first."""
     item, folder = job
     if item == 0:
         deadline = time.monotonic() + WAIT_S
-        while not (Path(folder) / str(ORDER_ITEMS - 1)).exists() and time.monotonic() < deadline:
+        others = [Path(folder) / str(i) for i in range(1, ORDER_ITEMS)]
+        while not all(p.exists() for p in others) and time.monotonic() < deadline:
             time.sleep(0.01)
     (Path(folder) / str(item)).touch()
     return item
@@ -101,7 +102,7 @@ def test_chunks_keeps_every_item_once_in_order():
 
 def test_pool_yields_results_in_order_of_completion(tmp_path):
     jobs = [(i, str(tmp_path)) for i in range(ORDER_ITEMS)]
-    got = list(map_unordered(blocks_until_last_item_ran, jobs, workers=2, chunk=1))
+    got = list(map_unordered(blocks_until_the_others_ran, jobs, workers=2, chunk=1))
     assert sorted(got) == list(range(ORDER_ITEMS))
     assert got[-1] == 0
 
@@ -147,6 +148,16 @@ def test_a_small_job_runs_in_this_process_without_starting_a_pool(monkeypatch):
 
 def test_a_job_larger_than_the_in_process_limit_uses_the_pool():
     assert os.getpid() not in set(map_unordered(process_id, range(POOLED_ITEMS), workers=2, chunk=1))
+
+
+def test_this_process_works_while_the_pool_starts():
+    # The pool's start (its forkserver importing the engine) takes seconds and these items
+    # microseconds, so this process does the items after the first 2 * workers chunks, which
+    # wait in the pool's queue and go to the workers once they run.
+    pids = list(map_unordered(process_id, range(40), workers=2, chunk=1))
+    assert len(pids) == 40
+    assert pids.count(os.getpid()) >= 40 - 2 * 2
+    assert len(set(pids) - {os.getpid()}) >= 1
 
 
 def test_analysing_one_series_starts_no_pool(monkeypatch, tmp_path):

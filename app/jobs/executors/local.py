@@ -31,7 +31,7 @@ import queue
 import select
 import threading
 import time
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Generator, Iterable, Iterator
 from concurrent.futures import Future, ProcessPoolExecutor
 from typing import Any
 
@@ -118,7 +118,8 @@ def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], worker
     Notes
     -----
     At most ``2 * workers`` chunks are in flight, so a large portfolio is never held in the
-    pool's queue all at once.
+    pool's queue all at once. While the pool starts, this process works through the chunks
+    after those (:func:`_work_while_starting`), so it does not wait idle for the start.
     """
     iterator = iter(items)
     head = list(itertools.islice(iterator, IN_PROCESS_MAX_ITEMS + 1))
@@ -128,23 +129,74 @@ def map_unordered_local(func: Callable[[Any], Any], items: Iterable[Any], worker
                 yield func(item)
         return
     batches = chunks(itertools.chain(head, iterator), chunk)
+    first = list(itertools.islice(batches, 2 * workers))
     with ProcessPoolExecutor(max_workers=workers, mp_context=pool_context(), initializer=start_worker, initargs=(os.getpid(),)) as pool:
         # Futures arrive here in the order they finish (a callback run as each one completes);
         # wait(FIRST_COMPLETED) would hand over a set when several finish together, in no order.
         finished: queue.SimpleQueue[Future] = queue.SimpleQueue()
-        in_flight = 0
 
-        def submit_next() -> None:
-            nonlocal in_flight
-            batch = next(batches, None)
-            if batch is not None:
-                pool.submit(run_chunk, func, batch).add_done_callback(finished.put)
-                in_flight += 1
+        def submit(batch: list[Any]) -> None:
+            pool.submit(run_chunk, func, batch).add_done_callback(finished.put)
 
-        for _ in range(2 * workers):
-            submit_next()
+        # The first submit starts the workers and returns only once the forkserver has imported
+        # the engine and run it once (about 2 s): it is made in a thread, and this process works
+        # through the chunks after the first ones meanwhile.
+        starter = _Starter(submit, first)
+        in_flight = len(first)
+        rest = yield from _work_while_starting(func, batches, starter)
+        starter.join()
+        if rest:
+            submit(rest)
+            in_flight += 1
         while in_flight:
             future = finished.get()
             in_flight -= 1
             yield from future.result()
-            submit_next()
+            batch = next(batches, None)
+            if batch is not None:
+                submit(batch)
+                in_flight += 1
+
+
+class _Starter(threading.Thread):
+    """Submits the first chunks to a pool that is still starting, in its own thread."""
+
+    def __init__(self, submit: Callable[[list[Any]], None], batches: list[list[Any]]) -> None:
+        super().__init__(name="pool-starter", daemon=True)
+        self.submit, self.batches = submit, batches
+        self.error: BaseException | None = None
+        self.start()
+
+    def run(self) -> None:
+        try:
+            for batch in self.batches:
+                self.submit(batch)
+        except BaseException as exc:  # handed to the caller by join()
+            self.error = exc
+
+    def join(self, timeout: float | None = None) -> None:
+        """Wait for the submits, and raise their error if they failed."""
+        super().join(timeout)
+        if self.error is not None:
+            raise self.error
+
+
+def _work_while_starting(
+    func: Callable[[Any], Any], batches: Iterator[list[Any]], starter: _Starter
+) -> Generator[Any, None, list[Any] | None]:
+    """Results of the items this process takes while the starter is still submitting (the
+    workers are not running yet); returns the rest of the chunk in hand for the pool.
+
+    An item at a time, so this process is back to only collecting results within one item of
+    the workers' start."""
+    with threadpool_limits(limits=1):
+        while starter.is_alive():
+            batch = next(batches, None)
+            if batch is None:
+                return None
+            for i, item in enumerate(batch):
+                if not starter.is_alive():
+                    return batch[i:]
+                yield func(item)
+    return None
+
