@@ -26,7 +26,7 @@ from typing import TYPE_CHECKING, Any
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, order_label
-from app.core.vocabulary import DECIDED, Confidence, VerdictStatus
+from app.core.vocabulary import DECIDED, Confidence, VerdictStatus, reason_words
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine
 
@@ -820,7 +820,6 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
     """The readable summary: one line per series (with the main reason for its confidence, in
     the queue's words, when it is not firm), then the problems."""
     from app.store.analyses import main_reason
-    from app.web.templating import reason_words
 
     def why(analysis: Analysis) -> str:
         reason = main_reason(analysis)

@@ -43,7 +43,7 @@ from app.core.errors import LagdeskError, SeriesProblem
 from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
 from app.core.prepare import prepare_series
-from app.core.vocabulary import DECIDED, Confidence
+from app.core.vocabulary import DECIDED, Confidence, reason_words
 from app.jobs.analyze import run_analysis
 from app.jobs.demo import DEMO_PORTFOLIO, build_demo_database
 from app.jobs.work import SeriesTask, identify_task
@@ -53,7 +53,6 @@ from app.store.imports import import_portfolio
 from app.store.runs import latest_run
 from app.store.status import portfolio_status
 from app.store.verdicts import STATUSES, get_verdict, verdict_history
-from app.web.templating import reason_words
 
 REPO = Path(__file__).resolve().parents[1]
 SERIES = 3

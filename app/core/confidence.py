@@ -72,7 +72,7 @@ import numpy as np
 
 from app.core.fitting import CandidateFit
 from app.core.ranking import is_demoted, margin_to_rival, strongest_nesting_rival
-from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, Confidence
+from app.core.vocabulary import FLAG_REASON_PREFIX, NOT_FIRM_FLAGS, WEAK_FLAGS, Confidence
 
 # Accuracy batch (tests/core/accuracy_batch.py), tuning seed: 92% of firm right (margins 2 and 4: 86%, 90%); kept.
 FIRM_MARGIN = 6.0
@@ -207,9 +207,9 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
     reasons = []
     weak = sorted(f for f in WEAK_FLAGS if f in flags)
     if weak or is_demoted(best):
-        reasons += [f"flag: {f}" for f in weak] or ["the best model fails its residual checks"]
+        reasons += [f"{FLAG_REASON_PREFIX}{f}" for f in weak] or ["the best model fails its residual checks"]
         return ConfidenceScore(Confidence.WEAK, reasons)
-    reasons += [f"flag: {f}" for f in sorted(f for f in NOT_FIRM_FLAGS if f in flags)]
+    reasons += [f"{FLAG_REASON_PREFIX}{f}" for f in sorted(f for f in NOT_FIRM_FLAGS if f in flags)]
     reasons += list(doubts)
     margin = margin_to_rival(ranked, criterion)
     if margin < FIRM_MARGIN:

@@ -1,4 +1,5 @@
-"""The closed sets of words every layer shares: confidence levels, analysis flags, verdict states.
+"""The closed sets of words every layer shares: confidence levels, analysis flags, verdict states,
+and the flags in words.
 
 They are ``StrEnum`` members, so they compare equal to their text, are written to JSON and
 SQLite as that text, and a misspelt name fails where it is written rather than where it is
@@ -85,3 +86,40 @@ DECIDED = (VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN)
 REVIEWER_STATUSES = (VerdictStatus.PENDING, VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN, VerdictStatus.PARKED,
                      VerdictStatus.NOT_ARIMA)
 """The states a reviewer may set (``pending`` reopens a decided series)."""
+
+
+# Every flag the engine writes, in words (the pages, the CLI's tables).
+FLAG_WORDS: dict[str, str] = {
+    Flag.TOO_SHORT: "short series: fewer points than Box-Jenkins identification asks for",
+    Flag.GAPS: "missing points: the likelihood skips them, the correlograms use the pairs present",
+    Flag.LONG_GAP: "a long gap: the correlograms rest on fewer pairs and the tests of d on bridged values",
+    Flag.NO_CONVERGENCE: "the optimiser did not converge",
+    Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
+    Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
+    Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
+    Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
+    Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
+    Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
+    Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
+    Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
+    Flag.LARGE_RESIDUAL: "a residual beyond the outlier threshold: an outlier or a shift the model does not explain",
+    Flag.INTERMITTENT_DEMAND: "intermittent or lumpy demand: a Gaussian ARIMA suits it poorly",
+    Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
+    Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
+}
+
+
+# How the engine writes a flag among its confidence reasons (app.core.confidence).
+FLAG_REASON_PREFIX = "flag: "
+
+
+def flag_words(flag: str) -> str:
+    """A flag in words; one without words (none should be) with its underscores as spaces."""
+    return FLAG_WORDS.get(flag, flag.replace("_", " "))
+
+
+def reason_words(reason: str) -> str:
+    """A confidence reason for reading: a flag (``flag: NAME``) in its words, others as written."""
+    if reason.startswith(FLAG_REASON_PREFIX):
+        return flag_words(reason.removeprefix(FLAG_REASON_PREFIX))
+    return reason

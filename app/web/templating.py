@@ -14,7 +14,7 @@ from markupsafe import Markup
 import app
 from app.core.order import order_label
 from app.core.p_values import p_text
-from app.core.vocabulary import Flag
+from app.core.vocabulary import flag_words, reason_words
 from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
 from app.web.security import CSRF_FIELD, csrf_token
@@ -23,27 +23,6 @@ from app.web.security import CSRF_FIELD, csrf_token
 PROJECT_DIR = Path(app.__file__).resolve().parent.parent
 TEMPLATES_DIR = PROJECT_DIR / "templates"
 STATIC_DIR = PROJECT_DIR / "static"
-
-# Every flag the engine writes (app.core.vocabulary.Flag), in words.
-FLAG_WORDS: dict[str, str] = {
-    Flag.TOO_SHORT: "short series: fewer points than Box-Jenkins identification asks for",
-    Flag.GAPS: "missing points: the likelihood skips them, the correlograms use the pairs present",
-    Flag.LONG_GAP: "a long gap: the correlograms rest on fewer pairs and the tests of d on bridged values",
-    Flag.NO_CONVERGENCE: "the optimiser did not converge",
-    Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
-    Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
-    Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
-    Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
-    Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
-    Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
-    Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
-    Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
-    Flag.LARGE_RESIDUAL: "a residual beyond the outlier threshold: an outlier or a shift the model does not explain",
-    Flag.INTERMITTENT_DEMAND: "intermittent or lumpy demand: a Gaussian ARIMA suits it poorly",
-    Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
-    Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
-}
-
 
 FREQ_WORDS = {"D": "daily", "B": "business days", "h": "hourly", "H": "hourly", "min": "minutely", "T": "minutely",
               "W": "weekly", "M": "monthly", "MS": "monthly", "ME": "monthly", "Q": "quarterly", "QS": "quarterly",
@@ -105,21 +84,6 @@ def percent(share: float | None) -> str:
 def quote_path(series_id: str) -> str:
     """A series id for a URL path: percent-encoded, its slashes kept (routes take ``{series_id:path}``)."""
     return quote(series_id, safe="/")
-
-
-def flag_words(flag: str) -> str:
-    return FLAG_WORDS.get(flag, flag.replace("_", " "))
-
-
-# How the engine writes a flag among its confidence reasons (app.core.confidence).
-FLAG_REASON_PREFIX = "flag: "
-
-
-def reason_words(reason: str) -> str:
-    """A confidence reason for reading: a flag (``flag: NAME``) in its words, others as written."""
-    if reason.startswith(FLAG_REASON_PREFIX):
-        return flag_words(reason.removeprefix(FLAG_REASON_PREFIX))
-    return reason
 
 
 # Each weight of app.store.series.FLAG_SEVERITY, for the help overlay.

@@ -14,13 +14,13 @@ from web_client import TEST_HOSTS
 from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
 from app.config import Settings
-from app.core.vocabulary import Confidence, Flag
+from app.core.vocabulary import FLAG_WORDS, Confidence, Flag
 from app.store.runs import start_run
 from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
 from app.web.main import create_app
-from app.web.templating import FLAG_WORDS, number
+from app.web.templating import number
 
 SERIES = "plant-a/line-1/ar1"
 FIGURE = re.compile(r"""id="chart-([\w-]+)" data-figure='([^']*)'""")
