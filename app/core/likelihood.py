@@ -42,9 +42,15 @@ evaluations rather than the bookkeeping around them.
   (scipy's L-BFGS-B spent as long in its Python bookkeeping as in the likelihood here), on the
   profile log-likelihood per observation with a finite-difference gradient (forward differences
   while it is large, central ones near the optimum and at every stop), from several
-  starts: white noise, a two-step Hannan-Rissanen regression (Hannan & Rissanen 1982) and the
-  optimum of any smaller order the caller passes (:func:`nested_start`); the best optimum is
-  kept, which protects against the local optima a single start can end in.
+  starts: two-step Hannan-Rissanen regressions (Hannan & Rissanen 1982) with two lengths of
+  the long autoregression, and the optimum of any smaller order the caller passes
+  (:func:`nested_start`); the best optimum is kept, which protects against the local optima a
+  single start can end in. White noise is a start of its own only where no regression start
+  exists (a short series); elsewhere it competes only to be the one a screen continues from
+  (:func:`screen_arma`). Measured over the 3,509 fits the engine made on 75 real series
+  (monthly, quarterly, weekly, daily, yearly): the runs from white noise took 34% of all
+  optimiser steps and reached a higher optimum than every other start in 8 fits (0.2%), by
+  0.4-1.3 log-likelihood units, all of over-parameterised seasonal orders.
 * Standard errors: from a central-difference Hessian of the log-likelihood (variance still
   concentrated out) in the model's own coefficients and the regression coefficients; the
   inverse of a profile Hessian is the matching block of the full inverse Hessian.
@@ -717,7 +723,7 @@ def fit_arma(
         a mean, and a time index for a trend. None for a zero-mean model.
     starts : list of ndarray
         Extra start values in the optimiser's coordinates (:func:`nested_start`), tried after
-        white noise and the Hannan-Rissanen regression.
+        the Hannan-Rissanen regressions (and white noise when there is no regression start).
     screen : ArmaScreen, optional
         The screen of the same order and series (:func:`screen_arma`): the optimisation from
         its start continues where the screen stopped.
@@ -727,10 +733,13 @@ def fit_arma(
     k = spec.n_coefficients
     if not k:  # only the variance and the regression: nothing left to optimise
         return _finished(w, x, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
+    own = _own_starts(w, x, spec) if screen is None else list(screen.own_starts)
+    if len(own) > 1:  # a regression start exists: white noise (always first) is no run of its own
+        own = own[1:]
     if screen is None:
-        begins = _distinct([*_own_starts(w, x, spec), *starts])
+        begins = _distinct([*own, *starts])
     else:
-        begins = _distinct([screen.unconstrained, *(u for u in [*screen.own_starts, *starts] if not _same(u, screen.start))])
+        begins = _distinct([screen.unconstrained, *(u for u in [*own, *starts] if not _same(u, screen.start))])
     runs = [_maximise(start, *args, MAX_ITERATIONS, 0.0) for start in begins]
     best_u, best_value, _, _, _ = min(runs, key=lambda run: run[1])
     # The maximum counts as reached when any run that ended there converged: a run continued
@@ -746,7 +755,7 @@ def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.nd
 
 
 def _own_starts(w: np.ndarray, x: np.ndarray, spec: ArmaSpec) -> list[np.ndarray]:
-    """White noise and two Hannan-Rissanen estimates, without repeats."""
+    """White noise and two Hannan-Rissanen estimates, without repeats (white noise first)."""
     reach = max(spec.p + spec.s * spec.P, spec.q + spec.s * spec.Q)
     # Two lengths of the long autoregression: a generous one and a short one (twice the MA reach):
     # on an over-parameterised order their starts tend to lead to different optima.
