@@ -22,12 +22,13 @@ from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 from statsmodels.tsa.stattools import acf
 
+from app.core import likelihood
 from app.core.backtest import backtest_order, seasonal_naive_forecast, seasonal_naive_scale
 from app.core.correlogram import autocorrelations, correlogram, effective_sizes, portfolio_correlograms
 from app.core.demand import classify_demand
 from app.core.fitting import difference, fit_candidate
 from app.core.identify import identify_series
-from app.core.likelihood import ArmaSpec, fit_arma
+from app.core.likelihood import ArmaSpec, fit_arma, profile_loglik
 from app.core.order import Order
 from app.core.prepare import prepare_series
 from app.core.residual_outliers import largest_residual
@@ -89,6 +90,37 @@ def test_loglik_with_missing_points_equals_statsmodels_sarimax(spec, ar, ma, mea
     assert fit.loglik == pytest.approx(reference, abs=1e-6)
     assert fit.sigma2 == pytest.approx(scale, rel=1e-8)
     assert np.isnan(fit.residuals[np.isnan(w)]).all() and np.isfinite(fit.residuals[~np.isnan(w)]).all()
+
+
+FEW_GAPS_CASES = [(ArmaSpec(1, 1, 0, 1, 12), 0.0), (ArmaSpec(2, 1, 1, 1, 12), 4.0)]
+
+
+@pytest.mark.parametrize("spec, mean", FEW_GAPS_CASES, ids=lambda c: str(c) if isinstance(c, ArmaSpec) else None)
+def test_a_few_missing_points_as_regression_columns_give_the_skipping_likelihood(spec, mean):
+    # Gomez, Maravall & Pena (1999, J. Econometrics 88, 341-363): a missing point set to zero
+    # with an indicator column, the indicators profiled out and log |D' V^-1 D| added, gives
+    # the likelihood that skips the point. The optimiser's evaluations take that route when
+    # there are few gaps next to the state dimension; the fit's final evaluation (with its
+    # residuals) skips the points. Both are statsmodels SARIMAX's with NaN at the optimum.
+    rng = np.random.default_rng(SEED + 2)
+    w = mean + _arma_sample([0.5], [0.3], 400, rng)
+    gaps = [17, 18, 90, 231, 232, 233, 350]
+    w[gaps] = np.nan
+    design = np.ones((w.size, 1)) if mean else None
+    state = max(spec.p + spec.s * spec.P, spec.q + spec.s * spec.Q + 1)
+    assert likelihood._few_missing(len(gaps), int(bool(mean)), state)  # the route under test is taken
+    fit = fit_arma(w, spec, design)
+    regression_route = profile_loglik(w, spec, fit.unconstrained, design)
+    assert regression_route == pytest.approx(fit.loglik, abs=1e-8)
+    phi, _, big_phi, _ = spec.blocks(fit.coefficients)
+    params, trend = fit.coefficients, "n"
+    if mean:
+        params, trend = np.r_[fit.beta[0] * (1 - phi.sum()) * (1 - big_phi.sum()), params], "c"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        reference = SARIMAX(w, order=(spec.p, 0, spec.q), seasonal_order=(spec.P, 0, spec.Q, spec.s), trend=trend,
+                            concentrate_scale=True).loglike(params)
+    assert regression_route == pytest.approx(reference, abs=1e-6)
 
 
 def test_fit_with_missing_points_reaches_the_statsmodels_maximum_and_its_standard_errors():
