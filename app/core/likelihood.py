@@ -27,7 +27,7 @@ evaluations rather than the bookkeeping around them.
   correction, gives the same likelihood (Gomez, Maravall & Pena 1999; :func:`_missing_as_regressors`).
   On the last 2,688 hours of the JFK temperatures of ``nycflights13::weather`` (14 missing),
   whose seasonal candidates have state dimensions of 25 to 49, the whole identification took
-  369 s of CPU this way; on the covariance update it had not finished after 13 minutes.
+  258 s of CPU this way; on the covariance update it had not finished after 13 minutes.
 * Profiled out: the innovation variance (``sigma2 = S / n`` with ``S`` the weighted sum of
   squared innovations) and the coefficients of the regression columns (a mean, a time trend):
   the columns go through the same filter and their coefficients are the generalised-least-
@@ -291,26 +291,51 @@ def _stationary_covariance(coef, big_r):
 
 
 @njit(cache=True)
-def _record(t, w, x, a, v, f, cross, innovations, keep):
+def _record(t, w, x, a, v, f, cross, innovations, keep, active):
     """The innovations of ``w_t`` and of the regression columns at time ``t`` with variance
-    ``f``, added to the weighted cross products (and stored when ``keep``)."""
-    k = x.shape[1]
+    ``f``, added to the weighted cross products (and stored when ``keep``). Only the first
+    ``active`` columns (``w`` and the leading regressors) are touched: the others are still
+    zero, state and innovation alike (:func:`_joining_times`)."""
     v[0] = w[t] - a[0, 0]
-    for c in range(k):
-        v[c + 1] = x[t, c] - a[0, c + 1]
-    for c in range(k + 1):
+    for c in range(1, active):
+        v[c] = x[t, c - 1] - a[0, c]
+    for c in range(active):
         if keep:
             innovations[c, t] = v[c]
-        for e in range(k + 1):
+        for e in range(active):
             cross[c, e] += v[c] * v[e] / f
 
 
 @njit(cache=True)
-def _predict_state(a, coef, gain, v):
-    """``a_{t+1} = T (a_t + K v_t)`` for every column: ``T`` shifts the state up and adds
-    ``coef`` times its first element; O(r) per column."""
+def _joining_times(x):
+    """For each column count ``c`` (``w`` and the first ``c - 1`` columns of ``x``), the first
+    time from which those columns are all in use, so that ``_record`` and ``_predict_state``
+    can leave out the ones after them: a regression column that has been zero so far has a zero
+    state and zero innovations. Column ``j`` of ``x`` starts at its first non-zero entry; when
+    the starts do not rise with ``j`` (interventions in any order), every column counts from
+    time 0. Indicator columns of missing points (:func:`_missing_as_regressors`) come in time
+    order, so each joins at its own point."""
+    n, k = x.shape
+    joins = np.zeros(k + 2, dtype=np.int64)
+    for j in range(k):
+        start = n
+        for t in range(n):
+            if x[t, j] != 0.0:
+                start = t
+                break
+        joins[j + 2] = start
+    for j in range(2, k + 2):
+        if joins[j] < joins[j - 1]:
+            return np.zeros(k + 2, dtype=np.int64)
+    return joins
+
+
+@njit(cache=True)
+def _predict_state(a, coef, gain, v, active):
+    """``a_{t+1} = T (a_t + K v_t)`` for the first ``active`` columns: ``T`` shifts the state
+    up and adds ``coef`` times its first element; O(r) per column."""
     r = coef.size
-    for c in range(a.shape[1]):
+    for c in range(active):
         first = a[0, c] + gain[0] * v[c]
         for i in range(r - 1):
             a[i, c] = coef[i] * first + a[i + 1, c] + gain[i + 1] * v[c]
@@ -434,12 +459,16 @@ def _chandrasekhar_filter(w, x, coef, p_first, innovations):
         big_w[i] = coef[i] * pcol[0] + (pcol[i + 1] if i + 1 < r else 0.0)
     big_m = -1.0 / f
     log_f = 0.0
+    joins = _joining_times(x)
+    active = 1
     for t in range(n):
+        while active <= k and joins[active + 1] <= t:
+            active += 1
         for i in range(r):
             gain[i] = pcol[i] / f
-        _record(t, w, x, a, v, f, cross, innovations, keep)
+        _record(t, w, x, a, v, f, cross, innovations, keep, active)
         log_f += math.log(f)
-        _predict_state(a, coef, gain, v)
+        _predict_state(a, coef, gain, v, active)
         # P_{t+1} e1 = P_t e1 + M_t W_t W_t[0], then W and M move on.
         w0 = big_w[0]
         for i in range(r):
@@ -500,10 +529,10 @@ def _covariance_filter(w, x, coef, big_r, p, innovations):
                     return -1.0, np.zeros(k), np.zeros((k, k)), 0.0, 0
                 for i in range(r):
                     gain[i] = p[i, 0] / f
-            _record(t, w, x, a, v, f, cross, innovations, keep)
+            _record(t, w, x, a, v, f, cross, innovations, keep, k + 1)
             log_f += math.log(f)
             observed += 1
-        _predict_state(a, coef, gain, v)
+        _predict_state(a, coef, gain, v, k + 1)
         if steady:
             continue
         # P_{t+1} = T (P - P e1 e1' P / F) T' + R R' (no P e1 e1' P / F term at a missing point),
