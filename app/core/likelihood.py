@@ -24,7 +24,7 @@ evaluations rather than the bookkeeping around them.
   seasonal fits reached its steady state). A series with missing points keeps the covariance
   update for its residuals; for the likelihood alone, a few missing points are instead given
   a regression column each, which keeps the Chandrasekhar path and, with a determinant
-  correction, gives the same likelihood (Gomez, Maravall & Pena 1999; :func:`_missing_as_regressors`).
+  correction, gives the same likelihood (Gomez, Maravall & Pena 1999; :func:`_with_indicators`).
   On the last 2,688 hours of the JFK temperatures of ``nycflights13::weather`` (14 missing),
   whose seasonal candidates have state dimensions of 25 to 49, the whole identification took
   258 s of CPU this way; on the covariance update it had not finished after 13 minutes.
@@ -313,8 +313,8 @@ def _joining_times(x):
     can leave out the ones after them: a regression column that has been zero so far has a zero
     state and zero innovations. Column ``j`` of ``x`` starts at its first non-zero entry; when
     the starts do not rise with ``j`` (interventions in any order), every column counts from
-    time 0. Indicator columns of missing points (:func:`_missing_as_regressors`) come in time
-    order, so each joins at its own point."""
+    time 0. Indicator columns of missing points come in time order, so each joins at its own
+    point (:func:`_with_indicators`)."""
     n, k = x.shape
     joins = np.zeros(k + 2, dtype=np.int64)
     for j in range(k):
@@ -354,8 +354,9 @@ def _filter(w, x, ar, ma, innovations):
     A complete series goes through :func:`_chandrasekhar_filter` (O(r) per step). One with
     missing points goes through :func:`_covariance_filter`, whose covariance update is O(r^2),
     or, when only the likelihood is wanted and there are few missing points next to ``r``
-    (:func:`_few_missing`), through :func:`_missing_as_regressors`, which gives the same
-    likelihood on the Chandrasekhar path.
+    (:func:`_few_missing`), on the Chandrasekhar path with an indicator column per missing
+    point (:func:`_with_indicators`, :func:`_without_indicators`), which gives the same
+    likelihood.
     """
     r = max(ar.size, ma.size + 1)
     coef = np.zeros(r)
@@ -368,36 +369,75 @@ def _filter(w, x, ar, ma, innovations):
     for t in range(w.size):
         if math.isnan(w[t]):
             missing += 1
-    if not missing:
-        return _chandrasekhar_filter(w, x, coef, p[:, 0].copy(), innovations)
-    if innovations.shape[1] == w.size or not _few_missing(missing, x.shape[1], r):
+    columns = x.shape[1]
+    if missing and (innovations.shape[1] == w.size or not _few_missing(missing, columns, r)):
         return _covariance_filter(w, x, coef, big_r, p, innovations)
-    return _missing_as_regressors(w, x, coef, p[:, 0].copy(), missing)
+    if missing:
+        w, x = _with_indicators(w, x, missing)
+    # One call for both routes: every call site of the filter adds to numba's compile.
+    s_ww, s_xw, s_xx, log_f, count = _chandrasekhar_filter(w, x, coef, p[:, 0].copy(), innovations)
+    if missing and s_ww >= 0.0:
+        return _without_indicators(s_ww, s_xw, s_xx, log_f, count, columns)
+    return s_ww, s_xw, s_xx, log_f, count
 
 
 @njit(cache=True)
 def _few_missing(missing, columns, r):
-    """Whether :func:`_missing_as_regressors` costs less than :func:`_covariance_filter`: per
-    step it carries ``columns + missing + 1`` columns through the state and their cross
-    products, about ``c (c + r)`` operations, against the ``3 r^2`` of a covariance update."""
+    """Whether the indicator route (:func:`_with_indicators`) costs less than
+    :func:`_covariance_filter`: per step it carries ``columns + missing + 1`` columns through
+    the state and their cross products, about ``c (c + r)`` operations, against the ``3 r^2``
+    of a covariance update."""
     c = columns + missing + 1
     return c * (c + r) < 3 * r * r
 
 
 @njit(cache=True)
-def _missing_as_regressors(w, x, coef, p_first, missing):
-    """The filter's sums for a series with ``missing`` missing points, with a regression column
-    per missing point (Gomez, Maravall & Pena 1999).
+def _cholesky_solve(a, b):
+    """``a^-1 b`` and ``log |a|`` for a symmetric positive definite ``a``, by its Cholesky
+    factor; ``log |a|`` is ``-inf`` (and ``b`` is returned) when ``a`` is not positive definite.
+    Written out rather than numba's LAPACK wrappers, which would add seconds to the compile
+    that every fresh install pays."""
+    n = a.shape[0]
+    low = np.zeros((n, n))
+    log_det = 0.0
+    for j in range(n):
+        d = a[j, j]
+        for k in range(j):
+            d -= low[j, k] * low[j, k]
+        if not d > 0.0:
+            return b, -np.inf
+        low[j, j] = math.sqrt(d)
+        log_det += 2.0 * math.log(low[j, j])
+        for i in range(j + 1, n):
+            value = a[i, j]
+            for k in range(j):
+                value -= low[i, k] * low[j, k]
+            low[i, j] = value / low[j, j]
+    y = b.copy()
+    for c in range(b.shape[1]):
+        for i in range(n):
+            value = y[i, c]
+            for k in range(i):
+                value -= low[i, k] * y[k, c]
+            y[i, c] = value / low[i, i]
+        for i in range(n - 1, -1, -1):
+            value = y[i, c]
+            for k in range(i + 1, n):
+                value -= low[k, i] * y[k, c]
+            y[i, c] = value / low[i, i]
+    return y, log_det
 
-    Each missing ``w_t`` is set to zero and given an indicator column, and the series goes
-    through the Chandrasekhar recursions as a complete one. Profiling the indicators'
-    coefficients out of the weighted sums (their Schur complement) leaves exactly the sums of
-    the observed points, and the determinant of the indicators' block ``D' V^-1 D`` turns
-    ``log |V|`` of the whole grid into that of the observed points:
-    ``log |V_oo| = log |V| + log |D' V^-1 D|``, since ``D' V^-1 D`` is the inverse of the
-    missing points' covariance given the observed ones. Returns what :func:`_filter` returns,
-    for the observed points; no innovations (they would use later observations).
-    """
+
+@njit(cache=True)
+def _with_indicators(w, x, missing):
+    """The series with its ``missing`` missing points set to zero, and ``x`` with an indicator
+    column for each of them, in time order (Gomez, Maravall & Pena 1999).
+
+    Filtered as a complete series, with the indicators' coefficients then profiled out of the
+    weighted sums (:func:`_without_indicators`), it gives exactly the sums of the observed
+    points and, with a determinant correction, their likelihood: the route a few missing
+    points take when only the likelihood is wanted. It gives no innovations of the observed
+    points (the profiled indicators use later observations)."""
     n, m = x.shape
     filled = w.copy()
     z = np.zeros((n, m + missing))
@@ -408,23 +448,33 @@ def _missing_as_regressors(w, x, coef, p_first, missing):
             filled[t] = 0.0
             z[t, j] = 1.0
             j += 1
-    s_ww, s_zw, s_zz, log_f, _ = _chandrasekhar_filter(filled, z, coef, p_first, np.zeros((0, 0)))
-    if s_ww < 0.0:
-        return -1.0, np.zeros(m), np.zeros((m, m)), 0.0, 0
-    dd = s_zz[m:, m:].copy()
-    sign, log_det = np.linalg.slogdet(dd)
-    if not sign > 0.0:
-        return -1.0, np.zeros(m), np.zeros((m, m)), 0.0, 0
+    return filled, z
+
+
+@njit(cache=True)
+def _without_indicators(s_ww, s_zw, s_zz, log_f, n, m):
+    """The filter's sums with the indicator columns (those after the first ``m``) profiled out:
+    their Schur complements, which are the sums over the observed points. The determinant of
+    the indicators' block ``D' V^-1 D`` turns ``log |V|`` of the whole grid into that of the
+    observed points, ``log |V_oo| = log |V| + log |D' V^-1 D|``, since ``D' V^-1 D`` is the
+    inverse of the missing points' covariance given the observed ones."""
+    missing = s_zz.shape[0] - m
     rhs = np.empty((missing, m + 1))
     rhs[:, 0] = s_zw[m:]
     rhs[:, 1:] = s_zz[m:, :m]
-    solved = np.linalg.solve(dd, rhs)
-    to_w = np.ascontiguousarray(solved[:, 0])
-    to_x = np.ascontiguousarray(solved[:, 1:])
-    x_d = np.ascontiguousarray(s_zz[:m, m:])
-    s_ww_o = s_ww - np.ascontiguousarray(s_zw[m:]) @ to_w
-    s_xw_o = s_zw[:m] - x_d @ to_w
-    s_xx_o = s_zz[:m, :m] - x_d @ to_x
+    solved, log_det = _cholesky_solve(s_zz[m:, m:], rhs)
+    if not log_det > -np.inf:
+        return -1.0, np.zeros(m), np.zeros((m, m)), 0.0, 0
+    # The Schur complements, written out (numba's matrix products would add to the compile).
+    s_ww_o = s_ww
+    s_xw_o = s_zw[:m].copy()
+    s_xx_o = s_zz[:m, :m].copy()
+    for d in range(missing):
+        s_ww_o -= s_zw[m + d] * solved[d, 0]
+        for c in range(m):
+            s_xw_o[c] -= s_zz[c, m + d] * solved[d, 0]
+            for e in range(m):
+                s_xx_o[c, e] -= s_zz[c, m + d] * solved[d, 1 + e]
     return s_ww_o, s_xw_o, s_xx_o, log_f + log_det, n - missing
 
 

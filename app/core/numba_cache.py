@@ -22,7 +22,9 @@ from typing import Any
 
 CORE_DIR = Path(__file__).resolve().parent
 CACHE_ENV = "NUMBA_CACHE_DIR"
-COMPILE_SECONDS = 30
+# Measured 2026-12-04 with an empty cache (python -c 'import app.jobs.preload'): 47 s of CPU on
+# a machine busy with other work, 36 s before the missing-point route of app.core.likelihood.
+COMPILE_SECONDS = 45
 COMPILE_NOTICE = f"Compiling the likelihood once (about {COMPILE_SECONDS} s of CPU); later runs reuse it."
 
 
