@@ -393,10 +393,9 @@ def _few_missing(missing, columns, r):
 
 @njit(cache=True)
 def _cholesky_solve(a, b):
-    """``a^-1 b`` and ``log |a|`` for a symmetric positive definite ``a``, by its Cholesky
-    factor; ``log |a|`` is ``-inf`` (and ``b`` is returned) when ``a`` is not positive definite.
-    Written out rather than numba's LAPACK wrappers, which would add seconds to the compile
-    that every fresh install pays."""
+    """``a^-1 b`` and ``log |a|`` for a symmetric positive definite ``a``, both from its
+    Cholesky factor; ``log |a|`` is ``-inf`` (and ``b`` is returned) when ``a`` is not positive
+    definite."""
     n = a.shape[0]
     low = np.zeros((n, n))
     log_det = 0.0
@@ -465,7 +464,7 @@ def _without_indicators(s_ww, s_zw, s_zz, log_f, n, m):
     solved, log_det = _cholesky_solve(s_zz[m:, m:], rhs)
     if not log_det > -np.inf:
         return -1.0, np.zeros(m), np.zeros((m, m)), 0.0, 0
-    # The Schur complements, written out (numba's matrix products would add to the compile).
+    # The Schur complements.
     s_ww_o = s_ww
     s_xw_o = s_zw[:m].copy()
     s_xx_o = s_zz[:m, :m].copy()
