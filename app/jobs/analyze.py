@@ -187,11 +187,12 @@ def begin_analysis(
 
 
 def expected_cost(n: int, freq: str, period_option: int | str | None) -> int:
-    """A series' expected share of a run's CPU, for :func:`heaviest_first`: ``n * s**2``.
+    """A rough rank of a series' share of a run's CPU, for :func:`heaviest_first`: ``n * s**2``.
 
-    One likelihood evaluation costs O(n r^2) by the Chandrasekhar recursions
-    (:mod:`app.core.likelihood`), and the state dimension r of a seasonal order grows with the
-    period s (s + 1 for a seasonal AR or MA term of order one). Only the order of these numbers
+    One likelihood evaluation costs O(n r) by the Chandrasekhar recursions
+    (:mod:`app.core.likelihood`), the state dimension r of a seasonal order grows with the
+    period s (s + 1 for a seasonal AR or MA term of order one), and a seasonal series has more
+    candidates to fit; the extra factor of s stands for those. Only the order of these numbers
     is used; the search's own choices (how many candidates, interventions) are not known before.
     """
     period = period_option if isinstance(period_option, int) else default_period(freq) if period_option is not None else None
@@ -204,7 +205,8 @@ def heaviest_first(series_ids: list[str], sizes: dict[str, tuple[int, str]], per
     Longest processing time first (Graham 1969): with the costly seasonal series at the start,
     the cheap ones fill the workers' remaining time at the end, instead of one worker finishing
     a long hourly series while the others wait. On the demo portfolio (91 series, one hourly
-    series taking a quarter of the CPU) two workers went from 1.33x to 1.8x one (README).
+    series taking about a third of the CPU) two workers went from 1.33x to 1.67x one, together
+    with the parent's work while the pool starts (README).
     Ties keep the id order.
 
     References
