@@ -261,7 +261,8 @@ def _model_data(y: np.ndarray, model: Order) -> tuple[np.ndarray, list[str], np.
 
 
 def fit_candidate(
-    y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None
+    y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None,
+    warm: CandidateFit | None = None,
 ) -> CandidateFit:
     """Fit ``model`` to ``y`` by exact maximum likelihood and run its diagnostics.
 
@@ -276,9 +277,14 @@ def fit_candidate(
         (same differencing and deterministic terms) is one of the optimiser's starts.
     screened : ScreenedCandidate, optional
         The screen of this order (:func:`screen_candidate`); the fit continues from it.
+    warm : CandidateFit, optional
+        The same order fitted to a stretch of the same series; its optimum is one more start.
     """
     w, names, design, spec = _model_data(y, model)
-    estimate = fit_arma(w, spec, design, _nested_starts(model, fitted), screened.screen if screened else None)
+    starts = _nested_starts(model, fitted)
+    if warm is not None and warm.estimate is not None and warm.model == model:
+        starts.append(warm.estimate.unconstrained)
+    estimate = fit_arma(w, spec, design, starts, screened.screen if screened else None)
     resid = estimate.residuals
     n = int(np.count_nonzero(~np.isnan(resid)))
     h = ljung_box_lags(n, model)

@@ -57,7 +57,7 @@ from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
-from app.core.residual_outliers import largest_residual
+from app.core.residual_outliers import largest_residual, moment
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
@@ -80,6 +80,10 @@ SCREEN_SLACK = 2.0
 SCREEN_MARGIN = FIRM_MARGIN
 TRANSFORM_PASSES = 2
 SEASONAL_MA_BOUNDARY = 0.9
+# Long series (identify_prepared): measured on 14 hourly series of 1,344 points (README).
+LONG_SERIES = 1_000
+SEARCH_WINDOW = 672
+REFITTED = 5
 
 Orders = tuple[int, int, int, int, str]  # (p, q, P, Q, trend)
 
@@ -588,7 +592,7 @@ def _finished(
     fixed = fixed_seasonality_words(best, seasonal)
     if fixed:
         flags.append(Flag.FIXED_SEASONALITY)
-        seasonal.words.append(fixed)
+        seasonal = replace(seasonal, words=[*seasonal.words, fixed])
     data_notes, doubts = [], []
     if interventions:
         data_notes.append(_intervention_words(interventions))
@@ -639,6 +643,10 @@ def _loglik_on(values: np.ndarray, transform: TransformChoice, leader: Candidate
 def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineOptions()) -> Identification:
     """Run the identification on a series already on its regular grid.
 
+    A series longer than :data:`LONG_SERIES` points is searched on its most recent
+    :data:`SEARCH_WINDOW` points and its best candidates are refitted on the whole series
+    (:func:`_on_whole_series`); a shorter one as follows.
+
     The transform is chosen under the leading order (:func:`app.core.transform.choose_transform`,
     Box & Cox 1964): the series is identified as observed; for a strictly positive series, the
     leader's order (same d, D and deterministic term) is refitted under each transform weighed and
@@ -660,6 +668,16 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     .. [2] Chen, C. & Liu, L.-M. (1993). Joint estimation of model parameters and outlier effects
        in time series. *JASA* 88, 284-297.
     """
+    if prepared.n <= LONG_SERIES:
+        return _identify_whole(prepared, options)[0]
+    recent, start = prepared.recent(SEARCH_WINDOW)
+    found, search = _identify_whole(recent, options)
+    return _on_whole_series(prepared, start, found, search, options)
+
+
+def _identify_whole(prepared: PreparedSeries, options: EngineOptions) -> tuple[Identification, _Identified]:
+    """The identification of :func:`identify_prepared` on all of ``prepared``, and the search
+    that ranked its candidates."""
     period, period_words = resolve_period(prepared, options.period)
     found, search = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
     passes = {str(found.transform.to_json()): (found, search)}
@@ -703,7 +721,56 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     if interventions:
         found = _finished(prepared, found.transform, adjusted_search, interventions, options)
     found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
-    return found
+    return found, (adjusted_search if interventions else search)
+
+
+def _on_whole_series(
+    prepared: PreparedSeries, start: int, found: Identification, search: _Identified, options: EngineOptions
+) -> Identification:
+    """The identification ``found`` on the stretch of ``prepared`` from ``start`` on, with its
+    :data:`REFITTED` best candidates refitted on the whole series (each also started from its
+    optimum on the stretch); the refits are ranked again and give the residual checks, the
+    flags and the confidence. The transform, the differencing, the correlograms, the pattern
+    readings and the interventions (moved to their places in the whole series, at the sizes
+    estimated on the stretch) stay those of the stretch.
+
+    The rule trades a little of the evidence for speed: every fit of the search costs in
+    proportion to the length, and on long series little of the order's evidence is in the
+    oldest points, while structural change makes them the least like the future (Pesaran &
+    Timmermann 2007, on estimation windows under breaks). README's performance section gives
+    the measurement behind :data:`LONG_SERIES` and :data:`SEARCH_WINDOW`.
+
+    References
+    ----------
+    .. [1] Pesaran, M.H. & Timmermann, A. (2007). Selection of estimation window in the presence
+       of breaks. *J. Econometrics* 137, 134-161.
+    """
+    interventions = [replace(i, position=i.position + start) for i in found.interventions]
+    y = apply_transform(prepared.values, found.transform)
+    if interventions:
+        y = adjusted(y, interventions)
+    groups: dict[int, list[CandidateFit]] = {}
+    for candidate in found.candidates[:REFITTED]:
+        try:
+            fit = fit_candidate(y, candidate.model, warm=candidate)
+        except (np.linalg.LinAlgError, ValueError):
+            continue  # the order stays out of the whole-series ranking
+        fit.source = candidate.source
+        groups.setdefault(candidate.model.d, []).append(fit)
+    if not groups:
+        raise SeriesProblem(prepared.series_id, "none of the candidates found on the recent points could be fitted "
+                            "to the whole series", flag="no_fit")
+    ranked = rank_across_d(groups, options.criterion)
+    whole = _finished(prepared, found.transform, replace(search, ranked=ranked), interventions, options)
+    whole.transform = found.transform
+    whole.identified_label += f"; last {found.prepared.n} points"
+    whole.data_notes.insert(0, (
+        f"Long series ({prepared.n} points, more than {LONG_SERIES}): the transform, the differencing, the correlograms, "
+        f"the interventions and the candidate search used the most recent {found.prepared.n} points "
+        f"(from {moment(found.prepared.index[0])}); the {sum(map(len, groups.values()))} best candidates were then refitted "
+        "on the whole series, which ranks them, checks their residuals and sets the confidence."
+    ))
+    return whole
 
 
 def identify_series(

@@ -87,6 +87,18 @@ class PreparedSeries:
     def to_series(self) -> pd.Series:
         return pd.Series(self.values, index=self.index, name=self.series_id)
 
+    def recent(self, points: int) -> tuple[PreparedSeries, int]:
+        """The last ``points`` of the grid, starting at an observed point, and where that
+        stretch starts in this series (its gaps and their flags counted again)."""
+        start = max(0, self.n - points)
+        start += int(np.argmax(~np.isnan(self.values[start:])))
+        missing = np.isnan(self.values[start:])
+        runs = _missing_runs(missing)
+        gaps, long_gaps = int(missing.sum()), int(sum(1 for r in runs if r > SHORT_GAP_MAX))
+        flags = [f for f in self.flags if f not in (Flag.GAPS, Flag.LONG_GAP)]
+        flags += [Flag.GAPS] * bool(gaps) + [Flag.LONG_GAP] * bool(long_gaps)
+        return PreparedSeries(self.series_id, self.values[start:], self.index[start:], self.freq, gaps, long_gaps, flags), start
+
 
 def prepare_series(
     series: pd.Series,
