@@ -762,7 +762,6 @@ def _on_whole_series(
                             "to the whole series", flag="no_fit")
     ranked = rank_across_d(groups, options.criterion)
     whole = _finished(prepared, found.transform, replace(search, ranked=ranked), interventions, options)
-    whole.transform = found.transform
     whole.identified_label += f"; last {found.prepared.n} points"
     whole.data_notes.insert(0, (
         f"Long series ({prepared.n} points, more than {LONG_SERIES}): the transform, the differencing, the correlograms, "

@@ -92,12 +92,9 @@ class PreparedSeries:
         stretch starts in this series (its gaps and their flags counted again)."""
         start = max(0, self.n - points)
         start += int(np.argmax(~np.isnan(self.values[start:])))
-        missing = np.isnan(self.values[start:])
-        runs = _missing_runs(missing)
-        gaps, long_gaps = int(missing.sum()), int(sum(1 for r in runs if r > SHORT_GAP_MAX))
-        flags = [f for f in self.flags if f not in (Flag.GAPS, Flag.LONG_GAP)]
-        flags += [Flag.GAPS] * bool(gaps) + [Flag.LONG_GAP] * bool(long_gaps)
-        return PreparedSeries(self.series_id, self.values[start:], self.index[start:], self.freq, gaps, long_gaps, flags), start
+        stretch = _on_grid(self.series_id, self.values[start:], self.index[start:], self.freq)
+        stretch.flags += [f for f in self.flags if f not in (Flag.GAPS, Flag.LONG_GAP)]
+        return stretch, start
 
 
 def prepare_series(
@@ -132,21 +129,7 @@ def prepare_series(
     if values.size == 0:
         raise SeriesProblem(sid, "has no values", flag="empty")
     freq, grid = _regular_grid(values.index, sid, line_of)
-    on_grid = values.reindex(grid)
-    missing = on_grid.isna().to_numpy()
-    run_lengths = _missing_runs(missing)
-    prepared = PreparedSeries(
-        series_id=sid,
-        values=on_grid.to_numpy(dtype=float),
-        index=grid,
-        freq=freq,
-        gaps_filled=int(missing.sum()),
-        long_gaps=int(sum(1 for r in run_lengths if r > SHORT_GAP_MAX)),
-    )
-    if prepared.gaps_filled:
-        prepared.flags.append(Flag.GAPS)
-    if prepared.long_gaps:
-        prepared.flags.append(Flag.LONG_GAP)
+    prepared = _on_grid(sid, values.reindex(grid).to_numpy(dtype=float), grid, freq)
     observed = prepared.observed
     if observed < MIN_POINTS:
         raise SeriesProblem(
@@ -158,11 +141,23 @@ def prepare_series(
             sid, f"has {observed} observations on a grid of {prepared.n} {freq} points: most of the grid "
             "would be gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
         )
-    present = prepared.values[~missing]
+    present = prepared.values[~np.isnan(prepared.values)]
     if np.ptp(present) <= 1e-12 * max(1.0, float(np.abs(present).max())):
         raise SeriesProblem(sid, f"is constant (every value is {present[0]:g}); there is nothing to model", flag="constant")
     if observed < RECOMMENDED_POINTS:
         prepared.flags.append(Flag.TOO_SHORT)
+    return prepared
+
+
+def _on_grid(series_id: str, values: np.ndarray, index: pd.Index, freq: str) -> PreparedSeries:
+    """``values`` on their grid ``index`` (NaN where missing), with their gaps counted and flagged."""
+    missing = np.isnan(values)
+    prepared = PreparedSeries(series_id, values, index, freq, gaps_filled=int(missing.sum()),
+                              long_gaps=sum(1 for r in _missing_runs(missing) if r > SHORT_GAP_MAX))
+    if prepared.gaps_filled:
+        prepared.flags.append(Flag.GAPS)
+    if prepared.long_gaps:
+        prepared.flags.append(Flag.LONG_GAP)
     return prepared
 
 
