@@ -45,10 +45,10 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path[:0] = [str(REPO), str(HERE)]
 
-from real_series import _r  # noqa: E402  (benchmark helper next to this file)
+from real_series import _r, taylor_hourly, weather_hourly  # noqa: E402  (benchmark helpers next to this file)
 
 from app.core import identify  # noqa: E402
-from app.core.backtest import forecast_order  # noqa: E402
+from app.core.backtest import forecast_order, mase, seasonal_naive_forecast  # noqa: E402
 
 LENGTH, HOLDOUT, PERIOD = 1_368, 24, 24
 WEATHER_STARTS = (0, 4_380)  # 1 January and 2 July 2013, 06:00 UTC
@@ -61,14 +61,10 @@ def series() -> list[tuple[str, pd.Series]]:
     out = []
     weather = _r("nycflights13", "weather")
     for origin in ("EWR", "JFK", "LGA"):
-        rows = weather[weather["origin"] == origin]
-        hours = pd.to_datetime(rows["time_hour"]).dt.tz_localize(None)
         for column in ("temp", "dewp"):
-            values = pd.Series(rows[column].to_numpy(dtype=float), index=hours).sort_index()
-            values = values[~values.index.duplicated()].asfreq("h")
+            values = weather_hourly(weather, origin, column)
             out += [(f"nycflights13/weather:{origin}:{column}@{start}", values.iloc[start:start + LENGTH]) for start in WEATHER_STARTS]
-    half_hours = _r("forecast", "taylor")["x"].to_numpy(dtype=float)
-    taylor = pd.Series(half_hours.reshape(-1, 2).mean(axis=1), index=pd.date_range("2000-06-05", periods=half_hours.size // 2, freq="h"))
+    taylor = taylor_hourly()
     out += [(f"forecast/taylor:hourly@{start}", taylor.iloc[start:start + LENGTH]) for start in TAYLOR_STARTS]
     return out
 
@@ -85,9 +81,7 @@ def evaluate(name: str, values: pd.Series, windows: list[int | None]) -> dict:
     """Identify ``values`` less its last day under each window (None: whole) and score the forecasts."""
     train, actual = values.iloc[:-HOLDOUT], values.iloc[-HOLDOUT:].to_numpy()
     y = train.to_numpy(dtype=float)
-    scale = float(np.nanmean(np.abs(y[PERIOD:] - y[:-PERIOD])))
-    last_season = pd.Series(y).interpolate().to_numpy()[-PERIOD:]
-    row: dict = {"name": name, "snaive": float(np.mean(np.abs(actual - last_season)) / scale)}
+    row: dict = {"name": name, "snaive": mase(actual, seasonal_naive_forecast(y, HOLDOUT, PERIOD), y, PERIOD)}
     for window in windows:
         # The rule's limits are module constants of the engine, set here for this worker.
         identify.LONG_SERIES = LENGTH if window is None else ENGINE_LONG_SERIES
@@ -98,7 +92,7 @@ def evaluate(name: str, values: pd.Series, windows: list[int | None]) -> dict:
         model = found.suggested.model
         forecast = forecast_order(y, model, found.transform, HOLDOUT)
         row[str(window)] = {"order": model.label(), "trend": model.trend, "transform": found.transform.kind,
-                            "mase": float(np.mean(np.abs(actual - forecast.mean)) / scale), "cpu_seconds": cpu}
+                            "mase": mase(actual, forecast.mean, y, PERIOD), "cpu_seconds": cpu}
     return row
 
 

