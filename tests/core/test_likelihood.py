@@ -44,8 +44,11 @@ def test_stationary_state_covariance_solves_the_lyapunov_equation():
     transition[:ar.size, 0] = ar
     transition[np.arange(r - 1), np.arange(1, r)] = 1
     loading = np.r_[1.0, ma, np.zeros(r - 1 - ma.size)]
-    got = likelihood._stationary_covariance(np.r_[ar, np.zeros(r - ar.size)], loading)
-    np.testing.assert_allclose(got, scipy.linalg.solve_discrete_lyapunov(transition, np.outer(loading, loading)), rtol=1e-9, atol=1e-9)
+    coef = np.r_[ar, np.zeros(r - ar.size)]
+    expected = scipy.linalg.solve_discrete_lyapunov(transition, np.outer(loading, loading))
+    np.testing.assert_allclose(likelihood._stationary_covariance(coef, loading), expected, rtol=1e-9, atol=1e-9)
+    # The Chandrasekhar recursions start from its first column alone.
+    np.testing.assert_allclose(likelihood._stationary_first_column(coef, loading), expected[:, 0], rtol=1e-9, atol=1e-9)
 
 
 def _random_case(rng: np.random.Generator):
@@ -146,10 +149,34 @@ def test_compiled_optimiser_reaches_scipy_lbfgsb_minimum(spec, ar, ma):
         return value, likelihood._gradient(u, value, True, *args)[0]
 
     reference = minimize(objective_and_gradient, start, jac=True, method="L-BFGS-B", options={"ftol": 1e-14, "gtol": 1e-10})
-    u, value, converged, _, _ = likelihood._maximise(start, *args, likelihood.MAX_ITERATIONS, 0.0)
+    u, value, converged, _, _ = likelihood._maximise(start, *args, likelihood.MAX_ITERATIONS, 0.0, np.zeros(0), 0.0)
     assert converged
     assert value * w.size == pytest.approx(reference.fun * w.size, abs=1e-6)
     np.testing.assert_allclose(u, reference.x, atol=1e-3)
+
+
+def test_a_later_start_stops_next_to_the_optimum_an_earlier_one_reached():
+    # Airline model of monthly Mauna Loa CO2 (statsmodels.datasets.co2): the run from a second
+    # start, told the first run's optimum, ends within BASIN_RADIUS and BASIN_RISE of it, short of
+    # the steps it takes on its own, which end at the same optimum.
+    import statsmodels.api as sm
+
+    monthly = sm.datasets.co2.load_pandas().data["co2"].resample("MS").mean().loc["1958-03":"2001-12"].interpolate()
+    y = monthly.to_numpy()
+    w = np.diff(y[12:] - y[:-12])
+    args = (w, np.zeros((w.size, 0)), 0, 1, 0, 1, 12)
+    none = np.zeros(0)
+    known_u, known_f, known_ok, _, _ = likelihood._maximise(np.array([0.5, 2.5]), *args, likelihood.MAX_ITERATIONS, 0.0, none, 0.0)
+    assert known_ok
+    alone = likelihood._maximise(np.zeros(2), *args, likelihood.MAX_ITERATIONS, 0.0, none, 0.0)
+    assert (alone[1] - known_f) * w.size == pytest.approx(0.0, abs=1e-6)
+    u, value, converged, steps, _ = likelihood._maximise(np.zeros(2), *args, likelihood.MAX_ITERATIONS, 0.0, known_u, known_f)
+    assert not converged and steps < alone[3]
+    assert np.abs(u - known_u).max() < likelihood.BASIN_RADIUS
+    assert 0.0 <= (value - known_f) * w.size < likelihood.BASIN_RISE
+    # fit_arma keeps the optimum the first run reached, converged.
+    fit = fit_arma(w, ArmaSpec(0, 1, 0, 1, 12), starts=[np.array([0.5, 2.5]), np.zeros(2)])
+    assert fit.converged and fit.loglik == pytest.approx(-known_f * w.size, abs=1e-6)
 
 
 def test_seasonal_ma_likelihood_equals_sarimax_where_the_filter_pauses_within_a_season():
