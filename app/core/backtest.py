@@ -171,8 +171,8 @@ def forecast_order(
     effects = intervention_effects([i for i in interventions if i.position < y.size], y.size + steps)
     z = apply_transform(y, transform) - effects[:y.size]
     fit = fit_candidate(z, model)
-    params = np.array([p.value for p in fit.params])
-    # fit.params are in statsmodels ARIMA's order (deterministic terms, AR, MA, seasonal AR,
+    params = fit.estimates()
+    # The estimates are in statsmodels ARIMA's order (deterministic terms, AR, MA, seasonal AR,
     # seasonal MA, sigma2) and with its meaning (regression with ARMA errors).
     levels_model = ARIMA(
         z, order=model.order, seasonal_order=model.seasonal_order, trend=model.trend,

@@ -60,6 +60,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 from scipy.special import chdtrc
@@ -88,7 +89,7 @@ class CandidateFit:
     nobs: int
     n_params: int
     converged: bool
-    params: list[Parameter]
+    term_names: list[str]
     ljung_box_p: float | None
     ljung_box_lags: int
     residual_correlogram: Correlogram
@@ -96,6 +97,28 @@ class CandidateFit:
     flags: list[str] = field(default_factory=list)
     source: list[str] = field(default_factory=list)
     estimate: ArmaFit | None = field(default=None, repr=False)
+
+    @cached_property
+    def params(self) -> list[Parameter]:
+        """The estimates in statsmodels ARIMA's order (deterministic terms named ``term_names``,
+        then the ARMA coefficients) with their standard errors, and ``sigma2``; built when first
+        asked for, since the standard errors are (:attr:`app.core.likelihood.ArmaFit.standard_errors`)."""
+        estimate = self.estimate
+        if estimate is None:
+            return []
+        spec = estimate.spec
+        se = estimate.standard_errors
+        errors = [*se[spec.n_coefficients:], *se[:spec.n_coefficients], math.nan]
+        names = [*self.term_names, *spec.names(), "sigma2"]
+        return [Parameter(name, float(value), _finite_or_none(float(error)))
+                for name, value, error in zip(names, self.estimates(), errors)]
+
+    def estimates(self) -> np.ndarray:
+        """The values of :attr:`params`, in its order, without their standard errors."""
+        estimate = self.estimate
+        if estimate is None:
+            return np.zeros(0)
+        return np.r_[estimate.beta, estimate.coefficients, estimate.sigma2]
 
     @property
     def passes_ljung_box(self) -> bool:
@@ -291,19 +314,11 @@ def fit_candidate(
     flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
     flags += root_flags(*factor_roots(spec, estimate.coefficients))
     nlags = min(lag_count(n, model.seasonal_order[3] or None), resid.size - 1)
-    se = estimate.standard_errors
-    values = np.r_[estimate.beta, estimate.coefficients]
-    errors = np.r_[se[spec.n_coefficients:], se[:spec.n_coefficients]]
-    params = [
-        Parameter(name, float(value), _finite_or_none(float(error)))
-        for name, value, error in zip(names + spec.names(), values, errors)
-    ]
-    params.append(Parameter("sigma2", estimate.sigma2, None))
-    k, loglik = len(params), estimate.loglik
+    k, loglik = len(names) + spec.n_coefficients + 1, estimate.loglik  # sigma2 counted
     criteria = information_criteria(loglik, k, n)
     return CandidateFit(
         model=model, loglik=loglik, aic=criteria["aic"], aicc=criteria["aicc"], bic=criteria["bic"], hqic=criteria["hqic"], nobs=n,
-        n_params=k, converged=estimate.converged, params=params, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
+        n_params=k, converged=estimate.converged, term_names=names, ljung_box_p=_ljung_box_p(resid, h, model.n_arma),
         ljung_box_lags=h, residual_correlogram=residual_correlogram(resid, nlags), residuals=resid, flags=flags, estimate=estimate,
     )
 

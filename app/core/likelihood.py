@@ -60,7 +60,8 @@ evaluations rather than the bookkeeping around them.
   0.4-1.3 log-likelihood units, all of over-parameterised seasonal orders.
 * Standard errors: from a central-difference Hessian of the log-likelihood (variance still
   concentrated out) in the model's own coefficients and the regression coefficients; the
-  inverse of a profile Hessian is the matching block of the full inverse Hessian.
+  inverse of a profile Hessian is the matching block of the full inverse Hessian; computed
+  when first asked for (:attr:`ArmaFit.standard_errors`), as most fits are never shown.
 
 References
 ----------
@@ -102,7 +103,8 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 
@@ -178,7 +180,7 @@ class ArmaFit:
     ``residuals`` are the one-step prediction errors ``w_t - E(w_t | w_1..w_{t-1})``, NaN where
     ``w_t`` is missing; ``sigma2`` is profiled over the observed points.
     ``unconstrained`` is the optimum in the optimiser's coordinates, a start for a larger order
-    (:func:`nested_start`).
+    (:func:`nested_start`). ``inputs`` are the series and design it was fitted to.
     """
 
     spec: ArmaSpec
@@ -186,12 +188,20 @@ class ArmaFit:
     beta: np.ndarray
     sigma2: float
     loglik: float
-    standard_errors: np.ndarray
     residuals: np.ndarray
     ar_polynomial: np.ndarray
     ma_polynomial: np.ndarray
     converged: bool
     unconstrained: np.ndarray
+    inputs: tuple[np.ndarray, np.ndarray] = field(repr=False, compare=False)
+
+    @cached_property
+    def standard_errors(self) -> np.ndarray:
+        """Computed when first asked for: the central-difference Hessian costs ``2 k^2``
+        likelihood evaluations for ``k`` parameters, and most fits of a search (those of the
+        orders and scales that lose) are never shown with their errors."""
+        w, x = self.inputs
+        return _standard_errors(w, x, self.spec, self.coefficients, self.beta)
 
 
 # --- compiled core -----------------------------------------------------------------------------
@@ -1002,9 +1012,8 @@ def _finished(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, u: np.ndarray, logli
     residuals = innovations[0] - beta @ innovations[1:]
     return ArmaFit(
         spec=spec, coefficients=coefficients, beta=beta, sigma2=float((s_ww - s_xw @ beta) / observed),
-        loglik=float(loglik), standard_errors=_standard_errors(w, x, spec, coefficients, beta),
-        residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
-        converged=converged, unconstrained=u,
+        loglik=float(loglik), residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
+        converged=converged, unconstrained=u, inputs=(w, x),
     )
 
 

@@ -236,6 +236,7 @@ def lagdesk_choice(train: pd.Series, name: str) -> Choice:
         ident = identify_series(train, name, EngineOptions(criterion=os.environ.get(CRITERION_ENV, "bic")))
     except SeriesProblem as exc:
         raise LagdeskRefused(str(exc)) from None
+    ident.to_analysis()  # what the product stores, standard errors of every candidate included
     cpu = time.process_time() - start
     model = ident.suggested.model
     return Choice(model.order, model.seasonal_order, model.trend, ident.transform.kind,

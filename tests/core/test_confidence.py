@@ -51,8 +51,9 @@ def _with_gain(fit: CandidateFit, lead: CandidateFit, statistic: float) -> Candi
 
 def _ar(fit: CandidateFit, phi: list[float], nobs: int) -> CandidateFit:
     """``fit`` as an AR(len(phi)) with those coefficients, fitted on ``nobs`` observations."""
-    params = [Parameter("const", 10.0, None)] + [Parameter(f"ar.L{i}", v, None) for i, v in enumerate(phi, 1)]
-    return replace(fit, model=Order(len(phi), 0, 0, trend="c"), params=params, nobs=nobs)
+    ar = replace(fit, model=Order(len(phi), 0, 0, trend="c"), nobs=nobs)
+    ar.params = [Parameter("const", 10.0, None)] + [Parameter(f"ar.L{i}", v, None) for i, v in enumerate(phi, 1)]
+    return ar
 
 
 @pytest.mark.parametrize("outer, inner, expected", [
@@ -128,5 +129,6 @@ def test_an_ar_root_within_dickey_fuller_reach_of_one_is_not_firm(fits, nobs, do
 @pytest.mark.parametrize("n, doubt", [(120, True), (MIN_DIFFERENCED_LENGTH - 1, True), (MIN_DIFFERENCED_LENGTH, False)])
 def test_a_differenced_suggestion_of_a_short_series_is_not_firm(fits, n, doubt):
     assert MIN_DIFFERENCED_LENGTH == 282  # 14.1 / (1 - 0.95), rounded up
-    walk = replace(fits["wn"], model=Order(0, 1, 0), params=[Parameter("sigma2", 1.0, None)], nobs=n - 1)
+    walk = replace(fits["wn"], model=Order(0, 1, 0), nobs=n - 1)
+    walk.params = [Parameter("sigma2", 1.0, None)]
     assert (unit_root_doubt(walk) is not None) is doubt

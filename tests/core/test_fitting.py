@@ -112,6 +112,18 @@ def test_standard_errors_equal_statsmodels_numerical_hessian(case):
     np.testing.assert_allclose(got, np.asarray(ref.bse)[:-1], rtol=2e-3)
 
 
+def test_standard_errors_wait_until_asked_for(air_passengers):
+    # Most fits of a search are never shown with their errors, so their Hessian (2 k^2
+    # likelihood evaluations) is not computed until params is read; the estimates are there
+    # without it, the same values params then gives.
+    fit = fit_candidate(air_passengers, validate_order((0, 1, 1), (0, 1, 1, 12)))
+    assert fit.estimate is not None and "standard_errors" not in vars(fit.estimate)
+    values = fit.estimates()
+    assert "standard_errors" not in vars(fit.estimate)
+    np.testing.assert_array_equal(values, [p.value for p in fit.params])
+    assert "standard_errors" in vars(fit.estimate) and all(p.se is not None for p in fit.params[:-1])
+
+
 def test_fit_reaches_the_optimum_of_statsmodels_default_arima(case):
     # Speed is never bought with worse optima: the log-likelihood is at least what statsmodels'
     # default ARIMA fit reaches for the order, up to its optimiser's tolerance.
