@@ -169,7 +169,7 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
 
 def choose_transform(
     x: np.ndarray, period: int | None, order_label: str, lost: int, scale: TransformChoice,
-    loglik_on: Callable[[TransformChoice], float],
+    loglik_on: Callable[[TransformChoice], float], first: int = 1,
 ) -> TransformChoice:
     """No transform, the log, or Box-Cox, by the likelihood of the original data under one order.
 
@@ -205,6 +205,9 @@ def choose_transform(
     loglik_on : callable
         The order's maximised log-likelihood on the series under a given transform (NaN when
         it cannot be fitted).
+    first : int
+        The number the words give the first point of ``x``: more than 1 when ``x`` is the
+        recent stretch of a longer series.
 
     References
     ----------
@@ -231,7 +234,7 @@ def choose_transform(
     on = "the series as observed" if scale.kind == "none" else f"the {scale.name()} scale"
     words.append(
         f"Under {order_label}, the leader on {on}, the log-likelihoods of the original data (Jacobian of the "
-        f"transform included, observations {lost + 1}-{values.size}) are: "
+        f"transform included, observations {first + lost}-{first + values.size - 1}) are: "
         + ", ".join(f"{c.name()} {ll:.1f}" for c, ll in scored) + "."
     )
 

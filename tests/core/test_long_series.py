@@ -55,6 +55,9 @@ def test_the_search_reads_the_recent_stretch_and_says_so(long_rule):
     note = analysis.data_notes[0]
     assert note.startswith(f"Long series ({N} points, more than {LONG})") and f"most recent {WINDOW} points" in note
     assert "refitted on the whole series" in note
+    # The transforms were weighed on the stretch, and the words number its points in the whole series.
+    weighed = next(w for w in analysis.transform.explanation if "log-likelihoods of the original data" in w)
+    assert f"observations {N - WINDOW + 1 + best.lost_to_differencing}-{N})" in weighed
 
 
 def test_an_outlier_in_the_stretch_is_placed_in_the_whole_series(long_rule):
