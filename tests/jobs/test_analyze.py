@@ -19,9 +19,17 @@ from simulated_portfolio import SHORT_SERIES_ID, write_portfolio_csv
 from threadpoolctl import threadpool_limits
 
 from app.core.analysis import Analysis
-from app.core.identify import EngineOptions
+from app.core.identify import LONG_SERIES, SEARCH_WINDOW, EngineOptions
 from app.core.portfolio_file import read_portfolio
-from app.jobs.analyze import AnalysisInProgress, begin_analysis, heaviest_first, run_analysis, start_background_analysis
+from app.jobs.analyze import (
+    REFIT_SHARE,
+    AnalysisInProgress,
+    begin_analysis,
+    expected_cost,
+    heaviest_first,
+    run_analysis,
+    start_background_analysis,
+)
 from app.jobs.work import SeriesTask, identify_task
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import open_database
@@ -103,6 +111,17 @@ def test_runs_take_the_most_expensive_series_first():
     assert heaviest_first(sorted(sizes), sizes, "auto") == ["h", "m", "d1", "d2", "y"]
     assert heaviest_first(sorted(sizes), sizes, None) == ["y", "h", "d1", "d2", "m"]
     assert heaviest_first(sorted(sizes), sizes, 4) == ["y", "h", "d1", "d2", "m"]
+
+
+def test_a_long_series_costs_its_search_window_and_a_share_for_the_refits():
+    # Past LONG_SERIES points only the last SEARCH_WINDOW are searched (app.core.identify): an
+    # hourly series of 20,000 points costs the window plus 20,000 / REFIT_SHARE points, a little
+    # more than one just over the limit and less than 2,000 points searched whole would.
+    assert expected_cost(LONG_SERIES, "h", "auto") == LONG_SERIES * 24**2
+    assert expected_cost(20_000, "h", "auto") == (SEARCH_WINDOW + 20_000 // REFIT_SHARE) * 24**2
+    assert expected_cost(LONG_SERIES + 1, "h", "auto") < expected_cost(20_000, "h", "auto") < 2_000 * 24**2
+    sizes = {"long": (20_000, "h"), "limit": (LONG_SERIES, "h")}
+    assert heaviest_first(sorted(sizes), sizes, "auto") == ["limit", "long"]
 
 
 def test_series_sizes_are_the_stored_length_and_frequency(db_path, read_db):
