@@ -52,9 +52,9 @@ evaluations rather than the bookkeeping around them.
   the long autoregression, and the optimum of any smaller order the caller passes
   (:func:`nested_start`); the best optimum is kept, which protects against the local optima a
   single start can end in. Most later starts lead to the optimum an earlier one reached; such a
-  run stops as soon as it is next to that optimum (:data:`BASIN_RADIUS`). White noise is a start of its own only where no regression start
-  exists (a short series); elsewhere it competes only to be the one a screen continues from
-  (:func:`screen_arma`). Measured over the 3,509 fits the engine made on 75 real series
+  run stops as soon as it is next to that optimum (:data:`BASIN_RADIUS`). White noise is a
+  start of its own only where no regression start exists (a short series); elsewhere it
+  competes only to be the one a screen continues from (:func:`screen_arma`). Measured over the 3,509 fits the engine made on 75 real series
   (monthly, quarterly, weekly, daily, yearly): the runs from white noise took 34% of all
   optimiser steps and reached a higher optimum than every other start in 8 fits (0.2%), by
   0.4-1.3 log-likelihood units, all of over-parameterised seasonal orders.
