@@ -260,7 +260,13 @@ def screen_candidate(y: np.ndarray, model: Order, fitted: Iterable[CandidateFit]
     of :func:`fit_candidate`, nested ones from ``fitted`` included)."""
     w, names, design, spec = _model_data(y, model)
     screen = screen_arma(w, spec, design, _nested_starts(model, fitted))
-    return ScreenedCandidate(screen, len(names) + spec.n_coefficients + 1, int(np.count_nonzero(~np.isnan(w))))
+    return ScreenedCandidate(screen, _parameter_count(names, spec), int(np.count_nonzero(~np.isnan(w))))
+
+
+def _parameter_count(names: list[str], spec: ArmaSpec) -> int:
+    """The estimated parameters of a model: its deterministic terms ``names``, the ARMA
+    coefficients of ``spec`` and the innovation variance."""
+    return len(names) + spec.n_coefficients + 1
 
 
 def _model_data(y: np.ndarray, model: Order) -> tuple[np.ndarray, list[str], np.ndarray | None, ArmaSpec]:
@@ -276,7 +282,7 @@ def _model_data(y: np.ndarray, model: Order) -> tuple[np.ndarray, list[str], np.
     w = difference(y, model)
     names, design = trend_design(np.asarray(y).size, model)
     spec = model.arma_spec()
-    observed, needed = int(np.count_nonzero(~np.isnan(w))), len(names) + spec.n_coefficients + 3
+    observed, needed = int(np.count_nonzero(~np.isnan(w))), _parameter_count(names, spec) + 2
     if observed < needed:
         raise ValueError(f"only {observed} of the {w.size} values after differencing are observed (gaps); "
                          f"{model.label()} needs at least {needed}")
@@ -314,7 +320,7 @@ def fit_candidate(
     flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
     flags += root_flags(*factor_roots(spec, estimate.coefficients))
     nlags = min(lag_count(n, model.seasonal_order[3] or None), resid.size - 1)
-    k, loglik = len(names) + spec.n_coefficients + 1, estimate.loglik  # sigma2 counted
+    k, loglik = _parameter_count(names, spec), estimate.loglik
     criteria = information_criteria(loglik, k, n)
     return CandidateFit(
         model=model, loglik=loglik, aic=criteria["aic"], aicc=criteria["aicc"], bic=criteria["bic"], hqic=criteria["hqic"], nobs=n,

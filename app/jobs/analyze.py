@@ -39,11 +39,11 @@ from app.store.series import load_series, series_fingerprint, series_ids_to_anal
 
 # How long a caller waits for the run record of a run that holds the lock but is still starting.
 STARTING_RUN_WAIT_S = 5.0
+_STARTING_RUN_POLL_S = 0.05
 # The whole-series refits of a long series cost this many times less per point than its search
 # on the recent points: 0.18 s against 7.5 s for the hourly JFK temperatures (1,344 points, 672
 # searched; tests/benchmarks/real_forecasts.py), per point 1/80.
 REFIT_SHARE = 80
-_STARTING_RUN_POLL_S = 0.05
 
 log = logging.getLogger(__name__)
 
