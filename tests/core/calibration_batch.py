@@ -27,7 +27,7 @@ from accuracy_batch import PROCESSES as ACCURACY_PROCESSES
 from accuracy_batch import SimulatedSeries, simulate
 
 SEED = 20270315
-LENGTHS = (120, 400)
+LENGTHS = (120, 200, 400)
 REPLICATIONS = 8
 
 

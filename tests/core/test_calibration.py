@@ -1,13 +1,16 @@
 """How often ``firm`` is right, per length band, on the seeded calibration batch.
 
 28 processes (tests/core/calibration_batch.py: the accuracy batch's 21, four weak-signal ones,
-a near unit root, two differenced ones with and without drift) x 8 replications at n = 120 and
-n = 400: 448 series. Per length the test measures the *firm share* (the share of series whose
-suggestion is ``firm``) and the *firm precision* (the share of firm suggestions whose (p, d, q)
-is exactly the simulated order, d included), writes them to test-artifacts/calibration.json
-with the figures per process, and asserts the targets of the issue "Suggestions that hold on
-real series": precision at least 0.90 at n = 120 and 0.95 at n = 400, share at least 0.25 at
-n = 400. The confidence rule (app/core/confidence.py) was tuned on this batch and seed.
+a near unit root, two differenced ones with and without drift) x 8 replications at n = 120,
+200 and 400: 672 series. Per length the test measures the *firm share* (the share of series
+whose suggestion is ``firm``) and the *firm precision* (the share of firm suggestions whose
+(p, d, q) is exactly the simulated order, d included), writes them to
+test-artifacts/calibration.json with the figures per process, and asserts the targets of the
+issue "Suggestions that hold on real series" that the rule can keep: at n = 400 precision at
+least 0.95 and share at least 0.25; at n = 120, under :data:`app.core.confidence.MIN_FIRM_LENGTH`,
+no firm suggestion at all (rule 5 of app/core/confidence.py: the issue's 0.90 held on the tuning
+seed only, 0.79 pooled over five). n = 200 is measured and reported, not asserted. The
+confidence rule was tuned on this batch and seed.
 """
 
 from __future__ import annotations
@@ -22,11 +25,12 @@ import pandas as pd
 import pytest
 from calibration_batch import LENGTHS, REPLICATIONS, SEED, calibration_batch
 
+from app.core.confidence import MIN_FIRM_LENGTH
 from app.jobs.executors.blas import pin_blas_threads
 
 pytestmark = pytest.mark.slow
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
-PRECISION_TARGETS = {120: 0.90, 400: 0.95}
+PRECISION_TARGETS = {400: 0.95}
 SHARE_TARGETS = {400: 0.25}
 Order = tuple[int, int, int]
 Outcome = tuple[Order, str]
@@ -69,7 +73,8 @@ def measured() -> dict[int, dict]:
     (ARTIFACTS / "calibration.json").write_text(json.dumps(
         {"seed": SEED, "replications": REPLICATIONS, "lengths": {str(n): f for n, f in figures.items()}}, indent=2))
     for n, f in figures.items():
-        print(f"calibration n={n}: firm share {f['firm_share']:.3f}  firm precision {f['firm_precision']:.3f}  "
+        precision = "-" if f["firm_precision"] is None else f"{f['firm_precision']:.3f}"
+        print(f"calibration n={n}: firm share {f['firm_share']:.3f}  firm precision {precision}  "
               f"({f['firm']} firm of {f['series']})  exact {f['exact']:.3f}")
     return figures
 
@@ -82,3 +87,9 @@ def test_calibration_firm_suggestions_are_exactly_right_often_enough(measured, n
 @pytest.mark.parametrize("n, target", sorted(SHARE_TARGETS.items()))
 def test_calibration_firm_covers_enough_of_long_series(measured, n, target):
     assert measured[n]["firm_share"] >= target
+
+
+def test_calibration_no_series_too_short_to_rule_out_a_weak_term_is_firm(measured):
+    short = [n for n in measured if n < MIN_FIRM_LENGTH]
+    assert short == [120]
+    assert all(measured[n]["firm"] == 0 for n in short)

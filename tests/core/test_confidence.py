@@ -2,7 +2,8 @@
 
 Check values: the chi-square upper 5% point for one degree of freedom is 3.841 and for two
 5.991 (any chi-square table); Wilks (1938) for the likelihood-ratio test; the Dickey-Fuller
-normalised-bias 5% point with a mean, about -14.1 (Fuller 1976, Table 8.5.1, from memory).
+normalised-bias 5% point with a mean, about -14.1 (Fuller 1976, Table 8.5.1, from memory); the
+power of the likelihood-ratio test against scipy's noncentral chi-square.
 """
 
 from __future__ import annotations
@@ -11,16 +12,20 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from scipy.stats import chi2, ncx2
 
 from app.core.analysis import Parameter
 from app.core.confidence import (
     MIN_DIFFERENCED_LENGTH,
+    MIN_FIRM_LENGTH,
     NESTED_LEVEL_LONG,
     NESTED_LEVEL_SHORT,
     largest_real_ar_root,
     nested_level,
     score_confidence,
+    short_series_doubt,
     unit_root_doubt,
+    weak_term_power,
 )
 from app.core.fitting import CandidateFit, fit_candidate
 from app.core.order import Order
@@ -132,3 +137,26 @@ def test_a_differenced_suggestion_of_a_short_series_is_not_firm(fits, n, doubt):
     walk = replace(fits["wn"], model=Order(0, 1, 0), nobs=n - 1)
     walk.params = [Parameter("sigma2", 1.0, None)]
     assert (unit_root_doubt(walk) is not None) is doubt
+
+
+@pytest.mark.parametrize("nobs", [50, 120, 188, 189, 400])
+def test_weak_term_power_is_the_noncentral_chi_square_tail(nobs):
+    # Noncentrality n phi^2 / (1 - phi^2) for phi = 0.2 (Brockwell & Davis 1991, §8.8).
+    expected = ncx2.sf(chi2.isf(0.05, 1), 1, nobs * 0.04 / 0.96)
+    assert weak_term_power(nobs) == pytest.approx(expected, rel=1e-9)
+
+
+def test_min_firm_length_is_where_the_power_reaches_eighty_percent():
+    assert MIN_FIRM_LENGTH == 189  # 7.849 * 0.96 / 0.04 = 188.4, rounded up
+    assert weak_term_power(MIN_FIRM_LENGTH - 1) < 0.80 <= weak_term_power(MIN_FIRM_LENGTH)
+
+
+@pytest.mark.parametrize("nobs, firm", [(120, False), (MIN_FIRM_LENGTH - 1, False), (MIN_FIRM_LENGTH, True)])
+def test_a_clean_suggestion_fitted_on_too_few_observations_is_not_firm(fits, nobs, firm):
+    lead = replace(fits["wn"], nobs=nobs)
+    score = score_confidence([lead], [], "bic")
+    assert (score.level == Confidence.FIRM) is firm
+    assert (short_series_doubt(lead) is None) is firm
+    if not firm:
+        assert score.reasons == [short_series_doubt(lead)]
+        assert f"{nobs} observations" in score.reasons[0] and f"needs {MIN_FIRM_LENGTH}" in score.reasons[0]

@@ -42,9 +42,11 @@ def _arma(rng: np.random.Generator, n: int, ar=(), ma=(), burn: int = 100) -> np
 
 
 def synthetic_series(seed: int = 20240601) -> dict[str, np.ndarray]:
-    """Invented series, each from a known simple process (daily, so the time axis is dates)."""
+    """Invented series, each from a known simple process (daily, so the time axis is dates). The
+    last two are long enough to be firm (app/core/confidence.py, rule 5), one inside plant-b/ and
+    one outside; they are drawn last, so the others keep their draws."""
     rng = np.random.default_rng(seed)
-    return {
+    series = {
         "plant-a/line-1/ar1": 5 + _arma(rng, 150, ar=(0.7,)),
         "plant-a/line-2/ma1": 2 + _arma(rng, 150, ma=(0.6,)),
         "plant-b/walk": 50 + np.cumsum(rng.normal(size=150)),
@@ -53,6 +55,9 @@ def synthetic_series(seed: int = 20240601) -> dict[str, np.ndarray]:
         AWKWARD_ID: 10 + _arma(rng, 25, ar=(0.4,)),
         CONSTANT_ID: np.full(40, 3.0),
     }
+    series["plant-c/ar1-long"] = 5 + _arma(rng, 200, ar=(0.7,))
+    series["plant-b/ma1-long"] = 2 + _arma(rng, 200, ma=(0.6,))
+    return series
 
 
 def write_long_csv(path: Path, series: dict[str, np.ndarray], start: str = "2023-01-01") -> Path:
