@@ -57,7 +57,7 @@ from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
-from app.core.residual_outliers import largest_residual, moment
+from app.core.residual_outliers import largest_residual, moment, prediction_variance_ratios
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
@@ -608,7 +608,9 @@ def _finished(
         data_notes.append(demand.words())
         flags.append(Flag.INTERMITTENT_DEMAND)
         doubts.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
-    large = largest_residual(best.residuals, prepared.index)
+    ratios = (prediction_variance_ratios(best.estimate.ar_polynomial, best.estimate.ma_polynomial, best.residuals.size)
+              if best.estimate is not None else None)
+    large = largest_residual(best.residuals, prepared.index, ratios)
     if large:
         flags.append(Flag.LARGE_RESIDUAL)
         data_notes.append(large.words())

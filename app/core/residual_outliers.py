@@ -5,6 +5,11 @@ innovation variance allows. Before any outlier is modelled, the engine only need
 whether the leading model leaves such a residual, and where: that blocks ``firm`` and tells
 the reviewer what to look at.
 
+* **Rescaled residuals**: a one-step prediction error ``e_t`` of an exact-likelihood fit has
+  variance ``r_t σ²``, where ``r_t`` (:func:`prediction_variance_ratios`, the innovations
+  algorithm) falls to 1 as the filter forgets its start: the first error of a persistent
+  stationary model is predicted from the mean alone. Each error is divided by ``√r_t`` first,
+  as Brockwell & Davis (1991, §9.4, from memory) rescale ARMA residuals for diagnostic checking.
 * **Scale**: the residuals are divided by a robust estimate of the innovation standard
   deviation, ``1.483 × median |e_t − median(e)|`` (the median absolute deviation, consistent
   for the normal), so that the outliers themselves do not inflate it. Chen & Liu (1993) use a
@@ -35,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
+from statsmodels.tsa.innovations.arma_innovations import arma_innovations
 
 MAD_TO_SD = 1.4826
 FAMILY_LEVEL = 0.05
@@ -65,7 +71,18 @@ def robust_scale(residuals: np.ndarray) -> float:
     return float(MAD_TO_SD * np.median(np.abs(e - np.median(e))))
 
 
-def largest_residual(residuals: np.ndarray, index: pd.Index) -> LargeResidual | None:
+def prediction_variance_ratios(ar_polynomial: np.ndarray, ma_polynomial: np.ndarray, n: int) -> np.ndarray:
+    """``r_t``, the one-step prediction error variance over the innovation variance, for the first
+    ``n`` steps of the stationary ARMA with these polynomials (innovations algorithm, Brockwell &
+    Davis 1991, §5.2, from memory; statsmodels' ``arma_innovations``); ones when it refuses them."""
+    try:
+        _, ratios = arma_innovations(np.zeros(n), ar_params=-np.asarray(ar_polynomial)[1:], ma_params=np.asarray(ma_polynomial)[1:])
+    except (ValueError, np.linalg.LinAlgError):
+        return np.ones(n)
+    return np.asarray(ratios, dtype=float)
+
+
+def largest_residual(residuals: np.ndarray, index: pd.Index, variance_ratios: np.ndarray | None = None) -> LargeResidual | None:
     """The largest robustly standardised residual when it passes :func:`outlier_threshold`.
 
     Parameters
@@ -83,6 +100,8 @@ def largest_residual(residuals: np.ndarray, index: pd.Index) -> LargeResidual | 
         None when every residual is within the threshold, or the robust scale is zero.
     """
     e = np.asarray(residuals, dtype=float)
+    if variance_ratios is not None:
+        e = e / np.sqrt(variance_ratios)
     present = e[~np.isnan(e)]
     scale = robust_scale(present) if present.size else 0.0
     if scale <= 0.0:

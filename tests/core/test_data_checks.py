@@ -9,11 +9,14 @@ import pandas as pd
 import pytest
 from accuracy_batch import simulate
 from scipy.stats import median_abs_deviation, norm
+from statsmodels.tsa.arima.model import ARIMA
 
 from app.core.demand import classify_demand
 from app.core.errors import SeriesProblem
+from app.core.fitting import fit_candidate
 from app.core.identify import EngineOptions, identify_series
-from app.core.residual_outliers import largest_residual, outlier_threshold, robust_scale
+from app.core.order import validate_order
+from app.core.residual_outliers import largest_residual, outlier_threshold, prediction_variance_ratios, robust_scale
 from app.core.vocabulary import Confidence, Flag
 
 
@@ -137,3 +140,46 @@ def test_a_period_longer_than_the_series_is_refused_naming_the_series_once():
     with pytest.raises(SeriesProblem) as refused:
         identify_series(y, "plant/x", EngineOptions(period=40))
     assert str(refused.value).count("plant/x") == 1 and "seasonal period 40 is not shorter than the series" in str(refused.value)
+
+
+def _persistent_ar1(n: int = 300) -> np.ndarray:
+    """AR(1), phi = 0.98, unit innovations, started ten innovation SDs (two stationary SDs) above its mean."""
+    rng = np.random.default_rng(4)
+    y = np.empty(n)
+    y[0] = 10.0
+    for t in range(1, n):
+        y[t] = 0.98 * y[t - 1] + rng.normal()
+    return y
+
+
+def _arma11(n: int = 300) -> np.ndarray:
+    """ARMA(1,1), phi = 0.9, theta = 0.7 (statsmodels' sign: 1 + theta B), around a mean of 10."""
+    return simulate((1, 0, 1), [0.9], [0.7], n, np.random.default_rng(5))
+
+
+@pytest.mark.parametrize("series, order", [(_persistent_ar1, (1, 0, 0)), (_arma11, (1, 0, 1))])
+def test_rescaled_residuals_equal_statsmodels_standardized_forecast_errors(series, order):
+    # A one-step error e_t has variance r_t sigma^2 (Brockwell & Davis 1991, innovations
+    # algorithm); e_t / sqrt(r_t sigma^2) is what statsmodels' Kalman filter reports as the
+    # standardized forecast error v_t / sqrt(F_t) (reference library), at the same estimates.
+    # The ARMA(1,1) checks the sign of the MA polynomial handed to the innovations algorithm.
+    y = series()
+    fit = fit_candidate(y, validate_order(order, (0, 0, 0, 0), trend="c"))
+    ratios = prediction_variance_ratios(fit.estimate.ar_polynomial, fit.estimate.ma_polynomial, fit.residuals.size)
+    reference = ARIMA(y, order=order, trend="c").filter(np.array([p.value for p in fit.params]))
+    np.testing.assert_allclose(fit.residuals / np.sqrt(ratios * fit.estimate.sigma2),
+                               reference.standardized_forecasts_error[0], rtol=1e-6, atol=1e-8)
+    if order == (1, 0, 0):
+        assert ratios[0] == pytest.approx(1.0 / (1.0 - fit.estimate.coefficients[0] ** 2), rel=1e-9)  # gamma_0 / sigma^2
+
+
+def test_the_first_point_of_a_persistent_series_is_not_a_large_residual():
+    # Predicted from the mean alone, the first error of a persistent AR is large against the
+    # innovation SD (about 10 here) but ordinary against its own prediction SD.
+    y = _persistent_ar1()
+    fit = fit_candidate(y, validate_order((1, 0, 0), (0, 0, 0, 0), trend="c"))
+    index = pd.RangeIndex(y.size)
+    raw = largest_residual(fit.residuals, index)
+    assert raw is not None and raw.position == 0
+    ratios = prediction_variance_ratios(fit.estimate.ar_polynomial, fit.estimate.ma_polynomial, fit.residuals.size)
+    assert largest_residual(fit.residuals, index, ratios) is None
