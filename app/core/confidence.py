@@ -254,6 +254,12 @@ def short_series_doubt(fit: CandidateFit) -> str | None:
             f"{MIN_POWER:.0%})")
 
 
+def _level_words(n: int) -> str:
+    """The level of rule 3 for a series of ``n`` observations, with its length band, in words."""
+    band = f"shorter than {SHORT_SERIES} observations" if n < SHORT_SERIES else f"of {SHORT_SERIES} observations or more"
+    return f"the {nested_level(n) * 100:g}% level for series {band}"
+
+
 def _p_words(p: float) -> str:
     return f"= {p:.2f}" if p >= 0.01 else "< 0.01"
 
@@ -290,14 +296,16 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
     if margin < FIRM_MARGIN:
         reasons.append(f"the best rival is within {margin:.1f} of the suggestion in {criterion.upper()} rank score")
     nesting = strongest_nesting_rival(ranked)
-    if nesting is not None and nesting[1] < nested_level(best.nobs + best.model.lost_to_differencing):
+    n = best.nobs + best.model.lost_to_differencing
+    if nesting is not None and nesting[1] < nested_level(n):
         rival, p = nesting
         words = rival.model.term_words() if rival.model.trend != best.model.trend else ""
-        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test (p {_p_words(p)})")
+        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test (p {_p_words(p)}, "
+                       f"below {_level_words(n)})")
     reasons += [doubt for doubt in (unit_root_doubt(best), short_series_doubt(best)) if doubt is not None]
     if reasons:
         return ConfidenceScore(Confidence.TENTATIVE, reasons)
     clean = "clean checks" + (f"; the best rival trails by {margin:.1f}" if math.isfinite(margin) else "")
     if nesting is not None:
-        clean += f"; no larger model fits better (likelihood-ratio p {_p_words(nesting[1])} at best)"
+        clean += f"; no larger model fits better (likelihood-ratio p {_p_words(nesting[1])} at best, {_level_words(n)})"
     return ConfidenceScore(Confidence.FIRM, [clean])
