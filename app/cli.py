@@ -23,6 +23,7 @@ from contextlib import closing
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from app import __version__
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, order_label
@@ -31,6 +32,8 @@ from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_u
 from app.jobs.progress import ProgressLine
 
 if TYPE_CHECKING:
+    import socket
+
     from app.core.analysis import Analysis
     from app.core.portfolio_file import PortfolioFile
     from app.jobs.analyze import RunProgress
@@ -41,6 +44,8 @@ DECIDE_ACTIONS = {
     "approve": VerdictStatus.APPROVED, "override": VerdictStatus.OVERRIDDEN,
     "park": VerdictStatus.PARKED, "pending": VerdictStatus.PENDING, "not-arima": VerdictStatus.NOT_ARIMA,
 }
+# A file read whole whose every series was refused or could not be analysed: nothing came of it.
+EXIT_NOTHING_DONE = 1
 EXIT_INPUT_ERROR = 2
 EXIT_STORAGE_ERROR = 3
 PROG = "lagdesk"
@@ -226,6 +231,7 @@ class CommandParser(argparse.ArgumentParser):
 
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="lagdesk", description="Box-Jenkins identification and review of ARIMA orders for a portfolio of series.")
+    parser.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=CommandParser)
     commands.add_parser("identify", help="identify every series of a CSV file (one shot, no database)", add_options=_identify_options)
     commands.add_parser("import", help="import (or update) the series of a CSV file into the database", add_options=_import_options)
@@ -327,7 +333,7 @@ def _backtest_options(backtest: argparse.ArgumentParser) -> None:
         "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the suggested one when --order is not given, else none)",
     )
     backtest.add_argument("--transform", metavar="none|log|box_cox:LAMBDA", type=transform_option, help="transform (default: the analysis')")
-    backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season, or 8 for a non-seasonal order)")
+    backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season of the series, or 8 when it has no period)")
     backtest.add_argument("--origins", type=int, help=f"forecast origins (default {DEFAULT_ORIGINS})")
     backtest.add_argument("--json", action="store_true", help="print the full check as JSON on stdout")
     backtest.set_defaults(handler=run_backtest)
@@ -421,21 +427,29 @@ def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
     return settings
 
 
-def _serve(db_path: Path, args: argparse.Namespace) -> int:
-    from app.web.server import run_server
+def _listening(db_path: Path, args: argparse.Namespace) -> tuple[Settings, socket.socket]:
+    """The server's settings and its socket, bound already: a port in use is refused before
+    the command says it serves (or, for the demo, before it builds the portfolio)."""
+    from app.web.server import listening_socket
 
     settings = server_settings(db_path, args)
-    print(f"Lagdesk dashboard on {settings.url} (database {db_path}); Ctrl-C stops it.", flush=True)
-    if not args.no_browser:
+    return settings, listening_socket(settings)
+
+
+def _serve(settings: Settings, sock: socket.socket, no_browser: bool) -> int:
+    from app.web.server import run_server
+
+    print(f"Lagdesk dashboard on {settings.url} (database {settings.db_path}); Ctrl-C stops it.", flush=True)
+    if not no_browser:
         open_browser_later(settings.url)
-    run_server(settings)
+    run_server(settings, sock)
     return 0
 
 
 def run_serve(args: argparse.Namespace) -> int:
     from app.store.database import resolve_db_path
 
-    return _serve(resolve_db_path(args.db), args)
+    return _serve(*_listening(resolve_db_path(args.db), args), args.no_browser)
 
 
 def run_identify(args: argparse.Namespace) -> int:
@@ -462,7 +476,7 @@ def run_identify(args: argparse.Namespace) -> int:
         sys.stdout.write("\n")
     else:
         print(identify_table(results, problems))
-    return 0
+    return EXIT_NOTHING_DONE if problems and not results else 0
 
 
 def run_import(args: argparse.Namespace) -> int:
@@ -474,7 +488,7 @@ def run_import(args: argparse.Namespace) -> int:
     with closing(open_database(path)) as db:
         report = store_portfolio(db, portfolio)
     print(import_report_text(report, path))
-    return 0
+    return EXIT_NOTHING_DONE if report.rejected and not (report.added or report.updated or report.unchanged) else 0
 
 
 def import_report_text(report: ImportReport, db_path: Path) -> str:
@@ -761,16 +775,18 @@ def run_demo(args: argparse.Namespace) -> int:
     from app.store.database import open_database, resolve_db_path
     from app.store.status import portfolio_status
 
+    path = resolve_db_path(args.db)
+    server = None if args.build_only else _listening(path, args)
     shown = RunProgressLine("demo")
-    path = build_demo_database(
-        resolve_db_path(args.db), args.workers, on_progress=shown,
+    build_demo_database(
+        path, args.workers, on_progress=shown,
         on_import=lambda report: print(terminal_text(report.summary()), flush=True),
     )
     shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(demo_next_steps(path, status))
-    return 0 if args.build_only else _serve(path, args)
+    return 0 if server is None else _serve(*server, args.no_browser)
 
 
 def demo_next_steps(db_path: Path, status: dict) -> str:

@@ -254,6 +254,29 @@ def test_identify_series_level_problem_is_listed_and_the_rest_analysed(run_cli, 
     assert expected in found["problems"][0]["message"]
 
 
+def test_version_prints_the_package_version(capsys):
+    from app import __version__
+
+    with pytest.raises(SystemExit) as done:
+        main(["--version"])
+    assert done.value.code == 0
+    assert capsys.readouterr().out == f"lagdesk {__version__}\n"
+
+
+def test_a_file_whose_every_series_fails_exits_1_after_reporting_each(run_cli, tmp_path):
+    path = tmp_path / "all-bad.csv"
+    path.write_text("series_id,timestamp,value\n" + "".join(f"flat,{t},4.0\n" for t in range(1, 41))
+                    + "".join(f"five,{t},{t}.5\n" for t in range(1, 6)))
+
+    code, out, _ = run_cli("identify", path, "--json", "--workers", 1)
+    assert code == 1
+    assert sorted(p["series_id"] for p in json.loads(out)["problems"]) == ["five", "flat"]
+
+    code, out, _ = run_cli("import", path, "--db", tmp_path / "all-bad.db")
+    assert code == 1
+    assert out.splitlines()[0] == f"{path}: 0 added, 0 updated, 0 unchanged, 2 rejected"
+
+
 def test_import_analyze_status_end_to_end(run_cli, small_csv, tmp_path):
     db = tmp_path / "portfolio.db"
 
@@ -410,7 +433,7 @@ def test_import_and_identify_apply_the_limits_and_date_format_given(run_cli, tmp
 
     code, out, _ = run_cli("identify", path, "--max-points", "11", "--date-format", "%d/%m/%Y", "--workers", "1", "--json")
     problems = json.loads(out)["problems"]
-    assert code == 0 and [(p["series_id"], p["row"], p["flag"]) for p in problems] == [("a", 13, "too_long"), ("b", 25, "too_long"), ("c", 37, "too_long")]
+    assert code == 1 and [(p["series_id"], p["row"], p["flag"]) for p in problems] == [("a", 13, "too_long"), ("b", 25, "too_long"), ("c", 37, "too_long")]
 
     code, _, err = run_cli("import", path, "--db", db)  # 01/01/2024 ... 12/01/2024: day first or month first?
     assert code == 2 and "line 3: timestamp '02/01/2024' reads as another date day first" in err
@@ -755,3 +778,18 @@ def test_serve_takes_extra_host_names_for_the_host_check(tmp_path):
     bad = build_parser().parse_args(["serve", "--allowed-host", "a b", "--db", str(tmp_path / "x.db")])
     with pytest.raises(LagdeskError, match="allowed host 'a b'"):
         server_settings(tmp_path / "x.db", bad)
+
+
+@pytest.mark.parametrize("command", [["serve"], ["demo"]])
+def test_a_port_in_use_is_refused_in_one_line_before_serving_or_building(run_cli, tmp_path, monkeypatch, command):
+    import socket
+
+    import app.jobs.demo
+
+    monkeypatch.setattr(app.jobs.demo, "build_demo_database", lambda *a, **k: pytest.fail("the demo was built"))
+    with socket.create_server(("127.0.0.1", 0)) as taken:
+        port = taken.getsockname()[1]
+        code, out, err = run_cli(*command, "--port", port, "--no-browser", "--db", tmp_path / "x.db")
+    assert code == 2 and out == ""
+    assert err.splitlines() == [f"lagdesk {command[0]}: cannot listen on 127.0.0.1:{port}: Address already in use "
+                                "(another server, perhaps another Lagdesk, holds it: choose another with --port)"]

@@ -205,7 +205,7 @@ def export_summary(document: dict, target: Path, fmt: str) -> str:
         line += f"; {routed} series marked not_arima" + (" (listed apart in the JSON)" if fmt == "json" else " (in the JSON export only)")
     if moved:
         line += (
-            f"; {len(moved)} of them were decided on data that has changed since "
+            f"; {len(moved)} of them {'was' if len(moved) == 1 else 'were'} decided on data that has changed since "
             f"(e.g. {moved[0]!r}), marked data_changed: run the analysis to re-check them"
         )
     return line

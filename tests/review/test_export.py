@@ -281,4 +281,4 @@ def test_export_command_writes_and_summarises(db, tmp_path, portfolio_csv):
     changed[coffee].to_csv(tmp_path / "v2.csv", index=False)
     import_portfolio(db, tmp_path / "v2.csv")
     line = export_command(db_path, "json", tmp_path / "out.json")
-    assert "1 of them were decided on data that has changed since (e.g. 'hearthloaf/station-row/coffee-cake')" in line
+    assert "1 of them was decided on data that has changed since (e.g. 'hearthloaf/station-row/coffee-cake')" in line

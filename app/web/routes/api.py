@@ -325,7 +325,7 @@ def series_backtest(
     order: Annotated[str | None, Query(description="p,d,q (default: the suggested order)", examples=["0,1,1"])] = None,
     seasonal_order: Annotated[str | None, Query(description="P,D,Q,s (default: the suggested one when order is not given, else none)")] = None,
     horizon: Annotated[int | None, Query(ge=1, description=(
-        f"steps ahead (default: one season, or 8); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
+        f"steps ahead (default: one season of the series, or 8 when it has no period); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
     origins: Annotated[int | None, Query(ge=1, le=MAX_ORIGINS, description=f"forecast origins (default {DEFAULT_ORIGINS})")] = None,
 ) -> dict:
     """Rolling-origin forecast check of an order: MASE against the seasonal naive forecast, the

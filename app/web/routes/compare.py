@@ -59,7 +59,7 @@ def series_compare(
                                       examples=[["0,1,1", "1,1,0"]])],
     seasonal_order: Annotated[list[str] | None, Query(description="P,D,Q,s of each order, in the same order (default: none)")] = None,
     horizon: Annotated[int | None, Query(ge=1, description=(
-        f"steps ahead (default: one season, or 8); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
+        f"steps ahead (default: one season of the series, or 8 when it has no period); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
     origins: Annotated[int | None, Query(ge=1, le=MAX_ORIGINS, description=f"forecast origins (default {DEFAULT_ORIGINS})")] = None,
 ) -> dict:
     """The rolling-origin forecast checks of two or three orders on the same series, each as
