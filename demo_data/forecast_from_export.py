@@ -20,8 +20,8 @@ intermittent demand, Croston's method, say), which a real job would call.
 For each order it
 
 1. takes the series' rows up to the export's ``last_timestamp`` (the data the parameters were
-   fitted on), puts them on their regular time grid and fills inner gaps by linear
-   interpolation, as Lagdesk does;
+   fitted on) and puts them on their regular time grid; inner gaps stay missing, as in
+   Lagdesk's fits (the state-space model skips them exactly, nothing is invented);
 2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``) and takes
    the effects of the export's ``interventions`` out of the transformed series (version 3);
 3. builds the statsmodels ``ARIMA`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
@@ -88,7 +88,7 @@ def series_up_to(frame: pd.DataFrame, order: dict) -> pd.Series:
         grid = pd.Index(np.arange(values.index[0], values.index[-1] + 1, step))
     else:
         grid = pd.date_range(values.index[0], values.index[-1], freq=_frequency(pd.DatetimeIndex(values.index)))
-    return values.reindex(grid).interpolate(method="linear", limit_area="inside")
+    return values.reindex(grid)
 
 
 def _frequency(index: pd.DatetimeIndex) -> str:
