@@ -112,10 +112,9 @@ WEAK_TERM = 0.2
 # The test of rule 3 at 5%, and the power it must reach (Cohen 1988, common practice); not tuned.
 POWER_TEST_LEVEL = 0.05
 MIN_POWER = 0.80
+POWER_CRITICAL_Z = float(ndtri(1.0 - POWER_TEST_LEVEL / 2.0))
 # 189: the noncentrality (z_0.975 + z_0.8)^2 = 7.85 over the noncentrality per observation.
-MIN_FIRM_LENGTH = math.ceil(
-    (ndtri(1.0 - POWER_TEST_LEVEL / 2.0) + ndtri(MIN_POWER)) ** 2 * (1.0 - WEAK_TERM**2) / WEAK_TERM**2
-)
+MIN_FIRM_LENGTH = math.ceil((POWER_CRITICAL_Z + ndtri(MIN_POWER)) ** 2 * (1.0 - WEAK_TERM**2) / WEAK_TERM**2)
 
 
 @dataclass
@@ -222,7 +221,7 @@ def weak_term_power(nobs: int) -> float:
     float
         ``P(chi2_1(lambda) > chi2_1,0.95)`` with noncentrality ``lambda = n phi^2 / (1 - phi^2)``;
         for one degree of freedom ``chi2_1(lambda)`` is ``(Z + sqrt(lambda))^2``, so the power is
-        ``Phi(sqrt(lambda) - z) + Phi(-sqrt(lambda) - z)`` with ``z = z_0.975``.
+        ``Phi(sqrt(lambda) - z) + Phi(-sqrt(lambda) - z)`` with ``z = z_0.975`` (:data:`POWER_CRITICAL_Z`).
 
     References
     ----------
@@ -230,8 +229,7 @@ def weak_term_power(nobs: int) -> float:
        Springer, §8.8 (from memory: the asymptotic variance of the AR(1) estimate).
     """
     root = math.sqrt(max(nobs, 0) * WEAK_TERM**2 / (1.0 - WEAK_TERM**2))
-    z = float(ndtri(1.0 - POWER_TEST_LEVEL / 2.0))
-    return float(ndtr(root - z) + ndtr(-root - z))
+    return float(ndtr(root - POWER_CRITICAL_Z) + ndtr(-root - POWER_CRITICAL_Z))
 
 
 def short_series_doubt(fit: CandidateFit) -> str | None:

@@ -93,6 +93,9 @@ def largest_residual(residuals: np.ndarray, index: pd.Index, variance_ratios: np
         missing points) are skipped.
     index : pandas.Index
         The series' time index, to say when the residual fell.
+    variance_ratios : ndarray, optional
+        ``r_t`` of :func:`prediction_variance_ratios`, one per residual; each residual is
+        divided by ``sqrt(r_t)`` first (module notes). None takes the residuals as they are.
 
     Returns
     -------
