@@ -32,8 +32,6 @@ from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_u
 from app.jobs.progress import ProgressLine
 
 if TYPE_CHECKING:
-    import socket
-
     from app.core.analysis import Analysis
     from app.core.portfolio_file import PortfolioFile
     from app.jobs.analyze import RunProgress
@@ -427,29 +425,30 @@ def server_settings(db_path: Path, args: argparse.Namespace) -> Settings:
     return settings
 
 
-def _listening(db_path: Path, args: argparse.Namespace) -> tuple[Settings, socket.socket]:
-    """The server's settings and its socket, bound already: a port in use is refused before
-    the command says it serves (or, for the demo, before it builds the portfolio)."""
-    from app.web.server import listening_socket
+def _listenable(db_path: Path, args: argparse.Namespace) -> Settings:
+    """The server's settings, its port checked: a port in use is refused before the command
+    says it serves (or, for the demo, before it builds the portfolio)."""
+    from app.web.server import check_port
 
     settings = server_settings(db_path, args)
-    return settings, listening_socket(settings)
+    check_port(settings)
+    return settings
 
 
-def _serve(settings: Settings, sock: socket.socket, no_browser: bool) -> int:
+def _serve(settings: Settings, no_browser: bool) -> int:
     from app.web.server import run_server
 
     print(f"Lagdesk dashboard on {settings.url} (database {settings.db_path}); Ctrl-C stops it.", flush=True)
     if not no_browser:
         open_browser_later(settings.url)
-    run_server(settings, sock)
+    run_server(settings)
     return 0
 
 
 def run_serve(args: argparse.Namespace) -> int:
     from app.store.database import resolve_db_path
 
-    return _serve(*_listening(resolve_db_path(args.db), args), args.no_browser)
+    return _serve(_listenable(resolve_db_path(args.db), args), args.no_browser)
 
 
 def run_identify(args: argparse.Namespace) -> int:
@@ -776,7 +775,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from app.store.status import portfolio_status
 
     path = resolve_db_path(args.db)
-    server = None if args.build_only else _listening(path, args)
+    server = None if args.build_only else _listenable(path, args)
     shown = RunProgressLine("demo")
     build_demo_database(
         path, args.workers, on_progress=shown,
@@ -786,7 +785,7 @@ def run_demo(args: argparse.Namespace) -> int:
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(demo_next_steps(path, status))
-    return 0 if server is None else _serve(*server, args.no_browser)
+    return 0 if server is None else _serve(server, args.no_browser)
 
 
 def demo_next_steps(db_path: Path, status: dict) -> str:

@@ -87,9 +87,10 @@ def server_config(settings: Settings) -> uvicorn.Config:
     )
 
 
-def listening_socket(settings: Settings) -> socket.socket:
-    """The server's socket, bound to ``settings.host`` and ``settings.port`` and listening, so that
-    a port already taken is one clear error before the command says it serves.
+def check_port(settings: Settings) -> None:
+    """Bind ``settings.host`` and ``settings.port`` once and let go, so that a port already taken
+    is one clear error before the command says it serves (uvicorn binds it again itself: a
+    socket bound here and handed to uvicorn made it reset connections it refused mid-upload).
 
     Raises
     ------
@@ -98,25 +99,24 @@ def listening_socket(settings: Settings) -> socket.socket:
     """
     try:
         family = socket.getaddrinfo(settings.host, settings.port, type=socket.SOCK_STREAM)[0][0]
-        return socket.create_server((settings.host, settings.port), family=family)
+        socket.create_server((settings.host, settings.port), family=family).close()
     except OSError as exc:
         taken = " (another server, perhaps another Lagdesk, holds it: choose another with --port)" if exc.errno == errno.EADDRINUSE else ""
         reason = os.strerror(exc.errno) if exc.errno and exc.errno > 0 else (exc.strerror or str(exc))  # gaierror: negative
         raise LagdeskError(f"cannot listen on {settings.host}:{settings.port}: {reason}{taken}") from None
 
 
-def run_server(settings: Settings, sock: socket.socket | None = None) -> None:
+def run_server(settings: Settings) -> None:
     """Refuse to listen beyond this machine without an access token; open (or create) the
     database once, so a bad path or a damaged file fails before the server starts, close the
     runs of analyses that died and remove the upload folders of servers killed mid-upload; then
-    serve the dashboard on ``sock`` (:func:`listening_socket` when None) until interrupted."""
+    serve the dashboard until interrupted."""
     require_token_off_loopback(settings)
     with closing(open_database(settings.db_path)) as db:
         close_abandoned_runs(db, settings.db_path)
     remove_stale_upload_folders()
-    sock = sock or listening_socket(settings)
     server = uvicorn.Server(server_config(settings))
-    with closing(sock), suppress(KeyboardInterrupt):  # Ctrl-C is how the server is meant to stop
-        server.run(sockets=[sock])
+    with suppress(KeyboardInterrupt):  # Ctrl-C is how the server is meant to stop
+        server.run()
     if not server.started:
         raise LagdeskError(f"could not listen on {settings.host}:{settings.port} (uvicorn's reason is above)")
