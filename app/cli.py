@@ -775,7 +775,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from app.store.status import portfolio_status
 
     path = resolve_db_path(args.db)
-    server = None if args.build_only else _listenable(path, args)
+    settings = None if args.build_only else _listenable(path, args)
     shown = RunProgressLine("demo")
     build_demo_database(
         path, args.workers, on_progress=shown,
@@ -785,7 +785,7 @@ def run_demo(args: argparse.Namespace) -> int:
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(demo_next_steps(path, status))
-    return 0 if server is None else _serve(server, args.no_browser)
+    return 0 if settings is None else _serve(settings, args.no_browser)
 
 
 def demo_next_steps(db_path: Path, status: dict) -> str:
