@@ -46,6 +46,7 @@ DECIDE_ACTIONS = {
 EXIT_NOTHING_DONE = 1
 EXIT_INPUT_ERROR = 2
 EXIT_STORAGE_ERROR = 3
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, the status of a program the signal stopped
 PROG = "lagdesk"
 # How many series without an analysis ``status`` and ``demo`` name, with their reasons.
 NOT_ANALYSED_SHOWN = 10
@@ -856,10 +857,23 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    try:
+        return _run(build_parser(), argv)
+    except BrokenPipeError:
+        # The reader went away (``lagdesk status | head``): as a program killed by SIGPIPE does,
+        # stop without a word. What is still buffered goes to /dev/null, so that the flush at exit
+        # does not raise again (the recipe of Python's signal module documentation, "Note on SIGPIPE").
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_BROKEN_PIPE
+
+
+def _run(parser: argparse.ArgumentParser, argv: Sequence[str] | None) -> int:
     args = parser.parse_args(argv)
     try:
         return args.handler(args)
+    except BrokenPipeError:
+        raise
     except LagdeskError as exc:
         print(terminal_text(f"lagdesk {args.command}: {exc}"), file=sys.stderr)
         return EXIT_INPUT_ERROR

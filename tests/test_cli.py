@@ -793,3 +793,19 @@ def test_a_port_in_use_is_refused_in_one_line_before_serving_or_building(run_cli
     assert code == 2 and out == ""
     assert err.splitlines() == [f"lagdesk {command[0]}: cannot listen on 127.0.0.1:{port}: Address already in use "
                                 "(another server, perhaps another Lagdesk, holds it: choose another with --port)"]
+
+
+def test_a_reader_that_stops_early_ends_the_command_quietly(run_cli, small_csv, tmp_path):
+    """``lagdesk status | head``: the closed pipe stops the command with SIGPIPE's status
+    (128 + 13) and no message, as a program the signal killed would (Python's signal module
+    documentation, "Note on SIGPIPE"). The reading end is closed before the program has started,
+    so its first write meets a pipe nobody reads."""
+    db = tmp_path / "portfolio.db"
+    assert run_cli("import", small_csv, "--db", db)[0] == 0
+    program = Path(sys.executable).parent / "lagdesk"
+    child = subprocess.Popen([str(program), "status", "--db", str(db)], cwd=REPO, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    assert child.stdout is not None and child.stderr is not None
+    child.stdout.close()
+    error = child.stderr.read()
+    assert child.wait(timeout=120) == 141
+    assert error == b""
