@@ -97,6 +97,8 @@ References
    autoregressive-moving average time series. *Applied Statistics* 24, 255-256 (from memory).
 .. [15] Gomez, V., Maravall, A. & Pena, D. (1999). Missing observations in ARIMA models:
    skipping approach versus additive outlier approach. *Journal of Econometrics* 88, 341-363.
+.. [16] Golub, G.H. & Van Loan, C.F. (2013). *Matrix Computations*, 4th ed. Johns Hopkins
+   University Press, §5.3 (section from memory).
 """
 
 from __future__ import annotations
@@ -808,7 +810,8 @@ def _coefficient_loglik(phi, theta, big_phi, big_theta, s, beta, w, x):
 def profile_loglik(w: np.ndarray, spec: ArmaSpec, unconstrained: np.ndarray, design: np.ndarray | None = None) -> float:
     """Exact log-likelihood at ``unconstrained`` parameters, variance and regression profiled out."""
     w, x = _inputs(w, design)
-    return float(_profile_loglik(np.asarray(unconstrained, float), w, x, spec.p, spec.q, spec.P, spec.Q, spec.s))
+    z, _ = _centred(w, x)
+    return float(_profile_loglik(np.asarray(unconstrained, float), z, x, spec.p, spec.q, spec.P, spec.Q, spec.s))
 
 
 def coefficients_to_unconstrained(coefficients: np.ndarray, sign: float = 1.0) -> np.ndarray:
@@ -884,6 +887,7 @@ def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None,
     can lead the full fit to a higher optimum, which is why screening keeps a margin.
     """
     w, x = _inputs(w, design)
+    w, _ = _centred(w, x)
     args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     if not spec.n_coefficients:
         return ArmaScreen(spec, float(_profile_loglik(np.zeros(0), *args)), 0.0, np.zeros(0), np.zeros(0))
@@ -915,11 +919,12 @@ def fit_arma(
         its start continues where the screen stopped.
     """
     w, x = _inputs(w, design)
-    args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
+    z, offset = _centred(w, x)
+    args = (z, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     k = spec.n_coefficients
     if not k:  # only the variance and the regression: nothing left to optimise
-        return _finished(w, x, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
-    own = _own_starts(w, x, spec) if screen is None else list(screen.own_starts)
+        return _finished(w, x, z, offset, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
+    own = _own_starts(z, x, spec) if screen is None else list(screen.own_starts)
     if len(own) > 1:  # a regression start exists: white noise (always first) is no run of its own
         own = own[1:]
     if screen is None:
@@ -936,13 +941,35 @@ def fit_arma(
     # The maximum counts as reached when any run that ended there converged: a run continued
     # from a screen can stop on a flat ridge just short of the test another run passed.
     converged = any(ok and (value - best_value) * w.size <= SAME_MAXIMUM for _, value, ok, _, _ in runs)
-    return _finished(w, x, spec, best_u, -float(best_value) * w.size, converged)
+    return _finished(w, x, z, offset, spec, best_u, -float(best_value) * w.size, converged)
 
 
 def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
     w = np.ascontiguousarray(w, dtype=float)
     x = np.zeros((w.size, 0)) if design is None else np.ascontiguousarray(design, dtype=float).reshape(w.size, -1)
     return w, x
+
+
+def _centred(w: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``w - x b`` and ``b``, the ordinary least-squares coefficients of the columns of ``x`` on
+    the observed points (``b`` empty without columns): what the optimiser filters.
+
+    The profile likelihood is the same for ``w`` and ``w - x b``, as ``x b`` lies in the span
+    the generalised-least-squares coefficients are profiled over, and their coefficients
+    differ by ``b``. Numerically they are not: the profiled sum of squares ``S_ww - S_xw'
+    S_xx^-1 S_xw`` cancels ``S_ww``, and for a series far from zero next to its variation (a
+    lake level of 580 m varying by 1 m, with a mean and a trend) the cancellation leaves noise
+    that the finite-difference gradient turns into a gradient of 4e-5 per observation at the
+    optimum: the optimiser could not reach :data:`FLAT_GRADIENT` there, reported no convergence,
+    and the ranking demoted the fit. Taking the least-squares fit out first keeps ``S_ww`` of the
+    order of the residual variation (the centring that regression software does before forming
+    cross products; Golub & Van Loan 2013, §5.3, on the normal equations; section from memory).
+    """
+    if not x.shape[1]:
+        return w, np.zeros(0)
+    seen = ~np.isnan(w)
+    offset = np.linalg.lstsq(x[seen], w[seen], rcond=None)[0]
+    return np.ascontiguousarray(w - x @ offset), offset
 
 
 def _own_starts(w: np.ndarray, x: np.ndarray, spec: ArmaSpec) -> list[np.ndarray]:
@@ -999,19 +1026,22 @@ def _hannan_rissanen_start(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, long_or
     ])
 
 
-def _finished(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, u: np.ndarray, loglik: float, converged: bool) -> ArmaFit:
+def _finished(
+    w: np.ndarray, x: np.ndarray, z: np.ndarray, offset: np.ndarray, spec: ArmaSpec, u: np.ndarray, loglik: float, converged: bool
+) -> ArmaFit:
+    """The fit at the optimum ``u``, found on ``z = w - x offset`` (:func:`_centred`)."""
     u = np.asarray(u, dtype=float)
     phi_u, theta_u, big_phi_u, big_theta_u = spec.blocks(u)
     phi, theta = _pacf_to_coefficients(phi_u), -_pacf_to_coefficients(theta_u)
     big_phi, big_theta = _pacf_to_coefficients(big_phi_u), -_pacf_to_coefficients(big_theta_u)
     ar, ma = _expand(phi, big_phi, spec.s, -1.0), _expand(theta, big_theta, spec.s, 1.0)
-    innovations = np.zeros((1 + x.shape[1], w.size))
-    s_ww, s_xw, s_xx, _, observed = _filter(w, x, ar, ma, innovations)
+    innovations = np.zeros((1 + x.shape[1], z.size))
+    s_ww, s_xw, s_xx, _, observed = _filter(z, x, ar, ma, innovations)
     beta = np.linalg.solve(s_xx, s_xw) if x.shape[1] else np.zeros(0)
     coefficients = np.concatenate([phi, theta, big_phi, big_theta])
     residuals = innovations[0] - beta @ innovations[1:]
     return ArmaFit(
-        spec=spec, coefficients=coefficients, beta=beta, sigma2=float((s_ww - s_xw @ beta) / observed),
+        spec=spec, coefficients=coefficients, beta=beta + offset, sigma2=float((s_ww - s_xw @ beta) / observed),
         loglik=float(loglik), residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
         converged=converged, unconstrained=u, inputs=(w, x),
     )

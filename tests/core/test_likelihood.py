@@ -297,3 +297,25 @@ def test_regression_columns_give_the_same_likelihood_in_any_order():
         warnings.simplefilter("ignore")
         reference = SARIMAX(w, exog=in_order, order=(1, 0, 1), concentrate_scale=True).loglike(np.r_[fit.beta, fit.coefficients])
     assert value == pytest.approx(reference, abs=1e-6)
+
+
+@pytest.mark.parametrize("shift", [0.0, 1e6])
+def test_a_series_far_from_zero_converges_with_a_mean_and_a_trend(shift):
+    # R datasets::LakeHuron (annual level in feet, about 579 and varying by about 1): an AR(2)
+    # with a mean and a linear trend, the model Brockwell & Davis (2002, §6.6; from memory) fit
+    # to it. The profiled sum of squares used to cancel a sum of squares of about 3e7 down to
+    # about 50, which left a noisy finite-difference gradient at the optimum, so the fit was
+    # reported unconverged (and the ranking demoted it). Moved a further 1e6 away, the series
+    # must give the same maximum: the profile likelihood does not depend on the level.
+    y = _rdataset("LakeHuron") + shift
+    t = np.arange(y.size, dtype=float)
+    fit = fit_arma(y, ArmaSpec(2, 0), np.column_stack([np.ones(y.size), t]))
+    assert fit.converged
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        reference = ARIMA(y - shift, order=(2, 0, 0), trend="ct").fit()
+    assert fit.loglik == pytest.approx(reference.llf, abs=0.01)
+    assert fit.loglik >= reference.llf - 1e-6
+    # statsmodels' ARIMA trend "ct" is a + b t with t counted from 0, as here.
+    np.testing.assert_allclose(fit.beta - [shift, 0.0], reference.params[:2], rtol=1e-3, atol=1e-4)
+    np.testing.assert_allclose(fit.coefficients, reference.params[2:4], atol=1e-3)
