@@ -122,7 +122,13 @@ GRADIENT_STEP = 1e-6
 CENTRAL_BELOW = 1e-5
 HESSIAN_STEP = 1e-4
 MAX_ITERATIONS = 500
-GRADIENT_TOLERANCE = 1e-8
+# A run stops once the gradient's largest element (of minus the log-likelihood per observation)
+# is below FLAT_GRADIENT, the same bound by which a run that stops for another reason counts as
+# an optimum. It was 1e-8: on the 53 real monthly and quarterly series of
+# tests/benchmarks/real_series.py (2026-12-04) 1e-5 cost 22% less CPU, changed no suggestion or
+# confidence, and moved no top-5 candidate's maximum by more than 0.0022 log-likelihood units
+# (the fits are held to statsmodels' optimum within 0.01); over all 77 series of the real
+# benchmark it changed two near-tied suggestions (a weekly and a daily series).
 FLAT_GRADIENT = 1e-5
 RELATIVE_DECREASE = 1e-13
 ARMIJO = 1e-4
@@ -705,7 +711,7 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled, known_u,
     The inverse Hessian approximation starts as the identity scaled after the first step
     (Nocedal & Wright 2006, eq. 6.20) and skips an update whose curvature ``s'y`` is not
     positive; a step moves no coordinate by more than :data:`MAX_STEP`. Stops when the
-    gradient's largest element is below :data:`GRADIENT_TOLERANCE`, when a step lowers the
+    gradient's largest element is below :data:`FLAT_GRADIENT`, when a step lowers the
     objective by less than :data:`RELATIVE_DECREASE` of its size, or when the line search
     cannot lower it; in the last two cases the point counts as an optimum only if its gradient
     is below :data:`FLAT_GRADIENT`. Returns ``(u, objective, converged, iterations, remaining)``,
@@ -734,12 +740,12 @@ def _maximise(u0, w, x, p, q, big_p, big_q, s, max_iterations, settled, known_u,
     central = True
     precise = False
     for iteration in range(max_iterations):
-        if not central and np.abs(g).max() < GRADIENT_TOLERANCE:
+        if not central and np.abs(g).max() < FLAT_GRADIENT:
             g, ok = _gradient(u, f, True, w, x, p, q, big_p, big_q, s)
             central = precise = True
             if not ok:
                 return u, f, False, iteration, np.inf
-        if np.abs(g).max() < GRADIENT_TOLERANCE:
+        if np.abs(g).max() < FLAT_GRADIENT:
             return u, f, True, iteration, _half_decrement(g, h_inv)
         if iteration >= 2 and _half_decrement(g, h_inv) < settled:
             return u, f, np.abs(g).max() < FLAT_GRADIENT, iteration, _half_decrement(g, h_inv)
