@@ -964,7 +964,7 @@ def _centred(w: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     the generalised-least-squares coefficients are profiled over, and their coefficients
     differ by ``b``. Numerically they are not: the profiled sum of squares ``S_ww - S_xw'
     S_xx^-1 S_xw`` cancels ``S_ww``, and for a series far from zero next to its variation (a
-    lake level of 580 m varying by 1 m, with a mean and a trend) the cancellation leaves noise
+    lake level of about 579 ft varying by about 1, with a mean and a trend) the cancellation leaves noise
     that the finite-difference gradient turns into a gradient of 4e-5 per observation at the
     optimum: the optimiser could not reach :data:`FLAT_GRADIENT` there, reported no convergence,
     and the ranking demoted the fit. Taking the least-squares fit out first keeps ``S_ww`` of the

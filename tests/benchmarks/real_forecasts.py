@@ -65,7 +65,7 @@ How far the comparison with the stepwise search can be trusted (:func:`paired_ra
 ratio of the two relative MASEs is the geometric mean over series of Lagdesk's MASE / the
 stepwise pick's, and its 95% interval comes from the paired t-interval of the mean log ratio
 (the log of a relative error is the scale on which such ratios are averaged and compared,
-Davydenko & Fildes 2013, §4; the t-interval is the textbook one for a mean of paired
+Davydenko & Fildes 2013, §4, section from memory; the t-interval is the textbook one for a mean of paired
 differences). With one held-out season per series the log ratios spread widely (standard
 deviation about 0.3 on these 77 series, 2026-12-04), so the interval is about ±7% wide: a
 design change that moves the overall ratio by a few percent is within what the choice of
