@@ -188,7 +188,9 @@ class ArmaFit:
     ``residuals`` are the one-step prediction errors ``w_t - E(w_t | w_1..w_{t-1})``, NaN where
     ``w_t`` is missing; ``sigma2`` is profiled over the observed points.
     ``unconstrained`` is the optimum in the optimiser's coordinates, a start for a larger order
-    (:func:`nested_start`). ``inputs`` are the series and design it was fitted to.
+    (:func:`nested_start`). ``inputs`` are the series the optimiser filtered (the one fitted, less
+    its least-squares fit on the design, :func:`_centred`), the design, and those least-squares
+    coefficients.
     """
 
     spec: ArmaSpec
@@ -201,15 +203,21 @@ class ArmaFit:
     ma_polynomial: np.ndarray
     converged: bool
     unconstrained: np.ndarray
-    inputs: tuple[np.ndarray, np.ndarray] = field(repr=False, compare=False)
+    inputs: tuple[np.ndarray, np.ndarray, np.ndarray] = field(repr=False, compare=False)
 
     @cached_property
     def standard_errors(self) -> np.ndarray:
         """Computed when first asked for: the central-difference Hessian costs ``2 k^2``
         likelihood evaluations for ``k`` parameters, and most fits of a search (those of the
-        orders and scales that lose) are never shown with their errors."""
-        w, x = self.inputs
-        return _standard_errors(w, x, self.spec, self.coefficients, self.beta)
+        orders and scales that lose) are never shown with their errors.
+
+        They are taken on the centred series, at the regression coefficients less the
+        least-squares ones: the likelihood depends on ``w - x beta`` alone, so the Hessian is
+        the same, but the difference step, which scales with a coefficient's size, then scales
+        with its distance from the least-squares value rather than with the series' level (a
+        mean of 1e6 would otherwise be stepped by 100)."""
+        z, x, offset = self.inputs
+        return _standard_errors(z, x, self.spec, self.coefficients, self.beta - offset)
 
 
 # --- compiled core -----------------------------------------------------------------------------
@@ -929,7 +937,7 @@ def fit_arma(
     args = (z, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     k = spec.n_coefficients
     if not k:  # only the variance and the regression: nothing left to optimise
-        return _finished(w, x, z, offset, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
+        return _finished(z, x, offset, spec, np.zeros(0), float(_profile_loglik(np.zeros(0), *args)), True)
     own = _own_starts(z, x, spec) if screen is None else list(screen.own_starts)
     if len(own) > 1:  # a regression start exists: white noise (always first) is no run of its own
         own = own[1:]
@@ -947,7 +955,7 @@ def fit_arma(
     # The maximum counts as reached when any run that ended there converged: a run continued
     # from a screen can stop on a flat ridge just short of the test another run passed.
     converged = any(ok and (value - best_value) * w.size <= SAME_MAXIMUM for _, value, ok, _, _ in runs)
-    return _finished(w, x, z, offset, spec, best_u, -float(best_value) * w.size, converged)
+    return _finished(z, x, offset, spec, best_u, -float(best_value) * w.size, converged)
 
 
 def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
@@ -1032,10 +1040,8 @@ def _hannan_rissanen_start(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, long_or
     ])
 
 
-def _finished(
-    w: np.ndarray, x: np.ndarray, z: np.ndarray, offset: np.ndarray, spec: ArmaSpec, u: np.ndarray, loglik: float, converged: bool
-) -> ArmaFit:
-    """The fit at the optimum ``u``, found on ``z = w - x offset`` (:func:`_centred`)."""
+def _finished(z: np.ndarray, x: np.ndarray, offset: np.ndarray, spec: ArmaSpec, u: np.ndarray, loglik: float, converged: bool) -> ArmaFit:
+    """The fit at the optimum ``u``, found on ``z``, the series less ``x offset`` (:func:`_centred`)."""
     u = np.asarray(u, dtype=float)
     phi_u, theta_u, big_phi_u, big_theta_u = spec.blocks(u)
     phi, theta = _pacf_to_coefficients(phi_u), -_pacf_to_coefficients(theta_u)
@@ -1049,7 +1055,7 @@ def _finished(
     return ArmaFit(
         spec=spec, coefficients=coefficients, beta=beta + offset, sigma2=float((s_ww - s_xw @ beta) / observed),
         loglik=float(loglik), residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
-        converged=converged, unconstrained=u, inputs=(w, x),
+        converged=converged, unconstrained=u, inputs=(z, x, offset),
     )
 
 

@@ -319,3 +319,10 @@ def test_a_series_far_from_zero_converges_with_a_mean_and_a_trend(shift):
     # statsmodels' ARIMA trend "ct" is a + b t with t counted from 0, as here.
     np.testing.assert_allclose(fit.beta - [shift, 0.0], reference.params[:2], rtol=1e-3, atol=1e-4)
     np.testing.assert_allclose(fit.coefficients, reference.params[2:4], atol=1e-3)
+    # The standard errors do not depend on the level either (the difference step of the mean
+    # used to scale with it: 100 at a level of 1e6). statsmodels' numerical-Hessian errors of
+    # the same model, in our order (AR, then mean and trend); 2% for two numerical Hessians.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        approx = ARIMA(y - shift, order=(2, 0, 0), trend="ct").fit(cov_type="approx").bse
+    np.testing.assert_allclose(fit.standard_errors, np.r_[approx[2:4], approx[:2]], rtol=0.02)
