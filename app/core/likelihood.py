@@ -189,7 +189,7 @@ class ArmaFit:
     ``w_t`` is missing; ``sigma2`` is profiled over the observed points.
     ``unconstrained`` is the optimum in the optimiser's coordinates, a start for a larger order
     (:func:`nested_start`). ``inputs`` are the series the optimiser filtered (the one fitted, less
-    its least-squares fit on the design, :func:`_centred`), the design, and those least-squares
+    its least-squares fit on the design, :func:`_inputs`), the design, and those least-squares
     coefficients.
     """
 
@@ -823,8 +823,7 @@ def _coefficient_loglik(phi, theta, big_phi, big_theta, s, beta, w, x):
 
 def profile_loglik(w: np.ndarray, spec: ArmaSpec, unconstrained: np.ndarray, design: np.ndarray | None = None) -> float:
     """Exact log-likelihood at ``unconstrained`` parameters, variance and regression profiled out."""
-    w, x = _inputs(w, design)
-    z, _ = _centred(w, x)
+    z, x, _ = _inputs(w, design)
     return float(_profile_loglik(np.asarray(unconstrained, float), z, x, spec.p, spec.q, spec.P, spec.Q, spec.s))
 
 
@@ -900,8 +899,7 @@ def screen_arma(w: np.ndarray, spec: ArmaSpec, design: np.ndarray | None = None,
     and its loglik says little. A screen is a lower bound for its own start only: another start
     can lead the full fit to a higher optimum, which is why screening keeps a margin.
     """
-    w, x = _inputs(w, design)
-    w, _ = _centred(w, x)
+    w, x, _ = _inputs(w, design)
     args = (w, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     if not spec.n_coefficients:
         return ArmaScreen(spec, float(_profile_loglik(np.zeros(0), *args)), 0.0, np.zeros(0), np.zeros(0))
@@ -932,8 +930,7 @@ def fit_arma(
         The screen of the same order and series (:func:`screen_arma`): the optimisation from
         its start continues where the screen stopped.
     """
-    w, x = _inputs(w, design)
-    z, offset = _centred(w, x)
+    z, x, offset = _inputs(w, design)
     args = (z, x, spec.p, spec.q, spec.P, spec.Q, spec.s)
     k = spec.n_coefficients
     if not k:  # only the variance and the regression: nothing left to optimise
@@ -958,15 +955,10 @@ def fit_arma(
     return _finished(z, x, offset, spec, best_u, -float(best_value) * w.size, converged)
 
 
-def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
-    w = np.ascontiguousarray(w, dtype=float)
-    x = np.zeros((w.size, 0)) if design is None else np.ascontiguousarray(design, dtype=float).reshape(w.size, -1)
-    return w, x
-
-
-def _centred(w: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``w - x b`` and ``b``, the ordinary least-squares coefficients of the columns of ``x`` on
-    the observed points (``b`` empty without columns): what the optimiser filters.
+def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """What the optimiser filters: ``w - x b``, the columns ``x`` of the design (none without
+    one) and ``b``, their ordinary least-squares coefficients on the observed points (empty
+    without columns).
 
     The profile likelihood is the same for ``w`` and ``w - x b``, as ``x b`` lies in the span
     the generalised-least-squares coefficients are profiled over, and their coefficients
@@ -979,11 +971,13 @@ def _centred(w: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     order of the residual variation (the centring that regression software does before forming
     cross products; Golub & Van Loan 2013, §5.3, on the normal equations; section from memory).
     """
+    w = np.ascontiguousarray(w, dtype=float)
+    x = np.zeros((w.size, 0)) if design is None else np.ascontiguousarray(design, dtype=float).reshape(w.size, -1)
     if not x.shape[1]:
-        return w, np.zeros(0)
+        return w, x, np.zeros(0)
     seen = ~np.isnan(w)
     offset = np.linalg.lstsq(x[seen], w[seen], rcond=None)[0]
-    return np.ascontiguousarray(w - x @ offset), offset
+    return np.ascontiguousarray(w - x @ offset), x, offset
 
 
 def _own_starts(w: np.ndarray, x: np.ndarray, spec: ArmaSpec) -> list[np.ndarray]:
@@ -1041,7 +1035,7 @@ def _hannan_rissanen_start(w: np.ndarray, x: np.ndarray, spec: ArmaSpec, long_or
 
 
 def _finished(z: np.ndarray, x: np.ndarray, offset: np.ndarray, spec: ArmaSpec, u: np.ndarray, loglik: float, converged: bool) -> ArmaFit:
-    """The fit at the optimum ``u``, found on ``z``, the series less ``x offset`` (:func:`_centred`)."""
+    """The fit at the optimum ``u``, found on ``z``, the series less ``x offset`` (:func:`_inputs`)."""
     u = np.asarray(u, dtype=float)
     phi_u, theta_u, big_phi_u, big_theta_u = spec.blocks(u)
     phi, theta = _pacf_to_coefficients(phi_u), -_pacf_to_coefficients(theta_u)
