@@ -612,6 +612,8 @@ def status_text(status: dict, last: dict | None, db_path: Path) -> str:
         f"  analysed  {status['analysed']:>6}  current analysis",
         f"  stale     {status['stale']:>6}  analysis missing or out of date",
         f"  failed    {status['failed']:>6}  analysis failed on the current data",
+        *([f"  earlier   {status['earlier_engine']:>6}  of these made by an earlier engine; analyze brings them up to date"]
+          if status["earlier_engine"] else []),
         f"  rejected  {status['rejected']:>6}  refused by the import (too short, constant ...), so not stored",
         f"by confidence: {counts_text(status['confidence'])}",
         f"by status: {counts_text(status['verdicts'])}",

@@ -311,6 +311,19 @@ def test_import_analyze_status_end_to_end(run_cli, small_csv, tmp_path):
     assert code == 0
     assert out.splitlines()[0] == f"{db}: {SERIES} series"
     assert f"by status: {SERIES} pending, 0 approved" in out
+    assert "earlier" not in out
+
+    # After an upgrade of the engine, the analyses an earlier one made are counted and the
+    # next run analyses them again, though the data did not change.
+    with closing(open_database(db)) as handle:
+        handle.execute("UPDATE analyses SET engine_version = '0.1.0'")
+        handle.conn.commit()
+    code, out, _ = run_cli("status", "--db", db)
+    assert f"  earlier   {SERIES:>6}  of these made by an earlier engine; analyze brings them up to date" in out.splitlines()
+    code, out, _ = run_cli("analyze", "--db", db, "--workers", 1)
+    assert code == 0 and f"finished: {SERIES} series analysed, 0 failed" in out
+    code, out, _ = run_cli("status", "--db", db, "--json")
+    assert json.loads(out)["earlier_engine"] == 0
 
 
 def test_status_counts_by_confidence_and_status_and_names_the_series_not_analysed(run_cli, small_csv, tmp_path):

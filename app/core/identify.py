@@ -44,12 +44,12 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from app import __version__
 from app.core.analysis import Analysis, Correlation, DifferencingSummary, Intervention, SeasonalSummary, with_deltas
 from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
 from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
 from app.core.defaults import AUTO_PERIOD
 from app.core.demand import classify_demand
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError, SeriesProblem
 from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
@@ -70,7 +70,6 @@ from app.core.stationarity import DifferencingDecision, choose_differencing
 from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform
 from app.core.vocabulary import Flag, InterventionKind
 
-ENGINE_VERSION = __version__
 DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2

@@ -24,8 +24,9 @@ from pathlib import Path
 
 import sqlite_utils
 
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError
-from app.core.identify import ENGINE_VERSION, LONG_SERIES, SEARCH_WINDOW, EngineOptions
+from app.core.identify import LONG_SERIES, SEARCH_WINDOW, EngineOptions
 from app.core.seasonality import default_period
 from app.jobs.executors import LOCAL, ExecutorChoice, default_workers, map_unordered
 from app.jobs.recheck import recheck_after_analysis

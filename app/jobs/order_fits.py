@@ -17,9 +17,9 @@ from threadpoolctl import threadpool_limits
 
 from app.core.analysis import Intervention
 from app.core.chosen_interventions import relocated
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError
 from app.core.fitting import CandidateFit, fit_candidate
-from app.core.identify import ENGINE_VERSION
 from app.core.interventions import adjusted
 from app.core.order import Order
 from app.core.prepare import PreparedSeries, prepare_series

@@ -39,9 +39,9 @@ import pandas as pd
 import sqlite_utils
 
 from app.core.analysis import Analysis, Intervention
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError
 from app.core.fitting import LJUNG_BOX_LEVEL
-from app.core.identify import ENGINE_VERSION
 from app.core.order import Order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries

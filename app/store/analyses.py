@@ -6,7 +6,9 @@ The engine's :class:`~app.core.analysis.Analysis` is stored as JSON text
 its main reason, flags, suggested orders, d) that the dashboard shows, filters and sorts on without reading results.
 An analysis records the fingerprint of the data it was run on: it is *current* while that
 equals the series' fingerprint and *stale* once new data changed it. A failure is stored too,
-with its message, so a run does not retry it forever.
+with its message, so a run does not retry it forever. Both record the engine version that made
+them (:mod:`app.core.engine_version`); one made by an earlier engine keeps its state, and is
+analysed again by the next run all the same (:data:`EARLIER_ENGINE_SQL`).
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ import json
 import sqlite_utils
 
 from app.core.analysis import Analysis
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError
 from app.store.database import require_series, utc_now, write_transaction
 
@@ -25,6 +28,10 @@ ANALYSIS_STATE_SQL = (
     "WHEN a.fingerprint <> s.fingerprint THEN 'stale' "
     "WHEN a.state = 'failed' THEN 'failed' ELSE 'current' END"
 )
+# A stored analysis or failure that an earlier engine made (or one stored before failures
+# recorded their engine), for the same join; it takes the running engine's version as its
+# one parameter.
+EARLIER_ENGINE_SQL = "(a.series_id IS NOT NULL AND a.engine_version IS NOT ?)"
 
 
 def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, analysis: Analysis, run_id: int | None) -> None:
@@ -71,7 +78,7 @@ def main_reason(analysis: Analysis) -> str | None:
 def save_failure(db: sqlite_utils.Database, series_id: str, fingerprint: str, message: str, run_id: int | None) -> None:
     """Store that the analysis of a series failed, with the reason, replacing any earlier one."""
     with write_transaction(db):
-        _store(db, series_id, fingerprint, run_id, state="failed", message=str(message))
+        _store(db, series_id, fingerprint, run_id, state="failed", message=str(message), engine_version=ENGINE_VERSION)
         db.execute("DELETE FROM analysis_results WHERE series_id = ?", [series_id])
 
 

@@ -12,9 +12,10 @@ from typing import TYPE_CHECKING
 
 import sqlite_utils
 
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
-from app.store.analyses import ANALYSIS_STATE_SQL
+from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL
 from app.store.verdicts import STATUSES, verdict_counts
 
 if TYPE_CHECKING:
@@ -144,15 +145,17 @@ def series_sizes(db: sqlite_utils.Database) -> dict[str, tuple[int, str]]:
 
 
 def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -> list[str]:
-    """Series whose analysis is missing or stale (or every series), by id.
+    """Series whose analysis is missing or stale or was made by an earlier engine (or every
+    series), by id.
 
-    A failure on the current data is not retried unless ``everything`` is set: the same data
-    and engine would fail the same way.
+    A failure on the current data is not retried unless ``everything`` is set or an earlier
+    engine failed: the same data and engine would fail the same way.
     """
-    where = "" if everything else f"WHERE {ANALYSIS_STATE_SQL} IN ('missing', 'stale')"
+    where, params = ("", []) if everything else (
+        f"WHERE {ANALYSIS_STATE_SQL} IN ('missing', 'stale') OR {EARLIER_ENGINE_SQL}", [ENGINE_VERSION])
     rows = db.execute(
         f"SELECT s.series_id FROM series s LEFT JOIN analyses a ON a.series_id = s.series_id {where} "
-        "ORDER BY s.series_id"
+        "ORDER BY s.series_id", params
     ).fetchall()
     return [series_id for (series_id,) in rows]
 

@@ -5,7 +5,8 @@ from __future__ import annotations
 
 import sqlite_utils
 
-from app.store.analyses import ANALYSIS_STATE_SQL, failed_analyses
+from app.core.engine_version import ENGINE_VERSION
+from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL, failed_analyses
 from app.store.series import confidence_counts, problem_reason, rejected_series
 from app.store.verdicts import verdict_counts
 
@@ -15,23 +16,26 @@ ANALYSIS_STAGE = "analysis"
 
 
 def portfolio_status(db: sqlite_utils.Database) -> dict:
-    """``{"series", "analysed", "stale", "failed", "rejected", "confidence": {level: n},
-    "verdicts": {status: n}, "not_analysed": [...]}``.
+    """``{"series", "analysed", "stale", "failed", "earlier_engine", "rejected", "confidence":
+    {level: n}, "verdicts": {status: n}, "not_analysed": [...]}``.
 
     ``analysed`` counts series with a complete analysis of their current data, ``stale`` those
     whose analysis is missing or out of date, ``failed`` those whose current data failed;
+    ``earlier_engine`` those of the analysed and failed that an earlier engine made, which the
+    next ``lagdesk analyze`` analyses again (:data:`~app.store.analyses.EARLIER_ENGINE_SQL`);
     ``rejected`` the series an import refused (not stored, so not in ``series``);
     ``confidence`` the stored analyses by level, weakest first. ``not_analysed`` is
     :func:`not_analysed`.
     """
-    series, analysed, stale, failed = db.execute(
+    series, analysed, stale, failed, earlier = db.execute(
         "SELECT count(*), coalesce(sum(state = 'current'), 0), coalesce(sum(state IN ('missing', 'stale')), 0), "
-        "coalesce(sum(state = 'failed'), 0) "
-        f"FROM (SELECT {ANALYSIS_STATE_SQL} AS state FROM series s LEFT JOIN analyses a ON a.series_id = s.series_id)"
+        "coalesce(sum(state = 'failed'), 0), coalesce(sum(state IN ('current', 'failed') AND earlier), 0) "
+        f"FROM (SELECT {ANALYSIS_STATE_SQL} AS state, {EARLIER_ENGINE_SQL} AS earlier "
+        "FROM series s LEFT JOIN analyses a ON a.series_id = s.series_id)", [ENGINE_VERSION]
     ).fetchone()
     missing = not_analysed(db)
     return {
-        "series": series, "analysed": analysed, "stale": stale, "failed": failed,
+        "series": series, "analysed": analysed, "stale": stale, "failed": failed, "earlier_engine": earlier,
         "rejected": sum(m["stage"] == IMPORT_STAGE for m in missing),
         "confidence": confidence_counts(db), "verdicts": verdict_counts(db), "not_analysed": missing,
     }

@@ -15,6 +15,7 @@ import sqlite_utils
 
 from app.core.analysis import Analysis, Candidate, Correlation, Intervention, UnitRootTest
 from app.core.correlogram import correlogram
+from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import SeriesProblem
 from app.core.fitting import difference
 from app.core.identify import TREND_TOGGLE
@@ -242,6 +243,8 @@ def review_page(
         "history": [{**h, "model_words": model_words(h)} for h in reversed(verdict_history(db, series_id))],
         "record": record,
         "analysis": analysis,
+        "earlier_engine": analysis is not None and analysis.engine_version != ENGINE_VERSION,
+        "engine_version": ENGINE_VERSION,
         "preparation_problem": preparation_problem,
         "series_chart": line_chart("series", labels, [float(v) for v in observed], "value"),
         "form": form,

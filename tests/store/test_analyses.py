@@ -95,6 +95,24 @@ def test_an_analysis_of_older_data_is_stale(lynx_db, engine_result):
     assert load_analysis(lynx_db, "lynx") == engine_result  # kept, shown as stale
 
 
+def test_an_analysis_or_failure_of_an_earlier_engine_is_analysed_again(lynx_db, engine_result):
+    fingerprint = series_fingerprint(lynx_db, "lynx")
+    save_analysis(lynx_db, "lynx", fingerprint, engine_result, None)
+    assert series_ids_to_analyse(lynx_db) == [] and portfolio_status(lynx_db)["earlier_engine"] == 0
+    # The same analysis as an engine of an earlier version stored it: still current (the data
+    # did not change), but the next run takes it, and the status counts it.
+    save_analysis(lynx_db, "lynx", fingerprint, replace(engine_result, engine_version="0.1.0"), None)
+    assert analysis_record(lynx_db, "lynx")["state"] == "current"
+    assert series_ids_to_analyse(lynx_db) == ["lynx"]
+    assert portfolio_status(lynx_db)["earlier_engine"] == 1
+    # A failure recorded before failures carried the engine's version is retried once too.
+    save_failure(lynx_db, "lynx", fingerprint, "no candidate converged", None)
+    assert series_ids_to_analyse(lynx_db) == []
+    lynx_db.execute("UPDATE analyses SET engine_version = NULL")
+    assert series_ids_to_analyse(lynx_db) == ["lynx"]
+    assert portfolio_status(lynx_db)["earlier_engine"] == 1
+
+
 def test_an_unknown_series_or_unreadable_result_is_refused(lynx_db, engine_result):
     with pytest.raises(UnknownSeries, match="'hare'"):
         save_analysis(lynx_db, "hare", "f" * 64, replace(engine_result, series_id="hare"), None)

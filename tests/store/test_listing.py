@@ -164,7 +164,7 @@ def test_count_by_and_portfolio_status(listed_db):
         "reviewed": 2,
     }
     assert portfolio_status(listed_db) == {
-        "series": 10, "analysed": 8, "stale": 1, "failed": 1, "rejected": 0,
+        "series": 10, "analysed": 8, "stale": 1, "failed": 1, "earlier_engine": 0, "rejected": 0,
         "confidence": {"weak": 3, "tentative": 2, "firm": 3}, "verdicts": verdicts,
         "not_analysed": [{"series_id": "f-failed", "stage": "analysis", "reason": "every candidate failed"}],
     }
@@ -172,7 +172,7 @@ def test_count_by_and_portfolio_status(listed_db):
 
 def test_status_of_an_empty_database(fresh_db):
     assert portfolio_status(fresh_db) == {
-        "series": 0, "analysed": 0, "stale": 0, "failed": 0, "rejected": 0,
+        "series": 0, "analysed": 0, "stale": 0, "failed": 0, "earlier_engine": 0, "rejected": 0,
         "confidence": {"weak": 0, "tentative": 0, "firm": 0}, "verdicts": NO_VERDICTS, "not_analysed": [],
     }
     assert list_series(fresh_db) == (0, [])

@@ -459,7 +459,10 @@ def test_run_started_from_the_api_analyses_new_series(client, tmp_path):
     response = client.post("/api/runs")
     assert response.status_code == 202
     run = wait_for_run(client, response.json()["run_id"])
-    assert (run["state"], run["total"], run["done"], run["failed"]) == ("finished", 1, 1, 0)
+    # The new series, and the one whose stored analysis an earlier engine made (the fixture's
+    # add_stored_seasonal_analysis): a run brings it up to date as well.
+    assert (run["state"], run["total"], run["done"], run["failed"]) == ("finished", 2, 2, 0)
+    assert client.get("/api/portfolio").json()["earlier_engine"] == 0
     detail = client.get(url("late/arrival")).json()
     assert detail["analysis_state"] == "current" and detail["confidence"] in ("firm", "tentative", "weak")
 

@@ -236,6 +236,14 @@ def test_review_page_shows_charts_with_stored_lag_counts(client, results):
     assert "identified" not in found  # identified on the series itself: no second chart
 
 
+def test_review_page_says_when_an_earlier_engine_made_the_analysis(client, db):
+    assert "data-earlier-engine" not in client.get(page(SERIES)).text
+    db.execute("UPDATE analysis_results SET result = json_set(result, '$.engine_version', '0.1.0') WHERE series_id = ?", [SERIES])
+    db.conn.commit()
+    shown = client.get(page(SERIES)).text
+    assert "data-earlier-engine" in shown and "An earlier engine (0.1.0) made this analysis" in shown
+
+
 def test_review_page_draws_the_transformed_or_differenced_series(client, results):
     changed = [sid for sid, r in results.items() if r.d or r.D or r.transform.kind != "none"]
     assert changed, "the synthetic portfolio should hold a differenced or transformed series"
