@@ -3,7 +3,7 @@
 Run from the repository root (not collected by pytest; asserts nothing):
 
     .venv/bin/python tests/benchmarks/real_forecasts.py [--quick] [--only NAME ...] [--jobs N]
-        [--out test-artifacts/real_forecasts.json] [--no-grid] [--reuse EARLIER.json]
+        [--out test-artifacts/real_forecasts.json] [--no-grid] [--reuse EARLIER.json] [--origins K]
 
 ``--reuse`` runs Lagdesk alone and takes the searches' rows (their orders, scores and CPU
 seconds) from an earlier run's JSON of the same series: about two minutes on 2 cores instead of
@@ -70,6 +70,14 @@ differences). With one held-out season per series the log ratios spread widely (
 deviation about 0.3 on these 77 series, 2026-12-04), so the interval is about ±7% wide: a
 design change that moves the overall ratio by a few percent is within what the choice of
 series alone would give.
+
+``--origins K`` forecasts each series from K origins instead of one: the last season held out,
+then the season before it (the training part ending a season earlier), and so on, each origin
+a forecast of its own with its own selection (a rolling-origin evaluation with non-overlapping
+holdouts; Tashman 2000). Every score is then over the K forecasts of each series; the paired
+interval takes each series' mean log ratio over its origins and the t-interval over series, as
+the origins of one series are not independent of each other. The noise of one season's
+holdout averages out over K of them, the choice of series does not.
 
 Speed (issue 17). The CPU seconds per series of each method's order selection, per frequency,
 side by side with its relative MASE, and the ratios stepwise / Lagdesk and grid / Lagdesk; also
@@ -140,6 +148,8 @@ References
    3rd ed., OTexts, §5.5 (prediction intervals of benchmark methods).
 .. [6] Davydenko, A. & Fildes, R. (2013). Measuring forecasting accuracy: the case of
    judgmental adjustments to SKU-level demand forecasts. *Int. J. Forecasting* 29, 510-522.
+.. [7] Tashman, L.J. (2000). Out-of-sample tests of forecasting accuracy: an analysis and
+   review. *Int. J. Forecasting* 16, 437-450.
 """
 
 from __future__ import annotations
@@ -708,12 +718,14 @@ class Split:
     snaive: Outcome
 
 
-def split(entry: RealSeries) -> Split:
-    """The training part and the last season (:func:`holdout_length`) of ``entry``."""
+def split(entry: RealSeries, origin: int = 0) -> Split:
+    """The training part and the holdout of ``entry``: the last season (:func:`holdout_length`)
+    at ``origin`` 0, the season before it at 1 (the training part ending a season earlier) ..."""
     h = holdout_length(entry.period)
-    train = entry.values.iloc[:-h]
+    end = len(entry.values) - origin * h
+    train = entry.values.iloc[:end - h]
     y = train.to_numpy(dtype=float)
-    actual = entry.values.iloc[-h:].to_numpy(dtype=float)
+    actual = entry.values.iloc[end - h:end].to_numpy(dtype=float)
     scale = mase_scale(y, entry.period)
     return Split(train, y, actual, scale, run_snaive(y, entry.period, actual, scale))
 
@@ -726,16 +738,16 @@ def searches_for(entry: RealSeries, with_grid: bool, quick: bool) -> tuple[str, 
     return ("stepwise", "grid") if with_grid and entry.frequency in GRID_FREQUENCIES else ("stepwise",)
 
 
-def evaluate(entry: RealSeries, searches: tuple[str, ...] = SEARCHES) -> dict:
-    """Lagdesk, the seasonal naive forecast and the ``searches`` on one series: the per-series
-    row of the JSON."""
+def evaluate(entry: RealSeries, searches: tuple[str, ...] = SEARCHES, origin: int = 0) -> dict:
+    """Lagdesk, the seasonal naive forecast and the ``searches`` on one series from one
+    ``origin`` (:func:`split`): a row of the JSON."""
     started = time.perf_counter()
-    part = split(entry)
+    part = split(entry, origin)
     outcomes = run_lagdesk(part.train, entry.name, part.actual, part.scale, part.snaive)
     for name in searches:
         outcomes[name] = run_search(SEARCH_FUNCTIONS[name], part.y, entry.period, part.actual, part.scale, part.snaive)
     outcomes["snaive"] = part.snaive
-    return {"name": entry.name, "source": entry.source, "freq": entry.frequency, "m": entry.period,
+    return {"name": entry.name, "origin": origin, "source": entry.source, "freq": entry.frequency, "m": entry.period,
             "derivation": entry.derivation, "n": len(entry.values), "n_train": len(part.train), "h": part.actual.size,
             "wall_seconds": round(time.perf_counter() - started, 2),
             **{method: outcome.to_dict() for method, outcome in outcomes.items()}}
@@ -747,35 +759,37 @@ def _worker_start() -> None:
 
 
 def evaluate_all(entries: list[RealSeries], jobs: int, with_grid: bool = True, quick: bool = False,
-                 earlier: dict[str, dict] | None = None) -> Iterator[dict]:
-    """Rows as they finish (in list order with one job); with ``earlier`` (rows of an earlier
-    run by name, :func:`earlier_rows`) the searches are not run and their rows are taken from it."""
+                 earlier: dict[tuple[str, int], dict] | None = None, origins: int = 1) -> Iterator[dict]:
+    """Rows as they finish, one per series and origin (in list order with one job); with
+    ``earlier`` (rows of an earlier run, :func:`earlier_rows`) the searches are not run and their
+    rows are taken from it."""
     searches = {e.name: () if earlier else searches_for(e, with_grid, quick) for e in entries}
-    for row in _evaluated(entries, jobs, searches):
+    for row in _evaluated([(e, o) for e in entries for o in range(origins)], jobs, searches):
         if earlier:
-            row.update({m: earlier[row["name"]][m] for m in SEARCHES if m in earlier[row["name"]]})
+            row.update({m: earlier[row["name"], row["origin"]][m] for m in SEARCHES if m in earlier[row["name"], row["origin"]]})
         yield row
 
 
-def _evaluated(entries: list[RealSeries], jobs: int, searches: dict[str, tuple[str, ...]]) -> Iterator[dict]:
+def _evaluated(tasks: list[tuple[RealSeries, int]], jobs: int, searches: dict[str, tuple[str, ...]]) -> Iterator[dict]:
     if jobs == 1:
         _worker_start()
-        yield from (evaluate(e, searches[e.name]) for e in entries)
+        yield from (evaluate(e, searches[e.name], o) for e, o in tasks)
         return
     # The longest series first, so that no worker starts the slowest one last (common practice).
-    longest_first = sorted(entries, key=lambda e: len(e.values) * e.period, reverse=True)
+    longest_first = sorted(tasks, key=lambda task: len(task[0].values) * task[0].period, reverse=True)
     with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start) as pool:
-        futures = [pool.submit(evaluate, e, searches[e.name]) for e in longest_first]
+        futures = [pool.submit(evaluate, e, searches[e.name], o) for e, o in longest_first]
         yield from (f.result() for f in as_completed(futures))
 
 
-def earlier_rows(path: Path, entries: list[RealSeries]) -> dict[str, dict]:
-    """The rows of an earlier run's JSON by series name; every one of ``entries`` must have one."""
+def earlier_rows(path: Path, entries: list[RealSeries], origins: int = 1) -> dict[tuple[str, int], dict]:
+    """The rows of an earlier run's JSON by series name and origin (0 in a JSON written before
+    there were origins); every one of ``entries`` must have one for every origin below ``origins``."""
     try:
-        rows = {r["name"]: r for r in json.loads(path.read_text())["series"]}
+        rows = {(r["name"], r.get("origin", 0)): r for r in json.loads(path.read_text())["series"]}
     except (OSError, ValueError, KeyError, TypeError) as exc:
         raise SystemExit(f"--reuse {path}: not the JSON of an earlier run ({type(exc).__name__}: {exc})") from None
-    missing = [e.name for e in entries if e.name not in rows]
+    missing = [f"{e.name} (origin {o})" for e in entries for o in range(origins) if (e.name, o) not in rows]
     if missing:
         raise SystemExit(f"--reuse {path}: no row for {len(missing)} of the series ({', '.join(missing[:3])}{', ...' if len(missing) > 3 else ''})")
     return rows
@@ -827,9 +841,12 @@ def share_at_most_stepwise(rows: list[dict]) -> float:
 
 def paired_ratio(rows: Iterable[dict], method: str = "lagdesk", against: str = "stepwise") -> dict:
     """Geometric mean over series of ``method``'s MASE / ``against``'s, with the 95% paired
-    t-interval of the mean log ratio taken back to a ratio (module notes)."""
-    usable = scored(r for r in rows if method in r and against in r)
-    logs = np.array([math.log(max(r[method]["mase"], 1e-12) / max(r[against]["mase"], 1e-12)) for r in usable])
+    t-interval of the mean log ratio taken back to a ratio (module notes). A series forecast
+    from several origins counts once, with the mean of its log ratios."""
+    by_series: dict[str, list[float]] = {}
+    for r in scored(r for r in rows if method in r and against in r):
+        by_series.setdefault(r["name"], []).append(math.log(max(r[method]["mase"], 1e-12) / max(r[against]["mase"], 1e-12)))
+    logs = np.array([np.mean(values) for values in by_series.values()])
     if logs.size < 2:
         return {"series": int(logs.size), "ratio": math.nan, "low": math.nan, "high": math.nan}
     half = float(student_t.ppf(0.975, logs.size - 1) * logs.std(ddof=1) / math.sqrt(logs.size))
@@ -977,7 +994,8 @@ def progress(i: int, total: int, row: dict, elapsed: float) -> str:
     parts = [f"{m} {row[m]['order']} {row[m]['mase']:.2f}" + (f" ({row[m]['cpu_seconds']:.1f}s)" if m != "snaive" else "")
              for m in METHODS if m in row]
     conf = row["lagdesk"].get("confidence") or "-"
-    return f"[{i:>2d}/{total}] {elapsed:7.0f}s {row['name']:38s} {row['freq']:9s} n={row['n']:<4d} {conf:9s} " + " | ".join(parts)
+    name = row["name"] + (f" @{row['origin']}" if row["origin"] else "")
+    return f"[{i:>2d}/{total}] {elapsed:7.0f}s {name:38s} {row['freq']:9s} n={row['n_train']:<4d} {conf:9s} " + " | ".join(parts)
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -991,17 +1009,22 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--no-grid", dest="grid", action="store_false", help="leave the plain grid out (it takes most of the time)")
     parser.add_argument("--reuse", type=Path, metavar="JSON",
                         help="run Lagdesk alone; the searches' rows come from an earlier run's JSON (module notes)")
+    parser.add_argument("--origins", type=int, default=1, metavar="K",
+                        help="forecast each series from its last K seasons in turn (module notes; default 1)")
     args = parser.parse_args(argv)
+    if args.origins < 1:
+        raise SystemExit(f"--origins {args.origins}: at least 1")
     os.environ[CRITERION_ENV] = args.criterion  # read by lagdesk_choice, in worker processes too
     entries = select(real_series(), args.quick, args.only)
-    earlier = earlier_rows(args.reuse, entries) if args.reuse else None
+    earlier = earlier_rows(args.reuse, entries, args.origins) if args.reuse else None
     started = time.perf_counter()
     rows = []
-    for i, row in enumerate(evaluate_all(entries, args.jobs, args.grid, args.quick, earlier), 1):
+    total = len(entries) * args.origins
+    for i, row in enumerate(evaluate_all(entries, args.jobs, args.grid, args.quick, earlier, args.origins), 1):
         rows.append(row)
-        print(progress(i, len(entries), row, time.perf_counter() - started), flush=True)
+        print(progress(i, total, row, time.perf_counter() - started), flush=True)
     order = {e.name: i for i, e in enumerate(entries)}
-    rows.sort(key=lambda r: order[r["name"]])
+    rows.sort(key=lambda r: (order[r["name"]], r["origin"]))
     result = summary(rows)
     wall = time.perf_counter() - started
     args.out.parent.mkdir(parents=True, exist_ok=True)
