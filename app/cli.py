@@ -17,7 +17,6 @@ import shutil
 import sqlite3
 import sys
 import threading
-import webbrowser
 from collections.abc import Callable, Sequence
 from contextlib import closing
 from pathlib import Path
@@ -63,6 +62,8 @@ def open_browser_later(url: str) -> None:
     """
     desktop = sys.platform in ("darwin", "win32") or os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")
     if desktop:
+        import webbrowser  # here, not at the top: every other command would pay its import
+
         threading.Timer(BROWSER_DELAY_SECONDS, webbrowser.open, args=(url,)).start()
 
 
