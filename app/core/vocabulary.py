@@ -99,7 +99,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
     Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
     Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
-    Flag.TOO_FEW_SEASONS: "too few full seasons for seasonal terms",
+    Flag.TOO_FEW_SEASONS: "fewer than three full seasons: the seasonal part is read from little data",
     Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",
     Flag.FIXED_SEASONALITY: "the seasonal pattern looks fixed: the seasonal difference may be one too many",
     Flag.LARGE_RESIDUAL: "a residual beyond the outlier threshold: an outlier or a shift the model does not explain",

@@ -203,16 +203,20 @@ def _monthly_seasonal(n: int, seed: int) -> pd.Series:
 
 
 @pytest.mark.parametrize("n, seasons", [(20, 1), (30, 2)])
-def test_too_few_seasons_get_no_seasonal_differencing_and_a_flag(n, seasons):
-    # Common practice (app.core.seasonality): 3 seasons for D = 1, 2 for any seasonal term.
+def test_too_few_seasons_are_flagged_and_differenced_only_on_two_signs(n, seasons):
+    # Common practice (app.core.seasonality): 3 seasons for D = 1 on the seasonal strength
+    # alone, 2 for any seasonal term, and for D = 1 when the first differences also correlate
+    # at lag 12, which a cycle five times the noise's size makes them do.
     result = _identify(_monthly_seasonal(n, seed=n))
     out = result.to_analysis().to_dict()
     assert "too_few_seasons" in out["flags"]
     assert out["seasonal"]["seasons"] == seasons
-    assert all(c["seasonal_order"][1] == 0 for c in out["candidates"])
     if seasons < 2:
         assert out["period"] is None
         assert all(c["seasonal_order"] == [0, 0, 0, 0] for c in out["candidates"])
+    else:
+        assert all(c["seasonal_order"][1] == 1 for c in out["candidates"])
+        assert any("first differences correlate at lag 12" in words for words in out["seasonal"]["explanation"])
 
 
 @pytest.mark.parametrize("period, words", [

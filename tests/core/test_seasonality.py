@@ -15,10 +15,12 @@ from statsmodels.tsa.stattools import acf
 from app.core.errors import OrderError
 from app.core.prepare import prepare_series
 from app.core.seasonality import (
+    BAND_Z,
     MIN_SEASONS_DIFFERENCING,
     SEASONAL_STRENGTH_THRESHOLD,
     choose_seasonal_differencing,
     default_period,
+    lag_correlation_of_differences,
     seasonal_lags,
     seasonal_strength,
     seasonal_structure_present,
@@ -95,15 +97,40 @@ def test_white_noise_is_not_seasonally_differenced(seed):
     assert decision.strength <= SEASONAL_STRENGTH_THRESHOLD
 
 
-def test_too_few_seasons_for_differencing_is_flagged(co2_monthly):
-    # Common practice: 3 full seasons for a seasonal difference, 2 for any seasonal term.
+def test_two_seasons_are_flagged_and_differenced_only_with_both_signs(co2_monthly):
+    # Common practice: 3 full seasons for a seasonal difference on the strength alone, 2 for any
+    # seasonal term. CO2's annual cycle shows in its first differences at lag 12 as well.
     short = co2_monthly[: 2 * 12 + 6]
     decision = choose_seasonal_differencing(short, 12)
     assert decision.seasons == 2 < MIN_SEASONS_DIFFERENCING
-    assert decision.D == 0 and "too_few_seasons" in decision.flags
+    assert "too_few_seasons" in decision.flags
     assert not decision.enough_seasons and decision.seasonal_terms_possible
-    assert decision.strength is not None
-    assert "2 full seasons" in decision.explanation[0]
+    assert decision.strength > SEASONAL_STRENGTH_THRESHOLD
+    assert decision.D == 1
+    correlation = lag_correlation_of_differences(short, 12)
+    assert correlation == pytest.approx(acf(np.diff(short), nlags=12, fft=False)[12], abs=1e-12)  # statsmodels' ACF
+    assert correlation > BAND_Z / np.sqrt(short.size - 1)
+    assert "2 full seasons" in decision.explanation[0] and f"r = {correlation:.2f}" in decision.explanation[0]
+
+
+@pytest.mark.parametrize(("period", "n"), [(12, 24), (52, 104)])
+def test_two_seasons_of_a_series_without_a_season_are_not_differenced(period, n):
+    # Under a random walk or a trend plus noise the lag-s autocorrelation of the first
+    # differences is about N(0, 1/m) (Bartlett; Box, Jenkins, Reinsel & Ljung 2015, §2.1.6,
+    # section from memory): the upper edge of the 5% band lets through about 2.5% of them.
+    rng = np.random.default_rng(3)
+    steps = np.arange(n)
+    walks = [np.cumsum(rng.normal(size=n)) for _ in range(60)]
+    trends = [0.05 * steps + rng.normal(size=n) for _ in range(60)]
+    differenced = sum(choose_seasonal_differencing(x, period).D for x in walks + trends)
+    assert differenced <= 3  # of 120; F_S alone exceeds 0.64 on a quarter to nine tenths of them
+
+
+def test_two_seasons_of_a_weekly_seasonal_random_walk_are_differenced():
+    # x_t = x_(t-52) + e_t: the seasonal difference is the true model.
+    rng = np.random.default_rng(4)
+    runs = [np.cumsum(rng.normal(size=(3, 52)), axis=0).ravel()[:104] for _ in range(40)]
+    assert sum(choose_seasonal_differencing(x, 52).D for x in runs) >= 36  # 98% in the docstring's run
 
 
 def test_less_than_two_seasons_gets_no_strength(co2_monthly):
