@@ -6,8 +6,8 @@
   decomposition (:func:`seasonal_strength`); the series is differenced once at lag ``s`` when
   ``F_S`` exceeds :data:`SEASONAL_STRENGTH_THRESHOLD` and the series holds at least
   :data:`MIN_SEASONS_DIFFERENCING` full seasons (:func:`choose_seasonal_differencing`); with
-  only two, the first differences must also correlate at lag ``s``
-  (:func:`lag_correlation_of_differences`), as F_S alone is unreliable on two seasons.
+  only two, the first differences must also show the season (:func:`season_in_differences`),
+  as F_S alone is unreliable on two seasons.
 * :func:`seasonal_structure_present` tells whether the correlogram shows anything at the
   seasonal lags, so the engine can say "no seasonal structure at lag s" instead of forcing a
   seasonal model; :func:`seasonal_lags` lists the lags ``s, 2s, ...`` a correlogram marks.
@@ -44,6 +44,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 from pandas.tseries.frequencies import to_offset
+from scipy.stats import f as f_distribution
+from scipy.stats import norm
 from statsmodels.tsa.seasonal import STL
 
 from app.core.errors import OrderError
@@ -54,9 +56,10 @@ from app.core.vocabulary import Flag
 SEASONAL_STRENGTH_THRESHOLD = 0.64
 MIN_SEASONS_SEASONAL_TERMS = 2
 MIN_SEASONS_DIFFERENCING = 3
-# The upper edge of the two-sided 5% white-noise band for the lag-s autocorrelation of the first
-# differences (:func:`lag_correlation_of_differences`).
-BAND_Z = 1.96
+# The level of each of the two signs of a season in the first differences
+# (:func:`season_in_differences`): together at most twice that under the null (Bonferroni).
+SIGN_LEVEL = 0.025
+HARMONICS = 2
 STL_ROBUST = True
 
 _ONE_HOUR = pd.Timedelta(hours=1)
@@ -255,19 +258,21 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     Rule: D = 1 when the seasonal strength F_S (:func:`seasonal_strength`) exceeds
     :data:`SEASONAL_STRENGTH_THRESHOLD` = 0.64 and the series holds at least
     :data:`MIN_SEASONS_DIFFERENCING` = 3 full seasons; with two full seasons (and less than
-    three) only when, besides, the first differences correlate at lag ``s``
-    (:func:`lag_correlation_of_differences`); otherwise D = 0 (D = 2 is never proposed,
-    common practice).
+    three) only when, besides, the first differences show the season
+    (:func:`season_in_differences`); otherwise D = 0 (D = 2 is never proposed, common practice).
 
     Why a second sign on two seasons: STL's strength rests on two cycles there and exceeds the
-    threshold on series with no season at all. In 200 simulated series each (seed 11, 2026-12-04,
+    threshold on series with no season at all. In 300 simulated series each (seed 11, 2026-12-04,
     a ``/tmp`` script; figures from that one run): at 24 monthly points on 14% of white noise,
-    34% of random walks and 28% of linear trends plus noise; at 104 weekly points on 68% of
-    random walks and 91% of trends plus noise. With the lag-s autocorrelation of the
-    differences as well, D = 1 came out on at most 1% of them at either length, and on 98% of
-    weekly seasonal random walks of 104 points (12% of monthly ones of 24 points: two monthly
-    seasons say little). ``tests/core/test_seasonality.py`` repeats a smaller version. On three
-    or more seasons the strength alone decides, as before.
+    37% of random walks and 29% of linear trends plus noise; at 104 weekly points on 69% of
+    random walks and 89% of trends plus noise. Each of the two signs of
+    :func:`season_in_differences` is a test at 2.5% under a random walk; F_S and the harmonic
+    sign together came out on 0-5% of those series, and took a fixed pattern twice the size of
+    a random walk's steps on 88-100% of them; the lag-s sign took 98% of weekly seasonal
+    random walks of 104 points in a 200-run simulation of the same day (12% of monthly ones of
+    24 points: two monthly seasons say little), which the harmonic sign misses.
+    ``tests/core/test_seasonality.py`` repeats a smaller version. On three or more seasons the
+    strength alone decides, as before.
 
     Minimum lengths (common practice): 3 full seasons for a seasonal difference, which costs a
     whole season of observations; 2 full seasons for any seasonal AR or MA term, which needs
@@ -321,19 +326,17 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     comparison = f"Seasonal strength {measure.seasonal:.2f} {'>' if above else '<='} {threshold:.2f}"
     if not enough:
         result.flags.append(Flag.TOO_FEW_SEASONS)
-        correlation = lag_correlation_of_differences(filled, period)
-        if above and correlation > BAND_Z / np.sqrt(n - 1):
+        sign = season_in_differences(filled, period)
+        if above and sign.present:
             result.D = 1
             result.explanation.append(
                 f"{comparison}, and with only {_seasons_text(seasons)} of {period} in {n} observations the first "
-                f"differences correlate at lag {period} too (r = {correlation:.2f} > {BAND_Z} / sqrt({n - 1})) "
-                f"-> differenced once at lag {period}."
+                f"differences show the season too ({sign.words()}) -> differenced once at lag {period}."
             )
         else:
             result.explanation.append(
                 f"{comparison}, {'but' if above else 'and'} only {_seasons_text(seasons)} of {period} in {n} observations"
-                + (f" and the first differences do not correlate at lag {period} (r = {correlation:.2f} <= "
-                   f"{BAND_Z} / sqrt({n - 1}))" if above else "")
+                + (f" and the first differences do not show the season ({sign.words()})" if above else "")
                 + f"; not differenced (on fewer than {MIN_SEASONS_DIFFERENCING} seasons the strength alone does not decide)."
             )
     elif above:
@@ -346,19 +349,57 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     return result
 
 
-def lag_correlation_of_differences(x: np.ndarray, period: int) -> float:
-    """The sample autocorrelation at lag ``period`` of the first differences of ``x``.
+@dataclass(frozen=True)
+class SeasonInDifferences:
+    """The two signs of a season in the first differences (:func:`season_in_differences`)."""
 
-    Under a random walk the first differences are white noise, and under a trend plus noise
-    they are an MA(1), so in both their lag-s autocorrelation (s >= 2) is about normal with
-    standard deviation ``1 / sqrt(m)`` on ``m`` differences (Box, Jenkins, Reinsel & Ljung 2015,
-    §2.1.6, Bartlett's formula; section from memory); a seasonal pattern, fixed or changing,
-    repeats in the differences and makes it positive (ch. 9).
+    correlation: float
+    correlation_bound: float
+    harmonic_p: float
+
+    @property
+    def present(self) -> bool:
+        return self.correlation > self.correlation_bound or self.harmonic_p < SIGN_LEVEL
+
+    def words(self) -> str:
+        return (f"lag-s autocorrelation {self.correlation:.2f} against {self.correlation_bound:.2f}; "
+                f"first {HARMONICS} harmonics p = {self.harmonic_p:.3g} against {SIGN_LEVEL}")
+
+
+def season_in_differences(x: np.ndarray, period: int) -> SeasonInDifferences:
+    """Two signs of a season in the first differences of ``x``, each a test at
+    :data:`SIGN_LEVEL` under a random walk, whose first differences are white noise.
+
+    * Their sample autocorrelation at lag ``period`` above ``z / sqrt(m)`` on ``m`` differences
+      (one-sided, ``z`` the upper ``SIGN_LEVEL`` normal quantile): about ``N(0, 1/m)`` under white
+      noise and under the MA(1) of a trend plus noise (Bartlett's formula; Box, Jenkins,
+      Reinsel & Ljung 2015, §2.1.6, section from memory). A changing season repeats in the
+      differences and makes it positive (ch. 9).
+    * The F-test of the first :data:`HARMONICS` harmonics of the period (differenced, beside a
+      constant) in a least-squares regression of the differences: exact under Gaussian white
+      noise, and conservative under over-differenced or stationary noise, whose spectrum is
+      low where the harmonics are. It has the power the autocorrelation lacks on a smooth
+      pattern of a long period, whose week-to-week change is small next to the noise (Harvey
+      1989, §2.3.4, trigonometric seasonality, section from memory).
     """
     d = np.diff(np.asarray(x, dtype=float))
-    d = d - d.mean()
-    denominator = float(d @ d)
-    return float(d[period:] @ d[:-period]) / denominator if denominator > 0 and d.size > period else 0.0
+    centred = d - d.mean()
+    denominator = float(centred @ centred)
+    correlation = float(centred[period:] @ centred[:-period]) / denominator if denominator > 0 and d.size > period else 0.0
+    t = np.arange(d.size + 1)
+    waves = []
+    for j in range(1, min(HARMONICS, period // 2) + 1):
+        waves.append(np.cos(2 * np.pi * j * t / period))
+        if 2 * j != period:  # at the Nyquist frequency the sine is zero
+            waves.append(np.sin(2 * np.pi * j * t / period))
+    design = np.column_stack([np.ones(d.size), np.diff(np.column_stack(waves), axis=0)])
+    q, df = design.shape[1] - 1, d.size - design.shape[1]
+    full = float(np.sum((d - design @ np.linalg.lstsq(design, d, rcond=None)[0]) ** 2))
+    harmonic_p = 1.0
+    if df > 0 and full > 0:
+        statistic = (denominator - full) / q / (full / df)
+        harmonic_p = float(f_distribution.sf(statistic, q, df))
+    return SeasonInDifferences(correlation, float(norm.ppf(1 - SIGN_LEVEL) / np.sqrt(d.size)), harmonic_p)
 
 
 def _seasons_text(seasons: int) -> str:
