@@ -59,6 +59,9 @@ MIN_SEASONS_DIFFERENCING = 3
 # The level of each of the two signs of a season in the first differences
 # (:func:`season_in_differences`): together at most twice that under the null (Bonferroni).
 SIGN_LEVEL = 0.025
+# Harmonics of the period in the F-test of season_in_differences: two give a smooth seasonal
+# shape for four degrees of freedom, which two seasons of data can bear (our choice; a few
+# Fourier terms for a long period are common practice).
 HARMONICS = 2
 STL_ROBUST = True
 
