@@ -48,6 +48,7 @@ from scipy.stats import f as f_distribution
 from scipy.stats import norm
 from statsmodels.tsa.seasonal import STL
 
+from app.core.correlogram import autocorrelations
 from app.core.errors import OrderError
 from app.core.prepare import interpolate_gaps
 from app.core.seasonal_stability import SeasonalStability, canova_hansen
@@ -386,9 +387,8 @@ def season_in_differences(x: np.ndarray, period: int) -> SeasonInDifferences:
       1989, §2.3.4, trigonometric seasonality, section from memory).
     """
     d = np.diff(np.asarray(x, dtype=float))
-    centred = d - d.mean()
-    denominator = float(centred @ centred)
-    correlation = float(centred[period:] @ centred[:-period]) / denominator if denominator > 0 and d.size > period else 0.0
+    around_mean = float(np.sum((d - d.mean()) ** 2))  # the residual sum of squares of the constant alone
+    correlation = float(autocorrelations(d, period)[period]) if around_mean > 0 and d.size > period else 0.0
     t = np.arange(d.size + 1)
     waves = []
     for j in range(1, min(HARMONICS, period // 2) + 1):
@@ -400,7 +400,7 @@ def season_in_differences(x: np.ndarray, period: int) -> SeasonInDifferences:
     full = float(np.sum((d - design @ np.linalg.lstsq(design, d, rcond=None)[0]) ** 2))
     harmonic_p = 1.0
     if df > 0 and full > 0:
-        statistic = (denominator - full) / q / (full / df)
+        statistic = (around_mean - full) / q / (full / df)
         harmonic_p = float(f_distribution.sf(statistic, q, df))
     return SeasonInDifferences(correlation, float(norm.ppf(1 - SIGN_LEVEL) / np.sqrt(d.size)), harmonic_p)
 
