@@ -330,8 +330,9 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     comparison = f"Seasonal strength {measure.seasonal:.2f} {'>' if above else '<='} {threshold:.2f}"
     if not enough:
         result.flags.append(Flag.TOO_FEW_SEASONS)
-        sign = season_in_differences(filled, period)
-        if above and sign.present:
+        # The second sign is looked at only when the strength alone would difference.
+        sign = season_in_differences(filled, period) if above else None
+        if sign is not None and sign.present:
             result.D = 1
             result.explanation.append(
                 f"{comparison}, and with only {_seasons_text(seasons)} of {period} in {n} observations the first "
@@ -340,7 +341,7 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
         else:
             result.explanation.append(
                 f"{comparison}, {'but' if above else 'and'} only {_seasons_text(seasons)} of {period} in {n} observations"
-                + (f" and the first differences do not show the season ({sign.words()})" if above else "")
+                + (f" and the first differences do not show the season ({sign.words()})" if sign is not None else "")
                 + f"; not differenced (on fewer than {MIN_SEASONS_DIFFERENCING} seasons the strength alone does not decide)."
             )
     elif above:
