@@ -115,6 +115,16 @@ from app.core.prepare import interpolate_gaps
 
 LOG_2PI = math.log(2.0 * math.pi)
 STEADY_STATE_TOLERANCE = 1e-13
+# The filters sum log F_t as a running product of the F_t (each at least 1), flushed into the sum
+# once it passes PRODUCT_FLUSH: one logarithm per many steps instead of one per step.
+PRODUCT_FLUSH = 1e250
+# The two helpers the filters call at every time step are inlined into them (numba's
+# inline='always'): each cached njit function is compiled to a library of its own, and a call
+# from one into another is not inlined by the compiler. Measured 2026-12-04 (an njit loop over
+# the objective, n = 220, five orders from ARMA(1,1) to (2,1)(2,2)12, with and without a mean):
+# with the running product above and one division less per step, 10-38% less time per
+# likelihood evaluation, the most on the smaller states.
+INLINED = "always"
 GRADIENT_STEP = 1e-6
 # Below this largest gradient element the optimiser switches to central differences. Tuned on
 # 80 seasonal orders on each of three real monthly series (txhousing Houston, economics unemploy,
@@ -340,10 +350,10 @@ def _stationary_covariance(coef, big_r):
     return p
 
 
-@njit(cache=True)
-def _record(t, w, x, a, v, f, cross, innovations, keep, active):
+@njit(cache=True, inline=INLINED)
+def _record(t, w, x, a, v, inverse, cross, innovations, keep, active):
     """The innovations of ``w_t`` and of the regression columns at time ``t`` with variance
-    ``f``, added to the weighted cross products (and stored when ``keep``). Only the first
+    ``1 / inverse``, added to the weighted cross products (and stored when ``keep``). Only the first
     ``active`` columns (``w`` and the leading regressors) are touched: the others are still
     zero, state and innovation alike (:func:`_joining_times`)."""
     v[0] = w[t] - a[0, 0]
@@ -353,7 +363,7 @@ def _record(t, w, x, a, v, f, cross, innovations, keep, active):
         if keep:
             innovations[c, t] = v[c]
         for e in range(active):
-            cross[c, e] += v[c] * v[e] / f
+            cross[c, e] += v[c] * v[e] * inverse
 
 
 @njit(cache=True)
@@ -380,7 +390,7 @@ def _joining_times(x):
     return joins
 
 
-@njit(cache=True)
+@njit(cache=True, inline=INLINED)
 def _predict_state(a, coef, gain, v, active):
     """``a_{t+1} = T (a_t + K v_t)`` for the first ``active`` columns: ``T`` shifts the state
     up and adds ``coef`` times its first element; O(r) per column."""
@@ -557,15 +567,20 @@ def _chandrasekhar_filter(w, x, coef, p_first, innovations):
         big_w[i] = coef[i] * pcol[0] + (pcol[i + 1] if i + 1 < r else 0.0)
     big_m = -1.0 / f
     log_f = 0.0
+    product = 1.0  # of the F_t since the last flush into log_f (PRODUCT_FLUSH)
     joins = _joining_times(x)
     active = 1
     for t in range(n):
         while active <= k and joins[active + 1] <= t:
             active += 1
+        inverse = 1.0 / f
         for i in range(r):
-            gain[i] = pcol[i] / f
-        _record(t, w, x, a, v, f, cross, innovations, keep, active)
-        log_f += math.log(f)
+            gain[i] = pcol[i] * inverse
+        _record(t, w, x, a, v, inverse, cross, innovations, keep, active)
+        product *= f
+        if product > PRODUCT_FLUSH:
+            log_f += math.log(product)
+            product = 1.0
         _predict_state(a, coef, gain, v, active)
         # P_{t+1} e1 = P_t e1 + M_t W_t W_t[0], then W and M move on.
         w0 = big_w[0]
@@ -575,12 +590,13 @@ def _chandrasekhar_filter(w, x, coef, p_first, innovations):
         f = pcol[0]
         if not f > 0.0:
             return -1.0, np.zeros(k), np.zeros((k, k)), 0.0, 0
-        first = big_w[0] - pcol[0] * w0 / f
+        scaled = w0 / f
+        first = big_w[0] - pcol[0] * scaled
         for i in range(r - 1):
-            big_w[i] = coef[i] * first + big_w[i + 1] - pcol[i + 1] * w0 / f
+            big_w[i] = coef[i] * first + big_w[i + 1] - pcol[i + 1] * scaled
         big_w[r - 1] = coef[r - 1] * first
         big_m += big_m * big_m * w0 * w0 / f_before
-    return cross[0, 0], cross[1:, 0].copy(), cross[1:, 1:].copy(), log_f, n
+    return cross[0, 0], cross[1:, 0].copy(), cross[1:, 1:].copy(), log_f + math.log(product), n
 
 
 @njit(cache=True)
@@ -627,7 +643,7 @@ def _covariance_filter(w, x, coef, big_r, p, innovations):
                     return -1.0, np.zeros(k), np.zeros((k, k)), 0.0, 0
                 for i in range(r):
                     gain[i] = p[i, 0] / f
-            _record(t, w, x, a, v, f, cross, innovations, keep, k + 1)
+            _record(t, w, x, a, v, 1.0 / f, cross, innovations, keep, k + 1)
             log_f += math.log(f)
             observed += 1
         _predict_state(a, coef, gain, v, k + 1)
