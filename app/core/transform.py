@@ -243,16 +243,27 @@ def choose_transform(
 
     best, best_loglik = scored[0]
     for choice, loglik in scored[1:]:
-        gain, drop = loglik - best_loglik, aic(best, best_loglik) - aic(choice, loglik)
-        said = (f"{choice.name()} {'gains' if gain >= 0 else 'loses'} {abs(gain):.1f} "
-                f"{'over' if gain >= 0 else 'to'} {best.name()} on the original scale under {order_label} "
-                f"(AIC {abs(drop):.1f} {'lower' if drop >= 0 else 'higher'}, lambda counted")
+        drop = aic(best, best_loglik) - aic(choice, loglik)
+        words.append(_comparison_words(choice, loglik - best_loglik, drop, best, order_label))
         if drop >= CLEAR_AIC_DROP:
-            words.append(f"{said}; at least {CLEAR_AIC_DROP:g} needed).")
             best, best_loglik = choice, loglik
-        else:
-            words.append(f"{said}): less than {CLEAR_AIC_DROP:g}, {best.name()} kept.")
     return TransformChoice(best.kind, best.lam, explanation=words)
+
+
+def _comparison_words(choice: TransformChoice, gain: float, drop: float, best: TransformChoice, order_label: str) -> str:
+    """One step of :func:`choose_transform` in words: ``choice`` against the choice so far,
+    ``best``, by its log-likelihood ``gain`` and its AIC ``drop`` (both negative when it does worse)."""
+    counted = "choosing a transform counted as one parameter"
+    if gain < 0 or drop < 0:
+        return (f"{choice.name()} {'loses' if gain < 0 else 'gains only'} {abs(gain):.1f} {'to' if gain < 0 else 'over'} "
+                f"{best.name()} on the original scale under {order_label}; its AIC is {abs(drop):.1f} higher "
+                f"({counted}): {best.name()} kept.")
+    said = (f"{choice.name()} gains {gain:.1f} over {best.name()} on the original scale under {order_label}; "
+            f"its AIC is {drop:.1f} lower ({counted})")
+    if drop >= CLEAR_AIC_DROP:
+        return f"{said}, at least the {CLEAR_AIC_DROP:g} needed: {choice.name()} taken."
+    return f"{said}, less than the {CLEAR_AIC_DROP:g} needed: {best.name()} kept."
+
 
 
 def apply_transform(x: np.ndarray, choice: TransformChoice) -> np.ndarray:

@@ -16,6 +16,7 @@ from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
+from app.core import transform as transform_module
 from app.core.errors import OrderError
 from app.core.fitting import fit_candidate
 from app.core.identify import identify_series
@@ -179,7 +180,7 @@ def test_monthly_co2_gets_no_transform(co2_monthly):
     # transform gains the AIC drop of 10 asked for.
     choice = _choose_under(co2_monthly, AIRLINE, 12)
     assert choice.kind == "none", choice.explanation
-    assert "less than 10, none kept" in " ".join(choice.explanation)
+    assert "none kept." in " ".join(choice.explanation)
 
 
 def test_exp_of_stationary_process_gets_log():
@@ -270,3 +271,18 @@ def test_transform_json_round_trip(value):
 def test_transform_json_rejects_unknown_forms(value):
     with pytest.raises(ValueError):
         TransformChoice.from_json(value)
+
+
+@pytest.mark.parametrize(("gain", "drop", "said", "decided"), [
+    (-4.3, -10.7, "log loses 4.3 to none", "its AIC is 10.7 higher (choosing a transform counted as one parameter): none kept."),
+    (0.5, -1.0, "log gains only 0.5 over none", "its AIC is 1.0 higher (choosing a transform counted as one parameter): none kept."),
+    (4.0, 6.0, "log gains 4.0 over none", "its AIC is 6.0 lower (choosing a transform counted as one parameter), less than the 10 needed: none kept."),
+    (8.0, 14.0, "log gains 8.0 over none", "its AIC is 14.0 lower (choosing a transform counted as one parameter), at least the 10 needed: log taken."),
+])
+def test_each_comparison_says_which_way_it_went_and_what_was_kept(gain, drop, said, decided):
+    # A transform's AIC adds 2 to -2 loglik (the choice of transform as one parameter, the rule of
+    # choose_transform); the words give the gain, the AIC's direction and the outcome, never a
+    # "less than 10" beside an AIC that went the other way.
+    words = transform_module._comparison_words(TransformChoice("log"), gain, drop, TransformChoice("none"), "ARIMA(0,1,1)")
+    assert words.startswith(said + " on the original scale under ARIMA(0,1,1); ")
+    assert words.endswith(decided)
