@@ -28,7 +28,7 @@ from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, order_label
 from app.core.vocabulary import DECIDED, Confidence, VerdictStatus, reason_words
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
-from app.jobs.progress import ProgressLine
+from app.jobs.progress import ProgressLine, Ticker
 
 if TYPE_CHECKING:
     from app.core.analysis import Analysis
@@ -464,9 +464,10 @@ def run_identify(args: argparse.Namespace) -> int:
         announce_compile()
     progress = ProgressLine(len(tasks), "identify")
     outcomes = {}
-    for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
-        outcomes[outcome.series_id] = outcome
-        progress.advance(failed=outcome.problem is not None)
+    with Ticker(progress):
+        for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
+            outcomes[outcome.series_id] = outcome
+            progress.advance(failed=outcome.problem is not None)
     progress.close()
     ordered = [outcomes[t.series_id] for t in tasks]
     results = [o.result for o in ordered if o.result is not None]
@@ -515,10 +516,11 @@ def run_analyze(args: argparse.Namespace) -> int:
             executor=executor_choice(args), on_progress=shown,
         )
     except KeyboardInterrupt:
-        shown.close()
+        shown.close()  # the line ends before the message
         print("lagdesk analyze: interrupted; the series finished so far are kept, run it again to resume", file=sys.stderr)
         return 130
-    shown.close()
+    finally:
+        shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(run_summary_text(run, shown.problems, status))
@@ -535,11 +537,13 @@ def announce_compile() -> None:
 
 
 class RunProgressLine:
-    """Shows a run's progress on a :class:`ProgressLine`, made once the run knows its total."""
+    """Shows a run's progress on a :class:`ProgressLine`, made once the run knows its total and
+    kept ticking (:class:`Ticker`) until :meth:`close`, which may be called more than once."""
 
     def __init__(self, label: str) -> None:
         self.label = label
         self.line: ProgressLine | None = None
+        self.ticker: Ticker | None = None
         self.problems: list[dict] = []
 
     def __call__(self, progress: RunProgress) -> None:
@@ -547,13 +551,17 @@ class RunProgressLine:
             if progress.total:
                 announce_compile()
             self.line = ProgressLine(progress.total, self.label)
+            self.ticker = Ticker(self.line).start()
         while self.line.done < progress.done:
             self.line.advance(failed=self.line.failed < progress.failed)
         self.problems = progress.problems
 
     def close(self) -> None:
-        if self.line is not None and self.line.total:
-            self.line.close()
+        if self.ticker is not None:
+            self.ticker.stop()
+            self.ticker = None
+            if self.line is not None and self.line.total:
+                self.line.close()
 
 
 def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
@@ -781,11 +789,13 @@ def run_demo(args: argparse.Namespace) -> int:
     path = resolve_db_path(args.db)
     settings = None if args.build_only else _listenable(path, args)
     shown = RunProgressLine("demo")
-    build_demo_database(
-        path, args.workers, on_progress=shown,
-        on_import=lambda report: print(terminal_text(report.summary()), flush=True),
-    )
-    shown.close()
+    try:
+        build_demo_database(
+            path, args.workers, on_progress=shown,
+            on_import=lambda report: print(terminal_text(report.summary()), flush=True),
+        )
+    finally:
+        shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
     print(demo_next_steps(path, status))

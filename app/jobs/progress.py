@@ -3,10 +3,16 @@
 from __future__ import annotations
 
 import sys
+import threading
 import time
 from typing import TextIO
 
 REFRESH_SECONDS = 0.25
+# While no series finishes (the likelihood's compile after an install takes most of a minute), the
+# elapsed time is redrawn every TICK_SECONDS on a terminal, and a line is written to a log after
+# QUIET_LINE_SECONDS without one, so a run never looks hung.
+TICK_SECONDS = 1.0
+QUIET_LINE_SECONDS = 10.0
 # A rate measured over less than this says nothing (two series finishing together gave "22126.8/s").
 RATE_AFTER_SECONDS = 1.0
 
@@ -20,7 +26,8 @@ class ProgressLine:
     once) is paid once per run, and counted in would promise hours at the start of a minute's run.
 
     On a terminal the line is redrawn in place; otherwise (a log file, CI) one line is written
-    every tenth of the work so logs stay short.
+    every tenth of the work so logs stay short. :meth:`tick` (called by :class:`Ticker`) keeps
+    the elapsed time moving while nothing finishes.
     """
 
     def __init__(self, total: int, label: str, stream: TextIO | None = None) -> None:
@@ -32,6 +39,8 @@ class ProgressLine:
         self.first_done: float | None = None
         self._last_draw = 0.0
         self._last_decile = -1
+        self._last_line = self.started
+        self._lock = threading.Lock()
         self._tty = bool(getattr(self.stream, "isatty", lambda: False)())
         if total:
             self._draw(self.started, force=True)
@@ -50,12 +59,25 @@ class ProgressLine:
         return f"{self.label}: {self.done}/{self.total} series{failed}{tail}"
 
     def advance(self, failed: bool = False) -> None:
-        self.done += 1
-        self.failed += int(failed)
-        now = time.monotonic()
-        if self.first_done is None:
-            self.first_done = now
-        self._draw(now, force=self.done == self.total)
+        with self._lock:
+            self.done += 1
+            self.failed += int(failed)
+            now = time.monotonic()
+            if self.first_done is None:
+                self.first_done = now
+            self._draw(now, force=self.done == self.total)
+
+    def tick(self) -> None:
+        """Redraw the line on a terminal; in a log, write it when nothing was written for
+        :data:`QUIET_LINE_SECONDS`. Nothing once the work is done."""
+        with self._lock:
+            now = time.monotonic()
+            if self.done >= self.total:
+                return
+            if self._tty:
+                self._draw(now, force=True)
+            elif now - self._last_line >= QUIET_LINE_SECONDS:
+                self._write_line(now)
 
     def _draw(self, now: float, force: bool) -> None:
         if self._tty:
@@ -66,11 +88,46 @@ class ProgressLine:
         else:
             decile = (10 * self.done) // max(self.total, 1)
             if decile != self._last_decile:
-                self.stream.write(self.text() + "\n")
-                self.stream.flush()
+                self._write_line(now)
                 self._last_decile = decile
 
+    def _write_line(self, now: float) -> None:
+        self.stream.write(self.text() + "\n")
+        self.stream.flush()
+        self._last_line = now
+
     def close(self) -> None:
-        if self._tty:
-            self.stream.write("\n")
-            self.stream.flush()
+        with self._lock:
+            if self._tty:
+                self.stream.write("\n")
+                self.stream.flush()
+
+
+class Ticker:
+    """Calls :meth:`ProgressLine.tick` every :data:`TICK_SECONDS` from a daemon thread, from
+    :meth:`start` (or entering the ``with`` block) until :meth:`stop` (or leaving it)."""
+
+    def __init__(self, line: ProgressLine, seconds: float = TICK_SECONDS) -> None:
+        self.line, self.seconds = line, seconds
+        self._stopped = threading.Event()
+        self._thread = threading.Thread(target=self._run, name="progress-ticker", daemon=True)
+
+    def _run(self) -> None:
+        while not self._stopped.wait(self.seconds):
+            self.line.tick()
+
+    def start(self) -> Ticker:
+        if self.line.total:
+            self._thread.start()
+        return self
+
+    def stop(self) -> None:
+        self._stopped.set()
+        if self._thread.is_alive():
+            self._thread.join()
+
+    def __enter__(self) -> Ticker:
+        return self.start()
+
+    def __exit__(self, *exc: object) -> None:
+        self.stop()

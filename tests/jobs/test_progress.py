@@ -5,6 +5,7 @@ workers' start) does not promise hours at the start of a short run. A fake clock
 from __future__ import annotations
 
 import io
+import threading
 
 import pytest
 
@@ -60,3 +61,57 @@ def test_no_rate_is_shown_before_a_second_has_passed_since_the_first_series(cloc
     clock.now = 2.0001  # a second series finishes at once (a rejected one, say)
     line.advance()
     assert line.text() == "identify: 2/3 series  2 s"
+
+
+class Terminal(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+def test_a_tick_redraws_the_elapsed_time_on_a_terminal_while_nothing_finishes(clock):
+    # The compile after an install takes most of a minute before the first series lands.
+    stream = Terminal()
+    line = ProgressLine(91, "demo", stream)
+    clock.now = 7.0
+    line.tick()
+    assert stream.getvalue().endswith("\rdemo: 0/91 series  7 s".ljust(73))
+
+
+def test_in_a_log_a_tick_writes_a_line_only_after_a_quiet_spell(clock):
+    stream = io.StringIO()
+    line = ProgressLine(91, "demo", stream)
+    clock.now = progress.QUIET_LINE_SECONDS - 1
+    line.tick()
+    assert stream.getvalue() == "demo: 0/91 series  0 s\n"
+    clock.now = progress.QUIET_LINE_SECONDS
+    line.tick()
+    assert stream.getvalue().splitlines() == ["demo: 0/91 series  0 s", "demo: 0/91 series  10 s"]
+    line.advance()  # 1 of 91 is still the first tenth: no decile line; 9 s after the last line, no tick line
+    clock.now = 2 * progress.QUIET_LINE_SECONDS - 1
+    line.tick()
+    assert len(stream.getvalue().splitlines()) == 2
+
+
+def test_nothing_is_drawn_after_the_work_is_done(clock):
+    stream = Terminal()
+    line = ProgressLine(1, "identify", stream)
+    line.advance()
+    drawn = stream.getvalue()
+    clock.now = 60.0
+    line.tick()
+    assert stream.getvalue() == drawn
+
+
+def test_the_ticker_ticks_from_its_thread_until_stopped():
+    ticks = threading.Event()
+
+    class Line:
+        total = 3
+
+        def tick(self) -> None:
+            ticks.set()
+
+    ticker = progress.Ticker(Line(), seconds=0.01)  # type: ignore[arg-type]
+    with ticker:
+        assert ticks.wait(5.0)
+    assert not ticker._thread.is_alive()
