@@ -314,7 +314,7 @@ def _export_options(export: argparse.ArgumentParser) -> None:
 
     _add_db(export)
     export.add_argument("--format", choices=FORMATS, default="json", help="file format (default json)")
-    export.add_argument("-o", "--output", help="file to write (default ./lagdesk-orders.FORMAT); written atomically")
+    export.add_argument("-o", "--output", help="file to write, or a folder to write lagdesk-orders.FORMAT in (default: the current folder); written atomically")
     export.add_argument(
         "--status", default=",".join(DECIDED), metavar="LIST",
         help=f"decisions to include, comma-separated: {' or '.join(DECIDED)} or both (default {','.join(DECIDED)}); "

@@ -158,8 +158,11 @@ def write_atomically(path: Path, text: str) -> None:
     """Write ``text`` to ``path`` so that a reader sees the old file or the new one, never a part;
     with the permissions of the module notes."""
     temporary = path.with_name(f".{path.name}.{secrets.token_hex(8)}.tmp")
-    # Created as any new file is (0666 less the umask, applied by the kernel); not tempfile's 0600.
-    fd = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    try:
+        # Created as any new file is (0666 less the umask, applied by the kernel); not tempfile's 0600.
+        fd = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    except OSError as exc:  # said of the file asked for: the temporary one is ours, not the user's
+        raise OSError(exc.errno, f"cannot write it ({exc.strerror})", str(path)) from exc
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
             handle.write(text)
@@ -178,11 +181,14 @@ def export_command(
 ) -> str:
     """``lagdesk export``: write the export of the database at ``db_path``; returns a summary line.
 
-    ``output`` defaults to ``lagdesk-orders.<fmt>`` in the current folder; ``statuses`` is a
-    list or a comma-separated text (``"approved,overridden"``).
+    ``output`` defaults to ``lagdesk-orders.<fmt>`` in the current folder, and a folder given as
+    ``output`` gets that file name in it; ``statuses`` is a list or a comma-separated text
+    (``"approved,overridden"``).
     """
     chosen = parse_statuses(statuses)
-    target = Path(output) if output is not None else Path.cwd() / f"lagdesk-orders.{fmt}"
+    target = Path(output) if output is not None else Path.cwd()
+    if target.is_dir():
+        target = target / f"lagdesk-orders.{fmt}"
     db = open_database(db_path)
     try:
         document = write_export(db, target, fmt, chosen)

@@ -282,3 +282,24 @@ def test_export_command_writes_and_summarises(db, tmp_path, portfolio_csv):
     import_portfolio(db, tmp_path / "v2.csv")
     line = export_command(db_path, "json", tmp_path / "out.json")
     assert "1 of them was decided on data that has changed since (e.g. 'hearthloaf/station-row/coffee-cake')" in line
+
+
+def test_a_folder_as_the_output_gets_the_default_file_name_in_it(db, tmp_path):
+    folder = tmp_path / "handoff"
+    folder.mkdir()
+    line = export_command(tmp_path / "lagdesk.db", "json", folder)
+    assert f"written to {folder / 'lagdesk-orders.json'} as json" in line
+    assert json.loads((folder / "lagdesk-orders.json").read_text(encoding="utf-8"))["schema"] == "lagdesk-orders"
+
+
+def test_a_file_that_cannot_be_created_is_named_in_the_error_not_the_temporary_one(db, tmp_path, monkeypatch):
+    target = tmp_path / "orders.json"
+
+    def refused(name, *args, **kwargs):
+        raise PermissionError(13, "Permission denied", str(name))
+
+    monkeypatch.setattr(export_module.os, "open", refused)
+    with pytest.raises(OSError) as caught:
+        write_export(db, target, "json")
+    assert caught.value.filename == str(target) and "cannot write it" in str(caught.value)
+    assert ".tmp" not in str(caught.value)
