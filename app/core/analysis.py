@@ -120,6 +120,12 @@ class Candidate:
     def label(self) -> str:
         return self.order.label()
 
+    @property
+    def full_label(self) -> str:
+        """The label and the deterministic term in words (``ARIMA(1,0,0)(0,1,1)12 with a drift``):
+        what tells two candidates of the same orders apart on a page."""
+        return self.order.label() + self.order.term_words()
+
     def parameter_values(self) -> dict[str, float]:
         """The fitted coefficients by name, as the export hands them on."""
         return {p.name: p.value for p in self.params}

@@ -164,7 +164,7 @@ def candidate_view(candidate: Candidate, rank: int | str, labels: list, period: 
         "seasonal_order": list(candidate.order.seasonal_order),
         "rank": rank,
         "key": key,
-        "label": candidate.label,
+        "label": candidate.full_label,
         "source_words": source_words(candidate.source),
         "mase": check["mase"] if check else None,
         "fails_ljung_box": fails_ljung_box(candidate),

@@ -304,6 +304,20 @@ def test_review_page_names_the_orders_screening_left_out(client, results):
     assert "data-screened-out" not in client.get(page(quiet)).text
 
 
+
+def test_every_order_on_the_review_page_names_its_deterministic_term(client, results):
+    # Two candidates of the same orders differ only by a mean, drift or trend: the suggestion, the
+    # candidate table and the approve button name it, as the screened-out list does.
+    termed = {series_id: r for series_id, r in results.items() if r.candidates and r.suggested.order.trend != "n"}
+    assert termed, "the synthetic portfolio should have a suggestion with a mean, drift or trend"
+    for series_id, r in termed.items():
+        text = html.unescape(client.get(page(series_id)).text)
+        full = r.suggested.order.label() + r.suggested.order.term_words()
+        assert f'<strong class="order-big">{full}</strong>' in text
+        assert f"Approve {full}" in text
+        for c in r.candidates:
+            assert f'class="order">{c.order.label() + c.order.term_words()}</label>' in text
+
 def test_review_page_unknown_is_404(client):
     response = client.get(page("no/such/series"))
     assert response.status_code == 404
