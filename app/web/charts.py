@@ -61,7 +61,7 @@ def _layout(height: int, y_title: str, x_title: str) -> dict:
 
 
 def _axis(title: str) -> dict:
-    return {"title": {"text": title, "standoff": 4}, "gridcolor": GRID, "zeroline": False, **TICKS}
+    return {"title": {"text": title, "standoff": 4}, "automargin": True, "gridcolor": GRID, "zeroline": False, **TICKS}
 
 
 def _as_json(data: list[dict], layout: dict) -> dict:
