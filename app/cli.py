@@ -753,7 +753,8 @@ def run_backtest(args: argparse.Namespace) -> int:
     path = _existing_db(args.db)
     announce_compile()
     with closing(open_database(path)) as db:
-        check = backtest_series(db, args.series_id, args.order, args.seasonal, args.transform, args.horizon, args.origins)
+        check = backtest_series(db, args.series_id, args.order, args.seasonal, args.transform, args.horizon, args.origins,
+                                any_order=True)
     if args.json:
         json.dump(check, sys.stdout, allow_nan=False)
         sys.stdout.write("\n")

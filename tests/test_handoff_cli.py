@@ -20,7 +20,7 @@ from statsmodels.stats.diagnostic import acorr_ljungbox
 
 import app
 from app.cli import main
-from app.review.forecast_check import backtest_series
+from app.review.forecast_check import ForecastCheckTooLarge, backtest_series
 from app.store.database import open_database
 from app.store.verdicts import get_verdict, set_verdict
 
@@ -89,6 +89,15 @@ def test_export_recheck_and_backtest_from_the_command_line(run_cli, tmp_path):
     assert (shown["mase"], shown["coverage"], shown["horizon"]) == (direct["mase"], direct["coverage"], 8)
     code, out, _ = run_cli("backtest", SID, "--db", db_path)
     assert code == 0 and "MASE" in out and "seasonal naive MASE" in out
+    # An order beyond the engine's search limits can be approved, so the command line checks it
+    # too (the server keeps its bound: anyone who can open a page can ask for a check there).
+    with open_database(db_path) as db:
+        set_verdict(db, SID, status="overridden", order=[7, 0, 0], seasonal_order=[0, 0, 0, 0], reviewer="ann", note="ar 7",
+                    version=get_verdict(db, SID)["version"])
+    code, out, _ = run_cli("backtest", SID, "--db", db_path, "--order", "7,0,0", "--json")
+    assert code == 0 and json.loads(out)["label"].startswith("ARIMA(7,0,0)")
+    with open_database(db_path) as db, pytest.raises(ForecastCheckTooLarge, match="lagdesk backtest --order checks any order"):
+        backtest_series(db, SID, [7, 0, 0])
 
 
 def test_backtest_of_an_unknown_series_is_one_line(run_cli, tmp_path):

@@ -5,7 +5,9 @@ Each origin refits the order, so the work grows with the origins, the horizon an
 a check is bounded, since anyone who can open a page can ask for one: at most
 :data:`MAX_ORIGINS` origins, a horizon of at most two seasons or :data:`MIN_HORIZON_CAP` steps
 (whichever is longer), and orders within the engine's own search limits
-(:data:`app.core.order.MAX_ORDER`, :data:`app.core.order.MAX_SEASONAL_ORDER`). A comparison
+(:data:`app.core.order.MAX_ORDER`, :data:`app.core.order.MAX_SEASONAL_ORDER`). ``lagdesk
+backtest`` runs on its user's own machine and takes any order a verdict takes
+(:func:`app.core.order.validate_order`): an order that can be approved can be checked. A comparison
 runs the checks of :data:`MIN_COMPARED` to :data:`MAX_COMPARED` orders, each within those bounds.
 
 Checks are not stored in the database. The last :data:`REMEMBERED_CHECKS` are kept in this
@@ -93,18 +95,19 @@ def max_horizon(period: int | None) -> int:
     return max(HORIZON_CAP_SEASONS * (period or 0), MIN_HORIZON_CAP)
 
 
-def check_bounds(model: Order, period: int | None, horizon: int | None, origins: int | None) -> None:
-    """Refuse a check beyond the bounds of the module notes.
+def check_bounds(model: Order, period: int | None, horizon: int | None, origins: int | None, any_order: bool = False) -> None:
+    """Refuse a check beyond the bounds of the module notes; with ``any_order`` (the command
+    line) the order is not bounded.
 
     Raises
     ------
     ForecastCheckTooLarge
         Naming the bound passed.
     """
-    if max(model.p, model.q) > MAX_ORDER or max(model.P, model.Q) > MAX_SEASONAL_ORDER:
+    if not any_order and (max(model.p, model.q) > MAX_ORDER or max(model.P, model.Q) > MAX_SEASONAL_ORDER):
         raise ForecastCheckTooLarge(
-            f"the forecast check takes orders up to the engine's search limits (p, q <= {MAX_ORDER}; "
-            f"P, Q <= {MAX_SEASONAL_ORDER}), not {model.label()}"
+            f"the forecast check here takes orders up to the engine's search limits (p, q <= {MAX_ORDER}; "
+            f"P, Q <= {MAX_SEASONAL_ORDER}), not {model.label()}; lagdesk backtest --order checks any order a verdict takes"
         )
     if origins is not None and not 1 <= origins <= MAX_ORIGINS:
         raise ForecastCheckTooLarge(f"origins ({origins}) must be between 1 and {MAX_ORIGINS}")
@@ -125,11 +128,13 @@ def backtest_series(
     origins: int | None = None,
     include_constant: bool | None = None,
     interventions: ChosenInterventions | None = None,
+    any_order: bool = False,
 ) -> dict[str, Any]:
     """The forecast check of one order on a stored series.
 
     ``order`` None checks the analysis' suggestion (with its seasonal order unless one is
-    given); a seasonal order left out is none.
+    given); a seasonal order left out is none. ``any_order`` lifts the bound on the order (the
+    command line; module notes).
 
     The deterministic term is the one the engine gives the order
     (:meth:`app.core.analysis.Analysis.model_for`) unless ``include_constant`` says otherwise;
@@ -151,7 +156,8 @@ def backtest_series(
     UnknownSeries
         When the database holds no such series.
     ForecastCheckTooLarge
-        When the order, the horizon or the origins pass the bounds of the module notes.
+        When the order (unless ``any_order``), the horizon or the origins pass the bounds of the
+        module notes.
     LagdeskError
         When the order or transform is not valid, or the series is too short for the check.
     """
@@ -172,7 +178,7 @@ def backtest_series(
     model = analysis.model_for(order, seasonal_order)[0] if analysis else validate_order(order, seasonal_order)
     model = with_constant(model, include_constant)
     period = model.period or (analysis.seasonal.examined_period if analysis else None)
-    check_bounds(model, period, horizon, origins)
+    check_bounds(model, period, horizon, origins, any_order)
     chosen = reviewer_interventions(prepared, model, choice, analysis, interventions)
     taken_out = taken_out_with(analysis, choice, chosen)
     key = check_key(series_id, fingerprint, model, choice, horizon, origins,
