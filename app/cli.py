@@ -862,9 +862,9 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
             ", ".join(r.flags) or "-", terminal_text(why(r)),
         ))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]
-    lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows]
+    lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows] if results else []
     counts = ", ".join(f"{sum(r.confidence == level for r in results)} {level}" for level in Confidence)
-    lines.append("")
+    lines += [""] if results else []
     lines.append(f"{len(results)} series identified ({counts}); {len(problems)} could not be analysed.")
     lines += [terminal_text(f"  problem: {p['message']}") for p in problems]
     return "\n".join(lines)

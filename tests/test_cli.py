@@ -822,3 +822,11 @@ def test_a_reader_that_stops_early_ends_the_command_quietly(run_cli, small_csv, 
     error = child.stderr.read()
     assert child.wait(timeout=120) == 141
     assert error == b""
+
+
+def test_identify_table_without_a_result_is_the_count_and_the_problems_only():
+    problem = {"message": "series 'a': is constant (every value is 4); there is nothing to model"}
+    assert identify_table([], [problem]).splitlines() == [
+        "0 series identified (0 firm, 0 tentative, 0 weak); 1 could not be analysed.",
+        f"  problem: {problem['message']}",
+    ]
