@@ -501,8 +501,10 @@ def _with_interventions(
 ) -> tuple[_Identified, list[Intervention]]:
     """Outliers and level shifts under the leading order (Chen & Liu 1993); when there are any,
     the series is identified again with their effects taken out and they are estimated jointly
-    with the new leader. The differencing is decided again only after a level shift (so that
-    the shift is not read as a unit root); otherwise only the ARMA orders are read again."""
+    with the new leader. The differencing is decided again after a level shift (so that the
+    shift is not read as a unit root) and when the adjusted series takes another seasonal
+    difference (an outlier hides a season from the strength measure); otherwise only the ARMA
+    orders are read again."""
     leader = first.ranked[0]
     if leader.estimate is None:
         return first, []
@@ -524,15 +526,19 @@ def _with_interventions(
         # Its size for the adjustment is the one under the stationary alternative; the
         # unit-root tests of the adjusted series decide whether a difference is still needed.
         found = estimate_jointly(y, _one_difference_less(leader.model), found, np.zeros(0), prepared.index) or found
-    # Without a level shift the differencing stays: an outlier or a temporary change is not a
-    # change of level, and the tests on the adjusted series would only add their noise to a
-    # decision the ranking has already made. The ARMA orders are read again. The search is
-    # repeated once when the joint fit under the new leader keeps a different set; a set that
-    # still moves is not one to adjust the series by, and the series is left as it is.
+    # Without a level shift the ordinary differencing stays: an outlier or a temporary change is
+    # not a change of level, and the unit-root tests on the adjusted series would only add their
+    # noise to a decision the ranking has already made. The seasonal strength is another matter:
+    # a ratio of variances, one spike three times the level takes it from 0.97 to 0.05 and the
+    # season is lost; when the adjusted series decides D otherwise, the differencing is decided
+    # again in full. The ARMA orders are read again. The search is repeated once when the joint
+    # fit under the new leader keeps a different set; a set that still moves is not one to
+    # adjust the series by, and the series is left as it is.
     current: list[Intervention] = found
     for _ in range(2):
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
-        differencing = None if shifted else (first.seasonal, first.decision, leader.model.d)
+        same = not shifted and not _season_moves(adjusted(y, current), period, first.seasonal)
+        differencing = (first.seasonal, first.decision, leader.model.d) if same else None
         again = _search_on(prepared.series_id, adjusted(y, current), period, period_words, options, differencing)
         best = again.ranked[0]
         start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
@@ -546,6 +552,11 @@ def _with_interventions(
             return again, [replace(i, t_stat=by_place[(i.kind, i.position)]) for i in sorted(current, key=lambda i: i.position)]
         current = kept
     return first, []
+
+
+def _season_moves(y: np.ndarray, period: int | None, seasonal: SeasonalSetup) -> bool:
+    """Whether the seasonal differencing of ``y`` (an adjusted series) differs from ``seasonal``'s."""
+    return bool(period) and choose_seasonal_differencing(y, period).D != seasonal.D
 
 
 def _one_difference_less(model: Order) -> Order:

@@ -25,6 +25,7 @@ from app.core.interventions import (
     residual_response,
 )
 from app.core.order import Order
+from app.core.seasonality import SEASONAL_STRENGTH_THRESHOLD, choose_seasonal_differencing
 from app.core.vocabulary import Flag, InterventionKind
 
 
@@ -102,6 +103,26 @@ def test_a_spike_is_found_where_it_is_and_the_order_survives():
     assert Flag.OUTLIERS in analysis.flags and analysis.confidence != "firm"
     assert any("additive outlier at 2024-03-11" in note for note in analysis.data_notes)
 
+
+
+@pytest.mark.parametrize("position", [120, 200])
+def test_a_spike_in_a_seasonal_series_does_not_take_its_seasonal_difference(position):
+    # Monthly Mauna Loa CO2 (statsmodels' co2 data, the last 20 years) has a seasonal strength of
+    # 0.985; one spike of +30 ppm brings the strength of the series as observed to about 0.5,
+    # below the 0.64 rule, and the season was lost (D = 0) although the spike was found. With
+    # the spike taken out the seasonal difference is decided again (Chen & Liu 1993 adjust the
+    # series before identifying it again), and the suggestion is that of the clean series.
+    weekly = sm.datasets.co2.load_pandas().data["co2"]
+    clean = weekly.resample("MS").mean().ffill().iloc[-240:]
+    spiked = clean.copy()
+    spiked.iloc[position] += 30.0
+    expected = identify_series(clean, "co2").to_analysis()
+    assert choose_seasonal_differencing(spiked.to_numpy(), 12).D == 0  # the series as observed hides its season
+    found = identify_series(spiked, "co2")
+    assert found.seasonal.differencing is not None and found.seasonal.differencing.strength > SEASONAL_STRENGTH_THRESHOLD
+    analysis = found.to_analysis()
+    assert [(i.kind, i.timestamp) for i in analysis.interventions] == [(InterventionKind.ADDITIVE, str(spiked.index[position].date()))]
+    assert analysis.suggested.order == expected.suggested.order and analysis.suggested.order.seasonal_order[1] == 1
 
 def test_the_nile_level_shift_is_found():
     # The Nile's annual flow at Aswan, 1871-1970, dropped around 1898-1899 (Cobb 1978; Balke 1993
