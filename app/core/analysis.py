@@ -122,9 +122,9 @@ class Candidate:
 
     @property
     def full_label(self) -> str:
-        """The label and the deterministic term in words (``ARIMA(1,0,0)(0,1,1)12 with a drift``):
-        what tells two candidates of the same orders apart on a page."""
-        return self.order.label() + self.order.term_words()
+        """The label with the deterministic term in words (:meth:`Order.full_label`): what tells
+        two candidates of the same orders apart on a page."""
+        return self.order.full_label()
 
     def parameter_values(self) -> dict[str, float]:
         """The fitted coefficients by name, as the export hands them on."""

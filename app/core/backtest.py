@@ -292,7 +292,7 @@ class Backtest:
         holdout_stamps = _stamps(index[index.size - self.horizon:])
         return {
             "series_id": self.series_id,
-            "label": self.model.label() + self.model.term_words(),
+            "label": self.model.full_label(),
             "order": list(self.model.order),
             "seasonal_order": list(self.model.seasonal_order),
             "trend": self.model.trend,

@@ -114,6 +114,10 @@ class Order:
         two models of the same orders apart."""
         return TERM_WORDS[self.trend]
 
+    def full_label(self) -> str:
+        """:meth:`label` and :meth:`term_words`: ``ARIMA(1,0,0)(0,1,1)12 with a drift``."""
+        return self.label() + self.term_words()
+
     def to_json(self) -> dict[str, Any]:
         return {"order": list(self.order), "seasonal_order": list(self.seasonal_order), "trend": self.trend}
 
