@@ -29,7 +29,7 @@ import pandas as pd
 from app.core.analysis import Intervention
 from app.core.errors import OrderError
 from app.core.interventions import MAX_SHARE
-from app.core.residual_outliers import moment
+from app.core.prepare import moment
 from app.core.vocabulary import InterventionKind
 
 KINDS = ", ".join(str(k) for k in InterventionKind)

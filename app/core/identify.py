@@ -55,9 +55,9 @@ from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
-from app.core.prepare import PreparedSeries, prepare_series
+from app.core.prepare import PreparedSeries, moment, prepare_series
 from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
-from app.core.residual_outliers import largest_residual, moment, prediction_variance_ratios
+from app.core.residual_outliers import largest_residual, prediction_variance_ratios
 from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,

@@ -58,7 +58,8 @@ from app.core.analysis import Intervention
 from app.core.fitting import difference, trend_design
 from app.core.likelihood import ArmaFit, fit_arma
 from app.core.order import Order
-from app.core.residual_outliers import moment, outlier_threshold, robust_scale
+from app.core.prepare import moment
+from app.core.residual_outliers import outlier_threshold, robust_scale
 from app.core.vocabulary import InterventionKind
 
 TC_DECAY = 0.7

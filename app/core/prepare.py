@@ -189,9 +189,15 @@ def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> 
         why = "is not finite" if np.isinf(size[i]) else (
             f"is too large to analyse (beyond ±{MAX_ABS_VALUE:g} squares overflow); rescale the series"
         )
-        raise SeriesProblem(sid, f"value {values.iloc[i]:g} at {values.index[i]} {why}",
+        raise SeriesProblem(sid, f"value {values.iloc[i]:g} at {moment(values.index[i])} {why}",
                             row=line if line > 0 else None, flag="bad_value")
 
+
+def moment(stamp: object) -> str:
+    """A time stamp as a reader writes it: the date alone at midnight, else date and time."""
+    if isinstance(stamp, pd.Timestamp):
+        return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")
+    return str(stamp)
 
 def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
     duplicated = values.index.duplicated(keep="first")
@@ -199,7 +205,7 @@ def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
         i = int(np.flatnonzero(duplicated)[0])
         line = int(line_of.iloc[i])
         raise SeriesProblem(
-            sid, f"timestamp {values.index[i]} appears more than once (combine the observations of a timestamp, "
+            sid, f"timestamp {moment(values.index[i])} appears more than once (combine the observations of a timestamp, "
             "e.g. their sum or mean, before importing)",
             row=line if line > 0 else None, flag="duplicate_timestamp",
         )

@@ -42,6 +42,8 @@ import pandas as pd
 from scipy.stats import norm
 from statsmodels.tsa.innovations.arma_innovations import arma_innovations
 
+from app.core.prepare import moment
+
 MAD_TO_SD = 1.4826
 FAMILY_LEVEL = 0.05
 
@@ -117,9 +119,3 @@ def largest_residual(residuals: np.ndarray, index: pd.Index, variance_ratios: np
     position = len(index) - e.size + i
     return LargeResidual(position=position, when=moment(index[position]), z=float(z[i]), threshold=threshold)
 
-
-def moment(stamp: object) -> str:
-    """A time stamp as a reader writes it: the date alone at midnight, else date and time."""
-    if isinstance(stamp, pd.Timestamp):
-        return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")
-    return str(stamp)

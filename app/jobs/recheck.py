@@ -35,7 +35,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import pandas as pd
 import sqlite_utils
 
 from app.core.analysis import Analysis, Intervention
@@ -44,7 +43,7 @@ from app.core.errors import OrderError
 from app.core.fitting import LJUNG_BOX_LEVEL
 from app.core.order import Order
 from app.core.p_values import p_words
-from app.core.prepare import PreparedSeries
+from app.core.prepare import PreparedSeries, moment
 from app.core.transform import TransformChoice, log_jacobian
 from app.core.vocabulary import DECIDED
 from app.jobs.order_fits import fit_stored_order, load_prepared
@@ -151,7 +150,7 @@ def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: An
     if fingerprint != record["fingerprint"]:
         return None
     check = check_order(prepared, verdict, result)
-    data = f"the data changed (now {prepared.n} points to {_when(prepared.index[-1])})"
+    data = f"the data changed (now {prepared.n} points to {moment(prepared.index[-1])})"
     if check.reasons:
         return _reopen(db, series_id, verdict, f"{data}: " + "; ".join(check.reasons))
     with write_transaction(db):
@@ -163,13 +162,6 @@ def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: An
             save_order_fit(db, series_id, fingerprint, check.model, check.transform, check.parameters, ENGINE_VERSION,
                            check.interventions)
     return None
-
-
-def _when(stamp) -> str:
-    """A timestamp in words: the date alone when it is midnight."""
-    if isinstance(stamp, pd.Timestamp):
-        return stamp.date().isoformat() if stamp == stamp.normalize() else stamp.isoformat()
-    return str(stamp)
 
 
 def _reopen(db: sqlite_utils.Database, series_id: str, verdict: dict, reason: str) -> str | None:
