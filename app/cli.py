@@ -675,10 +675,9 @@ def intervention_option(text: str) -> dict[str, str]:
 
 def run_decide(args: argparse.Namespace) -> int:
     from app.review.bulk import approve_firm
-    from app.review.decisions import ConfirmationNeeded, decide
+    from app.review.decisions import ConfirmationNeeded, decide, verdict_of
     from app.review.filters import SeriesFilter
     from app.store.database import open_database
-    from app.store.verdicts import get_verdict
     from app.web.deps import clean_reviewer
 
     reviewer = clean_reviewer(args.reviewer)  # stored as the pages and the API store it
@@ -712,7 +711,7 @@ def run_decide(args: argparse.Namespace) -> int:
             raise LagdeskError(f"{args.action} clears the series' order: give no --order")
         if args.action == "override" and args.order is None:
             raise LagdeskError("override needs the order: --order p,d,q (and --seasonal P,D,Q,s for a seasonal part)")
-        version = args.version if args.version is not None else get_verdict(db, args.series_id)["version"]
+        version = args.version if args.version is not None else verdict_of(db, args.series_id)["version"]
         try:
             verdict = decide(
                 db, args.series_id, status=DECIDE_ACTIONS[args.action], order=args.order, seasonal_order=args.seasonal,

@@ -830,3 +830,19 @@ def test_identify_table_without_a_result_is_the_count_and_the_problems_only():
         "0 series identified (0 firm, 0 tentative, 0 weak); 1 could not be analysed.",
         f"  problem: {problem['message']}",
     ]
+
+
+def test_decide_on_a_series_the_import_rejected_says_so(run_cli, tmp_path):
+    rows = ["series_id,timestamp,value"] + [f"kept,2024-{m:02d}-01,{m * 1.5 + (m % 3)}" for m in range(1, 13)]
+    rows += [f"kept,2025-{m:02d}-01,{m * 1.7 + (m % 2)}" for m in range(1, 13)] + ["tiny,2024-01-01,1", "tiny,2024-02-01,2"]
+    csv = tmp_path / "two.csv"
+    csv.write_text("\n".join(rows) + "\n")
+    db = tmp_path / "two.db"
+    assert run_cli("import", csv, "--db", db)[0] == 0
+
+    code, out, err = run_cli("decide", "tiny", "override", "--order", "0,0,0", "--reviewer", "ann", "--db", db)
+
+    assert (code, out) == (2, "")
+    [line] = err.splitlines()
+    assert line.startswith("lagdesk decide: no series 'tiny' in the database: the import of ") and str(csv) in line
+    assert "rejected it (has 2 observations" in line and line.endswith("correct the data and import the file again")

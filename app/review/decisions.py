@@ -23,6 +23,8 @@ from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
+from app.store.database import UnknownSeries
+from app.store.series import unknown_series
 from app.store.verdicts import get_verdict, set_verdict
 
 # A note is a reviewer's reason in a few sentences; the bound keeps a pasted file (or an
@@ -255,6 +257,15 @@ def _stored_candidate(analysis: Analysis | None, model: Order, choice: Transform
     return next((c for c in analysis.candidates if c.order == model), None)
 
 
+
+def verdict_of(db: sqlite_utils.Database, series_id: str) -> dict:
+    """The current verdict of ``series_id`` (:func:`app.store.verdicts.get_verdict`); for a series
+    the database does not hold, an :class:`UnknownSeries` that says when an import rejected it."""
+    try:
+        return get_verdict(db, series_id)
+    except UnknownSeries:
+        raise unknown_series(db, series_id) from None
+
 def decide(
     db: sqlite_utils.Database,
     series_id: str,
@@ -291,7 +302,7 @@ def decide(
     ------
     UnknownSeries, StaleVersion, OrderError, DecisionError, ConfirmationNeeded
     """
-    get_verdict(db, series_id)  # UnknownSeries before anything else
+    verdict_of(db, series_id)  # UnknownSeries before anything else
     checked_note(note)
     if status not in REVIEWER_STATUSES:
         raise DecisionError(f"status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}")

@@ -44,9 +44,9 @@ class UnknownSeries(LagdeskError):
 
     http_status = 404
 
-    def __init__(self, series_id: str) -> None:
+    def __init__(self, series_id: str, because: str | None = None) -> None:
         self.series_id = series_id
-        super().__init__(f"no series {series_id!r} in the database")
+        super().__init__(f"no series {series_id!r} in the database" + (f": {because}" if because else ""))
 
 
 class StorageUnavailable(LagdeskError):

@@ -16,6 +16,7 @@ from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL
+from app.store.database import UnknownSeries
 from app.store.verdicts import STATUSES, verdict_counts
 
 if TYPE_CHECKING:
@@ -311,6 +312,16 @@ def rejected_series(db: sqlite_utils.Database, *, q: str | None = None, prefix: 
     ).fetchall()
     return [_rejected_item(json.loads(rejection), file, imported_at) for rejection, file, imported_at in rows]
 
+
+
+def unknown_series(db: sqlite_utils.Database, series_id: str) -> UnknownSeries:
+    """The error for a series the database does not hold, saying so when an import rejected it
+    (its file and reason, :func:`rejected_series`)."""
+    rejection = next((r for r in rejected_series(db, q=series_id) if r["series_id"] == series_id), None)
+    if rejection is None:
+        return UnknownSeries(series_id)
+    return UnknownSeries(series_id, f"the import of {rejection['file']} rejected it ({rejection['reason']}); "
+                                    "correct the data and import the file again")
 
 def problem_reason(series_id: str, message: str, line: int | None = None) -> str:
     """A stored problem's message (an import's rejection, a failed analysis) without the series

@@ -19,7 +19,7 @@ from app.config import Settings
 from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
 from app.review.bulk import approve_firm, firm_pending_ids, park, undo_bulk_approval, waiting_ids
-from app.review.decisions import ConfirmationNeeded, DecisionError, approval_risks, decide, fit_custom_order
+from app.review.decisions import ConfirmationNeeded, DecisionError, approval_risks, decide, fit_custom_order, verdict_of
 from app.review.export import build_orders_document, orders_text
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
@@ -28,7 +28,6 @@ from app.store.database import UnknownSeries
 from app.store.orders import verdict_model
 from app.store.runs import get_run, list_runs
 from app.store.series import series_neighbours
-from app.store.verdicts import get_verdict
 from app.web.charts import PLOTLY_JS
 from app.web.deps import (
     REVIEWER_COOKIE,
@@ -190,7 +189,7 @@ def _redraw(request: Request, db: sqlite_utils.Database, series_id: str, flt: Se
 @router.post("/series/{series_id:path}/verdict", name="save_verdict")
 def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
                  data: Annotated[DecisionForm, Form()]) -> Response:
-    get_verdict(db, series_id)  # an unknown series is a 404 page, not a form error
+    verdict_of(db, series_id)  # an unknown series is a 404 page, not a form error
     reviewer = clean_reviewer(data.reviewer)
     if not reviewer:
         return _redraw(request, db, series_id, flt, data, 422, DecisionError(NAME_NEEDED))
