@@ -537,9 +537,10 @@ def _with_interventions(
     current: list[Intervention] = found
     for _ in range(2):
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
-        same = not shifted and not _season_moves(adjusted(y, current), period, first.seasonal)
+        cleaned = adjusted(y, current)
+        same = not shifted and not _season_moves(cleaned, period, first.seasonal)
         differencing = (first.seasonal, first.decision, leader.model.d) if same else None
-        again = _search_on(prepared.series_id, adjusted(y, current), period, period_words, options, differencing)
+        again = _search_on(prepared.series_id, cleaned, period, period_words, options, differencing)
         best = again.ranked[0]
         start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
         kept = estimate_jointly(y, best.model, current, start, prepared.index)
