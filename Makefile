@@ -3,13 +3,19 @@
 PYTHON ?= python3
 VENV := .venv
 BIN := $(VENV)/bin
+# The demo needs the package alone; the tests and linters its test and Dask extras as well.
+BASE := $(VENV)/.installed-base
 STAMP := $(VENV)/.installed
 
 .PHONY: demo test lint setup clean
 
-$(STAMP): pyproject.toml
+$(BASE): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install --quiet --upgrade pip
+	$(BIN)/pip install --quiet -e .
+	touch $(BASE)
+
+$(STAMP): $(BASE)
 	$(BIN)/pip install --quiet -e '.[test,dask]'
 	touch $(STAMP)
 
@@ -18,7 +24,7 @@ setup: $(STAMP)
 # Ctrl-C stops the demo's server and make exits 0. On a terminal the server runs as a job of its
 # own (set -m, then fg): the terminal's interrupt then reaches the server alone, where make itself
 # would otherwise die of it and report an error. DEMO_ARGS passes options (--port 8001, --no-browser).
-demo: $(STAMP)
+demo: $(BASE)
 	@if [ -t 0 ]; then set -m; $(BIN)/lagdesk demo $(DEMO_ARGS) & fg >/dev/null; else $(BIN)/lagdesk demo $(DEMO_ARGS); fi
 
 lint: $(STAMP)
