@@ -328,9 +328,9 @@ def _backtest_options(backtest: argparse.ArgumentParser) -> None:
 
     backtest.add_argument("series_id", help="the series to check")
     _add_db(backtest)
-    backtest.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="order to check (default: the suggested one)")
+    backtest.add_argument("--order", type=integers_option(3), metavar="p,d,q", help="order to check (default: the decided order of an approved or overridden series, with its transform, constant and interventions; else the suggested one)")
     backtest.add_argument(
-        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the suggested one when --order is not given, else none)",
+        "--seasonal", type=integers_option(4), metavar="P,D,Q,s", help="seasonal order (default: the decided or suggested one when --order is not given, else none)",
     )
     backtest.add_argument("--transform", metavar="none|log|box_cox:LAMBDA", type=transform_option, help="transform (default: the analysis')")
     backtest.add_argument("--horizon", type=int, help="steps ahead (default: one season of the series, or 8 when it has no period)")

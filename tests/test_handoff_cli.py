@@ -96,8 +96,26 @@ def test_export_recheck_and_backtest_from_the_command_line(run_cli, tmp_path):
                     version=get_verdict(db, SID)["version"])
     code, out, _ = run_cli("backtest", SID, "--db", db_path, "--order", "7,0,0", "--json")
     assert code == 0 and json.loads(out)["label"].startswith("ARIMA(7,0,0)")
+    # Without --order the check is of the order the export hands on, the override's.
+    code, out, _ = run_cli("backtest", SID, "--db", db_path, "--json")
+    assert code == 0 and json.loads(out)["label"].startswith("ARIMA(7,0,0)")
     with open_database(db_path) as db, pytest.raises(ForecastCheckTooLarge, match="lagdesk backtest --order checks any order"):
         backtest_series(db, SID, [7, 0, 0])
+
+
+def test_backtest_checks_the_decided_model_with_its_transform_and_constant(run_cli, tmp_path):
+    db_path = tmp_path / "lagdesk.db"
+    run_cli("import", write_series(tmp_path / "v1.csv", autocorrelated(N)), "--db", db_path)
+    assert run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")[0] == 0
+    with open_database(db_path) as db:
+        set_verdict(db, SID, status="overridden", order=[1, 0, 0], seasonal_order=[0, 0, 0, 0], transform="log", trend="n",
+                    reviewer="ann", note="log scale, no mean", version=get_verdict(db, SID)["version"])
+        decided = backtest_series(db, SID, [1, 0, 0], [0, 0, 0, 0], "log", include_constant=False)
+        with_mean = backtest_series(db, SID, [1, 0, 0], [0, 0, 0, 0], "log", include_constant=True)
+    code, out, _ = run_cli("backtest", SID, "--db", db_path, "--json")
+    shown = json.loads(out)
+    assert code == 0 and shown["mase"] == decided["mase"] and shown["label"] == decided["label"]
+    assert decided["mase"] != with_mean["mase"]  # the constant the reviewer set made a difference
 
 
 def test_backtest_of_an_unknown_series_is_one_line(run_cli, tmp_path):

@@ -20,7 +20,7 @@ from app.core.order import Order, validate_order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
 from app.core.transform import TransformChoice, apply_transform
-from app.core.vocabulary import REVIEWER_STATUSES, Flag, VerdictStatus
+from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import load_analysis
 from app.store.database import UnknownSeries
@@ -265,6 +265,13 @@ def verdict_of(db: sqlite_utils.Database, series_id: str) -> dict:
         return get_verdict(db, series_id)
     except UnknownSeries:
         raise unknown_series(db, series_id) from None
+
+def decided_model(db: sqlite_utils.Database, series_id: str) -> dict | None:
+    """The verdict of ``series_id`` when it decided an order (approved or overridden), the model
+    the hand-off exports; None for a series not decided, or decided not to be an ARIMA series."""
+    verdict = verdict_of(db, series_id)
+    return verdict if verdict["status"] in DECIDED and verdict["order"] is not None else None
+
 
 def decide(
     db: sqlite_utils.Database,

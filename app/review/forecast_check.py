@@ -33,7 +33,7 @@ from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order, validate_order
 from app.core.transform import TransformChoice, apply_transform
 from app.jobs.order_fits import NUMERICAL_FAILURES, load_prepared
-from app.review.decisions import ChosenInterventions, reviewer_interventions, taken_out_with, with_constant
+from app.review.decisions import ChosenInterventions, decided_model, reviewer_interventions, taken_out_with, with_constant
 from app.store.analyses import load_analysis
 from app.store.series import series_fingerprint
 
@@ -132,9 +132,11 @@ def backtest_series(
 ) -> dict[str, Any]:
     """The forecast check of one order on a stored series.
 
-    ``order`` None checks the analysis' suggestion (with its seasonal order unless one is
-    given); a seasonal order left out is none. ``any_order`` lifts the bound on the order (the
-    command line; module notes).
+    ``order`` None checks the order the hand-off exports for the series: a decided verdict's
+    (approved or overridden; with its transform, constant and interventions wherever these
+    arguments leave them to the defaults), else the analysis' suggestion (with its seasonal
+    order unless one is given); a seasonal order left out is none. ``any_order`` lifts the
+    bound on the order (the command line; module notes).
 
     The deterministic term is the one the engine gives the order
     (:meth:`app.core.analysis.Analysis.model_for`) unless ``include_constant`` says otherwise;
@@ -163,7 +165,13 @@ def backtest_series(
     """
     prepared, fingerprint = load_prepared(db, series_id)
     analysis = load_analysis(db, series_id)
-    if order is None:
+    decided = decided_model(db, series_id) if order is None else None
+    if decided is not None:
+        order, seasonal_order = decided["order"], seasonal_order or decided["seasonal_order"]
+        transform = decided["transform"] if transform is None else transform
+        include_constant = decided["include_constant"] if include_constant is None else include_constant
+        interventions = decided["interventions"] if interventions is None else interventions
+    elif order is None:
         if analysis is None:
             raise LagdeskError(f"series {series_id!r} has no analysis yet: give an order, or run lagdesk analyze")
         order, seasonal_order = analysis.suggested.order.order, seasonal_order or analysis.suggested.order.seasonal_order

@@ -322,8 +322,8 @@ def series_fit(request: Request, db: Db, series_id: str, body: FitIn) -> dict:
 @router.get("/series/{series_id:path}/backtest")
 def series_backtest(
     request: Request, db: Db, series_id: str,
-    order: Annotated[str | None, Query(description="p,d,q (default: the suggested order)", examples=["0,1,1"])] = None,
-    seasonal_order: Annotated[str | None, Query(description="P,D,Q,s (default: the suggested one when order is not given, else none)")] = None,
+    order: Annotated[str | None, Query(description="p,d,q (default: the decided order of an approved or overridden series, else the suggested order)", examples=["0,1,1"])] = None,
+    seasonal_order: Annotated[str | None, Query(description="P,D,Q,s (default: the decided or suggested one when order is not given, else none)")] = None,
     horizon: Annotated[int | None, Query(ge=1, description=(
         f"steps ahead (default: one season of the series, or 8 when it has no period); at most two seasons or {MIN_HORIZON_CAP}, whichever is more"))] = None,
     origins: Annotated[int | None, Query(ge=1, le=MAX_ORIGINS, description=f"forecast origins (default {DEFAULT_ORIGINS})")] = None,
