@@ -83,6 +83,9 @@ class VerdictStatus(StrEnum):
 DECIDED = (VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN)
 """The states whose order is handed on to forecasting."""
 
+AWAITING = (VerdictStatus.PENDING, VerdictStatus.RECHECK)
+"""The states that wait for a reviewer's decision."""
+
 REVIEWER_STATUSES = (VerdictStatus.PENDING, VerdictStatus.APPROVED, VerdictStatus.OVERRIDDEN, VerdictStatus.PARKED,
                      VerdictStatus.NOT_ARIMA)
 """The states a reviewer may set (``pending`` reopens a decided series)."""

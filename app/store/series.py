@@ -8,13 +8,13 @@ from __future__ import annotations
 
 import json
 from collections.abc import Iterable
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import sqlite_utils
 
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError, SeriesProblem
-from app.core.vocabulary import NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
+from app.core.vocabulary import AWAITING, NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL
 from app.store.database import UnknownSeries
 from app.store.verdicts import STATUSES, verdict_counts
@@ -344,10 +344,7 @@ def _rejected_item(rejection: dict, file: str, imported_at: str) -> dict:
     }
 
 
-def series_neighbours(
-    db: sqlite_utils.Database,
-    series_id: str,
-    *,
+def _ordered(
     status: str | Iterable[str] | None = None,
     confidence: str | Iterable[str] | None = None,
     flag: str | None = None,
@@ -355,19 +352,36 @@ def series_neighbours(
     prefix: str | None = None,
     sort: str = "attention",
     descending: bool = False,
-) -> tuple[str | None, str | None]:
-    """The series before and after ``series_id`` in the list with these filters and sort.
-
-    Both are None when ``series_id`` does not pass the filters.
-    """
+) -> tuple[str, list]:
+    """The list with these filters and sort as a common table ``ordered``: each series' id,
+    verdict status, place in the list and the ids before and after it; and its parameters."""
     where, params = _where(status, confidence, flag, q, prefix)
-    window = _order_by(sort, descending)
-    row = db.execute(
-        f"WITH ordered AS (SELECT s.series_id, lag(s.series_id) OVER w AS prev, lead(s.series_id) OVER w AS next "
-        f"{_FROM} {where} WINDOW w AS ({window})) SELECT prev, next FROM ordered WHERE series_id = ?",
-        params + [series_id],
-    ).fetchone()
+    return (
+        "WITH ordered AS (SELECT s.series_id, v.status, row_number() OVER w AS place, lag(s.series_id) OVER w AS prev, "
+        f"lead(s.series_id) OVER w AS next {_FROM} {where} WINDOW w AS ({_order_by(sort, descending)})) ",
+        params,
+    )
+
+
+def series_neighbours(db: sqlite_utils.Database, series_id: str, **filters: Any) -> tuple[str | None, str | None]:
+    """The series before and after ``series_id`` in the list with the ``filters`` and sort of
+    :func:`list_series`. Both are None when ``series_id`` does not pass the filters."""
+    ordered, params = _ordered(**filters)
+    row = db.execute(ordered + "SELECT prev, next FROM ordered WHERE series_id = ?", params + [series_id]).fetchone()
     return (None, None) if row is None else (row[0], row[1])
+
+
+def next_awaiting(db: sqlite_utils.Database, series_id: str, **filters: Any) -> str | None:
+    """The first series after ``series_id`` in the list with the ``filters`` and sort of
+    :func:`list_series` whose verdict awaits a decision (:data:`app.core.vocabulary.AWAITING`);
+    None when there is none or ``series_id`` does not pass the filters."""
+    ordered, params = _ordered(**filters)
+    row = db.execute(
+        ordered + f"SELECT series_id FROM ordered WHERE status IN ({', '.join('?' for _ in AWAITING)}) "
+        "AND place > (SELECT place FROM ordered WHERE series_id = ?) ORDER BY place LIMIT 1",
+        params + [str(status) for status in AWAITING] + [series_id],
+    ).fetchone()
+    return None if row is None else row[0]
 
 
 # Separates the parts of a structured series id (company/site/channel).

@@ -19,6 +19,7 @@ from app.store.series import (
     id_group,
     list_series,
     load_series,
+    next_awaiting,
     problem_reason,
     rejected_series,
     series_fingerprint,
@@ -150,6 +151,17 @@ def test_neighbours_are_the_adjacent_items_of_the_same_list(listed_db, options):
         expected = (order[i - 1] if i > 0 else None, order[i + 1] if i + 1 < len(order) else None)
         assert series_neighbours(listed_db, sid, **options) == expected
     assert series_neighbours(listed_db, "not-listed", **options) == (None, None)
+
+
+@pytest.mark.parametrize("options", [dict(), dict(sort="n", descending=True), dict(confidence="firm", sort="series_id")])
+def test_next_awaiting_skips_the_decided_and_parked_series_of_the_same_list(listed_db, options):
+    listed = list_series(listed_db, limit=100, **options)[1]
+    order = ids(listed)
+    awaiting = {item["series_id"] for item in listed if item["status"] in ("pending", "recheck")}
+    for i, sid in enumerate(order):
+        expected = next((later for later in order[i + 1:] if later in awaiting), None)
+        assert next_awaiting(listed_db, sid, **options) == expected
+    assert next_awaiting(listed_db, "not-listed", **options) is None
 
 
 NO_VERDICTS = dict.fromkeys(STATUSES, 0)

@@ -16,7 +16,7 @@ from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, writ
 from app.config import Settings
 from app.core.vocabulary import FLAG_WORDS, Confidence, Flag
 from app.store.runs import start_run
-from app.store.verdicts import get_verdict, verdict_history
+from app.store.verdicts import get_verdict, set_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
 from app.web.main import create_app
@@ -349,6 +349,16 @@ def test_form_approve_saves_redirects_to_next_and_remembers_reviewer(client, db,
         "approved", list(results[SERIES].suggested.order.order), "Ada", "looks clean")
     follow = client.get(response.headers["location"])
     assert "Saved the verdict of" in follow.text
+
+
+def test_after_a_save_the_page_moves_to_the_next_series_awaiting_a_decision(client, db, results):
+    ordered = sorted(results)  # the list sorted by series id, as the filter below asks
+    first, decided, awaiting = ordered[:3]
+    set_verdict(db, decided, status="approved", order=list(results[decided].suggested.order.order),
+                seasonal_order=list(results[decided].suggested.order.seasonal_order), reviewer="Bo", version=0)
+    response = client.post(page(first, "/verdict") + "?sort=series_id", data=decision(action="approve"), follow_redirects=False)
+    assert response.status_code == 303
+    assert response.headers["location"].split("?")[0] == page(awaiting)  # not the decided series between them
 
 
 def test_form_pick_another_candidate_is_an_override(client, db, results):

@@ -27,7 +27,7 @@ from app.store.bulk_approvals import get_bulk_approval, latest_undoable
 from app.store.database import UnknownSeries
 from app.store.orders import verdict_model
 from app.store.runs import get_run, list_runs
-from app.store.series import series_neighbours
+from app.store.series import next_awaiting, series_neighbours
 from app.web.charts import PLOTLY_JS
 from app.web.deps import (
     REVIEWER_COOKIE,
@@ -193,8 +193,9 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
     reviewer = clean_reviewer(data.reviewer)
     if not reviewer:
         return _redraw(request, db, series_id, flt, data, 422, DecisionError(NAME_NEEDED))
-    # The next series is found before saving: the saved one may leave the filter.
-    next_id = series_neighbours(db, series_id, **flt.store_kwargs())[1]
+    # The next series is found before saving, as the saved one may leave the filter: the next
+    # that awaits a decision, else the next in the list.
+    next_id = next_awaiting(db, series_id, **flt.store_kwargs()) or series_neighbours(db, series_id, **flt.store_kwargs())[1]
     try:
         status, order, seasonal, transform, include_constant, interventions = data.decision(load_analysis(db, series_id))
         decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
