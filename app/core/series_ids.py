@@ -36,3 +36,10 @@ def id_problem(series_id: str) -> str | None:
 
 def _character_name(character: str) -> str:
     return _CONTROL_NAMES.get(character) or unicodedata.name(character, "unnamed").lower()
+
+
+def printable(text: str, keep: str = "") -> str:
+    """``text`` without the characters an id may not hold (control, format, surrogate and
+    separator characters), except those in ``keep``: for reviewer names and notes, which are
+    shown and exported as ids are."""
+    return "".join(c for c in text if c in keep or unicodedata.category(c) not in _UNSAFE_CATEGORIES)

@@ -19,6 +19,7 @@ from app.core.interventions import sized_interventions
 from app.core.order import Order, validate_order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
+from app.core.series_ids import printable
 from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
@@ -65,7 +66,9 @@ class CustomFit:
 
 
 def checked_note(note: str) -> str:
-    """``note`` when it is at most :data:`MAX_NOTE_LENGTH` characters long.
+    """``note`` without control or format characters other than line breaks and tabs
+    (:func:`app.core.series_ids.printable`: an escape sequence or a direction mark would rewrite
+    a terminal or reorder a page), when it is at most :data:`MAX_NOTE_LENGTH` characters long.
 
     Raises
     ------
@@ -74,7 +77,7 @@ def checked_note(note: str) -> str:
     """
     if len(note) > MAX_NOTE_LENGTH:
         raise DecisionError(f"a note may hold at most {MAX_NOTE_LENGTH:,} characters; this one has {len(note):,}")
-    return note
+    return printable(note, keep="\r\n\t")
 
 
 def fails_ljung_box(candidate: Candidate) -> bool:
@@ -310,7 +313,7 @@ def decide(
     UnknownSeries, StaleVersion, OrderError, DecisionError, ConfirmationNeeded
     """
     verdict_of(db, series_id)  # UnknownSeries before anything else
-    checked_note(note)
+    note = checked_note(note)
     if status not in REVIEWER_STATUSES:
         raise DecisionError(f"status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}")
     analysis = load_analysis(db, series_id)

@@ -6,16 +6,19 @@ from __future__ import annotations
 import threading
 from collections.abc import Iterator
 from contextlib import AbstractContextManager, contextmanager
+from urllib.parse import quote, unquote
 
 import sqlite_utils
-from fastapi import Depends, Request
+from fastapi import Depends, Request, Response
 
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
+from app.core.series_ids import printable
 from app.jobs.run_lock import close_abandoned_runs
 from app.store.database import open_database
 
 REVIEWER_COOKIE = "lagdesk_reviewer"
+COOKIE_MAX_AGE_S = 365 * 24 * 3600
 # The largest integer SQLite stores: ids, versions and offsets beyond it are refused with 422
 # at the door instead of overflowing in the driver.
 SQLITE_MAX_INTEGER = 2**63 - 1
@@ -91,13 +94,21 @@ def computation_slot(request: Request, series_id: str) -> AbstractContextManager
 
 
 def clean_reviewer(name: str | None) -> str:
-    """A reviewer name as stored: trimmed, one line, at most :data:`REVIEWER_MAX_LENGTH` characters."""
-    return " ".join((name or "").split())[:REVIEWER_MAX_LENGTH]
+    """A reviewer name as stored: trimmed, one line, no control or format characters
+    (:func:`app.core.series_ids.printable`), at most :data:`REVIEWER_MAX_LENGTH` characters."""
+    return printable(" ".join((name or "").split()))[:REVIEWER_MAX_LENGTH]
 
 
 def get_reviewer(request: Request) -> str:
     """The reviewer name remembered in the browser's cookie ('' until it is given once)."""
-    return clean_reviewer(request.cookies.get(REVIEWER_COOKIE))
+    return clean_reviewer(unquote(request.cookies.get(REVIEWER_COOKIE) or ""))
+
+
+def remember_reviewer(response: Response, reviewer: str) -> Response:
+    """``response`` with the reviewer's name in the browser's cookie, percent-encoded: a cookie
+    holds Latin-1 alone, and a name such as Łukasz or 名前 is a name all the same."""
+    response.set_cookie(REVIEWER_COOKIE, quote(reviewer, safe=""), max_age=COOKIE_MAX_AGE_S, httponly=True, samesite="lax")
+    return response
 
 
 def whole_numbers(text: str, count: int, name: str) -> list[int]:

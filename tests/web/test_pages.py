@@ -351,6 +351,18 @@ def test_form_approve_saves_redirects_to_next_and_remembers_reviewer(client, db,
     assert "Saved the verdict of" in follow.text
 
 
+def test_any_unicode_reviewer_name_is_saved_and_remembered_without_control_characters(client, db):
+    # A cookie holds Latin-1 alone: the name is percent-encoded in it, not refused with a 500
+    # after the verdict was saved. Escape sequences and direction marks are dropped.
+    name = "Łukasz 名前\u202e\x1b[0m"
+    response = client.post(page(SERIES, "/verdict"), data=decision(action="approve", reviewer=name, note="ok\u202e\nline two"),
+                           follow_redirects=False)
+    assert response.status_code == 303
+    verdict = get_verdict(db, SERIES)
+    assert (verdict["reviewer"], verdict["note"]) == ("Łukasz 名前[0m", "ok\nline two")
+    assert 'value="Łukasz 名前[0m"' in client.get(page(SERIES)).text
+
+
 def test_after_a_save_the_page_moves_to_the_next_series_awaiting_a_decision(client, db, results):
     ordered = sorted(results)  # the list sorted by series id, as the filter below asks
     first, decided, awaiting = ordered[:3]

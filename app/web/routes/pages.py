@@ -37,6 +37,7 @@ from app.web.deps import (
     get_db,
     get_runs_db,
     get_settings,
+    remember_reviewer,
     whole_numbers,
 )
 from app.web.errors import status_of
@@ -54,7 +55,6 @@ router = APIRouter(dependencies=[Depends(check_csrf)], include_in_schema=False)
 Db = Annotated[sqlite_utils.Database, Depends(get_db)]
 RunsDb = Annotated[sqlite_utils.Database, Depends(get_runs_db)]
 Config = Annotated[Settings, Depends(get_settings)]
-COOKIE_MAX_AGE_S = 365 * 24 * 3600
 BULK_PREVIEW = 12
 VENDOR_MAX_AGE_S = 7 * 24 * 3600
 EXPORT_MEDIA_TYPES = {"json": "application/json", "csv": "text/csv; charset=utf-8"}
@@ -70,11 +70,6 @@ def queue_filter(request: Request) -> SeriesFilter:
 
 
 Filter = Annotated[SeriesFilter, Depends(queue_filter)]
-
-
-def remember_reviewer(response: Response, reviewer: str) -> Response:
-    response.set_cookie(REVIEWER_COOKIE, reviewer, max_age=COOKIE_MAX_AGE_S, httponly=True, samesite="lax")
-    return response
 
 
 def with_query(url: str, query: str) -> str:
