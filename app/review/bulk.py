@@ -68,7 +68,7 @@ def park(db: sqlite_utils.Database, series_ids: Iterable[str], reviewer: str, no
     UnknownSeries
         When an id names no series; nothing is parked.
     """
-    checked_note(note)
+    note = checked_note(note)
     if not note.strip():
         raise DecisionError("parking series in bulk needs a note saying why they wait")
     verdicts = {series_id: get_verdict(db, series_id) for series_id in dict.fromkeys(series_ids)}
@@ -111,30 +111,34 @@ def approve_firm(db: sqlite_utils.Database, flt: SeriesFilter, reviewer: str, no
     Each series is re-read before it is approved: one decided or re-analysed meanwhile is left
     alone, and so is a firm suggestion that a single approval would ask a note for
     (:func:`app.review.decisions.approval_risks`: firm already rules out a fit that did not
-    converge or fails the Ljung-Box test, but not coefficients without a standard error).
+    converge or fails the Ljung-Box test, but not coefficients without a standard error). The
+    approvals and their record are one transaction, which holds the write lock from its start:
+    a verdict saved meanwhile waits for it, and a failure leaves no approval without a record
+    to undo it by.
 
     Raises
     ------
     DecisionError
         When the note is longer than :data:`app.review.decisions.MAX_NOTE_LENGTH`.
     """
-    checked_note(note)
+    note = checked_note(note)
     approved: dict[str, int] = {}
-    for series_id in firm_pending_ids(db, flt):
-        verdict = get_verdict(db, series_id)
-        analysis = load_analysis(db, series_id)
-        if verdict["status"] != VerdictStatus.PENDING or analysis is None or analysis.confidence != Confidence.FIRM:
-            continue
-        if approval_risks(analysis.suggested, analysis.flags):
-            continue
-        suggested = analysis.suggested.order
-        saved = set_verdict(
-            db, series_id, status=VerdictStatus.APPROVED, order=list(suggested.order),
-            seasonal_order=list(suggested.seasonal_order), transform=analysis.transform.to_json(),
-            trend=suggested.trend, note=note, reviewer=reviewer, version=verdict["version"],
-        )
-        approved[series_id] = saved["version"]
-    bulk_id = record_bulk_approval(db, reviewer, note, flt.params(), approved) if approved else None
+    with write_transaction(db):
+        for series_id in firm_pending_ids(db, flt):
+            verdict = get_verdict(db, series_id)
+            analysis = load_analysis(db, series_id)
+            if verdict["status"] != VerdictStatus.PENDING or analysis is None or analysis.confidence != Confidence.FIRM:
+                continue
+            if approval_risks(analysis.suggested, analysis.flags):
+                continue
+            suggested = analysis.suggested.order
+            saved = set_verdict(
+                db, series_id, status=VerdictStatus.APPROVED, order=list(suggested.order),
+                seasonal_order=list(suggested.seasonal_order), transform=analysis.transform.to_json(),
+                trend=suggested.trend, note=note, reviewer=reviewer, version=verdict["version"],
+            )
+            approved[series_id] = saved["version"]
+        bulk_id = record_bulk_approval(db, reviewer, note, flt.params(), approved) if approved else None
     return BulkApproval(bulk_id, list(approved))
 
 
@@ -152,7 +156,7 @@ def undo_bulk_approval(db: sqlite_utils.Database, bulk_id: int, reviewer: str, n
         When it was undone already, or series changed since (the message names them); nothing
         is changed.
     """
-    checked_note(note)
+    note = checked_note(note)
     with write_transaction(db):
         record = get_bulk_approval(db, bulk_id)
         if record["undone_at"]:

@@ -107,6 +107,22 @@ def test_approve_firm_leaves_a_suggestion_without_standard_errors_and_records_th
     assert approve_firm(firm_db, SeriesFilter(), "ann").bulk_id is None  # nothing left: nothing recorded
 
 
+def test_approve_firm_is_all_or_nothing_when_its_record_cannot_be_written(firm_db, monkeypatch):
+    # The approvals are one transaction with their record: without it, a failure after some
+    # approvals left them approved with no bulk approval to undo them by.
+    set_verdict(firm_db, "shop-1/cake", status="pending", order=None, seasonal_order=None, reviewer="bob",
+                version=get_verdict(firm_db, "shop-1/cake")["version"])
+    before = decision_tables(firm_db)
+
+    def fails(*args, **kwargs):
+        raise RuntimeError("disk gone")
+
+    monkeypatch.setattr("app.review.bulk.record_bulk_approval", fails)
+    with pytest.raises(RuntimeError, match="disk gone"):
+        approve_firm(firm_db, SeriesFilter(), "ann")
+    assert decision_tables(firm_db) == before
+
+
 def test_undo_reopens_exactly_the_series_the_bulk_approval_approved(firm_db):
     set_verdict(firm_db, "shop-2/bread", status="parked", order=None, seasonal_order=None, reviewer="bob", version=0)
     set_verdict(firm_db, "shop-2/bread", status="pending", order=None, seasonal_order=None, reviewer="bob", version=1)
