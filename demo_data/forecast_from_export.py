@@ -21,7 +21,8 @@ For each order it
 
 1. takes the series' rows up to the export's ``last_timestamp`` (the data the parameters were
    fitted on) and puts them on their regular time grid; inner gaps stay missing, as in
-   Lagdesk's fits (the state-space model skips them exactly, nothing is invented);
+   Lagdesk's fits (the state-space model skips them exactly, nothing is invented); timestamps
+   with UTC offsets are read as Lagdesk reads them (:func:`read_timestamps`);
 2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``) and takes
    the effects of the export's ``interventions`` out of the transformed series (version 3);
 3. builds the statsmodels ``ARIMA`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
@@ -80,7 +81,7 @@ def series_up_to(frame: pd.DataFrame, order: dict) -> pd.Series:
         raise SystemExit(f"series {order['series_id']!r} is in the export but not in the portfolio file")
     last = order["last_timestamp"]
     integer_steps = last.lstrip("-").isdigit()
-    stamps = rows["timestamp"].astype(int) if integer_steps else pd.to_datetime(rows["timestamp"])
+    stamps = rows["timestamp"].astype(int) if integer_steps else read_timestamps(rows["timestamp"])
     values = pd.Series(rows["value"].to_numpy(dtype=float), index=stamps.to_numpy()).sort_index()
     values = values[values.index <= (int(last) if integer_steps else pd.Timestamp(last))].dropna()
     if integer_steps:
@@ -89,6 +90,19 @@ def series_up_to(frame: pd.DataFrame, order: dict) -> pd.Series:
     else:
         grid = pd.date_range(values.index[0], values.index[-1], freq=_frequency(pd.DatetimeIndex(values.index)))
     return values.reindex(grid)
+
+
+UTC_OFFSET = r"\s?(?:[Zz]|[+-]\d\d:?\d\d)$"
+
+
+def read_timestamps(texts: pd.Series) -> pd.Series:
+    """The timestamps as Lagdesk stores them (its README, "Dates"): with UTC offsets on clock
+    times that vary (hourly readings), the instants in UTC; otherwise the clock time as written,
+    any offset dropped (dates at midnight keep their local date)."""
+    local = pd.to_datetime(texts.str.replace(UTC_OFFSET, "", regex=True))
+    if (local - local.dt.normalize()).nunique() > 1:
+        return pd.to_datetime(texts, utc=True).dt.tz_localize(None)
+    return local
 
 
 def _frequency(index: pd.DatetimeIndex) -> str:

@@ -11,6 +11,7 @@ service with the reviewer's transform and constant, which the consumer must use;
 
 from __future__ import annotations
 
+import importlib.util
 import subprocess
 import sys
 from pathlib import Path
@@ -149,3 +150,22 @@ def test_the_consumer_carries_a_level_shift_into_the_forecasts(exported):
     lower, upper = np.asarray(reference.conf_int(alpha=0.05)).T
     np.testing.assert_allclose(rows["lower_95"], lower, rtol=1e-6)
     np.testing.assert_allclose(rows["upper_95"], upper, rtol=1e-6)
+
+
+@pytest.mark.parametrize("stamps", [
+    # hourly across both changes of clock in Europe/Berlin, and the same in UTC
+    ["2024-03-31T00:00:00+01:00", "2024-03-31T01:00:00+01:00", "2024-03-31T03:00:00+02:00",
+     "2024-10-27T02:00:00+02:00", "2024-10-27T02:00:00+01:00", "2024-10-27T03:00:00+01:00"],
+    ["2024-03-30T23:00:00Z", "2024-03-31T00:00:00Z", "2024-03-31T01:00:00Z"],
+    # dates at midnight keep their local date
+    ["2024-03-30T00:00:00+01:00", "2024-03-31T00:00:00+02:00", "2024-04-01T00:00:00+02:00"],
+    ["2024-01-01 00:00", "2024-01-01 06:00", "2024-01-01 12:00"],
+])
+def test_the_consumer_reads_timestamps_as_lagdesk_stores_them(tmp_path, stamps):
+    spec = importlib.util.spec_from_file_location("consumer", CONSUMER)
+    consumer = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(consumer)
+    path = tmp_path / "p.csv"
+    pd.DataFrame({"series_id": "a", "timestamp": stamps, "value": range(len(stamps))}).to_csv(path, index=False)
+    stored = read_portfolio(path).series[0].values.index
+    assert consumer.read_timestamps(pd.Series(stamps)).tolist() == stored.tolist()

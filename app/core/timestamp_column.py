@@ -13,10 +13,13 @@ Rules (each refusal names the first line to blame):
   where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
 * **Time zones.** Either every timestamp carries a UTC offset or none does. The offsets of one
   file must be one time zone's: at most two, at most an hour apart (standard and daylight-saving
-  time, e.g. +01:00 and +02:00). The local clock time as written is kept and the offset
-  dropped, so a daily or monthly series stays on its calendar grid across a change of clock (an
-  hourly series repeats an hour in autumn: that is refused as a duplicate timestamp, and such
-  data belong in UTC).
+  time, e.g. +01:00 and +02:00). When the clock times of the file vary (hourly readings, say),
+  each timestamp is the instant it names and is kept in UTC: the hour that the spring change of
+  clock skips is no gap, the hour that autumn repeats no duplicate, and the same readings
+  written in UTC or in local time with their offsets are the same series. When every timestamp
+  has the same clock time (dates at midnight: daily, weekly, monthly data), the local date as
+  written is kept and the offset dropped, so the series stays on its calendar grid across a
+  change of clock.
 * Dates must lie within :data:`STORABLE_YEARS`; steps within ±:data:`MAX_INTEGER_STEP`.
 """
 
@@ -43,6 +46,8 @@ STORABLE_YEARS = f"{pd.Timestamp.min.year + 1}-{pd.Timestamp.max.year - 1}"
 MAX_DATE_CHARS = 64
 # Daylight-saving time moves the clock by an hour (half an hour on Lord Howe Island).
 MAX_ZONE_STEP_MINUTES = 60
+NS_PER_MINUTE = 60 * 10**9
+NS_PER_DAY = 24 * 60 * NS_PER_MINUTE
 _CLOCK_WORDS = ("now", "today")  # pandas reads them as the time of reading, whatever the format
 _OFFSET_SUFFIX = r"(?i)(?<=\d)\s?(?:(?P<z>z)|(?P<sign>[+-])(?P<hours>\d\d):?(?P<minutes>\d\d)?)$"
 
@@ -69,6 +74,7 @@ class TimestampColumn:
         self._readings_differ: tuple[int, str] | None = None
         self._offsets: dict[int, tuple[int, str]] = {}  # UTC offset in minutes -> first line, text
         self._has_offsets: bool | None = None
+        self._kept_offsets: list[np.ndarray] = []  # the UTC offset of each kept row, in minutes
 
     def add(self, cells: np.ndarray, lines: np.ndarray, keep: np.ndarray) -> None:
         """Read a chunk's timestamp cells (on ``lines``); keep those where ``keep`` holds.
@@ -84,11 +90,15 @@ class TimestampColumn:
         if self.kind == STEPS:
             self._kept[STEPS].append(self._steps(texts, lines)[keep])
             return
-        for fmt, stamps in self._dates(texts, lines).items():
+        readings, offsets = self._dates(texts, lines)
+        for fmt, stamps in readings.items():
             self._kept[fmt].append(stamps[keep])
+        if offsets is not None:
+            self._kept_offsets.append(offsets[keep])
 
     def stamps(self) -> np.ndarray:
-        """The kept rows' timestamps in file order: steps, or nanoseconds since 1970 (local clock time).
+        """The kept rows' timestamps in file order: steps, or nanoseconds since 1970 (in UTC for
+        offsets on varying clock times, else the local clock time; module notes).
 
         Raises
         ------
@@ -103,7 +113,10 @@ class TimestampColumn:
                 f"no date in the file tells which; give the date format (for example --date-format {day_first})",
             )
         chunks = next(iter(self._kept.values()), [])
-        return joined(chunks) if chunks else np.empty(0, dtype=np.int64)
+        stamps = joined(chunks) if chunks else np.empty(0, dtype=np.int64)
+        if self._has_offsets and self._kept_offsets and np.unique(stamps % NS_PER_DAY).size > 1:
+            stamps = stamps - joined(self._kept_offsets).astype(np.int64) * NS_PER_MINUTE
+        return stamps
 
     def index(self, stamps: np.ndarray) -> pd.Index:
         """The pandas index of some of :meth:`stamps`."""
@@ -135,8 +148,9 @@ class TimestampColumn:
             self._refuse(lines[i], texts.iloc[i], "is not an integer step like the others")
         return steps.astype(np.int64)
 
-    def _dates(self, texts: pd.Series, lines: np.ndarray) -> dict[str, np.ndarray]:
-        """The chunk read with every format still possible (nanoseconds, local clock time)."""
+    def _dates(self, texts: pd.Series, lines: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray | None]:
+        """The chunk read with every format still possible (nanoseconds, local clock time), and
+        the UTC offset of each timestamp in minutes (None without offsets)."""
         readings: dict[str, tuple[pd.Series, np.ndarray | None]] = {}
         failures: dict[str, int] = {}
         for fmt in self._kept:
@@ -162,7 +176,7 @@ class TimestampColumn:
             differ = np.flatnonzero(first != second)
             if differ.size:
                 self._readings_differ = (int(lines[differ[0]]), texts.iloc[differ[0]])
-        return stamps
+        return stamps, offsets if self._has_offsets else None
 
     def _parse(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
         """Local clock times (NaT where unreadable) and the UTC offset of each, in minutes (NaN

@@ -289,12 +289,18 @@ def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
     assert _stamps(tmp_path, ["Jan 2024", "Feb 2024"], date_format="%b %Y").tolist() == pd.to_datetime(["2024-01-01", "2024-02-01"]).tolist()
 
 
-def test_offsets_of_one_zone_across_daylight_saving_keep_the_local_clock(tmp_path, tiny_chunks):
-    # Europe/Berlin: +01:00 until 2024-03-31 02:00, then +02:00.
+def test_offsets_keep_the_local_date_of_calendar_data_and_put_clock_times_in_utc(tmp_path, tiny_chunks):
+    # Europe/Berlin: +01:00 until 2024-03-31 02:00, then +02:00 until 2024-10-27 03:00.
     daily = [f"2024-03-{d:02d}T00:00:00{'+02:00' if d >= 31 else '+01:00'}" for d in range(25, 32)] + ["2024-04-01T00:00:00+02:00"]
     assert _stamps(tmp_path, daily).tolist() == pd.date_range("2024-03-25", periods=8).tolist()
-    hourly = ["2024-03-31T00:00:00+01:00", "2024-03-31T01:00:00+01:00", "2024-03-31T03:00:00+02:00", "2024-03-31T04:00:00+02:00"]
-    assert _stamps(tmp_path, hourly).tolist() == pd.to_datetime(["2024-03-31 00:00", "2024-03-31 01:00", "2024-03-31 03:00", "2024-03-31 04:00"]).tolist()
+    # Hourly readings are instants: spring's skipped hour is no gap, autumn's repeated one no duplicate.
+    spring = ["2024-03-31T00:00:00+01:00", "2024-03-31T01:00:00+01:00", "2024-03-31T03:00:00+02:00", "2024-03-31T04:00:00+02:00"]
+    assert _stamps(tmp_path, spring).tolist() == pd.date_range("2024-03-30 23:00", periods=4, freq="h").tolist()
+    autumn = ["2024-10-27T01:00:00+02:00", "2024-10-27T02:00:00+02:00", "2024-10-27T02:00:00+01:00", "2024-10-27T03:00:00+01:00"]
+    assert _stamps(tmp_path, autumn).tolist() == pd.date_range("2024-10-26 23:00", periods=4, freq="h").tolist()
+    # The same readings written in UTC are the same timestamps.
+    in_utc = [pd.Timestamp(t).tz_convert("UTC").strftime("%Y-%m-%dT%H:%M:%SZ") for t in spring + autumn]
+    assert _stamps(tmp_path, in_utc).tolist() == _stamps(tmp_path, spring + autumn).tolist()
     # London writes Z in winter and +01:00 in summer.
     assert _stamps(tmp_path, ["2024-03-30T12:00:00Z", "2024-03-31T12:00:00+01:00"]).tolist() == pd.to_datetime(["2024-03-30 12:00", "2024-03-31 12:00"]).tolist()
 
