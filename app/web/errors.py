@@ -6,10 +6,13 @@ names what is wrong; the handlers give each kind its status code.
 
 from __future__ import annotations
 
+import json
 import sqlite3
 from collections.abc import Mapping
 
 from fastapi import FastAPI, Request
+from fastapi.encoders import jsonable_encoder
+from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
@@ -51,6 +54,28 @@ async def _http_error(request: Request, exc: Exception) -> Response:
     return error_response(request, exc.status_code, str(exc.detail), headers=exc.headers)
 
 
+async def _validation_error(request: Request, exc: Exception) -> Response:
+    """A request whose parameters or body do not fit the route: 422, the page or the JSON saying
+    which field and why. FastAPI's own answer echoes the input, and an input of NaN, Infinity
+    or 1e400 cannot be written as JSON: it answered 500; here such an input is echoed as text."""
+    assert isinstance(exc, RequestValidationError)
+    errors = [{**error, "input": _json_safe(error["input"])} if "input" in error else error for error in exc.errors()]
+    if request.url.path.startswith(API_PREFIX):
+        return JSONResponse({"detail": jsonable_encoder(errors)}, status_code=422)
+    words = "; ".join(f"{'.'.join(str(part) for part in error['loc'][1:]) or 'the request'}: {error['msg']}" for error in errors)
+    return error_response(request, 422, words)
+
+
+def _json_safe(value: object) -> object:
+    """``value`` as JSON can hold it: text for a float that is not finite (and for a structure
+    holding one)."""
+    try:
+        json.dumps(jsonable_encoder(value), allow_nan=False)
+    except (ValueError, TypeError):
+        return repr(value)
+    return value
+
+
 async def _storage_error(request: Request, exc: Exception) -> Response:
     """A full disk, a read-only or damaged file, a database busy past the timeout: 503. A page
     or call that only reads says the database could not be read."""
@@ -62,3 +87,4 @@ def install_error_handlers(app: FastAPI) -> None:
     app.add_exception_handler(LagdeskError, _lagdesk_error)
     app.add_exception_handler(sqlite3.Error, _storage_error)
     app.add_exception_handler(StarletteHTTPException, _http_error)
+    app.add_exception_handler(RequestValidationError, _validation_error)

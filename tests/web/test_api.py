@@ -225,6 +225,21 @@ def test_verdict_malformed_body_is_422(client):
     assert client.post(url(SERIES, "/verdict"), json={"status": "parked"}).status_code == 422
 
 
+@pytest.mark.parametrize("version", ["1e400", "NaN", "Infinity", "-Infinity"])
+def test_verdict_with_a_number_json_cannot_hold_is_422_not_500(client, version):
+    # Python's JSON reader takes these; the answer echoing them back must still be valid JSON.
+    body = f'{{"status": "parked", "version": {version}, "reviewer": "x", "note": "n"}}'
+    response = client.post(f"/api/series/{SERIES}/verdict", content=body, headers={"content-type": "application/json"})
+    assert response.status_code == 422
+    assert response.json()["detail"][0]["loc"] == ["body", "version"]
+
+
+def test_a_page_with_a_parameter_out_of_range_answers_with_the_error_page(client):
+    response = client.get("/", params={"offset": "-1"})
+    assert response.status_code == 422 and response.headers["content-type"].startswith("text/html")
+    assert "offset: Input should be greater than or equal to 0" in response.text
+
+
 def test_verdict_approved_must_be_the_suggestion(client, results):
     p, d, q = results[SERIES].suggested.order.order
     other = [p + 1, d, q]
