@@ -25,6 +25,7 @@ Rules (each refusal names the first line to blame):
 
 from __future__ import annotations
 
+import re
 import warnings
 from typing import NoReturn
 
@@ -193,7 +194,7 @@ class TimestampColumn:
                     offsets = _offset_minutes(texts)
                     shift = pd.to_timedelta(np.nan_to_num(offsets), unit="min")
                     return (instants.dt.tz_localize(None) + shift).mask(texts.isin(_CLOCK_WORDS)), offsets
-        except ValueError as exc:
+        except (ValueError, re.error) as exc:  # re.error: a directive given twice (%d/%m/%m)
             raise InputFileError(self.name, f"the date format {fmt!r} cannot be used ({exc})") from None
         fixed: np.ndarray | None = None  # one offset for the chunk, or none
         if parsed.dt.tz is not None:

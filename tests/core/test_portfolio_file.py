@@ -283,6 +283,12 @@ def test_words_pandas_reads_as_the_current_time_are_not_dates(tmp_path, word):
         _stamps(tmp_path, [word, "2024-01-01"])
 
 
+@pytest.mark.parametrize("date_format", ["%Y%Y", "%d/%m/%m"])
+def test_a_date_format_with_a_directive_twice_is_refused_by_name(tmp_path, date_format):
+    with pytest.raises(InputFileError, match=f"the date format '{date_format}' cannot be used"):
+        _stamps(tmp_path, ["01/02/2024", "02/02/2024"], date_format=date_format)
+
+
 def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
     with pytest.raises(InputFileError, match=r"line 2: timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
         _stamps(tmp_path, ["Jan 2024", "Feb 2024"])
