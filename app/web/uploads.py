@@ -20,9 +20,13 @@ from pydantic import BaseModel
 from app.config import Settings
 from app.core.errors import LagdeskError
 from app.core.portfolio_file import DEFAULT_ID_COL, DEFAULT_TIME_COL, DEFAULT_VALUE_COL, ReadLimits
+from app.core.series_ids import printable
 from app.store.imports import ImportReport, import_portfolio
 
 COPY_CHUNK = 1024 * 1024
+# A file name of most file systems holds at most 255 bytes; a long name keeps a suffix this short.
+MAX_NAME_BYTES = 255
+MAX_SUFFIX_BYTES = 16
 UPLOAD_FOLDER_PREFIX = "lagdesk-upload-"
 
 
@@ -44,8 +48,17 @@ class UploadOptions(BaseModel):
 
 
 def upload_name(upload: UploadFile) -> str:
-    """The file's own name without any folder the browser sent with it."""
-    return Path((upload.filename or "upload.csv").replace("\\", "/")).name or "upload.csv"
+    """The file's own name without any folder the browser sent with it, without control or
+    direction characters, and short enough for any file system (255 bytes; the end of a long
+    name is cut, its suffix kept); ``upload.csv`` when nothing usable is left."""
+    name = printable(Path((upload.filename or "").replace("\\", "/")).name).strip()
+    if name in ("", ".", ".."):
+        return "upload.csv"
+    suffix = Path(name).suffix if len(Path(name).suffix.encode()) <= MAX_SUFFIX_BYTES else ""
+    stem = name[: len(name) - len(suffix)] if suffix else name
+    while len((stem + suffix).encode()) > MAX_NAME_BYTES:
+        stem = stem[:-1]
+    return stem + suffix
 
 
 def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: UploadOptions, settings: Settings) -> ImportReport:

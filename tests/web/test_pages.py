@@ -487,6 +487,20 @@ def test_upload_page_imports_and_reports(client, tmp_path):
     assert "Start the analysis" in response.text
 
 
+@pytest.mark.parametrize(("sent", "shown"), [
+    ("..", "upload.csv"),
+    ("x" * 300 + ".csv", "x" * 251 + ".csv"),  # 255 bytes, the limit of a file name
+    ("é" * 130 + ".csv", "é" * 125 + ".csv"),  # 2 bytes each: 254 bytes
+    ("\u202ereport.csv", "report.csv"),
+])
+def test_any_upload_name_is_imported_under_a_name_a_file_system_takes(client, tmp_path, sent, shown):
+    csv_path = write_long_csv(tmp_path / "extra.csv", {"extra/one": np.random.default_rng(1).normal(size=40)})
+    with csv_path.open("rb") as handle:
+        response = client.post("/upload", files={"file": (sent, handle, "text/csv")}, data={"layout": "long"})
+    assert response.status_code == 200
+    assert f"{shown}: 1 added" in response.text
+
+
 def test_upload_unusable_file_shows_the_reason(client, tmp_path):
     bad = tmp_path / "bad.csv"
     bad.write_text("a,b\n1,2\n")
