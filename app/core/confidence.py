@@ -56,9 +56,9 @@ Everything else is ``tentative``.
 
 Figures (tests/core/test_calibration.py writes them to test-artifacts/calibration.json): on the
 calibration batch (tests/core/calibration_batch.py, seed 20270315, 28 processes x 8
-replications) these rules make no series firm at n = 120, 20% at n = 200 with 91% of them
-exactly right, and 51% at n = 400 with 98% right. On the accuracy batch
-(tests/core/test_accuracy.py) 62% of the series are firm at n = 500, 99% of them right.
+replications) these rules make no series firm at n = 120, 19% at n = 200 with 91% of them
+exactly right, and 52% at n = 400 with 98% right. On the accuracy batch
+(tests/core/test_accuracy.py) 63% of the series are firm at n = 500, 99% of them right.
 
 References
 ----------

@@ -56,7 +56,16 @@ from app.core.interventions import adjusted, detect_interventions, estimate_join
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, moment, prepare_series
-from app.core.ranking import CRITERIA, DEFAULT_CRITERION, criterion_value, is_demoted, rank_across_d, rank_score, rank_within_d
+from app.core.ranking import (
+    CRITERIA,
+    DEFAULT_CRITERION,
+    common_level_bic,
+    criterion_value,
+    is_demoted,
+    rank_across_d,
+    rank_score,
+    rank_within_d,
+)
 from app.core.residual_outliers import largest_residual, prediction_variance_ratios
 from app.core.seasonality import (
     SeasonalDifferencing,
@@ -474,20 +483,20 @@ class _Identified:
 
 def _search_on(
     series_id: str, y: np.ndarray, period: int | None, period_words: list[str], options: EngineOptions,
-    kept: tuple[SeasonalSetup, DifferencingDecision, int] | None = None,
+    kept: tuple[SeasonalSetup, DifferencingDecision] | None = None,
 ) -> _Identified:
     """Seasonal and ordinary differencing, correlograms and ranked candidates of ``y``; with
-    ``kept``, the differencing (seasonal setup, decision, d) of an earlier search is kept."""
+    ``kept``, the differencing (seasonal setup and decision, an uncertain one with both its d)
+    of an earlier search is kept."""
     if kept is None:
         seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, list(period_words))
         if seasonal.differencing:
             seasonal.words += seasonal.differencing.explanation
             seasonal.flags += seasonal.differencing.flags
         decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
-        ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
     else:
-        seasonal, decision, d_kept = kept
-        ds = [d_kept]
+        seasonal, decision = kept
+    ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
     searches = {d: search_candidates(series_id, y, d, seasonal, decision, options) for d in ds}
     for d, found in searches.items():
         if d != decision.d:
@@ -513,12 +522,14 @@ def _with_interventions(
     if leader.model.d and first.decision.uncertain and not shifted:
         # A level shift makes a stationary series look integrated (Perron 1989), and under a
         # differenced model it is only one step: when the unit-root tests disagree, the
-        # stationary alternative is searched for a shift too.
+        # stationary alternative is searched for a shift too. Fitted to an integrated series,
+        # though, a stationary model reads its wandering as shifts, so the shift is taken only
+        # when the alternative with it predicts the levels better than the leader.
         alternative = _one_difference_less(leader.model)
         fit = fit_candidate(y, alternative)
         if fit.estimate is not None:
             seen = detect_interventions(y, alternative, fit.estimate, prepared.index)
-            if any(i.kind is InterventionKind.LEVEL_SHIFT for i in seen):
+            if any(i.kind is InterventionKind.LEVEL_SHIFT for i in seen) and _shift_predicts_better(y, leader, found, alternative, seen):
                 found, shifted = seen, True
     if not found:
         return first, []
@@ -526,9 +537,10 @@ def _with_interventions(
         # Its size for the adjustment is the one under the stationary alternative; the
         # unit-root tests of the adjusted series decide whether a difference is still needed.
         found = estimate_jointly(y, _one_difference_less(leader.model), found, np.zeros(0), prepared.index) or found
-    # Without a level shift the ordinary differencing stays: an outlier or a temporary change is
-    # not a change of level, and the unit-root tests on the adjusted series would only add their
-    # noise to a decision the ranking has already made. The seasonal strength is another matter:
+    # Without a level shift the ordinary differencing decision stays: an outlier or a temporary
+    # change is not a change of level, and the unit-root tests on the adjusted series would only
+    # add their noise to it. An uncertain decision stays uncertain: both its d are searched again,
+    # and the ranking weighs them on the adjusted series. The seasonal strength is another matter:
     # a ratio of variances, one spike three times the level takes it from 0.97 to 0.05 and the
     # season is lost; when the adjusted series decides D otherwise, the differencing is decided
     # again in full. The ARMA orders are read again. The search is repeated once when the joint
@@ -539,7 +551,7 @@ def _with_interventions(
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
         cleaned = adjusted(y, current)
         same = not shifted and not _season_moves(cleaned, period, first.seasonal)
-        differencing = (first.seasonal, first.decision, leader.model.d) if same else None
+        differencing = (first.seasonal, first.decision) if same else None
         again = _search_on(prepared.series_id, cleaned, period, period_words, options, differencing)
         best = again.ranked[0]
         start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
@@ -553,6 +565,32 @@ def _with_interventions(
             return again, [replace(i, t_stat=by_place[(i.kind, i.position)]) for i in sorted(current, key=lambda i: i.position)]
         current = kept
     return first, []
+
+
+def _shift_predicts_better(y: np.ndarray, leader: CandidateFit, found: list[Intervention], alternative: Order,
+                           seen: list[Intervention]) -> bool:
+    """Whether ``alternative`` (one difference fewer) on ``y`` with the interventions ``seen``
+    (a level shift among them) taken out predicts the levels better than the ``leader`` with
+    its own (``found``), by the BIC of their one-step prediction errors on the same points
+    (:func:`app.core.ranking.common_level_bic`). Each intervention counts two parameters, its
+    size and its time, as a change point's time counts in Schwarz's criterion (Yao 1988).
+
+    Without the comparison, clean integrated series (IMA(1,1), theta = -0.5, n = 100, 300
+    series) came out with an intervention in 21% (a level shift in 18%) and without their
+    difference in 31%; with it, 7%, 4% and 16%. A true shift of 5 innovation SDs in an AR(1)
+    with phi = 0.5 is found as before (64% against 66%).
+
+    References
+    ----------
+    .. [1] Yao, Y.-C. (1988). Estimating the number of change-points via Schwarz' criterion.
+       *Statistics & Probability Letters* 6, 181-189.
+    """
+    ours = fit_candidate(adjusted(y, found), leader.model, warm=leader) if found else leader
+    theirs = fit_candidate(adjusted(y, seen), alternative)
+    m = min(ours.residuals.size, theirs.residuals.size) - 1
+    present = ~np.isnan(ours.residuals[-m:]) & ~np.isnan(theirs.residuals[-m:])
+    return (common_level_bic(theirs, m, present, 2 * len(seen))
+            < common_level_bic(ours, m, present, 2 * len(found)))
 
 
 def _season_moves(y: np.ndarray, period: int | None, seasonal: SeasonalSetup) -> bool:
@@ -625,7 +663,7 @@ def _finished(
     if large:
         flags.append(Flag.LARGE_RESIDUAL)
         data_notes.append(large.words())
-        doubts.append(f"a residual of {large.z:+.1f} robust SD at {large.when} that the model does not explain")
+        doubts.append(f"a residual of {large.z:+.1f} SD of the others at {large.when} that the model does not explain")
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,

@@ -93,11 +93,12 @@ def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) 
     return [simplest] + [f for f in ordered if f is not simplest]
 
 
-def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = None) -> float:
+def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = None, extra: int = 0) -> float:
     """BIC from the last ``m`` one-step prediction errors.
 
     ``m * ln(SSE / m) + k * ln(m)`` with ``k`` estimated parameters (including the innovation
-    variance). The one-step prediction error of a level equals that of its difference (the
+    variance, and ``extra`` ones the fit does not count, such as those of effects taken out
+    of the series before it was fitted). The one-step prediction error of a level equals that of its difference (the
     previous levels are known), so every model's residuals are level prediction errors and the
     criterion is comparable across models with different d, as long as all use the same
     ``m`` final time points. With missing points the errors of a level whose previous level is
@@ -111,7 +112,7 @@ def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = Non
     count, sse = errors.size, float(errors @ errors)
     if count <= 0 or sse <= 0:
         return math.inf
-    return count * math.log(sse / count) + fit.n_params * math.log(count)
+    return count * math.log(sse / count) + (fit.n_params + extra) * math.log(count)
 
 
 def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
