@@ -493,7 +493,11 @@ def _search_on(
         if seasonal.differencing:
             seasonal.words += seasonal.differencing.explanation
             seasonal.flags += seasonal.differencing.flags
-        decision = choose_differencing(seasonal_difference(y, period, seasonal.D))
+        w = seasonal_difference(y, period, seasonal.D)
+        if seasonal.D and np.ptp(w[~np.isnan(w)]) == 0.0:
+            raise SeriesProblem(series_id, f"repeats itself exactly every {period} points: after the seasonal difference "
+                                "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
+        decision = choose_differencing(w)
     else:
         seasonal, decision = kept
     ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])

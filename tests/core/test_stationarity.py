@@ -14,12 +14,15 @@ import warnings
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 import statsmodels.api as sm
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.stattools import adfuller, kpss
 
+from app.core.errors import SeriesProblem
+from app.core.identify import identify_series
 from app.core.stationarity import LEVEL_NAMES, choose_differencing
 
 REFERENCE = json.loads((Path(__file__).parent / "results" / "reference_values.json").read_text())
@@ -113,3 +116,10 @@ def test_sunspots_yule_span_is_stationary(sunspots):
 def test_sunspots_are_stationary(sunspots):
     # Published as a stationary AR(2) (Yule 1927; Box & Jenkins Series E) [from memory].
     assert choose_differencing(sunspots).d == 0
+
+
+def test_a_series_that_repeats_exactly_every_season_is_refused_by_name():
+    y = pd.Series(np.tile([3.0, 1.0, 2.0, 5.0], 30), index=pd.date_range("2020-01-01", periods=120, freq="QS"))
+    with pytest.raises(SeriesProblem, match="repeats itself exactly every 4 points") as raised:
+        identify_series(y, "exact")
+    assert raised.value.flag == "exactly_periodic"
