@@ -52,6 +52,7 @@ from app.core.demand import classify_demand
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError, SeriesProblem
 from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
+from app.core.flat_runs import longest_flat_run
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
@@ -668,6 +669,11 @@ def _finished(
         flags.append(Flag.LARGE_RESIDUAL)
         data_notes.append(large.words())
         doubts.append(f"a residual of {large.z:+.1f} SD of the others at {large.when} that the model does not explain")
+    flat = longest_flat_run(prepared.values, prepared.index, demand is not None)
+    if flat:
+        flags.append(Flag.FLAT_RUN)
+        data_notes.insert(0, flat.words())
+        doubts.append(flat.doubt())
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,

@@ -41,6 +41,7 @@ class Flag(StrEnum):
     INTERMITTENT_DEMAND = "intermittent_demand"
     OUTLIERS = "outliers"
     LEVEL_SHIFT = "level_shift"
+    FLAT_RUN = "flat_run"
 
 
 WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
@@ -50,7 +51,7 @@ NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_D
                             Flag.FIXED_SEASONALITY})
 """Flags that keep a suggestion from ``firm``, their reason given as the flag."""
 
-WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT})
+WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT, Flag.FLAT_RUN})
 """Flags that keep a suggestion from ``firm`` too, their reason written out by the check that
 raised them (where, how large, what class)."""
 
@@ -109,6 +110,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.INTERMITTENT_DEMAND: "intermittent or lumpy demand: a Gaussian ARIMA suits it poorly",
     Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
     Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
+    Flag.FLAT_RUN: "one value repeated over a run of points: a stuck sensor, a frozen feed, values carried forward?",
 }
 
 

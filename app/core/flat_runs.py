@@ -1,0 +1,109 @@
+"""Runs of one repeated value: a stuck sensor, a frozen feed, values carried forward.
+
+A sensor that stops updating, or a feed that fills a gap by carrying the last value forward,
+leaves a run of identical values. The model is fitted to them as if they were observed, and
+nothing else in the analysis names them: the run looks like a calm stretch. For a channel that
+feeds safety monitoring it is the first thing a reviewer must be told.
+
+How long a run must be depends on how often the series repeats a value anyway: readings of a
+continuous quantity written to many digits almost never do, counts and coarsely rounded
+readings often do. The longest run of consecutive observed points with one value, ``L``
+points long, is judged against the series' own rate of repeats ``p``, the share of
+consecutive observed pairs outside that run whose values are equal, estimated with Laplace's
+rule of succession, ``(k + 1) / (m + 2)`` for ``k`` repeats among ``m`` pairs (common practice:
+a series with no other repeat still has a rate above zero). If repeats
+came independently at that rate, a run of at least ``L`` points would start at a given point
+with probability ``p^(L-1)``; over the ``n`` points where one could start, the run is flagged
+when ``n p^(L-1)`` is below :data:`FAMILY_LEVEL` (the Bonferroni bound, Dunn 1961), and when it is
+at least :data:`MIN_RUN` points long. Independence is the generous assumption for an
+autocorrelated series, whose repeats cluster a little; a run that passes the bound is still
+far beyond what the series' own rounding explains. In demand-like series
+(:func:`app.core.demand.classify_demand`) a run of zeros is a stretch without demand, not a
+repeated reading, and is not counted.
+
+References
+----------
+.. [1] Dunn, O.J. (1961). Multiple comparisons among means. *JASA* 56, 52-64.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from app.core.prepare import moment
+
+FAMILY_LEVEL = 0.05
+MIN_RUN = 3
+
+
+@dataclass(frozen=True)
+class FlatRun:
+    """The longest run of one value in a series: where it starts and ends, its value and length,
+    and the series' rate of repeats outside it."""
+
+    start: int
+    end: int
+    value: float
+    length: int
+    repeat_rate: float
+    first: str
+    last: str
+
+    def words(self) -> str:
+        return (f"The value {self.value:g} repeats over {self.length} consecutive points, from {self.first} to "
+                f"{self.last}; elsewhere the series repeats a value between neighbouring points {self.repeat_rate:.1%} "
+                "of the time. A stuck sensor, a frozen feed, values carried forward over a gap, or a quantity that "
+                "truly did not change? The model treats them as observed: check the source before deciding, for a "
+                "channel that feeds safety monitoring under the site's procedures.")
+
+    def doubt(self) -> str:
+        return f"{self.length} equal values ({self.value:g}) from {self.first} to {self.last}"
+
+
+def longest_flat_run(values: np.ndarray, index: pd.Index, demand: bool = False) -> FlatRun | None:
+    """The longest run of consecutive observed points with one value, when it is too long for
+    the series' own rate of repeats (module notes); None otherwise.
+
+    Parameters
+    ----------
+    values : ndarray
+        The series on its regular grid, NaN where a point is missing (a gap ends a run).
+    index : pandas.Index
+        Its time index, to say where the run lies.
+    demand : bool
+        Whether the series is demand-like: its runs of zeros are left out.
+    """
+    y = np.asarray(values, dtype=float)
+    if y.size < MIN_RUN:
+        return None
+    pairs = ~np.isnan(y[1:]) & ~np.isnan(y[:-1])
+    equal = pairs & (y[1:] == y[:-1])
+    if demand:
+        equal &= y[1:] != 0.0
+    if not equal.any():
+        return None
+    start, stop = _longest_true_stretch(equal)  # pairs start..stop-1 are equal: points start..stop
+    length = stop - start + 1
+    if length < MIN_RUN:
+        return None
+    outside = np.ones_like(pairs)
+    outside[start:stop] = False
+    m, k = int(np.count_nonzero(pairs & outside)), int(np.count_nonzero(equal & outside))
+    rate = (k + 1) / (m + 2)
+    if y.size * math.pow(rate, length - 1) >= FAMILY_LEVEL:
+        return None
+    return FlatRun(start, stop, float(y[start]), length, k / m if m else 0.0, moment(index[start]), moment(index[stop]))
+
+
+def _longest_true_stretch(flags: np.ndarray) -> tuple[int, int]:
+    """``(start, stop)`` of the longest stretch of True in ``flags`` (``flags[start:stop]``), the
+    first of equal ones."""
+    padded = np.concatenate([[False], flags, [False]]).astype(np.int8)
+    edges = np.flatnonzero(np.diff(padded))
+    starts, stops = edges[::2], edges[1::2]
+    longest = int(np.argmax(stops - starts))
+    return int(starts[longest]), int(stops[longest])

@@ -1,0 +1,74 @@
+"""Runs of one repeated value (app.core.flat_runs): the run found where it lies, judged against
+the series' own rate of repeats with the Bonferroni bound (Dunn 1961), and named by the engine."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from app.core.flat_runs import FAMILY_LEVEL, longest_flat_run
+from app.core.identify import identify_series
+from app.core.vocabulary import Confidence, Flag
+
+HOURS = pd.date_range("2024-03-01", periods=400, freq="h")
+
+
+def _temperatures(seed: int = 3) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    x = np.zeros(400)
+    for t in range(1, 400):
+        x[t] = 0.7 * x[t - 1] + rng.normal()
+    return 60.0 + 3.0 * np.sin(2 * np.pi * np.arange(400) / 24) + x
+
+
+def test_a_stuck_stretch_of_a_continuous_reading_is_found_where_it_lies():
+    y = _temperatures()
+    y[150:222] = y[149]  # 73 equal points: the sensor stopped at 149
+    found = longest_flat_run(y, HOURS)
+    assert found is not None and (found.start, found.end, found.length) == (149, 221, 73)
+    assert (found.first, found.last) == ("2024-03-07 05:00", "2024-03-10 05:00")
+    assert found.repeat_rate == 0.0 and "safety monitoring" in found.words()
+
+
+def test_the_bound_follows_the_series_own_rate_of_repeats():
+    # Readings rounded to whole degrees repeat often: with p the rate of repeats, a run of L
+    # points is flagged when n p^(L-1) < 0.05, so a run that passes for rounded data is short
+    # of the bound and one long enough is not.
+    y = np.round(_temperatures(5))
+    pairs = y[1:] == y[:-1]
+    rate = (pairs.sum() + 1) / (pairs.size + 2)
+    needed = int(np.ceil(1 + np.log(FAMILY_LEVEL / y.size) / np.log(rate)))
+    assert longest_flat_run(y, HOURS) is None  # the data's own runs are within the bound
+    short, long = y.copy(), y.copy()
+    short[200:200 + needed - 2] = y[199]
+    long[200:200 + needed + 1] = y[199]
+    assert longest_flat_run(short, HOURS) is None
+    assert longest_flat_run(long, HOURS) is not None
+
+
+def test_a_gap_ends_a_run_and_zeros_of_demand_are_no_run():
+    y = _temperatures()
+    y[100:104] = y[99]
+    y[104] = np.nan
+    y[105:108] = y[99]
+    assert longest_flat_run(y, HOURS).length == 5
+    sales = np.where(np.random.default_rng(2).random(400) < 0.3, 4.0, 0.0)
+    sales[50:80] = 0.0
+    assert longest_flat_run(sales, HOURS, demand=True) is None
+    assert longest_flat_run(sales, HOURS).value == 0.0
+
+
+def test_the_engine_names_the_run_and_withholds_firm():
+    y = _temperatures()
+    y[150:222] = y[149]
+    result = identify_series(pd.Series(y, index=HOURS), "plant/boiler-1/temp")
+    assert Flag.FLAT_RUN in result.flags and result.confidence.level is not Confidence.FIRM
+    assert result.data_notes[0].startswith(f"The value {y[149]:g} repeats over 73 consecutive points")
+    clean = identify_series(pd.Series(_temperatures(), index=HOURS), "plant/boiler-2/temp")
+    assert Flag.FLAT_RUN not in clean.flags
+
+
+@pytest.mark.parametrize("n", [3, 2])
+def test_too_short_a_series_or_run_is_never_flagged(n):
+    assert longest_flat_run(np.ones(n) if n < 3 else np.array([1.0, 2.0, 2.0]), HOURS[:n]) is None
