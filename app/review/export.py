@@ -182,12 +182,12 @@ def export_command(
     """``lagdesk export``: write the export of the database at ``db_path``; returns a summary line.
 
     ``output`` defaults to ``lagdesk-orders.<fmt>`` in the current folder, and a folder given as
-    ``output`` gets that file name in it; ``statuses`` is a list or a comma-separated text
-    (``"approved,overridden"``).
+    ``output`` gets that file name in it (one written with a trailing slash is a folder, and
+    must exist); ``statuses`` is a list or a comma-separated text (``"approved,overridden"``).
     """
     chosen = parse_statuses(statuses)
     target = Path(output) if output is not None else Path.cwd()
-    if target.is_dir():
+    if target.is_dir() or str(output).endswith(("/", os.sep)):
         target = target / f"lagdesk-orders.{fmt}"
     db = open_database(db_path)
     try:

@@ -292,6 +292,13 @@ def test_a_folder_as_the_output_gets_the_default_file_name_in_it(db, tmp_path):
     assert json.loads((folder / "lagdesk-orders.json").read_text(encoding="utf-8"))["schema"] == "lagdesk-orders"
 
 
+def test_a_folder_written_with_a_trailing_slash_is_a_folder_even_when_it_is_missing(db, tmp_path):
+    # Before, "-o newdir/" wrote a file called newdir.
+    with pytest.raises(LagdeskError, match="does not exist"):
+        export_command(tmp_path / "lagdesk.db", "json", f"{tmp_path / 'newdir'}/")
+    assert not (tmp_path / "newdir").exists()
+
+
 def test_a_file_that_cannot_be_created_is_named_in_the_error_not_the_temporary_one(db, tmp_path, monkeypatch):
     target = tmp_path / "orders.json"
 
