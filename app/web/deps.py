@@ -3,6 +3,7 @@ reviewer, and one expensive computation per series at a time."""
 
 from __future__ import annotations
 
+import os
 import threading
 from collections.abc import Iterator
 from contextlib import AbstractContextManager, contextmanager
@@ -58,11 +59,15 @@ class SeriesBusy(LagdeskError):
 
 class SeriesSlots:
     """The series with an expensive computation (a forecast check, a custom fit) running in
-    this server: each may have one at a time, so repeated requests cannot pile work on it."""
+    this server: each may have one at a time, so repeated requests cannot pile work on it, and
+    the server at most ``limit`` at once (one per CPU by default), so that checks asked on many
+    series at once cannot take every thread from the pages (45 of them kept the queue page from
+    answering for a minute)."""
 
-    def __init__(self) -> None:
+    def __init__(self, limit: int | None = None) -> None:
         self._lock = threading.Lock()
         self._busy: set[str] = set()
+        self.limit = limit or os.cpu_count() or 1
 
     @contextmanager
     def hold(self, series_id: str) -> Iterator[None]:
@@ -71,13 +76,18 @@ class SeriesSlots:
         Raises
         ------
         SeriesBusy
-            When another computation of ``series_id`` has not finished.
+            When another computation of ``series_id`` has not finished, or ``limit`` are running.
         """
         with self._lock:
             if series_id in self._busy:
                 raise SeriesBusy(
                     f"series {series_id!r} is already busy with a forecast check or fit; "
                     "try again once it has finished"
+                )
+            if len(self._busy) >= self.limit:
+                raise SeriesBusy(
+                    f"the server is busy with {len(self._busy)} forecast checks or fits, as many as it runs at once; "
+                    "try again in a moment"
                 )
             self._busy.add(series_id)
         try:

@@ -19,6 +19,7 @@
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import csv
 import io
 import json
@@ -350,6 +351,19 @@ def test_one_computation_per_series_at_a_time(check_db):
             assert fragment.status_code == 429 and "already busy" in fragment.text and "<html" not in fragment.text
         done = client.get(_backtest_url(), params={"order": "1,0,0", "origins": 1})
         assert done.status_code == 200 and done.json()["origins"] == 1
+
+
+def test_the_server_runs_at_most_its_limit_of_computations_at_once(check_db):
+    # Checks asked on many series at once took every thread from the pages before.
+    with _client(check_db) as client:
+        slots = client.app.state.series_slots
+        with contextlib.ExitStack() as held:
+            for k in range(slots.limit):
+                held.enter_context(slots.hold(f"other/{k}"))
+            busy = client.get(_backtest_url(), params={"order": "1,0,0", "origins": 1})
+            assert busy.status_code == 429 and "the server is busy" in busy.json()["detail"]
+            assert client.get("/").status_code == 200  # the pages still answer
+        assert client.get(_backtest_url(), params={"order": "1,0,0", "origins": 1}).status_code == 200
 
 
 def test_another_site_cannot_start_a_check_but_a_link_may_open_a_page(check_db):
