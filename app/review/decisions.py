@@ -91,11 +91,15 @@ def approval_risks(candidate: Candidate, flags: Sequence[str] = ()) -> list[str]
     A fit that did not converge, residuals that fail the Ljung-Box test at 1%, coefficients
     without a standard error (the information matrix could not be inverted), or a series the
     analysis ``flags`` as intermittent or lumpy demand (Syntetos, Boylan & Croston 2005; a
-    Gaussian ARIMA suits it poorly): each asks for a note saying why the order is approved anyway.
+    Gaussian ARIMA suits it poorly) or as holding a run of one repeated value (a stuck sensor
+    or a frozen feed, :mod:`app.core.flat_runs`): each asks for a note saying why the order is
+    approved anyway.
     """
     risks = []
     if Flag.INTERMITTENT_DEMAND in flags:
         risks.append("the series is intermittent demand, which a Gaussian ARIMA suits poorly (or record it as not an ARIMA series)")
+    if Flag.FLAT_RUN in flags:
+        risks.append("the series holds a run of one repeated value: a stuck sensor or a frozen feed, checked at the source?")
     if not candidate.converged:
         risks.append("the fit did not converge")
     if fails_ljung_box(candidate):

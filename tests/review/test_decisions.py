@@ -120,6 +120,12 @@ def test_approving_an_arima_for_intermittent_demand_needs_a_note(db):
     assert approval_risks(suggested, ("gaps",)) == approval_risks(suggested)
 
 
+def test_approving_a_series_with_a_run_of_one_value_needs_a_note(db):
+    suggested = load_analysis(db, AIR).suggested
+    risks = approval_risks(suggested, ("flat_run",))
+    assert any("stuck sensor" in risk for risk in risks) and len(risks) == len(approval_risks(suggested)) + 1
+
+
 def test_a_clean_suggestion_is_approved_without_a_note(db):
     analysis = load_analysis(db, AIR)
     suggested = analysis.suggested
