@@ -74,6 +74,11 @@ from app.core.vocabulary import Flag
 NEAR_UNIT_ROOT = 1.02
 CANCELLING_ROOT_DISTANCE = 0.15
 LJUNG_BOX_LEVEL = 0.05
+# A decided order's residuals fail at this level: approving or saving such an order asks for a
+# note (or a confirmation), and new data that fail it send a decided order back to recheck.
+# Stricter than the 5% of a suggestion's check (which only keeps it from firm): a verdict is a
+# person's, and re-tested at every import at 5%, a right order came back once in twenty imports.
+DECISION_LJUNG_BOX_LEVEL = 0.01
 
 
 @dataclass

@@ -8,8 +8,10 @@ the same transform) and sends the verdict back to the queue as ``recheck``, with
 words, when
 
 * the differencing decision changed: the analysis now suggests another d or D than the order has;
-* the order's residuals fail the Ljung-Box test (p < :data:`~app.core.fitting.LJUNG_BOX_LEVEL`,
-  0.05, with the lags of :func:`~app.core.fitting.ljung_box_lags`);
+* the order's residuals fail the Ljung-Box test (p < :data:`~app.core.fitting.DECISION_LJUNG_BOX_LEVEL`,
+  0.01, the level at which approving it asks for a note; with the lags of
+  :func:`~app.core.fitting.ljung_box_lags`): at 5%, a right order would come back at one import in
+  twenty;
 * its AICc is more than :data:`AICC_MARGIN` (10) above that of the analysis' best candidate with
   the same differencing. Burnham & Anderson (2002, §2.6) read an AIC difference above 10 as
   "essentially no support" for the worse model, and 4-7 as "considerably less"; a verdict is
@@ -40,7 +42,7 @@ import sqlite_utils
 from app.core.analysis import Analysis, Intervention
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError
-from app.core.fitting import LJUNG_BOX_LEVEL
+from app.core.fitting import DECISION_LJUNG_BOX_LEVEL
 from app.core.order import Order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries, moment
@@ -99,7 +101,7 @@ def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> 
             return check
         lb_p, lb_lags, aicc = fit.ljung_box_p, fit.ljung_box_lags, fit.aicc
         check.parameters = fit.parameter_values()
-    if lb_p is not None and lb_p < LJUNG_BOX_LEVEL:
+    if lb_p is not None and lb_p < DECISION_LJUNG_BOX_LEVEL:
         check.reasons.append(f"the residuals of {label} fail the Ljung-Box test ({p_words(lb_p)} at {lb_lags} lags)")
     else:
         check.checked.append("Ljung-Box " + (p_words(lb_p) if lb_p is not None else "not computable"))

@@ -15,6 +15,7 @@ import sqlite_utils
 from app.core.analysis import Analysis, Candidate, Intervention, delta_aicc_against
 from app.core.chosen_interventions import place_interventions
 from app.core.errors import LagdeskError, OrderError
+from app.core.fitting import DECISION_LJUNG_BOX_LEVEL
 from app.core.interventions import sized_interventions
 from app.core.order import Order, validate_order
 from app.core.p_values import p_words
@@ -31,9 +32,6 @@ from app.store.verdicts import get_verdict, set_verdict
 # A note is a reviewer's reason in a few sentences; the bound keeps a pasted file (or an
 # attacker's megabytes) out of the history, which keeps every version of it.
 MAX_NOTE_LENGTH = 5_000
-# Residuals this far from white noise make a one-step approval, or a saved order, risky: the
-# level the issue asks for (a failure at 5% already keeps a suggestion from firm).
-RISKY_LJUNG_BOX_LEVEL = 0.01
 INNOVATION_VARIANCE = "sigma2"
 
 
@@ -81,8 +79,8 @@ def checked_note(note: str) -> str:
 
 
 def fails_ljung_box(candidate: Candidate) -> bool:
-    """Whether the candidate's residuals fail the Ljung-Box test at :data:`RISKY_LJUNG_BOX_LEVEL`."""
-    return candidate.ljung_box_p is not None and candidate.ljung_box_p < RISKY_LJUNG_BOX_LEVEL
+    """Whether the candidate's residuals fail the Ljung-Box test at :data:`DECISION_LJUNG_BOX_LEVEL`."""
+    return candidate.ljung_box_p is not None and candidate.ljung_box_p < DECISION_LJUNG_BOX_LEVEL
 
 
 def approval_risks(candidate: Candidate, flags: Sequence[str] = ()) -> list[str]:
