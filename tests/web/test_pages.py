@@ -16,7 +16,7 @@ from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, writ
 from app.config import Settings
 from app.core.vocabulary import FLAG_WORDS, Confidence, Flag
 from app.store.runs import start_run
-from app.store.verdicts import get_verdict, set_verdict, verdict_history
+from app.store.verdicts import get_verdict, mark_recheck, set_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
 from app.web.main import create_app
@@ -119,6 +119,22 @@ def test_queue_page_size_is_capped_by_the_settings(db_path):
     with TestClient(create_app(settings)) as capped:
         text = capped.get("/", params={"limit": 1000}).text
     assert len(re.findall(r"data-series-id=", text)) == 3
+
+
+def test_a_group_counts_every_state_and_says_the_confidences_are_of_the_pending(client, db, results):
+    ids = sorted(sid for sid in results if sid.startswith("plant-b/"))  # walk, ar2, ma1-long
+    suggested = results[ids[0]].suggested.order
+    set_verdict(db, ids[0], status="approved", order=list(suggested.order), seasonal_order=list(suggested.seasonal_order),
+                reviewer="Bo", version=0)
+    mark_recheck(db, ids[0], "new data")
+    set_verdict(db, ids[1], status="parked", order=None, seasonal_order=None, reviewer="Bo", version=0)
+    top = client.get("/").text
+    line = re.search(r'<li data-group="plant-b/">.*?<span class="group-counts">(.*?)</span>\s*</li>', top, re.S).group(1)
+    words = re.sub(r"<[^>]+>", "", line)
+    pending = len(ids) - 2
+    assert words.startswith(f"{len(ids)} · 1 recheck · {pending} pending (") and words.endswith(") · 1 parked")
+    levels = re.findall(r"(\d+) (weak|tentative|firm)", words)
+    assert sum(int(k) for k, _ in levels) == pending
 
 
 def test_queue_picks_a_group_by_prefix_with_counts_and_a_breadcrumb(client, results):
