@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from app.core.prepare import moment
+from app.core.prepare import moment_in
 
 FAMILY_LEVEL = 0.05
 MIN_RUN = 3
@@ -96,7 +96,7 @@ def longest_flat_run(values: np.ndarray, index: pd.Index, demand: bool = False) 
     rate = (k + 1) / (m + 2)
     if y.size * math.pow(rate, length - 1) >= FAMILY_LEVEL:
         return None
-    return FlatRun(start, stop, float(y[start]), length, k / m if m else 0.0, moment(index[start]), moment(index[stop]))
+    return FlatRun(start, stop, float(y[start]), length, k / m if m else 0.0, moment_in(index, start), moment_in(index, stop))
 
 
 def _longest_true_stretch(flags: np.ndarray) -> tuple[int, int]:

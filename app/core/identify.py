@@ -56,7 +56,7 @@ from app.core.flat_runs import longest_flat_run
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
-from app.core.prepare import PreparedSeries, moment, prepare_series
+from app.core.prepare import PreparedSeries, moment_in, prepare_series
 from app.core.ranking import (
     CRITERIA,
     DEFAULT_CRITERION,
@@ -828,7 +828,7 @@ def _on_whole_series(
     whole.data_notes.insert(0, (
         f"Long series ({prepared.n} points, more than {LONG_SERIES}): the transform, the differencing, the correlograms, "
         f"the interventions and the candidate search used the most recent {found.prepared.n} points "
-        f"(from {moment(found.prepared.index[0])}); the {sum(map(len, groups.values()))} best candidates were then refitted "
+        f"(from {moment_in(found.prepared.index, 0)}); the {sum(map(len, groups.values()))} best candidates were then refitted "
         "on the whole series, which ranks them, checks their residuals and sets the confidence."
     ))
     return whole

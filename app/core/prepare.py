@@ -189,7 +189,7 @@ def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> 
         why = "is not finite" if np.isinf(size[i]) else (
             f"is too large to analyse (beyond ±{MAX_ABS_VALUE:g} squares overflow); rescale the series"
         )
-        raise SeriesProblem(sid, f"value {values.iloc[i]:g} at {moment(values.index[i])} {why}",
+        raise SeriesProblem(sid, f"value {values.iloc[i]:g} at {moment_in(values.index, i)} {why}",
                             row=line if line > 0 else None, flag="bad_value")
 
 
@@ -199,13 +199,22 @@ def moment(stamp: object) -> str:
         return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")
     return str(stamp)
 
+
+def moment_in(index: pd.Index, position: int) -> str:
+    """The time stamp at ``position`` of ``index`` in words: as :func:`moment`, but with its
+    time of day, midnight included, when the series has times of day (an hourly series)."""
+    stamp = index[position]
+    if isinstance(index, pd.DatetimeIndex) and bool((index != index.normalize()).any()):
+        return stamp.isoformat(sep=" ", timespec="minutes")
+    return moment(stamp)
+
 def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
     duplicated = values.index.duplicated(keep="first")
     if duplicated.any():
         i = int(np.flatnonzero(duplicated)[0])
         line = int(line_of.iloc[i])
         raise SeriesProblem(
-            sid, f"timestamp {moment(values.index[i])} appears more than once (combine the observations of a timestamp, "
+            sid, f"timestamp {moment_in(values.index, i)} appears more than once (combine the observations of a timestamp, "
             "e.g. their sum or mean, before importing)",
             row=line if line > 0 else None, flag="duplicate_timestamp",
         )

@@ -54,7 +54,7 @@ from scipy.special import stdtrit
 from scipy.stats import norm
 from statsmodels.tsa.innovations.arma_innovations import arma_innovations
 
-from app.core.prepare import moment
+from app.core.prepare import moment_in
 
 MAD_TO_SD = 1.4826
 FAMILY_LEVEL = 0.05
@@ -143,4 +143,4 @@ def largest_residual(residuals: np.ndarray, index: pd.Index, variance_ratios: np
     if abs(t) <= threshold:
         return None
     position = len(index) - e.size + i
-    return LargeResidual(position=position, when=moment(index[position]), z=t, threshold=threshold)
+    return LargeResidual(position=position, when=moment_in(index, position), z=t, threshold=threshold)

@@ -45,7 +45,7 @@ from app.core.errors import OrderError
 from app.core.fitting import DECISION_LJUNG_BOX_LEVEL
 from app.core.order import Order
 from app.core.p_values import p_words
-from app.core.prepare import PreparedSeries, moment
+from app.core.prepare import PreparedSeries, moment_in
 from app.core.transform import TransformChoice, log_jacobian
 from app.core.vocabulary import DECIDED
 from app.jobs.order_fits import fit_stored_order, load_prepared
@@ -152,7 +152,7 @@ def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: An
     if fingerprint != record["fingerprint"]:
         return None
     check = check_order(prepared, verdict, result)
-    data = f"the data changed (now {prepared.n} points to {moment(prepared.index[-1])})"
+    data = f"the data changed (now {prepared.n} points to {moment_in(prepared.index, -1)})"
     if check.reasons:
         return _reopen(db, series_id, verdict, f"{data}: " + "; ".join(check.reasons))
     with write_transaction(db):

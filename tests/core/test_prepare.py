@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 
 from app.core.errors import SeriesProblem
-from app.core.prepare import MIN_POINTS, RECOMMENDED_POINTS, SHORT_GAP_MAX, prepare_series
+from app.core.prepare import MIN_POINTS, RECOMMENDED_POINTS, SHORT_GAP_MAX, moment_in, prepare_series
 
 N = 40
 
@@ -193,3 +193,11 @@ def test_all_missing_series_is_a_problem():
     with pytest.raises(SeriesProblem) as info:
         prepare_series(_daily(np.full(N, np.nan)), "shop-1")
     assert info.value.flag == "empty"
+
+
+def test_a_moment_of_an_hourly_series_keeps_its_hour_at_midnight():
+    hourly = pd.date_range("2024-04-10 22:00", periods=4, freq="h")
+    assert [moment_in(hourly, k) for k in (1, 2)] == ["2024-04-10 23:00", "2024-04-11 00:00"]
+    daily = pd.date_range("2024-04-10", periods=3, freq="D")
+    assert moment_in(daily, 1) == "2024-04-11"
+    assert moment_in(pd.RangeIndex(5), -1) == "4"
