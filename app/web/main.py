@@ -9,6 +9,7 @@ from app import __version__
 from app.config import Settings
 from app.web.deps import SeriesSlots
 from app.web.errors import install_error_handlers
+from app.web.head import HeadAsGet
 from app.web.routes import access, api, compare, pages
 from app.web.security import AccessGuard
 from app.web.templating import STATIC_DIR
@@ -30,4 +31,5 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(api.router)
     install_error_handlers(app)
     app.add_middleware(AccessGuard, settings=settings)
+    app.add_middleware(HeadAsGet)  # outermost: the guard sees a HEAD as the GET it is served as
     return app

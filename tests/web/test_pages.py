@@ -558,3 +558,12 @@ def test_pages_load_nothing_from_other_hosts(client):
         assert not re.findall(r"""(?:src|href)=["'](?:https?:)?//""", text), path
     assert client.get("/static/lagdesk.css").status_code == 200
     assert client.get("/static/js/review.js").status_code == 200
+
+
+@pytest.mark.parametrize("path", ["/", "/api/series", "/export/lagdesk-orders.csv", "/vendor/plotly.min.js", f"/series/{SERIES}"])
+def test_head_answers_where_get_does_with_its_headers_and_no_body(client, path):
+    # RFC 9110, §9.3.2: HEAD is GET without the content (monitors and link checkers ask it).
+    got, head = client.get(path), client.head(path)
+    assert (head.status_code, head.content) == (got.status_code, b"")
+    assert head.headers["content-type"] == got.headers["content-type"]
+    assert client.head("/no-such-page").status_code == 404
