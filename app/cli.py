@@ -26,7 +26,7 @@ from app import __version__
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, order_label
-from app.core.vocabulary import DECIDED, Confidence, VerdictStatus, reason_words
+from app.core.vocabulary import DECIDED, SAFETY_CAUTION, Confidence, VerdictStatus, reason_words
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine, Ticker
 
@@ -702,6 +702,8 @@ def run_decide(args: argparse.Namespace) -> int:
             undo = f" (bulk approval {done.bulk_id}: the queue can undo it while none of them changes)" if done.bulk_id else ""
             _print(done.approved if args.json else terminal_text(f"{len(done.approved)} firm suggestion(s) approved" + (
                 f" under {args.prefix!r}" if args.prefix else "") + undo), args.json)
+            if done.approved:
+                print(f"Caution: {SAFETY_CAUTION}", file=sys.stderr)
             return 0
         if not (args.series_id and args.action):
             raise LagdeskError("give a series id and an action (approve, override, park, pending, not-arima), or --all-firm")

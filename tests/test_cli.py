@@ -43,7 +43,7 @@ from app.core.errors import LagdeskError, SeriesProblem
 from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
 from app.core.prepare import prepare_series
-from app.core.vocabulary import DECIDED, Confidence, reason_words
+from app.core.vocabulary import DECIDED, SAFETY_CAUTION, Confidence, reason_words
 from app.jobs.analyze import run_analysis
 from app.jobs.demo import DEMO_PORTFOLIO, build_demo_database
 from app.jobs.work import SeriesTask, identify_task
@@ -699,7 +699,7 @@ def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(
     code, out, err = run_cli("decide", "--all-firm", "--prefix", PREFIX, "--reviewer", "dee", "--note", "bulk",
                              "--json", "--db", decide_db)
 
-    assert (code, err) == (0, "")
+    assert (code, err) == (0, f"Caution: {SAFETY_CAUTION}\n")  # on stderr: stdout stays the JSON
     approved = json.loads(out)
     assert sorted(approved) == expected and len(set(approved)) == len(approved)
     with open_database(decide_db) as db:

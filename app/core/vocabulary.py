@@ -114,6 +114,11 @@ FLAG_WORDS: dict[str, str] = {
 }
 
 
+SAFETY_CAUTION = ("suggestions are statistical. Where a series feeds safety-relevant monitoring, follow the site's "
+                  "engineering procedures.")
+"""Said on every page and where the command line approves in bulk."""
+
+
 # How the engine writes a flag among its confidence reasons (app.core.confidence).
 FLAG_REASON_PREFIX = "flag: "
 

@@ -14,7 +14,7 @@ from markupsafe import Markup
 import app
 from app.core.order import order_label
 from app.core.p_values import p_text
-from app.core.vocabulary import flag_words, reason_words
+from app.core.vocabulary import SAFETY_CAUTION, flag_words, reason_words
 from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
 from app.web.security import CSRF_FIELD, csrf_token
@@ -115,7 +115,7 @@ def _environment() -> Environment:
     env.filters.update(number=number, p_value=p_value, percent=percent, flag_words=flag_words, reason_words=reason_words, quote_path=quote_path,
                        freq_words=freq_words, when=when, significant=significant)
     env.globals.update(order_label=order_label, url_for=url_for,
-                       csrf_field=csrf_field, severity_tiers=_severity_tiers())
+                       csrf_field=csrf_field, severity_tiers=_severity_tiers(), safety_caution=SAFETY_CAUTION)
     return env
 
 

@@ -14,7 +14,7 @@ from web_client import TEST_HOSTS
 from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
 
 from app.config import Settings
-from app.core.vocabulary import FLAG_WORDS, Confidence, Flag
+from app.core.vocabulary import FLAG_WORDS, SAFETY_CAUTION, Confidence, Flag
 from app.store.runs import start_run
 from app.store.verdicts import get_verdict, mark_recheck, set_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
@@ -567,3 +567,8 @@ def test_head_answers_where_get_does_with_its_headers_and_no_body(client, path):
     assert (head.status_code, head.content) == (got.status_code, b"")
     assert head.headers["content-type"] == got.headers["content-type"]
     assert client.head("/no-such-page").status_code == 404
+
+
+@pytest.mark.parametrize("path", ["/", f"/series/{SERIES}", "/approve-firm", "/upload"])
+def test_every_page_keeps_the_safety_caution(client, path):
+    assert f"Caution: {SAFETY_CAUTION}" in re.sub(r"<[^>]+>", "", html.unescape(client.get(path).text))
