@@ -54,6 +54,7 @@ from app.core.errors import OrderError, SeriesProblem
 from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
 from app.core.flat_runs import longest_flat_run
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
+from app.core.longer_cycle import longer_cycle
 from app.core.order import MAX_ORDER, MAX_SEASONAL_ORDER, Order
 from app.core.patterns import eacf_table, eacf_vertex, read_patterns, read_seasonal_patterns, with_neighbours
 from app.core.prepare import PreparedSeries, moment_in, prepare_series
@@ -669,6 +670,11 @@ def _finished(
         flags.append(Flag.LARGE_RESIDUAL)
         data_notes.append(large.words())
         doubts.append(f"a residual of {large.z:+.1f} SD of the others at {large.when} that the model does not explain")
+    cycle = longer_cycle(best.residuals, prepared.freq, best.model.period or 0)
+    if cycle:
+        flags.append(Flag.LONGER_CYCLE)
+        data_notes.append(cycle.words())
+        doubts.append(cycle.doubt())
     flat = longest_flat_run(prepared.values, prepared.index, demand is not None)
     if flat:
         flags.append(Flag.FLAT_RUN)

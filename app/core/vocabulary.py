@@ -42,6 +42,7 @@ class Flag(StrEnum):
     OUTLIERS = "outliers"
     LEVEL_SHIFT = "level_shift"
     FLAT_RUN = "flat_run"
+    LONGER_CYCLE = "longer_cycle"
 
 
 WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
@@ -51,7 +52,8 @@ NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_D
                             Flag.FIXED_SEASONALITY})
 """Flags that keep a suggestion from ``firm``, their reason given as the flag."""
 
-WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT, Flag.FLAT_RUN})
+WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT, Flag.FLAT_RUN,
+                                Flag.LONGER_CYCLE})
 """Flags that keep a suggestion from ``firm`` too, their reason written out by the check that
 raised them (where, how large, what class)."""
 
@@ -111,6 +113,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
     Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
     Flag.FLAT_RUN: "one value repeated over a run of points: a stuck sensor, a frozen feed, values carried forward?",
+    Flag.LONGER_CYCLE: "the residuals keep a longer cycle (a week in hourly data, a year in daily data)",
 }
 
 
