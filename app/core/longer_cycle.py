@@ -1,9 +1,10 @@
 """A cycle longer than the seasonal period, left in the suggestion's residuals.
 
 Hourly readings of plant and people often follow the week as well as the day (a line idle at
-weekends, a building empty on Sundays), and daily series the year. A seasonal ARIMA takes one
-period, which the engine reads from the sampling frequency (24 for hourly data, 7 for daily);
-its correlograms and its Ljung-Box test reach two periods, not the week of hourly data. Whether
+weekends, a building empty on Sundays). A seasonal ARIMA takes one period, which the engine
+reads from the sampling frequency (24 for hourly data); its correlograms and its Ljung-Box test
+reach two periods, not the week. (The year of daily data is left out: a seasonal ARIMA at 365
+is no practical model, and the advice to try one would be bad advice.) Whether
 the longer cycle is left over shows in the suggestion's residuals at its lag ``L``: for white
 noise residuals, their autocorrelation ``r_L`` is close to normal with variance ``1/m`` for
 ``m`` pairs (Box & Pierce 1970, the distribution of residual autocorrelations, from memory).
@@ -30,7 +31,6 @@ LEVEL_Z = 2.5758  # two-sided 1% point of the standard normal
 MIN_CYCLES = 3
 _ONE_HOUR = pd.Timedelta(hours=1)
 WEEK_OF_HOURS = (168, "a week")
-YEAR_OF_DAYS = (365, "a year")
 
 
 @dataclass(frozen=True)
@@ -54,16 +54,13 @@ class LongerCycle:
 
 
 def cycle_of(freq: str) -> tuple[int, str] | None:
-    """The longer cycle of a sampling frequency (``h``: 168 steps, a week; ``D``: 365, a year),
-    or None."""
+    """The longer cycle of a sampling frequency (hourly: 168 steps, a week), or None."""
     try:
         offset = to_offset(freq)
     except ValueError:
         return None
     if isinstance(offset, pd.offsets.Tick) and pd.Timedelta(offset) == _ONE_HOUR:
         return WEEK_OF_HOURS
-    if isinstance(offset, pd.offsets.Day) and offset.n == 1:
-        return YEAR_OF_DAYS
     return None
 
 

@@ -113,7 +113,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.OUTLIERS: "outliers found and estimated with the model (Chen-Liu)",
     Flag.LEVEL_SHIFT: "a level shift found and estimated with the model: the differencing was read without it",
     Flag.FLAT_RUN: "one value repeated over a run of points: a stuck sensor, a frozen feed, values carried forward?",
-    Flag.LONGER_CYCLE: "the residuals keep a longer cycle (a week in hourly data, a year in daily data)",
+    Flag.LONGER_CYCLE: "the residuals of hourly data keep a weekly cycle that the daily season does not take",
 }
 
 

@@ -37,7 +37,7 @@ def test_the_statistic_is_the_autocorrelation_at_the_cycle_and_the_band_is_1_per
 
 def test_the_cycles_of_the_sampling_frequencies():
     assert cycle_of("h") == (168, "a week") and cycle_of("60min") == (168, "a week")
-    assert cycle_of("D") == (365, "a year")
+    assert cycle_of("D") is None  # a seasonal ARIMA at 365 is no practical advice
     assert cycle_of("2h") is None and cycle_of("MS") is None and cycle_of("step") is None
     e = np.random.default_rng(4).normal(size=600)
     e[168:] += 0.5 * e[:-168]
