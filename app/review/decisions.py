@@ -24,7 +24,7 @@ from app.core.series_ids import printable
 from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
-from app.store.analyses import load_analysis
+from app.store.analyses import analysis_record, load_analysis
 from app.store.database import UnknownSeries
 from app.store.series import unknown_series
 from app.store.verdicts import get_verdict, set_verdict
@@ -40,7 +40,8 @@ class DecisionError(LagdeskError):
 
 
 class ConfirmationNeeded(DecisionError):
-    """An order whose residuals fail the Ljung-Box test at 1%, saved without ``confirm``."""
+    """A decision that needs ``confirm``: an order whose residuals fail the Ljung-Box test at 1%, or
+    the suggestion of an analysis of earlier data."""
 
 
 # Interventions as a reviewer names them: {"timestamp": ..., "kind": ...} each.
@@ -304,9 +305,10 @@ def decide(
     of each) the analysis' outliers and level shifts (None keeps them); the reviewer's
     interventions are sized with the order and stored with the verdict.
 
-    Two gates stop a risky decision taken in one step: approving a suggestion with
-    :func:`approval_risks` needs a note, and saving an order other than the suggestion whose
-    residuals fail the Ljung-Box test at 1% needs ``confirm``. An order the analysis did not
+    Three gates stop a risky decision taken in one step: approving a suggestion with
+    :func:`approval_risks` needs a note, approving the suggestion of an analysis of earlier data
+    (the data changed since) needs ``confirm``, and so does saving an order other than the
+    suggestion whose residuals fail the Ljung-Box test at 1%. An order the analysis did not
     fit with this transform and term is fitted here (and the fit kept for the export), which
     also checks that a log or Box-Cox transform meets positive data.
 
@@ -363,6 +365,11 @@ def decide(
         if risks and not note.strip():
             raise DecisionError(
                 f"series {series_id!r}: approving {candidate.label} needs a note saying why, as {'; '.join(risks)}"
+            )
+        if analysis_record(db, series_id)["state"] == "stale" and not confirm:
+            raise ConfirmationNeeded(
+                f"series {series_id!r}: the data changed after the analysis that suggested {candidate.label}; "
+                "analyse the series again first, or confirm to approve it for the earlier data"
             )
     elif status == VerdictStatus.OVERRIDDEN:
         if candidate is None:

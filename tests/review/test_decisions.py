@@ -126,6 +126,19 @@ def test_approving_a_series_with_a_run_of_one_value_needs_a_note(db):
     assert any("stuck sensor" in risk for risk in risks) and len(risks) == len(approval_risks(suggested)) + 1
 
 
+def test_approving_the_suggestion_of_an_analysis_of_earlier_data_asks_for_confirmation(db, tmp_path):
+    values = air_values()
+    values[-1] += 50.0  # a correction of the last month: the stored analysis is of other data now
+    pd.DataFrame({"series_id": AIR, "timestamp": pd.date_range("1949-01-01", periods=144, freq="MS").strftime("%Y-%m-%d"),
+                  "value": values}).to_csv(tmp_path / "v2.csv", index=False)
+    import_portfolio(db, tmp_path / "v2.csv")
+    with pytest.raises(ConfirmationNeeded, match="the data changed after the analysis"):
+        decide(db, AIR, status="approved", order=None, seasonal_order=None, note="", reviewer="ann", version=0)
+    assert get_verdict(db, AIR)["status"] == "pending"
+    saved = decide(db, AIR, status="approved", order=None, seasonal_order=None, note="", reviewer="ann", version=0, confirm=True)
+    assert saved["status"] == "approved"
+
+
 def test_a_clean_suggestion_is_approved_without_a_note(db):
     analysis = load_analysis(db, AIR)
     suggested = analysis.suggested

@@ -46,6 +46,15 @@ def test_not_an_arima_series_is_recorded_from_the_page(client, db):
     assert "status-not_arima" in shown and "Recorded as not an ARIMA series" in shown
 
 
+def test_approving_after_the_data_changed_asks_for_confirmation_on_the_page(client, db):
+    save_analysis(db, SERIES, "an earlier fingerprint", load_analysis(db, SERIES), None)  # the data changed since
+    refused = client.post(page(SERIES, "/verdict"), data=decision(action="approve"))
+    assert refused.status_code == 422 and "the data changed after the analysis" in refused.text and "data-confirm" in refused.text
+    assert get_verdict(db, SERIES)["status"] == "pending"
+    done = client.post(page(SERIES, "/verdict"), data=decision(action="approve", confirm="true"), follow_redirects=False)
+    assert done.status_code == 303 and get_verdict(db, SERIES)["status"] == "approved"
+
+
 def test_a_risky_suggestion_says_why_and_needs_a_note(client, db):
     analysis = load_analysis(db, SERIES)
     risky = replace(analysis, candidates=(replace(analysis.suggested, ljung_box_p=0.002), *analysis.candidates[1:]))
