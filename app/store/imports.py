@@ -56,13 +56,16 @@ class ImportReport:
     rejected: list[dict] = field(default_factory=list)  # {"series_id", "message", "row", "flag"}
     import_id: int = 0
     imported_at: str = ""
+    revised: list[str] = field(default_factory=list)  # the updated series whose stored values changed
 
     def to_dict(self) -> dict:
         return asdict(self)
 
     def summary(self) -> str:
+        revised = (f" ({len(self.revised)} of them with stored values changed, e.g. {self.revised[0]!r})"
+                   if self.revised else "")
         return (
-            f"{self.file}: {len(self.added)} added, {len(self.updated)} updated, "
+            f"{self.file}: {len(self.added)} added, {len(self.updated)} updated{revised}, "
             f"{len(self.unchanged)} unchanged, {len(self.rejected)} rejected"
         )
 
@@ -229,6 +232,7 @@ def _write(
         unchanged=[p.series_id for p in plans if not p.is_new and not p.changed],
         rejected=rejected,
         imported_at=utc_now(),
+        revised=[p.series_id for p in plans if not p.is_new and p.changed_rows],
     )
     report.import_id = insert_row(db, "imports", {
         "file": file,

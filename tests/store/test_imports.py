@@ -108,7 +108,8 @@ def test_reimport_with_changed_values_updates_and_makes_the_analysis_stale_leavi
     changed = a.copy()
     changed.iloc[7] += 2.5
     report = import_portfolio(fresh_db, write_csv("v2.csv", {"a": changed, "b": monthly(5)}))
-    assert (report.updated, report.unchanged) == (["a"], ["b"])
+    assert (report.updated, report.unchanged, report.revised) == (["a"], ["b"], ["a"])
+    assert "1 updated (1 of them with stored values changed, e.g. 'a')" in report.summary()
     assert series_fingerprint(fresh_db, "a") != old_fingerprint
     assert load_series(fresh_db, "a").iloc[7] == changed.iloc[7]
     assert analysis_record(fresh_db, "a")["state"] == "stale"
@@ -141,7 +142,7 @@ def test_appended_observations_merge_with_the_stored_ones(fresh_db, write_csv, m
     tail = full.iloc[40:]
     assert len(tail) < MIN_POINTS  # too short on its own, fine once merged
     report = import_portfolio(fresh_db, write_csv("tail.csv", {"a": tail}))
-    assert report.updated == ["a"] and report.rejected == []
+    assert report.updated == ["a"] and report.rejected == [] and report.revised == []  # appended, nothing rewritten
     merged = load_series(fresh_db, "a")
     np.testing.assert_array_equal(merged.to_numpy(), full.to_numpy())
     assert list(merged.index) == list(full.index)
