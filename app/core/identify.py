@@ -40,6 +40,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import Protocol
 
 import numpy as np
 import pandas as pd
@@ -627,6 +628,15 @@ def _identify_on(
     return _finished(prepared, transform, search, [], options), search
 
 
+class _Finding(Protocol):
+    """What a check on the data found (a large residual, a longer cycle, a flat run): its words
+    for the page and its reason for the confidence."""
+
+    def words(self) -> str: ...
+
+    def doubt(self) -> str: ...
+
+
 def _finished(
     prepared: PreparedSeries, transform: TransformChoice, search: _Identified, interventions: list[Intervention], options: EngineOptions
 ) -> Identification:
@@ -665,21 +675,17 @@ def _finished(
         doubts.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
     ratios = (prediction_variance_ratios(best.estimate.ar_polynomial, best.estimate.ma_polynomial, best.residuals.size)
               if best.estimate is not None else None)
-    large = largest_residual(best.residuals, prepared.index, ratios)
-    if large:
-        flags.append(Flag.LARGE_RESIDUAL)
-        data_notes.append(large.words())
-        doubts.append(f"a residual of {large.z:+.1f} SD of the others at {large.when} that the model does not explain")
-    cycle = longer_cycle(best.residuals, prepared.freq, best.model.period or 0)
-    if cycle:
-        flags.append(Flag.LONGER_CYCLE)
-        data_notes.append(cycle.words())
-        doubts.append(cycle.doubt())
-    flat = longest_flat_run(prepared.values, prepared.index, demand is not None)
-    if flat:
-        flags.append(Flag.FLAT_RUN)
-        data_notes.insert(0, flat.words())
-        doubts.append(flat.doubt())
+    checks: tuple[tuple[_Finding | None, Flag], ...] = (
+        (largest_residual(best.residuals, prepared.index, ratios), Flag.LARGE_RESIDUAL),
+        (longer_cycle(best.residuals, prepared.freq, best.model.period or 0), Flag.LONGER_CYCLE),
+        (longest_flat_run(prepared.values, prepared.index, demand is not None), Flag.FLAT_RUN),
+    )
+    for found, flag in checks:
+        if found:
+            flags.append(flag)
+            # A stuck stretch is the first thing a reviewer of a sensor channel must read.
+            data_notes.insert(0 if flag is Flag.FLAT_RUN else len(data_notes), found.words())
+            doubts.append(found.doubt())
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,

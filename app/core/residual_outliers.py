@@ -74,6 +74,9 @@ class LargeResidual:
         return (f"A residual of {self.z:+.1f} standard deviations of the other residuals at {self.when} is beyond the "
                 f"outlier threshold {self.threshold:.1f}: an outlier, a level shift or a change the model does not explain.")
 
+    def doubt(self) -> str:
+        return f"a residual of {self.z:+.1f} SD of the others at {self.when} that the model does not explain"
+
 
 def outlier_threshold(n: int) -> float:
     """The critical value ``C(n) = Φ⁻¹(1 − FAMILY_LEVEL / (2n))`` (see the module notes)."""
