@@ -56,9 +56,8 @@ def upload_name(upload: UploadFile) -> str:
         return "upload.csv"
     suffix = Path(name).suffix if len(Path(name).suffix.encode()) <= MAX_SUFFIX_BYTES else ""
     stem = name[: len(name) - len(suffix)] if suffix else name
-    while len((stem + suffix).encode()) > MAX_NAME_BYTES:
-        stem = stem[:-1]
-    return stem + suffix
+    room = MAX_NAME_BYTES - len(suffix.encode())
+    return stem.encode()[:room].decode(errors="ignore") + suffix  # a character cut in two is dropped
 
 
 def import_upload(db: sqlite_utils.Database, upload: UploadFile, options: UploadOptions, settings: Settings) -> ImportReport:
