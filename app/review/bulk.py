@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import sqlite_utils
 
 from app.core.errors import LagdeskError
-from app.core.vocabulary import Confidence, VerdictStatus
+from app.core.vocabulary import AWAITING, Confidence, VerdictStatus
 from app.review.decisions import DecisionError, approval_risks, checked_note, decide
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
@@ -19,7 +19,7 @@ from app.store.series import list_series
 from app.store.verdicts import StaleVersion, get_verdict, set_verdict
 
 # What a reviewer may park in bulk: series still waiting for a decision.
-WAITING = (VerdictStatus.PENDING.value, VerdictStatus.RECHECK.value)
+WAITING = tuple(str(status) for status in AWAITING)  # as the store filters take them
 
 
 def _items(db: sqlite_utils.Database, store_kwargs: dict) -> list[dict]:
