@@ -65,7 +65,7 @@ from app.core.ranking import (
     common_level_bic,
     criterion_value,
     is_demoted,
-    rank_across_d,
+    rank_across_differencing,
     rank_score,
     rank_within_d,
 )
@@ -179,17 +179,18 @@ class Identification:
     def suggested(self) -> CandidateFit:
         return self.candidates[0]
 
-    def across_d_words(self) -> list[str]:
-        """What decided d when the tests left it open, in words drawn from the ranking itself."""
-        ds = list(dict.fromkeys(c.model.d for c in self.candidates))
-        if len(ds) < 2:
-            return []
-        chosen, other = ds[0], ds[1]
-        return [
-            f"The best model with d = {chosen} predicts the levels better than the best with d = {other} "
-            "(a BIC of their one-step prediction errors over the same final stretch), so the suggestion "
-            f"has d = {chosen}."
-        ]
+    def across_differencing_words(self) -> list[str]:
+        """What decided d or D when the tests left it open, in words drawn from the ranking itself."""
+        lead, *others = dict.fromkeys((c.model.D, c.model.d) for c in self.candidates)
+        same_D = next((g for g in others if g[0] == lead[0]), None)
+        other_D = next((g for g in others if g[0] != lead[0]), None)
+        words = []
+        for other, name in ((same_D, "d = {1}"), (other_D, "D = {0}, d = {1}")):
+            if other is not None:
+                words.append(f"The best model with {name.format(*lead)} predicts the levels better than the best with "
+                             f"{name.format(*other)} (a BIC of their one-step prediction errors over the same final "
+                             f"stretch), so the suggestion has {name.format(*lead)}.")
+        return words
 
     def to_analysis(self) -> Analysis:
         """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
@@ -211,7 +212,7 @@ class Identification:
             differencing=DifferencingSummary(
                 d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
                 trend_stationary=decision.trend_stationary,
-                tests=tuple(decision.tests), explanation=(*decision.explanation, *self.across_d_words()),
+                tests=tuple(decision.tests), explanation=(*decision.explanation, *self.across_differencing_words()),
             ),
             seasonal=self.seasonal.summary(),
             acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
@@ -476,40 +477,73 @@ def fixed_seasonality_words(leader: CandidateFit, seasonal: SeasonalSetup) -> st
 
 @dataclass
 class _Identified:
-    """The differencing decision and the ranked candidates of one (possibly adjusted) series."""
+    """The differencing decisions and the ranked candidates of one (possibly adjusted) series.
 
-    seasonal: SeasonalSetup
-    decision: DifferencingDecision
-    searches: dict[int, SearchResult]
+    ``setups`` holds, for each seasonal difference D searched (two when the seasonal
+    differencing is uncertain), its seasonal setup and ordinary differencing decision;
+    ``searches`` the search of each (D, d) pair searched.
+    """
+
+    setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]]
+    searches: dict[tuple[int, int], SearchResult]
     ranked: list[CandidateFit]
+
+    @property
+    def seasonal(self) -> SeasonalSetup:
+        return self._chosen[0]
+
+    @property
+    def decision(self) -> DifferencingDecision:
+        return self._chosen[1]
+
+    @property
+    def _chosen(self) -> tuple[SeasonalSetup, DifferencingDecision]:
+        """The setup of the leader's D: it names what was decided."""
+        return self.setups.get(self.ranked[0].model.D) or next(iter(self.setups.values()))
+
+
+def _differencing(series_id: str, y: np.ndarray, period: int | None, period_words: list[str]
+                  ) -> dict[int, tuple[SeasonalSetup, DifferencingDecision]]:
+    """The seasonal setup and the ordinary differencing decision of ``y`` for each D its
+    seasonal differencing decision leaves open, the decision's own D first."""
+    chosen = choose_seasonal_differencing(y, period) if period else None
+    setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]] = {}
+    for D in chosen.choices if chosen else (0,):
+        differencing = replace(chosen, D=D) if chosen else None
+        seasonal = SeasonalSetup(period, differencing, list(period_words))
+        if differencing:
+            seasonal.words += differencing.explanation
+            seasonal.flags += differencing.flags
+        w = seasonal_difference(y, period, D)
+        if D and np.ptp(w[~np.isnan(w)]) == 0.0:
+            raise SeriesProblem(series_id, f"repeats itself exactly every {period} points: after the seasonal difference "
+                                "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
+        setups[D] = (seasonal, choose_differencing(w))
+    return setups
 
 
 def _search_on(
     series_id: str, y: np.ndarray, period: int | None, period_words: list[str], options: EngineOptions,
-    kept: tuple[SeasonalSetup, DifferencingDecision] | None = None,
+    kept: dict[int, tuple[SeasonalSetup, DifferencingDecision]] | None = None,
 ) -> _Identified:
     """Seasonal and ordinary differencing, correlograms and ranked candidates of ``y``; with
-    ``kept``, the differencing (seasonal setup and decision, an uncertain one with both its d)
-    of an earlier search is kept."""
-    if kept is None:
-        seasonal = SeasonalSetup(period, choose_seasonal_differencing(y, period) if period else None, list(period_words))
-        if seasonal.differencing:
-            seasonal.words += seasonal.differencing.explanation
-            seasonal.flags += seasonal.differencing.flags
-        w = seasonal_difference(y, period, seasonal.D)
-        if seasonal.D and np.ptp(w[~np.isnan(w)]) == 0.0:
-            raise SeriesProblem(series_id, f"repeats itself exactly every {period} points: after the seasonal difference "
-                                "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
-        decision = choose_differencing(w)
-    else:
-        seasonal, decision = kept
-    ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
-    searches = {d: search_candidates(series_id, y, d, seasonal, decision, options) for d in ds}
-    for d, found in searches.items():
-        if d != decision.d:
+    ``kept``, the differencing of an earlier search (every D and d it searched) is kept.
+
+    Every (D, d) an uncertain decision leaves open is searched, and the groups are ranked by
+    how well their leaders predict the levels (:func:`app.core.ranking.rank_across_differencing`)."""
+    setups = kept if kept is not None else _differencing(series_id, y, period, period_words)
+    first_D = next(iter(setups))
+    searches: dict[tuple[int, int], SearchResult] = {}
+    for D, (seasonal, decision) in setups.items():
+        ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
+        for d in ds:
+            found = search_candidates(series_id, y, d, seasonal, decision, options)
+            marks = (["alternative d"] if d != decision.d else []) + (["alternative D"] if D != first_D else [])
             for f in found.fits:
-                f.source = f.source + ["alternative d"]
-    return _Identified(seasonal, decision, searches, rank_across_d({d: found.fits for d, found in searches.items()}, options.criterion))
+                f.source = f.source + marks
+            searches[(D, d)] = found
+    ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
+    return _Identified(setups, searches, ranked)
 
 
 def _with_interventions(
@@ -557,8 +591,8 @@ def _with_interventions(
     for _ in range(2):
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
         cleaned = adjusted(y, current)
-        same = not shifted and not _season_moves(cleaned, period, first.seasonal)
-        differencing = (first.seasonal, first.decision) if same else None
+        same = not shifted and not _season_moves(cleaned, period, first.setups)
+        differencing = first.setups if same else None
         again = _search_on(prepared.series_id, cleaned, period, period_words, options, differencing)
         best = again.ranked[0]
         start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
@@ -600,9 +634,9 @@ def _shift_predicts_better(y: np.ndarray, leader: CandidateFit, found: list[Inte
             < common_level_bic(ours, m, present, 2 * len(found)))
 
 
-def _season_moves(y: np.ndarray, period: int | None, seasonal: SeasonalSetup) -> bool:
-    """Whether the seasonal differencing of ``y`` (an adjusted series) differs from ``seasonal``'s."""
-    return bool(period) and choose_seasonal_differencing(y, period).D != seasonal.D
+def _season_moves(y: np.ndarray, period: int | None, setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]]) -> bool:
+    """Whether the seasonal differencing of ``y`` (an adjusted series) leaves other D open than ``setups`` searched."""
+    return bool(period) and choose_seasonal_differencing(y, period).choices != tuple(setups)
 
 
 def _one_difference_less(model: Order) -> Order:
@@ -643,13 +677,13 @@ def _finished(
     """The identification of a search: flags, data checks, confidence."""
     seasonal, decision, ranked = search.seasonal, search.decision, search.ranked
     best = ranked[0]
-    shown = search.searches[best.model.d]
+    shown = search.searches[(best.model.D, best.model.d)]
     flags = list(prepared.flags) + seasonal.flags
     if transform.kind != "none":
         flags.append(Flag.TRANSFORMED)
     if decision.uncertain:
         flags.append(Flag.UNCERTAIN_DIFFERENCING)
-    if decision.trend_stationary:
+    if decision.trend_stationary and best.model.d == 0:
         flags.append(Flag.TREND_STATIONARY)
     for flag in best.flags + ([] if best.passes_ljung_box else [Flag.RESIDUAL_AUTOCORRELATION]):
         if flag not in flags:
@@ -823,18 +857,18 @@ def _on_whole_series(
     y = apply_transform(prepared.values, found.transform)
     if interventions:
         y = adjusted(y, interventions)
-    groups: dict[int, list[CandidateFit]] = {}
+    groups: dict[tuple[int, int], list[CandidateFit]] = {}
     for candidate in found.candidates[:REFITTED]:
         try:
             fit = fit_candidate(y, candidate.model, warm=candidate)
         except (np.linalg.LinAlgError, ValueError):
             continue  # the order stays out of the whole-series ranking
         fit.source = candidate.source
-        groups.setdefault(candidate.model.d, []).append(fit)
+        groups.setdefault((candidate.model.D, candidate.model.d), []).append(fit)
     if not groups:
         raise SeriesProblem(prepared.series_id, "none of the candidates found on the recent points could be fitted "
                             "to the whole series", flag="no_fit")
-    ranked = rank_across_d(groups, options.criterion)
+    ranked = rank_across_differencing(groups, options.criterion)
     whole = _finished(prepared, found.transform, replace(search, ranked=ranked), interventions, options)
     whole.identified_label += f"; last {found.prepared.n} points"
     whole.data_notes.insert(0, (

@@ -45,7 +45,7 @@ References
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 
 import numpy as np
 from scipy.special import chdtrc
@@ -115,8 +115,10 @@ def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = Non
     return count * math.log(sse / count) + (fit.n_params + extra) * math.log(count)
 
 
-def rank_across_d(groups: dict[int, list[CandidateFit]], criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
-    """Rank each d's candidates, then put the group whose leader predicts the levels best first."""
+def rank_across_differencing(groups: Mapping[tuple[int, int], list[CandidateFit]], criterion: str = DEFAULT_CRITERION
+                             ) -> list[CandidateFit]:
+    """Rank the candidates of each differencing (D, d), then put the group whose leader predicts
+    the levels best first (:func:`common_level_bic`)."""
     ranked = {d: rank_within_d(fits, criterion) for d, fits in groups.items() if fits}
     if len(ranked) == 1:
         return next(iter(ranked.values()))

@@ -16,18 +16,30 @@ KPSS (c)                 ADF (c)                 decision
 does not reject          rejects                 stationary: stop here (firm)
 rejects                  does not reject         unit root: difference once more (firm), unless
                                                  KPSS(ct) does not reject and ADF(ct) rejects:
-                                                 trend-stationary, keep d with a linear trend;
+                                                 trend-stationary, d = 0 with a linear trend
+                                                 leads, d = 1 searched too (uncertain);
                                                  uncertain when ADF's p-value is below
                                                  :data:`ADF_UNCERTAIN_P` or ADF(ct) rejects
-does not reject          does not reject         the tests disagree (low power, near unit root)
+does not reject          does not reject         the tests disagree (low power, near unit root);
+                                                 on the first difference: stop at d = 1
 rejects                  rejects                 the tests disagree (e.g. a break, long memory)
 =======================  ======================  =============================================
 
-When the tests disagree the decision is *uncertain*: the engine keeps candidates for both d
-and ranks across them by a criterion computed on the same one-step level prediction errors
-(see :func:`app.core.ranking.common_level_bic`). The primary d of an uncertain decision is
-the differenced one when ADF's p-value exceeds :data:`ADF_UNCERTAIN_P` and the level one
-otherwise. ``d = 2`` is taken only when both tests agree on the first difference.
+When the tests disagree the decision is *uncertain*: the engine keeps candidates for d and
+d + 1 and ranks across them by a criterion computed on the same one-step level prediction
+errors (see :func:`app.core.ranking.common_level_bic`). The primary d of an uncertain decision
+is the differenced one when ADF's p-value exceeds :data:`ADF_UNCERTAIN_P` and the other one
+otherwise. On the first difference a disagreement in which KPSS rejects is uncertain in the
+same way between d = 1 and d = 2 (KPSS alone, as Hyndman & Khandakar (2008) decide d, would
+difference again; ADF alone would not); one in which neither test rejects keeps d = 1, where
+KPSS alone would stop too. A trend-stationary reading is a pre-test too: its linear trend is
+extrapolated without end in the forecasts, so d = 1 is searched beside it and the same
+criterion decides.
+
+Measured on the real series of README's Accuracy section (573 forecasts, three origins): with
+the first-difference disagreement searched, 9 suggestions changed, 4 for the better, and the
+ratio to the stepwise search went from 0.996 to 0.993; with the trend-stationary reading
+checked against d = 1, 10 changed, 7 for the better, 0.993 to 0.991.
 
 KPSS p-values are interpolated in a table and clipped to [0.01, 0.10]; the decision uses the
 5% critical value, never the clipped p-value.
@@ -131,29 +143,30 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
                 if not kp_ct.rejects and ad_ct.rejects:
                     words.append(
                         "KPSS rejects level stationarity, but with a trend term KPSS does not reject and ADF rejects a "
-                        "unit root: trend-stationary, so not differenced; the model carries a linear trend."
+                        "unit root: trend-stationary, so d = 0 with a linear trend leads. A fitted trend is extrapolated "
+                        "without end, so candidates are searched for d = 1 too; the fits decide between them."
                     )
-                    return DifferencingDecision(0, False, None, True, tests, words)
+                    return DifferencingDecision(0, True, 1, True, tests, words)
                 if ad_ct.rejects or ad.p_value < ADF_UNCERTAIN_P:
                     reason = "ADF with a trend term rejects a unit root" if ad_ct.rejects else f"ADF's {p_words(ad.p_value)} is below {ADF_UNCERTAIN_P}"
-                    return _uncertain(tests, words, on, f"KPSS rejects stationarity, but {reason}")
+                    return _uncertain(tests, words, on, 0, f"KPSS rejects stationarity, but {reason}")
             words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: differenced once more.")
             values = np.diff(values)
             continue
-        if d >= 1:
+        if d >= 1 and not kp.rejects:
             words.append(f"On the {on} the tests disagree; a further difference needs both to agree, so d = {d}.")
             return DifferencingDecision(d, False, None, False, tests, words)
         verdict = "neither rejects its null" if not kp.rejects else "both reject their nulls"
-        return _uncertain(tests, words, on, f"the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF {p_words(ad.p_value)})")
+        return _uncertain(tests, words, on, d, f"the tests disagree ({verdict}: KPSS {kp.statistic:.3f}, ADF {p_words(ad.p_value)})")
     raise AssertionError("unreachable")
 
 
-def _uncertain(tests: list[UnitRootTest], words: list[str], on: str, why: str) -> DifferencingDecision:
-    """An uncertain decision between d = 0 and d = 1; the lead d follows ADF's p-value."""
+def _uncertain(tests: list[UnitRootTest], words: list[str], on: str, d: int, why: str) -> DifferencingDecision:
+    """An uncertain decision between ``d`` and ``d + 1``; the lead follows ADF's p-value."""
     adf = next(t for t in tests if t.name == "ADF" and t.regression == "c" and t.on == on)
-    primary = 1 if adf.p_value > ADF_UNCERTAIN_P else 0
+    primary, other = (d + 1, d) if adf.p_value > ADF_UNCERTAIN_P else (d, d + 1)
     words.append(
-        f"On the {on} {why}. Candidates are searched for d = 0 and d = 1 (d = {primary} first, as ADF's "
-        f"p-value is {'above' if primary else 'below'} {ADF_UNCERTAIN_P}); the fits decide between them."
+        f"On the {on} {why}. Candidates are searched for d = {d} and d = {d + 1} (d = {primary} first, as ADF's "
+        f"p-value is {'above' if primary > d else 'below'} {ADF_UNCERTAIN_P}); the fits decide between them."
     )
-    return DifferencingDecision(primary, True, 1 - primary, False, tests, words)
+    return DifferencingDecision(primary, True, other, False, tests, words)

@@ -31,6 +31,7 @@ class Flag(StrEnum):
     TOO_FEW_SEASONS = "too_few_seasons"
     TRANSFORMED = "transformed"
     UNCERTAIN_DIFFERENCING = "uncertain_differencing"
+    UNCERTAIN_SEASONAL_DIFFERENCING = "uncertain_seasonal_differencing"
     TREND_STATIONARY = "trend_stationary"
     NO_CONVERGENCE = "no_convergence"
     RESIDUAL_AUTOCORRELATION = "residual_autocorrelation"
@@ -48,8 +49,8 @@ class Flag(StrEnum):
 WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
 """Flags that make a suggestion ``weak`` (:mod:`app.core.confidence`)."""
 
-NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING, Flag.TREND_STATIONARY,
-                            Flag.FIXED_SEASONALITY})
+NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING,
+                            Flag.UNCERTAIN_SEASONAL_DIFFERENCING, Flag.TREND_STATIONARY, Flag.FIXED_SEASONALITY})
 """Flags that keep a suggestion from ``firm``, their reason given as the flag."""
 
 WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT, Flag.FLAT_RUN,
@@ -104,6 +105,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
     Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
     Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
+    Flag.UNCERTAIN_SEASONAL_DIFFERENCING: "the seasonal strength is above the threshold by one STL fit and below by the other",
     Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
     Flag.TOO_FEW_SEASONS: "fewer than three full seasons: the seasonal part is read from little data",
     Flag.TRANSFORMED: "identified on a log or Box-Cox transform of the series",

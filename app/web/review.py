@@ -56,6 +56,7 @@ SOURCE_WORDS = {
     "local search": "stepwise search: one step from the leading order",
     TREND_TOGGLE: "stepwise search: the leading order with the constant or drift toggled",
     "alternative d": "the other differencing the tests left open",
+    "alternative D": "the other seasonal differencing the two strength measures left open",
 }
 FITTED_BY_HAND = "fitted by hand"
 # A ticked intervention travels in the decision form as "TIMESTAMP|KIND".

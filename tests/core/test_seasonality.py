@@ -13,6 +13,7 @@ from statsmodels.tsa.seasonal import STL
 from statsmodels.tsa.stattools import acf
 
 from app.core.errors import OrderError
+from app.core.identify import identify_series
 from app.core.prepare import prepare_series
 from app.core.seasonality import (
     MIN_SEASONS_DIFFERENCING,
@@ -26,6 +27,7 @@ from app.core.seasonality import (
     seasonal_structure_present,
     validate_period,
 )
+from app.core.vocabulary import Flag
 
 
 @pytest.fixture(scope="module")
@@ -42,9 +44,9 @@ def _sine_plus_noise(n: int, period: int, seasonal_var: float, seed: int) -> tup
     return seasonal, rng.normal(size=n)
 
 
-def _strengths_from_stl(x: np.ndarray, period: int) -> tuple[float, float]:
+def _strengths_from_stl(x: np.ndarray, period: int, robust: bool = True) -> tuple[float, float]:
     """F_S and F_T written out from the definition (Wang, Smith & Hyndman 2006; FPP3 §4.3)."""
-    fit = STL(x, period=period, robust=True).fit()
+    fit = STL(x, period=period, robust=robust).fit()
     var_r = np.var(fit.resid, ddof=1)
     f_s = max(0.0, 1 - var_r / np.var(fit.seasonal + fit.resid, ddof=1))
     f_t = max(0.0, 1 - var_r / np.var(fit.trend + fit.resid, ddof=1))
@@ -86,6 +88,49 @@ def test_co2_is_differenced_once_at_lag_12(co2_monthly):
     assert decision.strength > SEASONAL_STRENGTH_THRESHOLD
     assert decision.enough_seasons and decision.flags == []
     assert "lag 12" in decision.explanation[0] and f"{decision.strength:.2f}" in decision.explanation[0]
+
+
+def _fixed_season_over_a_random_walk(seed: int) -> np.ndarray:
+    """Twelve years of a fixed monthly profile (SD 1) over a random walk (steps SD 0.6) plus noise
+    (SD 0.5): its season is strong, its remainder wide, so the two STL fits read it differently."""
+    rng = np.random.default_rng(seed)
+    profile = np.tile(rng.normal(0.0, 1.0, 12), 12)
+    return profile + np.cumsum(rng.normal(0.0, 0.6, 144)) + rng.normal(0.0, 0.5, 144)
+
+
+def test_strength_measures_on_opposite_sides_leave_the_seasonal_difference_open():
+    x = _fixed_season_over_a_random_walk(0)
+    robust, plain = _strengths_from_stl(x, 12)[0], _strengths_from_stl(x, 12, robust=False)[0]
+    assert robust <= SEASONAL_STRENGTH_THRESHOLD < plain, "precondition: the two STL fits straddle the threshold"
+    assert seasonal_strength(x, 12, robust=False).seasonal == pytest.approx(plain, abs=1e-12)
+    decision = choose_seasonal_differencing(x, 12)
+    assert (decision.D, decision.alternative_D, decision.choices) == (0, 1, (0, 1))
+    assert decision.flags == [Flag.UNCERTAIN_SEASONAL_DIFFERENCING]
+    assert f"{robust:.2f} <= 0.64" in decision.explanation[0] and f"but {plain:.2f} by the ordinary fit" in decision.explanation[0]
+    assert decision.stability is not None, "the Canova-Hansen test is run for the D = 1 it leaves open"
+
+
+def test_strength_measures_on_the_same_side_decide_alone(co2_monthly):
+    # Both fits above the threshold (CO2), both below (white noise): one D, nothing open.
+    assert choose_seasonal_differencing(co2_monthly, 12).choices == (1,)
+    x = np.random.default_rng(0).normal(size=144)
+    assert _strengths_from_stl(x, 12, robust=False)[0] <= SEASONAL_STRENGTH_THRESHOLD
+    decision = choose_seasonal_differencing(x, 12)
+    assert decision.choices == (0,) and decision.alternative_D is None and decision.flags == []
+
+
+def test_an_open_seasonal_difference_is_searched_both_ways_and_the_fits_decide():
+    x = _fixed_season_over_a_random_walk(0)
+    series = pd.Series(x, index=pd.date_range("2010-01-01", periods=x.size, freq="MS"))
+    found = identify_series(series, "fixed-profile")
+    seasonal_differences = {c.model.D for c in found.candidates}
+    assert seasonal_differences == {0, 1}
+    assert all("alternative D" in c.source for c in found.candidates if c.model.D != 0)
+    assert Flag.UNCERTAIN_SEASONAL_DIFFERENCING in found.flags
+    analysis = found.to_analysis()
+    assert analysis.seasonal.D == found.suggested.model.D, "the summary names the D the suggestion has"
+    lead = found.suggested.model
+    assert any(f"suggestion has D = {lead.D}, d = {lead.d}" in line for line in analysis.differencing.explanation)
 
 
 @pytest.mark.parametrize("seed", range(5))

