@@ -160,7 +160,10 @@ def largest_real_ar_root(fit: CandidateFit) -> float:
         0 without AR terms or without a positive real root. Complex and negative roots near the
         unit circle are cycles, not the unit root that differencing removes.
     """
-    values = {p.name: p.value for p in fit.params}
+    if fit.estimate is None:
+        return 0.0
+    # The coefficients by name, without the standard errors that fit.params would compute.
+    values = dict(zip(fit.estimate.spec.names(), fit.estimate.coefficients.tolist()))
     phi = [values[f"ar.L{i}"] for i in range(1, fit.model.p + 1)]
     if not phi:
         return 0.0

@@ -304,8 +304,9 @@ def sized_interventions(
     fit with ``model`` (stage II of Chen & Liu 1993, §3, without dropping any).
 
     ``y`` is the (transformed) series in levels, NaN where a value is missing; ``start`` an
-    optional start for the optimiser. ``t`` is the size over its Hessian standard error, NaN
-    where the Hessian gives none. In the order given.
+    optional start for the optimiser. ``t`` is the size over its standard error by generalised
+    least squares at the ARMA optimum (:attr:`app.core.likelihood.ArmaFit.regression_standard_errors`),
+    NaN where there is none. In the order given.
     """
     if not placed:
         return []
@@ -314,7 +315,7 @@ def sized_interventions(
                np.zeros(0) if start is None else start)
     n_trend = len(trend_design(y.size, model)[0])
     sizes = fit.beta[n_trend:]
-    errors = fit.standard_errors[model.arma_spec().n_coefficients + n_trend:]
+    errors = fit.regression_standard_errors[n_trend:]
     return [
         Intervention(position, moment(index[position]), kind, float(size),
                      float(size / error) if np.isfinite(error) and error > 0 else float("nan"))
@@ -328,8 +329,8 @@ def estimate_jointly(
     """Stage II: fit ``model`` to ``y`` with every intervention as a regression column, drop the
     least significant whose ``|t|`` is below :func:`detection_threshold`, repeat until all pass.
 
-    ``t`` comes from the Hessian standard error of the joint fit (the stage I statistic where
-    the Hessian gives none). ``start`` is a start for the optimiser (the model's optimum on the
+    ``t`` comes from the generalised least-squares standard error of the joint fit
+    (:func:`sized_interventions`; the stage I statistic where there is none). ``start`` is a start for the optimiser (the model's optimum on the
     adjusted series). Returns the interventions kept, in time order, with their joint sizes.
     """
     y = np.asarray(y, dtype=float)

@@ -14,7 +14,6 @@ import numpy as np
 import pytest
 from scipy.stats import chi2, ncx2
 
-from app.core.analysis import Parameter
 from app.core.confidence import (
     MIN_DIFFERENCED_LENGTH,
     MIN_FIRM_LENGTH,
@@ -28,6 +27,7 @@ from app.core.confidence import (
     weak_term_power,
 )
 from app.core.fitting import CandidateFit, fit_candidate
+from app.core.likelihood import ArmaSpec
 from app.core.order import Order
 from app.core.ranking import likelihood_ratio_p, margin_to_rival, strongest_nesting_rival
 from app.core.vocabulary import Confidence
@@ -56,9 +56,9 @@ def _with_gain(fit: CandidateFit, lead: CandidateFit, statistic: float) -> Candi
 
 def _ar(fit: CandidateFit, phi: list[float], nobs: int) -> CandidateFit:
     """``fit`` as an AR(len(phi)) with those coefficients, fitted on ``nobs`` observations."""
-    ar = replace(fit, model=Order(len(phi), 0, 0, trend="c"), nobs=nobs)
-    ar.params = [Parameter("const", 10.0, None)] + [Parameter(f"ar.L{i}", v, None) for i, v in enumerate(phi, 1)]
-    return ar
+    assert fit.estimate is not None
+    estimate = replace(fit.estimate, spec=ArmaSpec(p=len(phi)), coefficients=np.array(phi, dtype=float))
+    return replace(fit, model=Order(len(phi), 0, 0, trend="c"), nobs=nobs, estimate=estimate)
 
 
 @pytest.mark.parametrize("outer, inner, expected", [
@@ -137,8 +137,8 @@ def test_an_ar_root_within_dickey_fuller_reach_of_one_is_not_firm(fits, nobs, do
 @pytest.mark.parametrize("n, doubt", [(120, True), (MIN_DIFFERENCED_LENGTH - 1, True), (MIN_DIFFERENCED_LENGTH, False)])
 def test_a_differenced_suggestion_of_a_short_series_is_not_firm(fits, n, doubt):
     assert MIN_DIFFERENCED_LENGTH == 282  # 14.1 / (1 - 0.95), rounded up
-    walk = replace(fits["wn"], model=Order(0, 1, 0), nobs=n - 1)
-    walk.params = [Parameter("sigma2", 1.0, None)]
+    walk = _ar(replace(fits["wn"], model=Order(0, 1, 0)), [], n - 1)
+    walk = replace(walk, model=Order(0, 1, 0))
     assert (unit_root_doubt(walk) is not None) is doubt
 
 

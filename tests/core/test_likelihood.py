@@ -14,6 +14,7 @@ import warnings
 import numpy as np
 import pytest
 import scipy.linalg
+import statsmodels.api as sm
 from statsmodels.tsa.arima.model import ARIMA
 from statsmodels.tsa.arima_process import ArmaProcess, arma_pacf
 from statsmodels.tsa.statespace.sarimax import SARIMAX
@@ -326,3 +327,28 @@ def test_a_series_far_from_zero_converges_with_a_mean_and_a_trend(shift):
         warnings.simplefilter("ignore")
         approx = ARIMA(y - shift, order=(2, 0, 0), trend="ct").fit(cov_type="approx").bse
     np.testing.assert_allclose(fit.standard_errors, np.r_[approx[2:4], approx[:2]], rtol=0.02)
+
+
+def test_regression_errors_under_white_noise_are_those_of_least_squares():
+    # With ARMA(0,0) errors generalised least squares is ordinary least squares; the fit's
+    # variance is the maximum-likelihood one (SSR / n), statsmodels' OLS divides by n - k.
+    rng = np.random.default_rng(5)
+    n = 150
+    x = np.column_stack([np.ones(n), (np.arange(n) >= 90).astype(float), (np.arange(n) == 40).astype(float)])
+    w = x @ [3.0, 1.5, 4.0] + rng.standard_normal(n)
+    fit = fit_arma(w, ArmaSpec(), x)
+    ols = sm.OLS(w, x).fit()
+    np.testing.assert_allclose(fit.regression_standard_errors, ols.bse * np.sqrt((n - 3) / n), rtol=1e-9)
+
+
+def test_regression_error_of_an_ar1_mean_is_the_prais_winsten_one():
+    # For AR(1) errors, Sigma^-1 in innovation units is the Prais-Winsten transform's (Prais &
+    # Winsten 1954): for the constant column X' Sigma^-1 X = (1 - phi^2) + (n - 1) (1 - phi)^2,
+    # so the mean's standard error is sqrt(sigma2 / that), at the fit's own phi and sigma2.
+    y = 10.0 + ArmaProcess([1, -0.6]).generate_sample(200, distrvs=np.random.default_rng(8).standard_normal, burnin=100)
+    fit = fit_arma(y, ArmaSpec(p=1), np.ones((y.size, 1)))
+    phi = fit.coefficients[0]
+    expected = np.sqrt(fit.sigma2 / ((1 - phi ** 2) + (y.size - 1) * (1 - phi) ** 2))
+    assert fit.regression_standard_errors[0] == pytest.approx(expected, rel=1e-9)
+    # The observed-Hessian error of the same coefficient estimates the same quantity.
+    assert fit.standard_errors[1] == pytest.approx(expected, rel=0.05)
