@@ -179,17 +179,27 @@ class Identification:
     def suggested(self) -> CandidateFit:
         return self.candidates[0]
 
-    def across_differencing_words(self) -> list[str]:
-        """What decided d or D when the tests left it open, in words drawn from the ranking itself."""
-        lead, *others = dict.fromkeys((c.model.D, c.model.d) for c in self.candidates)
+    def across_differencing_words(self) -> list[tuple[str, str]]:
+        """What decided d or D when the tests left it open, in words drawn from the ranking itself
+        (:func:`app.core.ranking.rank_across_differencing`): pairs of ``("d" or "D", sentence)``."""
+        leaders: dict[tuple[int, int], CandidateFit] = {}
+        for c in self.candidates:
+            leaders.setdefault((c.model.D, c.model.d), c)
+        lead, *others = leaders
         same_D = next((g for g in others if g[0] == lead[0]), None)
         other_D = next((g for g in others if g[0] != lead[0]), None)
         words = []
-        for other, name in ((same_D, "d = {1}"), (other_D, "D = {0}, d = {1}")):
-            if other is not None:
-                words.append(f"The best model with {name.format(*lead)} predicts the levels better than the best with "
-                             f"{name.format(*other)} (a BIC of their one-step prediction errors over the same final "
-                             f"stretch), so the suggestion has {name.format(*lead)}.")
+        for which, other, name in (("d", same_D, "d = {1}"), ("D", other_D, "D = {0}, d = {1}")):
+            if other is None:
+                continue
+            ours, theirs = name.format(*lead), name.format(*other)
+            if is_demoted(leaders[other]) and not is_demoted(leaders[lead]):
+                why = (f"the best model with {theirs}, {leaders[other].model.label()}, fails a check that demotes it "
+                       "(clear residual autocorrelation, no convergence or nearly cancelling roots)")
+            else:
+                why = (f"the best model with {ours} predicts the levels better than the best with {theirs} (a BIC of "
+                       "their one-step prediction errors over the same final stretch)")
+            words.append((which, f"{why[0].upper()}{why[1:]}, so the suggestion has {ours}."))
         return words
 
     def to_analysis(self) -> Analysis:
@@ -199,6 +209,8 @@ class Identification:
         decision = self.differencing
         cg = self.correlogram
         lags = tuple(cg.lags.tolist())
+        across = self.across_differencing_words()
+        seasonal = self.seasonal.summary()
         candidates = [
             c.to_candidate(criterion_value(c, self.criterion), keep_residuals=i < RESIDUALS_KEPT)
             for i, c in enumerate(self.candidates)
@@ -212,9 +224,9 @@ class Identification:
             differencing=DifferencingSummary(
                 d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
                 trend_stationary=decision.trend_stationary,
-                tests=tuple(decision.tests), explanation=(*decision.explanation, *self.across_differencing_words()),
+                tests=tuple(decision.tests), explanation=(*decision.explanation, *(w for _, w in across)),
             ),
-            seasonal=self.seasonal.summary(),
+            seasonal=replace(seasonal, explanation=(*seasonal.explanation, *(w for which, w in across if which == "D"))),
             acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
             pacf=Correlation(lags, tuple(cg.pacf.tolist()), tuple(cg.pacf_band.tolist())),
             seasonal_lags=tuple(seasonal_lags(best.model.period or self.seasonal.examined, len(lags))),
@@ -560,7 +572,7 @@ def _with_interventions(
         return first, []
     found = detect_interventions(y, leader.model, leader.estimate, prepared.index)
     shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in found)
-    if leader.model.d and first.decision.uncertain and not shifted:
+    if leader.model.d and leader.model.d - 1 in (first.decision.d, first.decision.alternative_d) and not shifted:
         # A level shift makes a stationary series look integrated (Perron 1989), and under a
         # differenced model it is only one step: when the unit-root tests disagree, the
         # stationary alternative is searched for a shift too. Fitted to an integrated series,

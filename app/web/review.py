@@ -55,7 +55,7 @@ SOURCE_WORDS = {
     "seasonal grid": "seasonal grid: every seasonal P, Q within the limits",
     "local search": "stepwise search: one step from the leading order",
     TREND_TOGGLE: "stepwise search: the leading order with the constant or drift toggled",
-    "alternative d": "the other differencing the tests left open",
+    "alternative d": "the other d the tests left open",
     "alternative D": "the other seasonal differencing the two strength measures left open",
 }
 FITTED_BY_HAND = "fitted by hand"

@@ -29,7 +29,13 @@ from app.core.confidence import (
 from app.core.fitting import CandidateFit, fit_candidate
 from app.core.likelihood import ArmaSpec
 from app.core.order import Order
-from app.core.ranking import likelihood_ratio_p, margin_to_rival, strongest_nesting_rival
+from app.core.ranking import (
+    common_level_bic,
+    likelihood_ratio_p,
+    margin_to_rival,
+    rank_across_differencing,
+    strongest_nesting_rival,
+)
 from app.core.vocabulary import Confidence
 
 
@@ -163,3 +169,23 @@ def test_a_clean_suggestion_fitted_on_too_few_observations_is_not_firm(fits, nob
     if not firm:
         assert score.reasons == [short_series_doubt(lead)]
         assert f"{nobs} observations" in score.reasons[0] and f"needs {MIN_FIRM_LENGTH}" in score.reasons[0]
+
+
+def test_groups_of_different_seasonal_differences_are_compared_after_the_seasonal_start_up(fits):
+    # Two groups whose errors agree from the second season of the common stretch on, but the
+    # seasonally differenced one carries its filter's start-up (larger errors) in the first
+    # season: compared over the whole stretch it loses, after its start-up it wins (the BIC of
+    # app.core.ranking.common_level_bic, one parameter fewer). The window is the common final
+    # stretch less the first season (rank_across_differencing's notes).
+    n, s = 120, 12
+    errors = np.random.default_rng(3).standard_normal(n)
+    plain_errors = 1.05 * errors
+    differenced_errors = errors[s:].copy()
+    differenced_errors[:s] *= 2.0
+    plain = replace(fits["wn"], model=Order(1, 1, 0, 1, 0, 0, s), residuals=plain_errors, n_params=4)
+    differenced = replace(fits["wn"], model=Order(0, 1, 1, 0, 1, 1, s), residuals=differenced_errors, n_params=3)
+    ranked = rank_across_differencing({(0, 1): [plain], (1, 1): [differenced]})
+    assert ranked[0] is differenced
+    m = differenced_errors.size - 1
+    assert common_level_bic(differenced, m) > common_level_bic(plain, m), "precondition: with the start-up in it, D = 1 loses"
+    assert common_level_bic(differenced, m - s) < common_level_bic(plain, m - s)

@@ -130,7 +130,8 @@ def test_an_open_seasonal_difference_is_searched_both_ways_and_the_fits_decide()
     analysis = found.to_analysis()
     assert analysis.seasonal.D == found.suggested.model.D, "the summary names the D the suggestion has"
     lead = found.suggested.model
-    assert any(f"suggestion has D = {lead.D}, d = {lead.d}" in line for line in analysis.differencing.explanation)
+    for explanation in (analysis.differencing.explanation, analysis.seasonal.explanation):
+        assert any(f"suggestion has D = {lead.D}, d = {lead.d}" in line for line in explanation)
 
 
 @pytest.mark.parametrize("seed", range(5))
