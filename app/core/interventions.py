@@ -246,6 +246,14 @@ def _fit(y: np.ndarray, model: Order, columns: list[np.ndarray], start: np.ndarr
     return fit_arma(difference(y, model), model.arma_spec(), design, [start] if start.size else [])
 
 
+def identifiable(y: np.ndarray, model: Order, kind: InterventionKind, position: int) -> bool:
+    """Whether the effect of ``kind`` at ``position`` reaches a point of the differenced series
+    that is observed, so that the exact likelihood can size it: under one difference, an
+    outlier on a lone point between two missing ones leaves nothing but missing differences."""
+    reached = difference(effect_column(kind, position, y.size), model) != 0.0
+    return bool(np.any(reached & ~np.isnan(difference(y, model))))
+
+
 def detect_interventions(y: np.ndarray, model: Order, estimate: ArmaFit, index: pd.Index) -> list[Intervention]:
     """Find the outliers, level shifts and temporary changes of ``y`` under ``model`` and
     estimate them jointly with it (the module notes give the procedure).
@@ -281,12 +289,14 @@ def detect_interventions(y: np.ndarray, model: Order, estimate: ArmaFit, index: 
     room = max(1, int(MAX_SHARE * y.size))
     missing = np.isnan(y)
     # The residual filter needs every point: a gap is bridged by interpolation to locate the
-    # interventions (none is placed in a gap); the joint fit then uses the exact likelihood.
+    # interventions (none is placed in a gap, nor where only bridged points would size it); the
+    # joint fit then uses the exact likelihood.
     located = pd.Series(y).interpolate(limit_direction="both").to_numpy() if missing.any() else y
     found: list[_Found] = []
     fit = estimate
     for _ in range(ROUNDS):
-        new = [f for f in _detect(located, model, fit, threshold, room) if not missing[f.position]]
+        new = [f for f in _detect(located, model, fit, threshold, room)
+               if not missing[f.position] and (not missing.any() or identifiable(y, model, f.kind, f.position))]
         if {(f.kind, f.position) for f in new} == {(f.kind, f.position) for f in found}:
             break
         found = new
@@ -311,6 +321,10 @@ def sized_interventions(
     if not placed:
         return []
     y = np.asarray(y, dtype=float)
+    for position, kind in placed:
+        if not identifiable(y, model, kind, position):
+            raise ValueError(f"the {kind.words()} at {moment(index[position])} reaches no observed point once the series "
+                             f"is differenced for {model.label()} (the points around it are missing), so its size cannot be estimated")
     fit = _fit(y, model, [effect_column(kind, position, y.size) for position, kind in placed],
                np.zeros(0) if start is None else start)
     n_trend = len(trend_design(y.size, model)[0])
@@ -330,14 +344,21 @@ def estimate_jointly(
     least significant whose ``|t|`` is below :func:`detection_threshold`, repeat until all pass.
 
     ``t`` comes from the generalised least-squares standard error of the joint fit
-    (:func:`sized_interventions`; the stage I statistic where there is none). ``start`` is a start for the optimiser (the model's optimum on the
-    adjusted series). Returns the interventions kept, in time order, with their joint sizes.
+    (:func:`sized_interventions`; the stage I statistic where there is none). ``start`` is a
+    start for the optimiser (the model's optimum on the adjusted series). A set the joint fit
+    cannot estimate (columns that the missing points around them leave nearly collinear) loses
+    its weakest member by the stage I statistic, as a set with a weak member does. Returns the
+    interventions kept, in time order, with their joint sizes.
     """
     y = np.asarray(y, dtype=float)
     threshold = detection_threshold(y.size)
     kept = sorted(found, key=lambda f: f.position)
     while kept:
-        sized = sized_interventions(y, model, [(f.position, f.kind) for f in kept], index, start)
+        try:
+            sized = sized_interventions(y, model, [(f.position, f.kind) for f in kept], index, start)
+        except (np.linalg.LinAlgError, ValueError):
+            kept.pop(int(np.argmin([abs(f.t_stat) for f in kept])))
+            continue
         t = np.array([s.t_stat if np.isfinite(s.t_stat) else f.t_stat for s, f in zip(sized, kept)])
         weakest = int(np.argmin(np.abs(t)))
         if abs(t[weakest]) > threshold:

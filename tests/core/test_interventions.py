@@ -21,8 +21,10 @@ from app.core.interventions import (
     effect_column,
     effect_statistics,
     estimate_jointly,
+    identifiable,
     pi_weights,
     residual_response,
+    sized_interventions,
 )
 from app.core.order import Order
 from app.core.seasonality import SEASONAL_STRENGTH_THRESHOLD, choose_seasonal_differencing
@@ -205,3 +207,33 @@ def test_a_shift_read_under_the_stationary_alternative_must_predict_better():
         y = _ar1(rng, 100, 0.5) + 5.0 * effect_column(InterventionKind.LEVEL_SHIFT, 50, 100)
         shifted.append(identify_series(pd.Series(y), "ar-shift"))
     assert np.mean([r.suggested.model.d == 0 for r in shifted]) >= 0.75
+
+
+def _spike_between_two_gaps() -> pd.Series:
+    """A daily random walk with a spike on a point whose neighbours are both missing: once
+    differenced, no observed difference reaches that point."""
+    rng = np.random.default_rng(1)
+    y = np.cumsum(rng.standard_normal(200)) + 50
+    y[100] += 15
+    y[[99, 101]] = np.nan
+    return pd.Series(y, index=pd.date_range("2020-01-01", periods=200, freq="D"))
+
+
+def test_an_effect_no_observed_difference_reaches_is_not_identifiable():
+    y = _spike_between_two_gaps().to_numpy()
+    walk = Order(0, 1, 0)
+    assert not identifiable(y, walk, InterventionKind.ADDITIVE, 100)
+    assert not identifiable(y, walk, InterventionKind.LEVEL_SHIFT, 100)  # differenced, a step is a pulse there
+    assert identifiable(y, walk, InterventionKind.TEMPORARY_CHANGE, 100)  # its decay reaches the points after the gap
+    assert identifiable(y, Order(0, 0, 0, trend="c"), InterventionKind.ADDITIVE, 100)  # observed in levels
+    with pytest.raises(ValueError, match="reaches no observed point"):
+        sized_interventions(y, walk, [(100, InterventionKind.ADDITIVE)], _spike_between_two_gaps().index)
+
+
+def test_interventions_the_gaps_make_inestimable_are_dropped_not_raised():
+    # Stage I on the bridged series found two temporary changes beside the gaps; their
+    # differenced columns are nearly collinear on the observed points and the joint fit failed
+    # with a singular matrix, which ended the whole identification.
+    found = identify_series(_spike_between_two_gaps(), "lone-spike")
+    assert all(identifiable(_spike_between_two_gaps().to_numpy(), found.suggested.model, i.kind, i.position)
+               for i in found.interventions)
