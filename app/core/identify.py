@@ -435,9 +435,9 @@ def search_candidates(
             break
         search.fit(fresh)
     if not search.fitted:
-        raise SeriesProblem(
-            series_id, "no candidate model could be fitted: " + "; ".join(search.failed[:3]), flag="no_fit"
-        )
+        why = "; ".join(search.failed[:3]) or (f"with d = {d}" + (f" and D = {D}" if D else "")
+                                               + " too few observed values are left for any order")
+        raise SeriesProblem(series_id, "no candidate model could be fitted: " + why, flag="no_fit")
     screened = sorted(search.screened_out.values(), key=lambda m: m.label())
     return SearchResult(best_term_per_order(list(search.fitted.values()), options.criterion), cg, w, words + search.failed, screened)
 
@@ -546,14 +546,25 @@ def _search_on(
     setups = kept if kept is not None else _differencing(series_id, y, period, period_words)
     first_D = next(iter(setups))
     searches: dict[tuple[int, int], SearchResult] = {}
+    unfitted: list[SeriesProblem] = []
     for D, (seasonal, decision) in setups.items():
         ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
         for d in ds:
-            found = search_candidates(series_id, y, d, seasonal, decision, options)
+            try:
+                found = search_candidates(series_id, y, d, seasonal, decision, options)
+            except SeriesProblem as problem:
+                # More differencing can leave a short series with gaps too little to fit; the
+                # other differencing left open still decides.
+                if problem.flag != "no_fit":
+                    raise
+                unfitted.append(problem)
+                continue
             marks = (["alternative d"] if d != decision.d else []) + (["alternative D"] if D != first_D else [])
             for f in found.fits:
                 f.source = f.source + marks
             searches[(D, d)] = found
+    if not searches:
+        raise unfitted[0]
     ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
     return _Identified(setups, searches, ranked)
 

@@ -371,8 +371,7 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     elif above:
         result.D = 1
         result.explanation.append(f"{comparison} -> differenced once at lag {period}.")
-        result.stability = canova_hansen(filled, period)
-        result.explanation.append(result.stability.words())
+        _test_stability(result, filled, period)
     elif (plain := seasonal_strength(filled, period, robust=False).seasonal) > threshold:
         result.alternative_D = 1
         result.flags.append(Flag.UNCERTAIN_SEASONAL_DIFFERENCING)
@@ -381,11 +380,23 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
             f"uncertain. Candidates are searched without and with a difference at lag {period} (without first); "
             "the fits decide between them."
         )
-        result.stability = canova_hansen(filled, period)
-        result.explanation.append(result.stability.words())
+        _test_stability(result, filled, period)
     else:
         result.explanation.append(f"{comparison} -> no seasonal differencing at lag {period}.")
     return result
+
+
+def _test_stability(result: SeasonalDifferencing, filled: np.ndarray, period: int) -> None:
+    """The Canova-Hansen test beside a seasonal difference the strength calls for or leaves open,
+    its words added to ``result``'s; none where the first differences repeat their season so
+    nearly exactly that the long-run covariance of the test's scores is singular."""
+    try:
+        result.stability = canova_hansen(filled, period)
+    except np.linalg.LinAlgError:
+        result.explanation.append("The Canova-Hansen test of seasonal stability cannot be computed: the first differences "
+                                  "repeat their seasonal pattern so nearly exactly that its long-run covariance is singular.")
+        return
+    result.explanation.append(result.stability.words())
 
 
 def _beside(value: float, threshold: float) -> str:

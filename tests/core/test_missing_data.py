@@ -330,3 +330,19 @@ def test_order_recovered_on_series_with_isolated_gaps(process):
         rate = recovery_rate(process, range(20), lambda f, xs: pool.map(f, xs))
     print(f"{process}: true order suggested in {rate:.0%} of 20 runs with 20% isolated gaps")
     assert rate >= 0.8
+
+
+@pytest.mark.parametrize("values", [
+    # D left open; with D = 1 and d = 1 too few observed values are left for any order
+    [-2.996, -3.283, -0.604, 0.731, -1.543, 0.381, 4.076, 4.139, 2.247, 2.9, 4.397, 4.913, np.nan, np.nan, np.nan],
+    # D and d left open; the differencing with most gaps cannot fit even its smallest order
+    [0.798, 3.217, 3.113, 2.223, np.nan, np.nan, np.nan, -0.136, -0.499, -0.09, np.nan, np.nan, np.nan,
+     2.519, 2.625, -0.677, 0.866, -0.04, 0.458],
+], ids=["nothing to fit", "fits fail"])
+def test_a_differencing_left_open_that_cannot_be_fitted_does_not_end_the_analysis(values):
+    # Short quarterly series with runs of missing values (found by a fuzzing session): the open
+    # (D, d) whose differences leave too little is dropped and the others decide.
+    series = pd.Series(values, index=pd.date_range("2000-01-01", periods=len(values), freq="QS"))
+    found = identify_series(series, "short-with-gaps")
+    assert found.candidates and all(c.loglik == c.loglik for c in found.candidates)
+

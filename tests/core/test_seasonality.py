@@ -307,3 +307,20 @@ def test_no_seasonal_structure_in_white_noise():
 def test_seasonal_structure_needs_the_seasonal_lag():
     with pytest.raises(ValueError, match="seasonal lag 12"):
         seasonal_structure_present(np.zeros(10), 0.1, 12)
+
+
+@pytest.mark.parametrize("values, freq", [
+    # a week repeated exactly, one level step: the two STL fits disagree (robust 0.22, ordinary 0.65)
+    (np.r_[np.tile([-1.5, 0.5, -0.3, -5.0, 1.0, 0.3, -1.9], 4)[:8], np.tile([-1.5, 0.5, -0.3, -5.0, 1.0, 0.3, -1.9], 4)[8:22] + 20.0], "D"),
+    # three years of one quarterly pattern, then two points off it: the strength calls for D = 1
+    (np.r_[np.tile([10.20725047825694, 11.3382332160001, 8.665868401396164, 9.788647904346796], 3),
+           9.734447414349859, 10.179586345842512], "QS"),
+], ids=["uncertain D", "D = 1"])
+def test_a_season_repeated_almost_exactly_is_analysed_without_its_stability_test(values, freq):
+    # The Canova-Hansen scores then have a singular long-run covariance (found by a fuzzing
+    # session): the test is left out in words, and the series is still identified.
+    series = pd.Series(values, index=pd.date_range("2024-01-01", periods=len(values), freq=freq))
+    decision = choose_seasonal_differencing(series.to_numpy(), default_period(series.index.freqstr))
+    assert 1 in decision.choices and decision.stability is None
+    assert any("Canova-Hansen test of seasonal stability cannot be computed" in line for line in decision.explanation)
+    assert identify_series(series, "near-periodic").candidates
