@@ -514,11 +514,11 @@ class _Identified:
         return self.setups.get(self.ranked[0].model.D) or next(iter(self.setups.values()))
 
 
-def _differencing(series_id: str, y: np.ndarray, period: int | None, period_words: list[str]
-                  ) -> dict[int, tuple[SeasonalSetup, DifferencingDecision]]:
+def _differencing(series_id: str, y: np.ndarray, period: int | None, period_words: list[str],
+                  chosen: SeasonalDifferencing | None) -> dict[int, tuple[SeasonalSetup, DifferencingDecision]]:
     """The seasonal setup and the ordinary differencing decision of ``y`` for each D its
-    seasonal differencing decision leaves open, the decision's own D first."""
-    chosen = choose_seasonal_differencing(y, period) if period else None
+    seasonal differencing decision ``chosen`` (None without a period) leaves open, the
+    decision's own D first."""
     setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]] = {}
     for D in chosen.choices if chosen else (0,):
         differencing = replace(chosen, D=D) if chosen else None
@@ -543,7 +543,8 @@ def _search_on(
 
     Every (D, d) an uncertain decision leaves open is searched, and the groups are ranked by
     how well their leaders predict the levels (:func:`app.core.ranking.rank_across_differencing`)."""
-    setups = kept if kept is not None else _differencing(series_id, y, period, period_words)
+    setups = kept if kept is not None else _differencing(
+        series_id, y, period, period_words, choose_seasonal_differencing(y, period) if period else None)
     first_D = next(iter(setups))
     searches: dict[tuple[int, int], SearchResult] = {}
     unfitted: list[SeriesProblem] = []
@@ -614,8 +615,9 @@ def _with_interventions(
     for _ in range(2):
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
         cleaned = adjusted(y, current)
-        same = not shifted and not _season_moves(cleaned, period, first.setups)
-        differencing = first.setups if same else None
+        chosen = choose_seasonal_differencing(cleaned, period) if period else None
+        same = not shifted and (chosen is None or chosen.choices == tuple(first.setups))
+        differencing = first.setups if same else _differencing(prepared.series_id, cleaned, period, period_words, chosen)
         again = _search_on(prepared.series_id, cleaned, period, period_words, options, differencing)
         best = again.ranked[0]
         start = best.estimate.unconstrained if best.estimate is not None else np.zeros(0)
@@ -655,11 +657,6 @@ def _shift_predicts_better(y: np.ndarray, leader: CandidateFit, found: list[Inte
     present = ~np.isnan(ours.residuals[-m:]) & ~np.isnan(theirs.residuals[-m:])
     return (common_level_bic(theirs, m, present, 2 * len(seen))
             < common_level_bic(ours, m, present, 2 * len(found)))
-
-
-def _season_moves(y: np.ndarray, period: int | None, setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]]) -> bool:
-    """Whether the seasonal differencing of ``y`` (an adjusted series) leaves other D open than ``setups`` searched."""
-    return bool(period) and choose_seasonal_differencing(y, period).choices != tuple(setups)
 
 
 def _one_difference_less(model: Order) -> Order:
