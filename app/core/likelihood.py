@@ -200,7 +200,7 @@ class ArmaFit:
     ``unconstrained`` is the optimum in the optimiser's coordinates, a start for a larger order
     (:func:`nested_start`). ``inputs`` are the series the optimiser filtered (the one fitted, less
     its least-squares fit on the design, :func:`_inputs`), the design, and those least-squares
-    coefficients.
+    coefficients; ``design_information`` is ``X' Sigma^-1 X`` at the optimum (``sigma2`` units).
     """
 
     spec: ArmaSpec
@@ -214,6 +214,7 @@ class ArmaFit:
     converged: bool
     unconstrained: np.ndarray
     inputs: tuple[np.ndarray, np.ndarray, np.ndarray] = field(repr=False, compare=False)
+    design_information: np.ndarray = field(repr=False, compare=False)
 
     @cached_property
     def standard_errors(self) -> np.ndarray:
@@ -235,12 +236,13 @@ class ArmaFit:
         the square roots of the diagonal of ``sigma2 (X' Sigma^-1 X)^-1``, ``Sigma`` the
         covariance of the ARMA errors over ``sigma2``.
 
-        ``X' Sigma^-1 X`` is the weighted cross product of the design's one-step prediction
-        errors, which one pass of the filter gives. In a Gaussian model with mean ``X beta``
+        ``X' Sigma^-1 X`` (:attr:`design_information`) is the weighted cross product of the
+        design's one-step prediction errors, which the filter pass at the optimum already gave.
+        In a Gaussian model with mean ``X beta``
         and a covariance that depends on other parameters, the information matrix is block
         diagonal between ``beta`` and those parameters, so this is the ``beta`` block of the
         inverse information, the errors a regression with ARMA errors reports (Magnus 1978;
-        Brockwell & Davis 2002, §6.6, from memory). It costs one filter pass against the
+        Brockwell & Davis 2002, §6.6, from memory). It costs one small inverse against the
         ``2 k^2`` likelihood evaluations of :attr:`standard_errors`, which estimate the same
         block from the observed Hessian: :mod:`app.core.interventions` takes its ``t`` from these.
 
@@ -251,14 +253,13 @@ class ArmaFit:
         .. [2] Brockwell, P.J. & Davis, R.A. (2002). *Introduction to Time Series and
            Forecasting*, 2nd ed., Springer.
         """
-        z, x, _ = self.inputs
-        if not x.shape[1]:
+        columns = self.design_information.shape[0]
+        if not columns:
             return np.zeros(0)
-        _, _, s_xx, _, _ = _filter(z, x, -self.ar_polynomial[1:], self.ma_polynomial[1:], np.zeros((0, 0)))
         try:
-            variances = self.sigma2 * np.diag(np.linalg.inv(s_xx))
+            variances = self.sigma2 * np.diag(np.linalg.inv(self.design_information))
         except np.linalg.LinAlgError:
-            return np.full(x.shape[1], np.nan)
+            return np.full(columns, np.nan)
         return np.where(variances > 0, np.sqrt(np.abs(variances)), np.nan)
 
 
@@ -1097,7 +1098,7 @@ def _finished(z: np.ndarray, x: np.ndarray, offset: np.ndarray, spec: ArmaSpec, 
     return ArmaFit(
         spec=spec, coefficients=coefficients, beta=beta + offset, sigma2=float((s_ww - s_xw @ beta) / observed),
         loglik=float(loglik), residuals=residuals, ar_polynomial=np.r_[1.0, -ar], ma_polynomial=np.r_[1.0, ma],
-        converged=converged, unconstrained=u, inputs=(z, x, offset),
+        converged=converged, unconstrained=u, inputs=(z, x, offset), design_information=s_xx,
     )
 
 
