@@ -5,7 +5,9 @@ and 9): prepare the series; fix the seasonal period and decide on a variance-sta
 transform; choose the seasonal differencing D and then d; read the ACF and PACF of the
 differenced series; propose candidate orders from their patterns at the low lags, at the
 seasonal lags and from the extended ACF; fit every candidate by maximum likelihood, check its
-residuals; rank; say how far the suggestion can be trusted.
+residuals; rank; say how far the suggestion can be trusted. Where the unit-root tests leave
+the differencing open, or where the fits of the d they chose still hold a unit root
+(:func:`unit_root_fit`), every differencing in question is searched and the fits decide.
 
 Candidate search. The orders read from the correlograms and their +-1 neighbours are fitted
 in two stages when the model is seasonal: first every seasonal (P, Q) up to the limits
@@ -52,7 +54,7 @@ from app.core.defaults import AUTO_PERIOD
 from app.core.demand import classify_demand
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError, SeriesProblem
-from app.core.fitting import CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
+from app.core.fitting import NEAR_UNIT_ROOT, CandidateFit, ScreenedCandidate, factor_roots, fit_candidate, screen_candidate
 from app.core.flat_runs import longest_flat_run
 from app.core.interventions import adjusted, detect_interventions, estimate_jointly
 from app.core.longer_cycle import longer_cycle
@@ -78,7 +80,7 @@ from app.core.seasonality import (
     seasonal_structure_present,
     validate_period,
 )
-from app.core.stationarity import DifferencingDecision, choose_differencing
+from app.core.stationarity import MAX_D, DifferencingDecision, choose_differencing
 from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform
 from app.core.vocabulary import Flag, InterventionKind
 
@@ -86,6 +88,7 @@ DRIFT_Z = 1.96
 RESIDUALS_KEPT = 3
 LOCAL_SEARCH_ROUNDS = 2
 TREND_TOGGLE = "deterministic term toggled"
+FURTHER_DIFFERENCE = "further difference"
 MIN_RESIDUAL_DF = 8
 SCREEN_SLACK = 2.0
 SCREEN_MARGIN = FIRM_MARGIN
@@ -193,6 +196,8 @@ class Identification:
             if other is None:
                 continue
             ours, theirs = name.format(*lead), name.format(*other)
+            if which == "d":
+                words += [("d", w) for w in self._further_difference_words(leaders, lead, other)]
             if is_demoted(leaders[other]) and not is_demoted(leaders[lead]):
                 why = (f"the best model with {theirs}, {leaders[other].model.label()}, fails a check that demotes it "
                        "(clear residual autocorrelation, no convergence or nearly cancelling roots)")
@@ -201,6 +206,21 @@ class Identification:
                        "their one-step prediction errors over the same final stretch)")
             words.append((which, f"{why[0].upper()}{why[1:]}, so the suggestion has {ours}."))
         return words
+
+    def _further_difference_words(self, leaders: dict[tuple[int, int], CandidateFit], *keys: tuple[int, int]) -> list[str]:
+        """Why a d beyond the tests' was searched (:func:`unit_root_fit`), when it was."""
+        further = next((k for k in keys if FURTHER_DIFFERENCE in leaders[k].source), None)
+        if further is None:
+            return []
+        below = (further[0], further[1] - 1)
+        group = [c for c in self.candidates if (c.model.D, c.model.d) == below]
+        fit = unit_root_fit(group, self.criterion)
+        root = root_at_one(fit) if fit is not None else None
+        if fit is None or root is None:
+            return []
+        return [f"{fit.model.label()} fits the series with d = {below[1]} at least as well as the best model there, and its "
+                f"autoregressive factor has a root at {root.real:.3f}, next to 1: a unit root the differencing left in, so "
+                f"d = {further[1]} was searched as well."]
 
     def to_analysis(self) -> Analysis:
         """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
@@ -567,7 +587,61 @@ def _search_on(
     if not searches:
         raise unfitted[0]
     ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
+    D, d = next(key for key, found in searches.items() if any(f is ranked[0] for f in found.fits))
+    if d < MAX_D and (D, d + 1) not in searches and unit_root_fit(rank_within_d(searches[(D, d)].fits, options.criterion), options.criterion):
+        seasonal, decision = setups[D]
+        try:
+            further = search_candidates(series_id, y, d + 1, seasonal, decision, options)
+        except SeriesProblem as problem:
+            if problem.flag != "no_fit":
+                raise
+        else:
+            for f in further.fits:
+                f.source = f.source + [FURTHER_DIFFERENCE]
+            searches[(D, d + 1)] = further
+            ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
     return _Identified(setups, searches, ranked)
+
+
+def unit_root_fit(group: list[CandidateFit], criterion: str) -> CandidateFit | None:
+    """The first fit of a ranked ``group`` of one differencing (its leader first) that scores at
+    least as well as the leader and whose ordinary AR factor has a root within
+    ``NEAR_UNIT_ROOT - 1`` of ``z = 1``; None if there is none.
+
+    Such a root is a unit root the differencing left in: the order that fits the differences
+    best is in effect integrated once more, and one more difference is the Box-Jenkins remedy
+    (an estimated autoregressive factor near ``1 - B`` calls for differencing, not for an AR
+    coefficient of 1). Demoted fits count: an ARIMA(1,1,1) with drift whose AR root sits at 1
+    and whose MA root nearly cancels it is demoted for the cancellation, yet it is the trace of
+    ARIMA(0,2,1). The search with one more difference is then ranked beside the others by how
+    well its leader predicts the levels (:func:`app.core.ranking.rank_across_differencing`), so
+    the root only opens the question.
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, ch. 6 (identification: an
+       autoregressive operator with a root on the unit circle is a difference; chapter from memory).
+    """
+    if not group:
+        return None
+    bar = criterion_value(group[0], criterion)
+    for fit in sorted(group, key=lambda f: criterion_value(f, criterion)):
+        if criterion_value(fit, criterion) > bar:
+            break
+        if root_at_one(fit) is not None:
+            return fit
+    return None
+
+
+def root_at_one(fit: CandidateFit) -> complex | None:
+    """The root of ``fit``'s ordinary AR factor within ``NEAR_UNIT_ROOT - 1`` of ``z = 1``
+    (the nearest, if several), or None."""
+    if fit.estimate is None:
+        return None
+    roots = factor_roots(fit.estimate.spec, fit.estimate.coefficients)[0]
+    near = roots[np.abs(roots - 1.0) < NEAR_UNIT_ROOT - 1.0]
+    return complex(near[np.argmin(np.abs(near - 1.0))]) if near.size else None
 
 
 def _with_interventions(
@@ -701,7 +775,7 @@ def _finished(
     flags = list(prepared.flags) + seasonal.flags
     if transform.kind != "none":
         flags.append(Flag.TRANSFORMED)
-    if decision.uncertain:
+    if decision.uncertain or any(FURTHER_DIFFERENCE in f.source for f in ranked):
         flags.append(Flag.UNCERTAIN_DIFFERENCING)
     if decision.trend_stationary and best.model.d == 0:
         flags.append(Flag.TREND_STATIONARY)

@@ -104,7 +104,7 @@ FLAG_WORDS: dict[str, str] = {
     Flag.RESIDUAL_AUTOCORRELATION: "the residuals are still autocorrelated (Ljung-Box)",
     Flag.NEAR_UNIT_ROOT: "a root lies near the unit circle",
     Flag.REDUNDANT_ROOTS: "AR and MA roots nearly cancel: the order may be too large",
-    Flag.UNCERTAIN_DIFFERENCING: "the tests left d open; the fits of the candidates chose it",
+    Flag.UNCERTAIN_DIFFERENCING: "the tests left d open, or a fit showed a unit root they left in; the fits of the candidates chose d",
     Flag.UNCERTAIN_SEASONAL_DIFFERENCING: "the two seasonal strength measures left D open; the fits of the candidates chose it",
     Flag.TREND_STATIONARY: "stationary around a trend rather than a unit root",
     Flag.TOO_FEW_SEASONS: "fewer than three full seasons: the seasonal part is read from little data",

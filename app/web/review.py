@@ -18,7 +18,7 @@ from app.core.correlogram import correlogram
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import SeriesProblem
 from app.core.fitting import difference
-from app.core.identify import TREND_TOGGLE
+from app.core.identify import FURTHER_DIFFERENCE, TREND_TOGGLE
 from app.core.prepare import PreparedSeries, prepare_series
 from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
@@ -57,6 +57,7 @@ SOURCE_WORDS = {
     TREND_TOGGLE: "stepwise search: the leading order with the constant or drift toggled",
     "alternative d": "the other d the tests left open",
     "alternative D": "the other seasonal differencing the two strength measures left open",
+    FURTHER_DIFFERENCE: "one more difference: a close fit with one fewer has an AR root at 1",
 }
 FITTED_BY_HAND = "fitted by hand"
 # A ticked intervention travels in the decision form as "TIMESTAMP|KIND".
