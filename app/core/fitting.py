@@ -202,6 +202,19 @@ def difference(y: np.ndarray, model: Order) -> np.ndarray:
     return np.diff(w, n=d, axis=0) if d else w
 
 
+def likelihood_points(y: np.ndarray, model: Order) -> np.ndarray:
+    """The observations of ``y`` that a fit of ``model`` has a likelihood term for; NaN elsewhere.
+
+    The likelihood of the differenced series is conditional on the first ``d + sD`` observations,
+    and a difference that reaches a missing point is missing (:func:`difference`), so an
+    observation whose difference is missing is conditioned on too. What is returned lines up
+    with the differenced series: ``y`` after its first ``d + sD`` points.
+    """
+    points = np.array(np.asarray(y, dtype=float)[model.lost_to_differencing:], dtype=float)
+    points[np.isnan(difference(y, model))] = np.nan
+    return points
+
+
 def trend_design(n: int, model: Order) -> tuple[list[str], np.ndarray | None]:
     """Names and columns of the deterministic terms on the differenced scale: a constant
     (``const``) and a time index ``1..n`` (``drift``) in levels, differenced like the series;

@@ -886,7 +886,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     words: list[str] = []
     while True:
         leader = found.suggested.model
-        choice = choose_transform(prepared.values, period, leader.label(), leader.lost_to_differencing, found.transform,
+        choice = choose_transform(prepared.values, period, leader, found.transform,
                                   _loglik_on(prepared.values, found.transform, found.suggested), first)
         words += choice.explanation
         key = str(choice.to_json())
@@ -911,8 +911,8 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         # again on the series with the interventions taken out, under the leader found there.
         cleaned = invert_transform(adjusted(y, interventions), found.transform)
         cleaned_leader = adjusted_search.ranked[0]
-        choice = choose_transform(cleaned, period, cleaned_leader.model.label(), cleaned_leader.model.lost_to_differencing,
-                                  found.transform, _loglik_on(cleaned, found.transform, cleaned_leader), first)
+        choice = choose_transform(cleaned, period, cleaned_leader.model, found.transform,
+                                  _loglik_on(cleaned, found.transform, cleaned_leader), first)
         if choice.to_json() != found.transform.to_json():
             words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
                       "transforms were weighed again:", *choice.explanation,

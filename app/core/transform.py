@@ -10,7 +10,8 @@ is kept only when it lowers the AIC of the original data clearly (:data:`CLEAR_A
 identifies the transformed series again. Missing points (NaN) stay missing through a transform;
 Guerrero's lambda, which needs a complete series, is estimated on the series with its gaps
 filled by linear interpolation (:func:`app.core.prepare.interpolate_gaps`), and the log-Jacobian
-sums over the observed points. The Box-Cox transform with parameter lambda is
+sums over the observations the fit's likelihood covers, which leaves out those whose difference
+reaches a gap (:func:`log_jacobian`). The Box-Cox transform with parameter lambda is
 ``(x**lambda - 1) / lambda``, and ``log(x)`` at lambda = 0 (Box & Cox 1964).
 
 References
@@ -34,6 +35,8 @@ from scipy.optimize import minimize_scalar
 from scipy.special import boxcox, inv_boxcox
 
 from app.core.errors import OrderError
+from app.core.fitting import likelihood_points
+from app.core.order import Order
 from app.core.prepare import interpolate_gaps
 from app.core.transform_choice import TransformChoice
 
@@ -123,14 +126,16 @@ def simple_lambda(lam: float) -> float:
     return float(min(max(value, LAMBDA_BOUNDS[0]), LAMBDA_BOUNDS[1])) + 0.0  # + 0.0: no -0.0
 
 
-def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
-    """``sum log g'(x_t)`` for the transform ``g``: what the log-likelihood of transformed data
-    gains to become that of the original data.
+def log_jacobian(x: np.ndarray, transform: TransformChoice, model: Order) -> float:
+    """``sum log g'(x_t)`` for the transform ``g``: what the log-likelihood of a fit of ``model``
+    to the transformed series ``x`` gains to become that of the original data.
 
-    ``g'(x) = x**(lambda - 1)`` for Box-Cox (``1/x`` for the log, lambda = 0), 1 for none. Pass
-    the observations the likelihood covers: for a model differenced ``d + sD`` times, those
-    after the first ``d + sD`` (the likelihood is conditional on them). Missing points (NaN)
-    are left out of the sum.
+    ``g'(x) = x**(lambda - 1)`` for Box-Cox (``1/x`` for the log, lambda = 0), 1 for none. The
+    sum runs over the observations the fit's likelihood covers
+    (:func:`app.core.fitting.likelihood_points`): after the first ``d + sD``, on which it is
+    conditional, and without those whose difference is missing because it reaches a gap.
+    Counting those too would credit every transform with ``lambda > 1`` and charge the log
+    for observations the likelihood never saw.
 
     References
     ----------
@@ -138,7 +143,7 @@ def log_jacobian(x: np.ndarray, transform: TransformChoice) -> float:
     """
     if transform.kind == "none" or transform.lam is None:  # lam is None only for none
         return 0.0
-    return float((transform.lam - 1.0) * np.nansum(np.log(np.asarray(x, dtype=float))))
+    return float((transform.lam - 1.0) * np.nansum(np.log(likelihood_points(x, model))))
 
 
 def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[list[TransformChoice], list[str]]:
@@ -168,7 +173,7 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
 
 
 def choose_transform(
-    x: np.ndarray, period: int | None, order_label: str, lost: int, scale: TransformChoice,
+    x: np.ndarray, period: int | None, model: Order, scale: TransformChoice,
     loglik_on: Callable[[TransformChoice], float], first: int = 1,
 ) -> TransformChoice:
     """No transform, the log, or Box-Cox, by the likelihood of the original data under one order.
@@ -176,11 +181,11 @@ def choose_transform(
     Rule (the threshold tied to Burnham & Anderson's rule of thumb):
 
     1. only a strictly positive series is transformed;
-    2. the order ``order_label``, the leader of the identification on the ``scale`` series, is
+    2. the order ``model``, the leader of the identification on the ``scale`` series, is
        fitted with no transform and with each of :func:`transform_alternatives`
-       (``loglik_on``); the log-Jacobian over the observations its likelihood covers (those
-       after the first ``lost`` = d + sD) is added, which makes the log-likelihoods those of
-       the same original data (Box & Cox 1964, §3), so they can be compared;
+       (``loglik_on``); the log-Jacobian over the observations its likelihood covers
+       (:func:`log_jacobian`) is added, which makes the log-likelihoods those of the same
+       original data (Box & Cox 1964, §3), so they can be compared;
     3. simplest first (none, log, square root, Guerrero's lambda), a transform replaces the
        choice so far only when it lowers the AIC of the original data by at least
        :data:`CLEAR_AIC_DROP` (10), lambda counted as one estimated parameter of any
@@ -196,10 +201,8 @@ def choose_transform(
         The series as observed.
     period : int, optional
         Seasonal period for Guerrero's subseries; None for a non-seasonal series.
-    order_label : str
-        The order compared under, for the words.
-    lost : int
-        Observations the order's differencing uses up (``d + sD``).
+    model : Order
+        The order compared under.
     scale : TransformChoice
         The transform of the series the order was identified on, for the words.
     loglik_on : callable
@@ -224,18 +227,22 @@ def choose_transform(
     alternatives, words = transform_alternatives(values, period)
     scored: list[tuple[TransformChoice, float]] = []
     for choice in [TransformChoice("none"), *alternatives]:
-        loglik = loglik_on(choice) + log_jacobian(values[lost:], choice)
+        loglik = loglik_on(choice) + log_jacobian(values, choice, model)
         if math.isfinite(loglik):
             scored.append((choice, loglik))
         else:
-            words.append(f"{order_label} could not be fitted on the {choice.name()} scale: not weighed.")
+            words.append(f"{model.label()} could not be fitted on the {choice.name()} scale: not weighed.")
     if not scored:
         return TransformChoice("none", explanation=[*words, "Nothing to compare: no transform."])
     on = "the series as observed" if scale.kind == "none" else f"the {scale.name()} scale"
+    lost = model.lost_to_differencing
+    covered = int(np.count_nonzero(~np.isnan(likelihood_points(values, model))))
+    span = f"observations {first + lost}-{first + values.size - 1}"
+    if covered < values.size - lost:
+        span += f", the {covered} of them whose differences are not missing"
     words.append(
-        f"Under {order_label}, the leader on {on}, the log-likelihoods of the original data (Jacobian of the "
-        f"transform included, observations {first + lost}-{first + values.size - 1}) are: "
-        + ", ".join(f"{c.name()} {ll:.1f}" for c, ll in scored) + "."
+        f"Under {model.label()}, the leader on {on}, the log-likelihoods of the original data (Jacobian of the "
+        f"transform included, {span}) are: " + ", ".join(f"{c.name()} {ll:.1f}" for c, ll in scored) + "."
     )
 
     def aic(choice: TransformChoice, loglik: float) -> float:
@@ -244,7 +251,7 @@ def choose_transform(
     best, best_loglik = scored[0]
     for choice, loglik in scored[1:]:
         drop = aic(best, best_loglik) - aic(choice, loglik)
-        words.append(_comparison_words(choice, loglik - best_loglik, drop, best, order_label))
+        words.append(_comparison_words(choice, loglik - best_loglik, drop, best, model.label()))
         if drop >= CLEAR_AIC_DROP:
             best, best_loglik = choice, loglik
     return TransformChoice(best.kind, best.lam, explanation=words)

@@ -60,10 +60,9 @@ AICC_MARGIN = 10.0
 def aicc_on_original_scale(aicc: float, prepared: PreparedSeries, model: Order, transform: TransformChoice) -> float:
     """The AICc of a fit on the ``transform`` scale, as the AICc of the original data.
 
-    The fit's likelihood is that of the observations after the first ``d + sD`` (conditional on
-    those), so the Jacobian runs over the same observations.
+    The Jacobian runs over the observations the fit's likelihood covers (:func:`log_jacobian`).
     """
-    return aicc - 2.0 * log_jacobian(prepared.values[model.lost_to_differencing:], transform)
+    return aicc - 2.0 * log_jacobian(prepared.values, transform, model)
 
 
 @dataclass

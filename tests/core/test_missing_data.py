@@ -29,7 +29,7 @@ from app.core.demand import classify_demand
 from app.core.fitting import difference, fit_candidate
 from app.core.identify import identify_series
 from app.core.likelihood import ArmaSpec, fit_arma, profile_loglik
-from app.core.order import Order
+from app.core.order import Order, validate_order
 from app.core.prepare import prepare_series
 from app.core.residual_outliers import largest_residual
 from app.core.transform import TransformChoice, log_jacobian
@@ -271,10 +271,13 @@ def test_demand_class_counts_the_observed_periods():
     assert pattern is not None and pattern.adi == pytest.approx(10 / 4)
 
 
-def test_log_jacobian_sums_over_the_observed_points():
-    # Box & Cox (1964), §3: sum log g'(x_t) with g' = 1/x for the log, over what is observed.
-    x = np.array([1.0, np.e, np.nan, np.e**2])
-    assert log_jacobian(x, TransformChoice("log")) == pytest.approx(-3.0)
+def test_log_jacobian_sums_over_the_observations_the_likelihood_covers():
+    # Box & Cox (1964), §3: sum log g'(x_t) with g' = 1/x for the log, over the observations the
+    # fit's likelihood has a term for: all observed ones without differencing; after one
+    # difference, not the first (conditioned on) nor one whose previous value is missing.
+    x = np.array([1.0, np.e, np.nan, np.e**2, np.e**3])
+    assert log_jacobian(x, TransformChoice("log"), validate_order((0, 0, 0))) == pytest.approx(-6.0)
+    assert log_jacobian(x, TransformChoice("log"), validate_order((0, 1, 0))) == pytest.approx(-4.0)
 
 
 # --- the forecast check ---------------------------------------------------------------------

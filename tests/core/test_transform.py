@@ -18,7 +18,7 @@ from threadpoolctl import threadpool_limits
 
 from app.core import transform as transform_module
 from app.core.errors import OrderError
-from app.core.fitting import fit_candidate
+from app.core.fitting import difference, fit_candidate
 from app.core.identify import identify_series
 from app.core.order import Order, validate_order
 from app.core.transform import (
@@ -77,7 +77,7 @@ def _exp_of_airline(seed: int, n: int = 144) -> pd.Series:
 def _choose_under(x: np.ndarray, model: Order, period: int | None = None) -> TransformChoice:
     """The transform :func:`choose_transform` picks under ``model``, fitted by the engine."""
     with threadpool_limits(1):
-        return choose_transform(x, period, model.label(), model.lost_to_differencing, TransformChoice("none"),
+        return choose_transform(x, period, model, TransformChoice("none"),
                                 lambda choice: fit_candidate(apply_transform(x, choice), model).loglik)
 
 
@@ -116,7 +116,7 @@ def test_jacobian_makes_the_iid_box_cox_log_likelihood_of_scipy(lam):
     choice = TransformChoice("log") if lam == 0 else TransformChoice("box_cox", lam=lam)
     fit = fit_candidate(apply_transform(x, choice), validate_order((0, 0, 0), trend="c"))
     reference = stats.boxcox_llf(lam, x) - x.size / 2 * (1 + np.log(2 * np.pi))
-    assert fit.loglik + log_jacobian(x, choice) == pytest.approx(reference, rel=1e-8)
+    assert fit.loglik + log_jacobian(x, choice, validate_order((0, 0, 0), trend="c")) == pytest.approx(reference, rel=1e-8)
 
 
 @pytest.mark.parametrize("choice", [TransformChoice("log"), TransformChoice("box_cox", lam=0.5), TransformChoice("box_cox", lam=-0.3)])
@@ -126,7 +126,7 @@ def test_original_scale_log_likelihood_changes_with_the_unit_as_the_density_does
     # exactly those observations (after the first d + sD = 13) for the comparison with no
     # transform not to depend on the unit (Box & Cox 1964, §3).
     def original(x: np.ndarray, c: TransformChoice) -> float:
-        return fit_candidate(apply_transform(x, c), AIRLINE).loglik + log_jacobian(x[AIRLINE.lost_to_differencing:], c)
+        return fit_candidate(apply_transform(x, c), AIRLINE).loglik + log_jacobian(x, c, AIRLINE)
 
     with threadpool_limits(1):
         gain = original(air_passengers, choice) - original(air_passengers, TransformChoice("none"))
@@ -134,6 +134,40 @@ def test_original_scale_log_likelihood_changes_with_the_unit_as_the_density_does
         gain_scaled = original(scaled, choice) - original(scaled, TransformChoice("none"))
         assert original(scaled, choice) == pytest.approx(original(air_passengers, choice) + 131 * np.log(100), abs=1e-3)
     assert gain_scaled == pytest.approx(gain, abs=1e-3)
+
+
+@pytest.mark.parametrize("choice", [TransformChoice("log"), TransformChoice("box_cox", lam=2.0)])
+def test_with_gaps_the_jacobian_runs_over_the_observations_the_likelihood_covers(air_passengers, choice):
+    # Five months missing: the airline model's differences that reach them are missing too, and
+    # its likelihood covers only the observations whose difference is present (the others are
+    # conditioned on). A change of unit must then scale the density of exactly those, under
+    # every transform (Box & Cox 1964, §3), or the comparison with no transform would depend on
+    # the unit; counting the conditioned observations as well credits lambda > 1 and charges the log.
+    x = air_passengers.copy()
+    x[[30, 31, 70, 100, 120]] = np.nan
+    covered = int(np.count_nonzero(~np.isnan(difference(x, AIRLINE))))
+    assert covered < x.size - AIRLINE.lost_to_differencing
+
+    def original(y: np.ndarray, c: TransformChoice) -> float:
+        return fit_candidate(apply_transform(y, c), AIRLINE).loglik + log_jacobian(y, c, AIRLINE)
+
+    with threadpool_limits(1):
+        assert original(x / 100, choice) == pytest.approx(original(x, choice) + covered * np.log(100), abs=1e-3)
+        gain = original(x, choice) - original(x, TransformChoice("none"))
+        assert original(x / 100, choice) - original(x / 100, TransformChoice("none")) == pytest.approx(gain, abs=1e-3)
+
+
+def test_a_few_missing_points_do_not_decide_the_transform():
+    # A daily series with a fixed weekly pattern and constant noise (no reason to transform)
+    # keeps its scale with seven isolated days missing, as it does complete.
+    rng = np.random.default_rng(7)
+    n = 365
+    y = 200 + np.tile([0.0, 3.0, 4.0, 2.0, 1.0, -6.0, -8.0], n // 7 + 1)[:n] + rng.normal(scale=1.0, size=n)
+    gappy = y.copy()
+    gappy[[40, 90, 150, 200, 250, 300, 340]] = np.nan
+    weekly = validate_order((0, 0, 1), (0, 1, 1, 7))
+    assert _choose_under(y, weekly, 7).kind == "none"
+    assert _choose_under(gappy, weekly, 7).kind == "none"
 
 
 def test_air_passengers_log_beats_none_under_the_airline_model_as_statsmodels_fits_it(air_passengers):
@@ -147,7 +181,7 @@ def test_air_passengers_log_beats_none_under_the_airline_model_as_statsmodels_fi
             return SARIMAX(apply_transform(air_passengers, choice), order=(0, 1, 1), seasonal_order=(0, 1, 1, 12),
                            simple_differencing=True).fit(disp=False).llf
 
-    choice = choose_transform(air_passengers, 12, AIRLINE.label(), 13, TransformChoice("none"), statsmodels_loglik)
+    choice = choose_transform(air_passengers, 12, AIRLINE, TransformChoice("none"), statsmodels_loglik)
     assert choice.kind == "log", choice.explanation
     gain = statsmodels_loglik(TransformChoice("log")) - statsmodels_loglik(TransformChoice("none")) - np.log(air_passengers[13:]).sum()
     assert gain > 6
@@ -215,15 +249,15 @@ def test_non_positive_series_is_not_transformed_and_nothing_is_fitted():
     def never(choice: TransformChoice) -> float:
         raise AssertionError("no fit is needed for a series with values <= 0")
 
-    choice = choose_transform(x, 12, "ARIMA(0,1,1)", 1, TransformChoice("none"), never)
+    choice = choose_transform(x, 12, validate_order((0, 1, 1)), TransformChoice("none"), never)
     assert choice.kind == "none" and choice.lam is None
     assert "<= 0" in choice.explanation[0]
 
 
 def test_an_order_that_cannot_be_fitted_on_a_scale_leaves_that_scale_out(air_passengers):
     logliks = {"none": -500.0, "log": float("nan"), "box_cox": -480.0}
-    choice = choose_transform(air_passengers, 12, "ARIMA(0,1,1)(0,1,1)12", 13, TransformChoice("none"),
-                              lambda c: logliks[c.kind] - log_jacobian(air_passengers[13:], c))
+    choice = choose_transform(air_passengers, 12, AIRLINE, TransformChoice("none"),
+                              lambda c: logliks[c.kind] - log_jacobian(air_passengers, c, AIRLINE))
     words = " ".join(choice.explanation)
     assert "could not be fitted on the log scale: not weighed" in words
     # Square root and Guerrero's -0.3 both gain 20; the simpler (square root) is kept.

@@ -170,9 +170,10 @@ def test_log_jacobian_turns_a_log_scale_likelihood_into_that_of_the_data():
     fit = fit_candidate(np.log(x), validate_order((0, 0, 0)))
     params = {p.name: p.value for p in fit.params}
     reference = lognorm.logpdf(x, s=np.sqrt(params["sigma2"]), scale=np.exp(params["const"])).sum()
-    assert fit.loglik + log_jacobian(x, TransformChoice("log")) == pytest.approx(reference, rel=1e-9)
-    assert log_jacobian(x, TransformChoice("none")) == 0.0
-    assert log_jacobian(x, TransformChoice("box_cox", lam=1.0)) == 0.0  # a shift only
+    white_noise = validate_order((0, 0, 0))
+    assert fit.loglik + log_jacobian(x, TransformChoice("log"), white_noise) == pytest.approx(reference, rel=1e-9)
+    assert log_jacobian(x, TransformChoice("none"), white_noise) == 0.0
+    assert log_jacobian(x, TransformChoice("box_cox", lam=1.0), white_noise) == 0.0  # a shift only
 
 
 def test_an_order_on_the_wrong_scale_is_sent_back_by_the_aicc_margin():
