@@ -449,7 +449,7 @@ def test_import_and_identify_apply_the_limits_and_date_format_given(run_cli, tmp
     assert code == 1 and [(p["series_id"], p["row"], p["flag"]) for p in problems] == [("a", 13, "too_long"), ("b", 25, "too_long"), ("c", 37, "too_long")]
 
     code, _, err = run_cli("import", path, "--db", db)  # 01/01/2024 ... 12/01/2024: day first or month first?
-    assert code == 2 and "line 3: timestamp '02/01/2024' reads as another date day first" in err
+    assert code == 2 and "line 3 (series 'a'): timestamp '02/01/2024' reads as another date day first" in err
 
     code, out, _ = run_cli("import", path, "--db", db, "--date-format", "%m/%d/%Y")
     assert code == 0 and out.startswith(f"{path}: 3 added")

@@ -213,7 +213,7 @@ class _LongReader:
         if self.limits is not None:
             self._count_rows(codes, lines, self.limits)
         keep = ~self.rejected[codes]
-        self.stamps.add(time_cells, lines, keep)
+        self.stamps.add(time_cells, lines, keep, id_cells)
         for parts, column in zip(self.kept, (codes, numbers, lines)):
             parts.append(column[keep])
 

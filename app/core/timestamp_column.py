@@ -72,13 +72,15 @@ class TimestampColumn:
         self.kind: str | None = None
         self._first: tuple[int, str] = (0, "")
         self._kept: dict[str, list[np.ndarray]] = {}  # each reading still possible -> stamps of kept rows
-        self._readings_differ: tuple[int, str] | None = None
+        self._readings_differ: tuple[int, str, str | None] | None = None
+        self._chunk: tuple[np.ndarray, np.ndarray | None] = (np.zeros(0, dtype=np.int64), None)  # lines, series
         self._offsets: dict[int, tuple[int, str]] = {}  # UTC offset in minutes -> first line, text
         self._has_offsets: bool | None = None
         self._kept_offsets: list[np.ndarray] = []  # the UTC offset of each kept row, in minutes
 
-    def add(self, cells: np.ndarray, lines: np.ndarray, keep: np.ndarray) -> None:
+    def add(self, cells: np.ndarray, lines: np.ndarray, keep: np.ndarray, series: np.ndarray | None = None) -> None:
         """Read a chunk's timestamp cells (on ``lines``); keep those where ``keep`` holds.
+        ``series`` (the series id of each row, in a long file) lets a refusal name the series.
 
         Raises
         ------
@@ -86,6 +88,7 @@ class TimestampColumn:
             Naming the first line whose timestamp cannot be read (see the module docstring).
         """
         texts = pd.Series(cells, dtype=object)
+        self._chunk = (lines, series)
         if self.kind is None:
             self._start(texts, lines)
         if self.kind == STEPS:
@@ -107,11 +110,11 @@ class TimestampColumn:
             When the dates read differently month first and day first and nothing tells which.
         """
         if self._readings_differ is not None and len(self._kept) > 1:
-            line, text = self._readings_differ
+            line, text, series = self._readings_differ
             month_first, day_first = self._kept
             self._refuse(
                 line, text, f"reads as another date day first ({day_first}) than month first ({month_first}), and "
-                f"no date in the file tells which; give the date format (for example --date-format {day_first})",
+                f"no date in the file tells which; give the date format (for example --date-format {day_first})", series,
             )
         chunks = next(iter(self._kept.values()), [])
         stamps = joined(chunks) if chunks else np.empty(0, dtype=np.int64)
@@ -176,7 +179,7 @@ class TimestampColumn:
             first, second = stamps.values()
             differ = np.flatnonzero(first != second)
             if differ.size:
-                self._readings_differ = (int(lines[differ[0]]), texts.iloc[differ[0]])
+                self._readings_differ = (int(lines[differ[0]]), texts.iloc[differ[0]], self._series_on(int(lines[differ[0]])))
         return stamps, offsets if self._has_offsets else None
 
     def _parse(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
@@ -241,8 +244,16 @@ class TimestampColumn:
         line, first = self._first
         return f"is not written like the first timestamp {shorten(first)!r} (line {line}): the timestamps of a file must share one format"
 
-    def _refuse(self, line: int, text: str, why: str) -> NoReturn:
-        raise InputFileError(self.name, f"line {line}: timestamp {shorten(text)!r} {why}")
+    def _series_on(self, line: int) -> str | None:
+        """The series id of ``line`` in the chunk being read (None in a wide file)."""
+        lines, series = self._chunk
+        at = np.flatnonzero(lines == line)
+        return str(series[at[0]]) if series is not None and at.size else None
+
+    def _refuse(self, line: int, text: str, why: str, series: str | None = None) -> NoReturn:
+        series = series if series is not None else self._series_on(line)
+        where = f"line {line}" + (f" (series {shorten(series)!r})" if series is not None else "")
+        raise InputFileError(self.name, f"{where}: timestamp {shorten(text)!r} {why}")
 
 
 def _steps(texts: pd.Series) -> np.ndarray:

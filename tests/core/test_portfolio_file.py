@@ -133,9 +133,14 @@ def test_not_utf8(tmp_path):
         read_portfolio(_write(tmp_path, "series_id,timestamp,value\nMünchen,1,2\n".encode("latin-1")))
 
 
-def test_bad_timestamp_names_the_line(tmp_path):
-    with pytest.raises(InputFileError, match=r"line 3: timestamp 'soon' is not a date"):
+def test_bad_timestamp_names_the_line_and_the_series(tmp_path):
+    with pytest.raises(InputFileError, match=r"line 3 \(series 'a'\): timestamp 'soon' is not a date"):
         read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,2024-01-01,1\na,soon,2\n"))
+    with pytest.raises(InputFileError, match=r"line 4 \(series 'shop 2/milk'\): timestamp '2024-13-45' is not a date"):
+        read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,2024-01-01,1\nshop 2/milk,2024-01-01,1\nshop 2/milk,2024-13-45,2\n"))
+    # A wide file's timestamp belongs to every series of its row: the line alone is named.
+    with pytest.raises(InputFileError, match=r": line 3: timestamp 'soon' is not a date"):
+        read_portfolio(_write(tmp_path, "timestamp,a,b\n2024-01-01,1,2\nsoon,2,3\n"), layout="wide")
 
 
 def test_empty_series_id_names_the_line(tmp_path):
@@ -255,9 +260,9 @@ def test_dates_are_read_in_the_first_timestamps_format(tmp_path, tiny_chunks):
 
 
 def test_a_second_date_format_is_refused_on_its_line(tmp_path, tiny_chunks):
-    with pytest.raises(InputFileError, match=r"line 5: timestamp '01/04/2024' is not written like the first timestamp '2024-01-01' \(line 2\)"):
+    with pytest.raises(InputFileError, match=r"line 5 \(series 'a'\): timestamp '01/04/2024' is not written like the first timestamp '2024-01-01' \(line 2\)"):
         _stamps(tmp_path, ["2024-01-01", "2024-02-01", "2024-03-01", "01/04/2024", "2024-05-01"])
-    with pytest.raises(InputFileError, match=r"line 4: timestamp '2024-03-01' is not written like the first timestamp '01/01/2024'"):
+    with pytest.raises(InputFileError, match=r"line 4 \(series 'a'\): timestamp '2024-03-01' is not written like the first timestamp '01/01/2024'"):
         _stamps(tmp_path, ["01/01/2024", "01/02/2024", "2024-03-01"])
 
 
@@ -266,20 +271,20 @@ def test_dates_that_read_both_ways_are_refused_unless_the_format_is_given(tmp_pa
     with pytest.raises(InputFileError) as info:
         _stamps(tmp_path, stamps)
     assert str(info.value).endswith(
-        "line 3: timestamp '01/02/2024' reads as another date day first (%d/%m/%Y) than month first (%m/%d/%Y), and no "
+        "line 3 (series 'a'): timestamp '01/02/2024' reads as another date day first (%d/%m/%Y) than month first (%m/%d/%Y), and no "
         "date in the file tells which; give the date format (for example --date-format %d/%m/%Y)"
     )
     assert _stamps(tmp_path, stamps, date_format="%d/%m/%Y").tolist() == pd.date_range("2024-01-01", periods=12, freq="MS").tolist()
     assert _stamps(tmp_path, stamps, date_format="%m/%d/%Y").tolist() == pd.date_range("2024-01-01", periods=12).tolist()
-    with pytest.raises(InputFileError, match=r"line 2: timestamp '01/01/2024' does not match the date format '%Y-%m-%d'"):
+    with pytest.raises(InputFileError, match=r"line 2 \(series 'a'\): timestamp '01/01/2024' does not match the date format '%Y-%m-%d'"):
         _stamps(tmp_path, stamps, date_format="%Y-%m-%d")
 
 
 @pytest.mark.parametrize("word", ["today", "now"])
 def test_words_pandas_reads_as_the_current_time_are_not_dates(tmp_path, word):
-    with pytest.raises(InputFileError, match=f"line 3: timestamp '{word}' is not a date"):
+    with pytest.raises(InputFileError, match=rf"line 3 \(series 'a'\): timestamp '{word}' is not a date"):
         _stamps(tmp_path, ["2024-01-01", word])
-    with pytest.raises(InputFileError, match=f"line 2: timestamp '{word}' is not a date"):
+    with pytest.raises(InputFileError, match=rf"line 2 \(series 'a'\): timestamp '{word}' is not a date"):
         _stamps(tmp_path, [word, "2024-01-01"])
 
 
@@ -290,7 +295,7 @@ def test_a_date_format_with_a_directive_twice_is_refused_by_name(tmp_path, date_
 
 
 def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
-    with pytest.raises(InputFileError, match=r"line 2: timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
+    with pytest.raises(InputFileError, match=r"line 2 \(series 'a'\): timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
         _stamps(tmp_path, ["Jan 2024", "Feb 2024"])
     assert _stamps(tmp_path, ["Jan 2024", "Feb 2024"], date_format="%b %Y").tolist() == pd.to_datetime(["2024-01-01", "2024-02-01"]).tolist()
 
@@ -312,12 +317,12 @@ def test_offsets_keep_the_local_date_of_calendar_data_and_put_clock_times_in_utc
 
 
 def test_offsets_of_different_zones_or_with_and_without_are_refused(tmp_path, tiny_chunks):
-    with pytest.raises(InputFileError, match=r"line 5: timestamp '2024-01-04T00:00:00-05:00' is at UTC-05:00, another time zone than \+01:00 \(line 2\)"):
+    with pytest.raises(InputFileError, match=r"line 5 \(series 'a'\): timestamp '2024-01-04T00:00:00-05:00' is at UTC-05:00, another time zone than \+01:00 \(line 2\)"):
         _stamps(tmp_path, ["2024-01-01T00:00:00+01:00", "2024-01-02T00:00:00+01:00", "2024-01-03T00:00:00+01:00", "2024-01-04T00:00:00-05:00"])
     three = ["2024-01-01T00:00:00+01:00", "2024-07-01T00:00:00+02:00", "2024-08-01T00:00:00+03:00"]
-    with pytest.raises(InputFileError, match=r"line 4: .* is at UTC\+03:00, another time zone than \+01:00 \(line 2\) and \+02:00 \(line 3\)"):
+    with pytest.raises(InputFileError, match=r"line 4 \(series 'a'\): .* is at UTC\+03:00, another time zone than \+01:00 \(line 2\) and \+02:00 \(line 3\)"):
         _stamps(tmp_path, three)
-    with pytest.raises(InputFileError, match=r"line 3: timestamp '2024-01-02T00:00:00' has no UTC offset \(time zone\), but the timestamp on line 2"):
+    with pytest.raises(InputFileError, match=r"line 3 \(series 'a'\): timestamp '2024-01-02T00:00:00' has no UTC offset \(time zone\), but the timestamp on line 2"):
         _stamps(tmp_path, ["2024-01-01T00:00:00+01:00", "2024-01-02T00:00:00"])
 
 
