@@ -800,16 +800,17 @@ def run_demo(args: argparse.Namespace) -> int:
         shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
-    print(demo_next_steps(path, status))
+    print(demo_next_steps(path, status, serving=settings is not None))
     return 0 if settings is None else _serve(settings, args.no_browser)
 
 
-def demo_next_steps(db_path: Path, status: dict) -> str:
+def demo_next_steps(db_path: Path, status: dict, serving: bool = True) -> str:
     """What the demo holds (by confidence), the series it could not analyse and why, and the
-    commands to go on with, as typed here (:func:`typed_command`)."""
+    commands to go on with, as typed here (:func:`typed_command`); ``serving`` when the demo
+    goes on to serve the dashboard itself."""
     db = shlex.quote(str(db_path))
     steps = [
-        (typed_command(f"serve --db {db}"), "review it in the browser (the demo does this now)"),
+        (typed_command(f"serve --db {db}"), "review it in the browser" + (" (the demo does this now)" if serving else "")),
         (typed_command(f"status --db {db}"), "what the portfolio holds"),
         (typed_command("import YOUR.csv --db my.db"), "bring in your own series (series_id,timestamp,value)"),
         (typed_command("analyze --db my.db"), "and analyse them"),

@@ -538,6 +538,7 @@ def test_demo_builds_an_analysed_database_and_reuses_it(run_cli, tmp_path):
 
     assert code == 0
     assert f"Demo portfolio ready in {db}" in out and f"lagdesk status --db {db}" in out
+    assert "review it in the browser" in out and "the demo does this now" not in out  # --build-only serves nothing
     with open_database(db) as handle:
         status = portfolio_status(handle)
         failures = {s.series_id: analysis_record(handle, s.series_id)["message"] for s in stored}

@@ -150,7 +150,8 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
                 if ad_ct.rejects or ad.p_value < ADF_UNCERTAIN_P:
                     reason = "ADF with a trend term rejects a unit root" if ad_ct.rejects else f"ADF's {p_words(ad.p_value)} is below {ADF_UNCERTAIN_P}"
                     return _uncertain(tests, words, on, 0, f"KPSS rejects stationarity, but {reason}")
-            words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: differenced once more.")
+            words.append(f"On the {on}, KPSS rejects stationarity and ADF does not reject a unit root at 5%: "
+                         f"{'differenced' if d == 0 else 'differenced again'} (d = {d + 1} at least).")
             values = np.diff(values)
             continue
         if d >= 1 and not kp.rejects:

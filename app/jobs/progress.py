@@ -49,10 +49,12 @@ class ProgressLine:
         now = time.monotonic()
         elapsed = now - self.started
         failed = f", {self.failed} failed" if self.failed else ""
+        measured = self.first_done is not None and self.done > 1 and now - self.first_done >= RATE_AFTER_SECONDS
+        rate = (self.done - 1) / max(now - (self.first_done or now), 1e-9) if measured else 0.0
         if self.done >= self.total:
-            tail = f"  {self.done / max(elapsed, 1e-9):.1f}/s  {elapsed:.1f} s"
-        elif self.first_done is not None and self.done > 1 and now - self.first_done >= RATE_AFTER_SECONDS:
-            rate = (self.done - 1) / max(now - self.first_done, 1e-9)
+            # The same rate as while running, so the last line does not seem to slow down.
+            tail = f"  {rate:.1f}/s after the first  {elapsed:.1f} s in all" if measured else f"  {elapsed:.1f} s"
+        elif measured:
             tail = f"  {rate:.1f}/s  ~{(self.total - self.done) / rate:.0f} s left"
         else:
             tail = f"  {elapsed:.0f} s"
