@@ -134,8 +134,8 @@ def log_jacobian(x: np.ndarray, transform: TransformChoice, model: Order) -> flo
     sum runs over the observations the fit's likelihood covers
     (:func:`app.core.fitting.likelihood_points`): after the first ``d + sD``, on which it is
     conditional, and without those whose difference is missing because it reaches a gap.
-    Counting those too would credit every transform with ``lambda > 1`` and charge the log
-    for observations the likelihood never saw.
+    Counting those too would add ``(lambda - 1) log x_t`` for observations the likelihood never
+    saw: a credit to ``lambda > 1`` and a charge to the log wherever the values exceed 1.
 
     References
     ----------
