@@ -872,14 +872,18 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     if prepared.n <= LONG_SERIES:
         return _identify_whole(prepared, options)[0]
     recent, start = prepared.recent(SEARCH_WINDOW)
-    found, search = _identify_whole(recent, options, first=start + 1)
+    before = prepared.values[:start]
+    found, search = _identify_whole(recent, options, first=start + 1,
+                                    smallest_before=float(np.nanmin(before)) if np.any(~np.isnan(before)) else math.inf)
     return _on_whole_series(prepared, start, found, search, options)
 
 
-def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int = 1) -> tuple[Identification, _Identified]:
+def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int = 1, smallest_before: float = math.inf
+                    ) -> tuple[Identification, _Identified]:
     """The identification of :func:`identify_prepared` on all of ``prepared``, and the search
     that ranked its candidates; ``first`` numbers its first point in the words (the recent
-    stretch of a long series starts later)."""
+    stretch of a long series starts later) and ``smallest_before`` is the smallest value before
+    it (:func:`app.core.transform.choose_transform`)."""
     period, period_words = resolve_period(prepared, options.period)
     found, search = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
     passes = {str(found.transform.to_json()): (found, search)}
@@ -887,7 +891,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     while True:
         leader = found.suggested.model
         choice = choose_transform(prepared.values, period, leader, found.transform,
-                                  _loglik_on(prepared.values, found.transform, found.suggested), first)
+                                  _loglik_on(prepared.values, found.transform, found.suggested), first, smallest_before)
         words += choice.explanation
         key = str(choice.to_json())
         if key in passes:
@@ -912,7 +916,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         cleaned = invert_transform(adjusted(y, interventions), found.transform)
         cleaned_leader = adjusted_search.ranked[0]
         choice = choose_transform(cleaned, period, cleaned_leader.model, found.transform,
-                                  _loglik_on(cleaned, found.transform, cleaned_leader), first)
+                                  _loglik_on(cleaned, found.transform, cleaned_leader), first, smallest_before)
         if choice.to_json() != found.transform.to_json():
             words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
                       "transforms were weighed again:", *choice.explanation,

@@ -103,3 +103,20 @@ def test_the_recent_stretch_starts_on_an_observed_point_and_counts_its_own_gaps(
     assert start == 40 and recent.n == 20 and recent.index[0] == pd.Timestamp("2021-02-10")
     assert (recent.gaps_filled, recent.long_gaps) == (5, 1) and (prepared.gaps_filled, prepared.long_gaps) == (8, 1)
     assert np.array_equal(recent.values, prepared.values[40:], equal_nan=True)
+
+
+def test_a_value_below_zero_before_the_stretch_rules_out_a_transform(monkeypatch):
+    # The transform chosen on the recent stretch is applied to the whole series, so a value
+    # <= 0 in the older part rules out the log and Box-Cox as one in the stretch does (the
+    # stretch alone would take the log here: multiplicative noise, positive recent values).
+    monkeypatch.setattr(identify, "LONG_SERIES", LONG)
+    monkeypatch.setattr(identify, "SEARCH_WINDOW", WINDOW)
+    rng = np.random.default_rng(35)
+    y = 100 * np.exp(np.cumsum(0.2 * rng.standard_normal(N)))
+    series = pd.Series(y, index=pd.date_range("2020-01-01", periods=N, freq="D"))
+    positive = identify_series(series, "positive", identify.EngineOptions(period=None))
+    series.iloc[5] = -1.0
+    found = identify_series(series, "one below zero", identify.EngineOptions(period=None))
+    assert positive.transform.kind == "log", positive.transform.explanation
+    assert found.transform.kind == "none"
+    assert "The series has values <= 0 (smallest -1): no log or Box-Cox transform." in found.transform.explanation
