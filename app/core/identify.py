@@ -571,36 +571,38 @@ def _search_on(
     for D, (seasonal, decision) in setups.items():
         ds = [decision.d] + ([decision.alternative_d] if decision.uncertain and decision.alternative_d is not None else [])
         for d in ds:
-            try:
-                found = search_candidates(series_id, y, d, seasonal, decision, options)
-            except SeriesProblem as problem:
-                # More differencing can leave a short series with gaps too little to fit; the
-                # other differencing left open still decides.
-                if problem.flag != "no_fit":
-                    raise
-                unfitted.append(problem)
-                continue
             marks = (["alternative d"] if d != decision.d else []) + (["alternative D"] if D != first_D else [])
-            for f in found.fits:
-                f.source = f.source + marks
-            searches[(D, d)] = found
+            found = _search_marked(series_id, y, d, seasonal, decision, options, marks)
+            if isinstance(found, SeriesProblem):
+                unfitted.append(found)
+            else:
+                searches[(D, d)] = found
     if not searches:
         raise unfitted[0]
     ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
     D, d = next(key for key, found in searches.items() if any(f is ranked[0] for f in found.fits))
     if d < MAX_D and (D, d + 1) not in searches and unit_root_fit(rank_within_d(searches[(D, d)].fits, options.criterion), options.criterion):
-        seasonal, decision = setups[D]
-        try:
-            further = search_candidates(series_id, y, d + 1, seasonal, decision, options)
-        except SeriesProblem as problem:
-            if problem.flag != "no_fit":
-                raise
-        else:
-            for f in further.fits:
-                f.source = f.source + [FURTHER_DIFFERENCE]
+        further = _search_marked(series_id, y, d + 1, *setups[D], options, [FURTHER_DIFFERENCE])
+        if not isinstance(further, SeriesProblem):
             searches[(D, d + 1)] = further
             ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
     return _Identified(setups, searches, ranked)
+
+
+def _search_marked(series_id: str, y: np.ndarray, d: int, seasonal: SeasonalSetup, decision: DifferencingDecision,
+                   options: EngineOptions, marks: list[str]) -> SearchResult | SeriesProblem:
+    """:func:`search_candidates` with ``marks`` added to every fit's source; the problem instead
+    when this differencing leaves too little to fit (more differencing can do that to a short
+    series with gaps, and another differencing searched still decides)."""
+    try:
+        found = search_candidates(series_id, y, d, seasonal, decision, options)
+    except SeriesProblem as problem:
+        if problem.flag != "no_fit":
+            raise
+        return problem
+    for f in found.fits:
+        f.source = f.source + marks
+    return found
 
 
 def unit_root_fit(group: list[CandidateFit], criterion: str) -> CandidateFit | None:
@@ -872,18 +874,16 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     if prepared.n <= LONG_SERIES:
         return _identify_whole(prepared, options)[0]
     recent, start = prepared.recent(SEARCH_WINDOW)
-    before = prepared.values[:start]
-    found, search = _identify_whole(recent, options, first=start + 1,
-                                    smallest_before=float(np.nanmin(before)) if np.any(~np.isnan(before)) else math.inf)
+    found, search = _identify_whole(recent, options, first=start + 1, smallest=float(np.nanmin(prepared.values)))
     return _on_whole_series(prepared, start, found, search, options)
 
 
-def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int = 1, smallest_before: float = math.inf
+def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int = 1, smallest: float = math.inf
                     ) -> tuple[Identification, _Identified]:
     """The identification of :func:`identify_prepared` on all of ``prepared``, and the search
     that ranked its candidates; ``first`` numbers its first point in the words (the recent
-    stretch of a long series starts later) and ``smallest_before`` is the smallest value before
-    it (:func:`app.core.transform.choose_transform`)."""
+    stretch of a long series starts later) and ``smallest`` is the smallest value of the whole
+    series it is a stretch of (:func:`app.core.transform.choose_transform`)."""
     period, period_words = resolve_period(prepared, options.period)
     found, search = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
     passes = {str(found.transform.to_json()): (found, search)}
@@ -891,7 +891,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     while True:
         leader = found.suggested.model
         choice = choose_transform(prepared.values, period, leader, found.transform,
-                                  _loglik_on(prepared.values, found.transform, found.suggested), first, smallest_before)
+                                  _loglik_on(prepared.values, found.transform, found.suggested), first, smallest)
         words += choice.explanation
         key = str(choice.to_json())
         if key in passes:
@@ -916,7 +916,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         cleaned = invert_transform(adjusted(y, interventions), found.transform)
         cleaned_leader = adjusted_search.ranked[0]
         choice = choose_transform(cleaned, period, cleaned_leader.model, found.transform,
-                                  _loglik_on(cleaned, found.transform, cleaned_leader), first, smallest_before)
+                                  _loglik_on(cleaned, found.transform, cleaned_leader), first, smallest)
         if choice.to_json() != found.transform.to_json():
             words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
                       "transforms were weighed again:", *choice.explanation,

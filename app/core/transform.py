@@ -174,7 +174,7 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
 
 def choose_transform(
     x: np.ndarray, period: int | None, model: Order, scale: TransformChoice,
-    loglik_on: Callable[[TransformChoice], float], first: int = 1, smallest_before: float = math.inf,
+    loglik_on: Callable[[TransformChoice], float], first: int = 1, smallest: float = math.inf,
 ) -> TransformChoice:
     """No transform, the log, or Box-Cox, by the likelihood of the original data under one order.
 
@@ -211,9 +211,9 @@ def choose_transform(
     first : int
         The number the words give the first point of ``x``: more than 1 when ``x`` is the
         recent stretch of a longer series.
-    smallest_before : float
-        The smallest value of the series before ``x`` when ``x`` is its recent stretch: the
-        transform chosen is applied to the whole series, so all of it must be positive.
+    smallest : float
+        The smallest value of the whole series when ``x`` is its recent stretch: the transform
+        chosen is applied to the whole series, so all of it must be positive.
 
     References
     ----------
@@ -222,7 +222,7 @@ def choose_transform(
     .. [3] Guerrero (1993), *J. Forecasting* 12, 37-48.
     """
     values = np.asarray(x, dtype=float)
-    smallest = min(float(np.nanmin(values)), smallest_before)
+    smallest = min(float(np.nanmin(values)), smallest)
     if smallest <= 0:
         return TransformChoice(
             "none", explanation=[f"The series has values <= 0 (smallest {smallest:.4g}): no log or Box-Cox transform."],
