@@ -81,7 +81,7 @@ from app.core.seasonality import (
     validate_period,
 )
 from app.core.stationarity import MAX_D, DifferencingDecision, choose_differencing
-from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform
+from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform, order_before_search
 from app.core.vocabulary import Flag, InterventionKind
 
 DRIFT_Z = 1.96
@@ -749,12 +749,14 @@ def _intervention_words(found: list[Intervention]) -> str:
 
 
 def _identify_on(
-    prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions
+    prepared: PreparedSeries, transform: TransformChoice, period: int | None, period_words: list[str], options: EngineOptions,
+    kept: dict[int, tuple[SeasonalSetup, DifferencingDecision]] | None = None,
 ) -> tuple[Identification, _Identified]:
-    """One identification pass: differencing, correlograms and candidates of the series under
-    ``transform``; also the search itself, for :func:`_with_interventions`."""
+    """One identification pass: differencing (``kept``'s when given), correlograms and
+    candidates of the series under ``transform``; also the search itself, for
+    :func:`_with_interventions`."""
     y = apply_transform(prepared.values, transform)
-    search = _search_on(prepared.series_id, y, period, period_words, options)
+    search = _search_on(prepared.series_id, y, period, period_words, options, kept)
     return _finished(prepared, transform, search, [], options), search
 
 
@@ -828,15 +830,17 @@ def _finished(
     )
 
 
-def _loglik_on(values: np.ndarray, transform: TransformChoice, leader: CandidateFit) -> Callable[[TransformChoice], float]:
-    """The maximised log-likelihood of the ``leader``, found on the ``transform`` scale, for
-    ``values`` under a transform (its own on that scale; NaN when the order cannot be fitted)."""
+def _loglik_on(values: np.ndarray, model: Order, known: tuple[TransformChoice, float] | None = None
+               ) -> Callable[[TransformChoice], float]:
+    """The maximised log-likelihood of ``model`` for ``values`` under a transform (``known``'s
+    when it names that transform, a leader's own on its scale; NaN when the order cannot be
+    fitted)."""
 
     def loglik(choice: TransformChoice) -> float:
-        if choice.to_json() == transform.to_json():
-            return leader.loglik
+        if known is not None and choice.to_json() == known[0].to_json():
+            return known[1]
         try:
-            return fit_candidate(apply_transform(values, choice), leader.model).loglik
+            return fit_candidate(apply_transform(values, choice), model).loglik
         except (np.linalg.LinAlgError, ValueError):
             return math.nan
 
@@ -850,15 +854,17 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     :data:`SEARCH_WINDOW` points and its best candidates are refitted on the whole series
     (:func:`_on_whole_series`); a shorter one as follows.
 
-    The transform is chosen under the leading order (:func:`app.core.transform.choose_transform`,
-    Box & Cox 1964): the series is identified as observed; for a strictly positive series, the
-    leader's order (same d, D and deterministic term) is refitted under each transform weighed and
-    the likelihoods of the original data compared. When a transform wins, the identification runs
-    again on the transformed series, so the correlograms, the differencing and the candidates are
-    those of the series actually modelled, and the comparison is repeated under the new leader
-    (an order found on one scale favours that scale). It stops when the comparison keeps the
-    scale the leader was found on, returns to a scale already identified, or after
-    :data:`TRANSFORM_PASSES` identifications on a transformed series.
+    The transform is chosen by the likelihoods of the original data under one order
+    (:func:`app.core.transform.choose_transform`, Box & Cox 1964), first under
+    :func:`app.core.transform.order_before_search` with the differencing the tests choose on the
+    series as observed. The series is identified on the scale that comparison chooses, so the
+    correlograms, the differencing and the candidates are those of the series actually modelled,
+    and the comparison is repeated under the leader found there (an order found on one scale
+    favours that scale). When that moves to another scale, the series is identified again. It
+    stops when the comparison keeps the scale the leader was found on, returns to a scale
+    already identified, or after ``TRANSFORM_PASSES + 1`` identifications. Starting on the scale
+    the first comparison chooses, rather than always on the series as observed, saves the
+    identification that a transformed series would otherwise pay for on a scale it leaves.
 
     On the scale chosen, outliers, level shifts and temporary changes are sought in the leading
     order's residuals (:mod:`app.core.interventions`, Chen & Liu 1993); when any is found, the
@@ -885,13 +891,21 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     stretch of a long series starts later) and ``smallest`` is the smallest value of the whole
     series it is a stretch of (:func:`app.core.transform.choose_transform`)."""
     period, period_words = resolve_period(prepared, options.period)
-    found, search = _identify_on(prepared, TransformChoice("none"), period, period_words, options)
-    passes = {str(found.transform.to_json()): (found, search)}
-    words: list[str] = []
-    while True:
-        leader = found.suggested.model
-        choice = choose_transform(prepared.values, period, leader, found.transform,
-                                  _loglik_on(prepared.values, found.transform, found.suggested), first, smallest)
+    observed = _differencing(prepared.series_id, prepared.values, period, period_words,
+                             choose_seasonal_differencing(prepared.values, period) if period else None)
+    D, (_, decision) = next(iter(observed.items()))
+    before = order_before_search(decision.d, D, period)
+    choice = choose_transform(prepared.values, period, before, "the order weighed before any search",
+                              _loglik_on(prepared.values, before), first, smallest)
+    words = [*choice.explanation, f"The search starts on {_scale_words(choice)}."]
+    found, search = _identify_on(prepared, choice, period, period_words, options, observed if choice.kind == "none" else None)
+    passes = {str(choice.to_json()): (found, search)}
+    # A series with a value <= 0 is not transformed (the first comparison said so): no second one.
+    transformable = min(float(np.nanmin(prepared.values)), smallest) > 0
+    while transformable:
+        leader = found.suggested
+        choice = choose_transform(prepared.values, period, leader.model, f"the leader on {_scale_words(found.transform)}",
+                                  _loglik_on(prepared.values, leader.model, (found.transform, leader.loglik)), first, smallest)
         words += choice.explanation
         key = str(choice.to_json())
         if key in passes:
@@ -900,8 +914,7 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
             found, search = passes[key]
             break
         if len(passes) > TRANSFORM_PASSES:
-            words.append(f"Stopped after {TRANSFORM_PASSES} identifications on a transformed series: "
-                         f"the {found.transform.name()} scale kept.")
+            words.append(f"Stopped after {len(passes)} identifications: the {found.transform.name()} scale kept.")
             break
         words.append(f"Identified again on the {choice.name()} scale.")
         found, search = _identify_on(prepared, choice, period, period_words, options)
@@ -915,8 +928,9 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         # again on the series with the interventions taken out, under the leader found there.
         cleaned = invert_transform(adjusted(y, interventions), found.transform)
         cleaned_leader = adjusted_search.ranked[0]
-        choice = choose_transform(cleaned, period, cleaned_leader.model, found.transform,
-                                  _loglik_on(cleaned, found.transform, cleaned_leader), first, smallest)
+        choice = choose_transform(cleaned, period, cleaned_leader.model, f"the leader on {_scale_words(found.transform)}",
+                                  _loglik_on(cleaned, cleaned_leader.model, (found.transform, cleaned_leader.loglik)),
+                                  first, smallest)
         if choice.to_json() != found.transform.to_json():
             words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
                       "transforms were weighed again:", *choice.explanation,
@@ -928,6 +942,10 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         found = _finished(prepared, found.transform, adjusted_search, interventions, options)
     found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
     return found, (adjusted_search if interventions else search)
+
+
+def _scale_words(transform: TransformChoice) -> str:
+    return "the series as observed" if transform.kind == "none" else f"the {transform.name()} scale"
 
 
 def _on_whole_series(

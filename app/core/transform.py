@@ -1,18 +1,20 @@
 """Variance-stabilising transforms: none, the log, or Box-Cox with a simple lambda.
 
-A transform is chosen by the likelihood of the *original* data under the leading order
-(:func:`choose_transform`): the order found on the series is fitted with no transform, on the
-log, on the square root and on Box-Cox with Guerrero's (1993) lambda rounded to a simple value
+A transform is chosen by the likelihood of the *original* data under one order
+(:func:`choose_transform`): the order is fitted with no transform, on the log, on the square
+root and on Box-Cox with Guerrero's (1993) lambda rounded to a simple value
 (:func:`simple_lambda`), and each log-likelihood is put on the scale of the observations by
 adding the log-Jacobian of the transform (:func:`log_jacobian`; Box & Cox 1964, §3). A transform
 is kept only when it lowers the AIC of the original data clearly (:data:`CLEAR_AIC_DROP`).
-:func:`app.core.identify.identify_prepared` runs the comparison and, when a transform wins,
-identifies the transformed series again. Missing points (NaN) stay missing through a transform;
-Guerrero's lambda, which needs a complete series, is estimated on the series with its gaps
-filled by linear interpolation (:func:`app.core.prepare.interpolate_gaps`), and the log-Jacobian
-sums over the observations the fit's likelihood covers, which leaves out those whose difference
-reaches a gap (:func:`log_jacobian`). The Box-Cox transform with parameter lambda is
-``(x**lambda - 1) / lambda``, and ``log(x)`` at lambda = 0 (Box & Cox 1964).
+:func:`app.core.identify.identify_prepared` runs the comparison first under the order of
+:func:`order_before_search`, identifies the series on the scale it chooses, and runs it again
+under the leader found there; when that moves to another scale, the series is identified again.
+Missing points (NaN) stay missing through a transform; Guerrero's lambda, which needs a complete
+series, is estimated on the series with its gaps filled by linear interpolation
+(:func:`app.core.prepare.interpolate_gaps`), and the log-Jacobian sums over the observations the
+fit's likelihood covers, which leaves out those whose difference reaches a gap
+(:func:`log_jacobian`). The Box-Cox transform with parameter lambda is ``(x**lambda - 1) /
+lambda``, and ``log(x)`` at lambda = 0 (Box & Cox 1964).
 
 References
 ----------
@@ -23,6 +25,8 @@ References
    Springer, §2.6 (rules of thumb for AIC differences).
 .. [4] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
    3rd ed., OTexts, §3.1 (transformations).
+.. [5] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series Analysis:
+   Forecasting and Control*, 5th ed., Wiley, §9.2 (:func:`order_before_search`).
 """
 
 from __future__ import annotations
@@ -36,7 +40,7 @@ from scipy.special import boxcox, inv_boxcox
 
 from app.core.errors import OrderError
 from app.core.fitting import likelihood_points
-from app.core.order import Order
+from app.core.order import Order, default_trend
 from app.core.prepare import interpolate_gaps
 from app.core.transform_choice import TransformChoice
 
@@ -172,8 +176,32 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
     return alternatives, [f"Guerrero's lambda {estimate:.2f} rounds to {lam:g}, weighed as well."]
 
 
+def order_before_search(d: int, D: int, period: int | None) -> Order:
+    """The order the transforms are first weighed under, before any candidate is fitted:
+    ARIMA(1,d,1)(0,D,1)s with the differencing the unit-root tests chose on the series as
+    observed, and a mean when d + D = 0.
+
+    It only chooses the scale the search starts on; the comparison is run again under the
+    leader of that search (:func:`app.core.identify.identify_prepared`), which decides. The
+    multiplicative seasonal MA model with both differences is the form Box & Jenkins fitted to
+    the logarithms of airline passenger numbers (Box, Jenkins, Reinsel & Ljung 2015, §9.2;
+    section from memory), the model a practitioner fits first to see whether a seasonal series
+    wants its log. The AR(1) term takes up a difference the tests left out: its coefficient goes
+    to 1 where a unit root remains. Without it, AirPassengers (whose tests leave d = 0 after the
+    seasonal difference) was weighed under an MA(1) on a trending series, which fits so badly
+    that it favoured no transform against the published log.
+
+    References
+    ----------
+    .. [1] Box, G.E.P., Jenkins, G.M., Reinsel, G.C. & Ljung, G.M. (2015). *Time Series
+       Analysis: Forecasting and Control*, 5th ed., Wiley, §9.2.
+    """
+    seasonal = (0, D, 1, period) if period else (0, 0, 0, 0)
+    return Order.of((1, d, 1), seasonal, default_trend(d, D))
+
+
 def choose_transform(
-    x: np.ndarray, period: int | None, model: Order, scale: TransformChoice,
+    x: np.ndarray, period: int | None, model: Order, role: str,
     loglik_on: Callable[[TransformChoice], float], first: int = 1, smallest: float = math.inf,
 ) -> TransformChoice:
     """No transform, the log, or Box-Cox, by the likelihood of the original data under one order.
@@ -181,8 +209,7 @@ def choose_transform(
     Rule (the threshold tied to Burnham & Anderson's rule of thumb):
 
     1. only a strictly positive series is transformed;
-    2. the order ``model``, the leader of the identification on the ``scale`` series, is
-       fitted with no transform and with each of :func:`transform_alternatives`
+    2. the order ``model`` is fitted with no transform and with each of :func:`transform_alternatives`
        (``loglik_on``); the log-Jacobian over the observations its likelihood covers
        (:func:`log_jacobian`) is added, which makes the log-likelihoods those of the same
        original data (Box & Cox 1964, §3), so they can be compared;
@@ -203,8 +230,8 @@ def choose_transform(
         Seasonal period for Guerrero's subseries; None for a non-seasonal series.
     model : Order
         The order compared under.
-    scale : TransformChoice
-        The transform of the series the order was identified on, for the words.
+    role : str
+        Where the order comes from, for the words (e.g. "the leader on the log scale").
     loglik_on : callable
         The order's maximised log-likelihood on the series under a given transform (NaN when
         it cannot be fitted).
@@ -237,14 +264,13 @@ def choose_transform(
             words.append(f"{model.label()} could not be fitted on the {choice.name()} scale: not weighed.")
     if not scored:
         return TransformChoice("none", explanation=[*words, "Nothing to compare: no transform."])
-    on = "the series as observed" if scale.kind == "none" else f"the {scale.name()} scale"
     lost = model.lost_to_differencing
     covered = int(np.count_nonzero(~np.isnan(likelihood_points(values, model))))
     span = f"observations {first + lost}-{first + values.size - 1}"
     if covered < values.size - lost:
         span += f", the {covered} of them whose differences are not missing"
     words.append(
-        f"Under {model.label()}, the leader on {on}, the log-likelihoods of the original data (Jacobian of the "
+        f"Under {model.label()}, {role}, the log-likelihoods of the original data (Jacobian of the "
         f"transform included, {span}) are: " + ", ".join(f"{c.name()} {ll:.1f}" for c, ll in scored) + "."
     )
 

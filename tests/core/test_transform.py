@@ -28,6 +28,7 @@ from app.core.transform import (
     guerrero_lambda,
     invert_transform,
     log_jacobian,
+    order_before_search,
     simple_lambda,
 )
 
@@ -77,7 +78,7 @@ def _exp_of_airline(seed: int, n: int = 144) -> pd.Series:
 def _choose_under(x: np.ndarray, model: Order, period: int | None = None) -> TransformChoice:
     """The transform :func:`choose_transform` picks under ``model``, fitted by the engine."""
     with threadpool_limits(1):
-        return choose_transform(x, period, model, TransformChoice("none"),
+        return choose_transform(x, period, model, "the order compared under",
                                 lambda choice: fit_candidate(apply_transform(x, choice), model).loglik)
 
 
@@ -181,7 +182,7 @@ def test_air_passengers_log_beats_none_under_the_airline_model_as_statsmodels_fi
             return SARIMAX(apply_transform(air_passengers, choice), order=(0, 1, 1), seasonal_order=(0, 1, 1, 12),
                            simple_differencing=True).fit(disp=False).llf
 
-    choice = choose_transform(air_passengers, 12, AIRLINE, TransformChoice("none"), statsmodels_loglik)
+    choice = choose_transform(air_passengers, 12, AIRLINE, "the airline model", statsmodels_loglik)
     assert choice.kind == "log", choice.explanation
     gain = statsmodels_loglik(TransformChoice("log")) - statsmodels_loglik(TransformChoice("none")) - np.log(air_passengers[13:]).sum()
     assert gain > 6
@@ -190,17 +191,19 @@ def test_air_passengers_log_beats_none_under_the_airline_model_as_statsmodels_fi
 
 
 def test_air_passengers_is_identified_on_the_log_scale_with_the_comparison_in_words(air_passengers):
-    # The published analysis (BJRL 2015 §9.2): log, then ARIMA(0,1,1)(0,1,1)12. The leader on the
-    # series as observed is another order, under which the log gains little; the comparison is
-    # repeated under the leader of each scale identified, and the correlograms are those of the
-    # differenced log series.
+    # The published analysis (BJRL 2015 §9.2): log, then ARIMA(0,1,1)(0,1,1)12. The transforms are
+    # first weighed under the airline form with an AR(1) term, which takes up the difference the
+    # tests leave out here; the series is identified once, on the log scale, the comparison is
+    # repeated under the leader found there and keeps the log, and the correlograms are those of
+    # the differenced log series.
     series = pd.Series(air_passengers, index=pd.date_range("1949-01-01", periods=144, freq="MS"), name="AirPassengers")
     with threadpool_limits(1):
         result = identify_series(series)
     words = " ".join(result.transform.explanation)
     assert result.transform.to_json() == "log", words
     assert "log gains" in words and "over none on the original scale under ARIMA(0,1,1)(0,1,1)12" in words
-    assert "Identified again on the log scale." in words
+    assert "The search starts on the log scale." in words and "Identified again" not in words
+    assert f"Under {result.suggested.model.label()}, the leader on the log scale" in words
     assert result.identified_label.startswith("log")
     best = result.suggested.model
     w = np.log(air_passengers)
@@ -249,14 +252,35 @@ def test_non_positive_series_is_not_transformed_and_nothing_is_fitted():
     def never(choice: TransformChoice) -> float:
         raise AssertionError("no fit is needed for a series with values <= 0")
 
-    choice = choose_transform(x, 12, validate_order((0, 1, 1)), TransformChoice("none"), never)
+    choice = choose_transform(x, 12, validate_order((0, 1, 1)), "an IMA(1,1)", never)
     assert choice.kind == "none" and choice.lam is None
     assert "<= 0" in choice.explanation[0]
 
 
+def test_a_series_with_values_at_or_below_zero_is_searched_once_as_observed():
+    rng = np.random.default_rng(20261205)
+    series = pd.Series(np.cumsum(rng.normal(size=120)), index=pd.date_range("2000-01-01", periods=120, freq="MS"))
+    assert series.min() <= 0
+    with threadpool_limits(1):
+        words = identify_series(series).transform.explanation
+    assert words == [f"The series has values <= 0 (smallest {series.min():.4g}): no log or Box-Cox transform.",
+                     "The search starts on the series as observed."]
+
+
+@pytest.mark.parametrize(("d", "D", "period", "label"), [
+    (1, 1, 12, "ARIMA(1,1,1)(0,1,1)12"), (1, 0, None, "ARIMA(1,1,1)"), (0, 1, 4, "ARIMA(1,0,1)(0,1,1)4"),
+    (0, 0, 12, "ARIMA(1,0,1)(0,0,1)12 with a mean"), (2, 0, None, "ARIMA(1,2,1)"),
+])
+def test_the_order_weighed_before_the_search_is_the_airline_form_with_the_tests_differencing(d, D, period, label):
+    # BJRL (2015) §9.2: the airline model's (0,D,1)s seasonal part, an ARMA(1,1) ordinary part on
+    # the tests' d, a mean when nothing is differenced.
+    model = order_before_search(d, D, period)
+    assert model.full_label() == label
+
+
 def test_an_order_that_cannot_be_fitted_on_a_scale_leaves_that_scale_out(air_passengers):
     logliks = {"none": -500.0, "log": float("nan"), "box_cox": -480.0}
-    choice = choose_transform(air_passengers, 12, AIRLINE, TransformChoice("none"),
+    choice = choose_transform(air_passengers, 12, AIRLINE, "the airline model",
                               lambda c: logliks[c.kind] - log_jacobian(air_passengers, c, AIRLINE))
     words = " ".join(choice.explanation)
     assert "could not be fitted on the log scale: not weighed" in words
