@@ -52,6 +52,8 @@ NOT_ANALYSED_SHOWN = 10
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
 BROWSER_DELAY_SECONDS = 1.5
+# ``lagdesk export -o -``: the export on standard output, as the convention of Unix tools has it.
+STDOUT = "-"
 
 
 def open_browser_later(url: str) -> None:
@@ -314,7 +316,11 @@ def _export_options(export: argparse.ArgumentParser) -> None:
 
     _add_db(export)
     export.add_argument("--format", choices=FORMATS, default="json", help="file format (default json)")
-    export.add_argument("-o", "--output", help="file to write, or a folder to write lagdesk-orders.FORMAT in (default: the current folder); written atomically")
+    export.add_argument(
+        "-o", "--output",
+        help=f"file to write (atomically), a folder to write lagdesk-orders.FORMAT in (default: the current folder), "
+        f"or {STDOUT} for standard output (the summary line then goes to stderr)",
+    )
     export.add_argument(
         "--status", default=",".join(DECIDED), metavar="LIST",
         help=f"decisions to include, comma-separated: {' or '.join(DECIDED)} or both (default {','.join(DECIDED)}); "
@@ -743,6 +749,12 @@ def _print(value: object, as_json: bool) -> None:
 def run_export(args: argparse.Namespace) -> int:
     from app.review.export import export_command
 
+    if args.output == STDOUT:
+        from app.review.export import export_to_stream
+
+        sys.stdout.flush()
+        print(export_to_stream(_existing_db(args.db), sys.stdout.buffer, args.format, args.status), file=sys.stderr)
+        return 0
     print(export_command(_existing_db(args.db), args.format, args.output, args.status))
     return 0
 

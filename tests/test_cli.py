@@ -367,6 +367,39 @@ def test_export_names_the_states_it_accepts_in_its_help_and_its_error(run_cli, s
     assert not target.exists()
 
 
+def test_export_to_a_dash_writes_the_export_on_stdout_and_the_summary_on_stderr(run_cli, small_csv, tmp_path, capsys, monkeypatch):
+    with pytest.raises(SystemExit):
+        main(["export", "--help"])
+    assert "or - for standard output" in " ".join(capsys.readouterr().out.split())
+    db = tmp_path / "portfolio.db"
+    run_cli("import", small_csv, "--db", db)
+    monkeypatch.chdir(tmp_path)
+    files = sorted(tmp_path.iterdir())
+
+    code, out, err = run_cli("export", "--db", db, "-o", "-")
+
+    assert code == 0 and sorted(tmp_path.iterdir()) == files  # no file named '-'
+    assert err == f"0 orders written to standard output as json; left out: {SERIES} pending, 0 parked, 0 recheck\n"
+    run_cli("export", "--db", db, "-o", "orders.json")
+    document = json.loads((tmp_path / "orders.json").read_text(encoding="utf-8"))
+    assert json.loads(out) == {**document, "generated_at": json.loads(out)["generated_at"]}
+    code, out, err = run_cli("export", "--db", db, "-o", "-", "--format", "csv")
+    run_cli("export", "--db", db, "-o", "orders.csv", "--format", "csv")
+    assert code == 0 and out == (tmp_path / "orders.csv").read_bytes().decode("utf-8") and "as csv" in err
+
+
+@pytest.mark.parametrize("command", ["identify", "import"])
+def test_a_wide_file_without_the_default_time_column_is_told_which_option_names_it(run_cli, tmp_path, command):
+    path = tmp_path / "wide.csv"
+    path.write_text("month,a,b\n" + "".join(f"2024-{m:02d}-01,{m},{2 * m}\n" for m in range(1, 13)))
+    more = ["--db", tmp_path / "p.db"] if command == "import" else ["--max-points", "1"]  # identify: rejects both, fast
+
+    code, out, err = run_cli(command, path, "--layout", "wide", *more)
+    assert (code, out) == (2, "") and err.endswith("; name the time column with --time-col (the upload's \"Time\" field)\n")
+    code, out, err = run_cli(command, path, "--layout", "wide", "--time-col", "month", *more)
+    assert code == (0 if command == "import" else 1) and err == "", err
+
+
 def test_lagdesk_script_is_the_installed_script_unless_the_name_on_the_path_runs_it(tmp_path):
     script = tmp_path / ".venv" / "bin" / "lagdesk"
     script.parent.mkdir(parents=True)
@@ -420,7 +453,10 @@ def test_import_of_an_unusable_file_stores_nothing(run_cli, small_csv, tmp_path)
     code, out, err = run_cli("import", bad, "--db", db)
 
     assert code == 2 and out == ""
-    assert err.splitlines() == [f"lagdesk import: {bad}: no column named 'series_id'; the header has 'id', 'timestamp', 'value'"]
+    assert err.splitlines() == [
+        f"lagdesk import: {bad}: no column named 'series_id'; the header has 'id', 'timestamp', 'value'; "
+        "name the series id column with --id-col (the upload's \"Series id\" field)"
+    ]
     with open_database(db) as handle:
         assert portfolio_status(handle)["series"] == SERIES
 

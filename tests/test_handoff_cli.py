@@ -67,6 +67,9 @@ def test_export_recheck_and_backtest_from_the_command_line(run_cli, tmp_path):
     document = json.loads(target.read_text())
     jsonschema.validate(document, SCHEMA)
     assert [(o["series_id"], o["p"], o["d"], o["q"]) for o in document["orders"]] == [(SID, 0, 0, 0)]
+    code, out, err = run_cli("export", "--db", db_path, "-o", "-")  # on stdout, the summary on stderr
+    assert code == 0 and err.startswith("1 order (1 approved) written to standard output as json; left out: 0 pending")
+    assert json.loads(out) == {**document, "generated_at": json.loads(out)["generated_at"]}
 
     longer = np.r_[noise, autocorrelated(N)]
     assert acorr_ljungbox(longer - longer.mean(), lags=[10], return_df=True)["lb_pvalue"].iloc[0] < 0.05

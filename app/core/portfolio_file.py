@@ -17,6 +17,7 @@ header is line 1), also after a quoted cell that spans lines.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -33,6 +34,9 @@ DEFAULT_ID_COL = "series_id"
 DEFAULT_TIME_COL = "timestamp"
 DEFAULT_VALUE_COL = "value"
 _NOT_FINITE_WORDS = frozenset({"nan", "inf", "infinity"})
+# What names each column the reader looks for: the option of ``lagdesk identify`` and ``lagdesk
+# import``, and the field of the upload page.
+_NAMED_BY = {"series id": ("--id-col", "Series id"), "time": ("--time-col", "Time"), "value": ("--value-col", "Value")}
 
 
 @dataclass
@@ -118,21 +122,37 @@ def read_portfolio(
         return reader.result()
 
 
-def _column_positions(table: CsvChunks, columns: list[str]) -> list[int]:
-    """Where each named column is in the header; a missing or repeated one is an error."""
+def _column_positions(table: CsvChunks, columns: dict[str, str]) -> list[int]:
+    """Where each column is in the header (``columns``: what it holds, a key of
+    :data:`_NAMED_BY` -> its name); a missing or repeated one is an error."""
     header = table.header
-    missing = [c for c in columns if c not in header]
+    missing = {role: name for role, name in columns.items() if name not in header}
     if missing:
         found = ", ".join(repr(shorten(c)) for c in header[:10])
-        hint = ""
         if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
             hint = " (the file may use another delimiter than a comma)"
+        else:
+            hint = _naming_hint(list(missing))
         raise InputFileError(
-            table.name, f"no column named {', '.join(repr(shorten(c)) for c in missing)}; the header has {found}{hint}"
+            table.name, f"no column named {', '.join(repr(shorten(c)) for c in missing.values())}; the header has {found}{hint}"
         )
-    for column in columns:
+    for column in columns.values():
         _refuse_repeated(table, column)
-    return [header.index(c) for c in columns]
+    return [header.index(c) for c in columns.values()]
+
+
+def _naming_hint(roles: list[str]) -> str:
+    """How to name the columns holding ``roles`` (keys of :data:`_NAMED_BY`): in the words of the
+    command line and of the upload page, which both show this message."""
+    options = [_NAMED_BY[role][0] for role in roles]
+    fields = [f'"{_NAMED_BY[role][1]}"' for role in roles]
+    s = "" if len(roles) == 1 else "s"
+    return f"; name the {_listed(roles)} column{s} with {_listed(options)} (the upload's {_listed(fields)} field{s})"
+
+
+def _listed(words: Sequence[str]) -> str:
+    """``a``, ``a and b``, ``a, b and c``."""
+    return " and ".join([", ".join(words[:-1]), words[-1]] if len(words) > 1 else words)
 
 
 def _refuse_repeated(table: CsvChunks, column: str) -> None:
@@ -192,7 +212,7 @@ class _LongReader:
     ) -> None:
         self.name = table.name
         self.id_col = id_col
-        self.positions = _column_positions(table, [id_col, time_col, value_col])
+        self.positions = _column_positions(table, {"series id": id_col, "time": time_col, "value": value_col})
         self.stamps = stamps
         self.limits = limits
         self.codes: dict[str, int] = {}
@@ -303,7 +323,7 @@ class _WideReader:
 
     def __init__(self, table: CsvChunks, stamps: TimestampColumn, time_col: str, limits: ReadLimits | None) -> None:
         self.name = table.name
-        (self.time_position,) = _column_positions(table, [time_col])
+        (self.time_position,) = _column_positions(table, {"time": time_col})
         for name in table.header:
             _refuse_repeated(table, name)
         self.value_positions = [i for i, name in enumerate(table.header) if name != time_col]

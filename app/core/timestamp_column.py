@@ -11,6 +11,9 @@ Rules (each refusal names the first line to blame):
   A timestamp written in another format is refused; so is a file whose dates read differently
   month first and day first (``01/02/2024``) with none telling which, naming the first line
   where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
+* **Dates that do not exist.** A timestamp written like the file's dates (or like a date at all)
+  whose numbers name no day or time (``2021-13-01``, ``2020-02-30``, ``10:61``) is refused as
+  such, naming the number, rather than as a timestamp in another format.
 * **Time zones.** Either every timestamp carries a UTC offset or none does. The offsets of one
   file must be one time zone's: at most two, at most an hour apart (standard and daylight-saving
   time, e.g. +01:00 and +02:00). When the clock times of the file vary (hourly readings, say),
@@ -25,6 +28,7 @@ Rules (each refusal names the first line to blame):
 
 from __future__ import annotations
 
+import calendar
 import re
 import warnings
 from typing import NoReturn
@@ -51,6 +55,18 @@ NS_PER_MINUTE = 60 * 10**9
 NS_PER_DAY = 24 * 60 * NS_PER_MINUTE
 _CLOCK_WORDS = ("now", "today")  # pandas reads them as the time of reading, whatever the format
 _OFFSET_SUFFIX = r"(?i)(?<=\d)\s?(?:(?P<z>z)|(?P<sign>[+-])(?P<hours>\d\d):?(?P<minutes>\d\d)?)$"
+# The numbered fields of a date format, the digits each is written with and the numbers that
+# exist, in the order a reading is checked (the day's upper end is its month's length).
+_FIELDS = {
+    "Y": ("year", r"\d{4}", 1, 9999), "m": ("month", r"\d{1,2}", 1, 12), "d": ("day", r"\d{1,2}", 1, 31),
+    "H": ("hour", r"\d{1,2}", 0, 23), "M": ("minute", r"\d{1,2}", 0, 59), "S": ("second", r"\d{1,2}", 0, 59),
+}
+_TIME_FIELDS = ("hour", "minute", "second")
+# A year whose February has 29 days: the longest month for a date written without its year.
+_LEAP_YEAR = 2000
+# Numbers of these widths, in a text guessed for its layout, are replaced by ones any date
+# field takes, so that pandas guesses the layout of a date whose own numbers do not exist.
+_POSSIBLE_NUMBERS = {1: "1", 2: "01", 4: str(_LEAP_YEAR)}
 
 
 class TimestampColumn:
@@ -139,8 +155,8 @@ class TimestampColumn:
         formats = [self.date_format] if self.date_format else _formats_of(texts.iloc[0])
         if not formats:
             self._refuse(
-                lines[0], texts.iloc[0], "is not a date, time or integer step Lagdesk recognises; give its format "
-                "with --date-format (for example %b %Y for 'Jan 2024')",
+                lines[0], texts.iloc[0], _nonexistent(texts.iloc[0], []) or "is not a date, time or integer step Lagdesk "
+                "recognises; give its format with --date-format (for example %b %Y for 'Jan 2024')",
             )
         self._kept = {fmt: [] for fmt in formats}
 
@@ -237,11 +253,14 @@ class TimestampColumn:
             self._offsets[int(minutes)] = (int(lines[i]), texts.iloc[i])
 
     def _misread_reason(self, text: str) -> str:
+        line, first = self._first
+        nonexistent = _nonexistent(text, [self.date_format] if self.date_format else _layouts(first))
+        if nonexistent:
+            return nonexistent
         if not _formats_of(text):
             return "is not a date, time or integer step"
         if self.date_format:
             return f"does not match the date format {self.date_format!r}"
-        line, first = self._first
         return f"is not written like the first timestamp {shorten(first)!r} (line {line}): the timestamps of a file must share one format"
 
     def _series_on(self, line: int) -> str | None:
@@ -264,17 +283,70 @@ def _steps(texts: pd.Series) -> np.ndarray:
 
 
 def _formats_of(text: str) -> list[str]:
-    """The formats a timestamp can be read with: ISO 8601, or pandas' guesses month first and
-    day first (only the first for a year-first date: nobody writes year, day, month)."""
+    """The formats a timestamp can be read with: ISO 8601, or those of :func:`_layouts`."""
     if len(text) > MAX_DATE_CHARS or text in _CLOCK_WORDS:
         return []
     if _reads(text, ISO8601):
         return [ISO8601]
+    return [fmt for fmt in _layouts(text) if _reads(text, fmt)]
+
+
+def _layouts(text: str) -> list[str]:
+    """pandas' guesses of the ``strftime`` format of ``text``, month first and day first (the
+    latter not when it puts the year first: nobody writes year, day, month)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)
-        month_first = guess_datetime_format(text)
-        guesses = [month_first] if month_first and month_first.startswith("%Y") else [month_first, guess_datetime_format(text, dayfirst=True)]
-    return [fmt for i, fmt in enumerate(guesses) if fmt and fmt not in guesses[:i] and _reads(text, fmt)]
+        month_first, day_first = guess_datetime_format(text), guess_datetime_format(text, dayfirst=True)
+    guesses = [month_first, None if day_first and day_first.startswith("%Y") else day_first]
+    return list(dict.fromkeys(fmt for fmt in guesses if fmt))
+
+
+def _nonexistent(text: str, layouts: list[str]) -> str | None:
+    """Why ``text`` is no date when it is written in one of ``layouts`` (a file's formats), or
+    else in a layout of its own, but a number in it does not exist: month 13, 30 February, hour
+    25. Of several readings (day first and month first) the one that gets furthest is named (a
+    day past its month's end before a month past 12). None when ``text`` is written in none of
+    these layouts, or some reading of it finds every number possible.
+    """
+    if len(text) > MAX_DATE_CHARS:
+        return None
+    own = _layouts(re.sub(r"\d+", lambda digits: _POSSIBLE_NUMBERS.get(len(digits[0]), digits[0]), text))
+    for candidates in (layouts, own):
+        readings = [match.groupdict() for layout in candidates if (match := _layout_pattern(layout).fullmatch(text))]
+        problems = [problem for fields in readings if (problem := _first_problem(fields)) is not None]
+        if readings:
+            return max(problems)[1] if len(problems) == len(readings) else None
+    return None
+
+
+def _layout_pattern(layout: str) -> re.Pattern[str]:
+    """A pattern that texts written in ``layout`` match whatever their numbers, with a group for
+    each numbered field (``2021-13-01`` matches that of ``%Y-%m-%d``, month ``13``); any other
+    directive (a month name, a time zone) matches any text."""
+    parts = re.split(r"%(.)", layout)  # text, directive, text, ...
+    return re.compile("".join(
+        (f"(?P<{_FIELDS[part][0]}>{_FIELDS[part][1]})" if part in _FIELDS else ".+?") if i % 2 else re.escape(part)
+        for i, part in enumerate(parts)
+    ), re.IGNORECASE)
+
+
+def _first_problem(fields: dict[str, str]) -> tuple[int, str] | None:
+    """The first of a reading's ``fields`` (name -> digits) whose number does not exist, as its
+    rank in :data:`_FIELDS` and the reason; None when every one exists."""
+    numbers = {name: int(digits) for name, digits in fields.items()}
+    for rank, (name, _, low, high) in enumerate(_FIELDS.values()):
+        if name == "day" and "month" in numbers:
+            high = calendar.monthrange(numbers.get("year", _LEAP_YEAR), numbers["month"])[1]
+        number = numbers.get(name)
+        if number is None or low <= number <= high:
+            continue
+        if name in _TIME_FIELDS:
+            return rank, f"is not a time: there is no {name} {number} ({name}s run from {low} to {high})"
+        if name == "day" and "month" in numbers:
+            month = calendar.month_name[numbers["month"]] + (f" {numbers['year']}" if "year" in numbers else "")
+            return rank, f"is not a date: {month} has no day {number}"
+        return rank, f"is not a date: there is no {name} {number}"
+    return None
 
 
 def _reads(text: str, fmt: str) -> bool:

@@ -45,6 +45,7 @@ import secrets
 import stat
 from collections.abc import Sequence
 from pathlib import Path
+from typing import BinaryIO
 
 import sqlite_utils
 
@@ -197,7 +198,23 @@ def export_command(
     return export_summary(document, target, fmt)
 
 
-def export_summary(document: dict, target: Path, fmt: str) -> str:
+def export_to_stream(db_path: str | Path, stream: BinaryIO, fmt: str = "json", statuses: str | Sequence[str] = DECIDED) -> str:
+    """``lagdesk export -o -``: the bytes the export file would hold (UTF-8, whatever the
+    terminal's encoding) written to ``stream`` once the whole document is built; returns the
+    summary line, which the caller puts elsewhere (stderr) so that the stream holds the orders
+    alone."""
+    chosen = parse_statuses(statuses)
+    db = open_database(db_path)
+    try:
+        document = build_orders_document(db, chosen)
+    finally:
+        db.close()
+    stream.write(orders_text(document, fmt).encode("utf-8"))
+    stream.flush()
+    return export_summary(document, "standard output", fmt)
+
+
+def export_summary(document: dict, target: str | Path, fmt: str) -> str:
     """One line: what was written where, what was left out, the series marked ``not_arima``, and
     which orders await a re-check (``data_changed``)."""
     orders = document["orders"]

@@ -107,6 +107,23 @@ def test_missing_column_names_the_column_and_the_header(tmp_path):
     assert message.startswith(str(tmp_path / "portfolio.csv"))
 
 
+def test_a_missing_column_says_how_to_name_it(tmp_path):
+    """In the words of both places that show the message: the option of identify and import,
+    and the field of the upload page."""
+    with pytest.raises(InputFileError) as info:
+        read_portfolio(_write(tmp_path, "month,a,b\n2024-01-01,1,2\n"), layout="wide")
+    assert str(info.value).endswith(
+        ": no column named 'timestamp'; the header has 'month', 'a', 'b'; "
+        "name the time column with --time-col (the upload's \"Time\" field)"
+    )
+    with pytest.raises(InputFileError) as info:
+        read_portfolio(_write(tmp_path, "id,timestamp,amount\na,1,2\n"))
+    assert str(info.value).endswith(
+        ": no column named 'series_id', 'value'; the header has 'id', 'timestamp', 'amount'; name the series id and "
+        "value columns with --id-col and --value-col (the upload's \"Series id\" and \"Value\" fields)"
+    )
+
+
 def test_other_delimiter_is_hinted(tmp_path):
     with pytest.raises(InputFileError, match="another delimiter"):
         read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;2\n"))
@@ -298,6 +315,35 @@ def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
     with pytest.raises(InputFileError, match=r"line 2 \(series 'a'\): timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
         _stamps(tmp_path, ["Jan 2024", "Feb 2024"])
     assert _stamps(tmp_path, ["Jan 2024", "Feb 2024"], date_format="%b %Y").tolist() == pd.to_datetime(["2024-01-01", "2024-02-01"]).tolist()
+
+
+@pytest.mark.parametrize(("bad", "why"), [
+    ("2021-13-01", "is not a date: there is no month 13"),
+    ("2020-02-30", "is not a date: February 2020 has no day 30"),
+    ("2021-01-01 24:00", "is not a time: there is no hour 24 (hours run from 0 to 23)"),
+])
+@pytest.mark.parametrize("line", [179, 2], ids=["mid-file", "first"])
+def test_a_date_that_does_not_exist_is_named_as_such(tmp_path, tiny_chunks, bad, why, line):
+    """Written like the other dates, but naming no day or time: the number is named, not the
+    format (a first timestamp 2021-13-01 was read year, day, month)."""
+    days = pd.date_range("2019-01-01", periods=200).strftime("%Y-%m-%d").tolist()
+    days[line - 2] = bad
+    with pytest.raises(InputFileError) as info:
+        _stamps(tmp_path, days)
+    assert str(info.value).endswith(f"portfolio.csv: line {line} (series 'a'): timestamp {bad!r} {why}")
+
+
+def test_a_date_that_does_not_exist_is_named_in_the_files_reading_of_it(tmp_path, tiny_chunks):
+    day_first, month_first = ["13/01/2021", "31/04/2021"], ["01/13/2021", "31/04/2021"]
+    with pytest.raises(InputFileError, match=r"line 3 \(series 'a'\): timestamp '31/04/2021' is not a date: April 2021 has no day 31$"):
+        _stamps(tmp_path, day_first)
+    with pytest.raises(InputFileError, match=r"line 3 \(series 'a'\): timestamp '31/04/2021' is not a date: there is no month 31$"):
+        _stamps(tmp_path, month_first)
+    # While both readings are open, the one that gets further: a day past its month's end.
+    with pytest.raises(InputFileError, match=r"timestamp '31/04/2021' is not a date: April 2021 has no day 31$"):
+        _stamps(tmp_path, ["01/02/2021", "31/04/2021"])
+    with pytest.raises(InputFileError, match=r"line 3 \(series 'a'\): timestamp '29/02/2021' is not a date: February 2021 has no day 29$"):
+        _stamps(tmp_path, ["28/02/2021", "29/02/2021"], date_format="%d/%m/%Y")
 
 
 def test_offsets_keep_the_local_date_of_calendar_data_and_put_clock_times_in_utc(tmp_path, tiny_chunks):
