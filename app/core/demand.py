@@ -54,7 +54,9 @@ class DemandPattern:
         if self.sparse:
             text += (" A Gaussian ARIMA suits such a series poorly: it forecasts a smooth level and its lower "
                      "bounds go below zero. Practitioners use Croston's method or its bias-corrected variant "
-                     "(Syntetos & Boylan 2005); the reviewer can record this series as not an ARIMA series.")
+                     "(Syntetos & Boylan 2005); the reviewer can record this series as not an ARIMA series. "
+                     "Outliers and level shifts are not sought: against that smooth level every period with a "
+                     "demand would read as one.")
         return text
 
 

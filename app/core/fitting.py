@@ -12,11 +12,13 @@ residuals, the residual ACF, and root checks.
   statsmodels ``ARIMA`` computes at the same parameters (the tests check it to 1e-9); the
   optimum is sought from several starts, the optimum of any smaller order already fitted among
   them, so a larger order never ends below an order it contains.
-* Ljung-Box: ``h = 10`` lags without seasonal terms and ``h = 2s`` with them, at most ``n/5``
-  (Hyndman & Athanasopoulos' rule, common practice), degrees of freedom ``h - (p + q + P + Q)``;
-  ``h`` is raised to at least ``p + q + P + Q + 3`` so the test keeps three degrees of freedom,
-  and for a seasonal model to at least ``s + p + q + P + Q + 3`` when that is below ``n``, so
-  lag ``s`` is always tested (see :func:`ljung_box_lags`). Residuals are those of the
+* Ljung-Box: ``h = 10`` lags for non-seasonal data and ``h = 2s`` for data with period ``s``,
+  at most ``n/5`` (Hyndman & Athanasopoulos' rule, common practice), degrees of freedom
+  ``h - (p + q + P + Q)``; ``h`` is raised to at least ``p + q + P + Q + 3`` so the test keeps
+  three degrees of freedom, and for seasonal data to at least ``s + p + q + P + Q + 3`` when
+  that is below ``n``, so lag ``s`` is always tested (see :func:`ljung_box_lags`). The period is
+  the data's: a model without seasonal terms fitted to data that show a season is tested at the
+  seasonal lags too. Residuals are those of the
   differenced series, so the ``d + sD`` start-up values that a levels filter would produce never
   enter the test.
 * Residual ACF: drawn and judged against the white-noise band ``+-1.96/sqrt(n)`` at every lag,
@@ -146,15 +148,19 @@ def _finite_or_none(value: float | None) -> float | None:
     return None if value is None or not math.isfinite(value) else float(value)
 
 
-def ljung_box_lags(n: int, model: Order) -> int:
-    """Lags ``h`` of the Ljung-Box test on the ``n`` residuals of a fit of ``model``.
+def ljung_box_lags(n: int, model: Order, period: int | None = None) -> int:
+    """Lags ``h`` of the Ljung-Box test on the ``n`` residuals of a fit of ``model`` to data
+    with seasonal ``period``.
 
-    The rule, with ``k = p + q + P + Q`` the number of ARMA coefficients:
+    The rule, with ``k = p + q + P + Q`` the number of ARMA coefficients and ``s`` the period of
+    the data (the model's own when it has seasonal terms, else ``period``):
 
-    1. ``h = min(10, n // 5)`` for a model without seasonal terms, ``h = min(2s, n // 5)`` for a
-       seasonal one (Hyndman & Athanasopoulos 2021, §5.4: "common practice");
+    1. ``h = min(10, n // 5)`` for non-seasonal data, ``h = min(2s, n // 5)`` for seasonal data
+       (Hyndman & Athanasopoulos 2021, §5.4: "common practice"; the rule is stated for the
+       data, so a non-seasonal model of seasonal monthly data is tested at lag 12 too, which is
+       where dropping a season the data have shows);
     2. ``h`` is raised to ``k + 3``, so the chi-square reference keeps three degrees of freedom;
-    3. for a seasonal model ``h`` is raised to ``s + k + 3`` when that is below ``n``.
+    3. for seasonal data ``h`` is raised to ``s + k + 3`` when that is below ``n``.
 
     Step 3 is there because lag ``s`` is where a wrong seasonal part shows in the residuals, and
     the ``n/5`` cap alone leaves it out of the test on short or long-period series (``s = 52``
@@ -168,7 +174,10 @@ def ljung_box_lags(n: int, model: Order) -> int:
     n : int
         Number of residuals (observations after differencing).
     model : Order
-        The fitted order; its period counts only when it has seasonal terms.
+        The fitted order.
+    period : int, optional
+        The seasonal period of the data when they show a season (None for non-seasonal data);
+        counts when the model has no seasonal terms.
 
     Returns
     -------
@@ -182,7 +191,7 @@ def ljung_box_lags(n: int, model: Order) -> int:
     .. [2] Hyndman, R.J. & Athanasopoulos, G. (2021). *Forecasting: Principles and Practice*,
        3rd ed., OTexts, §5.4.
     """
-    s, k = model.seasonal_order[3], model.n_arma
+    s, k = model.seasonal_order[3] or (period or 0), model.n_arma
     h = max(min(2 * s, n // 5) if s else min(10, n // 5), k + 3)
     return max(h, s + k + 3) if s and s + k + 3 < n else h
 
@@ -309,7 +318,7 @@ def _model_data(y: np.ndarray, model: Order) -> tuple[np.ndarray, list[str], np.
 
 def fit_candidate(
     y: np.ndarray, model: Order, fitted: Iterable[CandidateFit] = (), screened: ScreenedCandidate | None = None,
-    warm: CandidateFit | None = None,
+    warm: CandidateFit | None = None, period: int | None = None,
 ) -> CandidateFit:
     """Fit ``model`` to ``y`` by exact maximum likelihood and run its diagnostics.
 
@@ -326,6 +335,10 @@ def fit_candidate(
         The screen of this order (:func:`screen_candidate`); the fit continues from it.
     warm : CandidateFit, optional
         The same order fitted to a stretch of the same series; its optimum is one more start.
+    period : int, optional
+        The seasonal period of data that show a season, for the residual checks of a model
+        without seasonal terms (:func:`ljung_box_lags`; the residual correlogram reaches lag
+        ``2 * period`` as the series' own does).
     """
     w, names, design, spec = _model_data(y, model)
     starts = _nested_starts(model, fitted)
@@ -334,10 +347,10 @@ def fit_candidate(
     estimate = fit_arma(w, spec, design, starts, screened.screen if screened else None)
     resid = estimate.residuals
     n = int(np.count_nonzero(~np.isnan(resid)))
-    h = ljung_box_lags(n, model)
+    h = ljung_box_lags(n, model, period)
     flags: list[str] = [] if estimate.converged else [Flag.NO_CONVERGENCE]
     flags += root_flags(*factor_roots(spec, estimate.coefficients))
-    nlags = min(lag_count(n, model.seasonal_order[3] or None), resid.size - 1)
+    nlags = min(lag_count(n, model.seasonal_order[3] or period), resid.size - 1)
     k, loglik = _parameter_count(names, spec), estimate.loglik
     criteria = information_criteria(loglik, k, n)
     return CandidateFit(

@@ -222,6 +222,16 @@ class Identification:
                 f"autoregressive factor has a root at {root.real:.3f}, next to 1: a unit root the differencing left in, so "
                 f"d = {further[1]} was searched as well."]
 
+    def _trend_left_words(self) -> list[str]:
+        """Why a trend the tests read is not in the suggestion, when it is not: the deterministic
+        term is chosen by the criterion like the order (:func:`trend_choices`)."""
+        model = self.suggested.model
+        if not self.differencing.trend_stationary or model.d or "t" in model.trend:
+            return []
+        kept = model.term_words().strip() or "without a deterministic term"
+        return [f"The criterion preferred {model.label()} {kept} to the linear trend the tests read: "
+                "the suggestion has no trend to extrapolate."]
+
     def to_analysis(self) -> Analysis:
         """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
         best = self.suggested
@@ -244,7 +254,8 @@ class Identification:
             differencing=DifferencingSummary(
                 d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
                 trend_stationary=decision.trend_stationary,
-                tests=tuple(decision.tests), explanation=(*decision.explanation, *(w for _, w in across)),
+                tests=tuple(decision.tests),
+                explanation=(*decision.explanation, *(w for _, w in across), *self._trend_left_words()),
             ),
             seasonal=replace(seasonal, explanation=(*seasonal.explanation, *(w for which, w in across if which == "D"))),
             acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
@@ -357,7 +368,9 @@ class _Search:
                 self.screened_out[key] = models[key]
                 continue
             try:
-                fit = fit_candidate(self.y, models[key], self.fitted.values(), screens.get(key))
+                # The residuals of every order, seasonal terms or not, are checked at the seasonal
+                # lags of data that show a season (fitting.ljung_box_lags).
+                fit = fit_candidate(self.y, models[key], self.fitted.values(), screens.get(key), period=self.period)
             except (np.linalg.LinAlgError, ValueError) as exc:
                 # One order the optimiser cannot handle costs that candidate only.
                 self.failed.append(f"{models[key].label()} could not be fitted ({type(exc).__name__}: {exc})")
@@ -414,6 +427,7 @@ class SearchResult:
     identified_on: np.ndarray
     words: list[str]
     screened_out: list[Order]
+    period: int | None  # the seasonal period searched: None when the data showed no season
 
 
 def search_candidates(
@@ -459,7 +473,8 @@ def search_candidates(
                                                + " too few observed values are left for any order")
         raise SeriesProblem(series_id, "no candidate model could be fitted: " + why, flag="no_fit")
     screened = sorted(search.screened_out.values(), key=lambda m: m.label())
-    return SearchResult(best_term_per_order(list(search.fitted.values()), options.criterion), cg, w, words + search.failed, screened)
+    return SearchResult(best_term_per_order(list(search.fitted.values()), options.criterion), cg, w, words + search.failed, screened,
+                        period)
 
 
 def best_term_per_order(fits: list[CandidateFit], criterion: str) -> list[CandidateFit]:
@@ -550,7 +565,7 @@ def _differencing(series_id: str, y: np.ndarray, period: int | None, period_word
         if D and np.ptp(w[~np.isnan(w)]) == 0.0:
             raise SeriesProblem(series_id, f"repeats itself exactly every {period} points: after the seasonal difference "
                                 "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
-        setups[D] = (seasonal, choose_differencing(w))
+        setups[D] = (seasonal, choose_differencing(w, seasonally_differenced=D > 0))
     return setups
 
 
@@ -781,7 +796,7 @@ def _finished(
         flags.append(Flag.TRANSFORMED)
     if decision.uncertain or any(FURTHER_DIFFERENCE in f.source for f in ranked):
         flags.append(Flag.UNCERTAIN_DIFFERENCING)
-    if decision.trend_stationary and best.model.d == 0:
+    if decision.trend_stationary and best.model.d == 0 and "t" in best.model.trend:
         flags.append(Flag.TREND_STATIONARY)
     for flag in best.flags + ([] if best.passes_ljung_box else [Flag.RESIDUAL_AUTOCORRELATION]):
         if flag not in flags:
@@ -920,9 +935,13 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
         found, search = _identify_on(prepared, choice, period, period_words, options)
         passes[key] = (found, search)
     # Outliers and level shifts are sought on the scale chosen: on the wrong one, the larger
-    # swings of a multiplicative series would read as outliers.
+    # swings of a multiplicative series would read as outliers. Not on intermittent or lumpy
+    # demand: against the smooth level a Gaussian ARIMA fits there, every period with a demand
+    # reads as an outlier and the adjusted series goes below zero (the data note says so).
     y = apply_transform(prepared.values, found.transform)
-    adjusted_search, interventions = _with_interventions(prepared, y, search, period, period_words, options)
+    demand = classify_demand(prepared.values)
+    adjusted_search, interventions = ((search, []) if demand is not None and demand.sparse
+                                      else _with_interventions(prepared, y, search, period, period_words, options))
     if interventions and found.transform.kind != "none":
         # A spike alone can make a transform that shrinks it win the comparison: it is weighed
         # again on the series with the interventions taken out, under the leader found there.
@@ -976,7 +995,7 @@ def _on_whole_series(
     groups: dict[tuple[int, int], list[CandidateFit]] = {}
     for candidate in found.candidates[:REFITTED]:
         try:
-            fit = fit_candidate(y, candidate.model, warm=candidate)
+            fit = fit_candidate(y, candidate.model, warm=candidate, period=search.searches[(candidate.model.D, candidate.model.d)].period)
         except (np.linalg.LinAlgError, ValueError):
             continue  # the order stays out of the whole-series ranking
         fit.source = candidate.source

@@ -262,7 +262,8 @@ def read_seasonal_patterns(cg: Correlogram, period: int, max_P: int, max_Q: int)
     Read as at the low lags (Box, Jenkins, Reinsel & Ljung 2015, ch. 9): an ACF spike at ``s``
     and nothing at ``2s`` suggests Q = 1; PACF spikes at ``s`` and ``2s`` suggest P = 2; no spike
     at either suggests no seasonal ARMA term. A cut-off beyond the limit is read as a decay and
-    proposes the mixed (1, 1).
+    proposes the mixed (1, 1); so do spikes in both within the limits, beside the pure terms.
+    The words say which of these was read: both decaying, one, or spikes in both.
     """
     Q_cut = seasonal_cutoff(cg.acf, cg.acf_band, period, max_Q)
     P_cut = seasonal_cutoff(cg.pacf, cg.pacf_band, period, max_P)
@@ -277,7 +278,17 @@ def read_seasonal_patterns(cg: Correlogram, period: int, max_P: int, max_Q: int)
     if 0 < P_cut <= max_P:
         proposals.setdefault((P_cut, 0), []).append("seasonal PACF cut-off")
         words.append(f"The PACF has spikes at the first {P_cut} seasonal lag(s) and none after: seasonal AR({P_cut}).")
-    if Q_cut > max_Q or P_cut > max_P or (Q_cut and P_cut):
+    if Q_cut > max_Q and P_cut > max_P:
         proposals.setdefault((1, 1), []).append("seasonal both tail off")
         words.append("Both tail off at the seasonal lags: a mixed seasonal term.")
+    elif Q_cut > max_Q or P_cut > max_P:
+        which, limit = ("ACF", max_Q) if Q_cut > max_Q else ("PACF", max_P)
+        proposals.setdefault((1, 1), []).append("seasonal decay")
+        words.append(f"The {which} has spikes at more than the first {limit} seasonal lag(s), read as a decay: "
+                     "a mixed seasonal term is weighed too.")
+    elif Q_cut and P_cut:
+        # Each reading alone names a pure term; a seasonal ARMA shows spikes in both, so the mixed
+        # term is proposed beside them and the fits decide.
+        proposals.setdefault((1, 1), []).append("seasonal spikes in both")
+        words.append("Both the ACF and the PACF have seasonal spikes: a mixed seasonal term is weighed beside the two pure ones.")
     return proposals, words

@@ -59,7 +59,8 @@ DEMOTION_LEVEL = 0.01
 PATTERN_BONUS = 1.0
 PATTERN_SOURCES = frozenset({
     "PACF cut-off", "ACF cut-off", "EACF vertex", "both tail off", "white noise",
-    "seasonal ACF cut-off", "seasonal PACF cut-off", "seasonal both tail off", "no seasonal spike",
+    "seasonal ACF cut-off", "seasonal PACF cut-off", "seasonal both tail off", "seasonal decay", "seasonal spikes in both",
+    "no seasonal spike",
 })
 
 

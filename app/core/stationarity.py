@@ -76,6 +76,7 @@ KPSS_LEVEL_KEY = "5%"
 ADF_UNCERTAIN_P = 0.10
 MAX_D = 2
 LEVEL_NAMES = ("levels", "first difference", "second difference")
+SEASONAL_LEVEL_NAMES = ("seasonal difference", "seasonal and first difference", "seasonal and second difference")
 
 
 @dataclass
@@ -112,7 +113,7 @@ def adf_test(x: np.ndarray, regression: str, on: str) -> UnitRootTest:
     )
 
 
-def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecision:
+def choose_differencing(x: np.ndarray, max_d: int = MAX_D, seasonally_differenced: bool = False) -> DifferencingDecision:
     """Choose d in {0, .., max_d} by KPSS cross-checked with ADF (see the module notes).
 
     Parameters
@@ -122,12 +123,15 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D) -> DifferencingDecisi
         points (NaN) are interpolated for the tests.
     max_d : int
         Highest order of differencing considered.
+    seasonally_differenced : bool
+        Whether ``x`` is a seasonal difference: the tests and the words then name the series
+        they ran on as such (:data:`SEASONAL_LEVEL_NAMES`) rather than as the levels.
     """
     values = interpolate_gaps(x)
     tests: list[UnitRootTest] = []
     words: list[str] = []
     for d in range(max_d + 1):
-        on = LEVEL_NAMES[d]
+        on = (SEASONAL_LEVEL_NAMES if seasonally_differenced else LEVEL_NAMES)[d]
         kp, ad = kpss_test(values, "c", on), adf_test(values, "c", on)
         tests += [kp, ad]
         if d == max_d:

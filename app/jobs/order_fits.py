@@ -15,7 +15,7 @@ import numpy as np
 import sqlite_utils
 from threadpoolctl import threadpool_limits
 
-from app.core.analysis import Intervention
+from app.core.analysis import Analysis, Intervention
 from app.core.chosen_interventions import relocated
 from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import OrderError
@@ -23,6 +23,7 @@ from app.core.fitting import CandidateFit, fit_candidate
 from app.core.interventions import adjusted
 from app.core.order import Order
 from app.core.prepare import PreparedSeries, prepare_series
+from app.core.seasonality import default_period
 from app.core.transform import TransformChoice, apply_transform
 from app.store.database import UnknownSeries
 from app.store.orders import DecidedOrder, save_order_fit
@@ -49,12 +50,22 @@ def load_prepared(db: sqlite_utils.Database, series_id: str) -> tuple[PreparedSe
     return prepare_series(values, series_id), fingerprint
 
 
+def data_period(prepared: PreparedSeries, analysis: Analysis | None) -> int | None:
+    """The seasonal period of the series' data, at whose lags a chosen order's residuals are
+    checked whether or not the order has seasonal terms (:func:`app.core.fitting.ljung_box_lags`):
+    the period of the analysis' suggestion (None when the analysis found the data non-seasonal),
+    else, with no analysis, the one the sampling frequency implies."""
+    return analysis.period if analysis is not None else default_period(prepared.freq)
+
+
 def fit_stored_order(
-    prepared: PreparedSeries, model: Order, transform: TransformChoice, interventions: Sequence[Intervention] = ()
+    prepared: PreparedSeries, model: Order, transform: TransformChoice, interventions: Sequence[Intervention] = (),
+    period: int | None = None,
 ) -> CandidateFit:
     """Fit ``model`` to the series on the ``transform`` scale, with the effects of
     ``interventions`` (the analysis' own, :meth:`app.core.analysis.Analysis.interventions_on`,
-    or a reviewer's) taken out at their sizes, naming the series on failure.
+    or a reviewer's) taken out at their sizes, naming the series on failure; ``period`` is the
+    data's seasonal period for the residual checks (:func:`data_period`).
 
     Raises
     ------
@@ -66,7 +77,7 @@ def fit_stored_order(
     placed = relocated(prepared.series_id, prepared.index, interventions)
     try:
         with threadpool_limits(limits=1):
-            return fit_candidate(adjusted(apply_transform(prepared.values, transform), placed), model)
+            return fit_candidate(adjusted(apply_transform(prepared.values, transform), placed), model, period=period)
     except OrderError as exc:
         raise OrderError(f"series {prepared.series_id!r}: {model.label()} cannot be fitted ({exc})") from None
     except NUMERICAL_FAILURES as exc:
@@ -77,11 +88,11 @@ def fit_stored_order(
 
 def fit_and_keep(
     db: sqlite_utils.Database, prepared: PreparedSeries, fingerprint: str, model: Order, transform: TransformChoice,
-    interventions: Sequence[Intervention] = (),
+    interventions: Sequence[Intervention] = (), period: int | None = None,
 ) -> CandidateFit:
     """Fit a chosen model (:func:`fit_stored_order`) and keep its parameters for the export,
     filed under the ``fingerprint`` of the data fitted."""
-    fit = fit_stored_order(prepared, model, transform, interventions)
+    fit = fit_stored_order(prepared, model, transform, interventions, period)
     parameters = fit.to_candidate(keep_residuals=False).parameter_values()
     save_order_fit(db, prepared.series_id, fingerprint, model, transform, parameters, ENGINE_VERSION, interventions)
     return fit

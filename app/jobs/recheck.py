@@ -48,7 +48,7 @@ from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries, moment_in
 from app.core.transform import TransformChoice, log_jacobian
 from app.core.vocabulary import DECIDED
-from app.jobs.order_fits import fit_stored_order, load_prepared
+from app.jobs.order_fits import data_period, fit_stored_order, load_prepared
 from app.store.analyses import analysis_record
 from app.store.database import write_transaction
 from app.store.orders import decided_interventions, save_order_fit, verdict_model
@@ -94,7 +94,8 @@ def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> 
         lb_p, lb_lags, aicc = candidate.ljung_box_p, candidate.ljung_box_lags, candidate.aicc
     else:
         try:
-            fit = fit_stored_order(prepared, model, transform, interventions).to_candidate(keep_residuals=False)
+            fit = fit_stored_order(prepared, model, transform, interventions,
+                                   data_period(prepared, analysis)).to_candidate(keep_residuals=False)
         except OrderError as exc:
             check.reasons.append(f"{label} can no longer be fitted: {exc}")
             return check

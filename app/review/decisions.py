@@ -23,7 +23,7 @@ from app.core.prepare import PreparedSeries
 from app.core.series_ids import printable
 from app.core.transform import TransformChoice, apply_transform
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
-from app.jobs.order_fits import NUMERICAL_FAILURES, fit_and_keep, fit_stored_order, load_prepared
+from app.jobs.order_fits import NUMERICAL_FAILURES, data_period, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import UnknownSeries
 from app.store.series import unknown_series
@@ -207,7 +207,7 @@ def fit_custom_order(
     choice = checked_transform(series_id, analysis, transform)
     sized = reviewer_interventions(prepared, model, choice, analysis, interventions)
     taken_out = taken_out_with(analysis, choice, sized)
-    fit = fit_stored_order(prepared, model, choice, taken_out).to_candidate()
+    fit = fit_stored_order(prepared, model, choice, taken_out, data_period(prepared, analysis)).to_candidate()
     comparable = analysis is not None and analysis.transform.to_json() == choice.to_json() and sized is None
     return CustomFit(
         replace(fit, source=("custom",), delta_aicc=delta_aicc_against(fit, analysis.candidates if comparable and analysis else ())),
@@ -374,7 +374,8 @@ def decide(
     elif status == VerdictStatus.OVERRIDDEN:
         if candidate is None:
             taken_out = taken_out_with(analysis, choice, chosen)
-            candidate = fit_and_keep(db, prepared, fingerprint, model, choice, taken_out).to_candidate(keep_residuals=False)
+            candidate = fit_and_keep(db, prepared, fingerprint, model, choice, taken_out,
+                                     data_period(prepared, analysis)).to_candidate(keep_residuals=False)
         if fails_ljung_box(candidate) and not confirm:
             assert candidate.ljung_box_p is not None
             raise ConfirmationNeeded(

@@ -34,9 +34,11 @@ from app.store.verdicts import get_verdict, verdict_history
 from app.web.charts import lag_bar_figure, line_figure, series_figure
 from app.web.templating import number
 
-# The series a test ran on (app.core.stationarity.LEVEL_NAMES) and its regression, in words.
+# The series a test ran on (app.core.stationarity.LEVEL_NAMES, SEASONAL_LEVEL_NAMES) and its regression, in words.
 ON_WORDS = {"levels": "the series as observed", "first difference": "the first difference",
-            "second difference": "the second difference"}
+            "second difference": "the second difference", "seasonal difference": "the seasonal difference",
+            "seasonal and first difference": "the seasonal and first differences",
+            "seasonal and second difference": "the seasonal difference and two first differences"}
 REGRESSION_WORDS = {"c": "around a constant", "ct": "around a linear trend"}
 CUSTOM_FIELDS = ("p", "d", "q", "P", "D", "Q", "s")
 # What proposed a candidate (Candidate.source: the readings of app.core.patterns and the
@@ -52,6 +54,8 @@ SOURCE_WORDS = {
     "seasonal ACF cut-off": "read from the ACF at the seasonal lags",
     "seasonal PACF cut-off": "read from the PACF at the seasonal lags",
     "seasonal both tail off": "both tail off at the seasonal lags",
+    "seasonal decay": "a decay at the seasonal lags in the ACF or the PACF",
+    "seasonal spikes in both": "seasonal spikes in both the ACF and the PACF",
     "seasonal grid": "seasonal grid: every seasonal P, Q within the limits",
     "local search": "stepwise search: one step from the leading order",
     TREND_TOGGLE: "stepwise search: the leading order with the constant or drift toggled",

@@ -218,3 +218,17 @@ def test_the_first_point_of_a_persistent_series_is_not_a_large_residual():
     assert raw is not None and raw.position == 0
     ratios = prediction_variance_ratios(fit.estimate.ar_polynomial, fit.estimate.ma_polynomial, fit.residuals.size)
     assert largest_residual(fit.residuals, index, ratios) is None
+
+
+def test_no_outliers_are_sought_on_intermittent_demand():
+    # Found by a new user: on a monthly series with a demand in 12 of 72 months the outlier search
+    # of Chen & Liu (1993), run against the smooth level a Gaussian ARIMA fits, took seven of the
+    # demands for outliers and the adjusted series went below zero. A sale of 40 among sales of
+    # 1 to 6 is still reported, as a large residual, for the reviewer to look at.
+    rng = np.random.default_rng(20261205)
+    sales = np.where(rng.random(72) < 0.17, rng.integers(1, 7, 72), 0).astype(float)
+    sales[40] = 40.0
+    found = identify_series(pd.Series(sales, pd.date_range("2019-01-01", periods=72, freq="MS")), "shop/cakes")
+    assert Flag.INTERMITTENT_DEMAND in found.flags
+    assert found.interventions == [] and Flag.OUTLIERS not in found.flags and Flag.LEVEL_SHIFT not in found.flags
+    assert any("Outliers and level shifts are not sought" in words for words in found.data_notes)

@@ -192,6 +192,35 @@ def test_ljung_box_lags_reach_the_seasonal_lag(n, seasonal_order, expected):
     assert ljung_box_lags(n, validate_order((0, 0, 1), seasonal_order)) == expected
 
 
+@pytest.mark.parametrize(
+    "n, period, expected",
+    [
+        (200, 12, 24),  # monthly data: 2s, though the model has no seasonal terms
+        (50, 12, 12 + 1 + 3),  # short monthly: n/5 = 10 < 12, raised to s + k + 3
+        (200, 52, 52 + 1 + 3),  # weekly under four years
+        (200, None, 10),  # non-seasonal data: 10
+        (14, 12, 4),  # too short for lag 12 (12 + 4 >= n): k + 3
+    ],
+)
+def test_ljung_box_lags_follow_the_datas_period_for_a_model_without_seasonal_terms(n, period, expected):
+    # Hyndman & Athanasopoulos (2021, §5.4) set h by the data: 10 for non-seasonal data, 2m for
+    # seasonal data. A non-seasonal model of monthly data is where a dropped season shows at lag 12.
+    assert ljung_box_lags(n, validate_order((1, 0, 0)), period) == expected
+
+
+def test_a_non_seasonal_fit_of_seasonal_data_is_tested_at_the_seasonal_lags():
+    # AR(1) fitted to a seasonal AR series (phi = Phi = 0.5, s = 12): the residuals keep the lag-12
+    # correlation; tested over 24 lags as statsmodels' acorr_ljungbox computes it, the fit fails.
+    y = _seasonal_ar_series(12, 240, 0)
+    model = validate_order((1, 0, 0), trend="c")
+    fit = fit_candidate(y, model, period=12)
+    assert fit.ljung_box_lags == 24 and fit.residual_correlogram.lags[-1] >= 24
+    table = acorr_ljungbox(fit.residuals, lags=[24], model_df=1, return_df=True)
+    assert fit.ljung_box_p == pytest.approx(float(table["lb_pvalue"].iloc[0]), rel=1e-9)
+    assert fit.ljung_box_p < 0.01 and not fit.passes_ljung_box
+    assert fit_candidate(y, model).ljung_box_lags == 10  # no period given: non-seasonal data
+
+
 def _seasonal_ar_series(s: int, n: int, seed: int) -> np.ndarray:
     """(1,0,0)(1,0,0)s with phi = 0.5, Phi = 0.5 around a mean of 5 (statsmodels ArmaProcess,
     the product polynomial (1 - 0.5B)(1 - 0.5B^s))."""

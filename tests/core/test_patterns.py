@@ -18,7 +18,15 @@ from statsmodels.tsa.arima_process import ArmaProcess
 from threadpoolctl import threadpool_limits
 
 from app.core.correlogram import Correlogram, bartlett_band, correlogram, lag_count, z_value
-from app.core.patterns import cutoff, eacf_table, eacf_vertex, read_patterns, significant_lags, with_neighbours
+from app.core.patterns import (
+    cutoff,
+    eacf_table,
+    eacf_vertex,
+    read_patterns,
+    read_seasonal_patterns,
+    significant_lags,
+    with_neighbours,
+)
 
 MAX_P = MAX_Q = 5
 N_BANDS = 200  # the series length the bands are drawn for when the correlogram is theoretical
@@ -136,6 +144,27 @@ def test_quarterly_seasonal_satellite_is_left_to_the_seasonal_reading():
     reading = read_patterns(cg, MAX_P, MAX_Q, period=4)
     assert reading.pacf_cutoff == 1
     assert "PACF cut-off" in reading.proposals[(1, 0)]
+
+
+@pytest.mark.parametrize(
+    ("theta", "proposals", "words"),
+    [
+        # A seasonal MA(1) at s = 12 (BJRL 2015 ch. 9): one ACF spike at lag 12; the PACF decays at
+        # 12, 24, 36 as Theta^k, so how many of its seasonal lags clear the band of n = 200 depends on Theta.
+        (-0.4, {(0, 1): ["seasonal ACF cut-off"], (1, 0): ["seasonal PACF cut-off"], (1, 1): ["seasonal spikes in both"]},
+         "Both the ACF and the PACF have seasonal spikes"),
+        (-0.6, {(0, 1): ["seasonal ACF cut-off"], (1, 1): ["seasonal decay"]},
+         "The PACF has spikes at more than the first 2 seasonal lag(s), read as a decay"),
+    ],
+)
+def test_the_seasonal_reading_says_which_correlogram_cuts_off_and_which_decays(theta, proposals, words):
+    # Found by a new user: "spikes at the first seasonal lag and none after" for both, then "both
+    # tail off" in the next sentence. The words now name what was read and never contradict it.
+    cg = _theoretical_correlogram([1], np.r_[1, np.zeros(11), theta].tolist(), nlags=40)
+    found, said = read_seasonal_patterns(cg, 12, 2, 2)
+    assert found == proposals
+    assert any(w.startswith(words) for w in said)
+    assert not any("tail off" in w for w in said)
 
 
 def test_quarterly_airline_acf_reads_the_non_seasonal_ma1():

@@ -297,10 +297,10 @@ def test_a_candidate_that_cannot_be_fitted_costs_that_candidate_only(monkeypatch
     series = seasonal_batch(7, 140, 1)[5]
     failing = ((2, 0, 0), (2, 0, 0, 7))
 
-    def fit_or_fail(y, model, fitted=(), screened=None):
+    def fit_or_fail(y, model, fitted=(), screened=None, **keywords):
         if (model.order, model.seasonal_order) == failing:
             raise np.linalg.LinAlgError("Schur decomposition solver error.")
-        return fit_candidate(y, model, fitted, screened)
+        return fit_candidate(y, model, fitted, screened, **keywords)
 
     monkeypatch.setattr(identify, "fit_candidate", fit_or_fail)
     result = _identify(series.series)

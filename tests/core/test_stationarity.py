@@ -25,7 +25,8 @@ from app.core import stationarity
 from app.core.analysis import UnitRootTest
 from app.core.errors import SeriesProblem
 from app.core.identify import identify_series
-from app.core.stationarity import LEVEL_NAMES, choose_differencing
+from app.core.stationarity import LEVEL_NAMES, SEASONAL_LEVEL_NAMES, choose_differencing
+from app.core.vocabulary import Flag
 
 REFERENCE = json.loads((Path(__file__).parent / "results" / "reference_values.json").read_text())
 N = 300
@@ -45,6 +46,14 @@ def _trend_plus_ar1(seed: int) -> np.ndarray:
 @pytest.fixture(scope="module")
 def sunspots() -> np.ndarray:
     return sm.datasets.sunspots.load_pandas().data["SUNACTIVITY"].to_numpy()
+
+
+def test_tests_on_a_seasonal_difference_are_named_for_it():
+    # Found by a new user: after D = 1 the page said the tests ran "on the series as observed".
+    decision = choose_differencing(_noise(SEEDS[0]), seasonally_differenced=True)
+    assert {t.on for t in decision.tests} == {SEASONAL_LEVEL_NAMES[0]}
+    assert decision.explanation[0].startswith("On the seasonal difference, ")
+    assert {t.on for t in choose_differencing(_noise(SEEDS[0])).tests} == {"levels"}
 
 
 @pytest.mark.parametrize("seed", SEEDS)
@@ -162,3 +171,19 @@ def test_a_series_that_repeats_exactly_every_season_is_refused_by_name():
     with pytest.raises(SeriesProblem, match="repeats itself exactly every 4 points") as raised:
         identify_series(y, "exact")
     assert raised.value.flag == "exactly_periodic"
+
+
+def test_a_trend_the_tests_read_but_the_criterion_leaves_out_is_neither_flagged_nor_claimed():
+    # Found by a new user: the words said "d = 0 with a linear trend leads" and the queue's reason
+    # was "stationary around a trend" while the suggestion had a mean only. An AR(1) (phi 0.7)
+    # around a slope of 0.005 per year: the tests read a trend (KPSS with a trend does not reject,
+    # ADF with a trend rejects; Kwiatkowski et al. 1992), the criterion keeps the mean.
+    rng = np.random.default_rng([20261205, 8])
+    x = 10 + 0.005 * np.arange(100) + ArmaProcess([1, -0.7]).generate_sample(100, distrvs=rng.standard_normal, burnin=100)
+    found = identify_series(pd.Series(x, index=pd.date_range("1900-01-01", periods=100, freq="YS")), "slight trend")
+    assert found.differencing.trend_stationary
+    assert found.suggested.model.full_label() == "ARIMA(1,0,0) with a mean"
+    assert Flag.TREND_STATIONARY not in found.flags
+    assert found.to_analysis().differencing.explanation[-1] == (
+        "The criterion preferred ARIMA(1,0,0) with a mean to the linear trend the tests read: "
+        "the suggestion has no trend to extrapolate.")

@@ -165,6 +165,21 @@ def test_an_override_whose_residuals_fail_ljung_box_at_1_percent_needs_confirmat
     assert (saved["status"], saved["order"], saved["transform"], saved["trend"]) == ("overridden", [0, 0, 0], "log", "c")
 
 
+def test_an_override_that_drops_the_season_of_monthly_data_needs_confirming(db):
+    # ARIMA(1,1,0) on the log of AirPassengers leaves the annual cycle in the residuals; the
+    # Ljung-Box test reaches lag 12 because the data are monthly, not because the order is
+    # seasonal (Hyndman & Athanasopoulos 2021, §5.4: h = 2m for seasonal data). statsmodels'
+    # fit of the same order rejects over 24 lags at any level.
+    reference = ARIMA(np.log(air_values()), order=(1, 1, 0)).fit()
+    assert acorr_ljungbox(reference.resid[1:], lags=[24], model_df=1, return_df=True)["lb_pvalue"].iloc[0] < 0.01
+    with pytest.raises(ConfirmationNeeded, match="fail the Ljung-Box test at 1%"):
+        decide(db, AIR, status="overridden", order=[1, 1, 0], seasonal_order=None, transform="log", include_constant=False,
+               note="", reviewer="ann", version=0)
+    assert get_verdict(db, AIR)["status"] == "pending"
+    fit = fit_custom_order(db, AIR, [1, 1, 0], None, "log", False).candidate
+    assert fit.ljung_box_lags == 24
+
+
 def test_the_reviewers_transform_and_constant_are_stored_fitted_and_exported(db):
     saved = decide(db, AIR, status="overridden", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12], transform="log",
                    include_constant=False, note="the airline model", reviewer="ann", version=0, confirm=True)

@@ -17,9 +17,10 @@ from web_portfolio import write_long_csv
 
 import app.review.forecast_check as forecast_check
 from app.core.ranking import PATTERN_SOURCES
+from app.core.stationarity import LEVEL_NAMES, SEASONAL_LEVEL_NAMES
 from app.review.forecast_check import REMEMBERED_CHECKS, RecentChecks, check_key
 from app.store.series import load_series
-from app.web.review import SOURCE_WORDS
+from app.web.review import ON_WORDS, SOURCE_WORDS
 from app.web.templating import number, percent
 
 SERIES = "plant-a/line-1/ar1"
@@ -173,3 +174,9 @@ def test_candidate_table_shows_the_rank_score_that_orders_it(client, results):
     assert ">Rank score</th>" in page
     for candidate in results[SERIES].candidates:
         assert f'<td class="num">{number(candidate.rank_score, 1)}</td>' in page
+
+
+def test_every_series_a_differencing_test_runs_on_has_words():
+    # A seasonally differenced series is named as such on the page, not as the series as observed.
+    assert set(LEVEL_NAMES + SEASONAL_LEVEL_NAMES) <= set(ON_WORDS)
+    assert ON_WORDS["seasonal difference"] == "the seasonal difference"
