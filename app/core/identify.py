@@ -81,7 +81,14 @@ from app.core.seasonality import (
     validate_period,
 )
 from app.core.stationarity import MAX_D, DifferencingDecision, choose_differencing
-from app.core.transform import TransformChoice, apply_transform, choose_transform, invert_transform, order_before_search
+from app.core.transform import (
+    TransformChoice,
+    apply_transform,
+    choose_transform,
+    invert_transform,
+    order_before_search,
+    simplicity,
+)
 from app.core.vocabulary import Flag, InterventionKind
 
 DRIFT_Z = 1.96
@@ -855,9 +862,11 @@ def _loglik_on(values: np.ndarray, model: Order, known: tuple[TransformChoice, f
         if known is not None and choice.to_json() == known[0].to_json():
             return known[1]
         try:
-            return fit_candidate(apply_transform(values, choice), model).loglik
+            fit = fit_candidate(apply_transform(values, choice), model)
         except (np.linalg.LinAlgError, ValueError):
             return math.nan
+        # A fit whose filter broke down at every start has no likelihood to weigh.
+        return fit.loglik if fit.estimate is None or fit.estimate.evaluated else math.nan
 
     return loglik
 
@@ -876,10 +885,11 @@ def identify_prepared(prepared: PreparedSeries, options: EngineOptions = EngineO
     correlograms, the differencing and the candidates are those of the series actually modelled,
     and the comparison is repeated under the leader found there (an order found on one scale
     favours that scale). When that moves to another scale, the series is identified again. It
-    stops when the comparison keeps the scale the leader was found on, returns to a scale
-    already identified, or after ``TRANSFORM_PASSES + 1`` identifications. Starting on the scale
-    the first comparison chooses, rather than always on the series as observed, saves the
-    identification that a transformed series would otherwise pay for on a scale it leaves.
+    stops when the comparison keeps the scale the leader was found on; when the comparisons go
+    round instead, or have not settled after ``TRANSFORM_PASSES + 1`` identifications, the
+    simplest scale identified is kept (:meth:`_Scales.settled`). Starting on the scale the first
+    comparison chooses, rather than always on the series as observed, saves the identification
+    that a transformed series would otherwise pay for on a scale it leaves.
 
     On the scale chosen, outliers, level shifts and temporary changes are sought in the leading
     order's residuals (:mod:`app.core.interventions`, Chen & Liu 1993); when any is found, the
@@ -914,26 +924,10 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
                               _loglik_on(prepared.values, before), first, smallest)
     words = [*choice.explanation, f"The search starts on {_scale_words(choice)}."]
     found, search = _identify_on(prepared, choice, period, period_words, options, observed if choice.kind == "none" else None)
-    passes = {str(choice.to_json()): (found, search)}
+    scales = _Scales(prepared, period, period_words, options, first, smallest, words)
     # A series with a value <= 0 is not transformed (the first comparison said so): no second one.
-    transformable = min(float(np.nanmin(prepared.values)), smallest) > 0
-    while transformable:
-        leader = found.suggested
-        choice = choose_transform(prepared.values, period, leader.model, f"the leader on {_scale_words(found.transform)}",
-                                  _loglik_on(prepared.values, leader.model, (found.transform, leader.loglik)), first, smallest)
-        words += choice.explanation
-        key = str(choice.to_json())
-        if key in passes:
-            if passes[key][0] is not found:
-                words.append(f"Back to the identification on the {choice.name()} scale made before.")
-            found, search = passes[key]
-            break
-        if len(passes) > TRANSFORM_PASSES:
-            words.append(f"Stopped after {len(passes)} identifications: the {found.transform.name()} scale kept.")
-            break
-        words.append(f"Identified again on the {choice.name()} scale.")
-        found, search = _identify_on(prepared, choice, period, period_words, options)
-        passes[key] = (found, search)
+    if min(float(np.nanmin(prepared.values)), smallest) > 0:
+        found, search = scales.settled(found, search)
     # Outliers and level shifts are sought on the scale chosen: on the wrong one, the larger
     # swings of a multiplicative series would read as outliers. Not on intermittent or lumpy
     # demand: against the smooth level a Gaussian ARIMA fits there, every period with a demand
@@ -943,28 +937,96 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     adjusted_search, interventions = ((search, []) if demand is not None and demand.sparse
                                       else _with_interventions(prepared, y, search, period, period_words, options))
     if interventions and found.transform.kind != "none":
-        # A spike alone can make a transform that shrinks it win the comparison: it is weighed
-        # again on the series with the interventions taken out, under the leader found there.
-        cleaned = invert_transform(adjusted(y, interventions), found.transform)
-        cleaned_leader = adjusted_search.ranked[0]
-        choice = choose_transform(cleaned, period, cleaned_leader.model, f"the leader on {_scale_words(found.transform)}",
-                                  _loglik_on(cleaned, cleaned_leader.model, (found.transform, cleaned_leader.loglik)),
-                                  first, smallest)
-        if choice.to_json() != found.transform.to_json():
-            words += ["With the interventions found on the " + found.transform.name() + " scale taken out, the "
-                      "transforms were weighed again:", *choice.explanation,
-                      f"Identified again on the {choice.name()} scale."]
-            found, search = _identify_on(prepared, choice, period, period_words, options)
-            y = apply_transform(prepared.values, choice)
-            adjusted_search, interventions = _with_interventions(prepared, y, search, period, period_words, options)
+        found, search, adjusted_search, interventions = scales.without_interventions(found, search, adjusted_search, interventions)
     if interventions:
         found = _finished(prepared, found.transform, adjusted_search, interventions, options)
     found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
     return found, (adjusted_search if interventions else search)
 
 
+@dataclass
+class _Scales:
+    """The transform decided by identifications on the scales the comparisons pick
+    (:func:`identify_prepared`); ``words`` collects what each step found."""
+
+    prepared: PreparedSeries
+    period: int | None
+    period_words: list[str]
+    options: EngineOptions
+    first: int
+    smallest: float
+    words: list[str]
+
+    def weighed(self, values: np.ndarray, transform: TransformChoice, leader: CandidateFit, taken_out: str = "") -> TransformChoice:
+        """The transform the comparison under ``leader`` (found on the ``transform`` scale) picks for ``values``."""
+        role = f"the leader on {_scale_words(transform)}{taken_out}"
+        return choose_transform(values, self.period, leader.model, role,
+                                _loglik_on(values, leader.model, (transform, leader.loglik)), self.first, self.smallest)
+
+    def settled(self, found: Identification, search: _Identified) -> tuple[Identification, _Identified]:
+        """Identify again on each scale the comparison under the last leader picks, until one
+        picks its own. When the comparisons go round (a scale identified before is picked again)
+        or :data:`TRANSFORM_PASSES` identifications more have not settled it, no scale is
+        picked by its own leader, and the simplest of those identified is kept (:func:`app.core.transform.simplicity`:
+        a transform counts as a parameter, and no comparison here has earned it)."""
+        passes = {str(found.transform.to_json()): (found, search)}
+        while True:
+            choice = self.weighed(self.prepared.values, found.transform, found.suggested)
+            self.words.extend(choice.explanation)
+            key = str(choice.to_json())
+            if choice.to_json() == found.transform.to_json():
+                return found, search
+            if key in passes or len(passes) > TRANSFORM_PASSES:
+                simplest = min(passes.values(), key=lambda done: simplicity(done[0].transform))
+                named = ", ".join(_scale_words(done.transform) for done, _ in passes.values())
+                self.words.append(f"The comparisons did not settle: under the leader of each scale identified ({named}) "
+                                  f"another scale did better. The simplest of them, {_scale_words(simplest[0].transform)}, is kept.")
+                return simplest
+            self.words.append(f"Identified again on {_scale_words(choice)}.")
+            found, search = _identify_on(self.prepared, choice, self.period, self.period_words, self.options)
+            passes[key] = (found, search)
+
+    def without_interventions(
+        self, found: Identification, search: _Identified, adjusted_search: _Identified, interventions: list[Intervention]
+    ) -> tuple[Identification, _Identified, _Identified, list[Intervention]]:
+        """A spike alone can make a transform that shrinks it win the comparison: the transforms
+        are weighed again on the series with the ``interventions`` found on ``found``'s scale
+        taken out, under the leader found there. When that picks another scale, the series is
+        identified there (interventions sought again) and the move stands only if the comparison
+        under the new leader, on the series as it is then adjusted, keeps the new scale."""
+        scale = found.transform
+        y = apply_transform(self.prepared.values, scale)
+        choice = self.weighed(invert_transform(adjusted(y, interventions), scale), scale, adjusted_search.ranked[0],
+                              ", the interventions taken out")
+        self.words.extend([f"With the interventions found on {_scale_words(scale)} taken out, the transforms were weighed "
+                           "again:", *choice.explanation])
+        if choice.to_json() == scale.to_json():
+            self.words.append(f"{_capitalised(_scale_words(scale))} kept.")
+            return found, search, adjusted_search, interventions
+        moved, moved_search = _identify_on(self.prepared, choice, self.period, self.period_words, self.options)
+        moved_y = apply_transform(self.prepared.values, choice)
+        moved_adjusted, moved_interventions = _with_interventions(self.prepared, moved_y, moved_search, self.period,
+                                                                  self.period_words, self.options)
+        if moved_interventions:
+            check = self.weighed(invert_transform(adjusted(moved_y, moved_interventions), choice), choice,
+                                 moved_adjusted.ranked[0], ", the interventions found there taken out")
+        else:
+            check = self.weighed(self.prepared.values, choice, moved.suggested, ", where no interventions were found")
+        self.words.extend([f"Identified again on {_scale_words(choice)}:", *check.explanation])
+        if check.to_json() == choice.to_json():
+            self.words.append(f"{_capitalised(_scale_words(choice))} kept.")
+            return moved, moved_search, moved_adjusted, moved_interventions
+        self.words.append(f"That comparison does not keep {_scale_words(choice)}: the identification on "
+                          f"{_scale_words(scale)} stands.")
+        return found, search, adjusted_search, interventions
+
+
 def _scale_words(transform: TransformChoice) -> str:
     return "the series as observed" if transform.kind == "none" else f"the {transform.name()} scale"
+
+
+def _capitalised(text: str) -> str:
+    return text[:1].upper() + text[1:]
 
 
 def _on_whole_series(

@@ -105,7 +105,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 
 import numpy as np
@@ -215,6 +215,7 @@ class ArmaFit:
     unconstrained: np.ndarray
     inputs: tuple[np.ndarray, np.ndarray, np.ndarray] = field(repr=False, compare=False)
     design_information: np.ndarray = field(repr=False, compare=False)
+    evaluated: bool = True  # False when the filter broke down at every start: ``loglik`` is no likelihood
 
     @cached_property
     def standard_errors(self) -> np.ndarray:
@@ -1001,7 +1002,8 @@ def fit_arma(
     # The maximum counts as reached when any run that ended there converged: a run continued
     # from a screen can stop on a flat ridge just short of the test another run passed.
     converged = any(ok and (value - best_value) * w.size <= SAME_MAXIMUM for _, value, ok, _, _ in runs)
-    return _finished(z, x, offset, spec, best_u, -float(best_value) * w.size, converged)
+    fit = _finished(z, x, offset, spec, best_u, -float(best_value) * w.size, converged)
+    return replace(fit, evaluated=False) if best_value >= FAILED else fit
 
 
 def _inputs(w: np.ndarray, design: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
