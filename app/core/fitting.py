@@ -9,7 +9,10 @@ residuals, the residual ACF, and root checks.
   terms profiled out. The model is a regression with ARMA errors, as in statsmodels ``ARIMA``:
   ``const`` is the mean of an undifferenced series, ``drift`` the slope of a linear trend in
   levels, which at d = 1 is the mean of the differenced series. The likelihood is the one
-  statsmodels ``ARIMA`` computes at the same parameters (the tests check it to 1e-9); the
+  statsmodels ``ARIMA`` computes at the same parameters on a complete series (the tests check it
+  to 1e-9); with gaps it is that of the differences observed (statsmodels' ``SARIMAX`` with
+  ``simple_differencing=True``), which leaves out every observation whose difference reaches a
+  gap, where statsmodels' default counts the observed levels (see Missing points below); the
   optimum is sought from several starts, the optimum of any smaller order already fitted among
   them, so a larger order never ends below an order it contains.
 * Ljung-Box: ``h = 10`` lags for non-seasonal data and ``h = 2s`` for data with period ``s``,
