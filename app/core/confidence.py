@@ -265,7 +265,8 @@ def _p_words(p: float) -> str:
     return f"= {p:.2f}" if p >= 0.01 else "< 0.01"
 
 
-def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str, doubts: Sequence[str] = ()) -> ConfidenceScore:
+def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str, doubts: Sequence[str] = (),
+                     leading: Sequence[str] = ()) -> ConfidenceScore:
     """Score the leading candidate of ``ranked`` (see the module notes).
 
     Parameters
@@ -278,7 +279,10 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
         The criterion of the rank score (``bic`` by default).
     doubts : sequence of str
         Reasons found outside the ranking that keep the suggestion from ``firm``, in words
-        (a residual the model does not explain, intermittent demand).
+        (a residual the model does not explain, an intervention).
+    leading : sequence of str
+        Such reasons that question the data themselves (a stuck stretch, intermittent demand):
+        they come first at every level, weak included, so the queue's main reason is theirs.
 
     Returns
     -------
@@ -286,7 +290,7 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
         The level with its reasons in words.
     """
     best = ranked[0]
-    reasons = []
+    reasons = list(leading)
     weak = sorted(f for f in WEAK_FLAGS if f in flags)
     if weak or is_demoted(best):
         reasons += [f"{FLAG_REASON_PREFIX}{f}" for f in weak] or ["the best model fails its residual checks"]

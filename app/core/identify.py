@@ -812,7 +812,9 @@ def _finished(
     if fixed:
         flags.append(Flag.FIXED_SEASONALITY)
         seasonal = replace(seasonal, words=[*seasonal.words, fixed])
-    data_notes, doubts = [], []
+    # ``leading``: doubts about whether the data can be modelled at all (a stuck stretch, demand
+    # too sparse for a Gaussian ARIMA) lead the reasons, so the queue shows them first.
+    data_notes, doubts, leading = [], [], []
     if interventions:
         data_notes.append(_intervention_words(interventions))
         kinds = {i.kind for i in interventions}
@@ -826,7 +828,7 @@ def _finished(
     if demand and demand.sparse:  # smooth and erratic series are left to the ARIMA without comment
         data_notes.append(demand.words())
         flags.append(Flag.INTERMITTENT_DEMAND)
-        doubts.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
+        leading.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
     ratios = (prediction_variance_ratios(best.estimate.ar_polynomial, best.estimate.ma_polynomial, best.residuals.size)
               if best.estimate is not None else None)
     checks: tuple[tuple[_Finding | None, Flag], ...] = (
@@ -839,14 +841,17 @@ def _finished(
             flags.append(flag)
             # A stuck stretch is the first thing a reviewer of a sensor channel must read.
             data_notes.insert(0 if flag is Flag.FLAT_RUN else len(data_notes), found.words())
-            doubts.append(found.doubt())
+            if flag is Flag.FLAT_RUN:
+                leading.insert(0, found.doubt())
+            else:
+                doubts.append(found.doubt())
     return Identification(
         prepared=prepared, transform=transform, seasonal=seasonal, differencing=decision,
         correlogram=shown.correlogram, identified_on=shown.identified_on,
         identified_label=identified_label(transform, best.model.period, best.model.D, best.model.d)
         + (", interventions taken out" if interventions else ""),
         pattern_words=seasonal.words + shown.words, candidates=ranked, data_notes=data_notes,
-        confidence=score_confidence(ranked, flags, options.criterion, doubts), criterion=options.criterion, flags=flags,
+        confidence=score_confidence(ranked, flags, options.criterion, doubts, leading), criterion=options.criterion, flags=flags,
         screened_out=[m for found in search.searches.values() for m in found.screened_out], interventions=interventions,
         demand_class=demand.label if demand else None,
     )

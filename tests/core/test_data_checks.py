@@ -232,3 +232,5 @@ def test_no_outliers_are_sought_on_intermittent_demand():
     assert Flag.INTERMITTENT_DEMAND in found.flags
     assert found.interventions == [] and Flag.OUTLIERS not in found.flags and Flag.LEVEL_SHIFT not in found.flags
     assert any("Outliers and level shifts are not sought" in words for words in found.data_notes)
+    # The queue's main reason (the sale of 40 makes the sizes' CV² lumpy).
+    assert found.confidence.reasons[0] == f"{found.demand_class} demand: a Gaussian ARIMA suits it poorly"

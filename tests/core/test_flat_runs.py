@@ -65,6 +65,9 @@ def test_the_engine_names_the_run_and_withholds_firm():
     result = identify_series(pd.Series(y, index=HOURS), "plant/boiler-1/temp")
     assert Flag.FLAT_RUN in result.flags and result.confidence.level is not Confidence.FIRM
     assert result.data_notes[0].startswith(f"The value {y[149]:g} repeats over 73 consecutive points")
+    # The queue's main reason is the stuck stretch, not a doubt about the model (it was
+    # fixed_seasonality here): what the reviewer of a sensor channel must see first.
+    assert result.confidence.reasons[0].startswith("73 equal values")
     clean = identify_series(pd.Series(_temperatures(), index=HOURS), "plant/boiler-2/temp")
     assert Flag.FLAT_RUN not in clean.flags
 
