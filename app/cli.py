@@ -869,10 +869,10 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
         reason = main_reason(analysis)
         return "-" if analysis.confidence == Confidence.FIRM or reason is None else reason_words(reason)
 
-    rows = [("series", "n", "d", "suggested", "confidence", "flags", "main reason")]
+    rows = [("series", "n", "d", "suggested", "transform", "confidence", "flags", "main reason")]
     for r in results:
         rows.append((
-            terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.full_label, str(r.confidence),
+            terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.full_label, r.transform.name(), str(r.confidence),
             ", ".join(r.flags) or "-", terminal_text(why(r)),
         ))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]

@@ -146,7 +146,10 @@ def test_identify_prints_one_line_per_series_and_the_problems(run_cli, small_csv
 
     lines = out.splitlines()
     assert code == 0
-    assert lines[0].split() == ["series", "n", "d", "suggested", "confidence", "flags", "main", "reason"]
+    assert lines[0].split() == ["series", "n", "d", "suggested", "transform", "confidence", "flags", "main", "reason"]
+    # The transform each suggestion is on (a new user saw only the flag 'transformed').
+    column = lines[0].index("transform")
+    assert all(line[column:].split()[0] in ("none", "log", "Box-Cox") for line in lines[1 : 1 + SERIES])
     ids = [s.series_id for s in read_portfolio(small_csv).series if s.series_id != SHORT_SERIES_ID]
     assert [line.split()[0] for line in lines[1 : 1 + SERIES]] == ids
     assert all("ARIMA(" in line for line in lines[1 : 1 + SERIES])
