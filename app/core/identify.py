@@ -968,6 +968,16 @@ class _Scales:
         return choose_transform(values, self.period, leader.model, role,
                                 _loglik_on(values, leader.model, (transform, leader.loglik)), self.first, self.smallest)
 
+    def weighed_without(self, scale: TransformChoice, found: Identification, adjusted_search: _Identified,
+                        interventions: list[Intervention], taken_out: str) -> TransformChoice:
+        """The comparison on the series with the ``interventions`` found on ``scale`` taken out,
+        under the leader of the search on the adjusted series (``adjusted_search``); with none
+        found, on the series as observed under ``found``'s leader."""
+        if not interventions:
+            return self.weighed(self.prepared.values, scale, found.suggested, ", where no interventions were found")
+        y = apply_transform(self.prepared.values, scale)
+        return self.weighed(invert_transform(adjusted(y, interventions), scale), scale, adjusted_search.ranked[0], taken_out)
+
     def settled(self, found: Identification, search: _Identified) -> tuple[Identification, _Identified]:
         """Identify again on each scale the comparison under the last leader picks, until one
         picks its own. When the comparisons go round (a scale identified before is picked again)
@@ -1000,9 +1010,7 @@ class _Scales:
         identified there (interventions sought again) and the move stands only if the comparison
         under the new leader, on the series as it is then adjusted, keeps the new scale."""
         scale = found.transform
-        y = apply_transform(self.prepared.values, scale)
-        choice = self.weighed(invert_transform(adjusted(y, interventions), scale), scale, adjusted_search.ranked[0],
-                              ", the interventions taken out")
+        choice = self.weighed_without(scale, found, adjusted_search, interventions, ", the interventions taken out")
         self.words.extend([f"With the interventions found on {_scale_words(scale)} taken out, the transforms were weighed "
                            "again:", *choice.explanation])
         if choice.to_json() == scale.to_json():
@@ -1012,11 +1020,7 @@ class _Scales:
         moved_y = apply_transform(self.prepared.values, choice)
         moved_adjusted, moved_interventions = _with_interventions(self.prepared, moved_y, moved_search, self.period,
                                                                   self.period_words, self.options)
-        if moved_interventions:
-            check = self.weighed(invert_transform(adjusted(moved_y, moved_interventions), choice), choice,
-                                 moved_adjusted.ranked[0], ", the interventions found there taken out")
-        else:
-            check = self.weighed(self.prepared.values, choice, moved.suggested, ", where no interventions were found")
+        check = self.weighed_without(choice, moved, moved_adjusted, moved_interventions, ", the interventions found there taken out")
         self.words.extend([f"Identified again on {_scale_words(choice)}:", *check.explanation])
         if check.to_json() == choice.to_json():
             self.words.append(f"{_capitalised(_scale_words(choice))} kept.")

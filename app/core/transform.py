@@ -94,7 +94,7 @@ def guerrero_lambda(x: np.ndarray, period: int | None = None) -> float:
     values = np.asarray(x, dtype=float)
     if values.ndim != 1 or not np.isfinite(values).all() or (values <= 0).any():
         raise ValueError("Guerrero's method needs a one-dimensional series of finite, strictly positive values")
-    means, sds = _subseries_levels_and_spreads(values, period or NONSEASONAL_SUBSERIES_LENGTH)
+    means, sds = _subseries_levels_and_spreads(values, _subseries_length(period))
     if means.size < 2 or not (sds > 0).any():
         raise ValueError("Guerrero's method needs at least two subseries and some spread within them")
 
@@ -103,6 +103,11 @@ def guerrero_lambda(x: np.ndarray, period: int | None = None) -> float:
         return float(np.std(ratio, ddof=1) / np.mean(ratio))
 
     return float(minimize_scalar(coefficient_of_variation, bounds=LAMBDA_BOUNDS, method="bounded").x)
+
+
+def _subseries_length(period: int | None) -> int:
+    """The length of Guerrero's subseries: a season, or :data:`NONSEASONAL_SUBSERIES_LENGTH`."""
+    return period or NONSEASONAL_SUBSERIES_LENGTH
 
 
 def _subseries_levels_and_spreads(values: np.ndarray, length: int) -> tuple[np.ndarray, np.ndarray]:
@@ -169,7 +174,7 @@ def transform_alternatives(x: np.ndarray, period: int | None = None) -> tuple[li
     .. [3] Hyndman & Athanasopoulos (2021), *Forecasting: Principles and Practice*, 3rd ed., §3.1.
     """
     alternatives = [TransformChoice("log"), TransformChoice("box_cox", lam=SQUARE_ROOT)]
-    subseries = x.size // (period or NONSEASONAL_SUBSERIES_LENGTH)
+    subseries = x.size // _subseries_length(period)
     if subseries < MIN_SUBSERIES:
         return alternatives, [f"Guerrero's lambda not estimated: {subseries} subseries, fewer than the {MIN_SUBSERIES} it needs."]
     try:
