@@ -234,7 +234,9 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
         offset = pd.tseries.frequencies.to_offset(freq)
         # Calendar offsets (months, business days) are never shorter than the closest pair.
         step = pd.Timedelta(offset) if isinstance(offset, pd.offsets.Tick) else pd.Timedelta(np.diff(index.values).min())
-        _check_grid_size((index[-1] - index[0]) // step + 1, freq, sid)
+        # In Python integers of nanoseconds: as a pandas Timedelta a span of more than 292 years
+        # (yearly data from the 1700s) overflows.
+        _check_grid_size((int(index[-1].value) - int(index[0].value)) // int(step.value) + 1, freq, sid)
         grid = pd.date_range(index[0], index[-1], freq=freq, name=index.name)
     off = ~index.isin(grid)
     if off.any():

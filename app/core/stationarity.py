@@ -46,7 +46,12 @@ KPSS p-values are interpolated in a table and clipped to [0.01, 0.10]; the decis
 
 Both tests need a complete series: missing points (NaN) are filled by linear interpolation
 (:func:`app.core.prepare.interpolate_gaps`) for them alone; the fits that follow use the
-observed points only.
+observed points only. They run on the series centred and scaled to unit standard deviation
+(:func:`standardised`): with a constant in the regression both statistics are unchanged by the
+units, but statsmodels' least squares judge the rank of the design from its raw columns, and
+on a series in the tens of trillions (a national output in currency units) ADF with a trend
+dropped the trend column as rank-deficient and gave another lag length and statistic (-0.73
+with 12 lags against -1.25 with 2 for US real GDP scaled by 1e10).
 
 References
 ----------
@@ -113,6 +118,13 @@ def adf_test(x: np.ndarray, regression: str, on: str) -> UnitRootTest:
     )
 
 
+def standardised(values: np.ndarray) -> np.ndarray:
+    """``values`` centred on their mean and divided by their standard deviation (as they are when constant)."""
+    spread = float(np.std(values))
+    centred = values - float(np.mean(values))
+    return centred / spread if spread > 0 else centred
+
+
 def choose_differencing(x: np.ndarray, max_d: int = MAX_D, seasonally_differenced: bool = False) -> DifferencingDecision:
     """Choose d in {0, .., max_d} by KPSS cross-checked with ADF (see the module notes).
 
@@ -127,7 +139,7 @@ def choose_differencing(x: np.ndarray, max_d: int = MAX_D, seasonally_difference
         Whether ``x`` is a seasonal difference: the tests and the words then name the series
         they ran on as such (:data:`SEASONAL_LEVEL_NAMES`) rather than as the levels.
     """
-    values = interpolate_gaps(x)
+    values = standardised(interpolate_gaps(x))
     tests: list[UnitRootTest] = []
     words: list[str] = []
     for d in range(max_d + 1):

@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+import statsmodels.api as sm
 
 from app.core.errors import SeriesProblem
 from app.core.prepare import MIN_POINTS, RECOMMENDED_POINTS, SHORT_GAP_MAX, moment_in, prepare_series
@@ -132,6 +133,17 @@ def test_monthly_series_with_a_missing_month():
     assert prepared.freq == "MS" and prepared.n == 36
     assert prepared.index[5] == pd.Timestamp("2019-06-01")
     assert prepared.gaps_filled == 1 and np.isnan(prepared.values[5]) and prepared.filled[5] == pytest.approx(115.0)
+
+
+def test_yearly_series_over_three_centuries():
+    # The yearly sunspot numbers from 1700 (statsmodels' sunspots dataset): a span longer than
+    # the 292 years a pandas Timedelta holds in nanoseconds (the unit the file reader gives),
+    # with one year missing.
+    data = sm.datasets.sunspots.load_pandas().data
+    index = pd.to_datetime(data["YEAR"].astype(int).astype(str), format="%Y").astype("datetime64[ns]")
+    values = pd.Series(data["SUNACTIVITY"].to_numpy(), index=index).drop(pd.Timestamp("1800-01-01"))
+    prepared = prepare_series(values, "sunspots")
+    assert prepared.freq in ("YS", "YS-JAN") and prepared.n == data.shape[0] and prepared.gaps_filled == 1
 
 
 def test_month_end_series_with_missing_months():
