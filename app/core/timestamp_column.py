@@ -11,6 +11,12 @@ Rules (each refusal names the first line to blame):
   A timestamp written in another format is refused; so is a file whose dates read differently
   month first and day first (``01/02/2024``) with none telling which, naming the first line
   where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
+* **Months, quarters and weeks.** Where pandas guesses no format, a month written with its name
+  or its number beside the year (``Jan 2024``, ``2024 January``, ``Jan-24``, ``2024/01``,
+  ``01/2024``, ``2024.01``, ``2024M01``; :data:`MONTH_LAYOUTS`), a quarter (``2024 Q1``,
+  ``2024-Q1``, ``2024Q1``, ``Q1 2024``) or an ISO 8601 week without its day (``2024-W05``,
+  ``2024 W05``; :data:`PERIOD_LAYOUTS`) is read as the first day of its period, an ISO week
+  as its Monday, so the series lies on a monthly, quarterly or weekly grid.
 * **Dates that do not exist.** A timestamp written like the file's dates (or like a date at all)
   whose numbers name no day or time (``2021-13-01``, ``2020-02-30``, ``10:61``) is refused as
   such, naming the number, rather than as a timestamp in another format.
@@ -29,6 +35,7 @@ Rules (each refusal names the first line to blame):
 from __future__ import annotations
 
 import calendar
+import datetime
 import re
 import warnings
 from typing import NoReturn
@@ -53,6 +60,20 @@ MAX_DATE_CHARS = 64
 MAX_ZONE_STEP_MINUTES = 60
 NS_PER_MINUTE = 60 * 10**9
 NS_PER_DAY = 24 * 60 * NS_PER_MINUTE
+# Month layouts pandas does not guess (it reads 2024-01 as ISO 8601), tried when it guesses none.
+MONTH_LAYOUTS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%b-%y", "%Y/%m", "%m/%Y", "%Y.%m", "%m.%Y", "%YM%m")
+# Layouts no strftime format writes, by the name a message gives them: quarters, and ISO weeks
+# without their day (ISO 8601 writes a week 2024-W05 and its Monday 2024-W05-1).
+PERIOD_LAYOUTS = {
+    "year and quarter (2024 Q1)": re.compile(r"^(?P<year>\d{4})[-/: ]?Q(?P<quarter>[1-4])$", re.IGNORECASE),
+    "quarter and year (Q1 2024)": re.compile(r"^Q(?P<quarter>[1-4])[-/: ]?(?P<year>\d{4})$", re.IGNORECASE),
+    "ISO week (2024-W05)": re.compile(r"^(?P<year>\d{4})[- ]?W(?P<week>\d{2})$", re.IGNORECASE),
+}
+# The same written with any number, for a message naming a quarter or week that does not exist.
+_PERIOD_NUMBERS = (
+    re.compile(r"(?P<year>\d{4})[-/: ]?(?P<kind>[QW])(?P<number>\d{1,2})", re.IGNORECASE),
+    re.compile(r"(?P<kind>Q)(?P<number>\d{1,2})[-/: ]?(?P<year>\d{4})", re.IGNORECASE),
+)
 _CLOCK_WORDS = ("now", "today")  # pandas reads them as the time of reading, whatever the format
 _OFFSET_SUFFIX = r"(?i)(?<=\d)\s?(?:(?P<z>z)|(?P<sign>[+-])(?P<hours>\d\d):?(?P<minutes>\d\d)?)$"
 # The numbered fields of a date format, the digits each is written with and the numbers that
@@ -156,7 +177,7 @@ class TimestampColumn:
         if not formats:
             self._refuse(
                 lines[0], texts.iloc[0], _nonexistent(texts.iloc[0], []) or "is not a date, time or integer step Lagdesk "
-                "recognises; give its format with --date-format (for example %b %Y for 'Jan 2024')",
+                "recognises; give its format with --date-format (for example %Y day %j for '2024 day 032')",
             )
         self._kept = {fmt: [] for fmt in formats}
 
@@ -201,6 +222,8 @@ class TimestampColumn:
     def _parse(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
         """Local clock times (NaT where unreadable) and the UTC offset of each, in minutes (NaN
         where none is written); no offsets at all for a chunk without any."""
+        if fmt in PERIOD_LAYOUTS:
+            return _period_starts(texts, fmt), None
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", UserWarning)
@@ -293,12 +316,24 @@ def _formats_of(text: str) -> list[str]:
 
 def _layouts(text: str) -> list[str]:
     """pandas' guesses of the ``strftime`` format of ``text``, month first and day first (the
-    latter not when it puts the year first: nobody writes year, day, month)."""
+    latter not when it puts the year first: nobody writes year, day, month); where it guesses
+    none, the month and period layouts (:data:`MONTH_LAYOUTS`, :data:`PERIOD_LAYOUTS`)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)
         month_first, day_first = guess_datetime_format(text), guess_datetime_format(text, dayfirst=True)
     guesses = [month_first, None if day_first and day_first.startswith("%Y") else day_first]
-    return list(dict.fromkeys(fmt for fmt in guesses if fmt))
+    return list(dict.fromkeys(fmt for fmt in guesses if fmt)) or [*MONTH_LAYOUTS, *PERIOD_LAYOUTS]
+
+
+def _period_starts(texts: pd.Series, layout: str) -> pd.Series:
+    """The first day of the quarter or the Monday of the ISO week each text names in ``layout``
+    (:data:`PERIOD_LAYOUTS`); NaT where it is not written so or names no week (W53 of a year
+    of 52 weeks)."""
+    parts = texts.astype(str).str.strip().str.extract(PERIOD_LAYOUTS[layout])
+    if "quarter" in parts:
+        months = (3 * pd.to_numeric(parts["quarter"]) - 2).astype("Int64").astype(str).str.zfill(2)
+        return pd.to_datetime(parts["year"] + "-" + months + "-01", format="%Y-%m-%d", errors="coerce")
+    return pd.to_datetime(parts["year"] + "-W" + parts["week"] + "-1", format="%G-W%V-%u", errors="coerce")
 
 
 def _nonexistent(text: str, layouts: list[str]) -> str | None:
@@ -310,6 +345,8 @@ def _nonexistent(text: str, layouts: list[str]) -> str | None:
     """
     if len(text) > MAX_DATE_CHARS:
         return None
+    if (period := _period_problem(text)) is not None:
+        return period
     own = _layouts(re.sub(r"\d+", lambda digits: _POSSIBLE_NUMBERS.get(len(digits[0]), digits[0]), text))
     for candidates in (layouts, own):
         readings = [match.groupdict() for layout in candidates if (match := _layout_pattern(layout).fullmatch(text))]
@@ -317,6 +354,19 @@ def _nonexistent(text: str, layouts: list[str]) -> str | None:
         if readings:
             return max(problems)[1] if len(problems) == len(readings) else None
     return None
+
+
+def _period_problem(text: str) -> str | None:
+    """Why ``text``, written as a quarter or an ISO week (:data:`PERIOD_LAYOUTS`), names none
+    (quarter 5, week 53 of a year of 52 weeks); None when it is not so written or names one."""
+    match = _PERIOD_NUMBERS[0].fullmatch(text.strip()) or _PERIOD_NUMBERS[1].fullmatch(text.strip())
+    if match is None:
+        return None
+    number, year = int(match["number"]), int(match["year"])
+    if match["kind"].upper() == "Q":
+        return None if 1 <= number <= 4 else f"is not a date: there is no quarter {number} (quarters run from 1 to 4)"
+    weeks = datetime.date(year, 12, 28).isocalendar().week  # 28 December lies in the last ISO week of its year
+    return None if 1 <= number <= weeks else f"is not a date: {year} has no ISO week {number} (its weeks run from 1 to {weeks})"
 
 
 def _layout_pattern(layout: str) -> re.Pattern[str]:
@@ -350,6 +400,8 @@ def _first_problem(fields: dict[str, str]) -> tuple[int, str] | None:
 
 
 def _reads(text: str, fmt: str) -> bool:
+    if fmt in PERIOD_LAYOUTS:
+        return bool(_period_starts(pd.Series([text], dtype=object), fmt).notna().all())
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)

@@ -6,6 +6,7 @@ numbers (line 1 is the header) can be read off the file itself.
 
 from __future__ import annotations
 
+import datetime
 from pathlib import Path
 
 import numpy as np
@@ -312,9 +313,45 @@ def test_a_date_format_with_a_directive_twice_is_refused_by_name(tmp_path, date_
 
 
 def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
-    with pytest.raises(InputFileError, match=r"line 2 \(series 'a'\): timestamp 'Jan 2024' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
-        _stamps(tmp_path, ["Jan 2024", "Feb 2024"])
-    assert _stamps(tmp_path, ["Jan 2024", "Feb 2024"], date_format="%b %Y").tolist() == pd.to_datetime(["2024-01-01", "2024-02-01"]).tolist()
+    with pytest.raises(InputFileError, match=r"line 2 \(series 'a'\): timestamp '2024 day 001' is not a date, time or integer step Lagdesk recognises; give its format with --date-format"):
+        _stamps(tmp_path, ["2024 day 001", "2024 day 002"])
+    assert _stamps(tmp_path, ["2024 day 001", "2024 day 002"], date_format="%Y day %j").tolist() == pd.to_datetime(["2024-01-01", "2024-01-02"]).tolist()
+
+
+@pytest.mark.parametrize("layout", ["%b %Y", "%B %Y", "%Y %b", "%b-%y", "%Y/%m", "%m/%Y", "%Y.%m", "%YM%m"])
+def test_months_written_without_a_day_are_read_as_their_first_day(tmp_path, tiny_chunks, layout):
+    months = pd.date_range("2023-11-01", periods=16, freq="MS")
+    assert _stamps(tmp_path, months.strftime(layout).tolist()).tolist() == months.tolist()
+
+
+@pytest.mark.parametrize("written", ["{y} Q{q}", "{y}-Q{q}", "{y}Q{q}", "{y}q{q}", "Q{q} {y}"])
+def test_quarters_are_read_as_their_first_day_on_a_quarterly_grid(tmp_path, tiny_chunks, written):
+    quarters = pd.period_range("2021Q3", periods=14, freq="Q")
+    stamps = _stamps(tmp_path, [written.format(y=p.year, q=p.quarter) for p in quarters])
+    assert stamps.tolist() == quarters.to_timestamp(how="start").tolist()
+    prepared = prepare_series(pd.Series(np.arange(14.0), index=stamps), "a")
+    assert prepared.freq.startswith("QS")
+
+
+def test_iso_weeks_are_read_as_their_monday(tmp_path, tiny_chunks):
+    # ISO 8601 week dates, checked against Python's implementation of the standard
+    # (datetime.date.fromisocalendar): 2020 has 53 weeks, and its week 1 starts in 2019.
+    weeks = [(2019, 52), (2020, 1), (2020, 52), (2020, 53), (2021, 1), (2021, 2)]
+    stamps = _stamps(tmp_path, [f"{year}-W{week:02d}" for year, week in weeks])
+    assert stamps.tolist() == [pd.Timestamp(datetime.date.fromisocalendar(year, week, 1)) for year, week in weeks]
+    assert _stamps(tmp_path, ["2021 W01", "2021 W02"]).tolist() == pd.to_datetime(["2021-01-04", "2021-01-11"]).tolist()
+
+
+@pytest.mark.parametrize(("bad", "why"), [
+    ("2024 Q5", "is not a date: there is no quarter 5 (quarters run from 1 to 4)"),
+    ("2021-W53", "is not a date: 2021 has no ISO week 53 (its weeks run from 1 to 52)"),
+    ("2024/13", "is not a date: there is no month 13"),
+])
+def test_a_month_quarter_or_week_that_does_not_exist_is_named(tmp_path, bad, why):
+    first = {"Q": "2024 Q1", "W": "2021-W01", "/": "2024/01"}[next(c for c in "QW/" if c in bad)]
+    with pytest.raises(InputFileError) as info:
+        _stamps(tmp_path, [first, bad])
+    assert str(info.value).endswith(f"line 3 (series 'a'): timestamp {bad!r} {why}")
 
 
 @pytest.mark.parametrize(("bad", "why"), [
