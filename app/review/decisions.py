@@ -21,7 +21,7 @@ from app.core.order import Order, validate_order
 from app.core.p_values import p_words
 from app.core.prepare import PreparedSeries
 from app.core.series_ids import printable
-from app.core.transform import TransformChoice, apply_transform
+from app.core.transform import LAMBDA_BOUNDS, TransformChoice, apply_transform
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, data_period, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import analysis_record, load_analysis
@@ -163,9 +163,16 @@ def checked_transform(series_id: str, analysis: Analysis | None, transform: str 
     if transform is None:
         return analysis.transform if analysis else TransformChoice("none")
     try:
-        return TransformChoice.from_json(transform)
+        choice = TransformChoice.from_json(transform)
     except ValueError as exc:
         raise DecisionError(f"series {series_id!r}: {exc}") from None
+    low, high = LAMBDA_BOUNDS
+    if choice.lam is not None and not low <= choice.lam <= high:
+        # Beyond these the transformed values crowd together (the fit's variance collapses to
+        # zero at lambda -7 on US output) or spread by many orders of magnitude.
+        raise DecisionError(f"series {series_id!r}: a Box-Cox lambda must lie between {low:g} and {high:g}, "
+                            f"the range the engine searches, not {choice.lam:g}")
+    return choice
 
 
 def check_scale(prepared: PreparedSeries, choice: TransformChoice) -> None:

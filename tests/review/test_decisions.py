@@ -203,6 +203,20 @@ def test_a_constant_is_a_drift_after_one_difference_and_refused_after_two(db):
                note="", reviewer="ann", version=0)
 
 
+@pytest.mark.parametrize("lam", [-7.0, 3.0])
+def test_a_box_cox_lambda_beyond_the_searched_range_is_refused(db, lam):
+    # At lambda -7 the transformed US output crowded into a few units of the last digit and
+    # the fit's variance came out 0, every parameter 0: an unusable order for the job.
+    for attempt in (lambda: fit_custom_order(db, AIR, [0, 1, 1], [0, 1, 1, 12], transform={"box_cox": lam}),
+                    lambda: decide(db, AIR, status="overridden", order=[0, 1, 1], seasonal_order=[0, 1, 1, 12],
+                                   transform={"box_cox": lam}, note="", reviewer="ann", version=0, confirm=True)):
+        with pytest.raises(DecisionError, match=f"lambda must lie between -1 and 2, the range the engine searches, not {lam:g}"):
+            attempt()
+    assert get_verdict(db, AIR)["version"] == 0
+    fit = fit_custom_order(db, AIR, [0, 1, 1], [0, 1, 1, 12], transform={"box_cox": -1.0}).candidate
+    assert {p.name: p.value for p in fit.params}["sigma2"] > 0 and np.isfinite(fit.loglik)
+
+
 def test_a_log_transform_of_data_with_values_below_zero_is_refused_naming_the_series(db):
     with pytest.raises(LagdeskError, match="strictly positive") as refused:
         decide(db, CENTRED, status="overridden", order=[2, 0, 0], seasonal_order=None, transform="log",
