@@ -203,9 +203,30 @@ def _terms(y: np.ndarray, model: Order, fit: ArmaFit) -> _Terms | None:
     return _Terms(z, np.linalg.pinv(z.T @ z))
 
 
+def _early_traces(n: int, model: Order, fit: ArmaFit, terms: _Terms | None) -> dict[tuple[InterventionKind, int], np.ndarray]:
+    """The residual traces ``π(B) ξ(B) I(T)`` of interventions at the points the differencing
+    uses up (``T`` below ``d + sD``), orthogonal to the deterministic terms.
+
+    Their effect reaches the differenced series only in part: an outlier in the first season
+    of a seasonally differenced series shows only in the difference a season later, where,
+    without its own trace, it was read as an outlier of the opposite sign at that later point.
+    A shift at the first point is a mean and is left out, as in the rest of the series.
+    """
+    traces = {}
+    for kind in InterventionKind:
+        for position in range(1 if kind is InterventionKind.LEVEL_SHIFT else 0, model.lost_to_differencing):
+            x = np.asarray(lfilter(fit.ar_polynomial, fit.ma_polynomial, difference(effect_column(kind, position, n), model)))
+            if terms is not None:
+                x = x - terms.z @ (terms.gram_inv @ (terms.z.T @ x))
+            if x @ x > 1e-9:
+                traces[(kind, position)] = x
+    return traces
+
+
 def _detect(y: np.ndarray, model: Order, fit: ArmaFit, threshold: float, room: int) -> list[_Found]:
     """Stage I's inner loop at one fit's parameters: the interventions of ``y`` beyond
-    ``threshold``, largest first, each removed from the residuals before the next is sought."""
+    ``threshold``, largest first, each removed from the residuals before the next is sought
+    (at the points the differencing uses up too, :func:`_early_traces`)."""
     e = conditional_residuals(y, model, fit)
     m, lost = e.size, y.size - e.size
     scale = robust_scale(e)
@@ -216,23 +237,30 @@ def _detect(y: np.ndarray, model: Order, fit: ArmaFit, threshold: float, room: i
     responses = {kind: residual_response(kind, pi) for kind in InterventionKind}
     allowed = {kind: np.ones(m, dtype=bool) for kind in InterventionKind}
     allowed[InterventionKind.LEVEL_SHIFT][[0, -1]] = False  # a shift at either end is a mean or an outlier
+    early = _early_traces(y.size, model, fit, terms)
     found: list[_Found] = []
     while len(found) < room:
-        best: tuple[float, InterventionKind, int, _Partialled] | None = None
+        best: tuple[float, InterventionKind, int, float, np.ndarray] | None = None
         for kind, response in responses.items():
             stats = effect_statistics(e, response, scale, terms)
             tau = np.where(allowed[kind], stats.tau, 0.0)
             k = int(np.argmax(np.abs(tau)))
             if best is None or abs(tau[k]) > abs(best[0]):
-                best = (float(tau[k]), kind, k, stats)
+                best = (float(tau[k]), kind, k + lost, float(stats.size[k]), stats.trace(response, k, m, terms))
+        for (kind, position), x in early.items():
+            size = float(x @ e / (x @ x))
+            tau_early = size * float(np.sqrt(x @ x)) / scale
+            if best is None or abs(tau_early) > abs(best[0]):
+                best = (tau_early, kind, position, size, x)
         if best is None or abs(best[0]) <= threshold:
             break
-        tau_k, kind, k, stats = best
-        size = float(stats.size[k])
-        e -= size * stats.trace(responses[kind], k, m, terms)
-        for mask in allowed.values():
-            mask[k] = False
-        found.append(_Found(kind, k + lost, size, tau_k))
+        tau_k, kind, position, size, trace = best
+        e -= size * trace
+        if position >= lost:
+            for mask in allowed.values():
+                mask[position - lost] = False
+        early = {key: x for key, x in early.items() if key[1] != position}
+        found.append(_Found(kind, position, size, tau_k))
     return found
 
 

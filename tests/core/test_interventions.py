@@ -126,6 +126,22 @@ def test_a_spike_in_a_seasonal_series_does_not_take_its_seasonal_difference(posi
     assert [(i.kind, i.timestamp) for i in analysis.interventions] == [(InterventionKind.ADDITIVE, str(spiked.index[position].date()))]
     assert analysis.suggested.order == expected.suggested.order and analysis.suggested.order.seasonal_order[1] == 1
 
+@pytest.mark.parametrize("position", [0, 5, 12])
+def test_a_spike_in_the_points_the_differencing_uses_up_is_found_where_it_is(position):
+    # Under a seasonal difference an outlier in the first season reaches the differences only
+    # a season later (w_{T+s} = y_{T+s} - y_T). Chen & Liu's trace pi(B) xi(B) I(T) (1993, §2)
+    # is defined for every T of the sample; searched from the first difference on, the spike
+    # was read as an outlier of the opposite sign a season after it. Monthly Mauna Loa CO2
+    # (statsmodels' co2 data, the last 20 years) under the airline model, a spike of +3 ppm.
+    weekly = sm.datasets.co2.load_pandas().data["co2"]
+    spiked = weekly.resample("MS").mean().ffill().iloc[-240:]
+    spiked.iloc[position] += 3.0
+    y, model = spiked.to_numpy(), Order.of((0, 1, 1), (0, 1, 1, 12))
+    found = detect_interventions(y, model, fit_candidate(y, model).estimate, spiked.index)
+    assert [(i.kind, i.position) for i in found] == [(InterventionKind.ADDITIVE, position)]
+    assert found[0].size == pytest.approx(3.0, abs=0.5)
+
+
 def test_the_nile_level_shift_is_found():
     # The Nile's annual flow at Aswan, 1871-1970, dropped around 1898-1899 (Cobb 1978; Balke 1993
     # dates the shift in 1899). The tests disagree on d; the shift is found under the stationary
