@@ -315,7 +315,7 @@ def _export_options(export: argparse.ArgumentParser) -> None:
     from app.review.export import FORMATS
 
     _add_db(export)
-    export.add_argument("--format", choices=FORMATS, default="json", help="file format (default json)")
+    export.add_argument("--format", choices=FORMATS, help="file format (default: the one the output file's extension names, else json)")
     export.add_argument(
         "-o", "--output",
         help=f"file to write (atomically), a folder to write lagdesk-orders.FORMAT in (default: the current folder), "
@@ -753,7 +753,7 @@ def run_export(args: argparse.Namespace) -> int:
         from app.review.export import export_to_stream
 
         sys.stdout.flush()
-        print(export_to_stream(_existing_db(args.db), sys.stdout.buffer, args.format, args.status), file=sys.stderr)
+        print(export_to_stream(_existing_db(args.db), sys.stdout.buffer, args.format or "json", args.status), file=sys.stderr)
         return 0
     print(export_command(_existing_db(args.db), args.format, args.output, args.status))
     return 0

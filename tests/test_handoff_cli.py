@@ -80,9 +80,12 @@ def test_export_recheck_and_backtest_from_the_command_line(run_cli, tmp_path):
         verdict = get_verdict(db, SID)
     assert verdict["status"] == "recheck" and "fail the Ljung-Box test" in verdict["recheck_reason"]
 
-    code, out, _ = run_cli("export", "--db", db_path, "-o", target, "--format", "csv")
-    assert code == 0 and "0 orders written" in out and "1 recheck" in out
-    assert target.read_text().splitlines()[1:] == []
+    code, _, err = run_cli("export", "--db", db_path, "-o", target, "--format", "csv")
+    assert code == 2 and "the file is named .json but --format is csv" in err
+    as_csv = tmp_path / "orders.csv"  # the extension names the format
+    code, out, _ = run_cli("export", "--db", db_path, "-o", as_csv)
+    assert code == 0 and "0 orders written" in out and "as csv" in out and "1 recheck" in out
+    assert as_csv.read_text().splitlines()[0].startswith("series_id,") and as_csv.read_text().splitlines()[1:] == []
 
     code, out, _ = run_cli("backtest", SID, "--db", db_path, "--order", "1,0,0", "--json")
     assert code == 0

@@ -177,15 +177,34 @@ def write_atomically(path: Path, text: str) -> None:
         raise
 
 
+def export_format(given: str | None, output: str | Path | None) -> str:
+    """The format of an export: ``given``, else the one the output file's extension names
+    (``orders.csv``), else JSON.
+
+    Raises
+    ------
+    LagdeskError
+        When ``given`` and the extension name different formats (JSON in a ``.csv`` file would
+        break the job that reads it).
+    """
+    suffix = Path(str(output)).suffix.lower().lstrip(".") if output is not None else ""
+    named = suffix if suffix in FORMATS else None
+    if given is not None and named is not None and given != named:
+        raise LagdeskError(f"{output}: the file is named .{named} but --format is {given}; name it .{given} or drop --format")
+    return given or named or FORMATS[0]
+
+
 def export_command(
-    db_path: str | Path, fmt: str = "json", output: str | Path | None = None, statuses: str | Sequence[str] = DECIDED
+    db_path: str | Path, fmt: str | None = None, output: str | Path | None = None, statuses: str | Sequence[str] = DECIDED
 ) -> str:
     """``lagdesk export``: write the export of the database at ``db_path``; returns a summary line.
 
+    ``fmt`` defaults to the format ``output``'s extension names, else JSON (:func:`export_format`).
     ``output`` defaults to ``lagdesk-orders.<fmt>`` in the current folder, and a folder given as
     ``output`` gets that file name in it (one written with a trailing slash is a folder, and
     must exist); ``statuses`` is a list or a comma-separated text (``"approved,overridden"``).
     """
+    fmt = export_format(fmt, output)
     chosen = parse_statuses(statuses)
     target = Path(output) if output is not None else Path.cwd()
     if target.is_dir() or str(output).endswith(("/", os.sep)):
