@@ -1,5 +1,9 @@
 """Reading a CSV file in chunks of rows, with bounded memory and physical line numbers.
 
+The delimiter is the comma, unless the header holds none and a semicolon or a tab
+(:data:`OTHER_DELIMITERS`); a file separated by semicolons writes its numbers with a decimal
+comma (:attr:`CsvChunks.decimal_comma`), as spreadsheets set to a European locale save CSV.
+
 The file is never held whole: rows come in chunks of at most :data:`CHUNK_CELLS` cells and
 about :data:`CHUNK_CHARS` characters, each row with the physical line its record starts on (a
 quoted cell may span lines, so the n-th record is not always on line n + 1). A line is read with a bound (:data:`MAX_LINE_CHARS`) and a cell
@@ -34,6 +38,8 @@ CHUNK_CELLS = 1 << 17
 CHUNK_CHARS = 8 * 1024 * 1024
 BATCH_ROWS = 1024
 _UNDECODABLE = re.compile("[\udc80-\udcff]")  # what errors="surrogateescape" makes of a byte that is not UTF-8
+# Delimiters read instead of the comma when the header holds one of them and no comma.
+OTHER_DELIMITERS = (";", "\t")
 LINE_DTYPE = np.int32  # a file of 2**31 lines would need far more memory than its numbers take
 
 
@@ -61,8 +67,20 @@ class CsvChunks:
         except OSError as exc:
             raise InputFileError(name, f"cannot be read ({exc.strerror or exc})") from None
         self._chars_read = 0
+        self.delimiter = ","
         self._reader = csv.reader(self._bounded_lines(), skipinitialspace=True, strict=True)
         self.header, self.header_line = self._read_header()
+        if len(self.header) == 1 and (other := next((d for d in OTHER_DELIMITERS if d in self.header[0]), None)):
+            self._file.seek(0)
+            self._chars_read, self.delimiter = 0, other
+            self._reader = csv.reader(self._bounded_lines(), delimiter=other, skipinitialspace=True, strict=True)
+            self.header, self.header_line = self._read_header()
+
+    @property
+    def decimal_comma(self) -> bool:
+        """Whether numbers are written with a decimal comma: so in a file separated by
+        semicolons, as spreadsheets write CSV where the comma is the decimal mark."""
+        return self.delimiter == ";"
 
     def __enter__(self) -> CsvChunks:
         return self

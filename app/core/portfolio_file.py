@@ -129,10 +129,12 @@ def _column_positions(table: CsvChunks, columns: dict[str, str]) -> list[int]:
     missing = {role: name for role, name in columns.items() if name not in header}
     if missing:
         found = ", ".join(repr(shorten(c)) for c in header[:10])
-        if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
+        if len(header) == 1 and "|" in header[0]:
             hint = " (the file may use another delimiter than a comma)"
         else:
             hint = _naming_hint(list(missing))
+            if {"series id", "value"} <= set(missing) and "time" in columns and "time" not in missing:
+                hint += "; or, if each column beside the time column is a series, read it with --layout wide (the upload's wide layout)"
         raise InputFileError(
             table.name, f"no column named {', '.join(repr(shorten(c)) for c in missing.values())}; the header has {found}{hint}"
         )
@@ -164,9 +166,12 @@ def _refuse_repeated(table: CsvChunks, column: str) -> None:
         )
 
 
-def _numbers(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite number."""
+def _numbers(cells: np.ndarray, decimal_comma: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite
+    number; with ``decimal_comma``, ``12,5`` is twelve and a half."""
     texts = pd.Series(cells.ravel(), dtype=object)
+    if decimal_comma:
+        texts = texts.str.replace(",", ".", regex=False)
     empty = texts.eq("").to_numpy()
     numbers = pd.to_numeric(texts.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
     bad = ~empty & ~np.isfinite(numbers)
@@ -211,6 +216,7 @@ class _LongReader:
         limits: ReadLimits | None,
     ) -> None:
         self.name = table.name
+        self.decimal_comma = table.decimal_comma
         self.id_col = id_col
         self.positions = _column_positions(table, {"series id": id_col, "time": time_col, "value": value_col})
         self.stamps = stamps
@@ -227,7 +233,7 @@ class _LongReader:
         id_cells, time_cells, value_cells = (chunk.columns[i] for i in self.positions)
         lines = chunk.lines
         codes = self._codes(id_cells, lines)
-        numbers, bad = _numbers(value_cells)
+        numbers, bad = _numbers(value_cells, self.decimal_comma)
         for i in self._first_rows(codes, bad):
             self._reject(codes[i], _value_problem(self.ids[codes[i]], value_cells[i], numbers[i], lines[i]))
         if self.limits is not None:
@@ -323,6 +329,7 @@ class _WideReader:
 
     def __init__(self, table: CsvChunks, stamps: TimestampColumn, time_col: str, limits: ReadLimits | None) -> None:
         self.name = table.name
+        self.decimal_comma = table.decimal_comma
         (self.time_position,) = _column_positions(table, {"time": time_col})
         for name in table.header:
             _refuse_repeated(table, name)
@@ -353,7 +360,7 @@ class _WideReader:
             self.past_limit = int(chunk.lines[room])
             return
         cells = np.stack([chunk.columns[i] for i in self.value_positions])
-        numbers, bad = _numbers(cells)
+        numbers, bad = _numbers(cells, self.decimal_comma)
         for column in map(int, np.flatnonzero(bad.any(axis=1) & ~self.rejected)):
             i = int(np.argmax(bad[column]))
             self._reject(column, _value_problem(self.ids[column], cells[column, i], numbers[column, i], chunk.lines[i]))

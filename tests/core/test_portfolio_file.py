@@ -121,13 +121,26 @@ def test_a_missing_column_says_how_to_name_it(tmp_path):
         read_portfolio(_write(tmp_path, "id,timestamp,amount\na,1,2\n"))
     assert str(info.value).endswith(
         ": no column named 'series_id', 'value'; the header has 'id', 'timestamp', 'amount'; name the series id and "
-        "value columns with --id-col and --value-col (the upload's \"Series id\" and \"Value\" fields)"
+        "value columns with --id-col and --value-col (the upload's \"Series id\" and \"Value\" fields); or, if each column "
+        "beside the time column is a series, read it with --layout wide (the upload's wide layout)"
     )
 
 
 def test_other_delimiter_is_hinted(tmp_path):
     with pytest.raises(InputFileError, match="another delimiter"):
-        read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;2\n"))
+        read_portfolio(_write(tmp_path, "series_id|timestamp|value\na|1|2\n"))
+
+
+def test_semicolons_with_decimal_commas_and_tabs_are_read(tmp_path):
+    # A spreadsheet set to a European locale saves CSV with semicolons and decimal commas.
+    semicolons = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;2024-01-01;12,5\na;2024-01-02;-0,25\n"))
+    assert _by_id(semicolons)["a"].values.tolist() == [12.5, -0.25]
+    wide = read_portfolio(_write(tmp_path, "timestamp;x;y\n1;1,5;2\n2;3;\n"), layout="wide")
+    assert _by_id(wide)["x"].values.tolist() == [1.5, 3.0] and _by_id(wide)["y"].values.tolist()[0] == 2.0
+    tabs = read_portfolio(_write(tmp_path, "series_id\ttimestamp\tvalue\na\t1\t2.5\na\t2\t3\n"))
+    assert _by_id(tabs)["a"].values.tolist() == [2.5, 3.0]
+    (problem,) = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;1.234,5\nb;1;2\n")).problems
+    assert (problem.series_id, problem.row, "'1.234,5' is not a number" in str(problem)) == ("a", 2, True)
 
 
 @pytest.mark.parametrize("text", ["", "\n\n", "   \n"], ids=["empty", "blank lines", "spaces"])
