@@ -733,8 +733,12 @@ def run_decide(args: argparse.Namespace) -> int:
 
 
 def verdict_line(series_id: str, verdict: dict) -> str:
-    """A verdict in one line: series, status, order, version."""
-    order = f" {order_label(verdict['order'], verdict['seasonal_order'])}" if verdict["order"] else ""
+    """A verdict in one line: series, status, order with its scale, constant and interventions
+    when the reviewer set them, version."""
+    from app.review.decisions import model_words
+
+    words = model_words(verdict)
+    order = f" {order_label(verdict['order'], verdict['seasonal_order'])}{f' ({words})' if words else ''}" if verdict["order"] else ""
     return terminal_text(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
 
 

@@ -394,3 +394,21 @@ def decide(
         transform=choice.to_json(), trend=model.trend, interventions=chosen, note=note, reviewer=reviewer,
         version=version,
     )
+
+
+def model_words(decided: dict) -> str:
+    """What a decision chose besides its order, in words: the scale, the constant and the
+    interventions when the reviewer set them (empty for the analysis' own choices)."""
+    if decided["order"] is None:
+        return ""
+    transform = decided["transform"]
+    parts = []
+    if transform != "none":
+        parts.append("on log" if transform == "log" else f"on Box-Cox λ={transform['box_cox']:g}")
+    if decided["trend"] is not None:
+        parts.append("with constant" if decided["trend"] != "n" else "without constant")
+    chosen = decided.get("interventions")
+    if chosen is not None:
+        taken = [Intervention.from_dict(i) for i in chosen]
+        parts.append("interventions: " + ("; ".join(f"{i.kind.words()} at {i.timestamp}" for i in taken) if taken else "none"))
+    return ", ".join(parts)

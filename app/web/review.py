@@ -24,7 +24,7 @@ from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
 from app.core.transform import apply_transform
 from app.core.vocabulary import InterventionKind
-from app.review.decisions import CustomFit, fails_ljung_box
+from app.review.decisions import CustomFit, fails_ljung_box, model_words
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import remembered_checks
 from app.store.analyses import analysis_record, load_analysis
@@ -304,24 +304,6 @@ def custom_fit_view(db: sqlite_utils.Database, series_id: str, fit: CustomFit, m
         "interventions_chosen": fit.chosen,
         "model_query": model_query,
     }
-
-
-def model_words(decided: dict) -> str:
-    """What a decision chose besides its order, in words: the scale, the constant and the
-    interventions when the reviewer set them (empty for the analysis' own choices)."""
-    if decided["order"] is None:
-        return ""
-    transform = decided["transform"]
-    parts = []
-    if transform != "none":
-        parts.append("on log" if transform == "log" else f"on Box-Cox λ={transform['box_cox']:g}")
-    if decided["trend"] is not None:
-        parts.append("with constant" if decided["trend"] != "n" else "without constant")
-    chosen = decided.get("interventions")
-    if chosen is not None:
-        taken = [Intervention.from_dict(i) for i in chosen]
-        parts.append("interventions: " + ("; ".join(f"{i.kind.words()} at {i.timestamp}" for i in taken) if taken else "none"))
-    return ", ".join(parts)
 
 
 def intervention_choices(analysis: Analysis | None, verdict: dict, form: FormState) -> list[dict]:
