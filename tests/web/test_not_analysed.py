@@ -59,6 +59,8 @@ def test_a_failed_analysis_carries_its_reason_on_the_row_and_in_the_portfolio(cl
     assert (item["analysis_state"], item["analysis_message"]) == ("failed", ENGINE_WORDS)
     portfolio = client.get("/api/portfolio").json()
     assert (portfolio["failed"], portfolio["rejected"]) == (1, 1)
+    # The queue's counts add up: a series without a suggestion is named beside the confidence cards.
+    assert re.search(r"data-unsuggested>1 without a suggestion", client.get("/").text)
     assert portfolio["not_analysed"] == [
         {"series_id": CONSTANT_ID, "stage": "import", "reason": _import_rejection(db)["message"].split(": ", 1)[1]},
         {"series_id": FAILED_ID, "stage": "analysis", "reason": ENGINE_WORDS},
