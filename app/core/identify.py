@@ -834,7 +834,7 @@ def _finished(
     checks: tuple[tuple[_Finding | None, Flag], ...] = (
         (largest_residual(best.residuals, prepared.index, ratios), Flag.LARGE_RESIDUAL),
         (longer_cycle(best.residuals, prepared.freq, best.model.period or 0), Flag.LONGER_CYCLE),
-        (longest_flat_run(prepared.values, prepared.index, demand is not None), Flag.FLAT_RUN),
+        (longest_flat_run(prepared.values, prepared.index, demand is not None and demand.sparse), Flag.FLAT_RUN),
     )
     for found, flag in checks:
         if found:
