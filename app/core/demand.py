@@ -5,14 +5,18 @@ describes such a series poorly (it forecasts a smooth mean and gives negative lo
 practitioners forecast it with Croston's method or its bias-corrected variant instead. The
 classification of Syntetos, Boylan & Croston (2005) places a series by two figures:
 
-* **ADI**, the average inter-demand interval: the number of periods per period with a non-zero
-  demand, ``n / #{y_t > 0}`` (common practice for the average interval between demands);
+* **ADI**, the average inter-demand interval: the mean number of periods from one demand to
+  the next, ``(t_last - t_first) / (k - 1)`` over the ``k`` periods with a demand. The zeros
+  before the first demand and after the last are no intervals between demands: a product
+  launched after five years of zeros and sold every period since has ADI 1, where ``n / k``
+  (common practice) made it intermittent, and its launch was never sought as a level shift.
 * **CV²**, the squared coefficient of variation of the non-zero demand sizes
   (population variance over squared mean).
 
 with the cut-offs ADI = 1.32 and CV² = 0.49: *smooth* (both below), *erratic* (sizes vary),
 *intermittent* (demand is infrequent), *lumpy* (both). Only series that are non-negative and
-hold at least one zero are classified; anything else is not demand-like in this sense.
+hold at least one zero between their first demand and their last are classified; anything
+else is not demand-like in this sense.
 
 References
 ----------
@@ -49,7 +53,7 @@ class DemandPattern:
         return self.label in SPARSE_CLASSES
 
     def words(self) -> str:
-        text = (f"Demand pattern {self.label}: on average one period in {self.adi:.2f} has a demand "
+        text = (f"Demand pattern {self.label}: from one demand to the next {self.adi:.2f} periods on average "
                 f"(ADI; cut-off {ADI_CUTOFF}), and the non-zero sizes have CV² = {self.cv2:.2f} (cut-off {CV2_CUTOFF}).")
         if self.sparse:
             text += (" A Gaussian ARIMA suits such a series poorly: it forecasts a smooth level and its lower "
@@ -67,13 +71,13 @@ def classify_demand(values: np.ndarray) -> DemandPattern | None:
     ----------
     values : ndarray
         The series on its regular grid; missing points (NaN) are left out, so ADI counts the
-        observed periods per period with a demand.
+        observed periods between demands.
 
     Returns
     -------
     DemandPattern or None
-        None when a value is negative, when no value is zero, or when fewer than two values are
-        non-zero (no size variation to measure).
+        None when a value is negative, when no value between the first demand and the last is
+        zero, or when fewer than two values are non-zero (no interval, no size variation).
 
     References
     ----------
@@ -81,12 +85,13 @@ def classify_demand(values: np.ndarray) -> DemandPattern | None:
     """
     y = np.asarray(values, dtype=float)
     y = y[~np.isnan(y)]
-    if y.size == 0 or np.any(y < 0) or not np.any(y == 0):
+    if y.size == 0 or np.any(y < 0):
         return None
-    sizes = y[y > 0]
-    if sizes.size < 2:
+    demands = np.flatnonzero(y > 0)
+    if demands.size < 2 or not np.any(y[demands[0]:demands[-1]] == 0):
         return None
-    adi = y.size / sizes.size
+    sizes = y[demands]
+    adi = (demands[-1] - demands[0]) / (demands.size - 1)
     cv2 = float(np.var(sizes) / np.mean(sizes) ** 2)
     rare, varied = adi >= ADI_CUTOFF, cv2 >= CV2_CUTOFF
     label = {(False, False): "smooth", (False, True): "erratic", (True, False): "intermittent", (True, True): "lumpy"}[(rare, varied)]

@@ -88,17 +88,29 @@ def test_a_spike_is_found_where_it_is():
 
 
 def test_demand_classes_from_a_hand_computed_example():
-    # y = 0 0 5 0 3 0 0 4: ADI = 8 / 3 = 2.67 >= 1.32; sizes 5, 3, 4: mean 4, population
+    # y = 0 0 5 0 3 0 0 4: demands at periods 2, 4 and 7, ADI = the mean interval between
+    # successive demands = (7 - 2) / 2 = 2.5 >= 1.32; sizes 5, 3, 4: mean 4, population
     # variance 2/3, CV² = 0.042 < 0.49 -> intermittent (Syntetos, Boylan & Croston 2005).
     found = classify_demand(np.array([0, 0, 5, 0, 3, 0, 0, 4.0]))
     assert found is not None
-    assert found.adi == pytest.approx(8 / 3) and found.cv2 == pytest.approx((2 / 3) / 16)
+    assert found.adi == pytest.approx(2.5) and found.cv2 == pytest.approx((2 / 3) / 16)
     assert found.label == "intermittent" and found.sparse
     assert classify_demand(np.array([0, 1, 20, 0, 2, 0, 0, 30.0])).label == "lumpy"
-    assert classify_demand(np.array([0, 10, 11, 9, 10, 12, 10, 9.0])).label == "smooth"
-    assert classify_demand(np.array([0, 1, 20, 2, 30, 1, 25, 3.0])).label == "erratic"
+    assert classify_demand(np.array([10, 0, 11, 9, 10, 12, 10, 9.0])).label == "smooth"
+    assert classify_demand(np.array([1, 0, 20, 2, 30, 1, 25, 3.0])).label == "erratic"
     assert classify_demand(np.array([1.0, 2.0, 3.0])) is None  # no zero: not demand-like
     assert classify_demand(np.array([0.0, -1.0, 3.0, 4.0])) is None  # negative values
+
+
+def test_zeros_before_the_first_demand_and_after_the_last_are_no_intervals():
+    # A product launched after five years without sales, sold every period since: no interval
+    # between its demands is longer than one period, so it is no intermittent demand (n / k
+    # made it ADI 1.43, and its launch was never sought as a level shift); nor is one withdrawn.
+    sold = np.random.default_rng(6).poisson(20, 140).astype(float) + 1.0
+    assert classify_demand(np.r_[np.zeros(60), sold]) is None
+    assert classify_demand(np.r_[sold, np.zeros(60)]) is None
+    gapped = np.r_[np.zeros(60), sold[:70], 0.0, sold[70:]]
+    assert classify_demand(gapped).adi == pytest.approx(140 / 139) and classify_demand(gapped).label == "smooth"
 
 
 def _ar1(rng, n, phi):
@@ -132,12 +144,14 @@ def test_engine_flags_intermittent_demand_and_never_calls_it_firm():
     assert found.to_analysis().to_dict()["demand_class"] == "intermittent"
 
 
-@pytest.mark.parametrize(("demand_days", "label"), [(25, "intermittent"), (26, "smooth")])
-def test_the_interval_cut_off_is_1_32_inclusive(demand_days, label):
-    # 33 periods with 25 demands: ADI = 33 / 25 = 1.32 exactly, the cut-off of Syntetos, Boylan
-    # & Croston (2005), which counts as infrequent; with 26 demands ADI = 1.27. Equal sizes: CV² 0.
-    y = np.zeros(33)
-    y[:demand_days] = 4.0
+@pytest.mark.parametrize(("demands", "label"), [(26, "intermittent"), (27, "smooth")])
+def test_the_interval_cut_off_is_1_32_inclusive(demands, label):
+    # Demands at the first and the last of 34 periods and in between: with 26 demands the mean
+    # interval is 33 / 25 = 1.32 exactly, the cut-off of Syntetos, Boylan & Croston (2005),
+    # which counts as infrequent; with 27 it is 33 / 26 = 1.27. Equal sizes: CV² 0.
+    y = np.zeros(34)
+    y[[0, 33]] = 4.0
+    y[1:demands - 1] = 4.0
     found = classify_demand(y)
     assert found is not None and found.label == label
 
