@@ -649,7 +649,8 @@ def test_decide_approve_records_the_suggestion_and_a_history_row(run_cli, decide
                              "--db", decide_db)
 
     assert (code, err) == (0, "")
-    assert out.splitlines() == [f"north/b: approved {suggested.label()} (version 1, by Ann Lee)"]
+    constant = "with constant" if suggested.trend != "n" else "without constant"
+    assert out.splitlines() == [f"north/b: approved {suggested.label()} ({constant}) (version 1, by Ann Lee)"]
     verdict = _read(decide_db, get_verdict, "north/b")
     analysis = _read(decide_db, load_analysis, "north/b")
     assert (verdict["status"], verdict["order"], verdict["seasonal_order"]) == (

@@ -27,7 +27,7 @@ from app.jobs.order_fits import NUMERICAL_FAILURES, data_period, fit_and_keep, f
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import UnknownSeries
 from app.store.series import unknown_series
-from app.store.verdicts import get_verdict, set_verdict
+from app.store.verdicts import StaleVersion, get_verdict, set_verdict
 
 # A note is a reviewer's reason in a few sentences; the bound keeps a pasted file (or an
 # attacker's megabytes) out of the history, which keeps every version of it.
@@ -323,7 +323,9 @@ def decide(
     ------
     UnknownSeries, StaleVersion, OrderError, DecisionError, ConfirmationNeeded
     """
-    verdict_of(db, series_id)  # UnknownSeries before anything else
+    current = verdict_of(db, series_id)  # UnknownSeries before anything else
+    if current["version"] != version:  # before any fit: a stale form costs no computation
+        raise StaleVersion(series_id, version, current)
     note = checked_note(note)
     if status not in REVIEWER_STATUSES:
         raise DecisionError(f"status must be one of {', '.join(REVIEWER_STATUSES)}, not {status!r}")

@@ -4,6 +4,7 @@ reviewer, and one expensive computation per series at a time."""
 from __future__ import annotations
 
 import os
+import re
 import threading
 from collections.abc import Iterator
 from contextlib import AbstractContextManager, contextmanager
@@ -23,6 +24,7 @@ COOKIE_MAX_AGE_S = 365 * 24 * 3600
 # The largest integer SQLite stores: ids, versions and offsets beyond it are refused with 422
 # at the door instead of overflowing in the driver.
 SQLITE_MAX_INTEGER = 2**63 - 1
+_ASCII_DIGITS = re.compile(r"[0-9]+")
 REVIEWER_MAX_LENGTH = 80
 
 
@@ -121,6 +123,13 @@ def remember_reviewer(response: Response, reviewer: str) -> Response:
     return response
 
 
+def whole_number(text: str) -> int | None:
+    """``text`` as a whole number written in the digits 0-9 alone, else None: Python's ``int``
+    also reads other scripts' digits and underscores (``int("1_0")`` is 10), and
+    ``str.isdigit`` passes a superscript two that ``int`` then refuses."""
+    return int(text) if _ASCII_DIGITS.fullmatch(text.strip()) else None
+
+
 def whole_numbers(text: str, count: int, name: str) -> list[int]:
     """``count`` comma-separated whole numbers from a query parameter (``order=1,1,0``).
 
@@ -129,10 +138,8 @@ def whole_numbers(text: str, count: int, name: str) -> list[int]:
     OrderError
         When ``text`` is not that (answered with 422).
     """
-    try:
-        values = [int(part) for part in text.split(",")]
-    except ValueError:
-        values = []
+    parsed = [whole_number(part) for part in text.split(",")]
+    values = [v for v in parsed if v is not None] if None not in parsed else []
     if len(values) != count:
         raise OrderError(f"{name} must be {count} comma-separated whole numbers, not {text!r}")
     return values

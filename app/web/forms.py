@@ -11,7 +11,7 @@ from app.core.analysis import Analysis
 from app.core.errors import OrderError
 from app.core.vocabulary import VerdictStatus
 from app.review.decisions import DecisionError
-from app.web.deps import SQLITE_MAX_INTEGER
+from app.web.deps import SQLITE_MAX_INTEGER, whole_number
 from app.web.review import CUSTOM_FIELDS, INTERVENTION_SEPARATOR
 
 SUGGESTION_KEY = "1"
@@ -123,10 +123,10 @@ class DecisionForm(CustomModel):
                 text = "0"
             if not text:
                 raise OrderError(f"{name} is empty: give the custom order as whole numbers")
-            try:
-                values.append(int(text))
-            except ValueError:
-                raise OrderError(f"{name} must be a whole number, not {text!r}") from None
+            value = whole_number(text)
+            if value is None:
+                raise OrderError(f"{name} must be a whole number, not {text!r}")
+            values.append(value)
         return values[:3], values[3:]
 
     def decision(self, analysis: Analysis | None) -> Decision:
@@ -149,8 +149,8 @@ class DecisionForm(CustomModel):
             order, seasonal = self.custom_order()
             transform, include_constant = self.model_choice()
             interventions = self.chosen_interventions()
-        elif self.choice.isdigit() and 1 <= int(self.choice) <= len(candidates):
-            picked = candidates[int(self.choice) - 1].order
+        elif (rank := whole_number(self.choice)) is not None and 1 <= rank <= len(candidates):
+            picked = candidates[rank - 1].order
             order, seasonal = list(picked.order), list(picked.seasonal_order)
         else:
             raise OrderError(f"choice {self.choice!r} is neither a candidate (1..{len(candidates)}) nor 'custom'")

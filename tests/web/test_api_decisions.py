@@ -40,6 +40,17 @@ def verdict(client, series_id: str, **body):
     return client.post(url(series_id, "/verdict"), json={"reviewer": "Ada", "version": 0, **body})
 
 
+def test_a_stale_version_is_refused_before_anything_is_fitted(client, monkeypatch):
+    # Four overrides sent at once all fitted their order (30 s each on a long series) before
+    # three were refused for their version: the version is checked first now.
+    def no_fit(*args, **kwargs):
+        raise AssertionError("fitted for a stale version")
+
+    monkeypatch.setattr("app.review.decisions.load_prepared", no_fit)
+    stale = verdict(client, WALK, status="overridden", order=[2, 1, 0], version=7)
+    assert stale.status_code == 409 and stale.json()["verdict"]["version"] == 0
+
+
 def test_pending_reopens_a_decided_series_and_the_history_keeps_both(client):
     approved = verdict(client, AR1, status="approved", note="clean AR(1)")
     assert approved.status_code == 200

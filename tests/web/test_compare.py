@@ -78,6 +78,10 @@ def test_compare_takes_horizon_and_origins_for_every_order(client, fresh_memory)
     ({"order": ["1,0,0", "1,0,0"]}, "must differ"),
     ({"order": ["1,0,0", "0,0,1"], "seasonal_order": ["0,0,0,0"]}, "for every order or for none"),
     ({"order": ["1,x,0", "0,0,1"]}, "order must be 3 comma-separated whole numbers"),
+    # Written in the digits 0-9 alone: int() reads a fullwidth two and 1_0, and isdigit() passes
+    # a superscript two that int() then refuses (it was a 500).
+    ({"order": ["1,\uff12,0", "0,0,1"]}, "order must be 3 comma-separated whole numbers"),
+    ({"order": ["1_0,0,0", "0,0,1"]}, "order must be 3 comma-separated whole numbers"),
     ({"order": ["6,0,0", "0,0,1"]}, "engine's search limits"),
     ({"order": ["1,0,0", "0,0,1"], "horizon": 31}, "horizon (31) must be between 1 and 30"),
 ])
@@ -85,6 +89,11 @@ def test_compare_refuses_what_it_cannot_take_with_422(client, params, words):
     response = client.get(compare_url(), params=params)
     assert response.status_code == 422
     assert words in str(response.json()["detail"])
+
+
+def test_a_candidate_written_in_other_digits_is_refused_not_an_error(client):
+    page = client.get(compare_url(page=True), params={"candidate": ["1", "\u00b2"], "fragment": "true"})
+    assert page.status_code == 422 and "is not one of the" in page.text
 
 
 def test_compare_of_an_unknown_series_is_404_and_of_a_busy_one_429(client):

@@ -23,7 +23,7 @@ from app.review.forecast_check import MAX_COMPARED, MAX_ORIGINS, MIN_COMPARED, M
 from app.store.analyses import load_analysis
 from app.store.database import UnknownSeries
 from app.store.series import series_fingerprint
-from app.web.deps import computation_slot, get_db, whole_numbers
+from app.web.deps import computation_slot, get_db, whole_number, whole_numbers
 from app.web.errors import status_of
 from app.web.forecast import comparison_view
 from app.web.routes.api import ERROR_STATUSES, ErrorMessage, finite
@@ -90,9 +90,10 @@ def candidate_orders(db: sqlite_utils.Database, series_id: str, keys: list[str])
     count = len(analysis.candidates)
     picked: OrderPairs = []
     for key in keys:
-        if not key.isdigit() or not 1 <= int(key) <= count:
+        rank = whole_number(key)
+        if rank is None or not 1 <= rank <= count:
             raise LagdeskError(f"candidate {key!r} is not one of the {count} candidates of {series_id!r}")
-        candidate = analysis.candidates[int(key) - 1]
+        candidate = analysis.candidates[rank - 1]
         picked.append((list(candidate.order.order), list(candidate.order.seasonal_order)))
     return picked
 
