@@ -113,6 +113,10 @@ import numpy as np
 from app.core.numba_cache import njit
 from app.core.prepare import interpolate_gaps
 
+# Every function compiled here runs without Python's global lock (app.core.numba_cache.njit).
+# numba keys its cache on this file's contents, not on the compile options: a change of options
+# reaches an existing cache only with a change of this file.
+
 LOG_2PI = math.log(2.0 * math.pi)
 STEADY_STATE_TOLERANCE = 1e-13
 # The filters sum log F_t as a running product of the F_t (each at least 1), flushed into the sum

@@ -29,6 +29,9 @@ from app.web.security import require_token_off_loopback
 from app.web.uploads import remove_stale_upload_folders
 
 KEEP_ALIVE_S = 5
+# How long a stop (Ctrl-C, SIGTERM) waits for the requests under way: without a bound it
+# waited for a custom fit of minutes to end, and only SIGKILL stopped the server.
+SHUTDOWN_GRACE_S = 5
 
 
 class HeaderDeadlineProtocol(H11Protocol):
@@ -84,6 +87,7 @@ def server_config(settings: Settings) -> uvicorn.Config:
     return uvicorn.Config(
         create_app(settings), host=settings.host, port=settings.port, log_level="warning",
         timeout_keep_alive=KEEP_ALIVE_S, http=header_deadline_protocol(settings.request_timeout_s),
+        timeout_graceful_shutdown=SHUTDOWN_GRACE_S,
     )
 
 

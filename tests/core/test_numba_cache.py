@@ -48,3 +48,12 @@ def test_compile_pending_reads_the_cache_index(tmp_path):
     index.parent.mkdir()
     index.write_bytes(b"")
     assert not compile_pending(environ)
+
+
+def test_the_compiled_likelihood_runs_without_the_global_lock():
+    # Held, the lock let one long fit in the dashboard stop every other request (numba's
+    # nogil option releases it for the compiled code, which touches no Python object).
+    from app.core import likelihood
+
+    kernels = [f for f in vars(likelihood).values() if hasattr(f, "targetoptions")]
+    assert kernels and all(f.targetoptions.get("nogil") for f in kernels)
