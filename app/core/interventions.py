@@ -362,8 +362,9 @@ def sized_interventions(
         if not identifiable(y, model, kind, position):
             raise ValueError(f"the {kind.words()} at {moment(index[position])} reaches no observed point once the series "
                              f"is differenced for {model.label()} (the points around it are missing), so its size cannot be estimated")
-    fit = _fit(y, model, [effect_column(kind, position, y.size) for position, kind in placed],
-               np.zeros(0) if start is None else start)
+    columns = [effect_column(kind, position, y.size) for position, kind in placed]
+    _refuse_the_same_effect(y, model, placed, columns, index)
+    fit = _fit(y, model, columns, np.zeros(0) if start is None else start)
     n_trend = len(trend_design(y.size, model)[0])
     sizes = fit.beta[n_trend:]
     errors = fit.regression_standard_errors[n_trend:]
@@ -372,6 +373,25 @@ def sized_interventions(
                      float(size / error) if np.isfinite(error) and error > 0 else float("nan"))
         for (position, kind), size, error in zip(placed, sizes, errors)
     ]
+
+
+def _refuse_the_same_effect(y: np.ndarray, model: Order, placed: Sequence[tuple[int, InterventionKind]],
+                            columns: list[np.ndarray], index: pd.Index) -> None:
+    """A ``ValueError`` naming the first intervention whose effect, once the series is
+    differenced for ``model``, the model's mean or drift and the interventions before it
+    already make (a level shift at the first point is the mean; an outlier and a temporary
+    change at the last point are one column): their sizes cannot be told apart."""
+    _, trend = trend_design(y.size, model)
+    observed = ~np.isnan(difference(y, model))
+    design = difference(np.column_stack(columns), model)[observed]
+    before = trend[observed] if trend is not None else np.zeros((int(observed.sum()), 0))
+    for i, (position, kind) in enumerate(placed):
+        grown = np.column_stack([before, design[:, i]])
+        if np.linalg.matrix_rank(grown) <= (np.linalg.matrix_rank(before) if before.shape[1] else 0):
+            others = [f"the {k.words()} at {moment(index[p])}" for p, k in placed[:i]] + (["the mean or drift"] if trend is not None else [])
+            raise ValueError(f"the {kind.words()} at {moment(index[position])} has the same effect on {model.label()} as "
+                             f"{' and '.join(others) or 'nothing'}, so its size cannot be estimated apart from theirs; leave one out")
+        before = grown
 
 
 def estimate_jointly(

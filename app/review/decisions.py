@@ -259,8 +259,8 @@ def reviewer_interventions(
     try:
         return tuple(sized_interventions(apply_transform(prepared.values, choice), model, placed, prepared.index))
     except NUMERICAL_FAILURES as exc:
-        raise OrderError(f"series {prepared.series_id!r}: the interventions could not be sized with {model.label()} "
-                         f"({type(exc).__name__}: {exc})") from None
+        why = str(exc) if isinstance(exc, ValueError) else f"{type(exc).__name__}: {exc}"  # a ValueError is in words
+        raise OrderError(f"series {prepared.series_id!r}: the interventions could not be sized with {model.label()} ({why})") from None
 
 
 def _stored_candidate(analysis: Analysis | None, model: Order, choice: TransformChoice) -> Candidate | None:

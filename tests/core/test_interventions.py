@@ -3,6 +3,8 @@ a published example; the detection figures by kind and size on seeded simulation
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -251,6 +253,22 @@ def _spike_between_two_gaps() -> pd.Series:
     y[100] += 15
     y[[99, 101]] = np.nan
     return pd.Series(y, index=pd.date_range("2020-01-01", periods=200, freq="D"))
+
+
+@pytest.mark.parametrize(("model", "placed", "words"), [
+    (Order.of((1, 0, 0), None, "c"), [(0, InterventionKind.LEVEL_SHIFT)], "level shift at 2020-01-01 has the same effect on "
+     "ARIMA(1,0,0) as the mean or drift"),
+    (Order.of((1, 0, 0), None, "c"), [(119, InterventionKind.ADDITIVE), (119, InterventionKind.TEMPORARY_CHANGE)],
+     "temporary change at 2020-04-29 has the same effect on ARIMA(1,0,0) as the additive outlier at 2020-04-29"),
+    (Order.of((0, 1, 1)), [(0, InterventionKind.ADDITIVE), (1, InterventionKind.LEVEL_SHIFT)],
+     "level shift at 2020-01-02 has the same effect on ARIMA(0,1,1) as the additive outlier at 2020-01-01"),
+])
+def test_interventions_whose_effects_coincide_are_refused_in_words(model, placed, words):
+    # Their columns are linearly dependent once the series is differenced (a shift at the first
+    # point is the mean), so no fit can size them apart: it ended in "Matrix is singular".
+    y = 10 + np.random.default_rng(1).normal(size=120)
+    with pytest.raises(ValueError, match=re.escape(words)):
+        sized_interventions(y, model, placed, pd.date_range("2020-01-01", periods=120, freq="D"))
 
 
 def test_an_effect_no_observed_difference_reaches_is_not_identifiable():
