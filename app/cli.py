@@ -635,6 +635,12 @@ def status_text(status: dict, last: dict | None, db_path: Path) -> str:
     ]
     if status["not_analysed"]:
         lines += [f"not analysed ({len(status['not_analysed'])}):", *not_analysed_lines(status)]
+    refused = status["refused_updates"]
+    if refused:
+        lines += [f"kept their earlier data ({len(refused)}): a later import refused the new data",
+                  *(terminal_text(f"  {r['series_id']}: {r['file']}: {r['reason']}") for r in refused[:NOT_ANALYSED_SHOWN])]
+        if len(refused) > NOT_ANALYSED_SHOWN:
+            lines.append(f"  ... and {len(refused) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
     if last is not None:
         lines.append(
             f"last run: {last['run_id']}, {last['state']}, started {last['started_at']}, "

@@ -285,6 +285,14 @@ def _item(row: dict) -> dict:
     }
 
 
+# Each series' newest rejection by an import, with that import's id, file and time.
+_NEWEST_REJECTIONS = (
+    "WITH rejections AS (SELECT json_extract(j.value, '$.series_id') AS series_id, j.value AS rejection, i.import_id, "
+    "i.file, i.imported_at, row_number() OVER (PARTITION BY json_extract(j.value, '$.series_id') ORDER BY i.import_id "
+    "DESC) AS newest FROM imports i, json_each(i.rejected) j) "
+)
+
+
 def rejected_series(db: sqlite_utils.Database, *, q: str | None = None, prefix: str | None = None) -> list[dict]:
     """The series an import rejected (too short, constant, unreadable ...) that no import stored
     since, by id: each with the reason its latest rejection gave.
@@ -300,18 +308,27 @@ def rejected_series(db: sqlite_utils.Database, *, q: str | None = None, prefix: 
         ``constant`` ...), ``line`` the file line named (or None), ``file`` and ``imported_at``
         those of the import that rejected it.
     """
+    return _newest_rejections(db, "NOT EXISTS (SELECT 1 FROM series stored WHERE stored.series_id = s.series_id)", q, prefix)
+
+
+def refused_updates(db: sqlite_utils.Database, *, q: str | None = None, prefix: str | None = None) -> list[dict]:
+    """The stored series whose new data an import refused after the import that last stored
+    theirs: they keep their earlier data, and their analysis and verdict are of that data.
+    Items as :func:`rejected_series`'s; an import that stores the series again takes it off."""
+    return _newest_rejections(db, "s.import_id > (SELECT coalesce(stored.updated_import_id, stored.created_import_id) "
+                                  "FROM series stored WHERE stored.series_id = s.series_id)", q, prefix)
+
+
+def _newest_rejections(db: sqlite_utils.Database, condition: str, q: str | None, prefix: str | None) -> list[dict]:
+    """Each series' newest rejection that meets ``condition`` (SQL on ``s``), by id."""
     where, params = _where(None, None, None, q, prefix)
+    ids = f" AND {where.removeprefix('WHERE ')}" if where else ""
     rows = db.execute(
-        "WITH rejections AS (SELECT json_extract(j.value, '$.series_id') AS series_id, j.value AS rejection, i.file, "
-        "i.imported_at, row_number() OVER (PARTITION BY json_extract(j.value, '$.series_id') ORDER BY i.import_id DESC) "
-        "AS newest FROM imports i, json_each(i.rejected) j), "
-        "latest AS (SELECT * FROM rejections r WHERE r.newest = 1 "
-        "AND NOT EXISTS (SELECT 1 FROM series stored WHERE stored.series_id = r.series_id)) "
-        f"SELECT s.rejection, s.file, s.imported_at FROM latest s {where} ORDER BY s.series_id",
+        f"{_NEWEST_REJECTIONS}SELECT s.rejection, s.file, s.imported_at FROM rejections s "
+        f"WHERE s.newest = 1 AND {condition}{ids} ORDER BY s.series_id",
         params,
     ).fetchall()
     return [_rejected_item(json.loads(rejection), file, imported_at) for rejection, file, imported_at in rows]
-
 
 
 def unknown_series(db: sqlite_utils.Database, series_id: str) -> UnknownSeries:

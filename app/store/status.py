@@ -7,7 +7,7 @@ import sqlite_utils
 
 from app.core.engine_version import ENGINE_VERSION
 from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL, failed_analyses
-from app.store.series import confidence_counts, problem_reason, rejected_series
+from app.store.series import confidence_counts, problem_reason, refused_updates, rejected_series
 from app.store.verdicts import verdict_counts
 
 # Where a series stopped short of an analysis: refused by the import, or failed in the engine.
@@ -17,7 +17,7 @@ ANALYSIS_STAGE = "analysis"
 
 def portfolio_status(db: sqlite_utils.Database) -> dict:
     """``{"series", "analysed", "stale", "failed", "earlier_engine", "rejected", "confidence":
-    {level: n}, "verdicts": {status: n}, "not_analysed": [...]}``.
+    {level: n}, "verdicts": {status: n}, "not_analysed": [...], "refused_updates": [...]}``.
 
     ``analysed`` counts series with a complete analysis of their current data, ``stale`` those
     whose analysis is missing or out of date, ``failed`` those whose current data failed;
@@ -25,7 +25,9 @@ def portfolio_status(db: sqlite_utils.Database) -> dict:
     next ``lagdesk analyze`` analyses again (:data:`~app.store.analyses.EARLIER_ENGINE_SQL`);
     ``rejected`` the series an import refused (not stored, so not in ``series``);
     ``confidence`` the stored analyses by level, weakest first. ``not_analysed`` is
-    :func:`not_analysed`.
+    :func:`not_analysed`; ``refused_updates`` the stored series whose new data a later import
+    refused (:func:`~app.store.series.refused_updates`: they keep their earlier data), each
+    ``{"series_id", "reason", "file"}``.
     """
     series, analysed, stale, failed, earlier = db.execute(
         "SELECT count(*), coalesce(sum(state = 'current'), 0), coalesce(sum(state IN ('missing', 'stale')), 0), "
@@ -38,6 +40,7 @@ def portfolio_status(db: sqlite_utils.Database) -> dict:
         "series": series, "analysed": analysed, "stale": stale, "failed": failed, "earlier_engine": earlier,
         "rejected": sum(m["stage"] == IMPORT_STAGE for m in missing),
         "confidence": confidence_counts(db), "verdicts": verdict_counts(db), "not_analysed": missing,
+        "refused_updates": [{"series_id": r["series_id"], "reason": r["reason"], "file": r["file"]} for r in refused_updates(db)],
     }
 
 

@@ -15,6 +15,7 @@ from app.store.series import (
     flags_present,
     group_counts,
     list_series,
+    refused_updates,
     rejected_series,
     series_values,
 )
@@ -77,6 +78,7 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
         "total": total,
         "items": items,
         "rejected": rejected_in_filter(db, flt),
+        "refused_updates": refused_updates(db, q=flt.q, prefix=flt.prefix)[:REJECTED_SHOWN],
         "rejected_shown": REJECTED_SHOWN,
         "offset": offset,
         "limit": limit,

@@ -21,6 +21,7 @@ from app.store.series import (
     load_series,
     next_awaiting,
     problem_reason,
+    refused_updates,
     rejected_series,
     series_fingerprint,
     series_neighbours,
@@ -179,6 +180,7 @@ def test_count_by_and_portfolio_status(listed_db):
         "series": 10, "analysed": 8, "stale": 1, "failed": 1, "earlier_engine": 0, "rejected": 0,
         "confidence": {"weak": 3, "tentative": 2, "firm": 3}, "verdicts": verdicts,
         "not_analysed": [{"series_id": "f-failed", "stage": "analysis", "reason": "every candidate failed"}],
+        "refused_updates": [],
     }
 
 
@@ -186,6 +188,7 @@ def test_status_of_an_empty_database(fresh_db):
     assert portfolio_status(fresh_db) == {
         "series": 0, "analysed": 0, "stale": 0, "failed": 0, "earlier_engine": 0, "rejected": 0,
         "confidence": {"weak": 0, "tentative": 0, "firm": 0}, "verdicts": NO_VERDICTS, "not_analysed": [],
+        "refused_updates": [],
     }
     assert list_series(fresh_db) == (0, [])
 
@@ -238,6 +241,22 @@ def test_a_rejected_series_shows_its_latest_reason_and_leaves_the_list_once_stor
     import_portfolio(fresh_db, _csv_rows(tmp_path / "c.csv", {"s": [float((t * 7) % 11) for t in range(30)]}))
     assert rejected_series(fresh_db) == []
     assert list_series(fresh_db)[0] == 1
+
+
+def test_a_stored_series_whose_new_data_an_import_refused_is_named_until_stored_again(fresh_db, tmp_path):
+    # The update is refused (a value that is not a number), the series keeps its earlier data
+    # and its analysis: status says so, where it named only series never stored before.
+    values = [float((t * 7) % 11) for t in range(30)]
+    import_portfolio(fresh_db, _csv_rows(tmp_path / "a.csv", {"s": values, "t": values}))
+    (tmp_path / "b.csv").write_text("series_id,timestamp,value\ns,30,1\ns,31,x\nt,30,2\n")
+    report = import_portfolio(fresh_db, tmp_path / "b.csv")
+    assert [r["series_id"] for r in report.rejected] == ["s"]
+    assert rejected_series(fresh_db) == []
+    [refused] = refused_updates(fresh_db)
+    assert (refused["series_id"], refused["file"], refused["flag"]) == ("s", report.file, "bad_value")
+    assert portfolio_status(fresh_db)["refused_updates"] == [{"series_id": "s", "reason": refused["reason"], "file": report.file}]
+    import_portfolio(fresh_db, _csv_rows(tmp_path / "c.csv", {"s": values + [1.0, 2.0]}))
+    assert refused_updates(fresh_db) == []
 
 
 def test_loading_a_series_and_its_analysis_uses_indexes_not_scans(listed_db):

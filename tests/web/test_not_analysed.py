@@ -85,3 +85,15 @@ def test_the_queue_page_shows_the_first_rejected_series_and_links_to_all(client,
     assert re.findall(r'data-rejected="([^"]+)"', page) == ["flat/0", "flat/1"]
     assert "The first 2 are shown" in page
     assert len(client.get("/api/series", params={"prefix": "flat/"}).json()["rejected"]) == 3
+
+
+def test_the_queue_page_names_a_series_whose_new_data_an_import_refused(client, db, tmp_path):
+    # It keeps its earlier data and analysis, so it is no row "not analysed"; without this
+    # block nothing on the page said the newer file was refused for it.
+    stored = "plant-a/line-1/ar1"
+    update = tmp_path / "update.csv"
+    update.write_text(f"series_id,timestamp,value\n{stored},2099-01-01,twelve\n")
+    import_portfolio(db, update)
+    page = client.get("/").text
+    assert f'data-refused-update="{stored}"' in page and "kept its earlier data" in page
+    assert "value &#39;twelve&#39; is not a number" in page
