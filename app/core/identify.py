@@ -829,7 +829,8 @@ def _finished(
         data_notes.append(demand.words())
         flags.append(Flag.INTERMITTENT_DEMAND)
         leading.append(f"{demand.label} demand: a Gaussian ARIMA suits it poorly")
-    ratios = (prediction_variance_ratios(best.estimate.ar_polynomial, best.estimate.ma_polynomial, best.residuals.size)
+    ratios = (prediction_variance_ratios(best.estimate.ar_polynomial, best.estimate.ma_polynomial, best.residuals.size,
+                                         np.isnan(best.residuals))
               if best.estimate is not None else None)
     checks: tuple[tuple[_Finding | None, Flag], ...] = (
         (largest_residual(best.residuals, prepared.index, ratios), Flag.LARGE_RESIDUAL),

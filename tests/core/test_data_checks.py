@@ -222,6 +222,23 @@ def test_rescaled_residuals_equal_statsmodels_standardized_forecast_errors(serie
         assert ratios[0] == pytest.approx(1.0 / (1.0 - fit.estimate.coefficients[0] ** 2), rel=1e-9)  # gamma_0 / sigma^2
 
 
+def test_rescaled_residuals_after_a_gap_equal_statsmodels_standardized_forecast_errors():
+    # After ten missing points the first error is a prediction from eleven steps back, of
+    # variance sigma^2 (1 - phi^22) / (1 - phi^2), not sigma^2: the Kalman filter's F_t (Jones
+    # 1980), as statsmodels' filter of the same series with its gap reports it.
+    y = _persistent_ar1()
+    y[100:110] = np.nan
+    fit = fit_candidate(y, validate_order((1, 0, 0), (0, 0, 0, 0), trend="c"))
+    ratios = prediction_variance_ratios(fit.estimate.ar_polynomial, fit.estimate.ma_polynomial, fit.residuals.size,
+                                        np.isnan(fit.residuals))
+    phi = fit.estimate.coefficients[0]
+    assert ratios[110] == pytest.approx((1 - phi ** 22) / (1 - phi ** 2), rel=1e-9) and np.isnan(ratios[105])
+    reference = ARIMA(y, order=(1, 0, 0), trend="c").filter(np.array([p.value for p in fit.params]))
+    observed = ~np.isnan(y)
+    np.testing.assert_allclose((fit.residuals / np.sqrt(ratios * fit.estimate.sigma2))[observed],
+                               reference.standardized_forecasts_error[0][observed], rtol=1e-6, atol=1e-8)
+
+
 def test_the_first_point_of_a_persistent_series_is_not_a_large_residual():
     # Predicted from the mean alone, the first error of a persistent AR is large against the
     # innovation SD (about 10 here) but ordinary against its own prediction SD.
