@@ -668,6 +668,11 @@ def root_at_one(fit: CandidateFit) -> complex | None:
     return complex(near[np.argmin(np.abs(near - 1.0))]) if near.size else None
 
 
+ADJUSTMENT_ROUNDS = 3
+"""Searches of the series adjusted by the interventions found, until the joint fit under the
+new leader keeps the same set at sizes within half a standard error of those adjusted by."""
+
+
 def _with_interventions(
     prepared: PreparedSeries, y: np.ndarray, first: _Identified, period: int | None, period_words: list[str], options: EngineOptions
 ) -> tuple[_Identified, list[Intervention]]:
@@ -706,11 +711,12 @@ def _with_interventions(
     # and the ranking weighs them on the adjusted series. The seasonal strength is another matter:
     # a ratio of variances, one spike three times the level takes it from 0.97 to 0.05 and the
     # season is lost; when the adjusted series decides D otherwise, the differencing is decided
-    # again in full. The ARMA orders are read again. The search is repeated once when the joint
-    # fit under the new leader keeps a different set; a set that still moves is not one to
-    # adjust the series by, and the series is left as it is.
+    # again in full. The ARMA orders are read again. The search is repeated when the joint fit
+    # under the new leader keeps a different set, or the same set at sizes more than half a
+    # standard error from those the series was adjusted by (:data:`ADJUSTMENT_ROUNDS` in all);
+    # a set that still moves is not one to adjust the series by, and the series is left as it is.
     current: list[Intervention] = found
-    for _ in range(2):
+    for round_ in range(ADJUSTMENT_ROUNDS):
         shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in current)
         cleaned = adjusted(y, current)
         chosen = choose_seasonal_differencing(cleaned, period) if period else None
@@ -722,13 +728,24 @@ def _with_interventions(
         kept = estimate_jointly(y, best.model, current, start, prepared.index)
         if not kept:
             break
-        if {(i.kind, i.position) for i in kept} == {(i.kind, i.position) for i in current}:
+        if {(i.kind, i.position) for i in kept} == {(i.kind, i.position) for i in current} and (
+                _sizes_settled(current, kept) or round_ == ADJUSTMENT_ROUNDS - 1):
             # The sizes the series was adjusted by (the candidates were fitted to that series,
-            # so the hand-off's parameters and sizes belong together), the t of the joint fit.
+            # so the hand-off's parameters and sizes belong together), the t of the joint fit:
+            # within half a standard error of its sizes, so the two belong together too (a size
+            # taken under the stationary alternative of a shift moves to the leader's first).
             by_place = {(i.kind, i.position): i.t_stat for i in kept}
             return again, [replace(i, t_stat=by_place[(i.kind, i.position)]) for i in sorted(current, key=lambda i: i.position)]
         current = kept
     return first, []
+
+
+def _sizes_settled(adjusted_by: list[Intervention], joint: list[Intervention]) -> bool:
+    """Whether each size the series was adjusted by is within half a standard error (size over
+    t) of the joint fit's size of the same intervention."""
+    by_place = {(i.kind, i.position): i.size for i in adjusted_by}
+    return all(not math.isfinite(i.t_stat) or i.t_stat == 0
+               or abs(by_place[(i.kind, i.position)] - i.size) <= 0.5 * abs(i.size / i.t_stat) for i in joint)
 
 
 def _shift_predicts_better(y: np.ndarray, leader: CandidateFit, found: list[Intervention], alternative: Order,
