@@ -818,7 +818,8 @@ def _finished(
     flags = list(prepared.flags) + seasonal.flags
     if transform.kind != "none":
         flags.append(Flag.TRANSFORMED)
-    if decision.uncertain or any(FURTHER_DIFFERENCE in f.source for f in ranked):
+    further = any(FURTHER_DIFFERENCE in f.source for f in ranked)
+    if decision.uncertain or further:
         flags.append(Flag.UNCERTAIN_DIFFERENCING)
     if decision.trend_stationary and best.model.d == 0 and "t" in best.model.trend:
         flags.append(Flag.TREND_STATIONARY)
@@ -832,6 +833,12 @@ def _finished(
     # ``leading``: doubts about whether the data can be modelled at all (a stuck stretch, demand
     # too sparse for a Gaussian ARIMA) lead the reasons, so the queue shows them first.
     data_notes, doubts, leading = [], [], []
+    if decision.uncertain or further:
+        doubts.append(
+            f"the unit-root tests left d open between {min(decision.d, decision.alternative_d or decision.d)} and "
+            f"{max(decision.d, decision.alternative_d or decision.d)}; the fits chose d = {best.model.d}" if decision.uncertain else
+            f"a unit root left in the fits opened d = {decision.d + 1}; the fits chose d = {best.model.d}"
+        )
     if interventions:
         data_notes.append(_intervention_words(interventions))
         kinds = {i.kind for i in interventions}

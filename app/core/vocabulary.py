@@ -49,12 +49,12 @@ class Flag(StrEnum):
 WEAK_FLAGS = frozenset({Flag.TOO_SHORT, Flag.NO_CONVERGENCE, Flag.REDUNDANT_ROOTS, Flag.RESIDUAL_AUTOCORRELATION})
 """Flags that make a suggestion ``weak`` (:mod:`app.core.confidence`)."""
 
-NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_DIFFERENCING,
-                            Flag.UNCERTAIN_SEASONAL_DIFFERENCING, Flag.TREND_STATIONARY, Flag.FIXED_SEASONALITY})
+NOT_FIRM_FLAGS = frozenset({Flag.LONG_GAP, Flag.NEAR_UNIT_ROOT, Flag.UNCERTAIN_SEASONAL_DIFFERENCING,
+                            Flag.TREND_STATIONARY, Flag.FIXED_SEASONALITY})
 """Flags that keep a suggestion from ``firm``, their reason given as the flag."""
 
 WORDED_DOUBT_FLAGS = frozenset({Flag.LARGE_RESIDUAL, Flag.INTERMITTENT_DEMAND, Flag.OUTLIERS, Flag.LEVEL_SHIFT, Flag.FLAT_RUN,
-                                Flag.LONGER_CYCLE})
+                                Flag.LONGER_CYCLE, Flag.UNCERTAIN_DIFFERENCING})
 """Flags that keep a suggestion from ``firm`` too, their reason written out by the check that
 raised them (where, how large, what class)."""
 

@@ -92,6 +92,9 @@ def test_white_pepper_prices_get_the_difference_their_fits_ask_for(white_pepper)
     best = ident.suggested
     assert best.model.d == 1 and FURTHER_DIFFERENCE in best.source
     assert "uncertain_differencing" in analysis.flags and analysis.confidence != "firm"
+    # The reason says which of the flag's two causes it was (a new user read "the tests left d
+    # open, or a fit showed a unit root they left in" and could not tell).
+    assert "a unit root left in the fits opened d = 1; the fits chose d = 1" in analysis.confidence_reasons
     words = " ".join(analysis.differencing.explanation)
     assert "a unit root the differencing left in, so d = 1 was searched as well" in words
     assert "the suggestion has d = 1" in words
