@@ -834,10 +834,10 @@ def _finished(
     # too sparse for a Gaussian ARIMA) lead the reasons, so the queue shows them first.
     data_notes, doubts, leading = [], [], []
     if decision.uncertain or further:
+        both = sorted({decision.d, decision.d if decision.alternative_d is None else decision.alternative_d})
         doubts.append(
-            f"the unit-root tests left d open between {min(decision.d, decision.alternative_d or decision.d)} and "
-            f"{max(decision.d, decision.alternative_d or decision.d)}; the fits chose d = {best.model.d}" if decision.uncertain else
-            f"a unit root left in the fits opened d = {decision.d + 1}; the fits chose d = {best.model.d}"
+            f"the unit-root tests left d open between {both[0]} and {both[-1]}; the fits chose d = {best.model.d}"
+            if decision.uncertain else f"a unit root left in the fits opened d = {decision.d + 1}; the fits chose d = {best.model.d}"
         )
     if interventions:
         data_notes.append(_intervention_words(interventions))
