@@ -5,7 +5,8 @@ ids group by prefix) and exported to a forecasting job, so it must survive all o
 unchanged: no control or format characters (a newline made a series unreachable, an escape
 sequence rewrote the terminal, a direction mark reorders what is shown), no path segment a
 browser or a file system resolves (an empty one, ``.`` or ``..``: ``a/../b`` opened ``b``),
-and a length a person can read.
+no last part that names a page of a series (``shop-3/compare`` could not be opened: its URL is
+the comparison page of ``shop-3``), and a length a person can read.
 """
 
 from __future__ import annotations
@@ -17,6 +18,9 @@ MAX_ID_LENGTH = 200
 # paragraph separator (Zl, Zp) characters.
 _UNSAFE_CATEGORIES = frozenset({"Cc", "Cf", "Cs", "Zl", "Zp"})
 _RESOLVED_SEGMENTS = frozenset({"", ".", ".."})
+# The pages the dashboard serves after a series' own URL (app/web/routes; a test keeps the two
+# lists equal).
+PAGE_WORDS = frozenset({"backtest", "compare", "forecast-check"})
 _CONTROL_NAMES = {"\n": "line feed", "\r": "carriage return", "\t": "tab", "\x1b": "escape", "\x00": "NUL"}
 
 
@@ -31,6 +35,9 @@ def id_problem(series_id: str) -> str | None:
         return f"the series id contains the control character U+{ord(unsafe):04X} ({_character_name(unsafe)})"
     if any(segment in _RESOLVED_SEGMENTS for segment in series_id.split("/")):
         return "the series id has an empty, '.' or '..' part between slashes (it would not survive a URL)"
+    last = series_id.rsplit("/", 1)[-1]
+    if "/" in series_id and last in PAGE_WORDS:
+        return f"the series id ends in '/{last}', the address of a page of the series before it; rename that part"
     return None
 
 

@@ -436,12 +436,14 @@ def test_bad_series_ids_are_rejected_with_the_reason_and_line(tmp_path, tiny_chu
     assert [s.series_id for s in wide.series] == ["ok"] and [(p.series_id, p.row) for p in wide.problems] == [("./x", 1)]
 
 
-@pytest.mark.parametrize("series_id", ["shop 3/bread", "caf\u00e9 \U0001f4c8", "a.b/..c", "x" * MAX_ID_LENGTH, "a/b?c=d#e%20f"])
+@pytest.mark.parametrize("series_id", ["shop 3/bread", "caf\u00e9 \U0001f4c8", "a.b/..c", "x" * MAX_ID_LENGTH, "a/b?c=d#e%20f",
+                                       "compare", "compare/edge", "edge/comparison"])
 def test_ordinary_ids_are_accepted(series_id):
     assert id_problem(series_id) is None
 
 
-@pytest.mark.parametrize("series_id", ["", "a\tb", "a\nb", "a\x00", "\u2028x", "a/", "/a", "a//b", ".", "..", "a/./b", "x" * (MAX_ID_LENGTH + 1)])
+@pytest.mark.parametrize("series_id", ["", "a\tb", "a\nb", "a\x00", "\u2028x", "a/", "/a", "a//b", ".", "..", "a/./b", "x" * (MAX_ID_LENGTH + 1),
+                                       "edge/compare", "edge/forecast-check", "a/b/backtest"])
 def test_unsafe_ids_are_refused(series_id):
     assert id_problem(series_id) is not None
 

@@ -574,3 +574,17 @@ def test_head_answers_where_get_does_with_its_headers_and_no_body(client, path):
 @pytest.mark.parametrize("path", ["/", f"/series/{SERIES}", "/approve-firm", "/upload"])
 def test_every_page_keeps_the_safety_caution(client, path):
     assert f"Caution: {SAFETY_CAUTION}" in re.sub(r"<[^>]+>", "", html.unescape(client.get(path).text))
+
+
+def test_the_page_words_a_series_id_may_not_end_in_are_the_pages_served_after_one():
+    # An id ending in one of them (edge/compare) was stored but could not be opened: its URL
+    # was that of a page of the series before it (an attack on the server found it). The GET
+    # routes after a series id, read from the route modules' decorators.
+    from pathlib import Path
+
+    from app.core.series_ids import PAGE_WORDS
+
+    routes = Path(__file__).resolve().parents[2] / "app" / "web" / "routes"
+    served = {word for module in routes.glob("*.py")
+              for word in re.findall(r'@router\.get\("[^"]*\{series_id:path\}/([^"/]+)"', module.read_text())}
+    assert served == PAGE_WORDS
