@@ -12,7 +12,7 @@ Rules (each refusal names the first line to blame):
   month first and day first (``01/02/2024``) with none telling which, naming the first line
   where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
 * **Months, quarters and weeks.** Where pandas guesses no format, a month written with its name
-  or its number beside the year (``Jan 2024``, ``2024 January``, ``Jan-24``, ``2024/01``,
+  or its number beside the four-digit year (``Jan 2024``, ``2024 January``, ``2024/01``,
   ``01/2024``, ``2024.01``, ``2024M01``; :data:`MONTH_LAYOUTS`), a quarter (``2024 Q1``,
   ``2024-Q1``, ``2024Q1``, ``Q1 2024``) or an ISO 8601 week without its day (``2024-W05``,
   ``2024 W05``; :data:`PERIOD_LAYOUTS`) is read as the first day of its period, an ISO week
@@ -61,7 +61,9 @@ MAX_ZONE_STEP_MINUTES = 60
 NS_PER_MINUTE = 60 * 10**9
 NS_PER_DAY = 24 * 60 * NS_PER_MINUTE
 # Month layouts pandas does not guess (it reads 2024-01 as ISO 8601), tried when it guesses none.
-MONTH_LAYOUTS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%b-%y", "%Y/%m", "%m/%Y", "%Y.%m", "%m.%Y", "%YM%m")
+# Two-digit years (Jan-49) are not among them: read as 2049 (the strptime rule) where a
+# spreadsheet meant 1949, they would move a series by a century without a word.
+MONTH_LAYOUTS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%Y/%m", "%m/%Y", "%Y.%m", "%m.%Y", "%YM%m")
 # Layouts no strftime format writes, by the name a message gives them: quarters, and ISO weeks
 # without their day (ISO 8601 writes a week 2024-W05 and its Monday 2024-W05-1).
 PERIOD_LAYOUTS = {
