@@ -17,6 +17,7 @@ header is line 1), also after a quoted cell that spans lines.
 
 from __future__ import annotations
 
+import re
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -35,6 +36,12 @@ DEFAULT_ID_COL = "series_id"
 DEFAULT_TIME_COL = "timestamp"
 DEFAULT_VALUE_COL = "value"
 _NOT_FINITE_WORDS = frozenset({"nan", "inf", "infinity"})
+# How other programs write a missing value (R's NA, a spreadsheet's #N/A ...): refused, with a hint.
+_MISSING_MARKS = frozenset({"na", "n/a", "#n/a", "-", ".", "null", "none", "missing"})
+# In a file with decimal commas: dots between groups of three digits before one (1.120,5), and
+# dots alone between such groups (1.005: a thousand and five, or one and five thousandths?).
+_THOUSANDS_DOTS = r"[+-]?\d{1,3}(\.\d{3})+,\d*"
+_DOTS_ALONE = re.compile(r"[+-]?\d{1,3}(\.\d{3})+")
 # What names each column the reader looks for: the option of ``lagdesk identify`` and ``lagdesk
 # import``, and the field of the upload page.
 _NAMED_BY = {"series id": ("--id-col", "Series id"), "time": ("--time-col", "Time"), "value": ("--value-col", "Value")}
@@ -169,10 +176,13 @@ def _refuse_repeated(table: CsvChunks, column: str) -> None:
 
 def _numbers(cells: np.ndarray, decimal_comma: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite
-    number; with ``decimal_comma``, ``12,5`` is twelve and a half."""
+    number; with ``decimal_comma``, ``12,5`` is twelve and a half and ``1.120,5`` is 1120.5,
+    while ``1.005``, which could be either 1.005 or 1005, is not read (:func:`_value_problem`)."""
     texts = pd.Series(cells.ravel(), dtype=object)
     if decimal_comma:
-        texts = texts.str.replace(",", ".", regex=False)
+        grouped = texts.str.fullmatch(_THOUSANDS_DOTS)
+        texts = texts.where(~texts.str.fullmatch(_DOTS_ALONE), "?")
+        texts = texts.where(~grouped, texts.str.replace(".", "", regex=False)).str.replace(",", ".", regex=False)
     empty = texts.eq("").to_numpy()
     numbers = pd.to_numeric(texts.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
     bad = ~empty & ~np.isfinite(numbers)
@@ -183,6 +193,11 @@ def _numbers(cells: np.ndarray, decimal_comma: bool = False) -> tuple[np.ndarray
 def _value_problem(series_id: str, cell: str, number: float, line: int) -> SeriesProblem:
     word = cell.lower().lstrip("+-")
     kind = "not finite" if word in _NOT_FINITE_WORDS or np.isinf(number) else "not a number"
+    if _DOTS_ALONE.fullmatch(cell):
+        kind = ("ambiguous in a file separated by semicolons, where a comma marks the decimals: its dot may part the "
+                "thousands (1.005 for 1005) or the decimals; write it without a thousands separator")
+    elif cell.strip().lower() in _MISSING_MARKS:
+        kind += "; a missing value is an empty cell"
     return SeriesProblem(series_id, f"value {shorten(cell)!r} is {kind}", row=int(line), flag="bad_value")
 
 

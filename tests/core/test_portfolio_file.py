@@ -139,8 +139,19 @@ def test_semicolons_with_decimal_commas_and_tabs_are_read(tmp_path):
     assert _by_id(wide)["x"].values.tolist() == [1.5, 3.0] and _by_id(wide)["y"].values.tolist()[0] == 2.0
     tabs = read_portfolio(_write(tmp_path, "series_id\ttimestamp\tvalue\na\t1\t2.5\na\t2\t3\n"))
     assert _by_id(tabs)["a"].values.tolist() == [2.5, 3.0]
-    (problem,) = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;1.234,5\nb;1;2\n")).problems
-    assert (problem.series_id, problem.row, "'1.234,5' is not a number" in str(problem)) == ("a", 2, True)
+    # Dots between thousands before a decimal comma are read; a dot alone between groups of
+    # three digits could part thousands (1.005 for 1005) or decimals, and is refused, not guessed.
+    grouped = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;1.234,5\na;2;900\na;3;12.5\n"))
+    assert _by_id(grouped)["a"].values.tolist() == [1234.5, 900.0, 12.5]
+    (problem,) = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;900\na;2;1.005\nb;1;2\n")).problems
+    assert (problem.series_id, problem.row) == ("a", 3) and "'1.005' is ambiguous in a file separated by semicolons" in str(problem)
+    assert _by_id(read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,1,1.005\n")))["a"].values.tolist() == [1.005]
+
+
+@pytest.mark.parametrize("mark", ["NA", "n/a", "-", "#N/A"])
+def test_a_missing_value_written_as_a_word_says_to_leave_the_cell_empty(tmp_path, mark):
+    (problem,) = read_portfolio(_write(tmp_path, f"series_id,timestamp,value\na,1,{mark}\nb,1,2\n")).problems
+    assert str(problem).endswith(f"value {mark!r} is not a number; a missing value is an empty cell")
 
 
 @pytest.mark.parametrize("text", ["", "\n\n", "   \n"], ids=["empty", "blank lines", "spaces"])
