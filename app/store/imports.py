@@ -40,7 +40,7 @@ from app.core.prepare import PreparedSeries, prepare_series
 from app.store.database import insert_row, utc_now, write_transaction
 from app.store.series import problem_reason
 from app.store.timestamps import DATETIME, index_from_keys, time_kind, timestamp_keys
-from app.store.verdicts import add_pending, mark_recheck
+from app.store.verdicts import add_pending, add_to_recheck_reason, mark_recheck
 
 _NOT_IN_FILE = -1  # the "line" of an observation that comes from the database, not the file
 
@@ -266,6 +266,7 @@ def _write(
         "fingerprint = :fingerprint, updated_import_id = :import_id WHERE series_id = :series_id",
         [_series_columns(p, report.import_id) for p in written if not p.is_new],
     )
+    add_to_recheck_reason(db, [p.series_id for p in written if not p.is_new], f"since then the import of {report.file} stored new data")
     _recheck_refused(db, report)
     return report
 

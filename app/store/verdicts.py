@@ -189,6 +189,14 @@ def mark_recheck(db: sqlite_utils.Database, series_id: str, reason: str) -> None
         _append_history(db, series_id, current["status"], reviewer=SYSTEM_REVIEWER, note=reason)
 
 
+def add_to_recheck_reason(db: sqlite_utils.Database, series_ids: list[str], words: str) -> None:
+    """Append ``words`` to the reason of those of ``series_ids`` waiting for a re-check: a reason
+    that names data no longer stored (an import's refusal, since corrected) is not left alone
+    to say so. Inside the caller's transaction; the status and version stay."""
+    db.conn.executemany("UPDATE verdicts SET recheck_reason = recheck_reason || ? WHERE series_id = ? AND status = 'recheck'",
+                        [(f"; {words}", series_id) for series_id in series_ids])
+
+
 def confirm_on_new_data(db: sqlite_utils.Database, series_id: str, data_sha256: str, note: str, version: int) -> bool:
     """Record that an approved or overridden order still holds on new data.
 

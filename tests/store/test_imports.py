@@ -298,3 +298,8 @@ def test_a_decided_series_whose_new_data_are_refused_comes_back_for_a_look(fresh
     assert "refused its new data (line 2)" in verdict["recheck_reason"]
     assert verdict["recheck_reason"].count("'a'") == 0  # the series is not named twice in its own reason
     assert get_verdict(fresh_db, "b")["status"] == "pending"  # undecided: still to be decided anyway
+    # Corrected data stored later: the reason no longer says only that the stored data are older.
+    import_portfolio(fresh_db, write_csv("third.csv", {"a": monthly(44)}))
+    later = get_verdict(fresh_db, "a")
+    assert later["status"] == "recheck" and later["recheck_reason"].startswith(verdict["recheck_reason"])
+    assert later["recheck_reason"].endswith("third.csv stored new data") and "; since then the import of " in later["recheck_reason"]
