@@ -13,7 +13,7 @@ Rules (each refusal names the first line to blame):
   where the readings differ. A given format (``--date-format %d/%m/%Y``) is the only one tried.
 * **Months, quarters and weeks.** Where pandas guesses no format, a month written with its name
   or its number beside the four-digit year (``Jan 2024``, ``2024 January``, ``2024/01``,
-  ``01/2024``, ``2024.01``, ``2024M01``; :data:`MONTH_LAYOUTS`), a quarter (``2024 Q1``,
+  ``01/2024``, ``2024M01``; :data:`MONTH_LAYOUTS`), a quarter (``2024 Q1``,
   ``2024-Q1``, ``2024Q1``, ``Q1 2024``) or an ISO 8601 week without its day (``2024-W05``,
   ``2024 W05``; :data:`PERIOD_LAYOUTS`) is read as the first day of its period, an ISO week
   as its Monday, so the series lies on a monthly, quarterly or weekly grid.
@@ -62,8 +62,11 @@ NS_PER_MINUTE = 60 * 10**9
 NS_PER_DAY = 24 * 60 * NS_PER_MINUTE
 # Month layouts pandas does not guess (it reads 2024-01 as ISO 8601), tried when it guesses none.
 # Two-digit years (Jan-49) are not among them: read as 2049 (the strptime rule) where a
-# spreadsheet meant 1949, they would move a series by a century without a word.
-MONTH_LAYOUTS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%Y/%m", "%m/%Y", "%Y.%m", "%m.%Y", "%YM%m")
+# spreadsheet meant 1949, they would move a series by a century without a word. Nor is a year
+# and month parted by a dot: a spreadsheet that keeps 1949.10 as a number writes 1949.1, which
+# read as January made October a duplicate of it.
+_DOTTED_MONTH = re.compile(r"\d{4}\.\d{1,2}")  # pandas' ISO 8601 parser reads it; ISO 8601 does not write it
+MONTH_LAYOUTS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%Y/%m", "%m/%Y", "%YM%m")
 # Layouts no strftime format writes, by the name a message gives them: quarters, and ISO weeks
 # without their day (ISO 8601 writes a week 2024-W05 and its Monday 2024-W05-1).
 PERIOD_LAYOUTS = {
@@ -311,7 +314,7 @@ def _formats_of(text: str) -> list[str]:
     """The formats a timestamp can be read with: ISO 8601, or those of :func:`_layouts`."""
     if len(text) > MAX_DATE_CHARS or text in _CLOCK_WORDS:
         return []
-    if _reads(text, ISO8601):
+    if _reads(text, ISO8601) and not _DOTTED_MONTH.fullmatch(text):
         return [ISO8601]
     return [fmt for fmt in _layouts(text) if _reads(text, fmt)]
 

@@ -53,7 +53,7 @@ class ProgressLine:
         rate = (self.done - 1) / max(now - (self.first_done or now), 1e-9) if measured else 0.0
         if self.done >= self.total:
             # The same rate as while running, so the last line does not seem to slow down.
-            tail = f"  {rate:.1f}/s after the first  {elapsed:.1f} s in all" if measured else f"  {elapsed:.1f} s"
+            tail = f"  {elapsed:.1f} s in all ({rate:.1f} series/s after the first series)" if measured else f"  {elapsed:.1f} s"
         elif measured:
             tail = f"  {rate:.1f}/s  ~{(self.total - self.done) / rate:.0f} s left"
         else:

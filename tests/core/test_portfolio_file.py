@@ -342,10 +342,17 @@ def test_a_date_in_no_known_format_says_how_to_give_one(tmp_path):
     assert _stamps(tmp_path, ["2024 day 001", "2024 day 002"], date_format="%Y day %j").tolist() == pd.to_datetime(["2024-01-01", "2024-01-02"]).tolist()
 
 
-@pytest.mark.parametrize("layout", ["%b %Y", "%B %Y", "%Y %b", "%b-%Y", "%Y/%m", "%m/%Y", "%Y.%m", "%YM%m"])
+@pytest.mark.parametrize("layout", ["%b %Y", "%B %Y", "%Y %b", "%b-%Y", "%Y/%m", "%m/%Y", "%YM%m"])
 def test_months_written_without_a_day_are_read_as_their_first_day(tmp_path, tiny_chunks, layout):
     months = pd.date_range("2023-11-01", periods=16, freq="MS")
     assert _stamps(tmp_path, months.strftime(layout).tolist()).tolist() == months.tolist()
+
+
+def test_a_year_and_month_parted_by_a_dot_are_not_guessed(tmp_path):
+    # 1949.1 is how a spreadsheet that keeps 1949.10 as a number writes October: read as January
+    # it made October a duplicate, with the advice to sum the two.
+    with pytest.raises(InputFileError, match="give its format with --date-format"):
+        _stamps(tmp_path, ["1949.09", "1949.1", "1949.11"])
 
 
 def test_a_two_digit_year_is_not_guessed(tmp_path):

@@ -52,7 +52,7 @@ def test_rate_and_time_left_leave_out_the_start_up_before_the_first_series(clock
     for _ in range(7):
         line.advance()
     # The rate as while running (9 series in the 2 s after the first), and the whole run's time.
-    assert line.text() == "demo: 10/10 series  4.5/s after the first  32.0 s in all"
+    assert line.text() == "demo: 10/10 series  32.0 s in all (4.5 series/s after the first series)"
 
 
 def test_no_rate_is_shown_before_a_second_has_passed_since_the_first_series(clock):
