@@ -1,8 +1,8 @@
 """Reading a CSV file in chunks of rows, with bounded memory and physical line numbers.
 
 The delimiter is the comma, unless the header holds none and a semicolon or a tab
-(:data:`OTHER_DELIMITERS`); a file separated by semicolons writes its numbers with a decimal
-comma (:attr:`CsvChunks.decimal_comma`), as spreadsheets set to a European locale save CSV.
+(:data:`OTHER_DELIMITERS`); how a file separated by semicolons writes its decimals is for its
+reader to tell (:func:`app.core.portfolio_file.decimal_mark`).
 
 The file is never held whole: rows come in chunks of at most :data:`CHUNK_CELLS` cells and
 about :data:`CHUNK_CHARS` characters, each row with the physical line its record starts on (a
@@ -76,11 +76,6 @@ class CsvChunks:
             self._reader = csv.reader(self._bounded_lines(), delimiter=other, skipinitialspace=True, strict=True)
             self.header, self.header_line = self._read_header()
 
-    @property
-    def decimal_comma(self) -> bool:
-        """Whether numbers are written with a decimal comma: so in a file separated by
-        semicolons, as spreadsheets write CSV where the comma is the decimal mark."""
-        return self.delimiter == ";"
 
     def __enter__(self) -> CsvChunks:
         return self

@@ -38,10 +38,9 @@ DEFAULT_VALUE_COL = "value"
 _NOT_FINITE_WORDS = frozenset({"nan", "inf", "infinity"})
 # How other programs write a missing value (R's NA, a spreadsheet's #N/A ...): refused, with a hint.
 _MISSING_MARKS = frozenset({"na", "n/a", "#n/a", "-", ".", "null", "none", "missing"})
-# In a file with decimal commas: dots between groups of three digits before one (1.120,5), and
-# dots alone between such groups (1.005: a thousand and five, or one and five thousandths?).
-_THOUSANDS_DOTS = r"[+-]?\d{1,3}(\.\d{3})+,\d*"
+# Dots alone between groups of three digits (1.005: a thousand and five, or one and five thousandths?).
 _DOTS_ALONE = re.compile(r"[+-]?\d{1,3}(\.\d{3})+")
+_THOUSANDS = re.compile(r"[+-]?\d{1,3}(\.\d{3})+(,\d*)?")  # 1.120,5 where a comma marks the decimals
 # What names each column the reader looks for: the option of ``lagdesk identify`` and ``lagdesk
 # import``, and the field of the upload page.
 _NAMED_BY = {"series id": ("--id-col", "Series id"), "time": ("--time-col", "Time"), "value": ("--value-col", "Value")}
@@ -174,15 +173,32 @@ def _refuse_repeated(table: CsvChunks, column: str) -> None:
         )
 
 
-def _numbers(cells: np.ndarray, decimal_comma: bool = False) -> tuple[np.ndarray, np.ndarray]:
-    """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite
-    number; with ``decimal_comma``, ``12,5`` is twelve and a half and ``1.120,5`` is 1120.5,
-    while ``1.005``, which could be either 1.005 or 1005, is not read (:func:`_value_problem`)."""
+def decimal_mark(cells: np.ndarray, known: str | None) -> str | None:
+    """The decimal mark of a file separated by semicolons, from its value cells so far: ``known``
+    once told; a comma as soon as a value holds one (``12,5``, as a spreadsheet set to a European
+    locale saves CSV, its dots then parting thousands: ``1.120,5``); a point as soon as a value
+    holds a dot that cannot part thousands (``12.25``); None while every dot stands before three
+    digits (``1.005``: a thousand and five, or one and five thousandths?)."""
+    if known is not None:
+        return known
     texts = pd.Series(cells.ravel(), dtype=object)
-    if decimal_comma:
-        grouped = texts.str.fullmatch(_THOUSANDS_DOTS)
+    if texts.str.contains(",", regex=False).any():
+        return ","
+    dotted = texts[texts.str.contains(".", regex=False)]
+    return "." if (~dotted.str.fullmatch(_DOTS_ALONE)).any() else None
+
+
+def _numbers(cells: np.ndarray, mark: str | None = ".") -> tuple[np.ndarray, np.ndarray]:
+    """Value cells as numbers (NaN for an empty cell, a gap) and where a cell is not a finite
+    number, read with the decimal ``mark`` (:func:`decimal_mark`): with ``,`` the dots part
+    thousands, ``1.120,5`` is 1120.5; with None a value whose dots could part thousands is not
+    read (:func:`_value_problem`)."""
+    texts = pd.Series(cells.ravel(), dtype=object)
+    if mark == ",":
+        parted = texts.str.fullmatch(_THOUSANDS) | ~texts.str.contains(".", regex=False)  # 12.5 is no number here
+        texts = texts.where(parted, "?").str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
+    elif mark is None:
         texts = texts.where(~texts.str.fullmatch(_DOTS_ALONE), "?")
-        texts = texts.where(~grouped, texts.str.replace(".", "", regex=False)).str.replace(",", ".", regex=False)
     empty = texts.eq("").to_numpy()
     numbers = pd.to_numeric(texts.where(~empty, None), errors="coerce").to_numpy(dtype=float, copy=True)
     bad = ~empty & ~np.isfinite(numbers)
@@ -190,12 +206,12 @@ def _numbers(cells: np.ndarray, decimal_comma: bool = False) -> tuple[np.ndarray
     return numbers.reshape(cells.shape), bad.reshape(cells.shape)
 
 
-def _value_problem(series_id: str, cell: str, number: float, line: int) -> SeriesProblem:
+def _value_problem(series_id: str, cell: str, number: float, line: int, mark: str | None = ".") -> SeriesProblem:
     word = cell.lower().lstrip("+-")
     kind = "not finite" if word in _NOT_FINITE_WORDS or np.isinf(number) else "not a number"
-    if _DOTS_ALONE.fullmatch(cell):
-        kind = ("ambiguous in a file separated by semicolons, where a comma marks the decimals: its dot may part the "
-                "thousands (1.005 for 1005) or the decimals; write it without a thousands separator")
+    if mark is None and _DOTS_ALONE.fullmatch(cell):
+        kind = ("ambiguous in a file separated by semicolons whose values so far show no decimal mark: its dot may "
+                "part the thousands (1.005 for 1005) or the decimals; write it without a thousands separator")
     elif cell.strip().lower() in _MISSING_MARKS:
         kind += "; a missing value is an empty cell"
     return SeriesProblem(series_id, f"value {shorten(cell)!r} is {kind}", row=int(line), flag="bad_value")
@@ -232,7 +248,7 @@ class _LongReader:
         limits: ReadLimits | None,
     ) -> None:
         self.name = table.name
-        self.decimal_comma = table.decimal_comma
+        self.mark: str | None = None if table.delimiter == ";" else "."
         self.id_col = id_col
         self.positions = _column_positions(table, {"series id": id_col, "time": time_col, "value": value_col})
         self.stamps = stamps
@@ -249,9 +265,10 @@ class _LongReader:
         id_cells, time_cells, value_cells = (chunk.columns[i] for i in self.positions)
         lines = chunk.lines
         codes = self._codes(id_cells, lines)
-        numbers, bad = _numbers(value_cells, self.decimal_comma)
+        self.mark = decimal_mark(value_cells, self.mark)
+        numbers, bad = _numbers(value_cells, self.mark)
         for i in self._first_rows(codes, bad):
-            self._reject(codes[i], _value_problem(self.ids[codes[i]], value_cells[i], numbers[i], lines[i]))
+            self._reject(codes[i], _value_problem(self.ids[codes[i]], value_cells[i], numbers[i], lines[i], self.mark))
         if self.limits is not None:
             self._count_rows(codes, lines, self.limits)
         keep = ~self.rejected[codes]
@@ -345,7 +362,7 @@ class _WideReader:
 
     def __init__(self, table: CsvChunks, stamps: TimestampColumn, time_col: str, limits: ReadLimits | None) -> None:
         self.name = table.name
-        self.decimal_comma = table.decimal_comma
+        self.mark: str | None = None if table.delimiter == ";" else "."
         (self.time_position,) = _column_positions(table, {"time": time_col})
         self.value_positions = [i for i, name in enumerate(table.header) if name != time_col]
         if not self.value_positions:
@@ -378,10 +395,11 @@ class _WideReader:
             self.past_limit = int(chunk.lines[room])
             return
         cells = np.stack([chunk.columns[i] for i in self.value_positions])
-        numbers, bad = _numbers(cells, self.decimal_comma)
+        self.mark = decimal_mark(cells, self.mark)
+        numbers, bad = _numbers(cells, self.mark)
         for column in map(int, np.flatnonzero(bad.any(axis=1) & ~self.rejected)):
             i = int(np.argmax(bad[column]))
-            self._reject(column, _value_problem(self.ids[column], cells[column, i], numbers[column, i], chunk.lines[i]))
+            self._reject(column, _value_problem(self.ids[column], cells[column, i], numbers[column, i], chunk.lines[i], self.mark))
         self.stamps.add(chunk.columns[self.time_position], chunk.lines, np.ones(len(chunk), dtype=bool))
         self.kept[0].append(numbers)
         self.kept[1].append(chunk.lines)

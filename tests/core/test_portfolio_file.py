@@ -139,10 +139,14 @@ def test_semicolons_with_decimal_commas_and_tabs_are_read(tmp_path):
     assert _by_id(wide)["x"].values.tolist() == [1.5, 3.0] and _by_id(wide)["y"].values.tolist()[0] == 2.0
     tabs = read_portfolio(_write(tmp_path, "series_id\ttimestamp\tvalue\na\t1\t2.5\na\t2\t3\n"))
     assert _by_id(tabs)["a"].values.tolist() == [2.5, 3.0]
-    # Dots between thousands before a decimal comma are read; a dot alone between groups of
-    # three digits could part thousands (1.005 for 1005) or decimals, and is refused, not guessed.
-    grouped = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;1.234,5\na;2;900\na;3;12.5\n"))
-    assert _by_id(grouped)["a"].values.tolist() == [1234.5, 900.0, 12.5]
+    # The decimal mark of a semicolon file is told by its values: a comma once one holds a comma
+    # (its dots then part thousands), a point once a dot cannot part thousands; a dot before
+    # three digits with neither seen yet (1.005: 1005 or 1.005?) is refused, not guessed.
+    comma = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;1.234,5\na;2;900\na;3;1.005\nb;1;12.5\n"))
+    assert _by_id(comma)["a"].values.tolist() == [1234.5, 900.0, 1005.0]
+    assert [(p.series_id, p.row) for p in comma.problems] == [("b", 5)]  # 12.5 among decimal commas is no number
+    point = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;100.0\na;2;109.833\n"))
+    assert _by_id(point)["a"].values.tolist() == [100.0, 109.833]
     (problem,) = read_portfolio(_write(tmp_path, "series_id;timestamp;value\na;1;900\na;2;1.005\nb;1;2\n")).problems
     assert (problem.series_id, problem.row) == ("a", 3) and "'1.005' is ambiguous in a file separated by semicolons" in str(problem)
     assert _by_id(read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,1,1.005\n")))["a"].values.tolist() == [1.005]

@@ -98,9 +98,9 @@ def _cases() -> dict[str, Case]:
     cases["no_such_column.csv"] = Case(
         csv_bytes(_good(), header=("series_id", "timestamp", "amount")), file_error=("no column named 'value'",)
     )
-    cases["semicolon.csv"] = Case(
-        csv_bytes(_good()).replace(b",", b";"), file_error=("another delimiter",)
-    )
+    # Read with its own delimiter; a pipe is not, and its message names the cause.
+    cases["semicolon.csv"] = Case(csv_bytes(_good()).replace(b",", b";"), stored=(GOOD_ID,))
+    cases["pipe.csv"] = Case(csv_bytes(_good()).replace(b",", b"|"), file_error=("another delimiter",))
     cases["latin1.csv"] = Case(
         csv_bytes(series_rows("caf\u00e9", good_values())).decode("utf-8").encode("latin-1"),
         file_error=("not UTF-8",),
