@@ -295,16 +295,16 @@ def groups(db: Db, depth: Annotated[int, Query(ge=1, le=MAX_GROUP_DEPTH)] = 1,
 
 
 @router.post("/series/{series_id:path}/verdict", response_model=Verdict)
-def series_verdict(request: Request, db: Db, series_id: str, body: VerdictIn) -> dict:
+def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
     """Record a decision; refused with 409 (and the current verdict) when ``version`` is not
-    current, and with 429 while a fit or check of the series runs (an override is fitted here)."""
-    with computation_slot(request, series_id):
-        return decide(
-            db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
-            note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
-            transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
-            confirm=body.confirm,
-        )
+    current, before any fit the decision needs. Saving takes no computation slot: a reviewer's
+    save is never told the server is busy, and the version stops a stale one fitting."""
+    return decide(
+        db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
+        note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
+        transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
+        confirm=body.confirm,
+    )
 
 
 @router.post("/series/{series_id:path}/fit")

@@ -193,10 +193,9 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
     next_id = next_awaiting(db, series_id, **flt.store_kwargs()) or series_neighbours(db, series_id, **flt.store_kwargs())[1]
     try:
         status, order, seasonal, transform, include_constant, interventions = data.decision(load_analysis(db, series_id))
-        with computation_slot(request, series_id):  # an order other than the analysis' is fitted here
-            decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
-                   reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
-                   interventions=interventions, confirm=data.confirm)
+        decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
+               reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
+               interventions=interventions, confirm=data.confirm)
     except ConfirmationNeeded as exc:
         # The page comes back with the custom fit shown (and its tick beside it), as after Fit.
         with computation_slot(request, series_id):
