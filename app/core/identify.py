@@ -780,11 +780,12 @@ def _one_difference_less(model: Order) -> Order:
     return replace(model, d=model.d - 1, trend=trend)
 
 
-def _intervention_words(found: list[Intervention]) -> str:
+def _intervention_words(found: list[Intervention], transform: TransformChoice) -> str:
+    scale = "" if transform.kind == "none" else f" Their sizes are on {_scale_words(transform)}."
     return ("Interventions found in the residuals of the leading order and estimated jointly with it (Chen & Liu 1993): "
             + "; ".join(i.words() for i in found)
-            + ". The differencing, the correlograms and the candidates were read from the series with their effects "
-            "taken out; the forecasting job must model them too.")
+            + f".{scale} The differencing, the correlograms and the candidates were read from the series with their "
+            "effects taken out; the forecasting job must model them too.")
 
 
 def _identify_on(
@@ -840,7 +841,7 @@ def _finished(
             if decision.uncertain else f"a unit root left in the fits opened d = {decision.d + 1}; the fits chose d = {best.model.d}"
         )
     if interventions:
-        data_notes.append(_intervention_words(interventions))
+        data_notes.append(_intervention_words(interventions, transform))
         kinds = {i.kind for i in interventions}
         if InterventionKind.LEVEL_SHIFT in kinds:
             flags.append(Flag.LEVEL_SHIFT)

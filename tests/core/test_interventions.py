@@ -311,3 +311,13 @@ def test_interventions_the_gaps_make_inestimable_are_dropped_not_raised():
     found = identify_series(_spike_between_two_gaps(), "lone-spike")
     assert all(identifiable(_spike_between_two_gaps().to_numpy(), found.suggested.model, i.kind, i.position)
                for i in found.interventions)
+
+
+def test_the_note_names_the_scale_the_sizes_are_on():
+    # US real GDP (statsmodels' macrodata) is identified on a Box-Cox scale with a level shift
+    # found there: a size of +2.35 read as billions of dollars misled a new user.
+    data = sm.datasets.macrodata.load_pandas().data
+    gdp = pd.Series(data["realgdp"].to_numpy(), index=pd.date_range("1959-01-01", periods=len(data), freq="QS"))
+    found = identify_series(gdp, "us/gdp")
+    [note] = [n for n in found.data_notes if n.startswith("Interventions found")]
+    assert found.transform.kind != "none" and f"Their sizes are on the {found.transform.name()} scale." in note
