@@ -72,6 +72,9 @@ TC_DECAY = 0.7
 ROUNDS = 3
 """Refits of the model on the adjusted series in stage I."""
 
+GAPS_OFFERED = 3
+"""Gaps after which a level shift is offered to stage II (:func:`_shifts_after_gaps`), the longest."""
+
 MAX_SHARE = 0.1
 """Stage I stops after this share of the points (a series that is mostly interventions is not
 one an ARIMA model describes; the confidence says so)."""
@@ -326,8 +329,9 @@ def detect_interventions(y: np.ndarray, model: Order, estimate: ArmaFit, index: 
     room = max(1, int(MAX_SHARE * y.size))
     missing = np.isnan(y)
     # The residual filter needs every point: a gap is bridged by interpolation to locate the
-    # interventions (none is placed in a gap, nor where only bridged points would size it); the
-    # joint fit then uses the exact likelihood.
+    # interventions (none is placed in a gap, nor where only bridged points would size it, and a
+    # shift after each of the longest gaps is offered besides); the joint fit then uses the
+    # exact likelihood.
     located = pd.Series(y).interpolate(limit_direction="both").to_numpy() if missing.any() else y
     found: list[_Found] = []
     fit = estimate
@@ -340,7 +344,28 @@ def detect_interventions(y: np.ndarray, model: Order, estimate: ArmaFit, index: 
         if not found:
             break
         fit = _fit(adjusted(located, found), model, [], fit.unconstrained)
+    found = found + _shifts_after_gaps(y, model, found)
     return estimate_jointly(y, model, found, fit.unconstrained, index) if found else []
+
+
+def _shifts_after_gaps(y: np.ndarray, model: Order, found: list[_Found]) -> list[_Found]:
+    """A level shift at the first observed point after each of the :data:`GAPS_OFFERED` longest
+    gaps of two points or more, offered to stage II, which keeps it only past the bound.
+
+    Stage I reads a bridged series, where a shift that began in a gap is a ramp: its statistic
+    is spread over the gap and the points after it, and a shift of four innovation SDs right
+    after a five-point gap was found in none of 30 simulated series (a statistics review),
+    though the exact likelihood sizes it at a t of 8 to 10."""
+    missing = np.isnan(y)
+    starts = np.flatnonzero(missing[:-1] & ~missing[1:]) + 1  # the first observed point after a gap
+    taken = {f.position for f in found}
+    gaps = []
+    for start in starts:
+        before = np.flatnonzero(~missing[:start])
+        length = start - (int(before[-1]) + 1 if before.size else 0)
+        if before.size and length >= 2 and start not in taken and identifiable(y, model, InterventionKind.LEVEL_SHIFT, int(start)):
+            gaps.append((length, int(start)))
+    return [_Found(InterventionKind.LEVEL_SHIFT, start, 0.0, 0.0) for _, start in sorted(gaps, reverse=True)[:GAPS_OFFERED]]
 
 
 def sized_interventions(
