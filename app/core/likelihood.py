@@ -440,6 +440,30 @@ def _predict_state(a, coef, gain, v, active):
         a[r - 1, c] = coef[r - 1] * first
 
 
+@njit(cache=True, inline=INLINED)
+def _state_form(ar, ma):
+    """Harvey's state form of the ARMA with AR coefficients ``ar`` and MA coefficients ``ma``:
+    the first column ``coef`` of the transition and the shock loadings ``big_r``, both of
+    length ``r = max(p, q + 1)``."""
+    r = max(ar.size, ma.size + 1)
+    coef = np.zeros(r)
+    coef[:ar.size] = ar
+    big_r = np.zeros(r)
+    big_r[0] = 1.0
+    big_r[1:ma.size + 1] = ma
+    return coef, big_r
+
+
+@njit(cache=True)
+def stationary_state(ar, ma):
+    """``(coef, big_r, P)``: the state form of the ARMA (:func:`_state_form`) and the stationary
+    covariance ``P`` of its state at unit innovation variance (:func:`_stationary_covariance`,
+    NaN where there is none), which the filter starts from. For checks that follow the filter's
+    prediction variances outside it (:func:`app.core.residual_outliers.prediction_variance_ratios`)."""
+    coef, big_r = _state_form(ar, ma)
+    return coef, big_r, _stationary_covariance(coef, big_r)
+
+
 @njit(cache=True)
 def _filter(w, x, ar, ma, innovations):
     """Run the Kalman filter over ``w`` and, with the same gains, over each column of ``x``.
@@ -456,12 +480,8 @@ def _filter(w, x, ar, ma, innovations):
     point (:func:`_with_indicators`, :func:`_without_indicators`), which gives the same
     likelihood.
     """
-    r = max(ar.size, ma.size + 1)
-    coef = np.zeros(r)
-    coef[:ar.size] = ar
-    big_r = np.zeros(r)
-    big_r[0] = 1.0
-    big_r[1:ma.size + 1] = ma
+    coef, big_r = _state_form(ar, ma)
+    r = coef.size
     missing = 0
     for t in range(w.size):
         if math.isnan(w[t]):

@@ -50,11 +50,11 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy.linalg import solve_discrete_lyapunov
 from scipy.special import stdtrit
 from scipy.stats import norm
 from statsmodels.tsa.innovations.arma_innovations import arma_innovations
 
+from app.core.likelihood import stationary_state
 from app.core.prepare import moment_in
 
 MAD_TO_SD = 1.4826
@@ -119,22 +119,18 @@ def prediction_variance_ratios(ar_polynomial: np.ndarray, ma_polynomial: np.ndar
 
 
 def _ratios_across_gaps(ar_polynomial: np.ndarray, ma_polynomial: np.ndarray, missing: np.ndarray) -> np.ndarray:
-    """``F_t`` of the ARMA in state-space form (Harvey 1989, §3.4, from memory) started at its
-    stationary covariance, with no measurement update at a missing step; ones when the model
-    is not stationary. Once past the last missing step ``F_t`` settles and the rest is filled."""
-    r = max(ar_polynomial.size - 1, ma_polynomial.size)
-    transition = np.zeros((r, r))
-    transition[:ar_polynomial.size - 1, 0] = -ar_polynomial[1:]
-    transition[:-1, 1:] = np.eye(r - 1)
-    shock = np.zeros(r)
-    shock[:ma_polynomial.size] = ma_polynomial
-    noise = np.outer(shock, shock)
-    try:
-        covariance = solve_discrete_lyapunov(transition, noise)
-    except (ValueError, np.linalg.LinAlgError):
-        return np.ones(missing.size)
+    """``F_t`` of the ARMA in the likelihood's state form (Harvey 1989, §3.4, from memory;
+    :func:`app.core.likelihood.stationary_state`) started at its stationary covariance, with no
+    measurement update at a missing step; ones when the model is not stationary. Once past the
+    last missing step ``F_t`` settles and the rest is filled."""
+    coef, shock, covariance = stationary_state(-ar_polynomial[1:], ma_polynomial[1:])
     if not np.all(np.isfinite(covariance)) or not covariance[0, 0] > 0:
         return np.ones(missing.size)
+    r = coef.size
+    transition = np.zeros((r, r))
+    transition[:, 0] = coef
+    transition[:-1, 1:] = np.eye(r - 1)
+    noise = np.outer(shock, shock)
     ratios = np.full(missing.size, np.nan)
     last_missing = int(np.flatnonzero(missing)[-1])
     for t, gone in enumerate(missing):
