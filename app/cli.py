@@ -613,12 +613,17 @@ def not_analysed_lines(status: dict) -> list[str]:
     one indented line each, safe for a terminal."""
     from app.store.status import ANALYSIS_STAGE, IMPORT_STAGE
 
-    missing = status["not_analysed"]
     stage_words = {IMPORT_STAGE: "rejected at import", ANALYSIS_STAGE: "analysis failed"}
-    lines = [f"  {m['series_id']}: {stage_words[m['stage']]}: {m['reason']}" for m in missing[:NOT_ANALYSED_SHOWN]]
-    if len(missing) > NOT_ANALYSED_SHOWN:
-        lines.append(f"  ... and {len(missing) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
-    return list(map(terminal_text, lines))
+    return _first_lines([f"{m['series_id']}: {stage_words[m['stage']]}: {m['reason']}" for m in status["not_analysed"]])
+
+
+def _first_lines(lines: list[str]) -> list[str]:
+    """``lines`` indented, at most :data:`NOT_ANALYSED_SHOWN` of them and a line counting the
+    rest, safe for a terminal."""
+    shown = [f"  {line}" for line in lines[:NOT_ANALYSED_SHOWN]]
+    if len(lines) > NOT_ANALYSED_SHOWN:
+        shown.append(f"  ... and {len(lines) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
+    return list(map(terminal_text, shown))
 
 
 def status_text(status: dict, last: dict | None, db_path: Path) -> str:
@@ -638,9 +643,7 @@ def status_text(status: dict, last: dict | None, db_path: Path) -> str:
     refused = status["refused_updates"]
     if refused:
         lines += [f"kept their earlier data ({len(refused)}): a later import refused the new data",
-                  *(terminal_text(f"  {r['series_id']}: {r['file']}: {r['reason']}") for r in refused[:NOT_ANALYSED_SHOWN])]
-        if len(refused) > NOT_ANALYSED_SHOWN:
-            lines.append(f"  ... and {len(refused) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
+                  *_first_lines([f"{r['series_id']}: {r['file']}: {r['reason']}" for r in refused])]
     if last is not None:
         lines.append(
             f"last run: {last['run_id']}, {last['state']}, started {last['started_at']}, "

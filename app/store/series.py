@@ -313,8 +313,9 @@ def rejected_series(db: sqlite_utils.Database, *, q: str | None = None, prefix: 
 
 def refused_updates(db: sqlite_utils.Database, *, q: str | None = None, prefix: str | None = None) -> list[dict]:
     """The stored series whose new data an import refused after the import that last stored
-    theirs: they keep their earlier data, and their analysis and verdict are of that data.
-    Items as :func:`rejected_series`'s; an import that stores the series again takes it off."""
+    theirs: they keep their earlier data and its analysis (a decided order goes to ``recheck``,
+    :mod:`app.store.imports`). Items as :func:`rejected_series`'s; an import that stores the
+    series again takes it off."""
     return _newest_rejections(db, "s.import_id > (SELECT coalesce(stored.updated_import_id, stored.created_import_id) "
                                   "FROM series stored WHERE stored.series_id = s.series_id)", q, prefix)
 
