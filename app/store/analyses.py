@@ -3,7 +3,8 @@
 The engine's :class:`~app.core.analysis.Analysis` is stored as JSON text
 (:meth:`~app.core.analysis.Analysis.to_dict`) in ``analysis_results`` and read back as an
 ``Analysis`` (older schema versions included); ``analyses`` holds the state and the few summary columns (confidence,
-its main reason, flags, suggested orders, d) that the dashboard shows, filters and sorts on without reading results.
+its main reason, flags, the suggested model: orders, d, transform, deterministic term and interventions) that the
+dashboard shows, filters and sorts on without reading results.
 An analysis records the fingerprint of the data it was run on: it is *current* while that
 equals the series' fingerprint and *stale* once new data changed it. A failure is stored too,
 with its message, so a run does not retry it forever. Both record the engine version that made
@@ -61,6 +62,9 @@ def save_analysis(db: sqlite_utils.Database, series_id: str, fingerprint: str, a
         "suggested_order": json.dumps(list(suggested.order)),
         "suggested_seasonal_order": json.dumps(list(suggested.seasonal_order)),
         "d": suggested.d,
+        "transform": json.dumps(analysis.transform.to_json()),
+        "suggested_trend": suggested.trend,
+        "interventions": json.dumps([i.to_dict() for i in analysis.interventions]),
         "engine_version": analysis.engine_version,
     }
     text = json.dumps(analysis.to_dict())
@@ -95,6 +99,9 @@ def _store(db: sqlite_utils.Database, series_id: str, fingerprint: str, run_id: 
         "suggested_order": None,
         "suggested_seasonal_order": None,
         "d": None,
+        "transform": None,
+        "suggested_trend": None,
+        "interventions": None,
         "engine_version": None,
         "run_id": run_id,
         "analysed_at": utc_now(),

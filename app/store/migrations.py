@@ -52,6 +52,21 @@ bulk_approvals        one row per bulk approval of firm suggestions: when, who, 
                       queue filter (JSON), and when and by whom it was undone (NULL while not)
 bulk_approved         the series a bulk approval approved, each with the verdict version the
                       approval gave it (an undo is allowed while every one is still at it)
+
+Version 5
+---------
+verdicts.interventions, verdict_history.interventions  the interventions a reviewer chose with an
+                      order (JSON; NULL keeps the analysis' own)
+
+Version 6
+---------
+analyses.transform, analyses.suggested_trend, analyses.interventions  the rest of the suggested
+                      model, for the queue row: the transform as the result's JSON writes it
+                      (``"none"``, ``"log"``, ``{"box_cox": lambda}``), the suggestion's
+                      deterministic term (``n``, ``c``, ``t``, ``ct``) and the interventions taken
+                      out with it (a JSON list as in the result); filled for older files from the
+                      results in ``analysis_results``, each NULL (unknown) when a result does not
+                      hold it (results written before interventions were detected hold no list)
 """
 
 from __future__ import annotations
@@ -273,8 +288,25 @@ def verdict_interventions(db: sqlite_utils.Database) -> None:
     db.execute("ALTER TABLE verdict_history ADD COLUMN interventions TEXT")
 
 
+def analysis_suggested_model(db: sqlite_utils.Database) -> None:
+    """Version 6: the transform, deterministic term and interventions of each analysis'
+    suggestion, read from its stored result."""
+    db.execute("ALTER TABLE analyses ADD COLUMN transform TEXT")
+    db.execute("ALTER TABLE analyses ADD COLUMN suggested_trend TEXT CHECK (suggested_trend IN ('n', 'c', 't', 'ct'))")
+    db.execute("ALTER TABLE analyses ADD COLUMN interventions TEXT")
+    # json_quote keeps an object (Box-Cox) as JSON and quotes a string ("log"); json_type is NULL
+    # for a key the result does not hold, where json_quote would write the text 'null'.
+    db.execute(
+        "UPDATE analyses SET (transform, suggested_trend, interventions) = (SELECT "
+        "CASE WHEN json_type(r.result, '$.transform') IS NOT NULL THEN json_quote(json_extract(r.result, '$.transform')) END, "
+        "json_extract(r.result, '$.candidates[0].trend'), "
+        "CASE WHEN json_type(r.result, '$.interventions') = 'array' THEN json_extract(r.result, '$.interventions') END "
+        "FROM analysis_results r WHERE r.series_id = analyses.series_id) WHERE state = 'complete'"
+    )
+
+
 STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason, verdict_choices_and_bulk_undo,
-         verdict_interventions)
+         verdict_interventions, analysis_suggested_model)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

@@ -29,6 +29,8 @@ _FROM = (
     "FROM series s JOIN verdicts v ON v.series_id = s.series_id "
     "LEFT JOIN analyses a ON a.series_id = s.series_id"
 )
+# The columns of the suggested model in ``analyses a``, as :func:`_suggested` reads them.
+_SUGGESTED_COLUMNS = "a.suggested_order, a.suggested_seasonal_order, a.transform, a.suggested_trend, a.interventions"
 
 # How much a flag weighs in the attention order: 3 for a flag that makes a suggestion weak (a
 # residual failure, non-convergence, cancelling roots, a short series), 2 for one that keeps it
@@ -240,9 +242,10 @@ def list_series(
         How many series pass the filters.
     items : list of dict
         ``{"series_id", "n", "freq", "status", "confidence", "main_reason", "suggested":
-        {"order", "seasonal_order"}, "chosen": {"order", "seasonal_order"}, "flags", "reviewer",
-        "analysis_state", "analysis_message", "attention", "recheck_reason"}``; ``main_reason`` is
-        the first confidence reason in the engine's words (None for a series not analysed, or
+        {"order", "seasonal_order", "transform", "trend", "interventions"}, "chosen": {"order",
+        "seasonal_order"}, "flags", "reviewer", "analysis_state", "analysis_message", "attention",
+        "recheck_reason"}``; ``suggested`` is the model :func:`_suggested` reads; ``main_reason``
+        is the first confidence reason in the engine's words (None for a series not analysed, or
         analysed by a version that gave no reasons); ``analysis_message`` why the analysis of the
         current data failed (:func:`problem_reason`; None unless ``analysis_state`` is
         ``failed``). Series an import
@@ -253,8 +256,8 @@ def list_series(
     where, params = _where(status, confidence, flag, q, prefix)
     total = db.execute(f"SELECT count(*) {_FROM} {where}", params).fetchone()[0]
     rows = db.query(
-        f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.main_reason, a.suggested_order, "
-        f"a.suggested_seasonal_order, v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
+        f"SELECT s.series_id, s.n, s.freq, v.status, a.confidence, a.main_reason, {_SUGGESTED_COLUMNS}, "
+        f"v.arima_order, v.seasonal_order, coalesce(a.flags, '[]') AS flags, v.reviewer, "
         f"{ANALYSIS_STATE_SQL} AS analysis_state, CASE WHEN {ANALYSIS_STATE_SQL} = 'failed' THEN a.message END AS analysis_message, "
         f"{ATTENTION_SQL} AS attention, v.recheck_reason "
         f"{_FROM} {where} {_order_by(sort, descending)} LIMIT ? OFFSET ?",
@@ -263,10 +266,38 @@ def list_series(
     return total, [_item(row) for row in rows]
 
 
-def _item(row: dict) -> dict:
-    def loads(text: str | None) -> list | None:
-        return None if text is None else json.loads(text)
+def suggested_models(db: sqlite_utils.Database, series_ids: Iterable[str]) -> dict[str, dict]:
+    """The suggested model (:func:`_suggested`) of each of ``series_ids`` with a stored analysis
+    (current, stale or failed), by id: what a :func:`list_series` item carries as ``suggested``."""
+    rows = db.query(
+        f"SELECT a.series_id, {_SUGGESTED_COLUMNS} FROM analyses a WHERE a.series_id IN (SELECT value FROM json_each(?))",
+        [json.dumps(list(series_ids))],
+    )
+    return {row["series_id"]: _suggested(row) for row in rows}
 
+
+def _loads(text: str | None) -> Any:
+    return None if text is None else json.loads(text)
+
+
+def _suggested(row: dict) -> dict:
+    """The suggested model from the :data:`_SUGGESTED_COLUMNS` of a row: ``{"order",
+    "seasonal_order", "transform", "trend", "interventions"}``, each None without a complete
+    analysis. ``transform`` is ``"none"``, ``"log"`` or ``{"box_cox": lambda}``, ``trend`` the
+    deterministic term (``n``, ``c`` a mean, ``t`` a drift, ``ct``), ``interventions`` the list
+    the analysis takes out with the model (``{"position", "timestamp", "kind", "size",
+    "t_stat"}`` each); the last three are None (unknown) for an analysis stored before they were
+    listed whose result does not hold them (:func:`app.store.migrations.analysis_suggested_model`)."""
+    return {
+        "order": _loads(row["suggested_order"]),
+        "seasonal_order": _loads(row["suggested_seasonal_order"]),
+        "transform": _loads(row["transform"]),
+        "trend": row["suggested_trend"],
+        "interventions": _loads(row["interventions"]),
+    }
+
+
+def _item(row: dict) -> dict:
     return {
         "series_id": row["series_id"],
         "n": row["n"],
@@ -274,8 +305,8 @@ def _item(row: dict) -> dict:
         "status": row["status"],
         "confidence": row["confidence"],
         "main_reason": row["main_reason"],
-        "suggested": {"order": loads(row["suggested_order"]), "seasonal_order": loads(row["suggested_seasonal_order"])},
-        "chosen": {"order": loads(row["arima_order"]), "seasonal_order": loads(row["seasonal_order"])},
+        "suggested": _suggested(row),
+        "chosen": {"order": _loads(row["arima_order"]), "seasonal_order": _loads(row["seasonal_order"])},
         "flags": json.loads(row["flags"]),
         "reviewer": row["reviewer"],
         "analysis_state": row["analysis_state"],

@@ -1,10 +1,17 @@
-"""The queue page's view model: counts, one page of the filtered series with sparklines, the pager,
-and the series the import rejected (not analysed)."""
+"""The queue page's view model: counts, one page of the filtered series with sparklines and their
+suggested models, the pager, and the series the import rejected (not analysed); the suggested
+models of a bulk approval's series."""
 
 from __future__ import annotations
 
+from collections import Counter
+from collections.abc import Sequence
+
 import sqlite_utils
 
+from app.core.order import Order
+from app.core.transform_choice import TransformChoice
+from app.core.vocabulary import InterventionKind
 from app.review.bulk import count_waiting
 from app.review.filters import SeriesFilter
 from app.store.runs import latest_run
@@ -18,6 +25,7 @@ from app.store.series import (
     refused_updates,
     rejected_series,
     series_values,
+    suggested_models,
 )
 from app.store.verdicts import STATUSES
 from app.web.sparkline import sparkline_svg
@@ -47,6 +55,42 @@ def subgroups(db: sqlite_utils.Database, prefix: str | None) -> list[dict]:
     return [g for g in group_counts(db, depth, prefix) if g["prefix"].endswith(ID_SEPARATOR)]
 
 
+def model_terms(suggested: dict) -> str:
+    """What a suggested model (a :func:`list_series` item's ``suggested``) holds besides its
+    orders, in a few words for a list row: ``log, with a drift, 1 level shift``.
+
+    The transform (:meth:`TransformChoice.name`), the deterministic term
+    (:meth:`Order.term_words`) and the interventions counted by kind
+    (:meth:`InterventionKind.words`), each left out when there is none and said to be unknown
+    when the stored analysis did not record it; empty without a suggestion.
+    """
+    if suggested["order"] is None:
+        return ""
+    transform, trend, interventions = suggested["transform"], suggested["trend"], suggested["interventions"]
+    parts = []
+    if transform is None:
+        parts.append("transform unknown")
+    elif transform != "none":
+        parts.append(TransformChoice.from_json(transform).name())
+    if trend is None:
+        parts.append("term unknown")
+    elif term := Order.of(suggested["order"], suggested["seasonal_order"], trend).term_words().strip():
+        parts.append(term)
+    if interventions is None:
+        parts.append("interventions unknown")
+    else:
+        kinds = Counter(InterventionKind(i["kind"]) for i in interventions)
+        parts.extend(f"{count} {kind.words()}{'' if count == 1 else 's'}" for kind, count in kinds.items())
+    return ", ".join(parts)
+
+
+def approval_preview(db: sqlite_utils.Database, series_ids: Sequence[str]) -> list[dict]:
+    """The series a bulk approval would approve, each with the model it would approve:
+    ``[{"series_id", "suggested", "model_terms"}]`` (:func:`model_terms`), in the given order."""
+    models = suggested_models(db, series_ids)
+    return [{"series_id": sid, "suggested": models[sid], "model_terms": model_terms(models[sid])} for sid in series_ids]
+
+
 def rejected_in_filter(db: sqlite_utils.Database, flt: SeriesFilter) -> list[dict]:
     """The series an import rejected that the filter keeps (:func:`rejected_series`): those whose
     id matches its ``q`` and ``prefix``, none when it asks for a status, confidence or flag, which
@@ -58,8 +102,9 @@ def rejected_in_filter(db: sqlite_utils.Database, flt: SeriesFilter) -> list[dic
 
 
 def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit: int, default_limit: int) -> dict:
-    """Everything the queue page shows: counts, groups, one page of series with sparklines, the
-    pager, how many series the bulk actions would take, and the rejected series of the filter.
+    """Everything the queue page shows: counts, groups, one page of series with sparklines and
+    the words of their suggested models (:func:`model_terms`), the pager, how many series the
+    bulk actions would take, and the rejected series of the filter.
 
     An ``offset`` past the end shows the last page; ``limit`` other than ``default_limit`` is
     kept in the page's links (``keep``).
@@ -70,6 +115,7 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
         items = list_series(db, limit=limit, offset=offset, **flt.store_kwargs())[1]
     for item in items:
         item["sparkline"] = sparkline_svg(series_values(db, item["series_id"]))
+        item["model_terms"] = model_terms(item["suggested"])
     target = flt.firm_pending()
     firm_in_filter = list_series(db, limit=0, **target.store_kwargs())[0] if target else 0
     counts = count_by(db)

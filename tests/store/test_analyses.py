@@ -14,14 +14,17 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from app.core.analysis import Intervention
 from app.core.errors import LagdeskError
+from app.core.order import Order
 from app.core.series_ids import id_problem
-from app.core.vocabulary import Confidence, Flag
+from app.core.transform_choice import TransformChoice
+from app.core.vocabulary import Confidence, Flag, InterventionKind
 from app.store.analyses import analysis_record, load_analysis, save_analysis, save_failure
 from app.store.database import UnknownSeries, open_database
 from app.store.imports import import_portfolio
 from app.store.runs import start_run
-from app.store.series import list_series, series_fingerprint, series_ids_to_analyse
+from app.store.series import list_series, series_fingerprint, series_ids_to_analyse, suggested_models
 from app.store.status import portfolio_status
 
 
@@ -53,7 +56,9 @@ def test_engine_result_reads_back_equal_after_reopening(lynx_db, engine_result, 
     assert loaded.acf.values == engine_result.acf.values
     _, [item] = list_series(db)
     assert item["confidence"] == engine_result.confidence
-    assert item["suggested"] == {"order": list(best.order.order), "seasonal_order": list(best.order.seasonal_order)}
+    assert item["suggested"] == {"order": list(best.order.order), "seasonal_order": list(best.order.seasonal_order),
+                                 "transform": engine_result.transform.to_json(), "trend": best.order.trend,
+                                 "interventions": [i.to_dict() for i in engine_result.interventions]}
     assert item["flags"] == list(engine_result.flags)
     assert item["analysis_state"] == "current"
     record = analysis_record(db, "lynx")
@@ -68,6 +73,19 @@ def test_an_analysis_stored_before_schema_versions_reads_back(lynx_db):
     lynx_db["analysis_results"].insert({"series_id": "lynx", "result": text}, replace=True)
     loaded = load_analysis(lynx_db, "lynx")
     assert loaded.series_id == "shop-1/flour" and loaded.suggested.label == "ARIMA(0,1,1)(0,1,1)12"
+
+
+def test_the_list_carries_the_whole_suggested_model_until_a_failure_replaces_it(lynx_db, relabel):
+    shift = Intervention(40, "1860", InterventionKind.LEVEL_SHIFT, -0.25, -4.8)
+    fingerprint = series_fingerprint(lynx_db, "lynx")
+    analysis = relabel("lynx", suggested=Order(0, 1, 1, trend="t"), transform=TransformChoice("log"), interventions=(shift,))
+    save_analysis(lynx_db, "lynx", fingerprint, analysis, None)
+    _, [item] = list_series(lynx_db)
+    assert item["suggested"] == {"order": [0, 1, 1], "seasonal_order": [0, 0, 0, 0], "transform": "log", "trend": "t",
+                                 "interventions": [shift.to_dict()]}
+    assert suggested_models(lynx_db, ["lynx"]) == {"lynx": item["suggested"]}
+    save_failure(lynx_db, "lynx", fingerprint, "no candidate converged", None)
+    assert suggested_models(lynx_db, ["lynx"]) == {"lynx": dict.fromkeys(item["suggested"])}
 
 
 def test_failure_is_stored_with_its_message_and_not_retried_by_default(lynx_db):

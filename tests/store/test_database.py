@@ -3,13 +3,19 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import pytest
 import sqlite_utils
 
+from app.core.analysis import Intervention
 from app.core.errors import LagdeskError
+from app.core.order import Order
+from app.core.transform_choice import TransformChoice
+from app.core.vocabulary import InterventionKind
 from app.store.database import DEFAULT_DB_NAME, open_database, resolve_db_path, schema_version
 from app.store.migrations import MIGRATION_SET, MIGRATIONS, STEPS
+from app.store.series import list_series, suggested_models
 
 TABLES = {"imports", "series", "observations", "runs", "analyses", "verdicts", "verdict_history", "order_fits"}
 
@@ -81,14 +87,19 @@ def test_resolve_db_path_prefers_option_then_environment_then_working_folder(mon
     assert resolve_db_path(None) == tmp_path / DEFAULT_DB_NAME
 
 
+def _old_series_row(series_id: str) -> dict:
+    """A ``series`` row for an older file (the upgrades read ``analyses`` and its results, not these values)."""
+    return {"series_id": series_id, "time_kind": "integer", "freq": "step", "n": 40, "observed": 40, "gaps_filled": 0,
+            "first_timestamp": "1", "last_timestamp": "40", "prep_flags": "[]", "fingerprint": "f",
+            "created_import_id": 1, "updated_import_id": 1}
+
+
 def test_upgrade_fills_the_main_reason_of_stored_analyses_from_their_results(tmp_path):
     path = tmp_path / "old.db"
     old = sqlite_utils.Database(path)
     MIGRATIONS.apply(old, stop_before="analysis_main_reason")
     for sid, reasons in (("a", ["flag: residual_autocorrelation", "x"]), ("b", None)):
-        old["series"].insert({"series_id": sid, "time_kind": "integer", "freq": "step", "n": 40, "observed": 40,
-                              "gaps_filled": 0, "first_timestamp": "1", "last_timestamp": "40", "prep_flags": "[]",
-                              "fingerprint": "f", "created_import_id": 1, "updated_import_id": 1})
+        old["series"].insert(_old_series_row(sid))
         old["analyses"].insert({"series_id": sid, "fingerprint": "f", "state": "complete", "confidence": "weak",
                                 "flags": "[]", "analysed_at": "2026-01-01"})
         result = {"confidence": "weak"} if reasons is None else {"confidence": "weak", "confidence_reasons": reasons}
@@ -98,3 +109,46 @@ def test_upgrade_fills_the_main_reason_of_stored_analyses_from_their_results(tmp
     assert db.execute("SELECT series_id, main_reason FROM analyses ORDER BY series_id").fetchall() == [
         ("a", "flag: residual_autocorrelation"), ("b", None)]
     db.close()
+
+
+def test_upgrade_fills_the_suggested_model_of_stored_analyses_from_their_results(tmp_path, relabel):
+    # Three analyses as a version 5 file holds them: a result of today's engine with a Box-Cox
+    # transform, a drift and a level shift; one written before schema versions
+    # (tests/core/results/make_analysis_v1.py), which lists no interventions; and a failure.
+    shift = Intervention(60, "60", InterventionKind.LEVEL_SHIFT, 0.1 + 0.2, 5.2)  # 17 digits, kept exactly
+    drift = relabel("a-current", suggested=Order(0, 1, 1, trend="t"), transform=TransformChoice("box_cox", 0.5),
+                    interventions=(shift,))
+    results = {"a-current": json.dumps(drift.to_dict()),
+               "b-v1": (Path(__file__).parents[1] / "core" / "results" / "analysis_v1.json").read_text()}
+    path = tmp_path / "old.db"
+    old = sqlite_utils.Database(path)
+    MIGRATIONS.apply(old, stop_before="analysis_suggested_model")
+    for sid in ("a-current", "b-v1", "c-failed"):
+        old["series"].insert(_old_series_row(sid))
+        old["verdicts"].insert({"series_id": sid, "status": "pending", "transform": "none", "note": "", "reviewer": "",
+                                "version": 0})
+    old["analyses"].insert({"series_id": "a-current", "fingerprint": "f", "state": "complete", "confidence": "tentative",
+                            "flags": "[]", "suggested_order": "[0, 1, 1]", "suggested_seasonal_order": "[0, 0, 0, 0]",
+                            "analysed_at": "2026-01-01"})
+    old["analyses"].insert({"series_id": "b-v1", "fingerprint": "f", "state": "complete", "confidence": "firm",
+                            "flags": "[]", "suggested_order": "[0, 1, 1]", "suggested_seasonal_order": "[0, 1, 1, 12]",
+                            "analysed_at": "2026-01-01"})
+    old["analyses"].insert({"series_id": "c-failed", "fingerprint": "f", "state": "failed", "message": "no fit",
+                            "flags": "[]", "analysed_at": "2026-01-01"})
+    for sid, text in results.items():
+        old["analysis_results"].insert({"series_id": sid, "result": text})
+    old.close()
+
+    db = open_database(path)
+    suggested = {item["series_id"]: item["suggested"] for item in list_series(db, sort="series_id")[1]}
+    assert suggested == {
+        "a-current": {"order": [0, 1, 1], "seasonal_order": [0, 0, 0, 0], "transform": {"box_cox": 0.5}, "trend": "t",
+                      "interventions": [shift.to_dict()]},
+        # the result holds its transform and term, but no list of interventions: unknown
+        "b-v1": {"order": [0, 1, 1], "seasonal_order": [0, 1, 1, 12], "transform": "none", "trend": "n",
+                 "interventions": None},
+        "c-failed": {"order": None, "seasonal_order": None, "transform": None, "trend": None, "interventions": None},
+    }
+    assert suggested_models(db, ["b-v1", "a-current", "unknown"]) == {sid: suggested[sid] for sid in ("a-current", "b-v1")}
+    db.close()
+

@@ -85,14 +85,15 @@ def test_default_order_puts_what_needs_a_human_first(listed_db):
 def test_items_carry_the_summary_of_analysis_and_verdict(listed_db):
     items = {item["series_id"]: item for item in list_series(listed_db)[1]}
     assert items["b-weak"]["flags"] == ["near_unit_root", "redundant_roots"]
-    assert items["b-weak"]["suggested"] == {"order": [2, 1, 2], "seasonal_order": [0, 0, 0, 0]}
+    assert items["b-weak"]["suggested"] == {"order": [2, 1, 2], "seasonal_order": [0, 0, 0, 0], "transform": "none",
+                                            "trend": "n", "interventions": []}
     assert (items["b-weak"]["n"], items["b-weak"]["freq"]) == (31, "MS")
     assert items["a-recheck"]["recheck_reason"] == "the data changed"
     assert items["a-recheck"]["chosen"]["order"] == [1, 0, 0]
     assert [items[s]["analysis_state"] for s in ("e-firm", "f-failed", "g-missing")] == ["current", "failed", "missing"]
     assert {s: item["analysis_message"] for s, item in items.items() if item["analysis_message"]} == {
         "f-failed": "every candidate failed"}
-    assert items["g-missing"]["suggested"] == {"order": None, "seasonal_order": None}
+    assert items["g-missing"]["suggested"] == dict.fromkeys(("order", "seasonal_order", "transform", "trend", "interventions"))
 
 
 @pytest.mark.parametrize("filters, expected", [

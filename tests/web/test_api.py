@@ -15,7 +15,16 @@ from fastapi.testclient import TestClient
 from statsmodels.tsa.arima.model import ARIMA
 from threadpoolctl import threadpool_limits
 from web_client import TEST_HOSTS, with_csrf
-from web_portfolio import AWKWARD_ID, CONSTANT_ID, ODD_ID, deltas_by_hand, q_only_pairs, synthetic_series, write_long_csv
+from web_portfolio import (
+    AWKWARD_ID,
+    CONSTANT_ID,
+    ODD_ID,
+    deltas_by_hand,
+    q_only_pairs,
+    store_log_drift_suggestion,
+    synthetic_series,
+    write_long_csv,
+)
 
 from app.config import Settings
 from app.core.analysis import Analysis
@@ -46,7 +55,8 @@ def test_series_list_total_counts_whole_filter(client, results):
     assert len(body["items"]) == 2
     item = body["items"][0]
     assert {"series_id", "status", "confidence", "suggested", "flags"} <= set(item)
-    assert set(item["suggested"]) == {"order", "seasonal_order"}
+    assert set(item["suggested"]) == {"order", "seasonal_order", "transform", "trend", "interventions"}
+    assert set(item["chosen"]) == {"order", "seasonal_order"}
 
 
 def test_series_list_pages_cover_every_series_once(client, results):
@@ -90,10 +100,23 @@ def test_series_list_filters_by_id_prefix(client, results):
 
 def test_series_list_suggestions_match_the_engine(client, results):
     for item in client.get("/api/series", params={"limit": 500}).json()["items"]:
-        suggested = results[item["series_id"]].suggested.order
-        assert item["suggested"] == {"order": list(suggested.order), "seasonal_order": list(suggested.seasonal_order)}
+        result = results[item["series_id"]]
+        suggested = result.suggested.order
+        assert item["suggested"] == {"order": list(suggested.order), "seasonal_order": list(suggested.seasonal_order),
+                                     "transform": result.transform.to_json(), "trend": suggested.trend,
+                                     "interventions": [i.to_dict() for i in result.interventions]}
         assert item["status"] == "pending"
         assert item["main_reason"] == results[item["series_id"]].confidence_reasons[0]
+
+
+def test_series_list_items_carry_the_transform_term_and_interventions_of_the_suggestion(client, db, results):
+    stored = store_log_drift_suggestion(db, results[SERIES])
+    [item] = client.get("/api/series", params={"q": SERIES}).json()["items"]
+    assert item["suggested"] == {"order": [0, 1, 1], "seasonal_order": [0, 0, 0, 0], "transform": "log", "trend": "t",
+                                 "interventions": [i.to_dict() for i in stored.interventions]}
+    assert item["suggested"]["interventions"][0]["kind"] == "level_shift"
+    described = client.get("/openapi.json").json()["components"]["schemas"]["SuggestedModel"]["properties"]
+    assert {"order", "seasonal_order", "transform", "trend", "interventions"} <= set(described)
 
 
 def test_series_list_bad_filter_is_422(client):

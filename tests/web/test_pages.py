@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 from web_client import TEST_HOSTS
-from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, write_long_csv
+from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, store_log_drift_suggestion, write_long_csv
 
 from app.config import Settings
 from app.core.vocabulary import FLAG_WORDS, SAFETY_CAUTION, Confidence, Flag
@@ -20,6 +20,7 @@ from app.store.verdicts import get_verdict, mark_recheck, set_verdict, verdict_h
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
 from app.web.main import create_app
+from app.web.queue import model_terms
 from app.web.templating import number
 
 SERIES = "plant-a/line-1/ar1"
@@ -209,6 +210,39 @@ def test_queue_row_says_the_main_reason_in_words(client, results):
         assert "flag: " not in text
     firm = next(sid for sid, r in results.items() if r.confidence == Confidence.FIRM)
     assert 'class="reason"' not in client.get("/", params={"q": firm}).text
+
+
+def test_queue_row_names_the_transform_term_and_interventions_of_the_suggestion(client, db, results):
+    store_log_drift_suggestion(db, results[SERIES])
+    text = client.get("/", params={"q": SERIES}).text
+    cell = re.search(r'<td class="order">(.*?)</td>', text, re.S).group(1)
+    assert cell.split()[0] == "ARIMA(0,1,1)"
+    assert '<span class="model-terms" data-model-terms>log, with a drift, 1 level shift</span>' in cell
+    # what an analysis stored before interventions were listed did not record is said to be unknown
+    db.execute("UPDATE analyses SET interventions = NULL WHERE series_id = ?", [SERIES])
+    assert "data-model-terms>log, with a drift, interventions unknown<" in client.get("/", params={"q": SERIES}).text
+
+
+def test_queue_row_of_a_plain_suggestion_adds_no_line(client, results):
+    plain = [sid for sid, r in results.items() if r.transform.kind == "none" and r.suggested.order.trend == "n"
+             and not r.interventions]
+    assert plain
+    assert "data-model-terms" not in client.get("/", params={"q": plain[0]}).text
+
+
+@pytest.mark.parametrize("transform, trend, interventions, words", [
+    ("none", "n", [], ""),
+    ("log", "t", [], "log, with a drift"),
+    ({"box_cox": 0.5}, "c", ["additive", "level_shift", "additive"], "Box-Cox (lambda 0.5), with a mean, 2 additive outliers, 1 level shift"),
+    ("none", "ct", ["temporary_change"], "with a mean and a linear trend, 1 temporary change"),
+    (None, None, None, "transform unknown, term unknown, interventions unknown"),
+])
+def test_model_terms_word_the_suggestion_beyond_its_orders(transform, trend, interventions, words):
+    listed = None if interventions is None else [{"timestamp": str(i), "kind": kind} for i, kind in enumerate(interventions)]
+    suggested = {"order": [1, 1, 0], "seasonal_order": [0, 0, 0, 0], "transform": transform, "trend": trend,
+                 "interventions": listed}
+    assert model_terms(suggested) == words
+    assert model_terms(dict.fromkeys(suggested)) == ""  # no suggestion, no words
 
 
 def test_help_overlay_says_how_flags_weigh_in_the_queue_order(client):
@@ -491,6 +525,14 @@ def test_bulk_approval_confirms_the_count_then_approves(client, db, results):
     assert done.status_code == 303 and done.headers["location"].startswith("/bulk/")  # the approval, with its undo
     assert all(get_verdict(db, sid)["status"] == "approved" for sid in firm)
     assert f"Approved {len(firm)} firm suggestion" in client.get(done.headers["location"]).text
+
+
+def test_bulk_approval_lists_the_whole_model_each_series_would_get(client, db, results):
+    store_log_drift_suggestion(db, results[SERIES], confidence=Confidence.FIRM, flags=(), confidence_reasons=())
+    text = client.get("/approve-firm").text
+    item = re.search(rf'<li data-preview="{re.escape(SERIES)}">(.*?)</li>', text, re.S).group(1)
+    assert item.startswith(f"{SERIES}: ARIMA(0,1,1)")
+    assert "(log, with a drift, 1 level shift)" in item
 
 
 # --- upload and runs ---------------------------------------------------------------------------

@@ -17,8 +17,11 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-from app.core.analysis import Analysis, Candidate
+from app.core.analysis import Analysis, Candidate, Intervention
 from app.core.identify import identify_series
+from app.core.order import Order
+from app.core.transform_choice import TransformChoice
+from app.core.vocabulary import InterventionKind
 from app.store.analyses import save_analysis
 from app.store.database import open_database
 from app.store.imports import import_portfolio
@@ -118,6 +121,18 @@ def add_stored_seasonal_analysis(db_path: Path, folder: Path) -> tuple[str, Anal
     finally:
         db.close()
     return maker.SERIES_ID, analysis
+
+
+def store_log_drift_suggestion(db, analysis: Analysis, **fields) -> Analysis:
+    """Store ``analysis`` again as if the engine had suggested ARIMA(0,1,1) with a drift on the
+    log scale, with one level shift taken out (and other ``fields``, e.g. ``confidence``): a
+    suggestion whose model is more than its orders. Returns what was stored."""
+    leader = analysis.suggested
+    shift = Intervention(30, "2023-01-31", InterventionKind.LEVEL_SHIFT, 0.2, 6.1)
+    stored = replace(analysis, transform=TransformChoice("log"), interventions=(shift,),
+                     candidates=(replace(leader, order=Order(0, 1, 1, trend="t")), *analysis.candidates[1:]), **fields)
+    save_analysis(db, analysis.series_id, series_fingerprint(db, analysis.series_id), stored, None)
+    return stored
 
 
 def q_only_pairs(analysis: Analysis) -> list[tuple[Candidate, Candidate]]:

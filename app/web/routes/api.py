@@ -99,6 +99,16 @@ class Suggested(BaseModel):
     seasonal_order: list[int] | None
 
 
+class SuggestedModel(Suggested):
+    transform: str | dict[str, float] | None = Field(description=(
+        '"none", "log" or {"box_cox": lambda}; null without an analysis, or unknown (an analysis stored before it was listed)'))
+    trend: str | None = Field(description=(
+        "the deterministic term: n, c (a mean), t (a drift), ct; null without an analysis, or unknown"))
+    interventions: list[dict] | None = Field(description=(
+        "the outliers and level shifts taken out with the model (position, timestamp, kind, size, t_stat); "
+        "null without an analysis, or unknown (an analysis stored before interventions were detected)"))
+
+
 class SeriesItem(BaseModel):
     series_id: str
     n: int | None
@@ -106,7 +116,7 @@ class SeriesItem(BaseModel):
     status: str
     confidence: str | None
     main_reason: str | None = Field(description="the first reason for the confidence, in the engine's words")
-    suggested: Suggested
+    suggested: SuggestedModel
     chosen: Suggested
     flags: list[str]
     reviewer: str

@@ -43,7 +43,7 @@ from app.web.deps import (
 from app.web.errors import status_of
 from app.web.forecast import forecast_check_view
 from app.web.forms import CustomModel, DecisionForm
-from app.web.queue import queue_page
+from app.web.queue import approval_preview, queue_page
 from app.web.review import FormState, custom_fit_view, review_page
 from app.web.security import check_csrf
 from app.web.templating import quote_path, templates
@@ -247,7 +247,8 @@ def download_orders(db: Db, fmt: Literal["json", "csv"]) -> Response:
 @router.get("/approve-firm", name="approve_firm_confirm")
 def approve_firm_confirm(request: Request, db: Db, flt: Filter) -> Response:
     ids = firm_pending_ids(db, flt)
-    return render(request, "approve_firm.html", {"filter": flt, "count": len(ids), "preview": ids[:BULK_PREVIEW], "error": None})
+    context = {"filter": flt, "count": len(ids), "preview": approval_preview(db, ids[:BULK_PREVIEW]), "error": None}
+    return render(request, "approve_firm.html", context)
 
 
 @router.post("/approve-firm", name="approve_firm_save")
@@ -259,7 +260,7 @@ def approve_firm_save(request: Request, db: Db, flt: Filter, expected: Annotated
         message = NAME_NEEDED if not name else (
             f"The filter now holds {len(ids)} pending firm series, not the {expected} you confirmed; check again."
         )
-        context = {"filter": flt, "count": len(ids), "preview": ids[:BULK_PREVIEW], "error": message}
+        context = {"filter": flt, "count": len(ids), "preview": approval_preview(db, ids[:BULK_PREVIEW]), "error": message}
         return render(request, "approve_firm.html", context, status_code=422 if not name else 409)
     done = approve_firm(db, flt, name, note)
     if done.bulk_id is None:
