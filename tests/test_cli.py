@@ -768,7 +768,7 @@ def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(
         (["north/a", "approve", "--reviewer", "  "], "--reviewer NAME is required"),
         (["north/a", "--reviewer", "ann"], "give a series id and an action"),
         (["north/a", "override", "--reviewer", "ann"], "override needs the order: --order p,d,q"),
-        (["north/a", "approve", "--order", "5,0,5", "--reviewer", "ann"], "use 'overridden' for ARIMA(5,0,5)"),
+        (["north/a", "approve", "--order", "5,0,5", "--reviewer", "ann"], "to save ARIMA(5,0,5), override instead (command line: lagdesk decide north/a override --order 5,0,5"),
         (["north/a", "override", "--order", "11,0,0", "--reviewer", "ann"], "p = 11 is outside 0..10"),
         (["north/a", "park", "--seasonal", "0,1,1,12", "--reviewer", "ann"], "--seasonal goes with --order"),
         (["north/a", "pending", "--order", "1,0,0", "--reviewer", "ann"], "give no --order"),

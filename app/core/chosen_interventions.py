@@ -29,7 +29,7 @@ import pandas as pd
 from app.core.analysis import Intervention
 from app.core.errors import OrderError
 from app.core.interventions import MAX_SHARE
-from app.core.prepare import moment
+from app.core.prepare import moment, moment_in
 from app.core.vocabulary import InterventionKind
 
 KINDS = ", ".join(str(k) for k in InterventionKind)
@@ -80,7 +80,7 @@ def _position(series_id: str, index: pd.Index, stamp: str) -> int:
         found = index.get_loc(key)
     except (KeyError, ValueError, TypeError):
         raise OrderError(
-            f"series {series_id!r}: {stamp!r} is not a time of this series ({moment(index[0])} to {moment(index[-1])})"
+            f"series {series_id!r}: {stamp!r} is not a time of this series ({moment_in(index, 0)} to {moment_in(index, -1)})"
         ) from None
     if not isinstance(found, (int, np.integer)):
         raise OrderError(f"series {series_id!r}: {stamp!r} names more than one point; give the full time")

@@ -90,6 +90,7 @@ import numpy as np
 from scipy.special import ndtr, ndtri
 
 from app.core.fitting import CandidateFit
+from app.core.p_values import p_words
 from app.core.ranking import is_demoted, margin_to_rival, strongest_nesting_rival
 from app.core.vocabulary import FLAG_REASON_PREFIX, NOT_FIRM_FLAGS, WEAK_FLAGS, Confidence
 
@@ -261,10 +262,6 @@ def _level_words(n: int) -> str:
     return f"the {nested_level(n) * 100:g}% level for series {band}"
 
 
-def _p_words(p: float) -> str:
-    return f"= {p:.2f}" if p >= 0.01 else "< 0.01"
-
-
 def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: str, doubts: Sequence[str] = (),
                      leading: Sequence[str] = ()) -> ConfidenceScore:
     """Score the leading candidate of ``ranked`` (see the module notes).
@@ -305,12 +302,12 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
     if nesting is not None and nesting[1] < nested_level(n):
         rival, p = nesting
         words = rival.model.term_words() if rival.model.trend != best.model.trend else ""
-        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test (p {_p_words(p)}, "
+        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test ({p_words(p)}, "
                        f"below {_level_words(n)})")
     reasons += [doubt for doubt in (unit_root_doubt(best), short_series_doubt(best)) if doubt is not None]
     if reasons:
         return ConfidenceScore(Confidence.TENTATIVE, reasons)
     clean = "clean checks" + (f"; the best rival trails by {margin:.1f}" if math.isfinite(margin) else "")
     if nesting is not None:
-        clean += f"; no larger model fits better (likelihood-ratio p {_p_words(nesting[1])} at best, {_level_words(n)})"
+        clean += f"; no larger model fits better (likelihood-ratio {p_words(nesting[1])} at best, {_level_words(n)})"
     return ConfidenceScore(Confidence.FIRM, [clean])

@@ -288,8 +288,9 @@ def resolve_period(prepared: PreparedSeries, option: int | str | None) -> tuple[
         if period is None:
             return None, []
         if period >= prepared.n:
-            return None, [f"The series is shorter than one season ({period} points at frequency {prepared.freq}): treated as non-seasonal."]
-        return period, [f"Seasonal period {period} from the sampling frequency ({prepared.freq})."]
+            return None, [f"Sampled {prepared.frequency_words}, the series is shorter than one season "
+                          f"({period} points): treated as non-seasonal."]
+        return period, [f"Seasonal period {period} from the sampling frequency: {prepared.frequency_words}."]
     if isinstance(option, str):
         raise SeriesProblem(prepared.series_id, f"period {option!r} is not auto, none or a whole number", flag="bad_period")
     try:

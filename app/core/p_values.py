@@ -3,6 +3,12 @@
 Three decimals, and ``< 0.001`` below that: a printed "0.000" reads as a p-value of zero, which
 no test gives (common practice; the American Psychological Association's style rules ask for
 the same).
+
+A test that reads its p-value off a table of critical values cannot give one beyond the table's
+ends: statsmodels' ``kpss`` interpolates between its p-values 0.10, 0.05, 0.025 and 0.01 and
+returns the nearer end, with an ``InterpolationWarning``, for a statistic outside the table
+(``statsmodels.tsa.stattools.kpss``, read in the source of statsmodels 0.15.0). Such a p-value
+is a bound and reads as one: ``> 0.10``, ``< 0.01`` (:data:`TABLE_ENDS`).
 """
 
 from __future__ import annotations
@@ -10,16 +16,28 @@ from __future__ import annotations
 import math
 
 P_FLOOR = 0.001
+# The p-values of a test, by its name (app.core.analysis.UnitRootTest.name), that statsmodels
+# clips to the ends of its table of critical values: (lowest, highest).
+TABLE_ENDS = {"KPSS": (0.01, 0.10)}
 
 
-def p_text(p: float) -> str:
-    """``0.004`` or ``< 0.001``; ``nan`` for a p-value that is not a number."""
+def p_text(p: float, test: str = "") -> str:
+    """``0.004`` or ``< 0.001``; ``nan`` for a p-value that is not a number.
+
+    The p-value of a ``test`` whose p-values are clipped to a table (:data:`TABLE_ENDS`) reads
+    as the bound it is at either end: ``> 0.10``, ``< 0.01``."""
     if not math.isfinite(p):
         return "nan"
+    if test in TABLE_ENDS:
+        lowest, highest = TABLE_ENDS[test]
+        if p >= highest:
+            return f"> {highest:.2f}"
+        if p <= lowest:
+            return f"< {lowest:.2f}"
     return f"< {P_FLOOR}" if p < P_FLOOR else f"{p:.3f}"
 
 
-def p_words(p: float) -> str:
-    """``p = 0.004`` or ``p < 0.001``."""
-    text = p_text(p)
-    return f"p {text}" if text.startswith("<") else f"p = {text}"
+def p_words(p: float, test: str = "") -> str:
+    """``p = 0.004``, ``p < 0.001``, or for a test whose p-values are clipped to a table, ``p > 0.10``."""
+    text = p_text(p, test)
+    return f"p {text}" if text[0] in "<>" else f"p = {text}"

@@ -5,7 +5,10 @@ Rules:
 * observations are sorted by time; two observations with the same timestamp are an error
   naming the timestamp, unless the caller chose an aggregation (``mean``, ``sum``, ``last``);
 * the sampling frequency is inferred from the timestamps (the most common spacing when some
-  are missing); timestamps off that grid are an error naming the first one;
+  are missing); timestamps off that grid are an error naming the first one. Messages and pages
+  name the frequency in words (:func:`frequency_words`: "monthly", not ``MS``) and a time stamp
+  as a reader writes it (:func:`moment`, :func:`moment_in`: the date alone for data without
+  times of day);
 * missing points on the grid stay missing (NaN in :attr:`PreparedSeries.values`) and are
   counted and flagged ``gaps``; runs longer than :data:`SHORT_GAP_MAX` points are also
   flagged ``long_gap`` (a long gap keeps a suggestion from being ``firm``). The likelihood,
@@ -79,6 +82,11 @@ class PreparedSeries:
         return int(np.count_nonzero(~np.isnan(self.values)))
 
     @property
+    def frequency_words(self) -> str:
+        """The sampling frequency in plain words (:func:`frequency_words`)."""
+        return frequency_words(self.freq)
+
+    @property
     def filled(self) -> np.ndarray:
         """The values with the missing points filled by linear interpolation, for the methods
         that need a complete series (module notes)."""
@@ -138,8 +146,8 @@ def prepare_series(
         )
     if observed < MIN_OBSERVED_SHARE * prepared.n:
         raise SeriesProblem(
-            sid, f"has {observed} observations on a grid of {prepared.n} {freq} points: most of the grid "
-            "would be gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
+            sid, f"has {observed} observations on a grid of {prepared.n} points, sampled {frequency_words(freq)}: "
+            "most of the grid would be gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
         )
     present = prepared.values[~np.isnan(prepared.values)]
     if np.ptp(present) <= 1e-12 * max(1.0, float(np.abs(present).max())):
@@ -193,20 +201,30 @@ def _reject_unusable_values(values: pd.Series, line_of: pd.Series, sid: str) -> 
                             row=line if line > 0 else None, flag="bad_value")
 
 
-def moment(stamp: object) -> str:
-    """A time stamp as a reader writes it: the date alone at midnight, else date and time."""
+def moment(stamp: object, time_of_day: bool = False) -> str:
+    """A time stamp as a reader writes it: the date alone at midnight, else date and time to the
+    minute; with ``time_of_day`` (a series that has times of day), the time even at midnight.
+    Steps as they are."""
     if isinstance(stamp, pd.Timestamp):
-        return str(stamp.date()) if stamp == stamp.normalize() else stamp.isoformat(sep=" ", timespec="minutes")
+        if stamp == stamp.normalize() and not time_of_day:
+            return str(stamp.date())
+        return stamp.isoformat(sep=" ", timespec="minutes")
     return str(stamp)
 
 
+def has_time_of_day(index: pd.Index) -> bool:
+    """Whether a series' time stamps have times of day: some stamp is not at midnight (data
+    finer than daily, such as hourly or every 15 minutes, or daily data stamped at an hour).
+    A daily, weekly, monthly ... series at midnight has none, and its stamps read as dates."""
+    return isinstance(index, pd.DatetimeIndex) and bool((index != index.normalize()).any())
+
+
 def moment_in(index: pd.Index, position: int) -> str:
-    """The time stamp at ``position`` of ``index`` in words: as :func:`moment`, but with its
-    time of day, midnight included, when the series has times of day (an hourly series)."""
-    stamp = index[position]
-    if isinstance(index, pd.DatetimeIndex) and bool((index != index.normalize()).any()):
-        return stamp.isoformat(sep=" ", timespec="minutes")
-    return moment(stamp)
+    """The time stamp at ``position`` of ``index`` in words (:func:`moment`): with its time of
+    day, midnight included, when the series has times of day (:func:`has_time_of_day`), else
+    the date alone."""
+    return moment(index[position], has_time_of_day(index))
+
 
 def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
     duplicated = values.index.duplicated(keep="first")
@@ -243,7 +261,8 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
         i = int(np.flatnonzero(off)[0])
         line = int(line_of.loc[index[i]].iloc[0] if isinstance(line_of.loc[index[i]], pd.Series) else line_of.loc[index[i]])
         raise SeriesProblem(
-            sid, f"timestamp {index[i]} is off the {freq} grid the other timestamps follow (irregular spacing)",
+            sid, f"timestamp {moment_in(index, i)} is off the grid the other timestamps follow, sampled "
+            f"{frequency_words(freq)} (irregular spacing)",
             row=line if line > 0 else None, flag="irregular",
         )
     return freq, grid
@@ -254,7 +273,7 @@ def _check_grid_size(points: int, freq: str, sid: str) -> None:
     apart at a fine spacing would otherwise ask for billions of points)."""
     if points > MAX_POINTS:
         raise SeriesProblem(
-            sid, f"would need {points:,} points on its {freq} grid; at most {MAX_POINTS:,} can be identified "
+            sid, f"would need {points:,} points on its grid, sampled {frequency_words(freq)}; at most {MAX_POINTS:,} can be identified "
             "(aggregate to a coarser frequency or keep a recent window)", flag="too_long",
         )
 
@@ -287,6 +306,96 @@ def _modal_frequency(index: pd.DatetimeIndex) -> str:
     if days == int(days):
         return "D" if days == 1 else f"{int(days)}D"
     return pd.tseries.frequencies.to_offset(modal).freqstr
+
+
+# The pandas offsets of a month, a quarter and a year (their starts and ends, business or not);
+# app.core.seasonality reads its default periods by them.
+MONTH_OFFSETS = (pd.offsets.MonthBegin, pd.offsets.MonthEnd, pd.offsets.BusinessMonthBegin, pd.offsets.BusinessMonthEnd)
+QUARTER_OFFSETS = (pd.offsets.QuarterBegin, pd.offsets.QuarterEnd, pd.offsets.BQuarterBegin, pd.offsets.BQuarterEnd)
+YEAR_OFFSETS = (pd.offsets.YearBegin, pd.offsets.YearEnd, pd.offsets.BYearBegin, pd.offsets.BYearEnd)
+# The words of a sampling frequency (:func:`frequency_words`): the unit of one step of each kind
+# of offset and the word for a single step; multiples read "every 2 <unit>s".
+_STEP_WORDS: tuple[tuple[tuple[type[pd.offsets.BaseOffset], ...], str, str], ...] = (
+    ((pd.offsets.Day,), "day", "daily"),
+    ((pd.offsets.BusinessDay,), "business day", "every business day"),
+    ((pd.offsets.Week,), "week", "weekly"),
+    (MONTH_OFFSETS, "month", "monthly"),
+    (QUARTER_OFFSETS, "quarter", "quarterly"),
+    (YEAR_OFFSETS, "year", "yearly"),
+)
+_TICK_WORDS = (
+    (pd.Timedelta(hours=1), "hour", "hourly"),
+    (pd.Timedelta(minutes=1), "minute", "every minute"),
+    (pd.Timedelta(seconds=1), "second", "every second"),
+    (pd.Timedelta(milliseconds=1), "millisecond", "every millisecond"),
+    (pd.Timedelta(microseconds=1), "microsecond", "every microsecond"),
+    (pd.Timedelta(nanoseconds=1), "nanosecond", "every nanosecond"),
+)
+_STARTS = (pd.offsets.MonthBegin, pd.offsets.BusinessMonthBegin, pd.offsets.QuarterBegin, pd.offsets.BQuarterBegin,
+           pd.offsets.YearBegin, pd.offsets.BYearBegin)
+_BUSINESS = (pd.offsets.BusinessMonthBegin, pd.offsets.BusinessMonthEnd, pd.offsets.BQuarterBegin,
+             pd.offsets.BQuarterEnd, pd.offsets.BYearBegin, pd.offsets.BYearEnd)
+# English names whatever the locale: 2024-01-01 was a Monday.
+_WEEKDAYS = tuple(pd.date_range("2024-01-01", periods=7, freq="D").day_name())
+_MONTHS = tuple(pd.date_range("2024-01-01", periods=12, freq="MS").month_name())
+
+
+def frequency_words(freq: str, anchored: bool = True) -> str:
+    """A sampling frequency as :func:`prepare_series` reports it (a pandas offset alias,
+    ``"step"`` or ``"N steps"``) in plain words, for every message and page that names it:
+    ``MS`` -> "monthly", ``W-SUN`` -> "weekly (weeks ending Sunday)", ``15min`` -> "every 15
+    minutes", ``ME`` -> "monthly (month ends)", ``"3 steps"`` -> "every 3 steps"; without
+    ``anchored`` (a narrow list column) the words in brackets are left out. The words read
+    after "sampled". A code this pandas does not read (an alias of an older pandas) is named as
+    a pandas frequency."""
+    if freq == INTEGER_FREQ:
+        return "every step"
+    if freq.endswith(" steps"):
+        return f"every {freq}"
+    try:
+        offset = pd.tseries.frequencies.to_offset(freq)
+    except ValueError:
+        return f"at pandas frequency {freq}"
+    for kinds, unit, single in _STEP_WORDS:
+        if isinstance(offset, kinds):
+            steps = single if offset.n == 1 else f"every {offset.n} {unit}s"
+            anchor = _anchor_words(offset) if anchored else ""
+            return f"{steps} ({anchor})" if anchor else steps
+    if isinstance(offset, pd.offsets.Tick):
+        step = pd.Timedelta(offset)
+        for size, unit, single in _TICK_WORDS:
+            if step % size == pd.Timedelta(0):
+                count = step // size
+                return single if count == 1 else f"every {count} {unit}s"
+    return f"at pandas frequency {freq}"
+
+
+def _anchor_words(offset: pd.offsets.BaseOffset) -> str:
+    """Where the steps of a calendar ``offset`` fall when that is not the plain calendar's
+    (weeks ending Sunday, month ends, quarters starting in February ...); empty for days and for
+    month, quarter and year starts."""
+    if isinstance(offset, pd.offsets.Week):
+        return f"weeks ending {_WEEKDAYS[offset.weekday]}" if offset.weekday is not None else ""
+    start = isinstance(offset, _STARTS)
+    if isinstance(offset, QUARTER_OFFSETS):
+        unit, months = "quarter", sorted((offset.startingMonth - 1 + 3 * k) % 12 + 1 for k in range(4))
+    elif isinstance(offset, YEAR_OFFSETS):
+        unit, months = "year", [offset.month]
+    elif isinstance(offset, MONTH_OFFSETS):
+        unit, months = "month", []
+    else:
+        return ""
+    # Calendar quarters and years start in January and end in December.
+    calendar = not months or (months[0] == 1 if start else months[-1] == 12)
+    named = [_MONTHS[m - 1] for m in months]
+    span = f"the {unit}" if calendar else (
+        f"{unit}s {'starting' if start else 'ending'} in " + (f"{', '.join(named[:-1])} and " if len(named) > 1 else "") + named[-1]
+    )
+    if isinstance(offset, _BUSINESS):
+        return f"{'first' if start else 'last'} business day of {span}"
+    if calendar:
+        return "" if start else f"{unit} ends"
+    return span
 
 
 def _missing_runs(missing: np.ndarray) -> list[int]:

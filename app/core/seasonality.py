@@ -51,7 +51,7 @@ from statsmodels.tsa.seasonal import STL
 
 from app.core.correlogram import autocorrelations
 from app.core.errors import OrderError
-from app.core.prepare import interpolate_gaps
+from app.core.prepare import MONTH_OFFSETS, QUARTER_OFFSETS, interpolate_gaps
 from app.core.seasonal_stability import SeasonalStability, canova_hansen
 from app.core.vocabulary import Flag
 
@@ -72,8 +72,8 @@ _PERIOD_OF_OFFSET: tuple[tuple[tuple[type, ...], int], ...] = (
     ((pd.offsets.Day,), 7),
     ((pd.offsets.BusinessDay,), 5),
     ((pd.offsets.Week,), 52),
-    ((pd.offsets.MonthBegin, pd.offsets.MonthEnd, pd.offsets.BusinessMonthBegin, pd.offsets.BusinessMonthEnd), 12),
-    ((pd.offsets.QuarterBegin, pd.offsets.QuarterEnd, pd.offsets.BQuarterBegin, pd.offsets.BQuarterEnd), 4),
+    (MONTH_OFFSETS, 12),
+    (QUARTER_OFFSETS, 4),
 )
 
 

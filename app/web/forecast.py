@@ -10,9 +10,11 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+import pandas as pd
 import sqlite_utils
 
 from app.core.analysis import Analysis
+from app.core.prepare import moment_in
 from app.review.decisions import ChosenInterventions
 from app.review.forecast_check import backtest_series, compare_orders
 from app.web.charts import COMPARED_COLOURS, comparison_figure, forecast_figure
@@ -57,13 +59,23 @@ def forecast_check_view(
 AHEAD_COLUMNS = ("time ahead", "forecast", "80% interval", "95% interval")
 
 
+def readable_stamps(stamps: Sequence[str | int]) -> list[str]:
+    """A check's time stamps (:func:`app.core.backtest` writes dates as text, steps as whole
+    numbers) as a reader writes them (:func:`app.core.prepare.moment_in`: no midnight time on
+    data without times of day)."""
+    if not stamps or not isinstance(stamps[0], str):
+        return [str(t) for t in stamps]
+    index = pd.DatetimeIndex(stamps)
+    return [moment_in(index, i) for i in range(index.size)]
+
+
 def ahead_rows(check: dict) -> list[tuple]:
     """The forecast beyond the data as the chart's table shows it, a row per step."""
     ahead = check["plot"]["ahead"]
     return [
         (t, number(f, 4), f"{number(lo80, 4)} – {number(hi80, 4)}", f"{number(lo95, 4)} – {number(hi95, 4)}")
         for t, f, lo80, hi80, lo95, hi95 in zip(
-            ahead["timestamps"], ahead["forecast"], ahead["lower_80"], ahead["upper_80"], ahead["lower_95"], ahead["upper_95"],
+            readable_stamps(ahead["timestamps"]), ahead["forecast"], ahead["lower_80"], ahead["upper_80"], ahead["lower_95"], ahead["upper_95"],
         )
     ]
 

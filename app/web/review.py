@@ -8,6 +8,8 @@ table.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import pandas as pd
@@ -19,7 +21,8 @@ from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import SeriesProblem
 from app.core.fitting import difference
 from app.core.identify import FURTHER_DIFFERENCE, TREND_TOGGLE
-from app.core.prepare import PreparedSeries, prepare_series
+from app.core.p_values import p_text
+from app.core.prepare import PreparedSeries, frequency_words, has_time_of_day, moment, prepare_series
 from app.core.ranking import PATTERN_BONUS, TIE_MARGIN
 from app.core.seasonality import seasonal_lags
 from app.core.transform import apply_transform
@@ -64,6 +67,9 @@ SOURCE_WORDS = {
     FURTHER_DIFFERENCE: "one more difference: a close fit with one fewer has an AR root at 1",
 }
 FITTED_BY_HAND = "fitted by hand"
+# The first line of each comparison of the scales (app.core.transform.transform_alternatives):
+# the engine writes it again, the same on the same data, before every comparison.
+COMPARISON_START = "Guerrero's lambda"
 # A ticked intervention travels in the decision form as "TIMESTAMP|KIND".
 INTERVENTION_SEPARATOR = "|"
 
@@ -91,11 +97,43 @@ class FormState:
 
 
 def time_labels(index: pd.Index) -> list:
-    """Timestamps as the charts and tables show them (dates without a midnight time)."""
+    """Timestamps as the charts and tables show them: dates, with the time of day when the
+    series has times of day (:func:`app.core.prepare.has_time_of_day`)."""
     if isinstance(index, pd.DatetimeIndex):
-        midnight = bool((index == index.normalize()).all())
-        return list(index.strftime("%Y-%m-%d" if midnight else "%Y-%m-%d %H:%M"))
+        return list(index.strftime("%Y-%m-%d %H:%M" if has_time_of_day(index) else "%Y-%m-%d"))
     return [int(v) for v in index]
+
+
+def span_words(analysis: Analysis, index: pd.Index) -> tuple[str, str]:
+    """The first and last time of an analysis as the page's heading names them: read as the
+    stored series ``index`` writes its times (:func:`app.core.prepare.moment`), a date without
+    a midnight time for daily or coarser data."""
+    timed = has_time_of_day(index)
+
+    def words(stamp: str) -> str:
+        return moment(pd.Timestamp(stamp) if isinstance(index, pd.DatetimeIndex) else stamp, timed)
+
+    return words(analysis.start), words(analysis.end)
+
+
+def transform_lines(explanation: Sequence[str]) -> list[dict]:
+    """The transform's explanation as the page lists it, ``{"label", "text"}`` a line: with two
+    comparisons of the scales or more, each labelled at its first line ("Comparison 2 of 3"),
+    and Guerrero's lambda, which opens each, said again only when it changed (on the series
+    with interventions taken out)."""
+    count = sum(line.startswith(COMPARISON_START) for line in explanation)
+    lines: list[dict] = []
+    label, opened, said = "", 0, None
+    for line in explanation:
+        if line.startswith(COMPARISON_START):
+            opened += 1
+            label = f"Comparison {opened} of {count}" if count > 1 else ""
+            if line == said:
+                continue
+            said = line
+        lines.append({"label": label, "text": line})
+        label = ""
+    return lines
 
 
 def _last(labels: list, count: int) -> list:
@@ -188,6 +226,7 @@ def test_rows(tests: tuple[UnitRootTest, ...]) -> list[dict]:
         {
             **vars(t),
             "on_words": ON_WORDS.get(t.on, t.on),
+            "p_text": p_text(t.p_value, t.name) if math.isfinite(t.p_value) else "—",
             "regression_words": REGRESSION_WORDS.get(t.regression, t.regression),
         }
         for t in tests
@@ -275,6 +314,9 @@ def review_page(
             line_chart("identified", _last(labels, len(identified)), identified, "value")
             if analysis.is_transformed_or_differenced else None
         ),
+        frequency_words=frequency_words(analysis.freq),
+        span=span_words(analysis, raw.index),
+        transform_lines=transform_lines(analysis.transform.explanation),
         acf_chart=lag_chart("acf", analysis.acf, period, "ACF"),
         pacf_chart=lag_chart("pacf", analysis.pacf, period, "PACF"),
         observed_acf_chart=lag_chart("acf-observed", observed_acf, period, "ACF") if observed_acf else None,

@@ -14,6 +14,7 @@ from markupsafe import Markup
 import app
 from app.core.order import order_label
 from app.core.p_values import p_text
+from app.core.prepare import frequency_words
 from app.core.vocabulary import SAFETY_CAUTION, flag_words, reason_words
 from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
@@ -24,17 +25,11 @@ PROJECT_DIR = Path(app.__file__).resolve().parent.parent
 TEMPLATES_DIR = PROJECT_DIR / "templates"
 STATIC_DIR = PROJECT_DIR / "static"
 
-FREQ_WORDS = {"D": "daily", "B": "business days", "h": "hourly", "H": "hourly", "min": "minutely", "T": "minutely",
-              "W": "weekly", "M": "monthly", "MS": "monthly", "ME": "monthly", "Q": "quarterly", "QS": "quarterly",
-              "QE": "quarterly", "A": "yearly", "AS": "yearly", "Y": "yearly", "YS": "yearly", "YE": "yearly",
-              "step": "steps"}
-
 
 def freq_words(freq: str | None) -> str:
-    """A pandas frequency code in words (``D`` -> daily, ``W-SUN`` -> weekly); unknown codes as they are."""
-    if not freq:
-        return ""
-    return FREQ_WORDS.get(freq) or FREQ_WORDS.get(freq.split("-")[0]) or freq
+    """A stored frequency code in the few words of a list column (``W-SUN`` -> weekly):
+    :func:`app.core.prepare.frequency_words` without the anchor."""
+    return frequency_words(freq, anchored=False) if freq else ""
 
 
 def when(timestamp: str | None) -> str:

@@ -115,13 +115,14 @@ def test_a_nesting_model_that_fits_better_keeps_the_suggestion_from_firm(fits):
     score = score_confidence([lead, _with_gain(fits["ar1"], lead, 4.7)], [], "bic")
     assert score.level == Confidence.TENTATIVE
     # 300 observations: the short band of rule 3 (AIC's level, Burnham & Anderson 2002).
-    assert score.reasons == ["ARIMA(1,0,0) fits better by a likelihood-ratio test (p = 0.03, below the 15.7% level for series "
+    assert score.reasons == ["ARIMA(1,0,0) fits better by a likelihood-ratio test (p = 0.030, below the 15.7% level for series "
                              "shorter than 400 observations)"]
 
 
 def test_a_better_fit_with_a_trend_is_named_with_its_trend(fits):
     score = score_confidence([fits["wn"], _with_gain(fits["wn_trend"], fits["wn"], 9.0)], [], "bic")
-    assert score.reasons == ["ARIMA(0,0,0) with a mean and a linear trend fits better by a likelihood-ratio test (p < 0.01, "
+    # The upper tail of chi-squared(1) at 9.0 is 0.0027 (scipy.stats.chi2.sf), worded to three decimals.
+    assert score.reasons == ["ARIMA(0,0,0) with a mean and a linear trend fits better by a likelihood-ratio test (p = 0.003, "
                              "below the 15.7% level for series shorter than 400 observations)"]
 
 

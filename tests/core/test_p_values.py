@@ -2,11 +2,16 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
+from statsmodels.tools.sm_exceptions import InterpolationWarning
+from statsmodels.tsa.stattools import kpss
 
-from app.core.p_values import p_text, p_words
+from app.core.p_values import TABLE_ENDS, p_text, p_words
 from app.core.seasonal_stability import canova_hansen
+from app.core.stationarity import kpss_test
 
 
 @pytest.mark.parametrize(("p", "text", "words"), [
@@ -28,3 +33,20 @@ def test_an_engine_sentence_with_a_tiny_p_value_says_so():
         walk[t] = walk[t - 12] + shocks[t]
     words = canova_hansen(walk, 12).words()
     assert "p < 0.001" in words and "0.000" not in words
+
+
+def test_a_kpss_p_value_clipped_to_the_ends_of_its_table_reads_as_a_bound():
+    rng = np.random.default_rng(11)
+    noise, walk = rng.standard_normal(200), np.cumsum(rng.standard_normal(200))
+    # statsmodels' kpss clips the p-value at the ends of its table and warns that the true one lies beyond.
+    for x, end in ((noise, 0.10), (walk, 0.01)):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            assert kpss(x, regression="c", nlags="auto", result_object=True).pvalue == end
+        assert any(issubclass(w.category, InterpolationWarning) for w in caught)
+    assert TABLE_ENDS["KPSS"] == (0.01, 0.10)
+    steady, wandering = kpss_test(noise, "c", "levels"), kpss_test(walk, "c", "levels")
+    assert (p_text(steady.p_value, steady.name), p_words(steady.p_value, steady.name)) == ("> 0.10", "p > 0.10")
+    assert (p_text(wandering.p_value, wandering.name), p_words(wandering.p_value, wandering.name)) == ("< 0.01", "p < 0.01")
+    # Inside the table a KPSS p-value reads as any other; another test's 0.10 is not a bound.
+    assert (p_text(0.05, "KPSS"), p_text(0.1, "ADF"), p_text(0.1)) == ("0.050", "0.100", "0.100")

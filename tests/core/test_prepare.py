@@ -14,7 +14,16 @@ import pytest
 import statsmodels.api as sm
 
 from app.core.errors import SeriesProblem
-from app.core.prepare import MIN_POINTS, RECOMMENDED_POINTS, SHORT_GAP_MAX, moment_in, prepare_series
+from app.core.prepare import (
+    MIN_POINTS,
+    RECOMMENDED_POINTS,
+    SHORT_GAP_MAX,
+    frequency_words,
+    has_time_of_day,
+    moment,
+    moment_in,
+    prepare_series,
+)
 
 N = 40
 
@@ -103,7 +112,7 @@ def test_off_grid_timestamp_error_names_timestamp_and_line():
         prepare_series(pd.Series(s.to_numpy(), index=pd.DatetimeIndex(index)), "shop-1", lines=_lines(N))
     assert info.value.flag == "irregular"
     assert info.value.row == 12
-    assert "2021-03-11 12:00:00" in str(info.value)
+    assert "timestamp 2021-03-11 12:00 is off the grid the other timestamps follow, sampled daily" in str(info.value)
 
 
 def test_integer_steps_with_a_gap():
@@ -213,3 +222,58 @@ def test_a_moment_of_an_hourly_series_keeps_its_hour_at_midnight():
     daily = pd.date_range("2024-04-10", periods=3, freq="D")
     assert moment_in(daily, 1) == "2024-04-11"
     assert moment_in(pd.RangeIndex(5), -1) == "4"
+
+
+def test_a_date_reads_without_a_midnight_time_only_when_the_series_has_no_times_of_day():
+    hourly = pd.date_range("2024-04-10 22:00", periods=4, freq="h")
+    daily = pd.date_range("2024-04-10", periods=3, freq="D")
+    stamped_at_nine = pd.date_range("2024-04-10 09:00", periods=3, freq="D")
+    assert (has_time_of_day(hourly), has_time_of_day(daily), has_time_of_day(stamped_at_nine)) == (True, False, True)
+    assert has_time_of_day(pd.RangeIndex(5)) is False
+    midnight = pd.Timestamp("2024-04-11")
+    assert (moment(midnight), moment(midnight, time_of_day=True)) == ("2024-04-11", "2024-04-11 00:00")
+    assert moment(pd.Timestamp("2024-04-11 09:30:00")) == "2024-04-11 09:30"
+
+
+# --- the sampling frequency in words --------------------------------------------------------
+
+@pytest.mark.parametrize(("freq", "words"), [
+    ("D", "daily"), ("h", "hourly"), ("15min", "every 15 minutes"), ("2D", "every 2 days"),
+    ("B", "every business day"), ("W-SUN", "weekly (weeks ending Sunday)"), ("W-WED", "weekly (weeks ending Wednesday)"),
+    ("MS", "monthly"), ("ME", "monthly (month ends)"), ("BMS", "monthly (first business day of the month)"),
+    ("QS-JAN", "quarterly"), ("QE-DEC", "quarterly (quarter ends)"),
+    ("QS-FEB", "quarterly (quarters starting in February, May, August and November)"),
+    ("YS-JAN", "yearly"), ("YS-APR", "yearly (years starting in April)"), ("YE-DEC", "yearly (year ends)"),
+])
+def test_the_frequency_prepare_infers_reads_in_plain_words(freq, words):
+    # pandas' own calendar for each code lays out the timestamps; prepare_series infers the code back.
+    index = pd.date_range("2021-01-01", periods=N, freq=freq)
+    prepared = prepare_series(pd.Series(np.random.default_rng(3).normal(size=N), index=index), "s")
+    assert prepared.frequency_words == words
+
+
+def test_integer_steps_and_codes_pandas_does_not_read_in_words():
+    assert (frequency_words("step"), frequency_words("5 steps")) == ("every step", "every 5 steps")
+    assert frequency_words("90min") == "every 90 minutes"
+    assert frequency_words("not-a-code") == "at pandas frequency not-a-code"
+
+
+def test_the_grid_messages_name_the_frequency_in_words_and_dates_without_a_midnight_time():
+    months = pd.date_range("2018-01-01", periods=30, freq="MS").append(pd.DatetimeIndex(["2020-07-15"]))
+    with pytest.raises(SeriesProblem) as off:
+        prepare_series(pd.Series(np.arange(31.0), index=months), "m")
+    assert "timestamp 2020-07-15 is off the grid the other timestamps follow, sampled monthly (irregular spacing)" in str(off.value)
+    weeks = pd.date_range("2018-01-07", periods=40, freq="W-SUN")
+    with pytest.raises(SeriesProblem) as sparse:
+        prepare_series(pd.Series(np.arange(13.0), index=weeks[:3].append(weeks[30:])), "w")
+    assert sparse.value.flag == "mostly_gaps"
+    assert "on a grid of 40 points, sampled weekly (weeks ending Sunday): most of the grid" in str(sparse.value)
+    for problem in (off.value, sparse.value):
+        assert not any(code in str(problem) for code in ("00:00", "MS", "W-SUN")), problem
+
+
+def test_an_off_grid_time_of_an_hourly_series_keeps_its_time():
+    hours = pd.date_range("2018-01-01", periods=40, freq="h").append(pd.DatetimeIndex(["2018-01-03 00:30"]))
+    with pytest.raises(SeriesProblem) as off:
+        prepare_series(pd.Series(np.arange(41.0), index=hours), "h")
+    assert "timestamp 2018-01-03 00:30 is off the grid the other timestamps follow, sampled hourly" in str(off.value)

@@ -12,8 +12,9 @@ from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.seasonal import STL
 from statsmodels.tsa.stattools import acf
 
+from app.core.defaults import AUTO_PERIOD
 from app.core.errors import OrderError
-from app.core.identify import identify_series
+from app.core.identify import identify_series, resolve_period
 from app.core.prepare import prepare_series
 from app.core.seasonality import (
     MIN_SEASONS_DIFFERENCING,
@@ -235,6 +236,16 @@ def test_default_period_of_frequency_that_prepare_infers(freq, expected):
     index = pd.date_range("2021-01-01", periods=40, freq=freq)
     prepared = prepare_series(pd.Series(np.random.default_rng(0).normal(size=40), index=index), "s")
     assert default_period(prepared.freq) == expected
+
+
+def test_the_period_read_from_the_frequency_names_the_frequency_in_words():
+    def prepared(freq: str):
+        index = pd.date_range("2021-01-01", periods=40, freq=freq)
+        return prepare_series(pd.Series(np.random.default_rng(0).normal(size=40), index=index), "s")
+
+    assert resolve_period(prepared("MS"), AUTO_PERIOD) == (12, ["Seasonal period 12 from the sampling frequency: monthly."])
+    assert resolve_period(prepared("W-SUN"), AUTO_PERIOD) == (None, [
+        "Sampled weekly (weeks ending Sunday), the series is shorter than one season (52 points): treated as non-seasonal."])
 
 
 @pytest.mark.parametrize("period", [0, 1, -4, 60, 75])

@@ -50,7 +50,7 @@ def test_a_million_point_series_is_refused_by_every_way_in(tmp_path, seeded_db, 
     path = _million_point_file(tmp_path / "million.csv")
     first_past_limit = 2 + 24 + MAX_POINTS
     too_many_rows = f"series 'huge' (line {first_past_limit}): has {MILLION:,} rows; at most {MAX_POINTS:,} are accepted per series"
-    too_long = f"would need {MILLION:,} points on its step grid; at most {MAX_POINTS:,} can be identified"
+    too_long = f"would need {MILLION:,} points on its grid, sampled every step; at most {MAX_POINTS:,} can be identified"
 
     done = run_lagdesk("import", str(path), "--db", str(seeded_db))
     assert done.returncode == 0 and done.stderr == "", done

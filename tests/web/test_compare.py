@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 from urllib.parse import quote
 
+import pandas as pd
 import pytest
 from web_portfolio import write_long_csv
 
@@ -20,6 +21,7 @@ from app.core.ranking import PATTERN_SOURCES
 from app.core.stationarity import LEVEL_NAMES, SEASONAL_LEVEL_NAMES
 from app.review.forecast_check import REMEMBERED_CHECKS, RecentChecks, check_key
 from app.store.series import load_series
+from app.web.forecast import readable_stamps
 from app.web.review import ON_WORDS, SOURCE_WORDS
 from app.web.templating import number, percent
 
@@ -189,3 +191,12 @@ def test_every_series_a_differencing_test_runs_on_has_words():
     # A seasonally differenced series is named as such on the page, not as the series as observed.
     assert set(LEVEL_NAMES + SEASONAL_LEVEL_NAMES) <= set(ON_WORDS)
     assert ON_WORDS["seasonal difference"] == "the seasonal difference"
+
+
+def test_forecast_table_dates_have_no_midnight_time_and_hours_keep_theirs():
+    # app.core.backtest writes dates with str(Timestamp) ("2025-01-01 00:00:00") and steps as numbers.
+    monthly = [str(t) for t in pd.date_range("2025-01-01", periods=3, freq="MS")]
+    hourly = [str(t) for t in pd.date_range("2025-01-01 22:00", periods=3, freq="h")]
+    assert readable_stamps(monthly) == ["2025-01-01", "2025-02-01", "2025-03-01"]
+    assert readable_stamps(hourly) == ["2025-01-01 22:00", "2025-01-01 23:00", "2025-01-02 00:00"]
+    assert readable_stamps([41, 42]) == ["41", "42"]

@@ -119,7 +119,7 @@ def test_a_verdict_keeps_the_reviewers_interventions_and_the_export_hands_them_o
     changed = [*own, {"timestamp": "2024-12-20", "kind": "additive"}]
     approving = client.post(url, json={"status": "approved", "order": order, "seasonal_order": seasonal,
                                        "interventions": changed, "reviewer": "ann", "version": body["verdict"]["version"]})
-    assert approving.status_code == 422 and "use 'overridden' to change them" in approving.json()["detail"]
+    assert approving.status_code == 422 and "to change them, override instead" in approving.json()["detail"]
     saved = client.post(url, json={"status": "overridden", "order": order, "seasonal_order": seasonal, "confirm": True,
                                    "interventions": changed, "reviewer": "ann", "version": body["verdict"]["version"]})
     assert saved.status_code == 200, saved.text
