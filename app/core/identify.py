@@ -229,16 +229,6 @@ class Identification:
                 f"autoregressive factor has a root at {root.real:.3f}, next to 1: a unit root the differencing left in, so "
                 f"d = {further[1]} was searched as well."]
 
-    def _trend_left_words(self) -> list[str]:
-        """Why a trend the tests read is not in the suggestion, when it is not: the deterministic
-        term is chosen by the criterion like the order (:func:`trend_choices`)."""
-        model = self.suggested.model
-        if not self.differencing.trend_stationary or model.d or "t" in model.trend:
-            return []
-        kept = model.term_words().strip() or "without a deterministic term"
-        return [f"The criterion preferred {model.label()} {kept} to the linear trend the tests read: "
-                "the suggestion has no trend to extrapolate."]
-
     def to_analysis(self) -> Analysis:
         """The typed result every other layer reads (:class:`app.core.analysis.Analysis`)."""
         best = self.suggested
@@ -262,7 +252,7 @@ class Identification:
                 d=decision.d, uncertain=decision.uncertain, alternative_d=decision.alternative_d,
                 trend_stationary=decision.trend_stationary,
                 tests=tuple(decision.tests),
-                explanation=(*decision.explanation, *(w for _, w in across), *self._trend_left_words()),
+                explanation=(*decision.explanation, *(w for _, w in across)),
             ),
             seasonal=replace(seasonal, explanation=(*seasonal.explanation, *(w for which, w in across if which == "D"))),
             acf=Correlation(lags, tuple(cg.acf.tolist()), tuple(cg.acf_band.tolist())),
@@ -316,7 +306,7 @@ def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int)
     the constant, instead of a pre-test that ignores autocorrelation deciding alone.
     """
     if d + D == 0:
-        return ("ct", "c") if decision.trend_stationary else ("c", "ct")
+        return ("ct",) if decision.trend_stationary else ("c", "ct")
     if d + D == 1:
         present = w[~np.isnan(w)]  # the differences that reach a missing point are missing
         se = present.std(ddof=1) / math.sqrt(present.size) if present.size > 1 else 0.0
@@ -688,18 +678,10 @@ def _with_interventions(
         return first, []
     found = detect_interventions(y, leader.model, leader.estimate, prepared.index)
     shifted = any(i.kind is InterventionKind.LEVEL_SHIFT for i in found)
-    if leader.model.d and leader.model.d - 1 in (first.decision.d, first.decision.alternative_d) and not shifted:
-        # A level shift makes a stationary series look integrated (Perron 1989), and under a
-        # differenced model it is only one step: when the unit-root tests disagree, the
-        # stationary alternative is searched for a shift too. Fitted to an integrated series,
-        # though, a stationary model reads its wandering as shifts, so the shift is taken only
-        # when the alternative with it predicts the levels better than the leader.
-        alternative = _one_difference_less(leader.model)
-        fit = fit_candidate(y, alternative)
-        if fit.estimate is not None:
-            seen = detect_interventions(y, alternative, fit.estimate, prepared.index)
-            if any(i.kind is InterventionKind.LEVEL_SHIFT for i in seen) and _shift_predicts_better(y, leader, found, alternative, seen):
-                found, shifted = seen, True
+    if not shifted:
+        seen = _shift_instead(prepared, y, first, found)
+        if seen:
+            found, shifted = seen, True
     if not found:
         return first, []
     if leader.model.d and shifted:
@@ -739,6 +721,47 @@ def _with_interventions(
             return again, [replace(i, t_stat=by_place[(i.kind, i.position)]) for i in sorted(current, key=lambda i: i.position)]
         current = kept
     return first, []
+
+
+def _shift_instead(prepared: PreparedSeries, y: np.ndarray, first: _Identified, found: list[Intervention]
+                   ) -> list[Intervention]:
+    """The interventions, a level shift among them, of a model the leader of ``first`` reads the
+    shift into, when that model with them predicts the levels better than the leader with its
+    own (``found``) (:func:`_shift_predicts_better`); empty when there is no such model.
+
+    A level shift makes a stationary series look integrated (Perron 1989), and under a
+    differenced model it is only one step: when the unit-root tests left d open, the stationary
+    alternative (one difference fewer) is searched for a shift. A shift also looks like a linear
+    trend to a stationary model with one (Perron 1989's "crash" against "changing growth"), and
+    an autoregression with a root pulled towards 1 absorbs the step: such a leader is searched
+    again without its trend, and, when that reads no shift either, as a mean alone (the Nile's
+    flow to 1954, Cobb 1978: ARIMA(1,0,0) with a trend before). Fitted to an integrated or
+    trending series, a stationary model reads its wandering as shifts, so a shift is taken only
+    when it predicts the levels better than the leader.
+
+    References
+    ----------
+    .. [1] Perron, P. (1989). The great crash, the oil price shock, and the unit root hypothesis.
+       *Econometrica* 57, 1361-1401.
+    .. [2] Cobb, G.W. (1978). The problem of the Nile: conditional solution to a changepoint
+       problem. *Biometrika* 65, 243-251.
+    """
+    model = first.ranked[0].model
+    if model.d and model.d - 1 in (first.decision.d, first.decision.alternative_d):
+        alternatives = [_one_difference_less(model)]
+    elif model.d + model.D == 0 and model.trend == "ct":
+        alternatives = [replace(model, trend="c"), Order(0, 0, 0, trend="c")]
+    else:
+        return []
+    for alternative in alternatives:
+        fit = fit_candidate(y, alternative)
+        if fit.estimate is None:
+            continue
+        seen = detect_interventions(y, alternative, fit.estimate, prepared.index)
+        if (any(i.kind is InterventionKind.LEVEL_SHIFT for i in seen)
+                and _shift_predicts_better(y, first.ranked[0], found, alternative, seen)):
+            return seen
+    return []
 
 
 def _sizes_settled(adjusted_by: list[Intervention], joint: list[Intervention]) -> bool:

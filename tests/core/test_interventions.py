@@ -249,6 +249,18 @@ def _ima(rng: np.random.Generator, n: int, theta: float = -0.5) -> np.ndarray:
 
 
 @pytest.mark.slow
+def test_the_nile_level_shift_is_found_where_a_trend_would_absorb_it():
+    # The Nile to 1954 (84 years): the tests disagree on d, and the stationary leader took a
+    # linear trend, ARIMA(1,0,0) with a mean and a trend, whose AR root absorbed the 1899 drop
+    # so that no shift stood out. Perron (1989): a shift read as a trend; searched without the
+    # trend, the drop is found (Cobb 1978) and the series is two levels of white noise.
+    data = sm.datasets.nile.load_pandas().data
+    y = pd.Series(data["volume"].to_numpy(dtype=float), index=pd.date_range("1871", periods=len(data), freq="YS"))
+    found = identify_series(y[:84], "nile to 1954")
+    assert [(i.kind, i.timestamp[:4]) for i in found.interventions] == [(InterventionKind.LEVEL_SHIFT, "1899")]
+    assert found.suggested.model.full_label() == "ARIMA(0,0,0) with a mean"
+
+
 def test_a_shift_read_under_the_stationary_alternative_must_predict_better():
     """When the unit-root tests disagree the stationary alternative is searched for a level
     shift (Perron 1989). Fitted to an integrated series, a stationary model reads its wandering
