@@ -66,7 +66,9 @@ from app.core.ranking import (
     DEFAULT_CRITERION,
     common_level_bic,
     criterion_value,
+    final_window,
     is_demoted,
+    level_errors,
     rank_across_differencing,
     rank_score,
     rank_within_d,
@@ -592,13 +594,13 @@ def _search_on(
                 searches[(D, d)] = found
     if not searches:
         raise unfitted[0]
-    ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
+    ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, y, options.criterion)
     D, d = next(key for key, found in searches.items() if any(f is ranked[0] for f in found.fits))
     if d < MAX_D and (D, d + 1) not in searches and unit_root_fit(rank_within_d(searches[(D, d)].fits, options.criterion), options.criterion):
         further = _search_marked(series_id, y, d + 1, *setups[D], options, [FURTHER_DIFFERENCE])
         if not isinstance(further, SeriesProblem):
             searches[(D, d + 1)] = further
-            ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, options.criterion)
+            ranked = rank_across_differencing({key: found.fits for key, found in searches.items()}, y, options.criterion)
     return _Identified(setups, searches, ranked)
 
 
@@ -790,12 +792,13 @@ def _shift_predicts_better(y: np.ndarray, leader: CandidateFit, found: list[Inte
     .. [1] Yao, Y.-C. (1988). Estimating the number of change-points via Schwarz' criterion.
        *Statistics & Probability Letters* 6, 181-189.
     """
-    ours = fit_candidate(adjusted(y, found), leader.model, warm=leader) if found else leader
-    theirs = fit_candidate(adjusted(y, seen), alternative)
-    m = min(ours.residuals.size, theirs.residuals.size) - 1
-    present = ~np.isnan(ours.residuals[-m:]) & ~np.isnan(theirs.residuals[-m:])
-    return (common_level_bic(theirs, m, present, 2 * len(seen))
-            < common_level_bic(ours, m, present, 2 * len(found)))
+    ours_y, theirs_y = (adjusted(y, found) if found else y), adjusted(y, seen)
+    ours = fit_candidate(ours_y, leader.model, warm=leader) if found else leader
+    theirs = fit_candidate(theirs_y, alternative)
+    ours_errors, theirs_errors = level_errors(ours, ours_y), level_errors(theirs, theirs_y)
+    window = final_window(y.size, min(ours.residuals.size, theirs.residuals.size) - 1, (ours_errors[0], theirs_errors[0]))
+    return (common_level_bic(*theirs_errors, theirs.n_params + 2 * len(seen), window)
+            < common_level_bic(*ours_errors, ours.n_params + 2 * len(found), window))
 
 
 def _one_difference_less(model: Order) -> Order:
@@ -1124,7 +1127,7 @@ def _on_whole_series(
     if not groups:
         raise SeriesProblem(prepared.series_id, "none of the candidates found on the recent points could be fitted "
                             "to the whole series", flag="no_fit")
-    ranked = rank_across_differencing(groups, options.criterion)
+    ranked = rank_across_differencing(groups, y, options.criterion)
     whole = _finished(prepared, found.transform, replace(search, ranked=ranked), interventions, options)
     whole.identified_label += f"; last {found.prepared.n} points"
     whole.data_notes.insert(0, (

@@ -24,7 +24,8 @@ Information criteria are not comparable across different d: the likelihood of a 
 model is the likelihood of the differences. When the differencing decision is uncertain, the
 best candidate of each d is compared by :func:`common_level_bic`, a BIC computed from the
 one-step prediction errors over the same final stretch of time points, which are level
-prediction errors whatever the model's d.
+prediction errors whatever the model's d (on a series with gaps, those of the filter of the
+levels, :func:`level_errors`).
 
 Rivals of the leader, for the confidence (:mod:`app.core.confidence`), are of two kinds. A
 candidate that *nests* the leader (:func:`nests`: the leader with terms added, the deterministic
@@ -45,6 +46,7 @@ References
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Iterable, Mapping
 
 import numpy as np
@@ -94,33 +96,80 @@ def rank_within_d(fits: list[CandidateFit], criterion: str = DEFAULT_CRITERION) 
     return [simplest] + [f for f in ordered if f is not simplest]
 
 
-def common_level_bic(fit: CandidateFit, m: int, present: np.ndarray | None = None, extra: int = 0) -> float:
-    """BIC from the last ``m`` one-step prediction errors.
+def level_errors(fit: CandidateFit, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The fit's one-step prediction errors of the levels ``y`` it was fitted to, one per point
+    of ``y`` (NaN where there is none), and their variances over the innovation variance.
 
-    ``m * ln(SSE / m) + k * ln(m)`` with ``k`` estimated parameters (including the innovation
-    variance, and ``extra`` ones the fit does not count, such as those of effects taken out
-    of the series before it was fitted). The one-step prediction error of a level equals that of its difference (the
-    previous levels are known), so every model's residuals are level prediction errors and the
-    criterion is comparable across models with different d, as long as all use the same
-    ``m`` final time points. With missing points the errors of a level whose previous level is
-    missing are missing too, and more of them with more differencing: ``present`` (a mask over
-    the ``m`` points) keeps the points where every compared model has an error, and their
-    number takes the place of ``m``.
+    The one-step prediction error of a level equals that of its difference (the previous levels
+    are known), so on a complete series these are the fit's residuals, the first ``d + sD``
+    points having none, all taken at one variance. Past a gap that is no longer so: the
+    residuals of a differenced fit skip every difference that reaches the gap (the likelihood of
+    the differences observed, :mod:`app.core.fitting`), so the more a model differences, the
+    more it forgets there, and after one missing month of the airline passengers (log, 1949-1960,
+    the sixty-first point missing) d = 0 took the lead from d = 1 by it. With missing points the
+    errors are those of the exact filter of the levels at the fit's estimates, the differencing
+    in the state (statsmodels ``ARIMA``, the model :func:`app.core.backtest.forecast_order` forecasts with),
+    which predicts across the gap from every level observed, with their variances ``F_t``
+    (Harvey 1989, §3.4; Durbin & Koopman 2012, §4.10; from memory); the first ``d + sD`` points,
+    which the diffuse start of that filter spends, have none.
     """
-    if m <= 0:
-        return math.inf
-    errors = fit.residuals[-m:] if present is None else fit.residuals[-m:][present]
-    count, sse = errors.size, float(errors @ errors)
+    lost = y.size - fit.residuals.size
+    if fit.estimate is None or not np.isnan(y).any():
+        return np.r_[np.full(lost, np.nan), fit.residuals], np.ones(y.size)
+    # Imported here: only series with gaps need it, and every start of the engine would pay for it.
+    from statsmodels.tsa.arima.model import ARIMA
+
+    model = fit.model
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            # The ARMA part started at its stationary covariance, as the engine's likelihood
+            # starts it: on a complete series these errors are the residuals (to 1e-7).
+            filtered = ARIMA(y, order=model.order, seasonal_order=model.seasonal_order, trend=model.trend
+                             ).filter(fit.estimates())
+    except (ValueError, np.linalg.LinAlgError):
+        return np.r_[np.full(lost, np.nan), fit.residuals], np.ones(y.size)
+    errors = np.array(filtered.forecasts_error[0], dtype=float)
+    errors[:lost] = np.nan
+    return errors, np.asarray(filtered.forecasts_error_cov[0, 0], dtype=float) / fit.estimate.sigma2
+
+
+def common_level_bic(errors: np.ndarray, ratios: np.ndarray, k: int, window: np.ndarray) -> float:
+    """BIC from the one-step level prediction errors (:func:`level_errors`) in ``window``.
+
+    ``m * ln(SSE / m) + k * ln(m)`` over the ``m`` points of the window, ``k`` the estimated
+    parameters (including the innovation variance, and any the fit does not count, such as
+    those of effects taken out of the series before it was fitted). Every model's errors are
+    level prediction errors, so the criterion is comparable across models with different d, as
+    long as all use the same points: the window holds the final points where every compared
+    model has an error. Where the errors' variances differ (``ratios``, past a gap), the
+    criterion is the Gaussian likelihood of errors of variances ``r_t sigma^2``, sigma^2
+    profiled out: ``m ln(sum(e_t^2 / r_t) / m) + sum(ln r_t) + k ln(m)``, the plain form when
+    every ``r_t`` is 1 (the prediction error decomposition, Harvey 1989, §3.4; from memory).
+    """
+    e, r = errors[window], ratios[window]
+    count = e.size
+    sse = float(e**2 @ (1.0 / r)) if count else 0.0
     if count <= 0 or sse <= 0:
         return math.inf
-    return count * math.log(sse / count) + (fit.n_params + extra) * math.log(count)
+    return count * math.log(sse / count) + float(np.log(r).sum()) + k * math.log(count)
 
 
-def rank_across_differencing(groups: Mapping[tuple[int, int], list[CandidateFit]], criterion: str = DEFAULT_CRITERION
-                             ) -> list[CandidateFit]:
-    """Rank the candidates of each differencing (D, d), then put the group whose leader predicts
-    the levels best first (:func:`common_level_bic`); a group whose leader is demoted
-    (:func:`is_demoted`) goes after those whose leader is not.
+def final_window(size: int, m: int, errors: Iterable[np.ndarray]) -> np.ndarray:
+    """The last ``m`` of ``size`` points where every one of ``errors`` is present."""
+    window = np.zeros(size, dtype=bool)
+    if m > 0:
+        window[-m:] = True
+    for e in errors:
+        window &= ~np.isnan(e)
+    return window
+
+
+def rank_across_differencing(groups: Mapping[tuple[int, int], list[CandidateFit]], y: np.ndarray,
+                             criterion: str = DEFAULT_CRITERION) -> list[CandidateFit]:
+    """Rank the candidates of each differencing (D, d), fitted to the levels ``y``, then put
+    the group whose leader predicts the levels best first (:func:`common_level_bic`); a group
+    whose leader is demoted (:func:`is_demoted`) goes after those whose leader is not.
 
     The comparison runs over the final points where every group has a prediction error. When
     the groups differ in D it also leaves out the first season of those: a seasonally
@@ -137,8 +186,10 @@ def rank_across_differencing(groups: Mapping[tuple[int, int], list[CandidateFit]
     seasonal_start = max(f.model.s * f.model.D for fits in ranked.values() for f in fits)
     start_differs = len({D for D, _ in ranked}) > 1
     m = min(f.residuals.size for fits in ranked.values() for f in fits) - 1 - (seasonal_start if start_differs else 0)
-    present = np.logical_and.reduce([~np.isnan(fits[0].residuals[-m:]) for fits in ranked.values()])
-    order = sorted(ranked, key=lambda key: (is_demoted(ranked[key][0]), common_level_bic(ranked[key][0], m, present)))
+    errors = {key: level_errors(fits[0], y) for key, fits in ranked.items()}
+    window = final_window(y.size, m, (e for e, _ in errors.values()))
+    order = sorted(ranked, key=lambda key: (is_demoted(ranked[key][0]),
+                                            common_level_bic(*errors[key], ranked[key][0].n_params, window)))
     return [fit for key in order for fit in ranked[key]]
 
 

@@ -31,6 +31,8 @@ from app.core.likelihood import ArmaSpec
 from app.core.order import Order
 from app.core.ranking import (
     common_level_bic,
+    final_window,
+    level_errors,
     likelihood_ratio_p,
     margin_to_rival,
     rank_across_differencing,
@@ -185,8 +187,14 @@ def test_groups_of_different_seasonal_differences_are_compared_after_the_seasona
     differenced_errors[:s] *= 2.0
     plain = replace(fits["wn"], model=Order(1, 1, 0, 1, 0, 0, s), residuals=plain_errors, n_params=4)
     differenced = replace(fits["wn"], model=Order(0, 1, 1, 0, 1, 1, s), residuals=differenced_errors, n_params=3)
-    ranked = rank_across_differencing({(0, 1): [plain], (1, 1): [differenced]})
+    y = np.zeros(n)  # complete, so the level errors are the residuals (level_errors)
+    ranked = rank_across_differencing({(0, 1): [plain], (1, 1): [differenced]}, y)
     assert ranked[0] is differenced
+    errors = {fit.model: level_errors(fit, y) for fit in (plain, differenced)}
+
+    def bic(fit, m):
+        return common_level_bic(*errors[fit.model], fit.n_params, final_window(n, m, (e for e, _ in errors.values())))
+
     m = differenced_errors.size - 1
-    assert common_level_bic(differenced, m) > common_level_bic(plain, m), "precondition: with the start-up in it, D = 1 loses"
-    assert common_level_bic(differenced, m - s) < common_level_bic(plain, m - s)
+    assert bic(differenced, m) > bic(plain, m), "precondition: with the start-up in it, D = 1 loses"
+    assert bic(differenced, m - s) < bic(plain, m - s)
