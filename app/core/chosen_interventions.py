@@ -87,6 +87,12 @@ def _position(series_id: str, index: pd.Index, stamp: str) -> int:
     return int(found)
 
 
+def _written(stamp: object, text: str) -> bool:
+    """Whether ``text`` is how :func:`app.core.prepare.moment_in` writes ``stamp``, with or
+    without a midnight time (results stored before an hourly series' midnights kept theirs)."""
+    return text in (moment(stamp), moment(stamp, time_of_day=True))
+
+
 def relocated(series_id: str, index: pd.Index, interventions: Sequence[Intervention]) -> list[Intervention]:
     """Stored interventions on the series' present time index: each kept at its time stamp,
     which a change of the data before it (an earlier start) moves to another position.
@@ -98,10 +104,10 @@ def relocated(series_id: str, index: pd.Index, interventions: Sequence[Intervent
     """
     out = []
     for found in interventions:
-        if found.position < len(index) and moment(index[found.position]) == found.timestamp:
+        if found.position < len(index) and _written(index[found.position], found.timestamp):
             out.append(found)
             continue
-        matches = [k for k, stamp in enumerate(index) if moment(stamp) == found.timestamp]
+        matches = [k for k, stamp in enumerate(index) if _written(stamp, found.timestamp)]
         if not matches:
             raise OrderError(f"series {series_id!r}: the {found.kind.words()} decided at {found.timestamp} "
                              "is no longer a time of this series")

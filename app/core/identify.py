@@ -78,6 +78,7 @@ from app.core.seasonality import (
     SeasonalDifferencing,
     choose_seasonal_differencing,
     default_period,
+    exact_repeat,
     seasonal_lags,
     seasonal_structure_present,
     validate_period,
@@ -554,6 +555,10 @@ def _differencing(series_id: str, y: np.ndarray, period: int | None, period_word
     """The seasonal setup and the ordinary differencing decision of ``y`` for each D its
     seasonal differencing decision ``chosen`` (None without a period) leaves open, the
     decision's own D first."""
+    repeat = exact_repeat(y)
+    if repeat is not None:
+        raise SeriesProblem(series_id, f"repeats itself exactly every {repeat} points: after a difference at that lag "
+                            "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
     setups: dict[int, tuple[SeasonalSetup, DifferencingDecision]] = {}
     for D in chosen.choices if chosen else (0,):
         differencing = replace(chosen, D=D) if chosen else None
@@ -562,9 +567,6 @@ def _differencing(series_id: str, y: np.ndarray, period: int | None, period_word
             seasonal.words += differencing.explanation
             seasonal.flags += differencing.flags
         w = seasonal_difference(y, period, D)
-        if D and np.ptp(w[~np.isnan(w)]) == 0.0:
-            raise SeriesProblem(series_id, f"repeats itself exactly every {period} points: after the seasonal difference "
-                                "nothing is left for an ARIMA model to describe", flag="exactly_periodic")
         setups[D] = (seasonal, choose_differencing(w, seasonally_differenced=D > 0))
     return setups
 
@@ -731,9 +733,12 @@ def _shift_instead(prepared: PreparedSeries, y: np.ndarray, first: _Identified, 
     shift into, when that model with them predicts the levels better than the leader with its
     own (``found``) (:func:`_shift_predicts_better`); empty when there is no such model.
 
-    A level shift makes a stationary series look integrated (Perron 1989), and under a
-    differenced model it is only one step: when the unit-root tests left d open, the stationary
-    alternative (one difference fewer) is searched for a shift. A shift also looks like a linear
+    A level shift makes a stationary series look integrated (Perron 1989: the unit-root tests
+    then fail to reject), and under a differenced model it is only one step: the stationary
+    alternative of a differenced leader (one difference fewer) is searched for a shift, whatever
+    the tests said. (Searched only when the tests had left d open, a shift of 4 SDs right after
+    five missing points of an AR(1) was found in none of 20 seeded series, with it in 19; on
+    the real benchmark no order changed.) A shift also looks like a linear
     trend to a stationary model with one (Perron 1989's "crash" against "changing growth"), and
     an autoregression with a root pulled towards 1 absorbs the step: such a leader is searched
     again without its trend, and, when that reads no shift either, as a mean alone (the Nile's
@@ -749,7 +754,7 @@ def _shift_instead(prepared: PreparedSeries, y: np.ndarray, first: _Identified, 
        problem. *Biometrika* 65, 243-251.
     """
     model = first.ranked[0].model
-    if model.d and model.d - 1 in (first.decision.d, first.decision.alternative_d):
+    if model.d:
         alternatives = [_one_difference_less(model)]
     elif model.d + model.D == 0 and model.trend == "ct":
         alternatives = [replace(model, trend="c"), Order(0, 0, 0, trend="c")]

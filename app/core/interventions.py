@@ -62,7 +62,7 @@ from app.core.analysis import Intervention
 from app.core.fitting import difference, trend_design
 from app.core.likelihood import ArmaFit, fit_arma
 from app.core.order import Order
-from app.core.prepare import moment
+from app.core.prepare import moment_in
 from app.core.residual_outliers import FAMILY_LEVEL, outlier_threshold, robust_scale
 from app.core.vocabulary import InterventionKind
 
@@ -385,8 +385,9 @@ def sized_interventions(
     y = np.asarray(y, dtype=float)
     for position, kind in placed:
         if not identifiable(y, model, kind, position):
-            raise ValueError(f"the {kind.words()} at {moment(index[position])} reaches no observed point once the series "
-                             f"is differenced for {model.label()} (the points around it are missing), so its size cannot be estimated")
+            why = "the points around it are missing" if np.isnan(y).any() else "the differencing uses up the points it reaches"
+            raise ValueError(f"the {kind.words()} at {moment_in(index, position)} reaches no observed point once the series "
+                             f"is differenced for {model.label()} ({why}), so its size cannot be estimated")
     columns = [effect_column(kind, position, y.size) for position, kind in placed]
     _refuse_the_same_effect(y, model, placed, columns, index)
     fit = _fit(y, model, columns, np.zeros(0) if start is None else start)
@@ -394,7 +395,7 @@ def sized_interventions(
     sizes = fit.beta[n_trend:]
     errors = fit.regression_standard_errors[n_trend:]
     return [
-        Intervention(position, moment(index[position]), kind, float(size),
+        Intervention(position, moment_in(index, position), kind, float(size),
                      float(size / error) if np.isfinite(error) and error > 0 else float("nan"))
         for (position, kind), size, error in zip(placed, sizes, errors)
     ]
@@ -413,8 +414,8 @@ def _refuse_the_same_effect(y: np.ndarray, model: Order, placed: Sequence[tuple[
     for i, (position, kind) in enumerate(placed):
         grown = np.column_stack([before, design[:, i]])
         if np.linalg.matrix_rank(grown) <= (np.linalg.matrix_rank(before) if before.shape[1] else 0):
-            others = [f"the {k.words()} at {moment(index[p])}" for p, k in placed[:i]] + (["the mean or drift"] if trend is not None else [])
-            raise ValueError(f"the {kind.words()} at {moment(index[position])} has the same effect on {model.label()} as "
+            others = [f"the {k.words()} at {moment_in(index, p)}" for p, k in placed[:i]] + (["the mean or drift"] if trend is not None else [])
+            raise ValueError(f"the {kind.words()} at {moment_in(index, position)} has the same effect on {model.label()} as "
                              f"{' and '.join(others) or 'nothing'}, so its size cannot be estimated apart from theirs; leave one out")
         before = grown
 

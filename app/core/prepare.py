@@ -343,7 +343,7 @@ _MONTHS = tuple(pd.date_range("2024-01-01", periods=12, freq="MS").month_name())
 def frequency_words(freq: str, anchored: bool = True) -> str:
     """A sampling frequency as :func:`prepare_series` reports it (a pandas offset alias,
     ``"step"`` or ``"N steps"``) in plain words, for every message and page that names it:
-    ``MS`` -> "monthly", ``W-SUN`` -> "weekly (weeks ending Sunday)", ``15min`` -> "every 15
+    ``MS`` -> "monthly", ``W-SUN`` -> "weekly (on Sundays)", ``15min`` -> "every 15
     minutes", ``ME`` -> "monthly (month ends)", ``"3 steps"`` -> "every 3 steps"; without
     ``anchored`` (a narrow list column) the words in brackets are left out. The words read
     after "sampled". A code this pandas does not read (an alias of an older pandas) is named as
@@ -372,10 +372,12 @@ def frequency_words(freq: str, anchored: bool = True) -> str:
 
 def _anchor_words(offset: pd.offsets.BaseOffset) -> str:
     """Where the steps of a calendar ``offset`` fall when that is not the plain calendar's
-    (weeks ending Sunday, month ends, quarters starting in February ...); empty for days and for
+    (on Sundays, month ends, quarters starting in February ...); empty for days and for
     month, quarter and year starts."""
     if isinstance(offset, pd.offsets.Week):
-        return f"weeks ending {_WEEKDAYS[offset.weekday]}" if offset.weekday is not None else ""
+        # The stamps' weekday only: a week stamped on a Monday may be one that starts there (an
+        # ISO week, read as its Monday) or one that ends there.
+        return f"on {_WEEKDAYS[offset.weekday]}s" if offset.weekday is not None else ""
     start = isinstance(offset, _STARTS)
     if isinstance(offset, QUARTER_OFFSETS):
         unit, months = "quarter", sorted((offset.startingMonth - 1 + 3 * k) % 12 + 1 for k in range(4))

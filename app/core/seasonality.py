@@ -267,6 +267,28 @@ def _strength(var_remainder: float, var_component_remainder: float) -> float:
     return max(0.0, 1.0 - var_remainder / var_component_remainder)
 
 
+def exact_repeat(x: np.ndarray) -> int | None:
+    """The smallest ``k`` from 2 to ``n / 2`` for which the series repeats itself exactly every
+    ``k`` points (``x[t] == x[t - k]`` at every pair present, missing points skipped), or None.
+
+    Such a series has nothing left for an ARIMA model once differenced at lag ``k``, and before
+    that it breaks the tests: statsmodels' KPSS bandwidth came out infinite on 21 monthly points
+    repeating every 3. Lags are tried only where the first observed value comes back, so the
+    check costs one pass over the series and one comparison per such lag.
+    """
+    present = np.flatnonzero(~np.isnan(x))
+    if present.size < 4:
+        return None
+    first, n = int(present[0]), x.size
+    later = x[first + 2:first + n // 2 + 1]
+    for k in np.flatnonzero(later == x[first]) + 2:
+        a, b = x[k:], x[:-k]
+        pairs = ~np.isnan(a) & ~np.isnan(b)
+        if pairs.sum() >= k and np.array_equal(a[pairs], b[pairs]):
+            return int(k)
+    return None
+
+
 def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalDifferencing:
     """Decide whether to difference once at lag ``period`` (D = 1) or not (D = 0).
 

@@ -86,3 +86,16 @@ def test_a_stored_intervention_follows_its_time_when_earlier_data_arrive(flow):
     assert relocated("nile", later, [stored])[0].position == 23
     with pytest.raises(OrderError, match="no longer a time of this series"):
         relocated("nile", flow.index[30:], [stored])
+
+
+def test_an_hourly_intervention_at_midnight_keeps_its_hour_and_older_stamps_still_match():
+    # Found by a new user: "level shift at 2024-03-10" on an hourly series, where every other
+    # stamp reads with its hour. Stored results written that way must still find their hour.
+    index = pd.date_range("2024-03-09 12:00", periods=48, freq="h")
+    y = np.random.default_rng(4).standard_normal(48) + 5.0 * (np.arange(48) >= 12)
+    placed = place_interventions("h", index, y, [{"timestamp": "2024-03-10 00:00", "kind": "level_shift"}])
+    [found] = sized_interventions(y, validate_order([0, 0, 0], None), placed, index)
+    assert (found.position, found.timestamp) == (12, "2024-03-10 00:00")
+    later = index[2:]  # the data now start two hours later: each kept at its time
+    older = Intervention(12, "2024-03-10", InterventionKind.LEVEL_SHIFT, found.size, found.t_stat)
+    assert [i.position for i in relocated("h", later, [found, older])] == [10, 10]

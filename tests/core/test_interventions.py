@@ -279,6 +279,23 @@ def test_a_shift_read_under_the_stationary_alternative_must_predict_better():
     assert np.mean([r.suggested.model.d == 0 for r in shifted]) >= 0.75
 
 
+def test_a_level_shift_right_after_a_gap_is_found_by_the_engine_not_read_as_a_unit_root():
+    # The same series as above, through the whole engine: the tests read the gap and the shift
+    # as a unit root (Perron 1989) and took d = 1 in 19 of 20; the stationary alternative is
+    # now searched for a shift whatever the tests said, and across the gap the two compete on
+    # their level errors (app.core.ranking.level_errors).
+    rng = np.random.default_rng(65)
+    found = 0
+    for _ in range(20):
+        y = 10.0 + _ar1(rng, 144)
+        y[60:65] = np.nan
+        y += 4.0 * effect_column(InterventionKind.LEVEL_SHIFT, 65, 144)
+        result = identify_series(pd.Series(y, index=pd.date_range("2000-01-01", periods=144, freq="D")), "shift")
+        found += result.suggested.model.d == 0 and any(
+            i.kind is InterventionKind.LEVEL_SHIFT and abs(i.position - 65) <= 1 for i in result.interventions)
+    assert found >= 16
+
+
 def _spike_between_two_gaps() -> pd.Series:
     """A daily random walk with a spike on a point whose neighbours are both missing: once
     differenced, no observed difference reaches that point."""

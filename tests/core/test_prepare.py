@@ -239,7 +239,7 @@ def test_a_date_reads_without_a_midnight_time_only_when_the_series_has_no_times_
 
 @pytest.mark.parametrize(("freq", "words"), [
     ("D", "daily"), ("h", "hourly"), ("15min", "every 15 minutes"), ("2D", "every 2 days"),
-    ("B", "every business day"), ("W-SUN", "weekly (weeks ending Sunday)"), ("W-WED", "weekly (weeks ending Wednesday)"),
+    ("B", "every business day"), ("W-SUN", "weekly (on Sundays)"), ("W-WED", "weekly (on Wednesdays)"),
     ("MS", "monthly"), ("ME", "monthly (month ends)"), ("BMS", "monthly (first business day of the month)"),
     ("QS-JAN", "quarterly"), ("QE-DEC", "quarterly (quarter ends)"),
     ("QS-FEB", "quarterly (quarters starting in February, May, August and November)"),
@@ -267,7 +267,7 @@ def test_the_grid_messages_name_the_frequency_in_words_and_dates_without_a_midni
     with pytest.raises(SeriesProblem) as sparse:
         prepare_series(pd.Series(np.arange(13.0), index=weeks[:3].append(weeks[30:])), "w")
     assert sparse.value.flag == "mostly_gaps"
-    assert "on a grid of 40 points, sampled weekly (weeks ending Sunday): most of the grid" in str(sparse.value)
+    assert "on a grid of 40 points, sampled weekly (on Sundays): most of the grid" in str(sparse.value)
     for problem in (off.value, sparse.value):
         assert not any(code in str(problem) for code in ("00:00", "MS", "W-SUN")), problem
 

@@ -13,7 +13,7 @@ from statsmodels.tsa.seasonal import STL
 from statsmodels.tsa.stattools import acf
 
 from app.core.defaults import AUTO_PERIOD
-from app.core.errors import OrderError
+from app.core.errors import OrderError, SeriesProblem
 from app.core.identify import identify_series, resolve_period
 from app.core.prepare import prepare_series
 from app.core.seasonality import (
@@ -22,6 +22,7 @@ from app.core.seasonality import (
     SIGN_LEVEL,
     choose_seasonal_differencing,
     default_period,
+    exact_repeat,
     season_in_differences,
     seasonal_lags,
     seasonal_strength,
@@ -245,7 +246,7 @@ def test_the_period_read_from_the_frequency_names_the_frequency_in_words():
 
     assert resolve_period(prepared("MS"), AUTO_PERIOD) == (12, ["Seasonal period 12 from the sampling frequency: monthly."])
     assert resolve_period(prepared("W-SUN"), AUTO_PERIOD) == (None, [
-        "Sampled weekly (weeks ending Sunday), the series is shorter than one season (52 points): treated as non-seasonal."])
+        "Sampled weekly (on Sundays), the series is shorter than one season (52 points): treated as non-seasonal."])
 
 
 @pytest.mark.parametrize("period", [0, 1, -4, 60, 75])
@@ -335,3 +336,24 @@ def test_a_season_repeated_almost_exactly_is_analysed_without_its_stability_test
     assert 1 in decision.choices and decision.stability is None
     assert any("Canova-Hansen test of seasonal stability cannot be computed" in line for line in decision.explanation)
     assert identify_series(series, "near-periodic").candidates
+
+
+def test_a_series_that_repeats_itself_exactly_is_refused_by_its_repeat_whatever_the_season():
+    # Found by a new user: 21 monthly points repeating every 3 ended in statsmodels' KPSS with
+    # "cannot convert float infinity to integer" (its bandwidth rule divides by a zero variance),
+    # and a repeat of 7 in monthly data, which no seasonal difference at 12 removes, got a weak
+    # ARIMA(3,0,5) and a screen of singular-matrix warnings.
+    for k, n in ((3, 21), (7, 100)):
+        y = pd.Series([float(i % k) * 1.5 + 50.0 for i in range(n)], index=pd.date_range("2020-01-01", periods=n, freq="MS"))
+        with pytest.raises(SeriesProblem, match=f"repeats itself exactly every {k} points") as raised:
+            identify_series(y, "repeat")
+        assert raised.value.flag == "exactly_periodic"
+
+
+def test_exact_repeat_skips_missing_points_and_ignores_a_near_repeat():
+    x = np.tile([3.0, 1.0, 4.0, 1.0, 5.0], 12)
+    x[[7, 30]] = np.nan
+    assert exact_repeat(x) == 5
+    x[40] += 1e-9  # one value off: no longer an exact repeat
+    assert exact_repeat(x) is None
+    assert exact_repeat(np.random.default_rng(0).standard_normal(200)) is None
