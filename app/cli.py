@@ -690,7 +690,7 @@ def intervention_option(text: str) -> dict[str, str]:
 
 def run_decide(args: argparse.Namespace) -> int:
     from app.review.bulk import approve_firm
-    from app.review.decisions import ConfirmationNeeded, decide, verdict_of
+    from app.review.decisions import ConfirmationNeeded, OverrideNeeded, decide, verdict_of
     from app.review.filters import SeriesFilter
     from app.store.database import open_database
     from app.web.deps import clean_reviewer
@@ -737,8 +737,19 @@ def run_decide(args: argparse.Namespace) -> int:
             )
         except ConfirmationNeeded as exc:
             raise LagdeskError(f"{exc} with --confirm") from None
+        except OverrideNeeded as exc:
+            raise LagdeskError(f"{exc}; what you gave, as an override: {override_command(args.argv, args.series_id)}") from None
     _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
     return 0
+
+
+def override_command(argv: Sequence[str], series_id: str) -> str:
+    """The ``decide SERIES_ID approve ...`` command line ``argv`` (after the program) as the same
+    command with the action ``override``, every other argument as given, ready to paste."""
+    words = list(argv)
+    action = next(i for i, word in enumerate(words) if i > words.index(series_id) and word == "approve")
+    words[action] = "override"
+    return typed_command(shlex.join(words))
 
 
 def verdict_line(series_id: str, verdict: dict) -> str:
@@ -911,6 +922,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _run(parser: argparse.ArgumentParser, argv: Sequence[str] | None) -> int:
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     try:
         return args.handler(args)
     except BrokenPipeError:

@@ -22,7 +22,8 @@ For each order it
 1. takes the series' rows up to the export's ``last_timestamp`` (the data the parameters were
    fitted on) and puts them on their regular time grid; inner gaps stay missing, as in
    Lagdesk's fits (the state-space model skips them exactly, nothing is invented); timestamps
-   with UTC offsets are read as Lagdesk reads them (:func:`read_timestamps`);
+   with UTC offsets, and months, quarters and ISO weeks without a day, are read as Lagdesk
+   reads them (:func:`read_timestamps`);
 2. applies the export's ``transform`` (``none``, ``log`` or ``{"box_cox": lambda}``) and takes
    the effects of the export's ``interventions`` out of the transformed series (version 3);
 3. builds the statsmodels ``ARIMA`` model of ``(p, d, q)(seasonal_p, seasonal_d, seasonal_q)
@@ -43,8 +44,10 @@ from __future__ import annotations
 import argparse
 import csv
 import json
+import re
 import sys
 import warnings
+from datetime import date
 from pathlib import Path
 
 import numpy as np
@@ -95,14 +98,43 @@ def series_up_to(frame: pd.DataFrame, order: dict) -> pd.Series:
 UTC_OFFSET = r"\s?(?:[Zz]|[+-]\d\d:?\d\d)$"
 
 
+# Months, quarters and ISO weeks written without a day (Lagdesk's README, "Dates").
+QUARTER = re.compile(r"^(?:(\d{4})\s?-?Q([1-4])|Q([1-4])\s(\d{4}))$")
+ISO_WEEK = re.compile(r"^(\d{4})[- ]W(\d{2})$")
+MONTH_FORMATS = ("%b %Y", "%B %Y", "%Y %b", "%Y %B", "%b-%Y", "%B-%Y", "%Y/%m", "%m/%Y", "%YM%m")
+
+
 def read_timestamps(texts: pd.Series) -> pd.Series:
-    """The timestamps as Lagdesk stores them (its README, "Dates"): with UTC offsets on clock
-    times that vary (hourly readings), the instants in UTC; otherwise the clock time as written,
-    any offset dropped (dates at midnight keep their local date)."""
+    """The timestamps as Lagdesk stores them (its README, "Dates"): a month, quarter or ISO week
+    written without a day as the first day of its period (a week as its Monday); with UTC
+    offsets on clock times that vary (hourly readings), the instants in UTC; otherwise the clock
+    time as written, any offset dropped (dates at midnight keep their local date)."""
+    starts = _period_starts(texts.str.strip())
+    if starts is not None:
+        return starts
     local = pd.to_datetime(texts.str.replace(UTC_OFFSET, "", regex=True))
     if (local - local.dt.normalize()).nunique() > 1:
         return pd.to_datetime(texts, utc=True).dt.tz_localize(None)
     return local
+
+
+def _period_starts(texts: pd.Series) -> pd.Series | None:
+    """The first days of the periods ``texts`` name when every one is a quarter, an ISO week or
+    a month without a day in one of Lagdesk's layouts; None otherwise."""
+    quarters = texts.str.extract(QUARTER)
+    if quarters.notna().any(axis=1).all():
+        year = quarters[0].fillna(quarters[3]).astype(int)
+        quarter = quarters[1].fillna(quarters[2]).astype(int)
+        return pd.to_datetime(pd.DataFrame({"year": year, "month": 3 * quarter - 2, "day": 1}))
+    weeks = texts.str.extract(ISO_WEEK)
+    if weeks.notna().all(axis=1).all():
+        return pd.Series([pd.Timestamp(date.fromisocalendar(int(y), int(w), 1)) for y, w in weeks.itertuples(index=False)],
+                         index=texts.index)
+    for layout in MONTH_FORMATS:
+        months = pd.to_datetime(texts, format=layout, errors="coerce")
+        if months.notna().all():
+            return months
+    return None
 
 
 def _frequency(index: pd.DatetimeIndex) -> str:

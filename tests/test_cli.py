@@ -681,6 +681,21 @@ def test_decide_override_stores_the_order_given_and_json_prints_the_stored_verdi
         "pending", "overridden", order, seasonal, "bob", "a season of four")
 
 
+def test_a_refused_approval_prints_the_override_that_runs_as_printed(run_cli, decide_db):
+    # Found by a new user: the command printed had a placeholder reviewer, no --db or --note, and
+    # words in place of the options given. It is now the command typed, with override for approve.
+    code, out, err = run_cli("decide", "north/a", "approve", "--order", "1,0,0", "--seasonal", "1,0,0,4", "--reviewer", "bob",
+                             "--note", "a season of four", "--transform", "none", "--db", decide_db)
+    assert (code, out) == (2, "")
+    command = shlex.split(err.split("what you gave, as an override: ")[1])
+    assert Path(command[0]).name == "lagdesk" or command[0] == "lagdesk"
+    code, out, err = run_cli(*command[1:])
+    assert (code, err) == (0, "")
+    [row] = _read(decide_db, verdict_history, "north/a")
+    assert (row["status"], row["order"], row["seasonal_order"], row["reviewer"], row["note"]) == (
+        "overridden", [1, 0, 0], [1, 0, 0, 4], "bob", "a season of four")
+
+
 def test_decide_with_a_stale_version_is_refused_in_one_line_and_changes_nothing(run_cli, decide_db):
     assert run_cli("decide", "north/b", "approve", "--reviewer", "ann", "--db", decide_db)[0] == 0
     before = _snapshot(decide_db)
@@ -768,7 +783,7 @@ def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(
         (["north/a", "approve", "--reviewer", "  "], "--reviewer NAME is required"),
         (["north/a", "--reviewer", "ann"], "give a series id and an action"),
         (["north/a", "override", "--reviewer", "ann"], "override needs the order: --order p,d,q"),
-        (["north/a", "approve", "--order", "5,0,5", "--reviewer", "ann"], "to save ARIMA(5,0,5), override instead (command line: lagdesk decide north/a override --order 5,0,5"),
+        (["north/a", "approve", "--order", "5,0,5", "--reviewer", "ann"], "to save ARIMA(5,0,5), override instead; what you gave, as an override: "),
         (["north/a", "override", "--order", "11,0,0", "--reviewer", "ann"], "p = 11 is outside 0..10"),
         (["north/a", "park", "--seasonal", "0,1,1,12", "--reviewer", "ann"], "--seasonal goes with --order"),
         (["north/a", "pending", "--order", "1,0,0", "--reviewer", "ann"], "give no --order"),

@@ -160,6 +160,9 @@ def test_the_consumer_carries_a_level_shift_into_the_forecasts(exported):
     # dates at midnight keep their local date
     ["2024-03-30T00:00:00+01:00", "2024-03-31T00:00:00+02:00", "2024-04-01T00:00:00+02:00"],
     ["2024-01-01 00:00", "2024-01-01 06:00", "2024-01-01 12:00"],
+    # periods without a day (found by a new user: the consumer failed on "2008 Q1")
+    ["2008 Q1", "2008 Q2", "2008 Q3"], ["Q4 2008", "Q1 2009", "Q2 2009"], ["2020-W53", "2021-W01", "2021-W02"],
+    ["Jan 2024", "Feb 2024", "Mar 2024"], ["2024M11", "2024M12", "2025M01"],
 ])
 def test_the_consumer_reads_timestamps_as_lagdesk_stores_them(tmp_path, stamps):
     spec = importlib.util.spec_from_file_location("consumer", CONSUMER)

@@ -37,6 +37,6 @@ def identify_task(task: SeriesTask) -> SeriesOutcome:
         return SeriesOutcome(task.series_id, problem=problem.to_dict())
     except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         # A numerical failure inside a fit must cost this series only, never the whole run.
-        failure = SeriesProblem(task.series_id, f"analysis failed ({type(exc).__name__}: {exc})", flag="analysis_error")
+        failure = SeriesProblem(task.series_id, f"an internal error ({type(exc).__name__}: {exc})", flag="analysis_error")
         return SeriesOutcome(task.series_id, problem=failure.to_dict())
     return SeriesOutcome(task.series_id, result=found.to_analysis())

@@ -7,7 +7,6 @@ saved from a form, sent by a script or typed in a terminal is checked the same w
 
 from __future__ import annotations
 
-import shlex
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 
@@ -40,6 +39,11 @@ class DecisionError(LagdeskError):
     """A decision that contradicts the analysis (e.g. 'approved' with an order that was not suggested)."""
 
 
+class OverrideNeeded(DecisionError):
+    """An approval of something other than the suggestion: what was given can be saved as an
+    override; each client says how in its own terms (the command line prints the command)."""
+
+
 class ConfirmationNeeded(DecisionError):
     """A decision that needs ``confirm``: an order whose residuals fail the Ljung-Box test at 1%, or
     the suggestion of an analysis of earlier data."""
@@ -63,16 +67,6 @@ class CustomFit:
     def to_dict(self) -> dict:
         return {**self.candidate.to_dict(), "interventions": [i.to_dict() for i in self.interventions],
                 "interventions_chosen": self.chosen}
-
-
-def override_words(series_id: str, model: Order | None = None, options: str = "") -> str:
-    """How to save what the suggestion is not, as each client names it: the action ``override``
-    of ``lagdesk decide`` (with ``model``'s order, or placeholders, then ``options``, the words
-    of the options that change what a refusal names) and the status 'overridden' of the API."""
-    order = "--order p,d,q" if model is None else f"--order {','.join(map(str, model.order))}" + (
-        f" --seasonal {','.join(map(str, model.seasonal_order))}" if model.period else "")
-    command = f"lagdesk decide {shlex.quote(series_id)} override {order} --reviewer NAME{f' {options}' if options else ''}"
-    return f"override instead (command line: {command}; API: status 'overridden' with the order)"
 
 
 def checked_note(note: str) -> str:
@@ -346,16 +340,16 @@ def decide(
                            reviewer=reviewer, version=version)
     if status == VerdictStatus.APPROVED:
         if analysis is None:
-            raise DecisionError(f"series {series_id!r} has no analysis, so no suggestion to approve; give an order and "
-                                f"{override_words(series_id)}")
+            raise OverrideNeeded(f"series {series_id!r} has no analysis, so no suggestion to approve; give an order "
+                                 "and override instead")
         suggested = analysis.suggested.order
         if order is None:
             order, seasonal_order = suggested.order, suggested.seasonal_order
         elif not suggested.same_orders(order, seasonal_order):
             other = validate_order(order, seasonal_order)
-            raise DecisionError(
+            raise OverrideNeeded(
                 f"series {series_id!r}: approving takes the suggested {suggested.label()}; to save {other.label()}, "
-                f"{override_words(series_id, other)}"
+                "override instead"
             )
     if status == VerdictStatus.OVERRIDDEN and order is None:
         raise OrderError("an overridden verdict needs an order [p, d, q]")
@@ -374,15 +368,14 @@ def decide(
     if status == VerdictStatus.APPROVED:
         assert analysis is not None
         if chosen is not None:
-            raise DecisionError(
+            raise OverrideNeeded(
                 f"series {series_id!r}: approving takes the suggested {analysis.suggested.label} with the analysis' "
-                f"interventions; to change them, {override_words(series_id, model, 'plus --intervention TIME=KIND or --no-interventions')}"
+                "interventions; to change them, override instead"
             )
         if candidate is None or candidate.order != analysis.suggested.order:
-            raise DecisionError(
+            raise OverrideNeeded(
                 f"series {series_id!r}: approving takes the suggested {analysis.suggested.label} on the analysis' scale "
-                f"({analysis.transform.name()}) with its own constant; to change them, "
-                f"{override_words(series_id, model, 'plus --transform, --constant or --no-constant')}"
+                f"({analysis.transform.name()}) with its own constant; to change them, override instead"
             )
         risks = approval_risks(candidate, analysis.flags)
         if risks and not note.strip():

@@ -535,6 +535,20 @@ def test_bulk_approval_lists_the_whole_model_each_series_would_get(client, db, r
     assert "(log, with a drift, 1 level shift)" in item
 
 
+def test_bulk_approval_beyond_its_preview_links_to_the_queue_of_every_series_it_takes(client, monkeypatch, results):
+    # Found by a new user: "... and 29 more" with no way to see their models before approving.
+    import app.web.routes.pages as pages
+
+    firm = [sid for sid, r in results.items() if r.confidence == Confidence.FIRM]
+    monkeypatch.setattr(pages, "BULK_PREVIEW", 1)
+    assert len(firm) > 1, "precondition: more firm series than the preview shows"
+    text = client.get("/approve-firm").text
+    link = re.search(r'<a href="([^"]+)" data-all-firm>(\d+) more in the queue</a>', text)
+    assert link and int(link.group(2)) == len(firm) - 1
+    assert "status=pending" in link.group(1) and "confidence=firm" in link.group(1)
+    assert "The first 1 are listed below" in text
+
+
 # --- upload and runs ---------------------------------------------------------------------------
 
 def test_upload_page_imports_and_reports(client, tmp_path):

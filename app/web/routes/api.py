@@ -26,7 +26,7 @@ from app.core.backtest import DEFAULT_ORIGINS
 from app.core.series_ids import MAX_ID_LENGTH
 from app.jobs.analyze import start_background_analysis
 from app.review.bulk import approve_firm, park, undo_bulk_approval, waiting_ids
-from app.review.decisions import MAX_NOTE_LENGTH, decide, fit_custom_order
+from app.review.decisions import MAX_NOTE_LENGTH, OverrideNeeded, decide, fit_custom_order
 from app.review.export import build_orders_document, parse_statuses
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import MAX_ORIGINS, MIN_HORIZON_CAP, backtest_series
@@ -309,12 +309,15 @@ def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
     """Record a decision; refused with 409 (and the current verdict) when ``version`` is not
     current, before any fit the decision needs. Saving takes no computation slot: a reviewer's
     save is never told the server is busy, and the version stops a stale one fitting."""
-    return decide(
-        db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
-        note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
-        transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
-        confirm=body.confirm,
-    )
+    try:
+        return decide(
+            db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
+            note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
+            transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
+            confirm=body.confirm,
+        )
+    except OverrideNeeded as exc:
+        raise OverrideNeeded(f"{exc}: send the status 'overridden' with the same fields") from None
 
 
 @router.post("/series/{series_id:path}/fit")
