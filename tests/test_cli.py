@@ -649,7 +649,7 @@ def test_decide_approve_records_the_suggestion_and_a_history_row(run_cli, decide
                              "--db", decide_db)
 
     assert (code, err) == (0, "")
-    constant = "with constant" if suggested.trend != "n" else "without constant"
+    constant = suggested.term_words().strip() or "without a constant"
     assert out.splitlines() == [f"north/b: approved {suggested.label()} ({constant}) (version 1, by Ann Lee)"]
     verdict = _read(decide_db, get_verdict, "north/b")
     analysis = _read(decide_db, load_analysis, "north/b")

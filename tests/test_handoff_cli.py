@@ -196,7 +196,7 @@ def test_decide_takes_the_reviewers_interventions_and_the_export_carries_them(ru
     # The line printed names what was decided besides the orders: scale, constant, interventions.
     code, out, err = run_cli("decide", SID, "override", "--order", "0,0,0", "--no-constant", "--no-interventions", "--confirm",
                            "--reviewer", "ann", "--db", db_path)
-    assert code == 0 and out.startswith(f"{SID}: overridden ARIMA(0,0,0) (without constant, interventions: none) (version "), err
+    assert code == 0 and out.startswith(f"{SID}: overridden ARIMA(0,0,0) (without a constant, interventions: none) (version "), err
     with pytest.raises(SystemExit) as refused:  # argparse's own refusal of a malformed value
         run_cli("decide", SID, "override", "--order", "0,0,0", "--intervention", "2020-01-06", "--reviewer", "ann")
     assert refused.value.code == 2

@@ -361,9 +361,11 @@ def backtest_order(
     shortest = minimum_training(model, m)
     count = min(wanted, (y.size - shortest) // h)
     if count < 1:
+        shorter = (y.size - shortest) if y.size > shortest else 0
         raise OrderError(
             f"series {prepared.series_id!r}: {y.size} observations are too few for a forecast check of "
-            f"{model.label()} {h} steps ahead (needs at least {shortest + h})"
+            f"{model.label()} with a horizon of {h} steps (needs at least {shortest + h})"
+            + (f"; a horizon of at most {shorter} steps fits" if shorter >= 1 else "")
         )
     notes = []
     if interventions:

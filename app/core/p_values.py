@@ -1,8 +1,8 @@
 """p-values in words, the same on every page, table and message.
 
-Three decimals, and ``< 0.001`` below that: a printed "0.000" reads as a p-value of zero, which
-no test gives (common practice; the American Psychological Association's style rules ask for
-the same).
+Three decimals, ``< 0.001`` below that and ``> 0.999`` above: a printed "0.000" or "1.000"
+reads as a p-value of zero or one, which no test gives (common practice; the American
+Psychological Association's style rules ask for the same).
 
 A test that reads its p-value off a table of critical values cannot give one beyond the table's
 ends: statsmodels' ``kpss`` interpolates between its p-values 0.10, 0.05, 0.025 and 0.01 and
@@ -22,7 +22,7 @@ TABLE_ENDS = {"KPSS": (0.01, 0.10)}
 
 
 def p_text(p: float, test: str = "") -> str:
-    """``0.004`` or ``< 0.001``; ``nan`` for a p-value that is not a number.
+    """``0.004``, ``< 0.001`` or ``> 0.999``; ``nan`` for a p-value that is not a number.
 
     The p-value of a ``test`` whose p-values are clipped to a table (:data:`TABLE_ENDS`) reads
     as the bound it is at either end: ``> 0.10``, ``< 0.01``."""
@@ -34,7 +34,10 @@ def p_text(p: float, test: str = "") -> str:
             return f"> {highest:.2f}"
         if p <= lowest:
             return f"< {lowest:.2f}"
-    return f"< {P_FLOOR}" if p < P_FLOOR else f"{p:.3f}"
+    if p < P_FLOOR:
+        return f"< {P_FLOOR}"
+    text = f"{p:.3f}"
+    return f"> {1 - P_FLOOR:.3f}" if text == f"{1:.3f}" else text
 
 
 def p_words(p: float, test: str = "") -> str:

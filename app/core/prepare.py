@@ -262,7 +262,7 @@ def _regular_grid(index: pd.Index, sid: str, line_of: pd.Series) -> tuple[str, p
         line = int(line_of.loc[index[i]].iloc[0] if isinstance(line_of.loc[index[i]], pd.Series) else line_of.loc[index[i]])
         raise SeriesProblem(
             sid, f"timestamp {moment_in(index, i)} is off the grid the other timestamps follow, sampled "
-            f"{frequency_words(freq)} (irregular spacing)",
+            f"{frequency_words(freq)}: the spacing is irregular",
             row=line if line > 0 else None, flag="irregular",
         )
     return freq, grid

@@ -406,16 +406,18 @@ def decide(
 
 
 def model_words(decided: dict) -> str:
-    """What a decision chose besides its order, in words: the scale, the constant and the
-    interventions when the reviewer set them (empty for the analysis' own choices)."""
+    """What a decision chose besides its order, in words: the scale, the deterministic term (in
+    the words the queue and the candidate table use, :meth:`app.core.order.Order.term_words`)
+    and the interventions when the reviewer set them (empty for the analysis' own choices)."""
     if decided["order"] is None:
         return ""
     transform = decided["transform"]
     parts = []
     if transform != "none":
-        parts.append("on log" if transform == "log" else f"on Box-Cox λ={transform['box_cox']:g}")
+        parts.append(f"on {TransformChoice.from_json(transform).name()}")
     if decided["trend"] is not None:
-        parts.append("with constant" if decided["trend"] != "n" else "without constant")
+        term = Order.of(decided["order"], decided["seasonal_order"], decided["trend"]).term_words().strip()
+        parts.append(term or "without a constant")
     chosen = decided.get("interventions")
     if chosen is not None:
         taken = [Intervention.from_dict(i) for i in chosen]

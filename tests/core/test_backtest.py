@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 
 import numpy as np
 import pandas as pd
@@ -163,8 +164,11 @@ def test_a_short_series_gets_fewer_origins_and_a_too_short_one_an_error():
     model = validate_order((1, 0, 0))
     short = backtest_order(_prepared(_ar1(50, 0.5, seed=1)), model, NONE, period=None)
     assert len(short.origins) == 2 and "Only 2 of 5 origins" in short.notes[0]
-    with pytest.raises(OrderError, match="too few for a forecast check"):
+    with pytest.raises(OrderError, match=r"too few for a forecast check .*; a horizon of at most (\d+) steps fits") as refused:
         backtest_order(_prepared(_ar1(35, 0.5, seed=1)), model, NONE, period=None)
+    # The horizon the refusal names is one the check takes (found by a new user on a weekly series).
+    fits = int(re.search(r"at most (\d+) steps", str(refused.value)).group(1))
+    assert len(backtest_order(_prepared(_ar1(35, 0.5, seed=1)), model, NONE, period=None, horizon=fits).origins) == 1
 
 
 def test_a_level_shift_before_the_origin_is_taken_out_and_carried_into_the_forecast():

@@ -16,7 +16,7 @@ from app.core.stationarity import kpss_test
 
 @pytest.mark.parametrize(("p", "text", "words"), [
     (0.0, "< 0.001", "p < 0.001"), (0.00049, "< 0.001", "p < 0.001"), (0.001, "0.001", "p = 0.001"),
-    (0.0412, "0.041", "p = 0.041"), (1.0, "1.000", "p = 1.000"), (float("nan"), "nan", "p = nan"),
+    (0.0412, "0.041", "p = 0.041"), (1.0, "> 0.999", "p > 0.999"), (0.9994, "0.999", "p = 0.999"), (float("nan"), "nan", "p = nan"),
 ])
 def test_p_values_read_with_three_decimals_and_a_floor(p, text, words):
     assert p_text(p) == text

@@ -262,7 +262,7 @@ def test_the_grid_messages_name_the_frequency_in_words_and_dates_without_a_midni
     months = pd.date_range("2018-01-01", periods=30, freq="MS").append(pd.DatetimeIndex(["2020-07-15"]))
     with pytest.raises(SeriesProblem) as off:
         prepare_series(pd.Series(np.arange(31.0), index=months), "m")
-    assert "timestamp 2020-07-15 is off the grid the other timestamps follow, sampled monthly (irregular spacing)" in str(off.value)
+    assert "timestamp 2020-07-15 is off the grid the other timestamps follow, sampled monthly: the spacing is irregular" in str(off.value)
     weeks = pd.date_range("2018-01-07", periods=40, freq="W-SUN")
     with pytest.raises(SeriesProblem) as sparse:
         prepare_series(pd.Series(np.arange(13.0), index=weeks[:3].append(weeks[30:])), "w")

@@ -110,7 +110,7 @@ def test_a_custom_model_with_its_own_transform_and_constant_reaches_the_export_a
     assert (record["transform"], record["include_constant"]) == ({"box_cox": 0.5}, True) and "drift" in record["parameters"]
 
     page.goto(series_url(live_server, OVERRIDDEN))
-    assert "with constant" in page.locator(".current-verdict").inner_text()
+    assert "with a drift" in page.locator(".current-verdict").inner_text()
     with page.expect_navigation():
         page.click("[data-reopen]")
     page.goto(series_url(live_server, OVERRIDDEN))

@@ -178,7 +178,7 @@ def test_comparison_draws_each_check_in_its_own_panel_on_shared_axes(ar1_checks)
 
 @pytest.mark.parametrize(("value", "shown"), [
     (0.0, "< 0.001"), (0.00049, "< 0.001"), (0.000999, "< 0.001"), (0.001, "0.001"), (0.0123, "0.012"),
-    (0.5, "0.500"), (1.0, "1.000"), (None, "—"), (math.nan, "—"),
+    (0.5, "0.500"), (1.0, "> 0.999"), (None, "—"), (math.nan, "—"),
 ])
 def test_p_values_below_a_thousandth_read_as_less_than_never_zero(value, shown):
     assert p_value(value) == shown

@@ -99,7 +99,7 @@ def test_the_custom_model_takes_a_transform_and_constant_and_keeps_them_on_the_p
     assert (verdict["status"], verdict["transform"], verdict["trend"]) == ("overridden", {"box_cox": 0.5}, "t")
     shown = client.get(page(WALK)).text
     assert '<option value="box_cox" selected>' in shown and 'name="lam" value="0.5"' in shown
-    assert '<option value="yes" selected>' in shown and "with constant" in shown
+    assert '<option value="yes" selected>' in shown and "with a drift" in shown
     bad = client.post(page(WALK, "/verdict"), data={**fields, "lam": "half", "version": "1"})
     assert bad.status_code == 422 and "Box-Cox needs a lambda" in bad.text
 
