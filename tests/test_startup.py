@@ -94,7 +94,7 @@ def test_a_run_announces_the_compile_only_when_it_has_series_to_analyse(monkeypa
 def test_identify_says_it_compiles_before_the_first_series(monkeypatch, capsys, tmp_path):
     monkeypatch.setattr(numba_cache, "compile_pending", lambda: True)
     csv = tmp_path / "s.csv"
-    csv.write_text("series_id,timestamp,value\n" + "".join(f"a,{t},{(t * 7919) % 13}\n" for t in range(60)))
+    csv.write_text("series_id,timestamp,value\n" + "".join(f"a,{t},{(t * 7919) % 61}\n" for t in range(60)))
     assert main(["identify", str(csv), "--workers", "1"]) == 0
     err = capsys.readouterr().err
     assert err.startswith(numba_cache.COMPILE_NOTICE)
@@ -104,6 +104,6 @@ def test_identify_loads_no_web_library(tmp_path):
     # Its table words the main reason as the pages do; the words live in app.core.vocabulary,
     # so the command does not pay for FastAPI (about 0.3 s).
     csv = tmp_path / "s.csv"
-    csv.write_text("series_id,timestamp,value\n" + "".join(f"a,{t},{(t * 7919) % 13}\n" for t in range(60)))
+    csv.write_text("series_id,timestamp,value\n" + "".join(f"a,{t},{(t * 7919) % 61}\n" for t in range(60)))
     modules = imported_modules("-m", "app.cli", "identify", str(csv), "--workers", "1")
     assert {"fastapi", "starlette", "jinja2"} & modules == set()

@@ -110,28 +110,43 @@ def level_errors(fit: CandidateFit, y: np.ndarray) -> tuple[np.ndarray, np.ndarr
     errors are those of the exact filter of the levels at the fit's estimates, the differencing
     in the state (statsmodels ``ARIMA``, the model :func:`app.core.backtest.forecast_order` forecasts with),
     which predicts across the gap from every level observed, with their variances ``F_t``
-    (Harvey 1989, §3.4; Durbin & Koopman 2012, §4.10; from memory); the first ``d + sD`` points,
-    which the diffuse start of that filter spends, have none.
+    (Harvey 1989, §3.4; Durbin & Koopman 2012, §4.10 and ch. 5, the exact diffuse start; from
+    memory); the points its diffuse start spends have none. On a complete series the filter's
+    errors equal the residuals (to 1e-9, whatever the units).
     """
     lost = y.size - fit.residuals.size
+    residuals = np.r_[np.full(lost, np.nan), fit.residuals], np.ones(y.size)
     if fit.estimate is None or not np.isnan(y).any():
-        return np.r_[np.full(lost, np.nan), fit.residuals], np.ones(y.size)
-    # Imported here: only series with gaps need it, and every start of the engine would pay for it.
+        return residuals
+    # Imported here: only series with gaps need them, and every start of the engine would pay.
     from statsmodels.tsa.arima.model import ARIMA
+    from statsmodels.tsa.statespace.initialization import Initialization
 
     model = fit.model
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            # The ARMA part started at its stationary covariance, as the engine's likelihood
-            # starts it: on a complete series these errors are the residuals (to 1e-7).
-            filtered = ARIMA(y, order=model.order, seasonal_order=model.seasonal_order, trend=model.trend
-                             ).filter(fit.estimates())
+            levels = ARIMA(y, order=model.order, seasonal_order=model.seasonal_order, trend=model.trend)
+            # The differencing states exactly diffuse (an approximate prior of variance 1e6 is
+            # not diffuse for data in the thousands: the errors then depended on the units), the
+            # ARMA part at its stationary covariance, as the engine's likelihood starts it.
+            start = Initialization(levels.k_states)
+            differenced = levels._k_states_diff
+            if differenced:
+                start.set((0, differenced), "diffuse")
+            start.set((differenced, differenced + levels._k_order), "stationary")
+            levels.ssm.initialization = start
+            filtered = levels.filter(fit.estimates())
     except (ValueError, np.linalg.LinAlgError):
-        return np.r_[np.full(lost, np.nan), fit.residuals], np.ones(y.size)
+        return residuals
     errors = np.array(filtered.forecasts_error[0], dtype=float)
-    errors[:lost] = np.nan
-    return errors, np.asarray(filtered.forecasts_error_cov[0, 0], dtype=float) / fit.estimate.sigma2
+    ratios = np.array(filtered.forecasts_error_cov[0, 0], dtype=float) / fit.estimate.sigma2
+    # The diffuse start lasts longer when a gap falls in it; its errors say nothing of the model.
+    errors[:max(lost, int(filtered.filter_results.nobs_diffuse))] = np.nan
+    kept = ~np.isnan(errors)
+    if not (np.isfinite(errors[kept]).all() and (ratios[kept] > 0).all() and np.isfinite(ratios[kept]).all()):
+        return residuals  # parameters on the edge, where the filter gives no exception but no numbers either
+    return errors, ratios
 
 
 def common_level_bic(errors: np.ndarray, ratios: np.ndarray, k: int, window: np.ndarray) -> float:

@@ -393,3 +393,20 @@ def test_one_missing_month_leaves_the_airline_model_of_the_airline_passengers(mo
     y.iloc[month] = np.nan
     found = identify_series(y, "airline")
     assert (found.transform.kind, found.suggested.model.label()) == ("log", "ARIMA(0,1,1)(0,1,1)12")
+
+
+def test_level_errors_across_gaps_do_not_depend_on_the_units():
+    # A review found the comparison turned by the units alone (8 of 60 simulated airline series
+    # moved d or D between x1 and x1000): the differencing states started from a prior of variance
+    # 1e6, diffuse only for small numbers. With the exact diffuse start (Durbin & Koopman 2012,
+    # ch. 5) the errors scale with the data and their variance ratios do not move, gaps in the
+    # start-up included.
+    y = _airline_passengers().to_numpy(copy=True)
+    y[[2, 3, 60]] = np.nan
+    model = Order(0, 1, 1, 0, 1, 1, 12)
+    e1, r1 = level_errors(fit_candidate(y, model), y)
+    e2, r2 = level_errors(fit_candidate(1000 * y, model), 1000 * y)
+    kept = ~np.isnan(e1)
+    assert np.array_equal(kept, ~np.isnan(e2)) and kept.sum() > 100
+    assert e2[kept] == pytest.approx(1000 * e1[kept], rel=1e-4)
+    assert r2[kept] == pytest.approx(r1[kept], rel=1e-4)

@@ -357,3 +357,13 @@ def test_exact_repeat_skips_missing_points_and_ignores_a_near_repeat():
     x[40] += 1e-9  # one value off: no longer an exact repeat
     assert exact_repeat(x) is None
     assert exact_repeat(np.random.default_rng(0).standard_normal(200)) is None
+
+
+def test_two_equal_sales_in_empty_months_are_no_repeat():
+    # Found by a review: 48 empty months with one unit sold in months 5 and 29 were refused as a
+    # series repeating every 24; a repeat needs three cycles, and sparse demand is not checked.
+    x = np.zeros(48)
+    x[[5, 29]] = 1.0
+    assert exact_repeat(x) is None
+    y = pd.Series(x, index=pd.date_range("2020-01-01", periods=48, freq="MS"))
+    assert identify_series(y, "sparse").suggested.model.label() == "ARIMA(0,0,0)"
