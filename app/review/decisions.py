@@ -405,6 +405,18 @@ def decide(
     )
 
 
+def scale_words(transform: str | dict) -> str:
+    """A stored transform (``"log"``, ``{"box_cox": lambda}``) in words, as every list and page
+    names it (:meth:`app.core.transform.TransformChoice.name`)."""
+    return TransformChoice.from_json(transform).name()
+
+
+def term_words(model: dict) -> str:
+    """The deterministic term of a stored model (its ``order``, ``seasonal_order`` and ``trend``)
+    in words, as the candidate table names it; empty for none."""
+    return Order.of(model["order"], model["seasonal_order"], model["trend"]).term_words().strip()
+
+
 def model_words(decided: dict) -> str:
     """What a decision chose besides its order, in words: the scale, the deterministic term (in
     the words the queue and the candidate table use, :meth:`app.core.order.Order.term_words`)
@@ -414,10 +426,9 @@ def model_words(decided: dict) -> str:
     transform = decided["transform"]
     parts = []
     if transform != "none":
-        parts.append(f"on {TransformChoice.from_json(transform).name()}")
+        parts.append(f"on {scale_words(transform)}")
     if decided["trend"] is not None:
-        term = Order.of(decided["order"], decided["seasonal_order"], decided["trend"]).term_words().strip()
-        parts.append(term or "without a constant")
+        parts.append(term_words(decided) or "without a constant")
     chosen = decided.get("interventions")
     if chosen is not None:
         taken = [Intervention.from_dict(i) for i in chosen]

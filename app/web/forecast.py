@@ -14,10 +14,10 @@ import pandas as pd
 import sqlite_utils
 
 from app.core.analysis import Analysis
-from app.core.prepare import moment_in
 from app.review.decisions import ChosenInterventions
 from app.review.forecast_check import backtest_series, compare_orders
 from app.web.charts import COMPARED_COLOURS, comparison_figure, forecast_figure
+from app.web.review import time_labels
 from app.web.templating import number, percent
 
 SHOWN_SEASONS = 4
@@ -59,14 +59,12 @@ def forecast_check_view(
 AHEAD_COLUMNS = ("time ahead", "forecast", "80% interval", "95% interval")
 
 
-def readable_stamps(stamps: Sequence[str | int]) -> list[str]:
+def readable_stamps(stamps: Sequence[str | int]) -> list:
     """A check's time stamps (:func:`app.core.backtest` writes dates as text, steps as whole
-    numbers) as a reader writes them (:func:`app.core.prepare.moment_in`: no midnight time on
-    data without times of day)."""
+    numbers) as the review page's tables show them (:func:`app.web.review.time_labels`)."""
     if not stamps or not isinstance(stamps[0], str):
         return [str(t) for t in stamps]
-    index = pd.DatetimeIndex(stamps)
-    return [moment_in(index, i) for i in range(index.size)]
+    return time_labels(pd.DatetimeIndex(stamps))
 
 
 def ahead_rows(check: dict) -> list[tuple]:

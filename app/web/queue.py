@@ -9,10 +9,9 @@ from collections.abc import Sequence
 
 import sqlite_utils
 
-from app.core.order import Order
-from app.core.transform_choice import TransformChoice
 from app.core.vocabulary import InterventionKind
 from app.review.bulk import count_waiting
+from app.review.decisions import scale_words, term_words
 from app.review.filters import SeriesFilter
 from app.store.runs import latest_run
 from app.store.series import (
@@ -59,8 +58,8 @@ def model_terms(suggested: dict) -> str:
     """What a suggested model (a :func:`list_series` item's ``suggested``) holds besides its
     orders, in a few words for a list row: ``log, with a drift, 1 level shift``.
 
-    The transform (:meth:`TransformChoice.name`), the deterministic term
-    (:meth:`Order.term_words`) and the interventions counted by kind
+    The transform (:func:`app.review.decisions.scale_words`), the deterministic term
+    (:func:`app.review.decisions.term_words`) and the interventions counted by kind
     (:meth:`InterventionKind.words`), each left out when there is none and said to be unknown
     when the stored analysis did not record it; empty without a suggestion.
     """
@@ -71,10 +70,10 @@ def model_terms(suggested: dict) -> str:
     if transform is None:
         parts.append("transform unknown")
     elif transform != "none":
-        parts.append(TransformChoice.from_json(transform).name())
+        parts.append(scale_words(transform))
     if trend is None:
         parts.append("term unknown")
-    elif term := Order.of(suggested["order"], suggested["seasonal_order"], trend).term_words().strip():
+    elif term := term_words(suggested):
         parts.append(term)
     if interventions is None:
         parts.append("interventions unknown")
