@@ -83,7 +83,7 @@ from app.core.seasonality import (
     seasonal_structure_present,
     validate_period,
 )
-from app.core.stationarity import MAX_D, DifferencingDecision, choose_differencing
+from app.core.stationarity import MAX_D, DifferencingDecision, choose_differencing, long_run_t
 from app.core.transform import (
     TransformChoice,
     apply_transform,
@@ -312,16 +312,29 @@ def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int)
     starts from first; ``w`` is the differenced series.
 
     With nothing differenced, a mean with or without a linear trend (the trend first when the
-    tests found trend-stationarity); after one difference, ordinary or seasonal, none or a drift
-    (a linear trend in levels), the drift first when the mean of ``w`` is clearly away from 0
-    (|t| > 1.96, common practice; a start only); after two, none. The criterion decides between
-    them on the same data, as the stepwise search of Hyndman & Khandakar (2008, §3.2) toggles
-    the constant, instead of a pre-test that ignores autocorrelation deciding alone.
+    tests found trend-stationarity), and no mean at all unless the mean of ``w`` is clearly away
+    from 0 (|t| > 1.96 with the long-run standard error of
+    :func:`app.core.stationarity.long_run_t`, common practice): a stationary model without a
+    mean reverts towards 0, which suits a series around 0 (an index of anomalies, a growth rate)
+    and not one whose level lies far from it (a price, a sales level). After one difference,
+    ordinary or seasonal, none or a drift (a linear trend in levels), the drift first when the
+    mean of ``w`` is clearly away from 0 by the t of independent values (common practice; a
+    start only). After two, none. The criterion decides between the terms on the same data, as
+    the stepwise search of Hyndman & Khandakar (2008, §3.2) toggles the constant, instead of a
+    pre-test deciding alone.
+
+    Measured on the real series of README's Accuracy section (573 forecasts, three origins):
+    offering no mean on every undifferenced series changed 8 forecasts, 6 for the better (the
+    Southern Oscillation Index and the Rio Negro's level anomalies at Manaus, series around 0),
+    and gave one tea price an AR(2) without a mean, which the long-run t now keeps from it.
+    Ordering the drift's starts by the long-run t as well changed 13 forecasts, 7 for the
+    worse, one a disaster (a daily flight count whose search went another way): not taken.
     """
+    present = w[~np.isnan(w)]  # the differences that reach a missing point are missing
     if d + D == 0:
-        return ("ct", "c") if decision.trend_stationary else ("c", "ct")
+        with_mean = ("ct", "c") if decision.trend_stationary else ("c", "ct")
+        return with_mean if long_run_t(present) > DRIFT_Z else with_mean + ("n",)
     if d + D == 1:
-        present = w[~np.isnan(w)]  # the differences that reach a missing point are missing
         se = present.std(ddof=1) / math.sqrt(present.size) if present.size > 1 else 0.0
         return ("t", "n") if se > 0 and abs(present.mean()) / se > DRIFT_Z else ("n", "t")
     return ("n",)

@@ -72,6 +72,7 @@ References
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass, field
 
@@ -130,6 +131,35 @@ def standardised(values: np.ndarray) -> np.ndarray:
     spread = float(np.std(values))
     centred = values - float(np.mean(values))
     return centred / spread if spread > 0 else centred
+
+
+def long_run_t(w: np.ndarray) -> float:
+    """|mean| over its standard error for the observed values of ``w`` (NaN marks a missing
+    one), the standard error from the Newey-West long-run variance (Bartlett weights,
+    truncation lag floor(4 (n / 100)^(2/9))), so that autocorrelation does not make a mean look
+    clearly away from 0; 0 for fewer than two values or no spread.
+
+    A series of strongly autocorrelated values around 0 (the Southern Oscillation Index, a
+    river's level anomalies) has an ordinary standard error of the mean several times too
+    small, and its mean would look far from 0 by an ordinary t.
+
+    References
+    ----------
+    .. [1] Newey, W.K. & West, K.D. (1987). A simple, positive semi-definite, heteroskedasticity
+       and autocorrelation consistent covariance matrix. *Econometrica* 55, 703-708.
+    .. [2] Newey, W.K. & West, K.D. (1994). Automatic lag selection in covariance matrix
+       estimation. *Rev. Econ. Stud.* 61, 631-653 (the truncation lag's rule of thumb, from memory).
+    """
+    present = w[~np.isnan(w)]
+    n = present.size
+    if n < 2:
+        return 0.0
+    centred = present - present.mean()
+    lags = min(int(4 * (n / 100) ** (2 / 9)), n - 1)
+    long_run = float(centred @ centred) / n
+    for j in range(1, lags + 1):
+        long_run += 2 * (1 - j / (lags + 1)) * float(centred[j:] @ centred[:-j]) / n
+    return float(abs(present.mean()) / math.sqrt(long_run / n)) if long_run > 0 else 0.0
 
 
 def choose_differencing(x: np.ndarray, max_d: int = MAX_D, seasonally_differenced: bool = False) -> DifferencingDecision:

