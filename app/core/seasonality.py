@@ -7,7 +7,8 @@
   ``F_S`` exceeds :data:`SEASONAL_STRENGTH_THRESHOLD` and the series holds at least
   :data:`MIN_SEASONS_DIFFERENCING` full seasons (:func:`choose_seasonal_differencing`); with
   only two, the first differences must also show the season (:func:`season_in_differences`),
-  as F_S alone is unreliable on two seasons. When only the ordinary (non-robust) STL fit
+  as F_S alone is unreliable on two seasons; on three or four, without that sign, D is only
+  left open. When only the ordinary (non-robust) STL fit
   exceeds the threshold, D is uncertain and both D are searched.
 * :func:`seasonal_structure_present` tells whether the correlogram shows anything at the
   seasonal lags, so the engine can say "no seasonal structure at lag s" instead of forcing a
@@ -58,6 +59,18 @@ from app.core.vocabulary import Flag
 SEASONAL_STRENGTH_THRESHOLD = 0.64
 MIN_SEASONS_SEASONAL_TERMS = 2
 MIN_SEASONS_DIFFERENCING = 3
+# Below this many seasons a strength above the threshold does not decide alone: without a second
+# sign of a season (season_in_differences) D is left open when the robust STL fit exceeds the
+# threshold, and D = 0 when only the ordinary one does. Measured with 200 simulated monthly series
+# per process and length (seed [7, n, process], 2026-12-05, a /tmp script): on white noise, random
+# walks, AR(1) phi = 0.8 and trends plus noise the strength alone differenced 8-19% outright at 36
+# points and left D open in 56-70% more (30-46% at 48, 4-14% at 60, 2-7% at 72); now 0-2%
+# outright and 12-18% open at 36, 0-1% and 2-5% at 48. Through the whole engine (30 series
+# each, seed [11, n, process]) 36 months of white noise got a seasonal model 10 times in 30
+# before and 2 after, random walks 5 and 1; a seasonal random walk plus noise 30 and 30 (28 and
+# 25 when its steps are as large as the noise); a fixed monthly profile as large as the noise 28
+# and 23 (there the seasonal naive forecast and the mean have the same expected error).
+MIN_SEASONS_STRENGTH_ALONE = 5
 # The level of each of the two signs of a season in the first differences
 # (:func:`season_in_differences`): together at most twice that under the null (Bonferroni).
 SIGN_LEVEL = 0.025
@@ -105,7 +118,8 @@ class SeasonalDifferencing:
     ``seasonal_terms_possible`` whether there are enough for any seasonal AR or MA term (and
     for D = 1 with a second sign, :func:`choose_seasonal_differencing`). ``flags`` holds
     ``too_few_seasons`` below :data:`MIN_SEASONS_DIFFERENCING` full seasons, and
-    ``uncertain_seasonal_differencing`` when the two strength measures disagree; then
+    ``uncertain_seasonal_differencing`` when the two strength measures disagree, or when on
+    three or four seasons the first differences do not show the season the strength reads; then
     ``alternative_D`` is the other D, searched as well.
     """
 
@@ -298,11 +312,12 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
 
     Rule: D = 1 when the seasonal strength F_S (:func:`seasonal_strength`) exceeds
     :data:`SEASONAL_STRENGTH_THRESHOLD` = 0.64 and the series holds at least
-    :data:`MIN_SEASONS_DIFFERENCING` = 3 full seasons; with two full seasons (and less than
-    three) only when, besides, the first differences show the season
-    (:func:`season_in_differences`); otherwise D = 0 (D = 2 is never proposed, common practice).
+    :data:`MIN_SEASONS_DIFFERENCING` = 3 full seasons; with two full seasons only when, besides,
+    the first differences show the season (:func:`season_in_differences`), and on three or four
+    without that sign D is left open (both searched, the fits deciding); otherwise D = 0 (D = 2
+    is never proposed, common practice).
 
-    Why a second sign on two seasons: STL's strength rests on two cycles there and exceeds the
+    Why a second sign on few seasons: STL's strength rests on two cycles there and exceeds the
     threshold on series with no season at all. In 300 simulated series each (seed 11, 2026-12-04,
     a ``/tmp`` script; figures from that one run): at 24 monthly points on 14% of white noise,
     37% of random walks and 29% of linear trends plus noise; at 104 weekly points on 69% of
@@ -312,8 +327,11 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     a random walk's steps on 88-100% of them; the lag-s sign took 98% of weekly seasonal
     random walks of 104 points in a 200-run simulation of the same day (12% of monthly ones of
     24 points: two monthly seasons say little), which the harmonic sign misses.
-    ``tests/core/test_seasonality.py`` repeats a smaller version. On three or more seasons the
-    strength alone decides, unless the robust and the ordinary STL fit fall on opposite sides
+    ``tests/core/test_seasonality.py`` repeats a smaller version. On three or four seasons it is
+    not much firmer (the figures beside :data:`MIN_SEASONS_STRENGTH_ALONE`), so there a strength
+    without the second sign leaves D open, and an ordinary fit above the threshold with the
+    robust one below it, without the sign, does not difference. From
+    :data:`MIN_SEASONS_STRENGTH_ALONE` seasons on the strength alone decides, unless the robust and the ordinary STL fit fall on opposite sides
     of the threshold (the robust one below): then D is uncertain and both D are searched, the
     fits ranked across them by the BIC of their one-step level prediction errors
     (:func:`app.core.ranking.rank_across_differencing`), as an uncertain d is.
@@ -394,22 +412,43 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
                 + (f" and the first differences do not show the season ({sign.words()})" if sign is not None else "")
                 + f"; not differenced (on fewer than {MIN_SEASONS_DIFFERENCING} seasons the strength alone does not decide)."
             )
+    elif above and (hidden := _season_not_in_differences(filled, period, seasons)):
+        _leave_open(result, f"{comparison}, but with only {_seasons_text(seasons)} of {period} in {n} observations the "
+                            f"first differences do not show the season ({hidden.words()})", filled, period)
     elif above:
         result.D = 1
         result.explanation.append(f"{comparison} -> differenced once at lag {period}.")
         _test_stability(result, filled, period)
-    elif (plain := seasonal_strength(filled, period, robust=False).seasonal) > threshold:
-        result.alternative_D = 1
-        result.flags.append(Flag.UNCERTAIN_SEASONAL_DIFFERENCING)
+    elif (plain := seasonal_strength(filled, period, robust=False).seasonal) > threshold and (
+            hidden := _season_not_in_differences(filled, period, seasons)):
         result.explanation.append(
-            f"{comparison} by the robust STL fit, but {_beside(plain, threshold)} by the ordinary fit: the seasonal difference is "
-            f"uncertain. Candidates are searched without and with a difference at lag {period} (without first); "
-            "the fits decide between them."
-        )
-        _test_stability(result, filled, period)
+            f"{comparison} by the robust STL fit and {_beside(plain, threshold)} by the ordinary one, but with only "
+            f"{_seasons_text(seasons)} of {period} in {n} observations the first differences do not show the season "
+            f"({hidden.words()}): no seasonal differencing at lag {period}.")
+    elif plain > threshold:
+        _leave_open(result, f"{comparison} by the robust STL fit, but {_beside(plain, threshold)} by the ordinary fit",
+                    filled, period)
     else:
         result.explanation.append(f"{comparison} -> no seasonal differencing at lag {period}.")
     return result
+
+
+def _leave_open(result: SeasonalDifferencing, why: str, filled: np.ndarray, period: int) -> None:
+    """D left uncertain for ``why``: both D searched, D = 0 first, the fits deciding."""
+    result.alternative_D = 1
+    result.flags.append(Flag.UNCERTAIN_SEASONAL_DIFFERENCING)
+    result.explanation.append(f"{why}: the seasonal difference is uncertain. Candidates are searched without and with a "
+                              f"difference at lag {period} (without first); the fits decide between them.")
+    _test_stability(result, filled, period)
+
+
+def _season_not_in_differences(filled: np.ndarray, period: int, seasons: int) -> SeasonInDifferences | None:
+    """The signs of :func:`season_in_differences` when a series of fewer than
+    :data:`MIN_SEASONS_STRENGTH_ALONE` seasons shows neither of them; None otherwise."""
+    if seasons >= MIN_SEASONS_STRENGTH_ALONE:
+        return None
+    sign = season_in_differences(filled, period)
+    return None if sign.present else sign
 
 
 def _test_stability(result: SeasonalDifferencing, filled: np.ndarray, period: int) -> None:
