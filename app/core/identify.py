@@ -48,7 +48,7 @@ import numpy as np
 import pandas as pd
 
 from app.core.analysis import Analysis, Correlation, DifferencingSummary, Intervention, SeasonalSummary, with_deltas
-from app.core.confidence import FIRM_MARGIN, ConfidenceScore, score_confidence
+from app.core.confidence import FIRM_MARGIN, SEASONAL_MA_BOUNDARY, ConfidenceScore, score_confidence, seasonal_ma_modulus
 from app.core.correlogram import DEFAULT_ALPHA, Correlogram, correlogram, lag_count
 from app.core.defaults import AUTO_PERIOD
 from app.core.demand import classify_demand
@@ -103,7 +103,6 @@ MIN_RESIDUAL_DF = 8
 SCREEN_SLACK = 2.0
 SCREEN_MARGIN = FIRM_MARGIN
 TRANSFORM_PASSES = 2
-SEASONAL_MA_BOUNDARY = 0.9
 # Long series (identify_prepared): measured on 14 hourly series of 1,344 points (README).
 LONG_SERIES = 1_000
 SEARCH_WINDOW = 672
@@ -312,11 +311,13 @@ def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int)
     starts from first; ``w`` is the differenced series.
 
     With nothing differenced, a mean with or without a linear trend (the trend first when the
-    tests found trend-stationarity), and no mean at all unless the mean of ``w`` is clearly away
-    from 0 (|t| > 1.96 with the long-run standard error of
-    :func:`app.core.stationarity.long_run_t`, common practice): a stationary model without a
-    mean reverts towards 0, which suits a series around 0 (an index of anomalies, a growth rate)
-    and not one whose level lies far from it (a price, a sales level). After one difference,
+    tests found trend-stationarity), and no mean at all when the tests found the series
+    stationary without doubt and its mean is not clearly away from 0 (|t| > 1.96 with the
+    long-run standard error of :func:`app.core.stationarity.long_run_t`, common practice): a
+    stationary model without a mean reverts towards 0, which suits a series around 0 (an index
+    of anomalies, a growth rate) and not one whose level lies far from it (a price, a sales
+    level), nor a series that may hold a unit root, where an AR without a mean and a root near
+    1 mimics the random walk (a simulated ARIMA(1,1,0) that wandered near 0 was read so). After one difference,
     ordinary or seasonal, none or a drift (a linear trend in levels), the drift first when the
     mean of ``w`` is clearly away from 0 by the t of independent values (common practice; a
     start only). After two, none. The criterion decides between the terms on the same data, as
@@ -333,7 +334,7 @@ def trend_choices(w: np.ndarray, decision: DifferencingDecision, d: int, D: int)
     present = w[~np.isnan(w)]  # the differences that reach a missing point are missing
     if d + D == 0:
         with_mean = ("ct", "c") if decision.trend_stationary else ("c", "ct")
-        return with_mean if long_run_t(present) > DRIFT_Z else with_mean + ("n",)
+        return with_mean if decision.uncertain or long_run_t(present) > DRIFT_Z else with_mean + ("n",)
     if d + D == 1:
         se = present.std(ddof=1) / math.sqrt(present.size) if present.size > 1 else 0.0
         return ("t", "n") if se > 0 and abs(present.mean()) / se > DRIFT_Z else ("n", "t")
@@ -535,10 +536,9 @@ def fixed_seasonality_words(leader: CandidateFit, seasonal: SeasonalSetup) -> st
     dummies with D = 0 are the more direct model.
     """
     sd = seasonal.differencing
-    if leader.model.D != 1 or not sd or not sd.stability or not sd.stability.fixed or leader.estimate is None:
+    if leader.model.D != 1 or not sd or not sd.stability or not sd.stability.fixed:
         return None
-    seasonal_ma = factor_roots(leader.estimate.spec, leader.estimate.coefficients)[3]
-    if not seasonal_ma.size or float(np.max(1.0 / np.abs(seasonal_ma))) < SEASONAL_MA_BOUNDARY:
+    if seasonal_ma_modulus(leader) < SEASONAL_MA_BOUNDARY:
         return None
     return (f"The seasonal pattern looks fixed: the Canova-Hansen test did not reject it (p = {sd.stability.p_value:.2f}) "
             f"and the seasonal MA of {leader.model.label()} sits near the unit circle, the trace a seasonal difference "

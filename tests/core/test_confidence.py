@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy.stats import chi2, ncx2
 
@@ -19,9 +20,11 @@ from app.core.confidence import (
     MIN_FIRM_LENGTH,
     NESTED_LEVEL_LONG,
     NESTED_LEVEL_SHORT,
+    SEASONAL_MA_BOUNDARY,
     largest_real_ar_root,
     nested_level,
     score_confidence,
+    seasonal_ma_modulus,
     short_series_doubt,
     unit_root_doubt,
     weak_term_power,
@@ -198,3 +201,35 @@ def test_groups_of_different_seasonal_differences_are_compared_after_the_seasona
     m = differenced_errors.size - 1
     assert bic(differenced, m) > bic(plain, m), "precondition: with the start-up in it, D = 1 loses"
     assert bic(differenced, m - s) < bic(plain, m - s)
+
+
+def _seasonal_sample(seasonal_ar: float, seasonal_ma: float, n: int = 400, s: int = 12, seed: int = 8) -> np.ndarray:
+    """(1 - Phi B^s) w_t = (1 + Theta B^s) e_t, simulated by statsmodels' ArmaProcess."""
+    from statsmodels.tsa.arima_process import ArmaProcess
+
+    ar, ma = np.zeros(s + 1), np.zeros(s + 1)
+    ar[0] = ma[0] = 1.0
+    ar[s], ma[s] = -seasonal_ar, seasonal_ma
+    return 10.0 + ArmaProcess(ar, ma).generate_sample(n + 200, distrvs=np.random.default_rng(seed).standard_normal)[200:]
+
+
+def test_a_seasonal_difference_of_a_stationary_seasonal_ar_is_doubted_and_a_true_one_is_not():
+    # A seasonal AR with Phi = 0.6 seasonally differenced leaves (1 - B^12) in the MA part: the
+    # fitted seasonal MA sits near -1 (Box, Jenkins, Reinsel & Ljung 2015, §9.2, from memory),
+    # the calibration batch's wrong firm seasonal suggestions. For Q = 1 the inverse root's
+    # modulus is |Theta|, checked against statsmodels' SARIMAX fit of the same order.
+    from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+    model = Order(0, 0, 0, 1, 1, 1, 12)
+    over = fit_candidate(_seasonal_sample(0.6, 0.0), model)
+    reference = SARIMAX(pd.Series(_seasonal_sample(0.6, 0.0)), order=(0, 0, 0), seasonal_order=(1, 1, 1, 12)).fit(disp=False)
+    assert seasonal_ma_modulus(over) == pytest.approx(abs(reference.params["ma.S.L12"]), abs=0.02)
+    assert seasonal_ma_modulus(over) >= SEASONAL_MA_BOUNDARY
+    assert "seasonal MA root" in unit_root_doubt(over)
+    # A seasonal random walk with Theta = -0.6 after its difference: the difference is right
+    # (33 seasons estimate Theta within about 0.14, sqrt((1 - Theta^2) / 33)).
+    walk = np.cumsum((_seasonal_sample(0.0, -0.6, n=396, seed=9) - 10.0).reshape(-1, 12), axis=0).ravel()
+    right = fit_candidate(walk, Order(0, 0, 0, 0, 1, 1, 12))
+    reference = SARIMAX(pd.Series(walk), order=(0, 0, 0), seasonal_order=(0, 1, 1, 12)).fit(disp=False)
+    assert seasonal_ma_modulus(right) == pytest.approx(abs(reference.params["ma.S.L12"]), abs=0.02)
+    assert unit_root_doubt(right) is None
