@@ -523,13 +523,15 @@ def run_analyze(args: argparse.Namespace) -> int:
         )
     except KeyboardInterrupt:
         shown.close()  # the line ends before the message
-        print("lagdesk analyze: interrupted; the series finished so far are kept, run it again to resume", file=sys.stderr)
+        rest = ("the others keep their earlier analysis; run it again with --all to analyse every series again" if args.all
+                else "run it again to resume")
+        print(f"lagdesk analyze: interrupted; the series finished so far are kept, {rest}", file=sys.stderr)
         return 130
     finally:
         shown.close()
     with closing(open_database(path)) as db:
         status = portfolio_status(db)
-    print(run_summary_text(run, shown.problems, status))
+    print(run_summary_text(run, shown.problems, status, shown.rechecked))
     return 0
 
 
@@ -551,6 +553,7 @@ class RunProgressLine:
         self.line: ProgressLine | None = None
         self.ticker: Ticker | None = None
         self.problems: list[dict] = []
+        self.rechecked: list[dict] = []
 
     def __call__(self, progress: RunProgress) -> None:
         if self.line is None:
@@ -561,6 +564,7 @@ class RunProgressLine:
         while self.line.done < progress.done:
             self.line.advance(failed=self.line.failed < progress.failed)
         self.problems = progress.problems
+        self.rechecked = progress.rechecked
 
     def close(self) -> None:
         if self.ticker is not None:
@@ -570,8 +574,9 @@ class RunProgressLine:
                 self.line.close()
 
 
-def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
-    """One line on the run, the failures' reasons, one line on the portfolio."""
+def run_summary_text(run: dict, problems: list[dict], status: dict, rechecked: Sequence[dict] = ()) -> str:
+    """One line on the run, the failures' reasons, the decided series sent back to recheck with
+    their reasons, one line on the portfolio."""
     if run["total"] == 0:
         lines = [f"run {run['run_id']}: nothing to analyse (use --all to analyse every series again)"]
     else:
@@ -580,6 +585,9 @@ def run_summary_text(run: dict, problems: list[dict], status: dict) -> str:
             f"{run['failed']} failed, in {run['duration_s']:.1f} s"
         ]
     lines += [f"  failed: {p['message']}" for p in problems]
+    if rechecked:
+        lines.append(f"{len(rechecked)} decided order{'s' if len(rechecked) > 1 else ''} sent back to the queue as recheck:")
+        lines += [f"  {r['series_id']}: {r['reason']}" for r in rechecked]
     lines.append(f"{status['analysed']} of {status['series']} series have a current analysis.")
     return "\n".join(map(terminal_text, lines))
 

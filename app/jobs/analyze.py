@@ -62,14 +62,16 @@ class AnalysisInProgress(LagdeskError):
 
 @dataclass
 class RunProgress:
-    """Counts of a run so far (``done`` includes the ``failed`` series) and the failures'
-    problem dicts (``series_id``, ``message``)."""
+    """Counts of a run so far (``done`` includes the ``failed`` series), the failures'
+    problem dicts (``series_id``, ``message``) and the decided series the run sent back to
+    ``recheck`` (``series_id``, ``reason``)."""
 
     run_id: int
     total: int
     done: int = 0
     failed: int = 0
     problems: list[dict] = field(default_factory=list)
+    rechecked: list[dict] = field(default_factory=list)
 
 
 ProgressCallback = Callable[[RunProgress], None]
@@ -132,7 +134,9 @@ class AnalysisRun:
             else:
                 save_analysis(self.db, outcome.series_id, fingerprint, result, self.run_id)
             record_progress(self.db, self.run_id, progress.done + 1, progress.failed + int(result is None))
-        recheck_after_analysis(self.db, outcome.series_id, result)
+        reason = recheck_after_analysis(self.db, outcome.series_id, result)
+        if reason is not None:
+            progress.rechecked.append({"series_id": outcome.series_id, "reason": reason})
         progress.done += 1
         if result is None:
             progress.failed += 1

@@ -217,3 +217,23 @@ def test_residuals_failing_at_5_but_not_at_1_percent_leave_a_verdict_as_it_was(a
     import_portfolio(approved, write_series(tmp_path / "v2.csv", longer))
     reason = recheck_after_analysis(approved, SID, analyse(approved))
     assert reason is None or "Ljung-Box" not in reason
+
+
+def test_the_analyze_command_names_the_orders_it_sent_back(tmp_path, noise, capsys):
+    # A reviewer who runs `lagdesk analyze` after new data must learn there which decided orders
+    # came back, not only later from `status` or the queue.
+    from app.cli import main
+
+    db_path = tmp_path / "lagdesk.db"
+    assert main(["import", str(write_series(tmp_path / "v1.csv", noise)), "--db", str(db_path)]) == 0
+    assert main(["analyze", "--db", str(db_path), "--workers", "1"]) == 0
+    assert main(["decide", SID, "approve", "--reviewer", "ann", "--db", str(db_path)]) == 0
+    capsys.readouterr()
+    longer = np.r_[noise, strongly_autocorrelated(4.0)]
+    assert main(["import", str(write_series(tmp_path / "v2.csv", longer)), "--db", str(db_path)]) == 0
+    assert main(["analyze", "--db", str(db_path), "--workers", "1"]) == 0
+    out = capsys.readouterr().out
+    with open_database(db_path) as db:
+        verdict = get_verdict(db, SID)
+    assert verdict["status"] == "recheck"
+    assert f"1 decided order sent back to the queue as recheck:\n  {SID}: {verdict['recheck_reason']}" in out
