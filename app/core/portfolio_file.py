@@ -140,8 +140,11 @@ def _column_positions(table: CsvChunks, columns: dict[str, str]) -> list[int]:
             hint = " (the file may use another delimiter than a comma)"
         else:
             hint = _naming_hint(list(missing))
-            if {"series id", "value"} <= set(missing) and "time" in columns and "time" not in missing:
-                hint += "; or, if each column beside the time column is a series, read it with --layout wide (the upload's wide layout)"
+            if {"series id", "value"} <= set(missing) and "time" in columns and len(header) >= 2:
+                first = shorten(header[0])
+                option, field = ("", "") if "time" not in missing else (f" --time-col {first!r}", f", {first!r} as its \"Time\"")
+                hint += (f"; or, if each column beside the time column is a series, read it with --layout wide{option} "
+                         f"(the upload's wide layout{field})")
         raise InputFileError(
             table.name, f"no column named {', '.join(repr(shorten(c)) for c in missing.values())}; the header has {found}{hint}"
         )

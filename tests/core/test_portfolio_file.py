@@ -124,6 +124,13 @@ def test_a_missing_column_says_how_to_name_it(tmp_path):
         "value columns with --id-col and --value-col (the upload's \"Series id\" and \"Value\" fields); or, if each column "
         "beside the time column is a series, read it with --layout wide (the upload's wide layout)"
     )
+    # A wide file read as long: the time column is missing too, and the first column is named.
+    with pytest.raises(InputFileError) as info:
+        read_portfolio(_write(tmp_path, "date,shopA_milk,shopB_eggs\n2024-01-01,1,2\n"))
+    assert str(info.value).endswith(
+        "; or, if each column beside the time column is a series, read it with --layout wide --time-col 'date' "
+        "(the upload's wide layout, 'date' as its \"Time\")"
+    )
 
 
 def test_other_delimiter_is_hinted(tmp_path):
