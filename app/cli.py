@@ -625,6 +625,11 @@ def not_analysed_lines(status: dict) -> list[str]:
     return _first_lines([f"{m['series_id']}: {stage_words[m['stage']]}: {m['reason']}" for m in status["not_analysed"]])
 
 
+def _file_and_line(rejection: dict) -> str:
+    """Where an import's rejection came from: the file, and the line when it names one."""
+    return rejection["file"] + (f", line {rejection['line']}" if rejection.get("line") else "")
+
+
 def _first_lines(lines: list[str]) -> list[str]:
     """``lines`` indented, at most :data:`NOT_ANALYSED_SHOWN` of them and a line counting the
     rest, safe for a terminal."""
@@ -651,7 +656,7 @@ def status_text(status: dict, last: dict | None, db_path: Path) -> str:
     refused = status["refused_updates"]
     if refused:
         lines += [f"kept their earlier data ({len(refused)}): a later import refused the new data",
-                  *_first_lines([f"{r['series_id']}: {r['file']}: {r['reason']}" for r in refused])]
+                  *_first_lines([f"{r['series_id']}: {_file_and_line(r)}: {r['reason']}" for r in refused])]
     if last is not None:
         lines.append(
             f"last run: {last['run_id']}, {last['state']}, started {last['started_at']}, "

@@ -902,3 +902,17 @@ def test_decide_on_a_series_the_import_rejected_says_so(run_cli, tmp_path):
     [line] = err.splitlines()
     assert line.startswith("lagdesk decide: no series 'tiny' in the database: the import of ") and str(csv) in line
     assert "rejected it (has 2 observations" in line and line.endswith("correct the data and import the file again")
+
+
+def test_status_names_the_file_and_line_of_a_refused_update(run_cli, tmp_path):
+    # README: a refused update is reported "with the file, line and reason"; status said the file only.
+    first, second = tmp_path / "first.csv", tmp_path / "second.csv"
+    months = pd.date_range("2020-01-01", periods=40, freq="MS").strftime("%Y-%m-%d")
+    first.write_text("series_id,timestamp,value\n" + "".join(f"a,{m},{i % 7 + 1}\n" for i, m in enumerate(months)))
+    rows = [f"a,{m},{i % 7 + 1}\n" for i, m in enumerate(months)] + ["a,2023-05-01,n/a\n"]
+    second.write_text("series_id,timestamp,value\n" + "".join(rows))
+    db = tmp_path / "p.db"
+    assert run_cli("import", first, "--db", db)[0] == 0
+    run_cli("import", second, "--db", db)
+    code, out, _ = run_cli("status", "--db", db)
+    assert code == 0 and f"  a: {second}, line 42: value 'n/a' is not a number" in out

@@ -27,7 +27,7 @@ def portfolio_status(db: sqlite_utils.Database) -> dict:
     ``confidence`` the stored analyses by level, weakest first. ``not_analysed`` is
     :func:`not_analysed`; ``refused_updates`` the stored series whose new data a later import
     refused (:func:`~app.store.series.refused_updates`: they keep their earlier data), each
-    ``{"series_id", "reason", "file"}``.
+    ``{"series_id", "reason", "file", "line"}`` (``line`` None when the reason names none).
     """
     series, analysed, stale, failed, earlier = db.execute(
         "SELECT count(*), coalesce(sum(state = 'current'), 0), coalesce(sum(state IN ('missing', 'stale')), 0), "
@@ -40,7 +40,8 @@ def portfolio_status(db: sqlite_utils.Database) -> dict:
         "series": series, "analysed": analysed, "stale": stale, "failed": failed, "earlier_engine": earlier,
         "rejected": sum(m["stage"] == IMPORT_STAGE for m in missing),
         "confidence": confidence_counts(db), "verdicts": verdict_counts(db), "not_analysed": missing,
-        "refused_updates": [{"series_id": r["series_id"], "reason": r["reason"], "file": r["file"]} for r in refused_updates(db)],
+        "refused_updates": [{"series_id": r["series_id"], "reason": r["reason"], "file": r["file"], "line": r["line"]}
+                            for r in refused_updates(db)],
     }
 
 

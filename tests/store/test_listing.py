@@ -255,7 +255,8 @@ def test_a_stored_series_whose_new_data_an_import_refused_is_named_until_stored_
     assert rejected_series(fresh_db) == []
     [refused] = refused_updates(fresh_db)
     assert (refused["series_id"], refused["file"], refused["flag"]) == ("s", report.file, "bad_value")
-    assert portfolio_status(fresh_db)["refused_updates"] == [{"series_id": "s", "reason": refused["reason"], "file": report.file}]
+    assert portfolio_status(fresh_db)["refused_updates"] == [{"series_id": "s", "reason": refused["reason"], "file": report.file,
+                                                           "line": refused["line"]}]
     import_portfolio(fresh_db, _csv_rows(tmp_path / "c.csv", {"s": values + [1.0, 2.0]}))
     assert refused_updates(fresh_db) == []
 
