@@ -1035,7 +1035,13 @@ def _identify_whole(prepared: PreparedSeries, options: EngineOptions, first: int
     if interventions and found.transform.kind != "none":
         found, search, adjusted_search, interventions = scales.without_interventions(found, search, adjusted_search, interventions)
     if interventions:
+        weighed_under = found.suggested.model
         found = _finished(prepared, found.transform, adjusted_search, interventions, options)
+        if found.transform.kind == "none" and found.suggested.model != weighed_under:
+            words.append(f"These comparisons were made before the interventions were sought. With them taken out the leader "
+                         f"is {found.suggested.model.label()}{found.suggested.model.term_words()}, under which the transforms "
+                         "were not weighed again: that is done only when a transform was taken, whose scale the "
+                         "interventions could have decided.")
     found.transform = TransformChoice(found.transform.kind, found.transform.lam, explanation=words)
     return found, (adjusted_search if interventions else search)
 

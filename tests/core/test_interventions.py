@@ -190,12 +190,18 @@ def test_the_nile_level_shift_is_found():
     # alternative and the series identified again without it is white noise around two levels.
     data = sm.datasets.nile.load_pandas().data
     y = pd.Series(data["volume"].to_numpy(dtype=float), index=pd.date_range("1871", periods=len(data), freq="YS"))
-    analysis = identify_series(y, "nile").to_analysis()
+    found = identify_series(y, "nile")
+    analysis = found.to_analysis()
     shifts = [i for i in analysis.interventions if i.kind is InterventionKind.LEVEL_SHIFT]
     assert [i.timestamp[:4] for i in shifts] == ["1899"]
     assert shifts[0].size < -150  # a drop of about a quarter of the flow (Cobb 1978)
     assert analysis.suggested.order.d == 0
     assert Flag.LEVEL_SHIFT in analysis.flags
+    # The transforms were weighed under the leader before the shift was found (ARIMA(0,1,1));
+    # the words must not leave the reviewer thinking they were weighed under the suggestion.
+    assert "Under ARIMA(0,1,1)" in " ".join(found.transform.explanation)
+    assert found.transform.explanation[-1].startswith("These comparisons were made before the interventions were sought")
+    assert "the leader is ARIMA(0,0,0) with a mean" in found.transform.explanation[-1]
 
 
 def test_a_clean_series_has_none():
