@@ -8,8 +8,8 @@
   :data:`MIN_SEASONS_DIFFERENCING` full seasons (:func:`choose_seasonal_differencing`); with
   only two, the first differences must also show the season (:func:`season_in_differences`),
   as F_S alone is unreliable on two seasons; on three or four, without that sign, D is only
-  left open. When only the ordinary (non-robust) STL fit
-  exceeds the threshold, D is uncertain and both D are searched.
+  left open. When only the ordinary (non-robust) STL fit exceeds the threshold, D is
+  uncertain and both D are searched.
 * :func:`seasonal_structure_present` tells whether the correlogram shows anything at the
   seasonal lags, so the engine can say "no seasonal structure at lag s" instead of forcing a
   seasonal model; :func:`seasonal_lags` lists the lags ``s, 2s, ...`` a correlogram marks.
@@ -331,10 +331,11 @@ def choose_seasonal_differencing(x: np.ndarray, period: int | None) -> SeasonalD
     not much firmer (the figures beside :data:`MIN_SEASONS_STRENGTH_ALONE`), so there a strength
     without the second sign leaves D open, and an ordinary fit above the threshold with the
     robust one below it, without the sign, does not difference. From
-    :data:`MIN_SEASONS_STRENGTH_ALONE` seasons on the strength alone decides, unless the robust and the ordinary STL fit fall on opposite sides
-    of the threshold (the robust one below): then D is uncertain and both D are searched, the
-    fits ranked across them by the BIC of their one-step level prediction errors
-    (:func:`app.core.ranking.rank_across_differencing`), as an uncertain d is.
+    :data:`MIN_SEASONS_STRENGTH_ALONE` seasons on the strength alone decides, unless the robust
+    and the ordinary STL fit fall on opposite sides of the threshold (the robust one below):
+    then D is uncertain and both D are searched, the fits ranked across them by the BIC of
+    their one-step level prediction errors (:func:`app.core.ranking.rank_across_differencing`),
+    as an uncertain d is.
 
     Why two fits: the robust fit gives outliers zero weight and so leaves them, and any sharp
     change of the seasonal shape, in the remainder, which lowers F_S; the threshold comes from
