@@ -587,7 +587,7 @@ def run_summary_text(run: dict, problems: list[dict], status: dict, rechecked: S
     lines += [f"  failed: {p['message']}" for p in problems]
     if rechecked:
         lines.append(f"{len(rechecked)} decided order{'s' if len(rechecked) > 1 else ''} sent back to the queue as recheck:")
-        lines += [f"  {r['series_id']}: {r['reason']}" for r in rechecked]
+        lines += _first_lines([f"{r['series_id']}: {r['reason']}" for r in rechecked], "the queue's recheck filter")
     lines.append(f"{status['analysed']} of {status['series']} series have a current analysis.")
     return "\n".join(map(terminal_text, lines))
 
@@ -630,12 +630,12 @@ def _file_and_line(rejection: dict) -> str:
     return rejection["file"] + (f", line {rejection['line']}" if rejection.get("line") else "")
 
 
-def _first_lines(lines: list[str]) -> list[str]:
+def _first_lines(lines: list[str], listed_by: str = "status --json") -> list[str]:
     """``lines`` indented, at most :data:`NOT_ANALYSED_SHOWN` of them and a line counting the
-    rest, safe for a terminal."""
+    rest (``listed_by`` lists them all), safe for a terminal."""
     shown = [f"  {line}" for line in lines[:NOT_ANALYSED_SHOWN]]
     if len(lines) > NOT_ANALYSED_SHOWN:
-        shown.append(f"  ... and {len(lines) - NOT_ANALYSED_SHOWN} more (status --json lists them all)")
+        shown.append(f"  ... and {len(lines) - NOT_ANALYSED_SHOWN} more ({listed_by} lists them all)")
     return list(map(terminal_text, shown))
 
 
