@@ -262,7 +262,8 @@ def build_parser() -> argparse.ArgumentParser:
         "  lagdesk decide shop/sales override --order 1,0,0 --intervention 2024-03-04=level_shift --reviewer ann\n"
         "  lagdesk decide shop/sales pending --reviewer ann --version 3\n"
         "  lagdesk decide shop/spares not-arima --reviewer ann --note \"90% zeros: Croston\"\n"
-        "  lagdesk decide --all-firm --prefix shop/ --reviewer ann",
+        "  lagdesk decide --all-firm --prefix shop/ --reviewer ann\n"
+        "  lagdesk decide --reviewer ann -- -shop/sales approve   (an id starting with '-': options first, then --)",
         add_options=_decide_options,
     )
     commands.add_parser("serve", help="serve the review dashboard", add_options=_serve_options)
