@@ -56,7 +56,8 @@ from scipy.special import boxcox, inv_boxcox
 from statsmodels.tsa.arima.model import ARIMA
 
 EXPORT_SCHEMA = "lagdesk-orders"
-EXPORT_VERSIONS = (1, 2, 3)  # version 2 added the not_arima list, version 3 interventions
+# version 2 added the not_arima list, version 3 interventions, version 4 their timestamps in ISO 8601
+EXPORT_VERSIONS = (1, 2, 3, 4)
 TEMPORARY_DECAY = 0.7  # the decay of a temporary_change, as the export's schema states
 LEVELS = (0.80, 0.95)
 OUTPUT_FIELDS = ("series_id", "step", "timestamp", "forecast", "lower_80", "upper_80", "lower_95", "upper_95")

@@ -136,7 +136,7 @@ def test_the_consumer_carries_a_level_shift_into_the_forecasts(exported):
     shifts = order.record["interventions"]
     assert [i["kind"] for i in shifts] == ["level_shift"] and order.record["transform"] == "none"
     prepared, _ = load_prepared(db, SHIFTED)
-    at = list(prepared.index.strftime("%Y-%m-%d")).index(shifts[0]["timestamp"])
+    at = prepared.index.get_loc(pd.Timestamp(shifts[0]["timestamp"]))
     step = (np.arange(prepared.n) >= at).astype(float)
     parameters = dict(order.record["parameters"])
     assert set(parameters) <= {"const", "ar.L1", "ar.L2", "ma.L1", "ma.L2", "sigma2"}

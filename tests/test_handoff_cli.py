@@ -192,7 +192,10 @@ def test_decide_takes_the_reviewers_interventions_and_the_export_carries_them(ru
     assert run_cli("export", "--db", db_path, "-o", target)[0] == 0
     document = json.loads(target.read_text())
     jsonschema.validate(document, SCHEMA)
-    assert [(i["timestamp"], i["kind"]) for i in document["orders"][0]["interventions"]] == [(odd, "additive"), (shift, "level_shift")]
+    # The export writes the times in ISO 8601, as it writes last_timestamp.
+    assert [(i["timestamp"], i["kind"]) for i in document["orders"][0]["interventions"]] == [
+        (f"{odd}T00:00:00", "additive"), (f"{shift}T00:00:00", "level_shift")]
+    assert document["orders"][0]["last_timestamp"].endswith("T00:00:00")
     # The line printed names what was decided besides the orders: scale, constant, interventions.
     code, out, err = run_cli("decide", SID, "override", "--order", "0,0,0", "--no-constant", "--no-interventions", "--confirm",
                            "--reviewer", "ann", "--db", db_path)

@@ -2,7 +2,7 @@
 
 The JSON document (schema ``schemas/lagdesk-orders.schema.json``)::
 
-    {"schema": "lagdesk-orders", "version": 3, "generated_at": "...",
+    {"schema": "lagdesk-orders", "version": 4, "generated_at": "...",
      "orders": [{field: value, ...}, ...], "left_out": {"pending": n, "parked": n, "recheck": n},
      "not_arima": [{"series_id": ..., "reviewer": ..., "decided_at": ..., "note": ...}, ...]}
 
@@ -11,7 +11,9 @@ with the record fields of :data:`app.store.orders.ORDER_FIELDS`; ``transform`` a
 decided no ARIMA order should forecast (intermittent or lumpy demand, say), for the forecasting
 job to route to another method; version 1 had no such list (and no such verdict). Version 3
 added ``interventions`` to each order: the outliers and level shifts to take out of the series
-before the ARIMA applies (:mod:`app.store.orders`).
+before the ARIMA applies (:mod:`app.store.orders`). Version 4 spells the interventions' time
+stamps as ``last_timestamp`` is spelt (ISO 8601, ``2013-12-31T23:00:00``); version 3 wrote them
+as the pages do (``2013-12-31 23:00``, a date alone at midnight).
 
 The CSV holds the orders only: one header row with the same field names and one row per order,
 ``period`` empty for a non-seasonal model, ``include_constant`` ``true``/``false``,
@@ -55,7 +57,7 @@ from app.store.orders import ORDER_FIELDS, export_snapshot, not_arima_series, re
 from app.store.verdicts import DECIDED
 
 SCHEMA_NAME = "lagdesk-orders"
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 FORMATS = ("json", "csv")
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 NEUTRALISING_PREFIX = "'"

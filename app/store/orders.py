@@ -13,7 +13,8 @@ data the forecasting job will no longer see, so the record says so until ``lagde
 confirms the order or sends the series back to the queue (``recheck``).
 
 ``interventions`` are the outliers, level shifts and temporary changes the analysis estimated
-(``timestamp``, ``kind``, ``size`` on the transformed scale; :mod:`app.core.interventions`):
+(``timestamp``, ``kind``, ``size`` on the transformed scale; :mod:`app.core.interventions`;
+the time stamp spelt as ``last_timestamp`` is, :func:`app.store.timestamps.stored_form`):
 the ARIMA order describes the series with their effects taken out, and ``parameters`` were
 fitted to it so. A reviewer who dropped or added one saved their own set with the verdict
 (sizes estimated jointly with the decided order on the decided scale), and that set is carried;
@@ -45,6 +46,7 @@ from app.core.transform_choice import TransformChoice
 from app.core.vocabulary import DECIDED, VerdictStatus
 from app.store.analyses import analysis_from_json
 from app.store.database import utc_now, write_transaction
+from app.store.timestamps import stored_form
 from app.store.verdicts import verdict_counts
 
 ORDER_FIELDS = (
@@ -133,7 +135,8 @@ def _decided(row: dict) -> DecidedOrder:
         "note": row["note"], "data_sha256": row["data_sha256"], "data_changed": row["data_sha256"] != row["fingerprint"],
         "last_timestamp": row["last_timestamp"],
         "engine_version": engine_version, "parameters": parameters,
-        "interventions": [{"timestamp": i.timestamp, "kind": str(i.kind), "size": i.size} for i in interventions],
+        "interventions": [{"timestamp": stored_form(i.timestamp), "kind": str(i.kind), "size": i.size}
+                          for i in interventions],
     }
     return DecidedOrder(record, model, transform, row["fingerprint"], interventions)
 

@@ -31,6 +31,16 @@ def timestamp_keys(index: pd.Index) -> list:
     return keys.tolist()
 
 
+def stored_form(text: str) -> str:
+    """The stored spelling of a time stamp as a reader writes it (``2013-12-31``,
+    ``2013-12-31 23:00``; :func:`app.core.prepare.moment`): ISO text for a date or time, the whole
+    number as it is for a plain step. The export writes every time stamp so, beside
+    ``last_timestamp``."""
+    if text.lstrip("-").isdigit():
+        return text
+    return str(timestamp_keys(pd.DatetimeIndex([pd.Timestamp(text)]))[0])
+
+
 def index_from_keys(keys: list, kind: str) -> pd.Index:
     """The pandas index for stored timestamps of the given kind."""
     if kind == DATETIME:

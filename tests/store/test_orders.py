@@ -7,6 +7,9 @@ the parameters a record must carry are those the engine fitted; the refits kept 
 
 from __future__ import annotations
 
+from datetime import datetime
+
+import pandas as pd
 import pytest
 
 from app.core.errors import LagdeskError
@@ -21,6 +24,7 @@ from app.store.orders import (
     save_order_fit,
 )
 from app.store.series import get_series, series_fingerprint
+from app.store.timestamps import stored_form, timestamp_keys
 from app.store.verdicts import decision_fingerprint, mark_recheck, set_verdict
 
 
@@ -54,13 +58,24 @@ def test_one_record_per_decided_series_with_every_field_from_the_store(decided_d
         "decided_at": a["decided_at"], "note": "as suggested", "data_sha256": decision_fingerprint(decided_db, "a"),
         "data_changed": False, "last_timestamp": get_series(decided_db, "a")["end"], "engine_version": engine_result.engine_version,
         "parameters": candidate.parameter_values(),
-        "interventions": [{"timestamp": i.timestamp, "kind": str(i.kind), "size": i.size} for i in engine_result.interventions],
+        "interventions": [{"timestamp": stored_form(i.timestamp), "kind": str(i.kind), "size": i.size}
+                          for i in engine_result.interventions],
     }
     assert a["decided_at"] is not None and a["data_sha256"] == series_fingerprint(decided_db, "a")
     # A custom order (and another transform than the analysis') has no fitted parameters yet.
     b = orders["b"]
     assert (b.record["d"], b.record["transform"], b.record["decision"], b.record["parameters"]) == (1, "log", "overridden", None)
     assert (b.model.order, b.transform.kind) == ((1, 1, 1), "log")
+
+
+def test_every_time_stamp_of_the_export_is_spelt_as_the_store_spells_it():
+    # The pages write a moment as a reader does (app.core.prepare.moment); the export writes it
+    # as last_timestamp is written, ISO 8601 (datetime.isoformat) or the step's whole number.
+    hourly = pd.date_range("2013-12-30 22:00", periods=3, freq="h")
+    assert [stored_form(text) for text in ("2013-12-30 22:00", "2013-12-31", "2013-12-31 00:00")] == [
+        timestamp_keys(hourly)[0], "2013-12-31T00:00:00", "2013-12-31T00:00:00"]
+    assert stored_form("2013-12-30 22:00") == datetime(2013, 12, 30, 22).isoformat()
+    assert [stored_form(text) for text in ("12", "-7")] == ["12", "-7"]
 
 
 def test_a_kept_refit_fills_the_parameters_until_the_data_change(decided_db, write_csv, monthly):
