@@ -52,6 +52,8 @@ NOT_ANALYSED_SHOWN = 10
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
 BROWSER_DELAY_SECONDS = 1.5
+# What the progress line says while the first series waits on the likelihood's compile.
+COMPILING = "compiling the likelihood first"
 # ``lagdesk export -o -``: the export on standard output, as the convention of Unix tools has it.
 STDOUT = "-"
 
@@ -467,9 +469,8 @@ def run_identify(args: argparse.Namespace) -> int:
     options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
     portfolio = read_named_file(args)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
-    if tasks:
-        announce_compile()
-    progress = ProgressLine(len(tasks), "identify")
+    compiling = bool(tasks) and announce_compile()
+    progress = ProgressLine(len(tasks), "identify", waiting=COMPILING if compiling else None)
     outcomes = {}
     with Ticker(progress):
         for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
@@ -536,13 +537,15 @@ def run_analyze(args: argparse.Namespace) -> int:
     return 0
 
 
-def announce_compile() -> None:
+def announce_compile() -> bool:
     """Say on stderr that the engine's first call will compile the likelihood, when it will:
-    otherwise the command goes quiet for half a minute and looks hung."""
+    otherwise the command goes quiet for half a minute and looks hung. Whether it will."""
     from app.core import numba_cache  # loads numba: called only by commands that run the engine
 
-    if numba_cache.compile_pending():
+    pending = numba_cache.compile_pending()
+    if pending:
         print(numba_cache.COMPILE_NOTICE, file=sys.stderr, flush=True)
+    return pending
 
 
 class RunProgressLine:
@@ -558,9 +561,8 @@ class RunProgressLine:
 
     def __call__(self, progress: RunProgress) -> None:
         if self.line is None:
-            if progress.total:
-                announce_compile()
-            self.line = ProgressLine(progress.total, self.label)
+            compiling = bool(progress.total) and announce_compile()
+            self.line = ProgressLine(progress.total, self.label, waiting=COMPILING if compiling else None)
             self.ticker = Ticker(self.line).start()
         while self.line.done < progress.done:
             self.line.advance(failed=self.line.failed < progress.failed)

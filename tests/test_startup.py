@@ -80,15 +80,20 @@ def test_export_loads_no_engine_library(portfolio_db, tmp_path):
 @pytest.mark.parametrize("pending", [True, False])
 def test_the_compile_notice_is_printed_exactly_when_a_compile_is_pending(monkeypatch, capsys, pending):
     monkeypatch.setattr(numba_cache, "compile_pending", lambda: pending)
-    announce_compile()
+    assert announce_compile() is pending
     assert capsys.readouterr().err == (numba_cache.COMPILE_NOTICE + "\n" if pending else "")
 
 
 @pytest.mark.parametrize(("total", "announced"), [(3, True), (0, False)])
 def test_a_run_announces_the_compile_only_when_it_has_series_to_analyse(monkeypatch, capsys, total, announced):
     monkeypatch.setattr(numba_cache, "compile_pending", lambda: True)
-    RunProgressLine("analyze")(RunProgress(run_id=1, total=total))
-    assert (numba_cache.COMPILE_NOTICE in capsys.readouterr().err) is announced
+    shown = RunProgressLine("analyze")
+    shown(RunProgress(run_id=1, total=total))
+    err = capsys.readouterr().err
+    shown.close()
+    assert (numba_cache.COMPILE_NOTICE in err) is announced
+    # Until the first series finishes, the progress line says what it waits for.
+    assert ("analyze: 0/3 series  0 s  (compiling the likelihood first)" in err) is announced
 
 
 def test_identify_says_it_compiles_before_the_first_series(monkeypatch, capsys, tmp_path):

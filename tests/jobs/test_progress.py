@@ -93,6 +93,19 @@ def test_in_a_log_a_tick_writes_a_line_only_after_a_quiet_spell(clock):
     assert len(stream.getvalue().splitlines()) == 2
 
 
+def test_the_reason_for_waiting_is_shown_until_the_first_series_finishes(clock):
+    # A new-user trial saw twelve log lines of "demo: 0/91 series" during the likelihood's
+    # compile and could not tell a compile from a hang.
+    stream = io.StringIO()
+    line = ProgressLine(91, "demo", stream, waiting="compiling the likelihood first")
+    clock.now = progress.QUIET_LINE_SECONDS
+    line.tick()
+    assert stream.getvalue().splitlines()[-1] == "demo: 0/91 series  10 s  (compiling the likelihood first)"
+    clock.now = progress.QUIET_LINE_SECONDS + 1
+    line.advance()
+    assert line.text() == "demo: 1/91 series  11 s"
+
+
 def test_nothing_is_drawn_after_the_work_is_done(clock):
     stream = Terminal()
     line = ProgressLine(1, "identify", stream)
