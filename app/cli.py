@@ -731,7 +731,7 @@ def run_decide(args: argparse.Namespace) -> int:
                 raise LagdeskError("--all-firm approves each suggestion at its current version: give no --order, --seasonal or --version")
             done = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
             undo = f" (bulk approval {done.bulk_id}: the queue can undo it while none of them changes)" if done.bulk_id else ""
-            _print(done.approved if args.json else terminal_text(f"{len(done.approved)} firm suggestion(s) approved" + (
+            _print(done.approved if args.json else terminal_text(f"{len(done.approved)} firm suggestion{'' if len(done.approved) == 1 else 's'} approved" + (
                 f" under {args.prefix!r}" if args.prefix else "") + undo), args.json)
             if done.approved:
                 print(f"Caution: {SAFETY_CAUTION}", file=sys.stderr)

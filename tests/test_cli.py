@@ -238,7 +238,7 @@ def test_identify_file_level_error_is_one_line_without_traceback(tmp_path, conte
         (["txt,1,1.5", "txt,2,2.5", "txt,3,abc"] + [f"txt,{t},{t % 7}.0" for t in range(4, 41)],
          "txt", f"(line {FIRST_BAD_LINE + 2}): value 'abc' is not a number"),
         ([f"dup,{t},{t % 5}.0" for t in range(1, 41)] + ["dup,7,3.0"],
-         "dup", f"(line {FIRST_BAD_LINE + 40}): timestamp 7 appears more than once"),
+         "dup", f"(line {FIRST_BAD_LINE + 40}): timestamp 7 appears more than once (first at line {FIRST_BAD_LINE + 6})"),
         ([f"flat,{t},4.0" for t in range(1, 41)], "flat", "is constant"),
         ([f"five,{t},{t}.5" for t in range(1, 6)], "five", "has 5 observations"),
     ],
@@ -772,7 +772,7 @@ def test_decide_all_firm_approves_only_the_pending_firm_series_under_the_prefix(
     assert sorted(r["series_id"] for r in new_rows) == expected
     # Nothing is left to approve there: a second run approves none and says so.
     code, out, _ = run_cli("decide", "--all-firm", "--prefix", PREFIX, "--reviewer", "dee", "--db", decide_db)
-    assert (code, out.splitlines()) == (0, [f"0 firm suggestion(s) approved under {PREFIX!r}"])
+    assert (code, out.splitlines()) == (0, [f"0 firm suggestions approved under {PREFIX!r}"])
     assert _snapshot(decide_db)["verdicts"] == after["verdicts"]
 
 

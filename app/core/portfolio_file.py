@@ -37,7 +37,7 @@ DEFAULT_TIME_COL = "timestamp"
 DEFAULT_VALUE_COL = "value"
 _NOT_FINITE_WORDS = frozenset({"nan", "inf", "infinity"})
 # How other programs write a missing value (R's NA, a spreadsheet's #N/A ...): refused, with a hint.
-_MISSING_MARKS = frozenset({"na", "n/a", "#n/a", "-", ".", "null", "none", "missing"})
+_MISSING_MARKS = frozenset({"na", "n/a", "n.a.", "n.a", "#n/a", "#na", "-", ".", "?", "null", "none", "missing"})
 # Dots alone between groups of three digits (1.005: a thousand and five, or one and five thousandths?).
 _DOTS_ALONE = re.compile(r"[+-]?\d{1,3}(\.\d{3})+")
 _THOUSANDS = re.compile(r"[+-]?\d{1,3}(\.\d{3})+(,\d*)?")  # 1.120,5 where a comma marks the decimals

@@ -231,9 +231,11 @@ def _reject_duplicates(values: pd.Series, line_of: pd.Series, sid: str) -> None:
     if duplicated.any():
         i = int(np.flatnonzero(duplicated)[0])
         line = int(line_of.iloc[i])
+        first = int(line_of.iloc[int(np.flatnonzero(values.index == values.index[i])[0])])
+        earlier = f" (first at line {first})" if first > 0 and line > 0 else ""
         raise SeriesProblem(
-            sid, f"timestamp {moment_in(values.index, i)} appears more than once (combine the observations of a timestamp, "
-            "e.g. their sum or mean, before importing)",
+            sid, f"timestamp {moment_in(values.index, i)} appears more than once{earlier}; combine the observations of a "
+            "timestamp, e.g. their sum or mean, before importing",
             row=line if line > 0 else None, flag="duplicate_timestamp",
         )
 

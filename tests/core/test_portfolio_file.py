@@ -159,7 +159,7 @@ def test_semicolons_with_decimal_commas_and_tabs_are_read(tmp_path):
     assert _by_id(read_portfolio(_write(tmp_path, "series_id,timestamp,value\na,1,1.005\n")))["a"].values.tolist() == [1.005]
 
 
-@pytest.mark.parametrize("mark", ["NA", "n/a", "-", "#N/A"])
+@pytest.mark.parametrize("mark", ["NA", "n/a", "n.a.", "-", "#N/A", "?"])
 def test_a_missing_value_written_as_a_word_says_to_leave_the_cell_empty(tmp_path, mark):
     (problem,) = read_portfolio(_write(tmp_path, f"series_id,timestamp,value\na,1,{mark}\nb,1,2\n")).problems
     assert str(problem).endswith(f"value {mark!r} is not a number; a missing value is an empty cell")

@@ -90,7 +90,7 @@ def test_import_rejects_bad_series_by_name_and_line_and_keeps_the_good_ones(fres
     rejected = {r["series_id"]: r for r in report.rejected}
     assert sorted(rejected) == ["dupe", "flat", "short", "text"]
     assert rejected["text"]["row"] == 31 and "'twelve' is not a number" in rejected["text"]["message"]
-    assert rejected["dupe"]["row"] == 62 and "timestamp 2020-03-01 appears more than once" in rejected["dupe"]["message"]
+    assert rejected["dupe"]["row"] == 62 and "timestamp 2020-03-01 appears more than once (first at line 44)" in rejected["dupe"]["message"]
     assert rejected["short"]["flag"] == "too_short" and f"at least {MIN_POINTS}" in rejected["short"]["message"]
     assert rejected["flat"]["flag"] == "constant" and "nothing to model" in rejected["flat"]["message"]
     assert fresh_db.execute("SELECT series_id FROM series").fetchall() == [("good",)]
