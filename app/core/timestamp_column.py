@@ -227,6 +227,16 @@ class TimestampColumn:
     def _parse(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
         """Local clock times (NaT where unreadable) and the UTC offset of each, in minutes (NaN
         where none is written); no offsets at all for a chunk without any."""
+        local, offsets = self._parse_all(texts, fmt)
+        if fmt == ISO8601:
+            # pandas reads 2022/07/01 and 20220701 as ISO 8601 too; the file's dates keep the
+            # first timestamp's separator after the year (a digit in the basic format, 20220701).
+            after_year = texts.str.slice(4, 5).str.replace(r"\d", "0", regex=True)
+            local = local.mask(after_year != re.sub(r"\d", "0", self._first[1][4:5]))
+        return local, offsets
+
+    def _parse_all(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:
+        """:meth:`_parse` before the check of the ISO 8601 separator."""
         if fmt in PERIOD_LAYOUTS:
             return _period_starts(texts, fmt), None
         try:
