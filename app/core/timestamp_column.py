@@ -228,11 +228,13 @@ class TimestampColumn:
         """Local clock times (NaT where unreadable) and the UTC offset of each, in minutes (NaN
         where none is written); no offsets at all for a chunk without any."""
         local, offsets = self._parse_all(texts, fmt)
-        if fmt == ISO8601:
-            # pandas reads 2022/07/01 and 20220701 as ISO 8601 too; the file's dates keep the
-            # first timestamp's separator after the year (a digit in the basic format, 20220701).
-            after_year = texts.str.slice(4, 5).str.replace(r"\d", "0", regex=True)
-            local = local.mask(after_year != re.sub(r"\d", "0", self._first[1][4:5]))
+        separator = self._first[1][4:5]
+        if fmt == ISO8601 and separator and not separator.isdigit():
+            # pandas reads 2022/07/01 and 2022.07.01 as ISO 8601 too: a date keeps the first
+            # timestamp's separator after the year. A year alone (1821, a yearly series beside
+            # monthly ones) has none and stays readable.
+            after_year = texts.str.slice(4, 5)
+            local = local.mask(after_year.str.fullmatch(r"[^\d]") & (after_year != separator))
         return local, offsets
 
     def _parse_all(self, texts: pd.Series, fmt: str) -> tuple[pd.Series, np.ndarray | None]:

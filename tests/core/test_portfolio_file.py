@@ -320,6 +320,8 @@ def test_a_second_date_format_is_refused_on_its_line(tmp_path, tiny_chunks):
     # pandas' ISO 8601 reader takes 2024/04/01 as well; the file's dates keep the first one's separator.
     with pytest.raises(InputFileError, match=r"line 5 \(series 'a'\): timestamp '2024/04/01' is not written like the first timestamp '2024-01-01'"):
         _stamps(tmp_path, ["2024-01-01", "2024-02-01", "2024-03-01", "2024/04/01"])
+    # A year alone has no separator to differ (a yearly series beside monthly ones in one file).
+    assert _stamps(tmp_path, ["1949-01-01", "1821"]).tolist() == pd.to_datetime(["1949-01-01", "1821-01-01"]).tolist()
 
 
 def test_dates_that_read_both_ways_are_refused_unless_the_format_is_given(tmp_path, tiny_chunks):
