@@ -469,8 +469,7 @@ def run_identify(args: argparse.Namespace) -> int:
     options = EngineOptions(max_p=args.max_p, max_q=args.max_q, period=args.period, screening=args.screening)
     portfolio = read_named_file(args)
     tasks = [SeriesTask(s.series_id, s.values, s.lines, options) for s in portfolio.series]
-    compiling = bool(tasks) and announce_compile()
-    progress = ProgressLine(len(tasks), "identify", waiting=COMPILING if compiling else None)
+    progress = ProgressLine(len(tasks), "identify", waiting=compile_waiting(len(tasks)))
     outcomes = {}
     with Ticker(progress):
         for outcome in map_unordered(identify_task, tasks, args.workers, executor=executor_choice(args)):
@@ -548,6 +547,12 @@ def announce_compile() -> bool:
     return pending
 
 
+def compile_waiting(total: int) -> str | None:
+    """What a progress line over ``total`` series waits for first: the likelihood's compile,
+    announced here, when there is work and a compile is pending; else None."""
+    return COMPILING if total and announce_compile() else None
+
+
 class RunProgressLine:
     """Shows a run's progress on a :class:`ProgressLine`, made once the run knows its total and
     kept ticking (:class:`Ticker`) until :meth:`close`, which may be called more than once."""
@@ -561,8 +566,7 @@ class RunProgressLine:
 
     def __call__(self, progress: RunProgress) -> None:
         if self.line is None:
-            compiling = bool(progress.total) and announce_compile()
-            self.line = ProgressLine(progress.total, self.label, waiting=COMPILING if compiling else None)
+            self.line = ProgressLine(progress.total, self.label, waiting=compile_waiting(progress.total))
             self.ticker = Ticker(self.line).start()
         while self.line.done < progress.done:
             self.line.advance(failed=self.line.failed < progress.failed)
