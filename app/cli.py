@@ -31,7 +31,7 @@ from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_u
 from app.jobs.progress import ProgressLine, Ticker
 
 if TYPE_CHECKING:
-    from app.core.analysis import Analysis
+    from app.core.analysis import Analysis, Intervention
     from app.core.portfolio_file import PortfolioFile
     from app.jobs.analyze import RunProgress
     from app.store.imports import ImportReport
@@ -710,7 +710,7 @@ def intervention_option(text: str) -> dict[str, str]:
 
 def run_decide(args: argparse.Namespace) -> int:
     from app.review.bulk import approve_firm
-    from app.review.decisions import ConfirmationNeeded, OverrideNeeded, decide, verdict_of
+    from app.review.decisions import ConfirmationNeeded, OverrideNeeded, carried_interventions, decide, verdict_of
     from app.review.filters import SeriesFilter
     from app.store.database import open_database
     from app.web.deps import clean_reviewer
@@ -759,7 +759,8 @@ def run_decide(args: argparse.Namespace) -> int:
             raise LagdeskError(f"{exc} with --confirm") from None
         except OverrideNeeded as exc:
             raise LagdeskError(f"{exc}; what you gave, as an override: {override_command(args.argv, args.series_id)}") from None
-    _print(verdict if args.json else verdict_line(args.series_id, verdict), args.json)
+        carried = carried_interventions(db, args.series_id, verdict)
+    _print(verdict if args.json else verdict_line(args.series_id, verdict, carried), args.json)
     return 0
 
 
@@ -772,14 +773,19 @@ def override_command(argv: Sequence[str], series_id: str) -> str:
     return typed_command(shlex.join(words))
 
 
-def verdict_line(series_id: str, verdict: dict) -> str:
+def verdict_line(series_id: str, verdict: dict, carried: Sequence[Intervention] = ()) -> str:
     """A verdict in one line: series, status, order with its scale, constant and interventions
-    when the reviewer set them, version."""
+    when the reviewer set them, version; then, on a line of their own, the analysis' own
+    interventions the order takes out of the series (``carried``), which the export hands on."""
     from app.review.decisions import model_words
 
     words = model_words(verdict)
     order = f" {order_label(verdict['order'], verdict['seasonal_order'])}{f' ({words})' if words else ''}" if verdict["order"] else ""
-    return terminal_text(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
+    line = terminal_text(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
+    if carried:
+        line += "\n  " + terminal_text("with the analysis' interventions, which the export hands on: " + "; ".join(
+            f"{i.kind.words()} at {i.timestamp}" for i in carried))
+    return line
 
 
 def _print(value: object, as_json: bool) -> None:

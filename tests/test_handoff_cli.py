@@ -174,6 +174,10 @@ def test_decide_takes_the_reviewers_interventions_and_the_export_carries_them(ru
     assert run_cli("analyze", "--db", db_path, "--workers", 1, "--period", "none")[0] == 0
     weeks = pd.date_range("2020-01-06", periods=N, freq="W-MON").strftime("%Y-%m-%d")
     shift, odd = weeks[40], weeks[10]
+    # Approving the suggestion takes out the analysis' own shift, and the line printed says so,
+    # since the export hands it on with the order.
+    code, out, _ = run_cli("decide", SID, "approve", "--reviewer", "ann", "--db", db_path)
+    assert code == 0 and out.splitlines()[1:] == [f"  with the analysis' interventions, which the export hands on: level shift at {shift}"]
     # The engine's own shift, named again: the analysis' model, nothing of the reviewer's stored.
     code, out, _ = run_cli("decide", SID, "override", "--order", "0,0,0", "--intervention", f"{shift}=level_shift",
                            "--reviewer", "ann", "--json", "--db", db_path)

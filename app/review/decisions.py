@@ -26,6 +26,7 @@ from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, Flag, VerdictStatus
 from app.jobs.order_fits import NUMERICAL_FAILURES, data_period, fit_and_keep, fit_stored_order, load_prepared
 from app.store.analyses import analysis_record, load_analysis
 from app.store.database import UnknownSeries
+from app.store.orders import decided_interventions
 from app.store.series import unknown_series
 from app.store.verdicts import StaleVersion, get_verdict, set_verdict
 
@@ -274,6 +275,15 @@ def _stored_candidate(analysis: Analysis | None, model: Order, choice: Transform
         return None
     return next((c for c in analysis.candidates if c.order == model), None)
 
+
+
+def carried_interventions(db: sqlite_utils.Database, series_id: str, decided: dict) -> tuple[Intervention, ...]:
+    """The analysis' own interventions that a decided order of ``series_id`` takes out of the
+    series (and the export hands on with it) when the reviewer named none; empty when the
+    reviewer named them (:func:`model_words` says those) or the verdict holds no order."""
+    if decided["order"] is None or decided.get("interventions") is not None:
+        return ()
+    return decided_interventions(load_analysis(db, series_id), TransformChoice.from_json(decided["transform"]), None)
 
 
 def verdict_of(db: sqlite_utils.Database, series_id: str) -> dict:
