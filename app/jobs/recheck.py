@@ -7,7 +7,10 @@ on the new data (or takes the analysis' own fit of it, when the analysis fitted 
 the same transform) and sends the verdict back to the queue as ``recheck``, with the reasons in
 words, when
 
-* the differencing decision changed: the analysis now suggests another d or D than the order has;
+* the differencing decision changed: the analysis now suggests another d or D than the analysis
+  the order was decided on did (:func:`~app.store.verdicts.seen_differencing`), and another than
+  the order has. A reviewer who chose another d than the suggestion's did so knowingly: new data
+  that leave the analysis' differencing where it was are no news about it;
 * the order's residuals fail the Ljung-Box test (p < :data:`~app.core.fitting.DECISION_LJUNG_BOX_LEVEL`,
   0.01, the level at which approving it asks for a note; with the lags of
   :func:`~app.core.fitting.ljung_box_lags`): at 5%, a right order would come back at one import in
@@ -52,7 +55,7 @@ from app.jobs.order_fits import data_period, fit_stored_order, load_prepared
 from app.store.analyses import analysis_record
 from app.store.database import write_transaction
 from app.store.orders import decided_interventions, save_order_fit, verdict_model
-from app.store.verdicts import confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck
+from app.store.verdicts import confirm_on_new_data, decision_fingerprint, get_verdict, mark_recheck, seen_differencing
 
 AICC_MARGIN = 10.0
 
@@ -78,18 +81,24 @@ class OrderCheck:
     parameters: dict[str, float] | None = None
 
 
-def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis) -> OrderCheck:
-    """Judge the verdict's order on ``prepared`` against the ``analysis`` of the same data."""
+def check_order(prepared: PreparedSeries, verdict: dict, analysis: Analysis,
+                seen: tuple[int, int] | None = None) -> OrderCheck:
+    """Judge the verdict's order on ``prepared`` against the ``analysis`` of the same data;
+    ``seen`` is the differencing (d, D) of the analysis the verdict was decided on, when known."""
     transform = TransformChoice.from_json(verdict["transform"])
     model, candidate = verdict_model(analysis, verdict["order"], verdict["seasonal_order"], verdict.get("trend"))
     chosen = verdict.get("interventions")
     interventions = decided_interventions(analysis, transform, chosen)
     check = OrderCheck(model, transform, interventions)
     label = model.label()
-    if (analysis.d, analysis.D) != (model.d, model.D):
+    now = (analysis.d, analysis.D)
+    if now != (model.d, model.D) and now != seen:
+        before = f" (d = {seen[0]}, D = {seen[1]} when it was decided)" if seen is not None else ""
         check.reasons.append(
-            f"the analysis now differences d = {analysis.d}, D = {analysis.D}; {label} has d = {model.d}, D = {model.D}"
+            f"the analysis now differences d = {analysis.d}, D = {analysis.D}{before}; {label} has d = {model.d}, D = {model.D}"
         )
+    elif now != (model.d, model.D):
+        check.checked.append(f"the analysis still differences d = {analysis.d}, D = {analysis.D}, as when {label} was chosen")
     if candidate is not None and analysis.transform.to_json() == transform.to_json() and chosen is None:
         lb_p, lb_lags, aicc = candidate.ljung_box_p, candidate.ljung_box_lags, candidate.aicc
     else:
@@ -151,7 +160,7 @@ def recheck_after_analysis(db: sqlite_utils.Database, series_id: str, result: An
     prepared, fingerprint = load_prepared(db, series_id)
     if fingerprint != record["fingerprint"]:
         return None
-    check = check_order(prepared, verdict, result)
+    check = check_order(prepared, verdict, result, seen_differencing(db, series_id))
     data = f"the data changed (now {prepared.n} points to {moment_in(prepared.index, -1)})"
     if check.reasons:
         return _reopen(db, series_id, verdict, f"{data}: " + "; ".join(check.reasons))

@@ -67,6 +67,14 @@ analyses.transform, analyses.suggested_trend, analyses.interventions  the rest o
                       out with it (a JSON list as in the result); filled for older files from the
                       results in ``analysis_results``, each NULL (unknown) when a result does not
                       hold it (results written before interventions were detected hold no list)
+
+Version 7
+---------
+verdicts.seen_differencing  the differencing ``[d, D]`` of the analysis a decided verdict was
+                      decided (or last confirmed) on, so that a re-check asks whether the
+                      analysis changed its mind, not whether a reviewer's deliberate change of d
+                      differs from it; filled for older files from each decided verdict's stored
+                      analysis, NULL where there is none (a re-check then compares the order's d)
 """
 
 from __future__ import annotations
@@ -305,8 +313,21 @@ def analysis_suggested_model(db: sqlite_utils.Database) -> None:
     )
 
 
+# The differencing [d, D] of the series' complete analysis, as a subquery of a statement on verdicts.
+SEEN_DIFFERENCING = ("SELECT json_array(a.d, json_extract(a.suggested_seasonal_order, '$[1]')) FROM analyses a "
+                     "WHERE a.series_id = verdicts.series_id AND a.state = 'complete'")
+
+
+def verdict_seen_differencing(db: sqlite_utils.Database) -> None:
+    """Version 7: the differencing of the analysis each decided verdict was decided on."""
+    db.execute("ALTER TABLE verdicts ADD COLUMN seen_differencing TEXT")
+    db.execute(
+        f"UPDATE verdicts SET seen_differencing = ({SEEN_DIFFERENCING}) WHERE status IN ('approved', 'overridden', 'recheck')"
+    )
+
+
 STEPS = (initial_schema, verdict_data_fingerprint, analysis_main_reason, verdict_choices_and_bulk_undo,
-         verdict_interventions, analysis_suggested_model)
+         verdict_interventions, analysis_suggested_model, verdict_seen_differencing)
 
 MIGRATIONS = Migrations(MIGRATION_SET)
 for _step in STEPS:

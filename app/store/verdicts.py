@@ -6,7 +6,8 @@ was based on; when that is no longer the current one (another reviewer, or new d
 there first) it is refused with :class:`StaleVersion`, so no decision is ever lost silently.
 
 A decision records the fingerprint of the data it was made on (:func:`decision_fingerprint`):
-that of the stored analysis the reviewer was shown, or of the series when there is none. New
+that of the stored analysis the reviewer was shown, or of the series when there is none; and
+that analysis' differencing (:func:`seen_differencing`). New
 data leave the verdict alone; the next analysis refits the order and either sends the verdict
 to ``recheck`` (:func:`mark_recheck`) or records that the order still holds on the new data
 (:func:`confirm_on_new_data`).
@@ -25,6 +26,7 @@ from app.core.errors import LagdeskError, OrderError
 from app.core.order import TRENDS
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, VerdictStatus
 from app.store.database import require_series, utc_now, write_transaction
+from app.store.migrations import SEEN_DIFFERENCING
 
 STATUSES = tuple(VerdictStatus)
 TRANSFORMS = ("none", "log")
@@ -154,7 +156,7 @@ def set_verdict(
         updated = db.execute(
             "UPDATE verdicts SET status = ?, arima_order = ?, seasonal_order = ?, transform = ?, note = ?, "
             "reviewer = ?, version = version + 1, decided_at = ?, recheck_reason = NULL, data_sha256 = ?, trend = ?, "
-            "interventions = ? WHERE series_id = ? AND version = ?",
+            f"interventions = ?, seen_differencing = ({SEEN_DIFFERENCING}) WHERE series_id = ? AND version = ?",
             [status, _dumps(new_order), _dumps(new_seasonal), json.dumps(new_transform),
              str(note), str(reviewer), decided_at, seen, trend if new_order is not None else None,
              _dumps([i.to_dict() for i in interventions]) if interventions is not None and new_order is not None else None,
@@ -210,7 +212,8 @@ def confirm_on_new_data(db: sqlite_utils.Database, series_id: str, data_sha256: 
         if current["version"] != version or current["status"] not in DECIDED:
             return False
         db.execute(
-            "UPDATE verdicts SET data_sha256 = ?, version = version + 1 WHERE series_id = ?",
+            f"UPDATE verdicts SET data_sha256 = ?, seen_differencing = ({SEEN_DIFFERENCING}), version = version + 1 "
+            "WHERE series_id = ?",
             [data_sha256, series_id],
         )
         _append_history(db, series_id, current["status"], reviewer=SYSTEM_REVIEWER, note=note)
@@ -224,6 +227,18 @@ def decision_fingerprint(db: sqlite_utils.Database, series_id: str) -> str | Non
     if row is None:
         require_series(db, series_id)
     return row[0]
+
+
+def seen_differencing(db: sqlite_utils.Database, series_id: str) -> tuple[int, int] | None:
+    """The differencing (d, D) of the analysis the series' verdict was decided (or last confirmed)
+    on; None when it was decided without an analysis, or before Lagdesk kept it."""
+    row = db.execute("SELECT seen_differencing FROM verdicts WHERE series_id = ?", [series_id]).fetchone()
+    if row is None:
+        require_series(db, series_id)
+    if row[0] is None:
+        return None
+    d, D = json.loads(row[0])
+    return int(d), int(D)
 
 
 def _fingerprint_seen(db: sqlite_utils.Database, series_id: str) -> str | None:

@@ -24,13 +24,14 @@ from app.core.fitting import fit_candidate
 from app.core.order import validate_order
 from app.core.prepare import prepare_series
 from app.core.transform import TransformChoice
+from app.jobs.order_fits import load_prepared
 from app.jobs.recheck import AICC_MARGIN, check_order, log_jacobian, recheck_after_analysis
 from app.jobs.work import SeriesTask, identify_task
 from app.store.analyses import save_analysis, save_failure
 from app.store.database import open_database
 from app.store.imports import import_portfolio
 from app.store.series import list_series, load_series, series_fingerprint
-from app.store.verdicts import decision_fingerprint, get_verdict, set_verdict, verdict_history
+from app.store.verdicts import decision_fingerprint, get_verdict, seen_differencing, set_verdict, verdict_history
 
 SID = "polar/room-1/temp"
 LEVEL = 20.0
@@ -127,6 +128,31 @@ def test_changed_data_on_which_the_order_holds_keep_it_and_record_the_check(appr
     # Once confirmed on this data, another analysis of it changes nothing.
     assert recheck_after_analysis(approved, SID, analyse(approved)) is None
     assert get_verdict(approved, SID)["version"] == verdict["version"]
+
+
+def test_an_override_of_d_stays_while_the_analysis_keeps_its_own_differencing(approved, tmp_path, noise):
+    # The reviewer differences the white noise against the suggestion (d = 0). More white noise
+    # leaves the analysis at d = 0: no news about the reviewer's choice, so the verdict stays.
+    # Data that move the analysis (a random walk appended) bring it back, saying what changed.
+    set_verdict(approved, SID, status="overridden", order=[0, 1, 1], seasonal_order=[0, 0, 0, 0], reviewer="ann",
+                note="a local level", version=get_verdict(approved, SID)["version"])
+    assert seen_differencing(approved, SID) == (0, 0)
+    more = np.r_[noise, LEVEL + np.random.default_rng(8).normal(size=30)]
+    import_portfolio(approved, write_series(tmp_path / "v2.csv", more))
+    result = analyse(approved)
+    assert (result.d, result.D) == (0, 0)
+    assert recheck_after_analysis(approved, SID, result) is None
+    assert get_verdict(approved, SID)["status"] == "overridden"
+    assert "the analysis still differences d = 0, D = 0, as when ARIMA(0,1,1)" in verdict_history(approved, SID)[-1]["note"]
+    walk = more[-1] + np.cumsum(np.random.default_rng(9).normal(scale=3.0, size=150))
+    import_portfolio(approved, write_series(tmp_path / "v3.csv", np.r_[more, walk]))
+    result = analyse(approved)
+    assert result.d == 1
+    # d = 1 now agrees with the order: that is no reason to look again either.
+    assert "differences" not in (recheck_after_analysis(approved, SID, result) or "")
+    # Against an order of d = 0 decided on a d = 0 analysis, the same move is a reason.
+    assert "d = 0, D = 0 when it was decided" in check_order(
+        load_prepared(approved, SID)[0], {**get_verdict(approved, SID), "order": [0, 0, 0]}, result, (0, 0)).reasons[0]
 
 
 def test_a_reviewer_who_decides_during_the_check_wins(approved, tmp_path, noise, monkeypatch):

@@ -16,6 +16,7 @@ from app.core.vocabulary import InterventionKind
 from app.store.database import DEFAULT_DB_NAME, open_database, resolve_db_path, schema_version
 from app.store.migrations import MIGRATION_SET, MIGRATIONS, STEPS
 from app.store.series import list_series, suggested_models
+from app.store.verdicts import seen_differencing
 
 TABLES = {"imports", "series", "observations", "runs", "analyses", "verdicts", "verdict_history", "order_fits"}
 
@@ -152,3 +153,23 @@ def test_upgrade_fills_the_suggested_model_of_stored_analyses_from_their_results
     assert suggested_models(db, ["b-v1", "a-current", "unknown"]) == {sid: suggested[sid] for sid in ("a-current", "b-v1")}
     db.close()
 
+
+
+def test_upgrade_fills_the_differencing_each_decided_verdict_was_decided_on(tmp_path):
+    # A version 6 file: an approved verdict with a seasonal analysis (d = 1, D = 1), an overridden
+    # one whose analysis failed, and a pending one. Only decided verdicts with a complete
+    # analysis get a differencing; the others stay unknown (a re-check then compares the order's).
+    path = tmp_path / "old.db"
+    old = sqlite_utils.Database(path)
+    MIGRATIONS.apply(old, stop_before="verdict_seen_differencing")
+    for sid, status, state in (("a", "approved", "complete"), ("b", "overridden", "failed"), ("c", "pending", "complete")):
+        old["series"].insert(_old_series_row(sid))
+        old["verdicts"].insert({"series_id": sid, "status": status, "transform": '"none"', "note": "", "reviewer": "",
+                                "version": 1})
+        old["analyses"].insert({"series_id": sid, "fingerprint": "f", "state": state, "confidence": "weak", "flags": "[]",
+                                "d": 1, "suggested_order": "[0, 1, 1]", "suggested_seasonal_order": "[0, 1, 1, 12]",
+                                "analysed_at": "2026-01-01"})
+    old.close()
+    db = open_database(path)
+    assert [seen_differencing(db, sid) for sid in "abc"] == [(1, 1), None, None]
+    db.close()
