@@ -190,6 +190,12 @@ def write_transaction(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Databa
         yield db
 
 
+def prefix_match(column: str, prefix: str) -> tuple[str, list]:
+    """The SQL condition that ``column`` (a series id) starts with ``prefix``, and its parameters.
+    substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too)."""
+    return f"substr({column}, 1, ?) = ?", [len(prefix), prefix]
+
+
 def require_series(db: sqlite_utils.Database, series_id: str) -> None:
     """Raise :class:`UnknownSeries` unless the database holds ``series_id``."""
     if db.execute("SELECT 1 FROM series WHERE series_id = ?", [series_id]).fetchone() is None:

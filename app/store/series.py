@@ -16,7 +16,7 @@ from app.core.engine_version import ENGINE_VERSION
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.vocabulary import AWAITING, NOT_FIRM_FLAGS, WEAK_FLAGS, WORDED_DOUBT_FLAGS, Confidence, Flag
 from app.store.analyses import ANALYSIS_STATE_SQL, EARLIER_ENGINE_SQL
-from app.store.database import UnknownSeries
+from app.store.database import UnknownSeries, prefix_match
 from app.store.verdicts import STATUSES, verdict_counts
 
 if TYPE_CHECKING:
@@ -163,11 +163,6 @@ def series_ids_to_analyse(db: sqlite_utils.Database, everything: bool = False) -
     return [series_id for (series_id,) in rows]
 
 
-# substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too).
-# Parameters: the prefix's length, the prefix.
-_PREFIX_SQL = "substr({column}, 1, ?) = ?"
-
-
 def _where(
     status: str | Iterable[str] | None, confidence: str | Iterable[str] | None, flag: str | None, q: str | None,
     prefix: str | None = None,
@@ -194,8 +189,9 @@ def _where(
         clauses.append("instr(lower(s.series_id), lower(?)) > 0")
         params.append(q)
     if prefix:
-        clauses.append(_PREFIX_SQL.format(column="s.series_id"))
-        params.extend([len(prefix), prefix])
+        clause, values = prefix_match("s.series_id", prefix)
+        clauses.append(clause)
+        params.extend(values)
     return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
 
 
@@ -460,10 +456,10 @@ def group_counts(db: sqlite_utils.Database, depth: int, prefix: str | None = Non
     if depth < 1:
         raise LagdeskError(f"depth ({depth}) must be at least 1")
     # verdicts holds one row per series: the series table is not needed to count them.
-    where, params = (f"WHERE {_PREFIX_SQL.format(column='v.series_id')}", [len(prefix), prefix]) if prefix else ("", [])
+    where, params = prefix_match("v.series_id", prefix) if prefix else ("1", [])
     groups: dict[str, dict] = {}
     for series_id, status, confidence in db.execute(
-        f"SELECT v.series_id, v.status, a.confidence FROM verdicts v LEFT JOIN analyses a ON a.series_id = v.series_id {where}",
+        f"SELECT v.series_id, v.status, a.confidence FROM verdicts v LEFT JOIN analyses a ON a.series_id = v.series_id WHERE {where}",
         params,
     ):
         group = id_group(series_id, depth)
@@ -490,26 +486,27 @@ def flags_present(db: sqlite_utils.Database) -> dict[str, int]:
     ).fetchall())
 
 
-def confidence_counts(db: sqlite_utils.Database) -> dict[str, int]:
-    """How many stored analyses (current or stale) hold each confidence level, weakest first, as
-    the confidence filter sees them."""
+def confidence_counts(db: sqlite_utils.Database, prefix: str | None = None) -> dict[str, int]:
+    """How many stored analyses (current or stale; of the series under ``prefix``, when given)
+    hold each confidence level, weakest first, as the confidence filter sees them."""
     counts = dict.fromkeys(CONFIDENCE_LEVELS, 0)
-    counts.update(
-        db.execute("SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL GROUP BY confidence").fetchall()
-    )
+    where, params = prefix_match("series_id", prefix) if prefix else ("1", [])
+    counts.update(db.execute(
+        f"SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL AND {where} GROUP BY confidence", params
+    ).fetchall())
     return counts
 
 
-def count_by(db: sqlite_utils.Database) -> dict:
-    """Counts for the dashboard's filters.
+def count_by(db: sqlite_utils.Database, prefix: str | None = None) -> dict:
+    """Counts for the dashboard's filters, of the whole portfolio or of the series under ``prefix``.
 
     ``{"confidence": {level: n}, "status": {status: n}, "total": n, "reviewed": n}``: the
     confidence of each series' stored analysis (as the confidence filter sees it), every
     verdict status, and ``reviewed`` = approved + overridden + not_arima.
     """
-    status = verdict_counts(db)
+    status = verdict_counts(db, prefix)
     return {
-        "confidence": confidence_counts(db),
+        "confidence": confidence_counts(db, prefix),
         "status": status,
         "total": sum(status.values()),
         "reviewed": status["approved"] + status["overridden"] + status["not_arima"],

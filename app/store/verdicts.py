@@ -25,7 +25,7 @@ from app.core.analysis import Intervention
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import TRENDS
 from app.core.vocabulary import DECIDED, REVIEWER_STATUSES, VerdictStatus
-from app.store.database import require_series, utc_now, write_transaction
+from app.store.database import prefix_match, require_series, utc_now, write_transaction
 from app.store.migrations import SEEN_DIFFERENCING
 
 STATUSES = tuple(VerdictStatus)
@@ -289,10 +289,12 @@ def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
     ]
 
 
-def verdict_counts(db: sqlite_utils.Database) -> dict[str, int]:
-    """How many series hold each status (every status present, zero when unused)."""
+def verdict_counts(db: sqlite_utils.Database, prefix: str | None = None) -> dict[str, int]:
+    """How many series (those whose id starts with ``prefix``, when given) hold each status
+    (every status present, zero when unused)."""
     counts = dict.fromkeys((str(s) for s in STATUSES), 0)
-    counts.update(db.execute("SELECT status, count(*) FROM verdicts GROUP BY status").fetchall())
+    where, params = prefix_match("series_id", prefix) if prefix else ("1", [])
+    counts.update(db.execute(f"SELECT status, count(*) FROM verdicts WHERE {where} GROUP BY status", params).fetchall())
     return counts
 
 

@@ -117,7 +117,8 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
         item["model_terms"] = model_terms(item["suggested"])
     target = flt.firm_pending()
     firm_in_filter = list_series(db, limit=0, **target.store_kwargs())[0] if target else 0
-    counts = count_by(db)
+    counts = count_by(db, flt.prefix)  # of the group the page shows, as its list and bulk action
+    portfolio = count_by(db)["status"] if flt.prefix else counts["status"]  # the export takes every group
     return {
         "filter": flt,
         "total": total,
@@ -133,6 +134,7 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
         "keep": {} if limit == default_limit else {"limit": limit},
         "counts": counts,
         "reviewed_share": counts["reviewed"] / counts["total"] if counts["total"] else 0.0,
+        "handoff": {"decided": portfolio["approved"] + portfolio["overridden"], "recheck": portfolio["recheck"]},
         "firm_in_filter": firm_in_filter,
         "waiting_in_filter": count_waiting(db, flt),
         "statuses": STATUSES,

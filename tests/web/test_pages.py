@@ -155,6 +155,11 @@ def test_queue_picks_a_group_by_prefix_with_counts_and_a_breadcrumb(client, resu
     inside_b = client.get("/", params={"prefix": "plant-b/"}).text
     assert f"Approve {len(firm_b)} firm suggestion" in inside_b
     assert "approve-firm?prefix=plant-b%2F" in inside_b  # the bulk approval keeps to the group
+    # The summary counts the group too, so its numbers agree with the list and the bulk button.
+    in_b = [sid for sid in results if sid.startswith("plant-b/")]
+    assert re.search(rf'Reviewed in plant-b/</span>\s*<span class="stat-value">0 <span class="muted">of {len(in_b)}</span>', inside_b)
+    firm_tile = re.search(r'stat-label"><span class="conf conf-firm".*?<span class="stat-value">(\d+)</span>', inside_b, re.S)
+    assert firm_tile and int(firm_tile.group(1)) == len(firm_b)
 
 
 def test_queue_parks_ticked_rows_with_one_note(client, db, results):
