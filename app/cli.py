@@ -761,6 +761,8 @@ def run_decide(args: argparse.Namespace) -> int:
             raise LagdeskError(f"{exc}; what you gave, as an override: {override_command(args.argv, args.series_id)}") from None
         carried = carried_interventions(db, args.series_id, verdict)
     _print(verdict if args.json else verdict_line(args.series_id, verdict, carried), args.json)
+    if verdict["status"] in DECIDED:
+        print(f"Caution: {SAFETY_CAUTION}", file=sys.stderr)
     return 0
 
 

@@ -648,7 +648,7 @@ def test_decide_approve_records_the_suggestion_and_a_history_row(run_cli, decide
     code, out, err = run_cli("decide", "north/b", "approve", "--reviewer", " Ann   Lee\n", "--note", "a clear AR(1)",
                              "--db", decide_db)
 
-    assert (code, err) == (0, "")
+    assert (code, err) == (0, f"Caution: {SAFETY_CAUTION}\n")  # said wherever an order is decided
     constant = suggested.term_words().strip() or "without a constant"
     assert out.splitlines() == [f"north/b: approved {suggested.label()} ({constant}) (version 1, by Ann Lee)"]
     verdict = _read(decide_db, get_verdict, "north/b")
@@ -670,7 +670,7 @@ def test_decide_override_stores_the_order_given_and_json_prints_the_stored_verdi
     code, out, err = run_cli("decide", "north/a", "override", "--order", "1,0,0", "--seasonal", "1,0,0,4",
                              "--reviewer", "bob", "--note", "a season of four", "--json", "--db", decide_db)
 
-    assert (code, err) == (0, "")
+    assert (code, err) == (0, f"Caution: {SAFETY_CAUTION}\n")  # on stderr: stdout stays the JSON
     printed = json.loads(out)
     verdict = _read(decide_db, get_verdict, "north/a")
     assert printed == verdict
@@ -690,7 +690,7 @@ def test_a_refused_approval_prints_the_override_that_runs_as_printed(run_cli, de
     command = shlex.split(err.split("what you gave, as an override: ")[1])
     assert Path(command[0]).name == "lagdesk" or command[0] == "lagdesk"
     code, out, err = run_cli(*command[1:])
-    assert (code, err) == (0, "")
+    assert (code, err) == (0, f"Caution: {SAFETY_CAUTION}\n")
     [row] = _read(decide_db, verdict_history, "north/a")
     assert (row["status"], row["order"], row["seasonal_order"], row["reviewer"], row["note"]) == (
         "overridden", [1, 0, 0], [1, 0, 0, 4], "bob", "a season of four")

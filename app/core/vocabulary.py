@@ -121,7 +121,7 @@ FLAG_WORDS: dict[str, str] = {
 
 SAFETY_CAUTION = ("suggestions are statistical. Where a series feeds safety-relevant monitoring, follow the site's "
                   "engineering procedures.")
-"""Said on every page and where the command line approves in bulk."""
+"""Said on every page, beside every decision form, and where the command line decides an order."""
 
 
 # How the engine writes a flag among its confidence reasons (app.core.confidence).

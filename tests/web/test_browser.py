@@ -75,6 +75,19 @@ def test_the_candidate_table_fits_its_panel_on_a_laptop_screen(browser, live_ser
     assert widths[0] <= widths[1], widths
 
 
+@pytest.mark.parametrize("path", ["/", "/upload", "/runs", *(series_url("", sid) for sid in DEMO_IDS)])
+def test_no_page_is_wider_than_a_phone_screen(browser, live_server, path):
+    # At 390 px the top bar had forced every page to 633 px and a review page's column to about
+    # 670 px, cutting off the reviewer field, the approve button and the charts' right edge (a
+    # new-user trial). Wide tables scroll inside their own box; the page itself must not.
+    context = browser.new_context(viewport={"width": 390, "height": 844})
+    page = context.new_page()
+    page.goto(live_server + path)
+    width = page.evaluate("document.documentElement.scrollWidth")
+    context.close()
+    assert width <= 390, width
+
+
 def test_approve_key_saves_a_verdict_seen_in_the_queue(page, live_server):
     set_reviewer(page, live_server)
     target = "polarquay/freezer-5/temp-c"

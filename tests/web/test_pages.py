@@ -637,6 +637,15 @@ def test_every_page_keeps_the_safety_caution(client, path):
     assert f"Caution: {SAFETY_CAUTION}" in re.sub(r"<[^>]+>", "", html.unescape(client.get(path).text))
 
 
+@pytest.mark.parametrize("path", [f"/series/{SERIES}", "/approve-firm?prefix=plant-b%2F"])
+def test_the_caution_stands_beside_every_decision_form_not_only_in_the_footer(client, path):
+    # A reviewer approving a sensor channel reads the form, not the footer 3,000 px below it.
+    text = client.get(path).text
+    form = text.index('<form id="decision"') if "/series/" in path else text.index('name="expected"')
+    caution = text.find("data-caution")
+    assert 0 < caution < form
+
+
 def test_the_page_words_a_series_id_may_not_end_in_are_the_pages_served_after_one():
     # An id ending in one of them (edge/compare) was stored but could not be opened: its URL
     # was that of a page of the series before it (an attack on the server found it). The GET
