@@ -7,7 +7,8 @@ saved from a form, sent by a script or typed in a terminal is checked the same w
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
+from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass, replace
 
 import sqlite_utils
@@ -315,6 +316,7 @@ def decide(
     include_constant: bool | None = None,
     interventions: ChosenInterventions | None = None,
     confirm: bool = False,
+    computing: Callable[[], AbstractContextManager[object]] = nullcontext,
 ) -> dict:
     """Check and save a verdict; returns the new verdict.
 
@@ -332,7 +334,10 @@ def decide(
     (the data changed since) needs ``confirm``, and so does saving an order other than the
     suggestion whose residuals fail the Ljung-Box test at 1%. An order the analysis did not
     fit with this transform and term is fitted here (and the fit kept for the export), which
-    also checks that a log or Box-Cox transform meets positive data.
+    also checks that a log or Box-Cox transform meets positive data. The checks and fits of an
+    order run inside ``computing()`` (the server's computation slot; nothing on the command
+    line), and the version is checked again once inside: of concurrent saves at one version,
+    only the first fits.
 
     Raises
     ------
@@ -368,6 +373,20 @@ def decide(
             raise DecisionError(f"series {series_id!r}: a transform, constant or interventions go with an order")
         return set_verdict(db, series_id, status=status, order=None, seasonal_order=None, note=note,
                            reviewer=reviewer, version=version)
+    with computing():
+        current = verdict_of(db, series_id)
+        if current["version"] != version:  # another save got there while this one waited
+            raise StaleVersion(series_id, version, current)
+        return _decide_order(db, series_id, analysis, status, order, seasonal_order, note, reviewer, version,
+                             transform, include_constant, interventions, confirm)
+
+
+def _decide_order(
+    db: sqlite_utils.Database, series_id: str, analysis: Analysis | None, status: str, order: Sequence[int],
+    seasonal_order: Sequence[int] | None, note: str, reviewer: str, version: int, transform: str | dict | None,
+    include_constant: bool | None, interventions: ChosenInterventions | None, confirm: bool,
+) -> dict:
+    """The part of :func:`decide` for a verdict with an order: its checks, fits and gates."""
     prepared, fingerprint = load_prepared(db, series_id)
     model = with_constant(checked_order(analysis, prepared.n, order, seasonal_order), include_constant)
     choice = checked_transform(series_id, analysis, transform)

@@ -6,7 +6,7 @@ from __future__ import annotations
 import os
 import re
 import threading
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import AbstractContextManager, contextmanager
 from urllib.parse import quote, unquote
 
@@ -26,6 +26,9 @@ COOKIE_MAX_AGE_S = 365 * 24 * 3600
 SQLITE_MAX_INTEGER = 2**63 - 1
 _ASCII_DIGITS = re.compile(r"[0-9]+")
 REVIEWER_MAX_LENGTH = 80
+# How long a reviewer's save waits for the series' computation slot before it is told the
+# server is busy (a forecast check of the same series, or as many fits as CPUs, are running).
+SAVE_WAIT_S = 60.0
 
 
 def get_settings(request: Request) -> Settings:
@@ -67,20 +70,23 @@ class SeriesSlots:
     answering for a minute)."""
 
     def __init__(self, limit: int | None = None) -> None:
-        self._lock = threading.Lock()
+        self._lock = threading.Condition()
         self._busy: set[str] = set()
         self.limit = limit or os.cpu_count() or 1
 
     @contextmanager
-    def hold(self, series_id: str) -> Iterator[None]:
-        """Run the block as the series' one computation.
+    def hold(self, series_id: str, wait: float = 0.0) -> Iterator[None]:
+        """Run the block as the series' one computation, once a slot is free: at once, or
+        within ``wait`` seconds (a reviewer's save waits its turn rather than being refused).
 
         Raises
         ------
         SeriesBusy
-            When another computation of ``series_id`` has not finished, or ``limit`` are running.
+            When another computation of ``series_id`` has not finished, or ``limit`` are running
+            (still, after ``wait`` seconds).
         """
         with self._lock:
+            self._lock.wait_for(lambda: series_id not in self._busy and len(self._busy) < self.limit, timeout=wait)
             if series_id in self._busy:
                 raise SeriesBusy(
                     f"series {series_id!r} is already busy with a forecast check or fit; "
@@ -97,12 +103,21 @@ class SeriesSlots:
         finally:
             with self._lock:
                 self._busy.discard(series_id)
+                self._lock.notify_all()
 
 
-def computation_slot(request: Request, series_id: str) -> AbstractContextManager[None]:
+def computation_slot(request: Request, series_id: str, wait: float = 0.0) -> AbstractContextManager[None]:
     """The series' one slot for a forecast check or a custom fit (:class:`SeriesSlots`), to
-    hold while it runs; :class:`SeriesBusy` (429) when it is taken."""
-    return request.app.state.series_slots.hold(series_id)
+    hold while it runs; :class:`SeriesBusy` (429) when it is taken (after ``wait`` seconds)."""
+    return request.app.state.series_slots.hold(series_id, wait)
+
+
+def saving_slot(request: Request, series_id: str) -> Callable[[], AbstractContextManager[None]]:
+    """What a save holds while it fits an order (:func:`app.review.decisions.decide`): the
+    series' computation slot, waited for up to :data:`SAVE_WAIT_S` seconds. Concurrent saves of
+    one series then fit one at a time, and each after the first finds its version stale before
+    fitting; saves of many series fit no more at once than the server has slots."""
+    return lambda: computation_slot(request, series_id, SAVE_WAIT_S)
 
 
 def clean_reviewer(name: str | None) -> str:

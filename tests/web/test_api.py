@@ -222,7 +222,7 @@ def test_verdict_stale_version_is_409_with_current_verdict(client, db):
 
 
 def test_verdict_unknown_series_is_404(client):
-    response = client.post(url("no/such", "/verdict"), json={"status": "parked", "version": 0})
+    response = client.post(url("no/such", "/verdict"), json={"status": "parked", "version": 0, "reviewer": "Ann"})
     assert response.status_code == 404
 
 
@@ -268,13 +268,13 @@ def test_a_page_with_a_parameter_out_of_range_answers_with_the_error_page(client
 def test_verdict_approved_must_be_the_suggestion(client, results):
     p, d, q = results[SERIES].suggested.order.order
     other = [p + 1, d, q]
-    response = client.post(url(SERIES, "/verdict"), json={"status": "approved", "order": other, "version": 0})
+    response = client.post(url(SERIES, "/verdict"), json={"status": "approved", "order": other, "version": 0, "reviewer": "Ada"})
     assert response.status_code == 422
     assert "overridden" in response.json()["detail"]
 
 
 def test_verdict_override_needs_an_order(client):
-    response = client.post(url(SERIES, "/verdict"), json={"status": "overridden", "version": 0})
+    response = client.post(url(SERIES, "/verdict"), json={"status": "overridden", "version": 0, "reviewer": "Ada"})
     assert response.status_code == 422
 
 
@@ -523,3 +523,39 @@ def test_synthetic_portfolio_is_what_the_fixture_wrote(results):
     # Guards the other tests' premises: every good series analysed, the constant one rejected,
     # and the one series stored with an earlier engine's analysis.
     assert set(results) == set(synthetic_series()) - {CONSTANT_ID} | {"shop-1/flour"}
+
+
+def test_a_verdict_without_a_reviewer_or_with_a_boolean_version_is_refused_and_nothing_saved(client, db):
+    before = get_verdict(db, SERIES)
+    for body in ({"status": "approved", "version": 0}, {"status": "approved", "version": 0, "reviewer": "\u202e\x00\x1b "},
+                 {"status": "approved", "version": True, "reviewer": "Ada"}):
+        assert client.post(url(SERIES, "/verdict"), json=body).status_code == 422, body
+    assert get_verdict(db, SERIES) == before
+
+
+def test_concurrent_overrides_of_one_series_fit_once_and_the_rest_are_stale(client, db, monkeypatch):
+    # A save that fits an order takes the series' computation slot and checks its version again
+    # inside it: 42 concurrent overrides at one version had each fitted before being refused
+    # (a server attack froze the pages for 73 s). Now one fits; the others wait and get 409.
+    import threading
+
+    import app.review.decisions as decisions
+
+    fits, real = [], decisions.fit_and_keep
+
+    def counted(*args, **kwargs):
+        fits.append(1)
+        time.sleep(0.3)  # long enough for the other saves to queue for the slot
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(decisions, "fit_and_keep", counted)
+    body = {"status": "overridden", "order": [3, 0, 2], "version": 0, "reviewer": "Ada", "note": "n", "confirm": True}
+    codes: list[int] = []
+    threads = [threading.Thread(target=lambda: codes.append(client.post(url(SERIES, "/verdict"), json=body).status_code))
+               for _ in range(4)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert sorted(codes) == [200, 409, 409, 409] and len(fits) == 1
+    assert get_verdict(db, SERIES)["version"] == 1

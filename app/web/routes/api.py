@@ -36,7 +36,16 @@ from app.store.runs import get_run, latest_run, list_runs
 from app.store.series import count_by, group_counts, list_series
 from app.store.status import portfolio_status
 from app.store.verdicts import get_verdict, verdict_history
-from app.web.deps import SQLITE_MAX_INTEGER, clean_reviewer, computation_slot, get_db, get_runs_db, get_settings, whole_numbers
+from app.web.deps import (
+    SQLITE_MAX_INTEGER,
+    clean_reviewer,
+    computation_slot,
+    get_db,
+    get_runs_db,
+    get_settings,
+    saving_slot,
+    whole_numbers,
+)
 from app.web.queue import rejected_in_filter
 from app.web.security import CSRF_HEADER, CSRF_PATH, csrf_token
 from app.web.uploads import UploadOptions, import_upload
@@ -185,7 +194,7 @@ class VerdictIn(BaseModel):
     note: Note = Field("", description=f"at most {MAX_NOTE_LENGTH:,} characters; needed to approve a suggestion "
                        "that did not converge, fails Ljung-Box at 1%, lacks standard errors or is for intermittent demand")
     reviewer: str = ""
-    version: int = Field(ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
+    version: int = Field(strict=True, ge=0, le=SQLITE_MAX_INTEGER, description="the verdict version the decision was based on")
 
 
 class FitIn(BaseModel):
@@ -304,17 +313,26 @@ def groups(db: Db, depth: Annotated[int, Query(ge=1, le=MAX_GROUP_DEPTH)] = 1,
     return group_counts(db, depth, prefix)
 
 
+def named_reviewer(name: str | None) -> str:
+    """The reviewer a request names, as stored (:func:`app.web.deps.clean_reviewer`); 422 when
+    nothing is left of it: every verdict records who decided it."""
+    reviewer = clean_reviewer(name)
+    if not reviewer:
+        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    return reviewer
+
+
 @router.post("/series/{series_id:path}/verdict", response_model=Verdict)
-def series_verdict(db: Db, series_id: str, body: VerdictIn) -> dict:
+def series_verdict(request: Request, db: Db, series_id: str, body: VerdictIn) -> dict:
     """Record a decision; refused with 409 (and the current verdict) when ``version`` is not
-    current, before any fit the decision needs. Saving takes no computation slot: a reviewer's
-    save is never told the server is busy, and the version stops a stale one fitting."""
+    current, before any fit the decision needs. A save that fits an order waits for the series'
+    computation slot (:func:`app.web.deps.saving_slot`; 429 when it stays taken)."""
     try:
         return decide(
             db, series_id, status=body.status, order=body.order, seasonal_order=body.seasonal_order,
-            note=body.note, reviewer=clean_reviewer(body.reviewer), version=body.version,
+            note=body.note, reviewer=named_reviewer(body.reviewer), version=body.version,
             transform=body.transform, include_constant=body.include_constant, interventions=chosen(body.interventions),
-            confirm=body.confirm,
+            confirm=body.confirm, computing=saving_slot(request, series_id),
         )
     except OverrideNeeded as exc:
         raise OverrideNeeded(f"{exc}: send the status 'overridden' with the same fields") from None
@@ -387,9 +405,7 @@ def portfolio(db: Db) -> dict:
 @router.post("/approve-firm", response_model=BulkApproval)
 def bulk_approve(db: Db, flt: Filter, body: BulkApprovalIn) -> dict:
     """Approve the suggestion of every pending series with a firm, current analysis in the filter."""
-    reviewer = clean_reviewer(body.reviewer)
-    if not reviewer:
-        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    reviewer = named_reviewer(body.reviewer)
     done = approve_firm(db, flt, reviewer, body.note)
     return {"bulk_id": done.bulk_id, "count": len(done.approved), "approved": done.approved}
 
@@ -404,9 +420,7 @@ def bulk_approval(db: Db, bulk_id: BulkId) -> dict:
 def bulk_undo(db: Db, bulk_id: BulkId, body: UndoIn) -> dict:
     """Reopen (pending) every series the bulk approval approved, all or none: refused with 409,
     naming the series, when any of them changed since (or it was undone already)."""
-    reviewer = clean_reviewer(body.reviewer)
-    if not reviewer:
-        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    reviewer = named_reviewer(body.reviewer)
     reopened = undo_bulk_approval(db, bulk_id, reviewer, body.note)
     return {"count": len(reopened), "reopened": reopened}
 
@@ -415,9 +429,7 @@ def bulk_undo(db: Db, bulk_id: BulkId, body: UndoIn) -> dict:
 def bulk_park(db: Db, flt: Filter, body: ParkIn) -> dict:
     """Park, with one note, the listed series (or every series of the filter) that wait for a
     decision (pending or recheck); decided and parked ones are left alone."""
-    reviewer = clean_reviewer(body.reviewer)
-    if not reviewer:
-        raise HTTPException(status_code=422, detail="reviewer must not be empty")
+    reviewer = named_reviewer(body.reviewer)
     ids = waiting_ids(db, flt) if body.series_ids is None else body.series_ids
     parked = park(db, ids, reviewer, body.note)
     return {"count": len(parked), "parked": parked}

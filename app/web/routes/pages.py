@@ -38,6 +38,7 @@ from app.web.deps import (
     get_runs_db,
     get_settings,
     remember_reviewer,
+    saving_slot,
     whole_numbers,
 )
 from app.web.errors import status_of
@@ -195,7 +196,7 @@ def save_verdict(request: Request, db: Db, flt: Filter, series_id: str,
         status, order, seasonal, transform, include_constant, interventions = data.decision(load_analysis(db, series_id))
         decide(db, series_id, status=status, order=order, seasonal_order=seasonal, note=data.note,
                reviewer=reviewer, version=data.version, transform=transform, include_constant=include_constant,
-               interventions=interventions, confirm=data.confirm)
+               interventions=interventions, confirm=data.confirm, computing=saving_slot(request, series_id))
     except ConfirmationNeeded as exc:
         # The page comes back with the custom fit shown (and its tick beside it), as after Fit.
         with computation_slot(request, series_id):
