@@ -21,7 +21,10 @@ The CSV holds the orders only: one header row with the same field names and one 
 JSON object, ``interventions`` as a JSON array. A text cell that a spreadsheet would
 read as a formula (one starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return)
 gets a leading single quote, as OWASP's guidance on CSV injection advises; numbers are left as
-they are, so a negative value stays a number.
+they are, so a negative value stays a number. A cell holding a semicolon is quoted, so a
+spreadsheet that splits on semicolons keeps it whole, and a part after a semicolon that
+starts like a formula gets the quote too (such a spreadsheet starts a cell there when the
+line is read with semicolons).
 
 A file is written whole or not at all: into a temporary file in the same folder, flushed to
 disk, then renamed over the target (:func:`os.replace` is atomic on one file system). A new
@@ -38,8 +41,6 @@ References
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 import os
 import re
@@ -60,6 +61,7 @@ SCHEMA_NAME = "lagdesk-orders"
 SCHEMA_VERSION = 4
 FORMATS = ("json", "csv")
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+CSV_QUOTED = (",", '"', "\r", "\n", ";")
 NEUTRALISING_PREFIX = "'"
 _PLAIN_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 
@@ -127,12 +129,18 @@ def parse_statuses(text: str | Sequence[str] | None) -> list[str]:
 
 def orders_csv(orders: list[dict]) -> str:
     """The orders as CSV text: a header row of :data:`ORDER_FIELDS`, then one row per order."""
-    buffer = io.StringIO()
-    writer = csv.writer(buffer)
-    writer.writerow(ORDER_FIELDS)
-    for order in orders:
-        writer.writerow([_csv_cell(order[name]) for name in ORDER_FIELDS])
-    return buffer.getvalue()
+    rows = [list(ORDER_FIELDS), *([_csv_cell(order[name]) for name in ORDER_FIELDS] for order in orders)]
+    return "".join(",".join(_quoted(cell) for cell in row) + "\r\n" for row in rows)
+
+
+def _quoted(cell: str) -> str:
+    """A cell as RFC 4180 writes it (in double quotes, its own doubled, when it holds a comma, a
+    quote or a line break), and quoted as well when it holds a semicolon, which a spreadsheet
+    set to split on semicolons then keeps whole (:func:`neutralise_formula` guards the parts
+    for one that reads the whole line with semicolons)."""
+    if any(c in cell for c in CSV_QUOTED):
+        return '"' + cell.replace('"', '""') + '"'
+    return cell
 
 
 def _csv_cell(value) -> str:
@@ -150,11 +158,12 @@ def _csv_cell(value) -> str:
 def neutralise_formula(text: str) -> str:
     """``text`` with a leading single quote when a spreadsheet would run it as a formula.
 
-    A plain number (``-3``, ``+1.5e2``) is left alone: it is not a formula.
+    So does each part after a semicolon: a spreadsheet that splits on semicolons starts a cell
+    there, quoted or not (a quote in mid-field opens nothing). A plain number (``-3``,
+    ``+1.5e2``) is left alone: it is not a formula.
     """
-    if text.startswith(FORMULA_STARTS) and not _PLAIN_NUMBER.fullmatch(text):
-        return NEUTRALISING_PREFIX + text
-    return text
+    return ";".join(NEUTRALISING_PREFIX + part if part.startswith(FORMULA_STARTS) and not _PLAIN_NUMBER.fullmatch(part)
+                    else part for part in text.split(";"))
 
 
 def write_atomically(path: Path, text: str) -> None:

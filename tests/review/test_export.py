@@ -201,6 +201,7 @@ def test_csv_export_round_trips_with_formula_cells_neutralised(db, tmp_path):
     ("=1+2", "'=1+2"), ("+SUM(A1)", "'+SUM(A1)"), ("-2+3+cmd|' /C calc'!A0", "'-2+3+cmd|' /C calc'!A0"),
     ("@SUM(A1)", "'@SUM(A1)"), ("\t=1", "'\t=1"), ("\r=1", "'\r=1"),
     ("-3", "-3"), ("-0.25", "-0.25"), ("+1.5e2", "+1.5e2"), ("plain", "plain"), ("", ""), ("a=b", "a=b"),
+    ("ok;=1+2", "ok;'=1+2"), ("a;-3;b", "a;-3;b"), ("=x;@y", "'=x;'@y"),
 ])
 def test_neutralise_formula_follows_owasp_but_leaves_numbers(text, expected):
     assert neutralise_formula(text) == expected
@@ -310,3 +311,22 @@ def test_a_file_that_cannot_be_created_is_named_in_the_error_not_the_temporary_o
         write_export(db, target, "json")
     assert caught.value.filename == str(target) and "cannot write it" in str(caught.value)
     assert ".tmp" not in str(caught.value)
+
+
+def test_a_cell_with_a_semicolon_is_quoted_so_no_spreadsheet_cuts_a_formula_out_of_it():
+    # A spreadsheet in a locale that splits CSV on semicolons cut the unquoted note
+    # "fine;=HYPERLINK(...)" into a second cell starting with "=" (a server attack). RFC 4180
+    # §2.6-2.7: a quoted field keeps its separators; a quote inside is doubled.
+    record = {name: 0 for name in ORDER_FIELDS}
+    record.update(series_id="shop;=cmd|' /C calc'!A0", period=None, transform="none", include_constant=True,
+                  parameters={}, note='fine;=HYPERLINK("http://x.example/","Click")', last_timestamp="2024-01-01")
+    text = orders_csv([record])
+    line = text.splitlines()[1]
+    assert line.startswith('"shop;\'=cmd|\' /C calc\'!A0",')
+    assert ',"fine;\'=HYPERLINK(""http://x.example/"",""Click"")",' in line
+    # Read with either separator, no cell starts like a formula.
+    for delimiter in (",", ";"):
+        cells = next(csv.reader(text.splitlines()[1:], delimiter=delimiter))
+        assert not any(c.lstrip('"').startswith("=") for c in cells), (delimiter, cells)
+    row = next(csv.DictReader(text.splitlines()))
+    assert (row["series_id"], row["note"]) == ("shop;'=cmd|' /C calc'!A0", 'fine;\'=HYPERLINK("http://x.example/","Click")')
