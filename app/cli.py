@@ -26,6 +26,7 @@ from app import __version__
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
 from app.core.order import MAX_ORDER, order_label
+from app.core.series_ids import visible
 from app.core.vocabulary import DECIDED, SAFETY_CAUTION, Confidence, VerdictStatus, reason_words
 from app.jobs.executors import EXECUTORS, ExecutorChoice, default_workers, map_unordered
 from app.jobs.progress import ProgressLine, Ticker
@@ -106,15 +107,6 @@ def typed_command(command: str) -> str:
     after the path of its script (:func:`lagdesk_script`)."""
     script = lagdesk_script()
     return f"{PROG if script is None else path_as_typed(script)} {command}"
-
-
-def terminal_text(text: str) -> str:
-    """``text`` safe to print on a terminal: each character that is not printable (the escape
-    that starts a terminal control sequence, a newline, a direction mark) written as its Python
-    escape (``\\x1b``), so a series id or a cell can neither rewrite the screen nor break a line."""
-    if text.isprintable():
-        return text
-    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)
 
 
 def whole_number(text: str, minimum: int, name: str = "it", accepted: str = "a whole number", hint: str = "") -> int:
@@ -506,7 +498,7 @@ def import_report_text(report: ImportReport, db_path: Path) -> str:
     lines += [f"  rejected: {r['message']}" for r in report.rejected]
     if report.added or report.updated:
         lines.append(f"Next: {typed_command(f'analyze --db {shlex.quote(str(db_path))}')}")
-    return "\n".join(map(terminal_text, lines))
+    return "\n".join(map(visible, lines))
 
 
 def run_analyze(args: argparse.Namespace) -> int:
@@ -596,7 +588,7 @@ def run_summary_text(run: dict, problems: list[dict], status: dict, rechecked: S
         lines.append(f"{len(rechecked)} decided order{'s' if len(rechecked) > 1 else ''} sent back to the queue as recheck:")
         lines += _first_lines([f"{r['series_id']}: {r['reason']}" for r in rechecked], "the queue's recheck filter")
     lines.append(f"{status['analysed']} of {status['series']} series have a current analysis.")
-    return "\n".join(map(terminal_text, lines))
+    return "\n".join(map(visible, lines))
 
 
 def run_status(args: argparse.Namespace) -> int:
@@ -643,7 +635,7 @@ def _first_lines(lines: list[str], listed_by: str = "status --json") -> list[str
     shown = [f"  {line}" for line in lines[:NOT_ANALYSED_SHOWN]]
     if len(lines) > NOT_ANALYSED_SHOWN:
         shown.append(f"  ... and {len(lines) - NOT_ANALYSED_SHOWN} more ({listed_by} lists them all)")
-    return list(map(terminal_text, shown))
+    return list(map(visible, shown))
 
 
 def status_text(status: dict, last: dict | None, db_path: Path) -> str:
@@ -735,7 +727,7 @@ def run_decide(args: argparse.Namespace) -> int:
                 raise LagdeskError("--all-firm approves each suggestion at its current version: give no --order, --seasonal or --version")
             done = approve_firm(db, SeriesFilter(prefix=args.prefix), reviewer, args.note)
             undo = f" (bulk approval {done.bulk_id}: the queue can undo it while none of them changes)" if done.bulk_id else ""
-            _print(done.approved if args.json else terminal_text(f"{len(done.approved)} firm suggestion{'' if len(done.approved) == 1 else 's'} approved" + (
+            _print(done.approved if args.json else visible(f"{len(done.approved)} firm suggestion{'' if len(done.approved) == 1 else 's'} approved" + (
                 f" under {args.prefix!r}" if args.prefix else "") + undo), args.json)
             if done.approved:
                 print(f"Caution: {SAFETY_CAUTION}", file=sys.stderr)
@@ -783,9 +775,9 @@ def verdict_line(series_id: str, verdict: dict, carried: Sequence[Intervention] 
 
     words = model_words(verdict)
     order = f" {order_label(verdict['order'], verdict['seasonal_order'])}{f' ({words})' if words else ''}" if verdict["order"] else ""
-    line = terminal_text(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
+    line = visible(f"{series_id}: {verdict['status']}{order} (version {verdict['version']}, by {verdict['reviewer'] or 'unknown'})")
     if carried:
-        line += "\n  " + terminal_text("with the analysis' interventions, which the export hands on: " + "; ".join(
+        line += "\n  " + visible("with the analysis' interventions, which the export hands on: " + "; ".join(
             f"{i.kind.words()} at {i.timestamp}" for i in carried))
     return line
 
@@ -836,7 +828,7 @@ def backtest_text(check: dict) -> str:
         return "n/a" if value is None else f"{value:.3f}"
 
     lines = [
-        f"{terminal_text(check['series_id'])}: {check['label']}, transform {json.dumps(check['transform'])}, "
+        f"{visible(check['series_id'])}: {check['label']}, transform {json.dumps(check['transform'])}, "
         f"horizon {check['horizon']}, {check['origins']} origins (refitted at each)",
         f"  MASE {number(check['mase'])}   seasonal naive MASE {number(check['naive_mase'])} (m={check['m']})",
         "  interval coverage: " + ", ".join(f"{level}% -> {share:.0%}" for level, share in check["coverage"].items()),
@@ -858,7 +850,7 @@ def run_demo(args: argparse.Namespace) -> int:
     try:
         build_demo_database(
             path, args.workers, on_progress=shown,
-            on_import=lambda report: print(terminal_text(report.summary()), flush=True),
+            on_import=lambda report: print(visible(report.summary()), flush=True),
         )
     finally:
         shown.close()
@@ -880,7 +872,7 @@ def demo_next_steps(db_path: Path, status: dict, serving: bool = True) -> str:
         (typed_command("analyze --db my.db"), "and analyse them"),
     ]
     width = max(len(command) for command, _ in steps)
-    lines = [terminal_text(
+    lines = [visible(
         f"Demo portfolio ready in {db_path}: {status['series']} series, {status['analysed']} analysed "
         f"({counts_text(status['confidence'])})."
     )]
@@ -891,7 +883,7 @@ def demo_next_steps(db_path: Path, status: dict, serving: bool = True) -> str:
     kept = sum(n for state, n in status["verdicts"].items() if state != VerdictStatus.PENDING)
     if kept:
         lines.append(f"{kept} decision{'s' if kept > 1 else ''} from earlier runs kept; delete {db} to start afresh.")
-    lines += ["Next:", *(terminal_text(f"  {command.ljust(width)}  {what}") for command, what in steps)]
+    lines += ["Next:", *(visible(f"  {command.ljust(width)}  {what}") for command, what in steps)]
     script = lagdesk_script()
     if script is not None and (script.parent / "activate").is_file():
         lines.append(f"(Or run 'source {path_as_typed(script.parent / 'activate')}' once and type just {PROG}.)")
@@ -924,15 +916,15 @@ def identify_table(results: list[Analysis], problems: list[dict]) -> str:
     rows = [("series", "n", "d", "suggested", "transform", "confidence", "flags", "main reason")]
     for r in results:
         rows.append((
-            terminal_text(r.series_id), str(r.n), str(r.d), r.suggested.full_label, r.transform.name(), str(r.confidence),
-            ", ".join(r.flags) or "-", terminal_text(why(r)),
+            visible(r.series_id), str(r.n), str(r.d), r.suggested.full_label, r.transform.name(), str(r.confidence),
+            ", ".join(r.flags) or "-", visible(why(r)),
         ))
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]) - 1)]
     lines = ["  ".join(cell.ljust(w) for cell, w in zip(row[:-1], widths)) + "  " + row[-1] for row in rows] if results else []
     counts = ", ".join(f"{sum(r.confidence == level for r in results)} {level}" for level in Confidence)
     lines += [""] if results else []
     lines.append(f"{len(results)} series identified ({counts}); {len(problems)} could not be analysed.")
-    lines += [terminal_text(f"  problem: {p['message']}") for p in problems]
+    lines += [visible(f"  problem: {p['message']}") for p in problems]
     return "\n".join(lines)
 
 
@@ -956,17 +948,17 @@ def _run(parser: argparse.ArgumentParser, argv: Sequence[str] | None) -> int:
     except BrokenPipeError:
         raise
     except LagdeskError as exc:
-        print(terminal_text(f"lagdesk {args.command}: {exc}"), file=sys.stderr)
+        print(visible(f"lagdesk {args.command}: {exc}"), file=sys.stderr)
         return EXIT_INPUT_ERROR
     except sqlite3.Error as exc:
         from app.store.database import resolve_db_path, storage_error_text
 
         db = resolve_db_path(args.db) if "db" in vars(args) else None
-        print(terminal_text(f"lagdesk {args.command}: {storage_error_text(exc, db)}"), file=sys.stderr)
+        print(visible(f"lagdesk {args.command}: {storage_error_text(exc, db)}"), file=sys.stderr)
         return EXIT_STORAGE_ERROR
     except OSError as exc:  # a full disk or a missing permission outside the database
         where = f"{exc.filename}: " if exc.filename else ""
-        print(terminal_text(f"lagdesk {args.command}: {where}{exc.strerror or exc}"), file=sys.stderr)
+        print(visible(f"lagdesk {args.command}: {where}{exc.strerror or exc}"), file=sys.stderr)
         return EXIT_STORAGE_ERROR
     except KeyboardInterrupt:
         print(f"lagdesk {args.command}: interrupted", file=sys.stderr)

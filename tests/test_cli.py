@@ -36,13 +36,13 @@ from app.cli import (
     main,
     path_as_typed,
     server_settings,
-    terminal_text,
     typed_command,
 )
 from app.core.errors import LagdeskError, SeriesProblem
 from app.core.order import Order
 from app.core.portfolio_file import RawSeries, read_portfolio
 from app.core.prepare import prepare_series
+from app.core.series_ids import visible
 from app.core.vocabulary import DECIDED, SAFETY_CAUTION, Confidence, reason_words
 from app.jobs.analyze import run_analysis
 from app.jobs.demo import DEMO_PORTFOLIO, build_demo_database
@@ -500,8 +500,8 @@ def test_import_and_identify_apply_the_limits_and_date_format_given(run_cli, tmp
     ("two\nlines\r", "two\\nlines\\r"),
     ("back\u202ewards", "back\\u202ewards"),
 ])
-def test_terminal_text_escapes_what_a_terminal_would_act_on(text, shown):
-    assert terminal_text(text) == shown
+def test_visible_escapes_what_a_terminal_would_act_on(text, shown):
+    assert visible(text) == shown
 
 
 @pytest.mark.parametrize("command", ["analyze", "status"])

@@ -141,7 +141,7 @@ def prepare_series(
     observed = prepared.observed
     if observed < MIN_POINTS:
         raise SeriesProblem(
-            sid, f"has {observed} observations; at least {MIN_POINTS} are needed to identify a model",
+            sid, f"has {observed} observation{'' if observed == 1 else 's'}; at least {MIN_POINTS} are needed to identify a model",
             flag="too_short",
         )
     if observed < MIN_OBSERVED_SHARE * prepared.n:

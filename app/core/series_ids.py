@@ -50,3 +50,13 @@ def printable(text: str, keep: str = "") -> str:
     separator characters), except those in ``keep``: for reviewer names and notes, which are
     shown and exported as ids are."""
     return "".join(c for c in text if c in keep or unicodedata.category(c) not in _UNSAFE_CATEGORIES)
+
+
+def visible(text: str) -> str:
+    """``text`` safe to show on a terminal or a page: each character that is not printable (the
+    escape that starts a terminal control sequence, a newline, a direction mark) written as its
+    Python escape (``\\x1b``, ``\\u202e``), so a series id or a cell can neither rewrite the
+    screen, break a line, nor turn the text around it."""
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)

@@ -61,6 +61,12 @@ class ImportReport:
     def to_dict(self) -> dict:
         return asdict(self)
 
+    def rejections(self) -> list[dict]:
+        """The rejected series for a table with a column for the id and one for the line:
+        ``{"series_id", "line", "reason"}``, the reason without the id and line it starts with."""
+        return [{"series_id": r["series_id"], "line": r.get("row"),
+                 "reason": problem_reason(r["series_id"], r["message"], r.get("row"))} for r in self.rejected]
+
     def summary(self) -> str:
         revised = (f" ({len(self.revised)} of them with stored values changed, e.g. {self.revised[0]!r})"
                    if self.revised else "")

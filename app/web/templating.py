@@ -15,6 +15,7 @@ import app
 from app.core.order import order_label
 from app.core.p_values import p_text
 from app.core.prepare import frequency_words
+from app.core.series_ids import visible
 from app.core.vocabulary import SAFETY_CAUTION, flag_words, reason_words
 from app.store.series import FLAG_SEVERITY
 from app.web.deps import get_reviewer
@@ -108,7 +109,7 @@ def csrf_field(context: dict) -> Markup:
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(TEMPLATES_DIR), autoescape=True, undefined=StrictUndefined)
     env.filters.update(number=number, p_value=p_value, percent=percent, flag_words=flag_words, reason_words=reason_words, quote_path=quote_path,
-                       freq_words=freq_words, when=when, significant=significant)
+                       freq_words=freq_words, when=when, significant=significant, visible=visible)
     env.globals.update(order_label=order_label, url_for=url_for,
                        csrf_field=csrf_field, severity_tiers=_severity_tiers(), safety_caution=SAFETY_CAUTION)
     return env

@@ -566,6 +566,26 @@ def test_upload_page_imports_and_reports(client, tmp_path):
     assert "Start the analysis" in response.text
 
 
+def test_upload_report_shows_rejected_ids_escaped_and_each_reason_once(client, tmp_path):
+    # A rejected id with a direction override and an escape had reached the page raw (a server
+    # attack), and the Reason cell repeated the series and line its own columns show.
+    hostile = "shop\u202eevil\x1b"
+    rows = ["series_id,timestamp,value", "short,2020-01-01,1"]
+    rows += [f"{hostile},2020-{m:02d}-01,{m}" for m in range(1, 13)]
+    path = tmp_path / "odd.csv"
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    with path.open("rb") as handle:
+        text = client.post("/upload", files={"file": ("odd.csv", handle, "text/csv")}, data={"layout": "long"}).text
+    assert "\u202e" not in text and "\x1b" not in text
+    assert "shop\\u202eevil\\x1b" in text
+    cells = re.findall(r"<tr><td>([^<]*)</td><td class=\"num\">[^<]*</td><td>([^<]*)</td></tr>", text)
+    reasons = dict(cells)
+    assert reasons["short"] == "has 1 observation; at least 12 are needed to identify a model"
+    assert not any(html.unescape(r).startswith(("series ", "line ")) for r in reasons.values()), reasons
+    queue = client.get("/").text
+    assert "\u202e" not in queue and "shop\\u202eevil\\x1b" in queue
+
+
 @pytest.mark.parametrize(("sent", "shown"), [
     ("..", "upload.csv"),
     ("x" * 300 + ".csv", "x" * 251 + ".csv"),  # 255 bytes, the limit of a file name
