@@ -330,12 +330,12 @@ def score_confidence(ranked: list[CandidateFit], flags: list[str], criterion: st
     if nesting is not None and nesting[1] < nested_level(n):
         rival, p = nesting
         words = rival.model.term_words() if rival.model.trend != best.model.trend else ""
-        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test ({p_words(p)}, "
+        reasons.append(f"{rival.model.label()}{words} fits better by a likelihood-ratio test ({p_words(p, level=nested_level(n))}, "
                        f"below {_level_words(n)})")
     reasons += [doubt for doubt in (unit_root_doubt(best), short_series_doubt(best)) if doubt is not None]
     if reasons:
         return ConfidenceScore(Confidence.TENTATIVE, reasons)
     clean = "clean checks" + (f"; the best rival trails by {margin:.1f}" if math.isfinite(margin) else "")
     if nesting is not None:
-        clean += f"; no larger model fits better (likelihood-ratio {p_words(nesting[1])} at best, {_level_words(n)})"
+        clean += f"; no larger model fits better (likelihood-ratio {p_words(nesting[1], level=nested_level(n))} at best, {_level_words(n)})"
     return ConfidenceScore(Confidence.FIRM, [clean])

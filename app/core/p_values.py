@@ -40,7 +40,16 @@ def p_text(p: float, test: str = "") -> str:
     return f"> {1 - P_FLOOR:.3f}" if text == f"{1:.3f}" else text
 
 
-def p_words(p: float, test: str = "") -> str:
-    """``p = 0.004``, ``p < 0.001``, or for a test whose p-values are clipped to a table, ``p > 0.10``."""
+def p_words(p: float, test: str = "", level: float | None = None) -> str:
+    """``p = 0.004``, ``p < 0.001``, or for a test whose p-values are clipped to a table, ``p > 0.10``.
+
+    Beside a ``level`` it is compared with, a p-value that three decimals would round onto the
+    level's own digits gets as many more as tell them apart (``p = 0.1566`` below 15.73%,
+    not ``p = 0.157`` "below" 15.7%)."""
     text = p_text(p, test)
+    if level is not None and text[0] not in "<>" and p != level:
+        digits = 3
+        while f"{p:.{digits}f}" == f"{level:.{digits}f}" and digits < 8:
+            digits += 1
+        text = f"{p:.{digits}f}"
     return f"p {text}" if text[0] in "<>" else f"p = {text}"

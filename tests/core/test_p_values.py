@@ -50,3 +50,13 @@ def test_a_kpss_p_value_clipped_to_the_ends_of_its_table_reads_as_a_bound():
     assert (p_text(wandering.p_value, wandering.name), p_words(wandering.p_value, wandering.name)) == ("< 0.01", "p < 0.01")
     # Inside the table a KPSS p-value reads as any other; another test's 0.10 is not a bound.
     assert (p_text(0.05, "KPSS"), p_text(0.1, "ADF"), p_text(0.1)) == ("0.050", "0.100", "0.100")
+
+
+@pytest.mark.parametrize(("p", "level", "words"), [
+    (0.1566, 0.157, "p = 0.1566"),  # "p = 0.157, below the 15.7% level" read as a contradiction
+    (0.15699, 0.157, "p = 0.15699"),
+    (0.0401, 0.05, "p = 0.040"),  # three decimals tell it from the level: nothing added
+    (0.0004, 0.05, "p < 0.001"),
+])
+def test_a_p_value_beside_its_level_gets_the_digits_that_tell_them_apart(p, level, words):
+    assert p_words(p, level=level) == words
