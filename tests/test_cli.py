@@ -553,8 +553,9 @@ def test_demo_refuses_a_database_with_other_series(small_csv, tmp_path):
     with open_database(db_path) as db:
         import_portfolio(db, small_csv)
 
-    with pytest.raises(LagdeskError, match="not demo series"):
+    with pytest.raises(LagdeskError, match="not demo series") as refused:
         build_demo_database(db_path, workers=1)
+    assert f"'lagdesk serve --db {db_path}'" in str(refused.value)  # what to do with the file instead
     with open_database(db_path) as db:
         assert portfolio_status(db)["series"] == SERIES
 

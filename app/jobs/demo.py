@@ -47,8 +47,9 @@ def build_demo_database(
         foreign = [series_id for series_id in series_ids_to_analyse(db, everything=True) if series_id not in demo_ids]
         if foreign:
             raise LagdeskError(
-                f"{path}: holds {len(foreign)} series that are not demo series (e.g. {foreign[0]!r}); "
-                "choose another file for the demo with --db"
+                f"{path}: holds {len(foreign)} series that are not demo series (e.g. {foreign[0]!r}), perhaps "
+                f"uploaded on the demo's dashboard; the demo keeps away from them: serve that file with "
+                f"'lagdesk serve --db {path}', or choose another file for the demo with --db"
             )
         report = import_portfolio(db, DEMO_PORTFOLIO, display_name="demo_data/portfolio.csv")
     finally:
