@@ -7,17 +7,25 @@ feeds safety monitoring it is the first thing a reviewer must be told.
 
 How long a run must be depends on how often the series repeats a value anyway: readings of a
 continuous quantity written to many digits almost never do, counts and coarsely rounded
-readings often do. The longest run of consecutive observed points with one value, ``L``
-points long, is judged against the series' own rate of repeats ``p``, the share of
-consecutive observed pairs outside that run whose values are equal, estimated with Laplace's
-rule of succession, ``(k + 1) / (m + 2)`` for ``k`` repeats among ``m`` pairs (common practice:
-a series with no other repeat still has a rate above zero). If repeats
-came independently at that rate, a run of at least ``L`` points would start at a given point
-with probability ``p^(L-1)``; over the ``n`` points where one could start, the run is flagged
-when ``n p^(L-1)`` is below :data:`FAMILY_LEVEL` (the Bonferroni bound, Dunn 1961), and when it is
-at least :data:`MIN_RUN` points long. Independence is the generous assumption for an
-autocorrelated series, whose repeats cluster a little; a run that passes the bound is still
-far beyond what the series' own rounding explains. In sparse demand (intermittent or lumpy,
+readings often do. The longest run of consecutive observed points with one value ``v``, ``L``
+points long, is judged against the rate ``p`` at which the series itself would continue a run
+of ``v``, the larger of two estimates taken outside that run: the share of consecutive
+observed pairs whose values are equal, and the share of observed points that equal ``v``, each
+with Laplace's rule of succession, ``(k + 1) / (m + 2)`` for ``k`` of ``m`` (common practice: a
+series with no other repeat still has a rate above zero). The first is the chance that two
+neighbours agree, which takes in how much a rounded autocorrelated series lingers; the second
+is the chance that a point is ``v`` at all, which is what a run of ``v`` continues with when
+values come independently: for the commonest value it is the larger, since the first is
+``sum P(u)^2`` there. With the first alone, runs of zeros in smooth demand (a demand in five
+periods of six) were flagged in 15-20% of simulated series at n = 120-240, and runs of the
+modal value of rounded white noise in 7-9% (a review; seeded, 1,000 series a cell). The share
+of ``v`` among points, not among pairs that start at ``v``: a stuck stretch split by a gap
+would make the second half evidence that the series stays at ``v``. If the run went on at rate
+``p``, a run of at least ``L`` points would start at a given point with probability
+``p^(L-1)``; over the ``n`` points where one could start, the run is flagged when
+``n p^(L-1)`` is below :data:`FAMILY_LEVEL` (the Bonferroni bound, Dunn 1961), and when it is
+at least :data:`MIN_RUN` points long. A run that passes the bound is far beyond what the
+series' own rounding and its own frequency of that value explain. In sparse demand (intermittent or lumpy,
 :func:`app.core.demand.classify_demand`) a run of zeros is a stretch without demand, not a
 repeated reading, and is not counted; the rate of repeats is then that of a demand followed by
 the same demand, among the pairs that start with a demand (counted among all pairs, the
@@ -100,7 +108,10 @@ def longest_flat_run(values: np.ndarray, index: pd.Index, demand: bool = False) 
     outside = np.ones_like(pairs)
     outside[start:stop] = False
     m, k = int(np.count_nonzero(pairs & outside)), int(np.count_nonzero(equal & outside))
-    rate = (k + 1) / (m + 2)
+    points = ~np.isnan(y)
+    points[start:stop + 1] = False
+    n_v = int(np.count_nonzero(points & (y == y[start])))
+    rate = max((k + 1) / (m + 2), (n_v + 1) / (int(np.count_nonzero(points)) + 2))
     if y.size * math.pow(rate, length - 1) >= FAMILY_LEVEL:
         return None
     return FlatRun(start, stop, float(y[start]), length, k / m if m else 0.0, moment_in(index, start), moment_in(index, stop))
