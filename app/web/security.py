@@ -18,7 +18,12 @@
   script elsewhere cannot make this server compute a forecast check.
 * **CSRF.** Every state-changing request carries a CSRF token equal to the ``lagdesk_csrf``
   cookie the server set (the double-submit pattern): another site can make a browser send a
-  request here but cannot read the cookie to copy it. Page forms send it as the ``csrf_token``
+  request here but cannot read the cookie to copy it. The token is signed (a random part and
+  its HMAC-SHA256 under a key this server process draws at start), and a cookie whose
+  signature fails is replaced, not trusted: cookies are not kept apart by port, so a program
+  serving another port of this machine could set the cookie to a value it also puts in a form
+  (a server attack showed a forged pair accepted). After a restart, a page open from before
+  gets one refusal asking to reload. Page forms send it as the ``csrf_token``
   field (or the header); the API needs the ``X-CSRF-Token`` header, which a cross-site form
   cannot send at all. A script gets the token and the cookie from ``GET /api/csrf``; a call
   carrying the access token in its ``X-Lagdesk-Token`` header needs no CSRF token, as no
@@ -187,8 +192,10 @@ async def check_csrf(request: Request) -> None:
 
 
 def _matches_cookie(request: Request, given: str | None) -> bool:
+    """Whether ``given`` equals the cookie and the cookie is this server's (signed by it: the
+    guard keeps only such a cookie as the request's token, :class:`AccessGuard`)."""
     cookie = request.cookies.get(CSRF_COOKIE)
-    return bool(cookie) and tokens_match(given, cookie or "")
+    return bool(cookie) and cookie == request.scope["state"]["csrf_token"] and tokens_match(given, cookie or "")
 
 
 def safe_next(target: str | None) -> str:
@@ -208,20 +215,22 @@ class AccessGuard:
         self.settings = settings
         self.token = settings.access_token
         self.hosts = HostAllowList(settings)
+        self.csrf_key = secrets.token_bytes(32)
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return
         request = Request(scope)
+        cookie = request.cookies.get(CSRF_COOKIE)
+        existing = cookie if self._signed(cookie) else None
+        token = existing or self._new_csrf_token()
+        scope.setdefault("state", {})["csrf_token"] = token
         limit = BodyLimit.for_path(request.url.path, self.settings)
         refusal = self._refusal(request, limit)
         if refusal is not None:
             await _respond(send, refusal, api=_is_api(request.url.path))
             return
-        existing = request.cookies.get(CSRF_COOKIE)
-        token = existing or secrets.token_urlsafe(32)
-        scope.setdefault("state", {})["csrf_token"] = token
         receive = counted_receive(receive, limit, self.settings.request_timeout_s)
         if existing:
             await self.app(scope, receive, send)
@@ -234,6 +243,20 @@ class AccessGuard:
             await send(message)
 
         await self.app(scope, receive, send_with_cookie)
+
+    def _new_csrf_token(self) -> str:
+        nonce = secrets.token_urlsafe(24)
+        return f"{nonce}.{self._signature(nonce)}"
+
+    def _signature(self, nonce: str) -> str:
+        return hmac.new(self.csrf_key, nonce.encode(), "sha256").hexdigest()
+
+    def _signed(self, token: str | None) -> bool:
+        """Whether ``token`` is one this server made (its signature holds; compared in constant time)."""
+        if not token or "." not in token:
+            return False
+        nonce, _, signature = token.rpartition(".")
+        return tokens_match(signature, self._signature(nonce))
 
     def _refusal(self, request: Request, limit: BodyLimit) -> Refusal | None:
         """Why the request may not go on, checked in order; None when it may."""

@@ -198,6 +198,31 @@ def test_a_form_post_without_the_csrf_token_is_refused(seeded_db):
         assert response.status_code == 303
 
 
+def test_a_cookie_this_server_did_not_sign_is_replaced_not_trusted(seeded_db):
+    # Cookies are not kept apart by port: a program on another port of 127.0.0.1 can set
+    # lagdesk_csrf to a value it also puts in a form. A server attack had such a forged pair
+    # (cookie x, field x, no Origin header) park a series. The token is now signed by this
+    # server process, so the pair is refused, and the page hands the browser a token of its own.
+    url = f"/series/{quote(SEED_ID, safe='/')}/verdict"
+    form = {"action": "park", "reviewer": "Ada", "version": "0"}
+    forged = {"cookie": f"{CSRF_COOKIE}=x"}
+    before = table_rows(seeded_db)
+    with _client(seeded_db) as client:  # its cookie jar stays empty: each request carries its own
+        assert client.post(url, data={**form, CSRF_FIELD: "x"}, headers=forged).status_code == 403
+        api = client.post(f"/api/series/{quote(SEED_ID, safe='/')}/verdict", json={"status": "parked", "version": 0,
+                          "reviewer": "Ada"}, headers={**forged, CSRF_HEADER: "x"})
+        assert api.status_code == 403
+        assert table_rows(seeded_db) == before
+        page = client.get("/", headers=forged)
+        given = page.headers["set-cookie"].split(";")[0].removeprefix(f"{CSRF_COOKIE}=")
+        assert given != "x" and f'name="{CSRF_FIELD}" value="{given}"' in page.text
+        own = {"cookie": f"{CSRF_COOKIE}={given}"}
+        assert client.post(url, data={**form, CSRF_FIELD: given}, headers=own, follow_redirects=False).status_code == 303
+    # Another server process signs with another key: its tokens are not this one's.
+    with _client(seeded_db) as other:
+        assert "set-cookie" in other.get("/", headers=own).headers
+
+
 def test_a_cross_site_post_is_refused_even_with_a_token(seeded_db):
     with _client(seeded_db) as client:
         csrf = _csrf(client)

@@ -249,8 +249,11 @@ def _asgi_post(app, path: str, chunks, headers: dict[str, str]) -> tuple[int, by
     return start["status"], b"".join(m.get("body", b"") for m in sent if m["type"] == "http.response.body"), pulled
 
 
-def _json_headers(length: str | None) -> dict[str, str]:
-    headers = {"host": f"127.0.0.1:{PORT}", "content-type": "application/json", "cookie": f"{CSRF_COOKIE}=t", CSRF_HEADER: "t"}
+def _json_headers(app, length: str | None) -> dict[str, str]:
+    """Headers of a JSON call with a CSRF token the ``app`` signed (one of its own pages' cookie)."""
+    token = TestClient(app, base_url=f"http://127.0.0.1:{PORT}").get("/api/csrf").cookies[CSRF_COOKIE]
+    headers = {"host": f"127.0.0.1:{PORT}", "content-type": "application/json", "cookie": f"{CSRF_COOKIE}={token}",
+               CSRF_HEADER: token}
     return headers if length is None else {**headers, "content-length": length}
 
 
@@ -262,7 +265,7 @@ def test_body_bytes_are_counted_as_they_arrive_whatever_the_headers_say(seeded_d
     app = create_app(Settings(db_path=seeded_db, port=PORT))
     chunk = 64 * 1024
     chunks = [b'{"status": "parked", "version": 0, "note": "'] + [b"x" * chunk] * (5 * MIB // chunk)
-    status, body, pulled = _asgi_post(app, _verdict_url(), chunks, _json_headers(declared))
+    status, body, pulled = _asgi_post(app, _verdict_url(), chunks, _json_headers(app, declared))
     assert status == 413 and b"1 MiB" in body
     assert pulled <= MIB + chunk + len(chunks[0])
     assert table_rows(seeded_db) == before
@@ -270,7 +273,7 @@ def test_body_bytes_are_counted_as_they_arrive_whatever_the_headers_say(seeded_d
 
 def test_a_body_that_stops_arriving_is_dropped(seeded_db):
     app = create_app(Settings(db_path=seeded_db, port=PORT, request_timeout_s=0.2))
-    status, body, _ = _asgi_post(app, _verdict_url(), [b'{"status": "parked"'], _json_headers("1000"))
+    status, body, _ = _asgi_post(app, _verdict_url(), [b'{"status": "parked"'], _json_headers(app, "1000"))
     assert status == 408 and b"stopped arriving" in body
 
 
