@@ -264,6 +264,18 @@ def _append_history(
     )
 
 
+def sent_to_recheck(db: sqlite_utils.Database, since: str, until: str | None = None) -> list[dict]:
+    """The decided verdicts Lagdesk sent back to ``recheck`` from ``since`` to ``until`` (times
+    as :func:`~app.store.database.utc_now` writes them; None: until now), oldest first:
+    ``{"series_id", "reason", "at"}``."""
+    rows = db.execute(
+        "SELECT series_id, note, at FROM verdict_history WHERE status = 'recheck' AND reviewer = ? AND at >= ? "
+        "AND (? IS NULL OR at <= ?) ORDER BY at, history_id",
+        [SYSTEM_REVIEWER, since, until, until],
+    ).fetchall()
+    return [{"series_id": series_id, "reason": note, "at": at} for series_id, note, at in rows]
+
+
 def verdict_history(db: sqlite_utils.Database, series_id: str) -> list[dict]:
     """Every change of the series' verdict, oldest first."""
     rows = db.execute(

@@ -15,7 +15,7 @@ from web_portfolio import AWKWARD_ID, ODD_ID, deltas_by_hand, q_only_pairs, stor
 
 from app.config import Settings
 from app.core.vocabulary import FLAG_WORDS, SAFETY_CAUTION, Confidence, Flag
-from app.store.runs import start_run
+from app.store.runs import finish_run, start_run
 from app.store.verdicts import get_verdict, mark_recheck, set_verdict, verdict_history
 from app.web.charts import PLOTLY_JS
 from app.web.deps import REVIEWER_COOKIE
@@ -625,6 +625,21 @@ def test_runs_pages(client, db):
     progress = client.get(f"/runs/{run_id}")
     assert progress.status_code == 200 and f"/api/runs/{run_id}" in progress.text
     assert client.get("/runs/999").status_code == 404
+
+
+def test_a_finished_run_lists_the_decided_orders_it_sent_back(client, db, results):
+    # The command line listed them at the end of `analyze`; the run page said only "finished 1
+    # of 1" (a new-user trial), and kept saying results "appear as they land" once finished.
+    run_id = start_run(db, {}, total=1, engine_version="test")
+    sid = sorted(results)[0]
+    suggested = results[sid].suggested.order
+    set_verdict(db, sid, status="approved", order=list(suggested.order), seasonal_order=list(suggested.seasonal_order),
+                reviewer="Bo", version=0)
+    mark_recheck(db, sid, "the data changed (now 130 points to 2025-10-01): the residuals fail the Ljung-Box test")
+    finish_run(db, run_id, "finished")
+    page = client.get(f"/runs/{run_id}").text
+    assert "1 decided order sent back for a re-check" in page and "the residuals fail the Ljung-Box test" in page
+    assert "as they land" not in page and "?status=recheck" in page
 
 
 # --- assets ------------------------------------------------------------------------------------

@@ -28,6 +28,7 @@ from app.store.database import UnknownSeries
 from app.store.orders import verdict_model
 from app.store.runs import get_run, list_runs
 from app.store.series import next_awaiting, series_neighbours
+from app.store.verdicts import sent_to_recheck
 from app.web.charts import PLOTLY_JS
 from app.web.deps import (
     REVIEWER_COOKIE,
@@ -57,6 +58,7 @@ Db = Annotated[sqlite_utils.Database, Depends(get_db)]
 RunsDb = Annotated[sqlite_utils.Database, Depends(get_runs_db)]
 Config = Annotated[Settings, Depends(get_settings)]
 BULK_PREVIEW = 12
+RECHECKED_SHOWN = 10  # decided orders a finished run's page lists by name
 VENDOR_MAX_AGE_S = 7 * 24 * 3600
 EXPORT_MEDIA_TYPES = {"json": "application/json", "csv": "text/csv; charset=utf-8"}
 NAME_NEEDED = "Give your name once (this browser remembers it); it is stored with each verdict."
@@ -346,7 +348,9 @@ def runs(request: Request, db: RunsDb) -> Response:
 
 @router.get("/runs/{run_id}", name="run_progress")
 def run_progress(request: Request, db: RunsDb, run_id: Annotated[int, FastApiPath(ge=1, le=SQLITE_MAX_INTEGER)]) -> Response:
-    return render(request, "run.html", {"run": get_run(db, run_id)})
+    run = get_run(db, run_id)
+    rechecked = sent_to_recheck(db, run["started_at"], run["finished_at"]) if run["state"] != "running" else []
+    return render(request, "run.html", {"run": run, "rechecked": rechecked, "rechecked_shown": RECHECKED_SHOWN})
 
 
 @router.post("/reviewer", name="set_reviewer")
