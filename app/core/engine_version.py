@@ -12,4 +12,4 @@ results in the database that the installed engine would no longer give. Kept apa
 
 from __future__ import annotations
 
-ENGINE_VERSION = "2026-12-05.34"
+ENGINE_VERSION = "2026-12-05.33"
