@@ -44,8 +44,8 @@ def p_words(p: float, test: str = "", level: float | None = None) -> str:
     """``p = 0.004``, ``p < 0.001``, or for a test whose p-values are clipped to a table, ``p > 0.10``.
 
     Beside a ``level`` it is compared with, a p-value that three decimals would round onto the
-    level's own digits gets as many more as tell them apart (``p = 0.1566`` below 15.73%,
-    not ``p = 0.157`` "below" 15.7%)."""
+    level's own digits gets as many more as tell them apart (``p = 0.1566`` below the 15.7%
+    level, not ``p = 0.157`` "below" it)."""
     text = p_text(p, test)
     if level is not None and text[0] not in "<>" and p != level:
         digits = 3
