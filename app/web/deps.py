@@ -112,6 +112,14 @@ def computation_slot(request: Request, series_id: str, wait: float = 0.0) -> Abs
     return request.app.state.series_slots.hold(series_id, wait)
 
 
+def export_turn(request: Request) -> AbstractContextManager[object]:
+    """What building the export holds: one at a time in this server. The export refits each
+    decided order whose data changed since its last fit and keeps the refit, so an export that
+    waits for another finds those fits kept; side by side, each would have refitted them all
+    (four at once took about 22 s each, a server attack)."""
+    return request.app.state.export_lock
+
+
 def saving_slot(request: Request, series_id: str) -> Callable[[], AbstractContextManager[None]]:
     """What a save holds while it fits an order (:func:`app.review.decisions.decide`): the
     series' computation slot, waited for up to :data:`SAVE_WAIT_S` seconds. Concurrent saves of

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+
 from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 
@@ -23,6 +25,7 @@ def create_app(settings: Settings) -> FastAPI:
                   docs_url=None, redoc_url=None)
     app.state.settings = settings
     app.state.series_slots = SeriesSlots()
+    app.state.export_lock = threading.Lock()
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(access.router)
     # Before the pages and the API: their /series/{id} routes would take .../compare as an id.

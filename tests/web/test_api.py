@@ -559,3 +559,38 @@ def test_concurrent_overrides_of_one_series_fit_once_and_the_rest_are_stale(clie
         t.join()
     assert sorted(codes) == [200, 409, 409, 409] and len(fits) == 1
     assert get_verdict(db, SERIES)["version"] == 1
+
+
+def test_exports_are_built_one_at_a_time(client, monkeypatch):
+    # An export refits each decided order whose data changed and keeps the refit; four built
+    # side by side each refitted them all (about 22 s each, a server attack). One at a time, an
+    # export that waits finds the refits kept. Counted here: how many builds overlap.
+    import threading
+
+    import app.web.routes.api as api_routes
+    import app.web.routes.pages as page_routes
+
+    running, most, guard = [0], [0], threading.Lock()
+    real = api_routes.build_orders_document
+
+    def counted(*args, **kwargs):
+        with guard:
+            running[0] += 1
+            most[0] = max(most[0], running[0])
+        time.sleep(0.2)
+        try:
+            return real(*args, **kwargs)
+        finally:
+            with guard:
+                running[0] -= 1
+
+    monkeypatch.setattr(api_routes, "build_orders_document", counted)
+    monkeypatch.setattr(page_routes, "build_orders_document", counted)
+    paths = ["/api/orders", "/export/lagdesk-orders.json", "/api/orders", "/export/lagdesk-orders.csv"]
+    codes: list[int] = []
+    threads = [threading.Thread(target=lambda p=p: codes.append(client.get(p).status_code)) for p in paths]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert codes == [200] * 4 and most[0] == 1

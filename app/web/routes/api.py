@@ -40,6 +40,7 @@ from app.web.deps import (
     SQLITE_MAX_INTEGER,
     clean_reviewer,
     computation_slot,
+    export_turn,
     get_db,
     get_runs_db,
     get_settings,
@@ -373,10 +374,14 @@ def series_backtest(
 
 
 @router.get("/orders")
-def orders(db: Db, status: Annotated[str | None, Query(description="decisions to include, comma-separated (default approved,overridden)")] = None) -> dict:
+def orders(request: Request, db: Db,
+           status: Annotated[str | None, Query(description="decisions to include, comma-separated (default approved,overridden)")] = None) -> dict:
     """The export of the decided orders: the ``lagdesk-orders`` document (JSON Schema in
-    ``schemas/lagdesk-orders.schema.json``), as ``lagdesk export`` writes it."""
-    return build_orders_document(db, parse_statuses(status))
+    ``schemas/lagdesk-orders.schema.json``), as ``lagdesk export`` writes it; one export is
+    built at a time (:func:`app.web.deps.export_turn`)."""
+    statuses = parse_statuses(status)
+    with export_turn(request):
+        return build_orders_document(db, statuses)
 
 
 @router.get("/series/{series_id:path}")

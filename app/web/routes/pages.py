@@ -35,6 +35,7 @@ from app.web.deps import (
     SQLITE_MAX_INTEGER,
     clean_reviewer,
     computation_slot,
+    export_turn,
     get_db,
     get_runs_db,
     get_settings,
@@ -239,9 +240,12 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
 
 
 @router.get("/export/lagdesk-orders.{fmt}", name="download_orders")
-def download_orders(db: Db, fmt: Literal["json", "csv"]) -> Response:
-    """The export of the decided orders as a file to save (what ``lagdesk export`` writes)."""
-    text = orders_text(build_orders_document(db), fmt)
+def download_orders(request: Request, db: Db, fmt: Literal["json", "csv"]) -> Response:
+    """The export of the decided orders as a file to save (what ``lagdesk export`` writes); one
+    export is built at a time (:func:`app.web.deps.export_turn`)."""
+    with export_turn(request):
+        document = build_orders_document(db)
+    text = orders_text(document, fmt)
     return Response(text, media_type=EXPORT_MEDIA_TYPES[fmt], headers={
         "Content-Disposition": f'attachment; filename="lagdesk-orders.{fmt}"',
     })
