@@ -150,8 +150,12 @@ def prepare_series(
             "most of the grid would be gaps (do the timestamps mix two frequencies?)", flag="mostly_gaps",
         )
     present = prepared.values[~np.isnan(prepared.values)]
-    if np.ptp(present) <= 1e-12 * max(1.0, float(np.abs(present).max())):
-        raise SeriesProblem(sid, f"is constant (every value is {present[0]:g}); there is nothing to model", flag="constant")
+    spread = float(np.ptp(present))
+    if spread <= 1e-12 * max(1.0, float(np.abs(present).max())):
+        if spread == 0.0:
+            raise SeriesProblem(sid, f"is constant (every value is {present[0]:g}); there is nothing to model", flag="constant")
+        raise SeriesProblem(sid, f"varies by only {spread:g} (values near {present[0]:g}), too little to model in these units; "
+                                 "rescale it (say, to smaller units) and import it again", flag="constant")
     if observed < RECOMMENDED_POINTS:
         prepared.flags.append(Flag.TOO_SHORT)
     return prepared

@@ -189,6 +189,16 @@ def test_constant_series_is_a_problem():
     assert info.value.flag == "constant" and "4.2" in str(info.value)
 
 
+def test_a_series_that_varies_too_little_to_model_is_not_called_constant():
+    # Readings near 1e-20 that vary were refused as "constant (every value is 1e-20)" (a server
+    # attack): below the absolute floor the engine is not trusted, but the words say what is wrong.
+    values = 1e-20 * (1.0 + np.random.default_rng(3).random(N))
+    with pytest.raises(SeriesProblem) as info:
+        prepare_series(_daily(values), "probe-1")
+    assert info.value.flag == "constant"
+    assert "varies by only" in str(info.value) and "rescale it" in str(info.value) and "is constant" not in str(info.value)
+
+
 def test_too_short_series_is_a_problem():
     s = _daily().iloc[: MIN_POINTS - 1]
     with pytest.raises(SeriesProblem) as info:
