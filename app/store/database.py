@@ -190,9 +190,12 @@ def write_transaction(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Databa
         yield db
 
 
-def prefix_match(column: str, prefix: str) -> tuple[str, list]:
-    """The SQL condition that ``column`` (a series id) starts with ``prefix``, and its parameters.
-    substr, not LIKE: an id may hold % or _, and a prefix is matched exactly (case too)."""
+def prefix_match(column: str, prefix: str | None) -> tuple[str, list]:
+    """The SQL condition that ``column`` (a series id) starts with ``prefix``, and its parameters;
+    a condition every row meets when there is no prefix. substr, not LIKE: an id may hold % or
+    _, and a prefix is matched exactly (case too)."""
+    if not prefix:
+        return "1", []
     return f"substr({column}, 1, ?) = ?", [len(prefix), prefix]
 
 

@@ -456,7 +456,7 @@ def group_counts(db: sqlite_utils.Database, depth: int, prefix: str | None = Non
     if depth < 1:
         raise LagdeskError(f"depth ({depth}) must be at least 1")
     # verdicts holds one row per series: the series table is not needed to count them.
-    where, params = prefix_match("v.series_id", prefix) if prefix else ("1", [])
+    where, params = prefix_match("v.series_id", prefix)
     groups: dict[str, dict] = {}
     for series_id, status, confidence in db.execute(
         f"SELECT v.series_id, v.status, a.confidence FROM verdicts v LEFT JOIN analyses a ON a.series_id = v.series_id WHERE {where}",
@@ -490,7 +490,7 @@ def confidence_counts(db: sqlite_utils.Database, prefix: str | None = None) -> d
     """How many stored analyses (current or stale; of the series under ``prefix``, when given)
     hold each confidence level, weakest first, as the confidence filter sees them."""
     counts = dict.fromkeys(CONFIDENCE_LEVELS, 0)
-    where, params = prefix_match("series_id", prefix) if prefix else ("1", [])
+    where, params = prefix_match("series_id", prefix)
     counts.update(db.execute(
         f"SELECT confidence, count(*) FROM analyses WHERE confidence IS NOT NULL AND {where} GROUP BY confidence", params
     ).fetchall())

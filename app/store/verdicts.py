@@ -305,7 +305,7 @@ def verdict_counts(db: sqlite_utils.Database, prefix: str | None = None) -> dict
     """How many series (those whose id starts with ``prefix``, when given) hold each status
     (every status present, zero when unused)."""
     counts = dict.fromkeys((str(s) for s in STATUSES), 0)
-    where, params = prefix_match("series_id", prefix) if prefix else ("1", [])
+    where, params = prefix_match("series_id", prefix)
     counts.update(db.execute(f"SELECT status, count(*) FROM verdicts WHERE {where} GROUP BY status", params).fetchall())
     return counts
 

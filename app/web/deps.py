@@ -6,7 +6,7 @@ from __future__ import annotations
 import os
 import re
 import threading
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import AbstractContextManager, contextmanager
 from urllib.parse import quote, unquote
 
@@ -16,7 +16,9 @@ from fastapi import Depends, Request, Response
 from app.config import Settings
 from app.core.errors import LagdeskError, OrderError
 from app.core.series_ids import printable
+from app.core.vocabulary import DECIDED
 from app.jobs.run_lock import close_abandoned_runs
+from app.review.export import build_orders_document
 from app.store.database import open_database
 
 REVIEWER_COOKIE = "lagdesk_reviewer"
@@ -112,12 +114,13 @@ def computation_slot(request: Request, series_id: str, wait: float = 0.0) -> Abs
     return request.app.state.series_slots.hold(series_id, wait)
 
 
-def export_turn(request: Request) -> AbstractContextManager[object]:
-    """What building the export holds: one at a time in this server. The export refits each
-    decided order whose data changed since its last fit and keeps the refit, so an export that
-    waits for another finds those fits kept; side by side, each would have refitted them all
-    (four at once took about 22 s each, a server attack)."""
-    return request.app.state.export_lock
+def export_document(request: Request, db: sqlite_utils.Database, statuses: Sequence[str] = DECIDED) -> dict:
+    """The export document (:func:`app.review.export.build_orders_document`), built one at a
+    time in this server. It refits each decided order whose data changed since its last fit and
+    keeps the refit, so an export that waits for another finds those fits kept; side by side,
+    each would have refitted them all (four at once took about 22 s each, a server attack)."""
+    with request.app.state.export_lock:
+        return build_orders_document(db, statuses)
 
 
 def saving_slot(request: Request, series_id: str) -> Callable[[], AbstractContextManager[None]]:

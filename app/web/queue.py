@@ -26,7 +26,7 @@ from app.store.series import (
     series_values,
     suggested_models,
 )
-from app.store.verdicts import STATUSES
+from app.store.verdicts import STATUSES, verdict_counts
 from app.web.sparkline import sparkline_svg
 
 # The page sizes the queue offers (Settings.max_page_size bounds what a request may ask for).
@@ -118,7 +118,7 @@ def queue_page(db: sqlite_utils.Database, flt: SeriesFilter, offset: int, limit:
     target = flt.firm_pending()
     firm_in_filter = list_series(db, limit=0, **target.store_kwargs())[0] if target else 0
     counts = count_by(db, flt.prefix)  # of the group the page shows, as its list and bulk action
-    portfolio = count_by(db)["status"] if flt.prefix else counts["status"]  # the export takes every group
+    portfolio = verdict_counts(db) if flt.prefix else counts["status"]  # the export takes every group
     return {
         "filter": flt,
         "total": total,

@@ -567,11 +567,10 @@ def test_exports_are_built_one_at_a_time(client, monkeypatch):
     # export that waits finds the refits kept. Counted here: how many builds overlap.
     import threading
 
-    import app.web.routes.api as api_routes
-    import app.web.routes.pages as page_routes
+    import app.web.deps as deps
 
     running, most, guard = [0], [0], threading.Lock()
-    real = api_routes.build_orders_document
+    real = deps.build_orders_document
 
     def counted(*args, **kwargs):
         with guard:
@@ -584,8 +583,7 @@ def test_exports_are_built_one_at_a_time(client, monkeypatch):
             with guard:
                 running[0] -= 1
 
-    monkeypatch.setattr(api_routes, "build_orders_document", counted)
-    monkeypatch.setattr(page_routes, "build_orders_document", counted)
+    monkeypatch.setattr(deps, "build_orders_document", counted)
     paths = ["/api/orders", "/export/lagdesk-orders.json", "/api/orders", "/export/lagdesk-orders.csv"]
     codes: list[int] = []
     threads = [threading.Thread(target=lambda p=p: codes.append(client.get(p).status_code)) for p in paths]

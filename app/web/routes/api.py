@@ -27,7 +27,7 @@ from app.core.series_ids import MAX_ID_LENGTH
 from app.jobs.analyze import start_background_analysis
 from app.review.bulk import approve_firm, park, undo_bulk_approval, waiting_ids
 from app.review.decisions import MAX_NOTE_LENGTH, OverrideNeeded, decide, fit_custom_order
-from app.review.export import build_orders_document, parse_statuses
+from app.review.export import parse_statuses
 from app.review.filters import SeriesFilter
 from app.review.forecast_check import MAX_ORIGINS, MIN_HORIZON_CAP, backtest_series
 from app.store.analyses import analysis_record, load_analysis
@@ -40,7 +40,7 @@ from app.web.deps import (
     SQLITE_MAX_INTEGER,
     clean_reviewer,
     computation_slot,
-    export_turn,
+    export_document,
     get_db,
     get_runs_db,
     get_settings,
@@ -378,10 +378,8 @@ def orders(request: Request, db: Db,
            status: Annotated[str | None, Query(description="decisions to include, comma-separated (default approved,overridden)")] = None) -> dict:
     """The export of the decided orders: the ``lagdesk-orders`` document (JSON Schema in
     ``schemas/lagdesk-orders.schema.json``), as ``lagdesk export`` writes it; one export is
-    built at a time (:func:`app.web.deps.export_turn`)."""
-    statuses = parse_statuses(status)
-    with export_turn(request):
-        return build_orders_document(db, statuses)
+    built at a time (:func:`app.web.deps.export_document`)."""
+    return export_document(request, db, parse_statuses(status))
 
 
 @router.get("/series/{series_id:path}")

@@ -20,7 +20,7 @@ from app.core.errors import LagdeskError
 from app.jobs.analyze import start_background_analysis
 from app.review.bulk import approve_firm, firm_pending_ids, park, undo_bulk_approval, waiting_ids
 from app.review.decisions import ConfirmationNeeded, DecisionError, approval_risks, decide, fit_custom_order, verdict_of
-from app.review.export import build_orders_document, orders_text
+from app.review.export import orders_text
 from app.review.filters import SeriesFilter
 from app.store.analyses import load_analysis
 from app.store.bulk_approvals import get_bulk_approval, latest_undoable
@@ -35,7 +35,7 @@ from app.web.deps import (
     SQLITE_MAX_INTEGER,
     clean_reviewer,
     computation_slot,
-    export_turn,
+    export_document,
     get_db,
     get_runs_db,
     get_settings,
@@ -242,10 +242,8 @@ def fit_custom(request: Request, db: Db, flt: Filter, series_id: str,
 @router.get("/export/lagdesk-orders.{fmt}", name="download_orders")
 def download_orders(request: Request, db: Db, fmt: Literal["json", "csv"]) -> Response:
     """The export of the decided orders as a file to save (what ``lagdesk export`` writes); one
-    export is built at a time (:func:`app.web.deps.export_turn`)."""
-    with export_turn(request):
-        document = build_orders_document(db)
-    text = orders_text(document, fmt)
+    export is built at a time (:func:`app.web.deps.export_document`)."""
+    text = orders_text(export_document(request, db), fmt)
     return Response(text, media_type=EXPORT_MEDIA_TYPES[fmt], headers={
         "Content-Disposition": f'attachment; filename="lagdesk-orders.{fmt}"',
     })
